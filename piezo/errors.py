@@ -1,0 +1,55 @@
+"""The project's exception tree.
+
+Every error the analysis core raises on purpose is a :class:`PiezoError`. Its leaves also
+inherit the built-in exception with the same meaning, so callers may catch either way
+(``except ValueError`` keeps working for code that does not know about piezo).
+
+The command line turns a :class:`PiezoError` into one line on stderr and exit code 2.
+"""
+
+from __future__ import annotations
+
+
+class PiezoError(Exception):
+    """Root of every error raised on purpose by piezo.
+
+    Parameters
+    ----------
+    message
+        What is wrong, in words a user can act on.
+    source
+        The file (or other input) the problem belongs to, if any. The command line
+        prints it in front of the message.
+    """
+
+    def __init__(self, message: str, *, source: str | None = None) -> None:
+        super().__init__(message)
+        self.message = message
+        self.source = source
+
+    def __str__(self) -> str:
+        if self.source:
+            return f"{self.source}: {self.message}"
+        return self.message
+
+    def with_source(self, source: str) -> PiezoError:
+        """Return the same error naming ``source`` if it does not name one yet."""
+        if self.source is None:
+            self.source = source
+        return self
+
+
+class InputError(PiezoError, ValueError):
+    """A value, option or file content that cannot be used as given."""
+
+
+class UnitError(InputError):
+    """A quantity whose text cannot be parsed or has the wrong unit."""
+
+
+class RecordingError(PiezoError, OSError):
+    """A recording that is missing, unreadable, empty or corrupt."""
+
+
+class SpecError(InputError):
+    """A limit specification, profile or design file that is invalid."""

@@ -1,0 +1,339 @@
+"""Parsing and formatting of quantities typed by users.
+
+Text such as ``"47 nF"``, ``"1G"``, ``"-38 dBV/Pa"``, ``"12 pC/Pa"`` or ``"20 dB"`` is
+parsed here, once, at the edge of the program; the analysis core only sees floats in SI
+units whose names carry the unit (``capacitance_f``, ``sensitivity_v_per_pa``).
+
+SI prefixes follow the SI Brochure (BIPM, 9th edition, 2019, table 7); decibel forms
+follow IEC 60027-3 (field quantities: 20 lg of the amplitude ratio).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterable
+
+from piezo.errors import UnitError
+
+__all__ = [
+    "ACCEPTED_UNITS",
+    "db_to_ratio",
+    "format_quantity",
+    "parse_charge_gain",
+    "parse_duration",
+    "parse_frequency_list",
+    "parse_gain",
+    "parse_quantity",
+    "parse_sensitivity",
+    "ratio_to_db",
+]
+
+#: SI prefix symbol -> power of ten. ``u`` stands for micro where µ is hard to type.
+PREFIXES: dict[str, int] = {
+    "f": -15,
+    "p": -12,
+    "n": -9,
+    "u": -6,
+    "µ": -6,
+    "μ": -6,
+    "m": -3,
+    "": 0,
+    "k": 3,
+    "K": 3,
+    "M": 6,
+    "G": 9,
+    "T": 12,
+}
+
+#: Canonical unit -> spellings accepted for it (case-sensitive after the prefix).
+ACCEPTED_UNITS: dict[str, tuple[str, ...]] = {
+    "F": ("F",),
+    "Ohm": ("Ohm", "ohm", "Ω", "R", "ohms", "Ohms"),
+    "V": ("V",),
+    "A": ("A",),
+    "C": ("C",),
+    "Hz": ("Hz", "hz"),
+    "s": ("s",),
+    "m": ("m",),
+    "Pa": ("Pa",),
+    "F/m": ("F/m",),
+    "V/Pa": ("V/Pa",),
+    "C/Pa": ("C/Pa",),
+    "V/C": ("V/C",),
+    "V/V": ("V/V",),
+    "V/sqrtHz": ("V/sqrtHz", "V/√Hz", "V/rtHz", "V/sqrt(Hz)"),
+    "A/sqrtHz": ("A/sqrtHz", "A/√Hz", "A/rtHz", "A/sqrt(Hz)"),
+    "K": ("K",),
+}
+
+_NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+_NUMBER_RE = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$")
+# Engineering notation with the prefix as decimal mark: 4k7, 2M2, 4n7.
+_INFIX_RE = re.compile(r"^\s*([-+]?\d+)([fpnuµμmkKMGT])(\d+)\s*(.*?)\s*$")
+
+
+def _split_number(text: str, what: str) -> tuple[float, str]:
+    """Split ``text`` into its leading number and the unit text after it."""
+    if not isinstance(text, str):
+        raise UnitError(f"{what}: expected text, got {text!r}")
+    m = _INFIX_RE.match(text)
+    if m:
+        value = float(f"{m.group(1)}.{m.group(3)}") * 10.0 ** PREFIXES[m.group(2)]
+        return value, m.group(4)
+    m = _NUMBER_RE.match(text)
+    if not m:
+        raise UnitError(f"{what}: {text!r} does not start with a number")
+    value = float(m.group(1))
+    if not math.isfinite(value):
+        raise UnitError(f"{what}: {text!r} is not a finite number")
+    return value, m.group(2)
+
+
+def _unit_scale(unit_text: str, unit: str) -> float | None:
+    """Return the factor that turns ``unit_text`` (prefix + spelling) into ``unit``."""
+    spellings = ACCEPTED_UNITS[unit]
+    compact = unit_text.replace(" ", "")
+    if compact == "":
+        return 1.0
+    # Bare prefix: engineering notation such as "47n" or "1G".
+    if compact in PREFIXES:
+        return 10.0 ** PREFIXES[compact]
+    for spelling in spellings:
+        if compact.endswith(spelling):
+            prefix = compact[: -len(spelling)]
+            if prefix in PREFIXES:
+                return 10.0 ** PREFIXES[prefix]
+    return None
+
+
+def _accepted_text(unit: str) -> str:
+    spellings = ", ".join(ACCEPTED_UNITS[unit])
+    return f"a number with an optional SI prefix (f p n u m k M G T) and unit {spellings}"
+
+
+def parse_quantity(text: str | float | int, unit: str, *, what: str = "value") -> float:
+    """Parse a quantity and return it in the SI unit ``unit``.
+
+    Parameters
+    ----------
+    text
+        User text such as ``"47 nF"``, ``"47n"``, ``"4k7"``, ``"1 GOhm"``, ``"2.5 V"``.
+        A plain number (int or float) is taken as already in ``unit``.
+    unit
+        The expected unit, a key of :data:`ACCEPTED_UNITS`.
+    what
+        Name of the option or key, used in error messages.
+
+    Returns
+    -------
+    float
+        The value in ``unit`` without prefix (farads, ohms, volts ...).
+
+    Raises
+    ------
+    UnitError
+        If the text is not a number followed by a prefix and an accepted spelling of
+        ``unit``. The message lists what is accepted.
+
+    Examples
+    --------
+    >>> parse_quantity("47 nF", "F")
+    4.7e-08
+    >>> parse_quantity("4k7", "Ohm")
+    4700.0
+    """
+    if unit not in ACCEPTED_UNITS:
+        raise ValueError(f"unknown canonical unit {unit!r}")
+    if isinstance(text, bool):
+        raise UnitError(f"{what}: expected a quantity, got {text!r}")
+    if isinstance(text, int | float):
+        if not math.isfinite(float(text)):
+            raise UnitError(f"{what}: {text!r} is not a finite number")
+        return float(text)
+    value, rest = _split_number(text, what)
+    scale = _unit_scale(rest, unit)
+    if scale is None:
+        raise UnitError(f"{what}: unknown unit in {text!r}; expected {_accepted_text(unit)}")
+    return value * scale
+
+
+def ratio_to_db(ratio: float) -> float:
+    """Amplitude ratio to decibels, 20 lg(ratio) (IEC 60027-3 field quantity)."""
+    return 20.0 * math.log10(ratio)
+
+
+def db_to_ratio(level_db: float) -> float:
+    """Decibels to amplitude ratio, 10^(dB/20)."""
+    return 10.0 ** (level_db / 20.0)
+
+
+_DB_RE = re.compile(r"^\s*(" + _NUMBER + r")\s*dB\s*(.*?)\s*$")
+
+
+def parse_gain(text: str | float | int, *, what: str = "--gain") -> float:
+    """Parse a voltage gain and return it as a linear ratio (V/V).
+
+    Accepts ``"20 dB"``, ``"-6dB"``, ``"10"``, ``"10 V/V"``, ``"x10"``. A plain number is a
+    linear ratio. The gain must be positive and finite.
+    """
+    if isinstance(text, int | float) and not isinstance(text, bool):
+        ratio = float(text)
+    else:
+        if not isinstance(text, str):
+            raise UnitError(f"{what}: expected a gain, got {text!r}")
+        t = text.strip()
+        m = _DB_RE.match(t)
+        if m and m.group(2) == "":
+            ratio = db_to_ratio(float(m.group(1)))
+        else:
+            if t.lower().startswith("x"):
+                t = t[1:]
+            try:
+                ratio = parse_quantity(t, "V/V", what=what)
+            except UnitError:
+                raise UnitError(
+                    f"{what}: cannot read gain {text!r}; expected e.g. '20 dB', '10', "
+                    "'10 V/V' or 'x10'"
+                ) from None
+    if not math.isfinite(ratio) or ratio <= 0:
+        raise UnitError(f"{what}: gain must be positive, got {text!r}")
+    return ratio
+
+
+def parse_charge_gain(text: str | float, *, what: str = "--charge-gain") -> float:
+    """Parse a charge-amplifier gain (``"1 mV/pC"``) and return volts per coulomb."""
+    if isinstance(text, int | float) and not isinstance(text, bool):
+        value = float(text)
+    else:
+        value = _parse_ratio(str(text), "V", "C", what)
+    if not math.isfinite(value) or value <= 0:
+        raise UnitError(f"{what}: charge gain must be positive, got {text!r}")
+    return value
+
+
+def _parse_ratio(text: str, num: str, den: str, what: str) -> float:
+    """Parse ``<number> <prefix><num>/<prefix><den>`` such as ``12 mV/pC``."""
+    value, rest = _split_number(text, what)
+    compact = rest.replace(" ", "")
+    if "/" not in compact:
+        raise UnitError(f"{what}: {text!r} needs a unit of the form {num}/{den}")
+    top, bottom = compact.split("/", 1)
+    top_scale = _prefixed(top, num)
+    bottom_scale = _prefixed(bottom, den)
+    if top_scale is None or bottom_scale is None:
+        raise UnitError(
+            f"{what}: unknown unit in {text!r}; expected {num}/{den} with SI prefixes, "
+            f"e.g. '1 m{num}/p{den}'"
+        )
+    return value * top_scale / bottom_scale
+
+
+def _prefixed(text: str, base: str) -> float | None:
+    if not text.endswith(base):
+        return None
+    prefix = text[: -len(base)]
+    if prefix not in PREFIXES:
+        return None
+    return 10.0 ** PREFIXES[prefix]
+
+
+def parse_sensitivity(
+    text: str | float,
+    *,
+    charge_gain_v_per_c: float | None = None,
+    what: str = "--sensitivity",
+) -> float:
+    """Parse a sensor sensitivity and return it in volts per pascal.
+
+    Accepted forms:
+
+    - voltage sensitivity ``"20 mV/Pa"``, ``"0.02 V/Pa"``;
+    - level form ``"-34 dBV/Pa"`` (dB re 1 V/Pa);
+    - charge sensitivity ``"12 pC/Pa"``, which needs ``charge_gain_v_per_c`` (the charge
+      amplifier's gain, e.g. 1 mV/pC = 1e9 V/C) to become a voltage.
+
+    A plain number is taken as V/Pa. The result must be positive.
+    """
+    if isinstance(text, int | float) and not isinstance(text, bool):
+        value = float(text)
+    else:
+        t = str(text).strip()
+        m = _DB_RE.match(t)
+        if m:
+            ref = m.group(2).replace(" ", "")
+            if ref not in ("V/Pa", "V", "re1V/Pa"):
+                raise UnitError(
+                    f"{what}: {text!r}: a level sensitivity must be in dBV/Pa (dB re 1 V/Pa)"
+                )
+            value = db_to_ratio(float(m.group(1)))
+        elif re.search(r"C\s*/\s*[a-zA-Zµμ]*Pa\s*$", t):
+            charge = _parse_ratio(t, "C", "Pa", what)
+            if charge_gain_v_per_c is None:
+                raise UnitError(
+                    f"{what}: {text!r} is a charge sensitivity; give the charge amplifier's "
+                    "gain too (--charge-gain, e.g. '1 mV/pC')"
+                )
+            value = charge * charge_gain_v_per_c
+        else:
+            try:
+                value = _parse_ratio(t, "V", "Pa", what)
+            except UnitError:
+                raise UnitError(
+                    f"{what}: cannot read sensitivity {text!r}; accepted forms: "
+                    "'20 mV/Pa', '-34 dBV/Pa', '12 pC/Pa' (with --charge-gain)"
+                ) from None
+    if not math.isfinite(value) or value <= 0:
+        raise UnitError(f"{what}: sensitivity must be positive, got {text!r}")
+    return value
+
+
+_MINUTES_HOURS_RE = re.compile(r"^\s*(" + _NUMBER + r")\s*(min|h)\s*$")
+
+
+def parse_duration(text: str | float, *, what: str = "duration") -> float:
+    """Parse a duration (``"1s"``, ``"125 ms"``, ``"2 min"``, ``"1 h"``) in seconds."""
+    m = _MINUTES_HOURS_RE.match(text) if isinstance(text, str) else None
+    if m:
+        value = float(m.group(1)) * (60.0 if m.group(2) == "min" else 3600.0)
+    else:
+        value = parse_quantity(text, "s", what=what)
+    if value <= 0:
+        raise UnitError(f"{what}: must be positive, got {text!r}")
+    return value
+
+
+def parse_frequency_list(text: str, *, what: str = "frequencies") -> list[float]:
+    """Parse a comma-separated list of frequencies (``"10Hz,100 Hz,1k"``) in hertz."""
+    parts = [p for p in (s.strip() for s in str(text).split(",")) if p]
+    if not parts:
+        raise UnitError(f"{what}: expected a comma-separated list of frequencies")
+    return [parse_quantity(p, "Hz", what=what) for p in parts]
+
+
+def _engineering(value: float) -> tuple[float, str]:
+    if value == 0 or not math.isfinite(value):
+        return value, ""
+    exponent = int(math.floor(math.log10(abs(value)) / 3.0) * 3)
+    exponent = max(-15, min(12, exponent))
+    symbol = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G",
+              12: "T"}[exponent]
+    return value / 10.0**exponent, symbol
+
+
+def format_quantity(value: float, unit: str, *, digits: int = 4) -> str:
+    """Format ``value`` (in SI ``unit``) with an SI prefix and ``digits`` significant digits.
+
+    ``format_quantity(4.7e-8, "F")`` gives ``"47 nF"``; the result parses back with
+    :func:`parse_quantity` to the value rounded to ``digits`` significant digits.
+    """
+    if value != 0 and math.isfinite(value):
+        value = float(f"{value:.{digits}g}")
+    mantissa, symbol = _engineering(value)
+    text = f"{mantissa:.{digits}g}"
+    return f"{text} {symbol}{unit}"
+
+
+def parse_many(items: Iterable[str], unit: str, *, what: str = "value") -> list[float]:
+    """Parse each text of ``items`` with :func:`parse_quantity`."""
+    return [parse_quantity(t, unit, what=what) for t in items]
