@@ -1,0 +1,70 @@
+"""Lot statistics (piezo.batch.stats)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from piezo.batch.stats import capability, histogram, verdict_counts, yield_fraction
+
+
+def test_capability_worked_example_by_hand():
+    # NIST/SEMATECH e-Handbook of Statistical Methods 6.1.6: Cp = (USL - LSL)/(6 s),
+    # Cpk = min(USL - mean, mean - LSL)/(3 s).
+    # Worked by hand: values 9.5, 10, 10.5 -> mean 10, deviations -0.5, 0, 0.5,
+    # s^2 = (0.25 + 0 + 0.25)/(3 - 1) = 0.25, s = 0.5. LSL 8, USL 13:
+    # Cp = 5/3 = 1.6667; Cpu = 3/1.5 = 2; Cpl = 2/1.5 = 1.3333; Cpk = 1.3333.
+    c = capability([9.5, 10.0, 10.5], lsl=8.0, usl=13.0)
+    assert c.n == 3
+    # Exact arithmetic on binary-exact inputs: only float rounding (1e-12 is ample).
+    assert_allclose([c.mean, c.std], [10.0, 0.5], rtol=1e-12)
+    assert_allclose([c.cp, c.cpu, c.cpl, c.cpk], [5 / 3, 2.0, 4 / 3, 4 / 3], rtol=1e-12)
+
+
+def test_capability_handbook_style_off_centre_process():
+    # Off-centre example in the style of the handbook's (from memory: USL 20, LSL 8,
+    # mean 16, sigma 2 gives Cp = 1.0 and Cpk = 0.667). Values 14, 16, 18 have
+    # mean 16 and s = 2 (deviations -2, 0, 2: s^2 = 8/2 = 4), derived by hand.
+    c = capability([14.0, 16.0, 18.0], lsl=8.0, usl=20.0)
+    assert_allclose([c.cp, c.cpk], [1.0, 2 / 3], rtol=1e-12)
+
+
+def test_capability_one_sided_and_degenerate():
+    c = capability([14.0, 16.0, 18.0], usl=20.0)
+    assert c.cp is None and c.cpl is None
+    assert_allclose(c.cpk, 4 / 6, rtol=1e-12)
+    assert capability([1.0, 1.0], lsl=0.0, usl=2.0).cp is None  # zero spread
+    assert capability([1.0], lsl=0.0, usl=2.0).std is None  # one value
+    assert capability([], lsl=0.0).n == 0
+    # Non-finite values (not evaluable units) are ignored.
+    assert capability([14.0, np.nan, 16.0, 18.0], lsl=8.0, usl=20.0).n == 3
+
+
+def test_capability_matches_numpy_on_random_lot():
+    x = np.random.default_rng(7).normal(-42.0, 0.7, 200)
+    c = capability(x, lsl=-45.0, usl=-39.0)
+    s = np.std(x, ddof=1)
+    assert_allclose(c.cp, 6.0 / (6 * s), rtol=1e-12)
+    assert_allclose(c.cpk, min(-39.0 - x.mean(), x.mean() + 45.0) / (3 * s), rtol=1e-12)
+
+
+def test_counts_and_yield():
+    counts = verdict_counts(["pass", "warn", "fail", "pass", "not evaluable"])
+    assert counts == {"pass": 2, "warn": 1, "fail": 1, "not evaluable": 1}
+    assert yield_fraction(counts) == pytest.approx(3 / 5)
+    assert yield_fraction(verdict_counts([])) is None
+    with pytest.raises(ValueError, match="unknown verdict 'ok'"):
+        verdict_counts(["ok"])
+
+
+def test_histogram_spans_values_and_limits():
+    x = np.random.default_rng(3).normal(0.0, 1.0, 500)
+    h = histogram(x, lower=-5.0, upper=6.0)
+    assert sum(h.counts) == 500
+    assert h.edges[0] == -5.0 and h.edges[-1] == 6.0
+    assert len(h.edges) == len(h.counts) + 1
+    assert 5 <= len(h.counts) <= 40
+    same = histogram(np.full(10, 3.0))
+    assert sum(same.counts) == 10 and same.edges[0] < 3.0 < same.edges[-1]
+    assert histogram([]).counts == []
