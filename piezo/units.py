@@ -316,8 +316,18 @@ def _engineering(value: float) -> tuple[float, str]:
         return value, ""
     exponent = int(math.floor(math.log10(abs(value)) / 3.0) * 3)
     exponent = max(-15, min(12, exponent))
-    symbol = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G",
-              12: "T"}[exponent]
+    symbol = {
+        -15: "f",
+        -12: "p",
+        -9: "n",
+        -6: "µ",
+        -3: "m",
+        0: "",
+        3: "k",
+        6: "M",
+        9: "G",
+        12: "T",
+    }[exponent]
     return value / 10.0**exponent, symbol
 
 
