@@ -11,7 +11,6 @@ import math
 import re
 from pathlib import Path
 
-import batch_fakes as fakes
 import pytest
 
 from piezo.batch.outputs import results_csv_text, results_json_text
@@ -19,6 +18,7 @@ from piezo.batch.runner import evaluate_capture, expand_inputs, previous_index, 
 from piezo.batch.spec import parse_spec
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, WARN
 from piezo.errors import InputError
+from tests import batch_fakes as fakes
 
 SPEC = parse_spec(fakes.SPEC_TEXT)
 

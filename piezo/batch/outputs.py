@@ -56,6 +56,10 @@ def atomic_write(path: str | Path, data: bytes) -> None:
     target = Path(path)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
+        # mkstemp creates the file private (0600); give it the mode open() would.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()

@@ -120,12 +120,19 @@ class Capture:
     clip_level_v: float
 
 
+def path_is_csv(path: str) -> bool:
+    """True for text exports (read as volts at the ADC input, rate from capture.rate_hz)."""
+    from piezo.io import CSV_SUFFIXES
+
+    return Path(path).suffix.lower() in CSV_SUFFIXES
+
+
 def load_capture(path: str, spec: Spec) -> Capture:
     """Read ``path`` whole with piezo's reader and calibrate it by the spec's chain."""
     from piezo.chain import CalibratedSource, Chain
     from piezo.io import open_recording
 
-    recording = open_recording(path)
+    recording = open_recording(path, rate_hz=spec.rate_hz if path_is_csv(path) else None)
     if spec.channel >= recording.channels:
         raise InputError(
             f"capture.channel = {spec.channel} but the capture has "
@@ -133,7 +140,7 @@ def load_capture(path: str, spec: Spec) -> Capture:
             source=path,
         )
     chain = Chain(full_scale_v=spec.full_scale_v, gain=spec.gain)
-    source = CalibratedSource(recording, chain, [spec.channel])
+    source = CalibratedSource.of(recording, chain, [spec.channel])
     blocks = [b[:, 0] for b in source.blocks()]
     samples = np.concatenate(blocks) if blocks else np.zeros(0)
     if samples.size == 0:

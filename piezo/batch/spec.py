@@ -256,6 +256,7 @@ class Spec:
     channel: int = 0
     full_scale_v: float = 1.0
     gain: float = 1.0
+    rate_hz: float | None = None
     serial_pattern: str | None = None
     serial_required: bool = False
     path: str | None = None
@@ -270,6 +271,7 @@ class Spec:
                 "channel": self.channel,
                 "full_scale_v": self.full_scale_v,
                 "gain": self.gain,
+                "rate_hz": self.rate_hz,
             },
             "serial": {"pattern": self.serial_pattern, "required": self.serial_required},
             "metrics": [m.to_json() for m in self.metrics],
@@ -457,7 +459,7 @@ def _show(value: Any) -> str:
 
 _TOP_KEYS = ("spec", "capture", "stimulus", "metrics")
 _SPEC_KEYS = ("name", "serial_pattern", "serial_required")
-_CAPTURE_KEYS = ("channel", "full_scale_v", "gain")
+_CAPTURE_KEYS = ("channel", "full_scale_v", "gain", "rate_hz")
 _LIMIT_KEYS = ("lower", "upper", "lower_rel", "upper_rel", "severity")
 _METRIC_COMMON = ("kind", "derive", "limits", "severity", *_LIMIT_KEYS)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
@@ -545,6 +547,9 @@ def parse_spec(
             ("capture", "channel"), f"expected a channel index >= 0, got {_show(channel)}"
         )
     full_scale_v = check.number(cap.get("full_scale_v", 1.0), ("capture", "full_scale_v"), "pos")
+    rate_hz = None
+    if "rate_hz" in cap:
+        rate_hz = check.number(cap["rate_hz"], ("capture", "rate_hz"), "pos")
     try:
         gain = parse_gain(cap.get("gain", 1.0), what="capture.gain")
     except UnitError as exc:
@@ -592,6 +597,7 @@ def parse_spec(
         channel=channel,
         full_scale_v=full_scale_v,
         gain=gain,
+        rate_hz=rate_hz,
         serial_pattern=pattern,
         serial_required=required,
         path=source,
