@@ -120,8 +120,44 @@ def job(path: str, *, display: str, spec: Spec) -> dict:
     return evaluate_capture(path, spec, display=display, loader=load, extractors=EXTRACTORS)
 
 
+def write_lot(folder, *, bad: bool = True) -> list:
+    """Five good captures, and with ``bad`` a low one, a noisy one and a corrupt file."""
+    folder.mkdir(parents=True, exist_ok=True)
+    for i, amp in enumerate([0.45, 0.44, 0.46, 0.45, 0.455]):
+        write_capture(folder / f"SN000{i}.wav", amp)
+    if bad:
+        write_capture(folder / "SN0100.wav", 0.15)
+        write_capture(folder / "SN0101.wav", 0.45, noise=3e-3)
+        (folder / "SN0102.wav").write_bytes(b"not audio")
+    return sorted(folder.iterdir())
+
+
 def crashing_job(path: str, *, display: str, spec: Spec) -> dict:
     """Kills its worker process on files named *crash*, like a decoder segfault would."""
     if "crash" in os.path.basename(path):
         os._exit(13)
     return job(path, display=display, spec=spec)
+
+
+def use_fakes() -> None:
+    """Make the runner's defaults (loader, extractors) these doubles, in this process."""
+    import piezo.batch.runner as runner
+
+    runner.load_capture = load
+    runner._default_extractors = lambda: EXTRACTORS
+
+
+def slow_cli() -> None:
+    """``piezo`` with the doubles and a 50 ms delay per capture (for the kill test)."""
+    import sys
+    import time
+
+    from piezo.cli import main
+
+    def slow(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+        time.sleep(0.05)
+        return _sensitivity(a, m)
+
+    use_fakes()
+    EXTRACTORS["sensitivity"] = slow
+    main(sys.argv[1:])
