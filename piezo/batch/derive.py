@@ -247,7 +247,11 @@ def derived_spec_text(
     if spec.rate_hz is not None:
         lines.append(f"rate_hz = {_toml_value(spec.rate_hz)}")
     lines += ["", "[stimulus]", f"kind = {_toml_value(spec.stimulus.kind)}"]
-    for key, value in spec.stimulus.params.items():
+    stim = dict(spec.stimulus.params)
+    if "file" in stim:  # parameters that came from the stimulus file stay there
+        stim = {k: v for k, v in stim.items() if k in ("level_pa", "level_db")}
+        stim["file"] = os.path.relpath(Path(spec.stimulus.params["file"]).resolve(), out_dir)
+    for key, value in stim.items():
         lines.append(f"{key} = {_toml_value(value)}")
     by_name = {d.name: d for d in derived}
     for metric in spec.metrics:

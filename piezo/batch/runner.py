@@ -10,6 +10,7 @@ so the results do not depend on the worker count or the order of completion.
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import functools
 import glob
 import hashlib
@@ -436,6 +437,42 @@ def _run_pool(
     in a fresh pool, and the one that kills its worker again becomes an error row.
     """
     context = multiprocessing.get_context("spawn")
+    with _one_thread_per_worker():
+        _pool_loop(paths, job, workers, finished, spec, context)
+
+
+#: Thread-count variables of the numeric libraries numpy and scipy may be built with.
+_THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@contextlib.contextmanager
+def _one_thread_per_worker() -> Iterator[None]:
+    """Let spawned workers use one BLAS/OpenMP thread each (unless the user set a count).
+
+    N worker processes each running N library threads would oversubscribe the cores;
+    the variables are read when a worker imports numpy, so they are set while the pool
+    lives and restored afterwards.
+    """
+    saved = {name: os.environ.get(name) for name in _THREAD_VARIABLES}
+    for name, value in saved.items():
+        if value is None:
+            os.environ[name] = "1"
+    try:
+        yield
+    finally:
+        for name, value in saved.items():
+            if value is None:
+                os.environ.pop(name, None)
+
+
+def _pool_loop(
+    paths: Sequence[str],
+    job: Job,
+    workers: int,
+    finished: Callable[[dict[str, Any]], None],
+    spec: Spec,
+    context: Any,
+) -> None:
     queue = list(reversed(paths))
     suspects: list[str] = []
     window = workers * 4

@@ -45,9 +45,12 @@ SEVERITIES = ("fail", "warn")
 #: "nonneg" non-negative float, "float" any finite float.
 STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
     "sweep": {
+        "file": ("path", False, None),
         "start_hz": ("pos", True, None),
         "stop_hz": ("pos", True, None),
         "duration_s": ("pos", True, None),
+        "fade_in_s": ("nonneg", False, None),
+        "fade_out_s": ("nonneg", False, None),
         "level_pa": ("pos", False, None),
         "level_db": ("float", False, None),
         "silence_before_s": ("nonneg", False, 0.0),
@@ -224,7 +227,7 @@ class MetricSpec:
             "name": self.name,
             "kind": self.kind,
             "unit": self.unit,
-            "params": _jsonable(self.params),
+            "params": _jsonable(_without_paths(self.params)),
             "limits": [lim.to_json() for lim in self.limits],
         }
 
@@ -266,7 +269,10 @@ class Spec:
         """Everything that decides a capture's row, as plain JSON-able data."""
         return {
             "piezo": __version__,
-            "stimulus": {"kind": self.stimulus.kind, "params": _jsonable(self.stimulus.params)},
+            "stimulus": {
+                "kind": self.stimulus.kind,
+                "params": _jsonable(_without_paths(self.stimulus.params)),
+            },
             "capture": {
                 "channel": self.channel,
                 "full_scale_v": self.full_scale_v,
@@ -296,6 +302,14 @@ class Spec:
         if m.groups():
             return m.group(1)
         return m.group(0)
+
+
+#: Parameters holding file locations: their content is hashed, not where they are.
+_PATH_PARAMS = ("file", "golden")
+
+
+def _without_paths(params: Mapping[str, Any]) -> dict[str, Any]:
+    return {k: v for k, v in params.items() if k not in _PATH_PARAMS}
 
 
 def _jsonable(value: Any) -> Any:
@@ -570,7 +584,11 @@ def parse_spec(
     rules = STIMULUS_KINDS[kind]
     check.no_unknown(stim, ("kind", *rules), ("stimulus",))
     sparams: dict[str, Any] = {}
+    if kind == "sweep" and "file" in stim:
+        sparams.update(_sweep_file(check, stim, base))
     for key, (rule, needed, default) in rules.items():
+        if key in sparams:
+            continue
         if key in stim:
             sparams[key] = check.param(rule, stim[key], ("stimulus", key), base)
         elif needed:
@@ -764,6 +782,44 @@ def _check_stimulus_fit(
             )
     if kind.name == "golden_deviation":
         params["golden_data"] = _load_golden(check, (*path, "golden"), params["golden"])
+
+
+_SWEEP_FILE_KEYS = (
+    "start_hz",
+    "stop_hz",
+    "duration_s",
+    "fade_in_s",
+    "fade_out_s",
+    "silence_before_s",
+    "silence_after_s",
+)
+
+
+def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> dict[str, Any]:
+    """Sweep parameters from a stimulus file written by ``piezo sweep make``."""
+    from piezo.sweep import SweepSpec, stimulus_from_toml
+
+    path = ("stimulus", "file")
+    for key in _SWEEP_FILE_KEYS:
+        if key in stim:
+            raise check.error(("stimulus", key), "comes from stimulus.file; do not repeat it")
+    file = check.param("path", stim["file"], path, base)
+    try:
+        text = Path(file).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise check.error(path, f"cannot read stimulus file {file!r}: {exc}") from None
+    try:
+        sweep = stimulus_from_toml(text, source=file)
+    except SpecError as exc:
+        raise check.error(path, f"{file}: {exc.message}") from None
+    if not isinstance(sweep, SweepSpec):
+        raise check.error(path, f"{file} describes {sweep.kind!r}, not a sweep")
+    values = {key: float(getattr(sweep, key)) for key in _SWEEP_FILE_KEYS}
+    values["file"] = file
+    values["file_data"] = text
+    if sweep.acoustic_level_pa is not None and "level_pa" not in stim and "level_db" not in stim:
+        values["level_pa"] = float(sweep.acoustic_level_pa)
+    return values
 
 
 def _check_mask(
