@@ -202,7 +202,8 @@ class SweepResponse:
         ``MIN_HARMONIC_CYCLES`` cycles of N·f in the harmonic's window (the lowest
         frequencies of a short sweep).
     thd_percent
-        √(Σ_N H_N²) over the measured orders (NaN where any order is missing).
+        √(Σ_N H_N²) over the orders measured at that frequency (orders whose N·f lies
+        above the band are left out); NaN where no order is measured.
     linear_ir, harmonic_irs
         The windowed impulse responses.
     peak_to_noise_db
@@ -466,7 +467,9 @@ def analyze_sweep(
         harmonic_percent[n] = pct
         harmonic_irs[n] = ImpulseResponse(n, h_n, -round(offsets[n] * fs) - pre_n, fs)
     if harmonic_percent:
-        thd = np.sqrt(np.sum([p**2 for p in harmonic_percent.values()], axis=0))
+        stack = np.array(list(harmonic_percent.values()))
+        measured = np.any(np.isfinite(stack), axis=0)
+        thd = np.where(measured, np.sqrt(np.nansum(stack**2, axis=0)), np.nan)
     else:
         thd = np.full(f.size, np.nan)
 
