@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
@@ -94,7 +95,7 @@ def test_sweep_through_known_filter_phase_and_group_delay(filtered):
 def test_sweep_through_known_filter_corner(filtered):
     # Issue check: the corner within 2 % of the filter's (50 Hz: scipy.signal.butter
     # places the −3 dB point of the digital filter there, verified below).
-    result, sos = filtered
+    result, _ = filtered
     _, h50 = scipy.signal.sosfreqz(
         scipy.signal.butter(2, 50.0, "highpass", fs=FS, output="sos"), worN=[50.0], fs=FS
     )
@@ -301,7 +302,7 @@ def test_h1_blockwise_equals_whole(cuts):
     whole.update(data)
     parts = H1Estimator(FS, 3, segment_frames=1024, overlap=0.25)
     edges = [0, *sorted(cuts), data.shape[0]]
-    for lo, hi in zip(edges[:-1], edges[1:], strict=True):
+    for lo, hi in itertools.pairwise(edges):
         parts.update(data[lo:hi])
     a, b = whole.result(), parts.result()
     assert a.segments == b.segments
