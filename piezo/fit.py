@@ -114,7 +114,10 @@ def format_response_csv(table: ResponseTable) -> str:
     A leading ``# magnitude_db: <unit>`` comment carries the magnitude's reference.
     """
     names = ["frequency_hz", "magnitude_db"]
-    cols: list[tuple[np.ndarray, str]] = [(table.frequency_hz, ".6g"), (table.magnitude_db, ".4f")]
+    cols: list[tuple[np.ndarray, str]] = [
+        (table.frequency_hz, ".8g"),
+        (table.magnitude_db, ".4f"),
+    ]
     if table.phase_deg is not None:
         names.append("phase_deg")
         cols.append((table.phase_deg, ".3f"))
@@ -130,12 +133,15 @@ def format_response_csv(table: ResponseTable) -> str:
     return "\n".join(lines) + "\n"
 
 
-_SPLIT_RE = re.compile(r"[,;\t]|\s+")
+_DELIMITED_RE = re.compile(r"[,;\t]")
 
 
 def _cells(line: str) -> list[str]:
-    parts = [p.strip() for p in _SPLIT_RE.split(line.strip())]
-    return [p for p in parts if p != ""]
+    """Cells split at commas, semicolons or tabs; at runs of spaces if there are none."""
+    text = line.strip()
+    if _DELIMITED_RE.search(text):
+        return [p.strip() for p in _DELIMITED_RE.split(text)]
+    return text.split()
 
 
 def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable:
@@ -145,8 +151,8 @@ def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable
     unit). An optional header row names the columns: the frequency column's name starts
     with ``freq``, the magnitude's contains ``mag``, ``level`` or ``db``, the phase's
     contains ``phase``; other named columns go to ``extra``. Without a header the columns
-    are frequency, magnitude, phase. Cells may be separated by commas, semicolons, tabs
-    or spaces.
+    are frequency, magnitude, phase. Cells are separated by commas, semicolons or tabs,
+    or else by spaces.
 
     Raises
     ------
