@@ -391,6 +391,18 @@ def analyze_sweep(
     output, zero_lag = deconvolve(y, spec)
     peak_index = int(np.argmax(np.abs(output)))
     latency = peak_index - zero_lag
+    sweep_start = spec.silence_before_frames + latency
+    if sweep_start < 0:
+        raise InputError(
+            f"the capture starts {-sweep_start / fs:.3f} s after the sweep did (latency "
+            f"{latency} samples); start recording before playback"
+        )
+    if sweep_start + spec.sweep_frames > y.size:
+        missing = (sweep_start + spec.sweep_frames - y.size) / fs
+        raise InputError(
+            f"the capture ends {missing:.3f} s before the sweep does (latency {latency} "
+            "samples); record until after the sweep's end"
+        )
 
     sweep = _sweep_only(spec)
     inverse = inverse_filter(spec)

@@ -206,6 +206,10 @@ def test_analyze_errors(spec, stimulus):
         analyze_sweep(stimulus[:1000], spec, FS)
     with pytest.raises(InputError, match="one channel"):
         analyze_sweep(np.column_stack([stimulus, stimulus]), spec, FS)
+    with pytest.raises(InputError, match=r"ends 0\.100 s before the sweep does"):
+        analyze_sweep(stimulus[: round(FS * 2.0)], spec, FS)
+    with pytest.raises(InputError, match=r"starts 0\.050 s after the sweep did"):
+        analyze_sweep(stimulus[round(0.15 * FS) :], spec, FS)
     with pytest.raises(InputError, match="NaN"):
         analyze_sweep(np.full(stimulus.size, np.nan), spec, FS)
 
