@@ -208,7 +208,7 @@ def noise(
     subtype: SubtypeOption = "PCM_24",
     json_out: JsonOption = False,
 ) -> None:
-    """Write seeded pink or white noise (for ``piezo response``) and its sidecar."""
+    """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
     if kind not in ("pink", "white"):
         raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
     spec = NoiseSpec(
