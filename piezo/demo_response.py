@@ -247,7 +247,7 @@ def response_demo() -> ResponseDemo:
     )
     grid = log_frequency_grid(20.0, 20000.0, 24)
     golden = ResponseTable(grid, PICKUPS[0].magnitude_db(grid), None, "dB re 1 V/Pa")
-    noise = NoiseSpec("pink", 4.0, fs, -12.0, seed=2417, fade_s=0.01)
+    noise = NoiseSpec("pink", 3.0, fs, -12.0, seed=2417, fade_s=0.01)
     drive = noise_signal(noise)
     pickup_raw = _through_pickup(drive, PICKUPS[0], pa_per_unit, rng)
     loopback = np.concatenate([np.zeros(LATENCY_FRAMES), drive[:-LATENCY_FRAMES]])
@@ -284,8 +284,9 @@ full_scale = "{FULL_SCALE_V:g} V"
 def response_demo_files(demo: ResponseDemo | None = None) -> list[DemoFile]:
     """The demo as :class:`piezo.demo.DemoFile` items for the ``piezo demo`` writer.
 
-    Sweep stimulus (WAV, no profile), one capture per pickup (WAV, with a chain profile
-    ``NAME.toml``) and the two-channel pink-noise capture (WAV, with a profile). The
+    Sweep stimulus (FLAC, no profile), one capture per pickup (24-bit FLAC, with a chain
+    profile ``NAME.toml``) and the two-channel pink-noise capture (16-bit FLAC, with a
+    profile); about 1.5 MB in all. The
     stimulus's sidecar and the golden response are text files: see
     :func:`response_demo_texts`.
     """
@@ -293,7 +294,7 @@ def response_demo_files(demo: ResponseDemo | None = None) -> list[DemoFile]:
     fs = d.sample_rate_hz
     files = [
         DemoFile(
-            f"{PREFIX}-sweep.wav",
+            f"{PREFIX}-sweep.flac",
             d.stimulus[:, None],
             fs,
             "PCM_24",
@@ -305,13 +306,13 @@ def response_demo_files(demo: ResponseDemo | None = None) -> list[DemoFile]:
     for cap in d.captures:
         files.append(
             DemoFile(
-                f"{PREFIX}-{cap.pickup.name}.wav",
+                f"{PREFIX}-{cap.pickup.name}.flac",
                 cap.samples[:, None],
                 fs,
                 "PCM_24",
                 _profile(
                     cap.pickup.serial,
-                    f"piezo sweep analyze {PREFIX}-{cap.pickup.name}.wav "
+                    f"piezo sweep analyze {PREFIX}-{cap.pickup.name}.flac "
                     f"--stimulus {PREFIX}-sweep.stimulus.toml --golden {PREFIX}-golden.csv",
                 ),
                 None,
@@ -320,13 +321,13 @@ def response_demo_files(demo: ResponseDemo | None = None) -> list[DemoFile]:
         )
     files.append(
         DemoFile(
-            f"{PREFIX}-noise-2ch.wav",
+            f"{PREFIX}-noise-2ch.flac",
             d.two_channel,
             fs,
-            "PCM_24",
+            "PCM_16",
             _profile(
                 PICKUPS[0].serial,
-                f"piezo response {PREFIX}-noise-2ch.wav --reference-channel 0",
+                f"piezo response {PREFIX}-noise-2ch.flac --reference-channel 0",
             ),
             None,
             "pink noise: drive signal on channel 0, nominal pickup on channel 1 (for H1)",

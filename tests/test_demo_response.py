@@ -74,14 +74,14 @@ def test_golden_and_two_channel(demo):
     table = h1.to_table()
     keep = table.extra["coherence"] >= 0.99
     fit = fit_response(table.frequency_hz[keep], table.magnitude_db[keep])
-    # H1 with 5.9 Hz Welch bins is biased near the corner (1.3 % measured); 3 %.
+    # H1 with 5.9 Hz Welch bins is biased near the corner (1.0 % measured); 3 %.
     assert fit.highpass.corner_hz == pytest.approx(nominal.corner_hz, rel=0.03)
 
 
 def test_files_and_texts(demo):
     files = response_demo_files(demo)
     names = [f.name for f in files]
-    assert names[0] == "valve-pickup-sweep.wav"
+    assert names[0] == "valve-pickup-sweep.flac"
     assert len(names) == len(set(names)) == 5
     for f in files:
         assert f.samples.ndim == 2 and np.max(np.abs(f.samples)) < 1.0
