@@ -31,7 +31,7 @@ import scipy.signal
 
 from piezo.errors import InputError
 from piezo.fit import ResponseTable
-from piezo.sweep import SweepSpec, _sweep_only, harmonic_offsets_s, inverse_filter
+from piezo.sweep import SweepSpec, _inverse_and_reference, harmonic_offsets_s, inverse_filter
 
 __all__ = [
     "H1Estimator",
@@ -301,7 +301,10 @@ def deconvolve(capture: np.ndarray, spec: SweepSpec) -> tuple[np.ndarray, int]:
         has its unit impulse).
     """
     y = _as_signal(capture, "capture")
-    inverse = inverse_filter(spec)
+    return _deconvolve(y, inverse_filter(spec), spec)
+
+
+def _deconvolve(y: np.ndarray, inverse: np.ndarray, spec: SweepSpec) -> tuple[np.ndarray, int]:
     length = y.size + inverse.size - 1
     nfft = scipy.fft.next_fast_len(length, real=True)
     output = scipy.fft.irfft(scipy.fft.rfft(y, nfft) * scipy.fft.rfft(inverse, nfft), nfft)
@@ -388,7 +391,8 @@ def analyze_sweep(
             "record the whole stimulus"
         )
 
-    output, zero_lag = deconvolve(y, spec)
+    inverse, reference = _inverse_and_reference(spec)
+    output, zero_lag = _deconvolve(y, inverse, spec)
     peak_index = int(np.argmax(np.abs(output)))
     latency = peak_index - zero_lag
     sweep_start = spec.silence_before_frames + latency
@@ -404,13 +408,7 @@ def analyze_sweep(
             "samples); record until after the sweep's end"
         )
 
-    sweep = _sweep_only(spec)
-    inverse = inverse_filter(spec)
-    n_ref = scipy.fft.next_fast_len(2 * sweep.size, real=True)
-    reference = scipy.fft.irfft(
-        scipy.fft.rfft(sweep, n_ref) * scipy.fft.rfft(inverse, n_ref), n_ref
-    )
-    ref_zero = sweep.size - 1
+    ref_zero = spec.sweep_frames - 1
 
     offsets = {1: 0.0, **harmonic_offsets_s(spec, max_order + 1)}
     gap_s = {n: offsets[n] - offsets[n - 1] for n in range(2, max_order + 2)}

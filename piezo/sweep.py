@@ -421,12 +421,22 @@ def inverse_filter(spec: SweepSpec) -> np.ndarray:
     therefore deconvolves to a unit impulse at lag ``sweep_frames − 1`` of the full
     convolution, counted from the sweep start.
     """
+    return _inverse_and_reference(spec)[0]
+
+
+def _inverse_and_reference(spec: SweepSpec) -> tuple[np.ndarray, np.ndarray]:
+    """The inverse filter and the deconvolved sweep itself (sweep * inverse).
+
+    The reference has length 2·sweep_frames (rounded up for the FFT); its zero lag is
+    at index ``sweep_frames − 1``.
+    """
     sweep = _sweep_only(spec)
     n = sweep.size
     tau = np.arange(n) / spec.sample_rate_hz
     inverse = sweep[::-1] * np.exp(-spec.rate_constant * tau / spec.duration_s)
-    nfft = scipy.fft.next_fast_len(2 * n)
-    product = np.abs(scipy.fft.rfft(sweep, nfft) * scipy.fft.rfft(inverse, nfft))
+    nfft = scipy.fft.next_fast_len(2 * n, real=True)
+    product = scipy.fft.rfft(sweep, nfft) * scipy.fft.rfft(inverse, nfft)
+    magnitude = np.abs(product)
     freq = scipy.fft.rfftfreq(nfft, 1.0 / spec.sample_rate_hz)
     band = (freq >= spec.start_hz * math.sqrt(2.0)) & (freq <= spec.stop_hz / math.sqrt(2.0))
     if np.count_nonzero(band) < 2:
@@ -437,8 +447,9 @@ def inverse_filter(spec: SweepSpec) -> np.ndarray:
             "too short to resolve its own band; make it longer or wider"
         )
     weight = 1.0 / freq[band]
-    gain = float(np.sum(product[band] * weight) / np.sum(weight))
-    return inverse / gain
+    gain = float(np.sum(magnitude[band] * weight) / np.sum(weight))
+    reference = scipy.fft.irfft(product / gain, nfft)
+    return inverse / gain, reference
 
 
 def harmonic_offsets_s(spec: SweepSpec, orders: int | list[int] = 5) -> dict[int, float]:
