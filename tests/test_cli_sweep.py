@@ -186,6 +186,12 @@ def test_noise_command(cli, tmp_path):
     r = cli("sweep", "noise", "--kind", "brown", "--duration", "2s", "--rate", "48k",
             "--out", out)  # fmt: skip
     assert r.code == 2 and "'pink' or 'white'" in r.err
+    r = cli("sweep", "noise", "--kind", "pink", "--duration", "2s", "--rate", "48k",
+            "--out", tmp_path / "n.flac", "--subtype", "FLOAT")  # fmt: skip
+    assert r.code == 2 and "cannot be written as FLAC" in r.err
+    r = cli("sweep", "noise", "--kind", "pink", "--duration", "2s", "--rate", "48k",
+            "--out", tmp_path / "n.mp3")  # fmt: skip
+    assert r.code == 2 and ".wav or .flac" in r.err
 
 
 def test_response_h1_command(cli, tmp_path):

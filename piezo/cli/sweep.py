@@ -100,14 +100,21 @@ def _check_subtype(subtype: str) -> str:
 
 
 def _write_stimulus(out: Path, samples: np.ndarray, rate: float, subtype: str, toml: str) -> Path:
+    fmt = {".wav": "WAV", ".flac": "FLAC"}.get(out.suffix.lower())
+    if fmt is None:
+        raise InputError(f"--out {out.name!r}: the stimulus is written as .wav or .flac")
+    if not sf.check_format(fmt, subtype):
+        raise InputError(f"--subtype {subtype} cannot be written as {fmt}")
     side = stimulus_sidecar(out)
     with atomic_output(out) as tmp:
-        sf.write(str(tmp), samples, int(rate), subtype=subtype, format="WAV")
+        sf.write(str(tmp), samples, int(rate), subtype=subtype, format=fmt)
     write_text_atomic(side, toml)
     return side
 
 
-OutOption = Annotated[Path, typer.Option("--out", metavar="OUT.wav", help="WAV file to write.")]
+OutOption = Annotated[
+    Path, typer.Option("--out", metavar="OUT.wav", help="File to write (.wav or .flac).")
+]
 RateOption = Annotated[str, typer.Option("--rate", metavar="RATE", help="Sample rate, e.g. 48k.")]
 SubtypeOption = Annotated[
     str, typer.Option("--subtype", help=f"WAV sample format: {', '.join(SUBTYPES)}.")
