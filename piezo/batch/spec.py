@@ -10,7 +10,6 @@ The format is documented, with a commented example, in ``docs/batch.md``.
 
 from __future__ import annotations
 
-import csv
 import hashlib
 import itertools
 import json
@@ -21,6 +20,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
+
+import numpy as np
 
 from piezo import __version__
 from piezo.errors import SpecError, UnitError
@@ -848,25 +849,22 @@ def _check_mask(
 
 
 def _load_golden(check: _Checker, path: tuple[Any, ...], file: str) -> dict[str, list[float]]:
-    """Read a golden response CSV: columns frequency_hz and magnitude_db."""
+    """Read a golden response with :func:`piezo.fit.parse_response_csv` (frequency_hz,
+    magnitude_db; the response CSV that ``piezo sweep analyze --csv`` writes)."""
+    from piezo.errors import InputError
+    from piezo.fit import parse_response_csv
+
     try:
-        with open(file, newline="", encoding="utf-8") as fh:
-            rows = list(csv.DictReader(row for row in fh if not row.lstrip().startswith("#")))
-    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        text = Path(file).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
         raise check.error(path, f"cannot read golden response {file!r}: {exc}") from None
-    if not rows or not {"frequency_hz", "magnitude_db"} <= set(rows[0]):
-        raise check.error(
-            path, f"golden response {file!r} needs columns frequency_hz and magnitude_db"
-        )
     try:
-        freq = [float(r["frequency_hz"]) for r in rows]
-        mag = [float(r["magnitude_db"]) for r in rows]
-    except (TypeError, ValueError) as exc:
-        raise check.error(path, f"golden response {file!r}: not a number ({exc})") from None
-    if any(not math.isfinite(v) for v in freq + mag) or any(
-        b <= a for a, b in itertools.pairwise(freq)
-    ):
-        raise check.error(
-            path, f"golden response {file!r}: frequencies must be finite and increasing"
-        )
-    return {"frequency_hz": freq, "magnitude_db": mag}
+        table = parse_response_csv(text, source=file)
+    except InputError as exc:
+        raise check.error(path, f"golden response {exc}") from None
+    if not np.all(np.isfinite(table.magnitude_db)):
+        raise check.error(path, f"golden response {file!r}: magnitudes must be finite")
+    return {
+        "frequency_hz": [float(v) for v in table.frequency_hz],
+        "magnitude_db": [float(v) for v in table.magnitude_db],
+    }

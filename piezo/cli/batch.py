@@ -145,6 +145,14 @@ def batch(
         raise typer.Exit(1)
 
 
+def _why(row: dict[str, Any]) -> str:
+    """The failed metrics by name, or the first reason a capture is not evaluable."""
+    if row["failed_limits"]:
+        names = dict.fromkeys(m.split(" ", 1)[0].rstrip(":") for m in row["failed_limits"])
+        return ", ".join(names)
+    return row["not_evaluable"][0] if row["not_evaluable"] else ""
+
+
 def _print_summary(
     rows: list[dict[str, Any]], summary: dict[str, Any], out: Path, reused: int
 ) -> None:
@@ -166,14 +174,20 @@ def _print_summary(
     bad = [r for r in rows if r["verdict"] in (FAIL, NOT_EVALUABLE)]
     if bad:
         failing = Table(box=None, pad_edge=False, header_style="bold")
-        failing.add_column("file", overflow="fold")
-        failing.add_column("serial")
-        failing.add_column("verdict")
-        failing.add_column("first reason")
-        for r in bad[:SHOWN_FAILURES]:
-            reason = (r["failed_limits"] + r["not_evaluable"])[0]
+        shown = bad[:SHOWN_FAILURES]
+        width = max(len(r["serial"] or Path(r["file"]).name) for r in shown)
+        failing.add_column("unit", no_wrap=True, min_width=width)
+        failing.add_column("verdict", no_wrap=True, min_width=len(NOT_EVALUABLE))
+        # Rich drops whole columns when a row is too wide: cap the last one instead.
+        rest = max(20, console.width - width - len(NOT_EVALUABLE) - 4)
+        failing.add_column(
+            "failed limits / why", overflow="ellipsis", no_wrap=True, max_width=rest
+        )
+        for r in shown:
             failing.add_row(
-                r["file"], r["serial"], f"[{styles[r['verdict']]}]{r['verdict']}[/]", reason
+                r["serial"] or Path(r["file"]).name,
+                f"[{styles[r['verdict']]}]{r['verdict']}[/]",
+                _why(r),
             )
         console.print(failing)
         if len(bad) > SHOWN_FAILURES:
