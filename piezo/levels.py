@@ -33,11 +33,11 @@ Time weighting on a block grid
     recursion at the block rate, and the value at every sample is computed (from the
     block-start value and the block's samples) only in blocks whose bounds show they could
     hold a new maximum or minimum. Results equal a per-sample recursion to rounding.
-    LAF percentiles use the F level sampled at block ends every ``percentile_interval_s``
-    (default 0.01 s, rounded to whole blocks: exactly 10 ms at 48 kHz, 10.16 ms at
-    44.1 kHz), counted in a histogram of 0.01 dB bins (memory does not grow with the
-    recording). F and S level traces in the history are sampled the same way every
-    ``trace_interval_s`` (default 0.1 s).
+    LAF percentiles use the F level sampled at the last sample of every
+    ``percentile_interval_s`` (default 0.01 s, rounded to whole samples), counted in a
+    histogram of 0.01 dB bins (memory does not grow with the recording). F and S level
+    traces in the history are sampled the same way every ``trace_interval_s`` (default
+    0.1 s).
 
 This is a signal analysis of a recording, not a certified sound level meter measurement.
 """
@@ -195,6 +195,24 @@ class _Averager:
         self.max = np.full(channels, -np.inf)
         self.min = np.full(channels, np.inf)
 
+    def at_instants(
+        self, qb: np.ndarray, start: np.ndarray, first: int, every: int
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Values at the frames n with (n + 1) % every == 0 inside blocks ``qb``.
+
+        ``qb`` is (channels, blocks, L) starting at frame ``first``; ``start`` holds the
+        value before each block. Returns (values (channels, m), frame indices (m,)).
+        """
+        L = qb.shape[2]
+        lo = -(-(first + 1) // every) * every - 1  # first n >= first with (n+1) % every == 0
+        frames = np.arange(lo, first + qb.shape[1] * L, every)
+        if frames.size == 0:
+            return np.zeros((qb.shape[0], 0)), frames
+        blk, j = np.divmod(frames - first, L)
+        rows = qb[:, blk, :]  # (channels, m, L)
+        vals = start[:, blk] * self.a_start[j] + np.einsum("cml,ml->cm", rows, self.T[j])
+        return vals, frames
+
     def samples(self, start: np.ndarray, q: np.ndarray) -> np.ndarray:
         """Exact per-sample values of blocks ``q`` (n, L) starting from values ``start``."""
         return start[:, None] * self.a_start[None, :] + q @ self.T.T
@@ -257,11 +275,10 @@ class LevelMeter:
                 raise InputError(f"{name} must be positive, got {value!r}")
         if not (filter_settle_s >= 0 and math.isfinite(filter_settle_s)):
             raise InputError(f"filter_settle_s must be >= 0, got {filter_settle_s!r}")
-        L = BLOCK_FRAMES
-        self._pct_blocks = max(1, round(percentile_interval_s * fs / L))
-        self._trace_blocks = max(1, round(trace_interval_s * fs / L))
-        self.percentile_interval_s = self._pct_blocks * L / fs
-        self.trace_interval_s = self._trace_blocks * L / fs
+        self._pct_frames = max(1, round(percentile_interval_s * fs))
+        self._trace_frames = max(1, round(trace_interval_s * fs))
+        self.percentile_interval_s = self._pct_frames / fs
+        self.trace_interval_s = self._trace_frames / fs
         self._interval_frames: int | None = None
         if interval_s is not None:
             if not (interval_s > 0 and math.isfinite(interval_s)):
@@ -370,7 +387,7 @@ class LevelMeter:
         qsum = u[:, :, 2]
         first = k0 * L  # frame index of the first sample of this run of blocks
         ends = first + L * np.arange(1, nb + 1) - 1  # frame index of each block end
-        ys = []
+        starts = []
         for av, col, max_key, min_key in (
             (self._f, 0, "LAFmax", "LAFmin"),
             (self._s, 1, "LASmax", "LASmin"),
@@ -382,13 +399,13 @@ class LevelMeter:
             self._extremes(
                 av, qb, y, start, qsum, ends, self._start[max_key], self._start[min_key]
             )
-            ys.append(y)
-        self._percentiles(ys[0], ends, k0)
+            starts.append(start)
+        self._percentiles(self._f.at_instants(qb, starts[0], first, self._pct_frames))
         if self._interval_frames is not None:
-            k = k0 + np.arange(nb)
-            pick = (k + 1) % self._trace_blocks == 0
-            if np.any(pick):
-                self._trace.append(np.stack([ys[0][:, pick], ys[1][:, pick]]))
+            f_tr = self._f.at_instants(qb, starts[0], first, self._trace_frames)
+            s_tr = self._s.at_instants(qb, starts[1], first, self._trace_frames)
+            if f_tr[1].size:
+                self._trace.append(np.stack([f_tr[0], s_tr[0]]))
 
     def _extremes(
         self,
@@ -434,23 +451,25 @@ class LevelMeter:
                 else:
                     av.min[c] = best
 
-    def _percentiles(self, y: np.ndarray, ends: np.ndarray, k0: int) -> None:
-        r = self._pct_blocks
-        k = k0 + np.arange(y.shape[1])
-        pick = ((k + 1) % r == 0) & (ends >= self._start["LAF percentiles"])
-        if not np.any(pick):
-            return
-        ms = y[:, pick]
+    def _percentiles(self, sampled: tuple[np.ndarray, np.ndarray]) -> None:
+        values, frames = sampled
+        pick = frames >= self._start["LAF percentiles"]
+        if np.any(pick):
+            self._bin(values[:, pick], self._hist, self._hist_zero, self._hist_clipped)
+
+    def _bin(
+        self, ms: np.ndarray, hist: np.ndarray, zero_count: np.ndarray, clipped: np.ndarray
+    ) -> None:
+        """Count F mean squares ``ms`` (channels, m) into 0.01 dB level bins."""
+        n_bins = hist.shape[1]
         for c in range(self.channels):
             v = ms[c]
             zero = v <= 0
-            self._hist_zero[c] += int(np.count_nonzero(zero))
+            zero_count[c] += int(np.count_nonzero(zero))
             level = 10.0 * np.log10(v[~zero] / (self.reference * self.reference))
             idx = np.floor((level - HISTOGRAM_LOW_DB) / HISTOGRAM_STEP_DB).astype(np.int64)
-            n_bins = self._hist.shape[1]
-            out = (idx < 0) | (idx >= n_bins)
-            self._hist_clipped[c] += int(np.count_nonzero(out))
-            self._hist[c] += np.bincount(np.clip(idx, 0, n_bins - 1), minlength=n_bins)
+            clipped[c] += int(np.count_nonzero((idx < 0) | (idx >= n_bins)))
+            hist[c] += np.bincount(np.clip(idx, 0, n_bins - 1), minlength=n_bins)
 
     # ---------------------------------------------------------------------- result
     def result(self) -> LevelResult:
@@ -459,29 +478,43 @@ class LevelMeter:
         ref = self.reference
         n = self._frames
         duration_s = n / fs
-        # Samples not yet on the block grid: evaluate the averagers on them exactly.
+        # Samples not yet on the block grid: evaluate the averagers on them exactly
+        # (without changing the meter's state).
+        m = self._pending.shape[1]
+        first = self._blocks * BLOCK_FRAMES
+        q = np.zeros((self.channels, 1, BLOCK_FRAMES))
+        q[:, 0, :m] = self._pending
         ext = {}
-        for name, av in (("F", self._f), ("S", self._s)):
+        for name, av, key_max, key_min in (
+            ("F", self._f, "LAFmax", "LAFmin"),
+            ("S", self._s, "LASmax", "LASmin"),
+        ):
             mx, mn = av.max.copy(), av.min.copy()
-            m = self._pending.shape[1]
             if m:
-                first = self._blocks * BLOCK_FRAMES
                 frames = first + np.arange(m)
-                q = np.zeros((self.channels, BLOCK_FRAMES))
-                q[:, :m] = self._pending
-                vals = av.samples(av.last, q)[:, :m]
-                kmax = "LAFmax" if name == "F" else "LASmax"
-                kmin = "LAFmin" if name == "F" else "LASmin"
-                okx = frames >= self._start[kmax]
-                okn = frames >= self._start[kmin]
+                vals = av.samples(av.last, q[:, 0, :])[:, :m]
+                okx = frames >= self._start[key_max]
+                okn = frames >= self._start[key_min]
                 if np.any(okx):
                     mx = np.maximum(mx, vals[:, okx].max(axis=1))
                 if np.any(okn):
                     mn = np.minimum(mn, vals[:, okn].min(axis=1))
             ext[name] = (mx, mn)
+
+        def tail(av: _Averager, every: int) -> tuple[np.ndarray, np.ndarray]:
+            vals, frames = av.at_instants(q, av.last[:, None], first, every)
+            keep = frames < first + m
+            return vals[:, keep], frames[keep]
+
+        tail_pct = tail(self._f, self._pct_frames)
+        tail_trace = None
+        if self._interval_frames is not None:
+            tail_trace = np.stack(
+                [tail(self._f, self._trace_frames)[0], tail(self._s, self._trace_frames)[0]]
+            )
         channels = []
         for c in range(self.channels):
-            channels.append(self._channel_result(c, n, ext))
+            channels.append(self._channel_result(c, n, ext, tail_pct))
         excluded = {k: v / fs for k, v in self._start.items()}
         return LevelResult(
             sample_rate_hz=fs,
@@ -491,10 +524,12 @@ class LevelMeter:
             channels=tuple(channels),
             percentile_interval_s=self.percentile_interval_s,
             excluded_s=excluded,
-            history=self._history_result() if self._interval_frames is not None else None,
+            history=None if tail_trace is None else self._history_result(tail_trace),
         )
 
-    def _channel_result(self, c: int, n: int, ext: dict) -> ChannelLevels:
+    def _channel_result(
+        self, c: int, n: int, ext: dict, tail_pct: tuple[np.ndarray, np.ndarray]
+    ) -> ChannelLevels:
         fs = self.sample_rate_hz
         ref = self.reference
         notes: list[str] = []
@@ -534,7 +569,7 @@ class LevelMeter:
             mx, mn = ext[name]
             values[key_max] = after_start(key_max, _db(mx[c], ref), key_max)
             values[key_min] = after_start(key_min, _db(mn[c], ref), key_min)
-        pct = self._percentile_levels(c)
+        pct = self._percentile_levels(c, tail_pct)
         if pct is None:
             notes.append(
                 "LAF percentiles: no F level sample after the "
@@ -562,9 +597,18 @@ class LevelMeter:
             notes=tuple(notes),
         )
 
-    def _percentile_levels(self, c: int) -> dict[int, float | None] | None:
-        hist = self._hist[c]
-        zero = int(self._hist_zero[c])
+    def _percentile_levels(
+        self, c: int, tail_pct: tuple[np.ndarray, np.ndarray]
+    ) -> dict[int, float | None] | None:
+        hist = self._hist[c : c + 1].copy()
+        zero_count = self._hist_zero[c : c + 1].copy()
+        clipped_count = self._hist_clipped[c : c + 1].copy()
+        values, frames = tail_pct
+        pick = frames >= self._start["LAF percentiles"]
+        if np.any(pick):
+            self._bin(values[c : c + 1, pick], hist, zero_count, clipped_count)
+        hist = hist[0]
+        zero = int(zero_count[0])
         total = int(hist.sum()) + zero
         if total == 0:
             return None
@@ -579,11 +623,11 @@ class LevelMeter:
                 continue
             i = int(np.searchsorted(from_top, k))
             b = n_bins - 1 - i
-            clipped = self._hist_clipped[c] and (b == 0 or b == n_bins - 1)
+            clipped = clipped_count[0] and (b == 0 or b == n_bins - 1)
             out[p] = None if clipped else HISTOGRAM_LOW_DB + (b + 0.5) * HISTOGRAM_STEP_DB
         return out
 
-    def _history_result(self) -> LevelHistory:
+    def _history_result(self, tail_trace: np.ndarray) -> LevelHistory:
         fs = self.sample_rate_hz
         ref = self.reference
         done = list(self._int_done)
@@ -594,10 +638,8 @@ class LevelMeter:
         ms = np.stack(done) if done else np.zeros((0, 3, self.channels))
         lengths_arr = np.asarray(lengths, dtype=float)
         starts = np.concatenate([[0.0], np.cumsum(lengths_arr)[:-1]]) / fs if lengths else []
-        traces = (
-            np.concatenate(self._trace, axis=2) if self._trace else np.zeros((2, self.channels, 0))
-        )
-        t = (np.arange(1, traces.shape[2] + 1) * self._trace_blocks * BLOCK_FRAMES - 1) / fs
+        traces = np.concatenate([*self._trace, tail_trace], axis=2)
+        t = (np.arange(1, traces.shape[2] + 1) * self._trace_frames - 1) / fs
         return LevelHistory(
             interval_s=float(self.interval_s),
             interval_start_s=np.asarray(starts, dtype=float),
