@@ -373,13 +373,30 @@ class LevelMeter:
                 self._int_frames = 0
 
     def _time_weighting(self, qa: np.ndarray) -> None:
+        """Feed squared A-weighted samples to the block grid (whole blocks only)."""
         L = BLOCK_FRAMES
-        q = np.concatenate([self._pending, qa], axis=1) if self._pending.shape[1] else qa
+        p = self._pending.shape[1]
+        if p:
+            # Complete the pending block first; the rest is then aligned to the grid
+            # and is used in place (no copy of the whole chunk).
+            take = min(L - p, qa.shape[1])
+            self._pending = np.concatenate([self._pending, qa[:, :take]], axis=1)
+            qa = qa[:, take:]
+            if self._pending.shape[1] < L:
+                return
+            head = self._pending
+            self._pending = np.zeros((self.channels, 0))
+            self._grid_blocks(head)
+        nb = qa.shape[1] // L
+        if nb:
+            self._grid_blocks(qa[:, : nb * L])
+        self._pending = qa[:, nb * L :].copy()
+
+    def _grid_blocks(self, q: np.ndarray) -> None:
+        """Run the averagers over whole grid blocks ``q`` (channels, nb * L)."""
+        L = BLOCK_FRAMES
         nb = q.shape[1] // L
-        self._pending = q[:, nb * L :].copy()
-        if nb == 0:
-            return
-        qb = q[:, : nb * L].reshape(self.channels, nb, L)
+        qb = q.reshape(self.channels, nb, L)
         k0 = self._blocks
         self._blocks += nb
         weights = np.stack([self._f.w_end, self._s.w_end, np.ones(L)], axis=1)
