@@ -175,6 +175,11 @@ def _db_array(mean_square: np.ndarray, reference: float) -> np.ndarray:
     return out
 
 
+def _absmax_into(a: np.ndarray, acc: np.ndarray) -> None:
+    """acc = max(acc, max |a| along the frames axis) for a (channels, frames) array."""
+    np.maximum(acc, np.maximum(a.max(axis=1), -a.min(axis=1)), out=acc)
+
+
 class _Averager:
     """Block-grid exponential averager state for all channels (one time constant)."""
 
@@ -303,6 +308,8 @@ class LevelMeter:
         self._zi_a: np.ndarray | None = None
         self._sum = np.zeros((3, ch))  # Z, C, A sums of squares
         self._peak_z = np.zeros(ch)
+        self._peak_z_head = np.zeros(ch)  # |x| max inside the filter settling time
+        self._peak_z_after = np.zeros(ch)  # |x| max after it
         self._peak_c = np.zeros(ch)
         self._pending = np.zeros((ch, 0))  # A-squared samples not yet on the block grid
         self._blocks = 0  # blocks processed on the grid
@@ -341,13 +348,14 @@ class LevelMeter:
         self._sum[0] += np.einsum("ij,ij->i", xt, xt)
         self._sum[1] += np.einsum("ij,ij->i", yc, yc)
         self._sum[2] += qa.sum(axis=1)
-        np.maximum(self._peak_z, np.maximum(xt.max(axis=1), -xt.min(axis=1)), out=self._peak_z)
-        c0 = self._start["LCpeak"] - self._frames
-        if c0 < n:
-            yc_ok = yc[:, max(c0, 0) :]
-            np.maximum(
-                self._peak_c, np.maximum(yc_ok.max(axis=1), -yc_ok.min(axis=1)), out=self._peak_c
-            )
+        head = min(max(self._start["LCpeak"] - self._frames, 0), n)
+        if head:
+            _absmax_into(xt[:, :head], self._peak_z_head)
+        if head < n:
+            _absmax_into(xt[:, head:], self._peak_z_after)
+        np.maximum(self._peak_z_head, self._peak_z_after, out=self._peak_z)
+        if head < n:
+            _absmax_into(yc[:, head:], self._peak_c)
         if self._interval_frames is not None:
             self._history_update(xt, yc, qa)
         self._frames += n
@@ -582,6 +590,12 @@ class LevelMeter:
             return value
 
         values["LCpeak"] = after_start("LCpeak", _db(self._peak_c[c] ** 2, ref), "LCpeak")
+        if n > self._start["LCpeak"] and self._peak_z_head[c] > self._peak_z_after[c]:
+            notes.append(
+                f"the largest sample lies in the first {self._start['LCpeak'] / fs:g} s, "
+                "which is excluded from LCpeak, LAFmax and LASmax as filter start-up; for "
+                "a capture that starts on the event set the settling time to 0"
+            )
         for name, key_max, key_min in (("F", "LAFmax", "LAFmin"), ("S", "LASmax", "LASmin")):
             mx, mn = ext[name]
             values[key_max] = after_start(key_max, _db(mx[c], ref), key_max)
