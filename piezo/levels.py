@@ -57,6 +57,7 @@ from piezo.weighting import (
     _check_block,
     _check_channels,
     _check_rate,
+    sosfilt_inplace,
     time_weighting_coefficient,
     weighting_chain_sos,
 )
@@ -196,6 +197,7 @@ class _Averager:
         diff = j[:, None] - j[None, :]
         self.T = np.where(diff >= 0, self.b * self.a ** np.maximum(diff, 0), 0.0)
         self.up = self.a ** (-(L - 1))  # y_j <= Y_k a^-(L-1)
+        self.block_sos = np.array([[1.0, 0.0, 0.0, 1.0, -self.a_block, 0.0]])
         self.last = np.zeros(channels)  # value at the last processed block end
         self.max = np.full(channels, -np.inf)
         self.min = np.full(channels, np.inf)
@@ -306,6 +308,7 @@ class LevelMeter:
         self._frames = 0
         self._zi_c: np.ndarray | None = None
         self._zi_a: np.ndarray | None = None
+        self._work: np.ndarray | None = None
         self._sum = np.zeros((3, ch))  # Z, C, A sums of squares
         self._peak_z = np.zeros(ch)
         self._peak_z_head = np.zeros(ch)  # |x| max inside the filter settling time
@@ -315,6 +318,9 @@ class LevelMeter:
         self._blocks = 0  # blocks processed on the grid
         self._f = _Averager(TIME_CONSTANTS_S["F"], fs, ch)
         self._s = _Averager(TIME_CONSTANTS_S["S"], fs, ch)
+        self._block_weights = np.stack(
+            [self._f.w_end, self._s.w_end, np.ones(BLOCK_FRAMES)], axis=1
+        )
         n_bins = round((HISTOGRAM_HIGH_DB - HISTOGRAM_LOW_DB) / HISTOGRAM_STEP_DB)
         self._hist = np.zeros((ch, n_bins), dtype=np.int64)
         self._hist_zero = np.zeros(ch, dtype=np.int64)  # F level exactly zero
@@ -333,19 +339,27 @@ class LevelMeter:
         n = x.shape[0]
         if n == 0:
             return
-        if not np.all(np.isfinite(x)):
+        xt = np.ascontiguousarray(x.T)  # (channels, frames); a view for one channel
+        sum_z = np.einsum("ij,ij->i", xt, xt)
+        if not np.all(np.isfinite(sum_z)):
             raise InputError("block contains NaN or infinite samples")
-        xt = np.ascontiguousarray(x.T)  # (channels, frames)
         if self._zi_c is None:
             # Steady state for a constant input equal to the first sample (no DC step).
             zi = signal.sosfilt_zi(self._c_sos)  # (sections, 2)
-            self._zi_c = zi[:, None, :] * xt[:, 0][None, :, None]
+            self._zi_c = np.ascontiguousarray(zi[None, :, :] * xt[:, 0][:, None, None])
             # C blocks DC exactly (zeros at z = 1), so the A-only part starts at rest.
-            self._zi_a = np.zeros((len(self._a_sos), self.channels, 2))
-        yc, self._zi_c = signal.sosfilt(self._c_sos, xt, axis=-1, zi=self._zi_c)
-        ya, self._zi_a = signal.sosfilt(self._a_sos, yc, axis=-1, zi=self._zi_a)
-        qa = ya * ya
-        self._sum[0] += np.einsum("ij,ij->i", xt, xt)
+            self._zi_a = np.zeros((self.channels, len(self._a_sos), 2))
+        # Work buffers are reused between blocks of the same size: fresh multi-megabyte
+        # arrays per block cost page faults comparable to the filtering itself.
+        if self._work is None or self._work.shape[2] != n:
+            self._work = np.empty((2, self.channels, n))
+        yc, ya = self._work[0], self._work[1]
+        np.copyto(yc, xt)
+        sosfilt_inplace(self._c_sos, yc, self._zi_c)
+        np.copyto(ya, yc)
+        sosfilt_inplace(self._a_sos, ya, self._zi_a)
+        qa = np.multiply(ya, ya, out=ya)
+        self._sum[0] += sum_z
         self._sum[1] += np.einsum("ij,ij->i", yc, yc)
         self._sum[2] += qa.sum(axis=1)
         head = min(max(self._start["LCpeak"] - self._frames, 0), n)
@@ -405,25 +419,26 @@ class LevelMeter:
         L = BLOCK_FRAMES
         nb = q.shape[1] // L
         qb = q.reshape(self.channels, nb, L)
-        k0 = self._blocks
+        first = self._blocks * L  # frame index of the first sample of these blocks
         self._blocks += nb
-        weights = np.stack([self._f.w_end, self._s.w_end, np.ones(L)], axis=1)
-        u = qb @ weights  # (channels, nb, 3): F input, S input, block sum
+        u = qb @ self._block_weights  # (channels, nb, 3): F input, S input, block sum
         qsum = u[:, :, 2]
-        first = k0 * L  # frame index of the first sample of this run of blocks
-        ends = first + L * np.arange(1, nb + 1) - 1  # frame index of each block end
         starts = []
         for av, col, max_key, min_key in (
             (self._f, 0, "LAFmax", "LAFmin"),
             (self._s, 1, "LASmax", "LASmin"),
         ):
-            zi = (av.a_block * av.last)[:, None]
-            y, _ = signal.lfilter([1.0], [1.0, -av.a_block], u[:, :, col], axis=1, zi=zi)
-            start = np.concatenate([av.last[:, None], y[:, :-1]], axis=1)
+            # Block-end values: Y_k = a^L Y_(k-1) + U_k, a one-pole section at block rate.
+            y = np.ascontiguousarray(u[:, :, col])
+            zi = np.zeros((self.channels, 1, 2))
+            zi[:, 0, 0] = av.a_block * av.last
+            sosfilt_inplace(av.block_sos, y, zi)
+            start = np.empty_like(y)
+            start[:, 0] = av.last
+            start[:, 1:] = y[:, :-1]
             av.last = y[:, -1].copy()
-            self._extremes(
-                av, qb, y, start, qsum, ends, self._start[max_key], self._start[min_key]
-            )
+            av.max = self._extreme(av, qb, y, start, qsum, first, self._start[max_key], True)
+            av.min = self._extreme(av, qb, y, start, qsum, first, self._start[min_key], False)
             starts.append(start)
         self._percentiles(self._f.at_instants(qb, starts[0], first, self._pct_frames))
         if self._interval_frames is not None:
@@ -432,49 +447,48 @@ class LevelMeter:
             if f_tr[1].size:
                 self._trace.append(np.stack([f_tr[0], s_tr[0]]))
 
-    def _extremes(
-        self,
+    @staticmethod
+    def _extreme(
         av: _Averager,
         qb: np.ndarray,
         y: np.ndarray,
         start: np.ndarray,
         qsum: np.ndarray,
-        ends: np.ndarray,
-        max_from: int,
-        min_from: int,
-    ) -> None:
-        """Update the exact running max/min of the averager (see module docstring)."""
+        first: int,
+        first_ok: int,
+        is_max: bool,
+    ) -> np.ndarray:
+        """Exact running max (or min) of the averager over samples from ``first_ok`` on.
+
+        Block-end values are exact samples; inside a block the averager is bounded by
+        ``min(Y_start + b sum(q), Y_end a^-(L-1))`` from above and by
+        ``max(Y_start a^L, Y_end - b sum(q))`` from below. Only blocks whose bound passes
+        the best block-end value are evaluated sample by sample.
+        """
         L = BLOCK_FRAMES
-        for c in range(self.channels):
-            for is_max, first_ok in ((True, max_from), (False, min_from)):
-                ok = ends >= first_ok  # blocks holding at least one eligible sample
-                if not np.any(ok):
-                    continue
-                whole = (ends - (L - 1)) >= first_ok
-                if is_max:
-                    best = max(av.max[c], float(np.max(y[c][ok])))
-                    bound = np.minimum(start[c] + av.b * qsum[c], y[c] * av.up)
-                    cand = ok & (bound >= best)
-                else:
-                    best = min(av.min[c], float(np.min(y[c][ok])))
-                    bound = np.maximum(start[c] * av.a_block, y[c] - av.b * qsum[c])
-                    cand = ok & (bound <= best)
-                idx = np.flatnonzero(cand)
-                if idx.size:
-                    vals = av.samples(start[c][idx], qb[c][idx])
-                    partial = ~whole[idx]
-                    if np.any(partial):
-                        # Only the block holding the start index can be partial.
-                        frame = (ends[idx][:, None] - (L - 1)) + np.arange(L)[None, :]
-                        vals = np.where(frame >= first_ok, vals, np.nan)
-                    if is_max:
-                        best = max(best, float(np.nanmax(vals)))
-                    else:
-                        best = min(best, float(np.nanmin(vals)))
-                if is_max:
-                    av.max[c] = best
-                else:
-                    av.min[c] = best
+        current = av.max if is_max else av.min
+        k_ok = max(0, (first_ok - first) // L)  # first block whose end is eligible
+        if k_ok >= y.shape[1]:
+            return current
+        ys, ss, qs = y[:, k_ok:], start[:, k_ok:], qsum[:, k_ok:]
+        if is_max:
+            best = np.maximum(current, ys.max(axis=1))
+            cand = np.minimum(ss + av.b * qs, ys * av.up) >= best[:, None]
+        else:
+            best = np.minimum(current, ys.min(axis=1))
+            cand = np.maximum(ss * av.a_block, ys - av.b * qs) <= best[:, None]
+        ci, bi = np.nonzero(cand)
+        if ci.size:
+            vals = av.samples(ss[ci, bi], qb[ci, k_ok + bi])  # (candidates, L)
+            frame0 = first + (k_ok + bi) * L
+            if np.any(frame0 < first_ok):  # the block holding first_ok is partly early
+                early = frame0[:, None] + np.arange(L)[None, :] < first_ok
+                vals = np.where(early, -np.inf if is_max else np.inf, vals)
+            if is_max:
+                np.maximum.at(best, ci, vals.max(axis=1))
+            else:
+                np.minimum.at(best, ci, vals.min(axis=1))
+        return best
 
     def _percentiles(self, sampled: tuple[np.ndarray, np.ndarray]) -> None:
         values, frames = sampled
@@ -494,7 +508,7 @@ class LevelMeter:
             level = 10.0 * np.log10(v[~zero] / (self.reference * self.reference))
             idx = np.floor((level - HISTOGRAM_LOW_DB) / HISTOGRAM_STEP_DB).astype(np.int64)
             clipped[c] += int(np.count_nonzero((idx < 0) | (idx >= n_bins)))
-            hist[c] += np.bincount(np.clip(idx, 0, n_bins - 1), minlength=n_bins)
+            np.add.at(hist[c], np.clip(idx, 0, n_bins - 1), 1)
 
     # ---------------------------------------------------------------------- result
     def result(self) -> LevelResult:
