@@ -1,4 +1,4 @@
-"""Sound levels of a recording, streamed: the level set of a class 1 sound level meter.
+"""Sound levels of a recording, streamed: the level set a sound level meter reports.
 
 :class:`LevelMeter` consumes calibrated blocks (Pa, or V for an uncalibrated chain) and
 gives, per channel, the levels defined in IEC 61672-1:2013 (clause numbers in
@@ -24,7 +24,8 @@ Start-up (documented in ``docs/levels.md``)
     LAFmax and LASmax; that plus 5 time constants (0.625 s for F, 5 s for S; a reset
     averager is then within 0.03 dB of its steady reading) for LAFmin, the LAF
     percentiles and LASmin. LZpeak has no filter and uses every sample. Leq and LAE
-    integrate the whole recording.
+    integrate the whole recording. When the largest sample lies inside the settling time
+    a note says so (a capture that starts on the event wants ``filter_settle_s=0``).
 
 Time weighting on a block grid
     The exponential averagers are evaluated exactly, but not sample by sample in Python:
