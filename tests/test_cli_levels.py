@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import inspect
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -13,6 +14,7 @@ from piezo.cli.levels import LEVEL_KEYS
 from piezo.levels import FILTER_SETTLE_S, LevelMeter, sound_levels
 
 FS = 48000
+RECORDINGS = Path(__file__).resolve().parent.parent / "recordings"
 
 # The JSON contract: these keys must be present in every channel entry.
 CONTRACT_KEYS = {
@@ -120,3 +122,17 @@ def test_levels_bad_options(cli, tone_and_silence, options, message):
     res = cli("levels", tone_and_silence, *options)
     assert res.code == 2
     assert message in res.err and res.out == ""
+
+
+@pytest.mark.parametrize(
+    "name, unit, channels",
+    [("pump-bench.flac", "Pa", 2), ("tank-hydrophone.flac", "Pa", 1), ("tap-test.csv", "V", 2)],
+)
+def test_levels_on_demo_recordings(cli, name, unit, channels):
+    res = cli("levels", RECORDINGS / name, "--json")
+    assert res.code == 0, res.err
+    doc = res.json()
+    assert doc["unit"] == unit and len(doc["channels"]) == channels
+    for ch in doc["channels"]:
+        # An RMS never exceeds the peak of the same signal.
+        assert ch["LZeq"] is not None and ch["LZeq"] <= ch["LZpeak"]
