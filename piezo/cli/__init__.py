@@ -33,6 +33,8 @@ COMMAND_MODULES = (
     "levels",
     "calibrate",
     "demo",
+    "sweep",
+    "response",
 )
 
 app = typer.Typer(
