@@ -1,7 +1,7 @@
 """Sound levels of a recording, streamed: the level set a sound level meter reports.
 
 :class:`LevelMeter` consumes calibrated blocks (Pa, or V for an uncalibrated chain) and
-gives, per channel, the levels defined in IEC 61672-1:2013 (clause numbers in
+gives, per channel, the levels defined in IEC 61672-1:2013 (definitions in
 ``docs/levels.md``): equivalent continuous levels LZeq, LAeq, LCeq; maximum and minimum
 time-weighted levels LAFmax, LAFmin, LASmax, LASmin; peak levels LCpeak, LZpeak; the
 sound exposure level LAE; percentile levels LAF5, LAF10, LAF50, LAF90, LAF95; the crest

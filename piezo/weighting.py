@@ -24,7 +24,8 @@ and the class 1 acceptance limits of IEC 61672-1:2013, Table 3.
 Time weightings
 ---------------
 F (fast, 125 ms) and S (slow, 1 s) are exponential averages of the squared
-frequency-weighted signal (IEC 61672-1:2013, 3.8 and equation (2) of 5.8), realised as
+frequency-weighted signal (IEC 61672-1:2013, the time-weighting clause 5.8; clause
+number from memory), realised as
 the one-pole recursion ``y[n] = a y[n-1] + (1 - a) x[n]`` with ``a = exp(-1/(tau f_s))``
 (unit gain for a steady input). :class:`ExponentialAverager` streams it with carried state.
 """
@@ -441,7 +442,7 @@ class FrequencyWeighting:
 
 
 # --- time weighting ------------------------------------------------------------------
-#: Exponential time constants (IEC 61672-1:2013, 5.8): F 125 ms, S 1 s.
+#: Exponential time constants (IEC 61672-1:2013; reference-values.md, V): F 125 ms, S 1 s.
 TIME_CONSTANTS_S: dict[str, float] = {"F": 0.125, "S": 1.0}
 
 
@@ -460,7 +461,7 @@ class ExponentialAverager:
     """Streaming exponential time weighting of a squared signal (one pole, carried state).
 
     ``y[n] = a y[n-1] + (1 - a) x[n]`` with ``a = exp(-1/(tau f_s))``: the discrete form of
-    IEC 61672-1:2013 equation (2), with unit gain for a steady input. Give it squared
+    IEC 61672-1:2013 time-weighting definition, with unit gain for a steady input. Give it squared
     frequency-weighted pressure; ``10 lg(y / p0^2)`` is then the time-weighted level.
 
     Parameters

@@ -1,4 +1,4 @@
-"""Tests of piezo.weighting against IEC 61672-1:2013 (Annex E, Table 3, clause 5.8).
+"""Tests of piezo.weighting against IEC 61672-1:2013 (Annex E, Table 3, time weighting).
 
 Check values come from /work/shared/reference-values.md (status V: recomputed from the
 defining formulas and cross-checked between public transcriptions of the standard).
@@ -214,8 +214,8 @@ def test_frequency_weighting_streams_and_starts_without_dc_step(rng):
 
 @pytest.mark.parametrize("name, decay_db_per_s", [("F", 34.7), ("S", 4.3)])
 def test_time_weighting_decay_rate(name, decay_db_per_s):
-    # IEC 61672-1:2013, 5.8: after a steady signal stops the F level decays 34.7 dB/s and
-    # the S level 4.3 dB/s (V; both 10 lg(e) / tau, rounded to 0.1 dB/s).
+    # IEC 61672-1:2013 (time weighting): after a steady signal stops the F level decays
+    # 34.7 dB/s and the S level 4.3 dB/s (V; both 10 lg(e) / tau, rounded to 0.1 dB/s).
     fs = 8000.0
     av = w.ExponentialAverager(fs, 1, time_constant_s=w.TIME_CONSTANTS_S[name], initial=1.0)
     y = av.update(np.zeros((int(fs), 1)))[:, 0]
@@ -229,8 +229,9 @@ def test_time_weighting_step_and_streaming(rng):
     tau = 0.125
     av = w.ExponentialAverager(fs, 1, time_constant_s=tau)
     y = av.update(np.ones((int(fs), 1)))[:, 0]
-    # Exponential averaging of a unit step: 1 - exp(-t / tau) (IEC 61672-1 eq. (2)); the
-    # discrete form is exact at the sample instants, so only rounding remains.
+    # Exponential averaging of a unit step: 1 - exp(-t / tau) (IEC 61672-1:2013 time
+    # weighting); the discrete form is exact at the sample instants, so only rounding
+    # remains.
     t = np.arange(1, int(fs) + 1) / fs
     assert_allclose(y, 1 - np.exp(-t / tau), rtol=1e-10)
     q = rng.random((3000, 2))
