@@ -162,3 +162,22 @@ def test_corner_below_the_band_is_not_evaluable(setup):
         m.startswith("corner: not evaluable (no low-frequency roll-off measured")
         for m in row["not_evaluable"]
     )
+
+
+def test_a_weighted_noise_floor_of_white_noise(setup):
+    folder, _ = setup
+    spec = parse_spec(
+        SWEEP_SPEC + "[metrics.z]\nkind = 'noise_floor'\n"
+        "[metrics.a]\nkind = 'noise_floor'\nweighting = 'A'\n"
+    )
+    row = evaluate_capture(_write(folder, "n.flac", demo_lot.DESIGN, seed=5), spec)
+    from piezo.weighting import weighting_db
+
+    # White noise (the model's self-noise) up to fs/2 = 8 kHz: A-weighted minus
+    # unweighted power is 10 lg(mean of 10^(A(f)/10)) over 0-8 kHz, with A(f) the
+    # IEC 61672-1:2013 Annex E curve (+0.18 dB: the 1-5 kHz gain outweighs the low-end
+    # loss). Both levels come from the same samples, so their estimation noise largely
+    # cancels; 0.1 dB covers the rest and the digital filter's class 1 deviation.
+    f = np.linspace(1.0, 8000.0, 80001)
+    expected = 10 * math.log10(np.mean(10 ** (weighting_db(f, weighting="A") / 10)))
+    assert row["metrics"]["a"] - row["metrics"]["z"] == pytest.approx(expected, abs=0.1)
