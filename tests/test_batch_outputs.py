@@ -74,7 +74,9 @@ def test_json_document(rows):
     sens = s["metrics"][0]
     assert sens["name"] == "sensitivity" and sens["n"] == 7
     assert sens["lower"] == -13.0 and sens["upper"] == -7.0
-    assert sens["cp"] is not None and sum(sens["histogram"]["counts"]) == 7
+    h = sens["histogram"]
+    assert sens["cp"] is not None and sum(h["counts"]) + h["below"] + h["above"] == 7
+    assert h["below"] == 1  # the low unit, far outside the others' spread
     assert s["metrics"][1]["cp"] is None  # clipping: one-sided
 
 

@@ -64,7 +64,15 @@ def test_histogram_spans_values_and_limits():
     assert sum(h.counts) == 500
     assert h.edges[0] == -5.0 and h.edges[-1] == 6.0
     assert len(h.edges) == len(h.counts) + 1
-    assert 5 <= len(h.counts) <= 40
+    assert 10 <= len(h.counts) <= 60
+    # Freedman-Diaconis width 2 IQR / n^(1/3) (IQR of N(0, 1) = 1.349): 0.34 for n = 500,
+    # so 11 / 0.34 -> 33 bins over the limits' span.
+    q1, q3 = np.percentile(x, [25, 75])
+    assert len(h.counts) == int(np.ceil(11.0 / (2 * (q3 - q1) / 500 ** (1 / 3))))
+    # A far outlier (beyond quartiles + 3 IQR, Tukey's far fence) is counted apart.
+    wild = histogram(np.concatenate([x, [60.0]]), lower=-5.0, upper=6.0)
+    assert (wild.above, wild.below, sum(wild.counts)) == (1, 0, 500)
+    assert wild.edges[-1] == 6.0
     same = histogram(np.full(10, 3.0))
     assert sum(same.counts) == 10 and same.edges[0] < 3.0 < same.edges[-1]
     assert histogram([]).counts == []

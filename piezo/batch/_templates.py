@@ -103,6 +103,8 @@ CAPTURE_TEMPLATE = (
 <p class="note">spec: {{ spec.name or "—" }} (hash <code>{{ spec.sha256[:16] }}</code>) ·
  content hash <code>{{ row.content_sha256[:16] }}</code> · piezo {{ version }}</p>
 {% if row.error %}<p class="fail">{{ row.error }}</p>{% endif %}
+{% if png %}<img alt="measured response of {{ row.file }}" src="data:image/png;base64,{{ png }}">
+{% endif %}
 <table><tr><th>metric</th><th>value</th><th>unit</th><th>limits</th><th>margin</th></tr>
 {% for line in lines %}<tr><td>{{ line.metric.name }}</td>
 <td class="num">{{ line.value|num(6) }}</td><td>{{ line.metric.unit }}</td>

@@ -26,7 +26,7 @@ from piezo.batch.spec import MetricSpec
 from piezo.batch.verdict import MetricValue
 from piezo.errors import InputError
 
-__all__ = ["EXTRACTORS", "sweep_stimulus"]
+__all__ = ["EXTRACTORS", "report_data", "sweep_stimulus"]
 
 #: dB re 20 µPa of 1 Pa: 20 lg(1 / 20e-6) (ISO 1683 reference pressure in air).
 _DB_RE_20UPA_OF_1PA = 20.0 * math.log10(1.0 / 20e-6)
@@ -311,3 +311,18 @@ EXTRACTORS: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "noise_floor": _noise_floor,
     "self_noise": _self_noise,
 }
+
+
+def report_data(a: CaptureAnalysis) -> dict[str, Any]:
+    """Curves for a capture's report, from the analyses already run (nothing is
+    computed again): the swept response on a 1/12-octave grid when there is one."""
+    out: dict[str, Any] = {}
+    found, response = a.peek("sweep_response")
+    if found:
+        table = response.to_table(points_per_octave=12)
+        out["response"] = {
+            "frequency_hz": [float(v) for v in table.frequency_hz],
+            "magnitude_db": [float(v) for v in table.magnitude_db],
+            "unit": table.magnitude_unit,
+        }
+    return out

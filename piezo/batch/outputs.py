@@ -44,6 +44,8 @@ __all__ = [
     "results_json_text",
     "summarize",
     "summary_html_text",
+    "write_capture_report",
+    "write_capture_reports",
     "write_outputs",
 ]
 
@@ -148,7 +150,12 @@ def summarize(rows: Sequence[Mapping[str, Any]], spec: Spec) -> dict[str, Any]:
                 "cpk": cap.cpk,
                 "cpl": cap.cpl,
                 "cpu": cap.cpu,
-                "histogram": {"edges": hist.edges, "counts": hist.counts},
+                "histogram": {
+                    "edges": hist.edges,
+                    "counts": hist.counts,
+                    "below": hist.below,
+                    "above": hist.above,
+                },
             }
         )
     return {
@@ -312,6 +319,13 @@ def _histogram_png(metric: Mapping[str, Any]) -> str | None:
             ax.axvline(metric[key], color="#b22222", linestyle="--", linewidth=1.2, label=label)
     ax.set_xlabel(f"{metric['name']} ({metric['unit']})")
     ax.set_ylabel("captures")
+    outside = []
+    if metric["histogram"].get("below"):
+        outside.append(f"{metric['histogram']['below']} below the range")
+    if metric["histogram"].get("above"):
+        outside.append(f"{metric['histogram']['above']} above the range")
+    if outside:
+        ax.set_title("; ".join(outside), fontsize="small", loc="left")
     if metric["lower"] is not None or metric["upper"] is not None:
         ax.legend(fontsize="small", frameon=False)
     fig.tight_layout()
@@ -374,8 +388,12 @@ def report_file_name(file: str) -> str:
     return stem.strip("._") + ".html"
 
 
-def capture_report_html(row: Mapping[str, Any], spec: Spec) -> str:
-    """Report of one capture: verdict, every metric with its value, limits and margin."""
+def capture_report_html(
+    row: Mapping[str, Any], spec: Spec, data: Mapping[str, Any] | None = None
+) -> str:
+    """Report of one capture: verdict, every metric with its value, limits and margin,
+    and, when ``data`` carries the swept response, a plot of it with the spec's golden
+    response and masks."""
     from piezo.batch._templates import CAPTURE_TEMPLATE
 
     lines = []
@@ -389,11 +407,63 @@ def capture_report_html(row: Mapping[str, Any], spec: Spec) -> str:
                 "margin": _margin(m, value),
             }
         )
+    png = _response_png(data.get("response"), spec) if data else None
     return (
         _environment()
         .from_string(CAPTURE_TEMPLATE)
-        .render(row=row, spec=spec, lines=lines, version=__version__)
+        .render(row=row, spec=spec, lines=lines, version=__version__, png=png)
     )
+
+
+def _at(frequency_hz: Sequence[float], magnitude_db: Sequence[float], f: float) -> float:
+    """Magnitude at ``f``, linear in log frequency (for placing curves on the plot)."""
+    import numpy as np
+
+    return float(np.interp(math.log(f), np.log(frequency_hz), magnitude_db))
+
+
+def _response_png(response: Mapping[str, Any] | None, spec: Spec) -> str | None:
+    """The measured response with the golden curve and masks, as base64 PNG."""
+    if not response:
+        return None
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    f, mag = response["frequency_hz"], response["magnitude_db"]
+    fig = Figure(figsize=(6.4, 3.2), dpi=90)
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    ax.semilogx(f, mag, color="#1f3a5f", linewidth=1.6, label="measured")
+    for m in spec.metrics:
+        ref = m.params.get("relative_to_hz")
+        offset = _at(f, mag, ref) if ref is not None and f[0] <= ref <= f[-1] else 0.0
+        if m.kind == "golden_deviation":
+            g = m.params["golden_data"]
+            gf, gm = g["frequency_hz"], g["magnitude_db"]
+            if ref is not None and gf[0] <= ref <= gf[-1]:
+                gm = [v - _at(gf, g["magnitude_db"], ref) + offset for v in gm]
+            ax.semilogx(
+                gf, gm, color="#8a8f98", linestyle="--", linewidth=1.2, label=f"golden ({m.name})"
+            )
+        if m.kind == "response_mask":
+            for key, style in (("lower_db", ":"), ("upper_db", ":")):
+                if m.params.get(key) is not None:
+                    ax.semilogx(
+                        m.params["frequency_hz"],
+                        [v + offset for v in m.params[key]],
+                        color="#b5502f",
+                        linestyle=style,
+                        marker="_",
+                        label=f"{m.name} {key[:5]}",
+                    )
+    ax.set_xlabel("frequency / Hz")
+    ax.set_ylabel(f"magnitude / {response.get('unit') or 'dB'}")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize="small", frameon=False)
+    fig.tight_layout()
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", metadata={"Software": None})
+    return base64.b64encode(buf.getvalue()).decode("ascii")
 
 
 def _limit_text(m: MetricSpec, lower: float | None, upper: float | None, severity: str) -> str:
@@ -449,15 +519,22 @@ def write_outputs(
     return written
 
 
+def write_capture_report(
+    out_dir: str | Path,
+    row: Mapping[str, Any],
+    spec: Spec,
+    data: Mapping[str, Any] | None = None,
+) -> str:
+    """Write ``out_dir/reports/<file>.html`` for one capture; return its relative link."""
+    folder = Path(out_dir) / "reports"
+    folder.mkdir(parents=True, exist_ok=True)
+    name = report_file_name(row["file"])
+    atomic_write(folder / name, capture_report_html(row, spec, data).encode("utf-8"))
+    return f"reports/{name}"
+
+
 def write_capture_reports(
     out_dir: str | Path, rows: Iterable[Mapping[str, Any]], spec: Spec
 ) -> dict[str, str]:
-    """Write one report per capture under ``out_dir/reports``; return file -> link."""
-    folder = Path(out_dir) / "reports"
-    folder.mkdir(parents=True, exist_ok=True)
-    links: dict[str, str] = {}
-    for row in rows:
-        name = report_file_name(row["file"])
-        atomic_write(folder / name, capture_report_html(row, spec).encode("utf-8"))
-        links[row["file"]] = f"reports/{name}"
-    return links
+    """Write one report (without curves) per capture; return file -> link."""
+    return {row["file"]: write_capture_report(out_dir, row, spec) for row in rows}

@@ -177,6 +177,12 @@ class CaptureAnalysis:
             raise value
         return value
 
+    def peek(self, key: Any) -> tuple[bool, Any]:
+        """``(True, value)`` if the analysis under ``key`` ran and succeeded, else
+        ``(False, None)``; never computes anything."""
+        ok, value = self._cache.get(key, (False, None))
+        return (True, value) if ok else (False, None)
+
 
 #: An extractor computes one metric kind: (analysis, metric) -> MetricValue.
 Extractor = Callable[[CaptureAnalysis, MetricSpec], MetricValue]
@@ -218,6 +224,7 @@ def evaluate_capture(
     loader: Loader | None = None,
     extractors: Mapping[str, Extractor] | None = None,
     with_curves: bool = False,
+    with_report: bool = False,
 ) -> dict[str, Any]:
     """Judge one capture against ``spec`` and return its result row.
 
@@ -240,6 +247,10 @@ def evaluate_capture(
     with_curves
         Add ``curves`` (mask name -> measured values at the mask frequencies, or None)
         to the row; used to derive masks from golden units.
+    with_report
+        Add ``_report`` (curves for the capture's report, see
+        :func:`piezo.batch.metrics.report_data`); the caller removes it before storing
+        the row.
 
     Returns
     -------
@@ -294,6 +305,13 @@ def evaluate_capture(
             for name, v in values.items()
             if METRIC_KINDS[_kind(spec, name)].mask
         }
+    if with_report:
+        from piezo.batch.metrics import report_data
+
+        try:
+            row["_report"] = report_data(analysis)
+        except Exception as exc:  # a report is an extra: never lose the verdict for it
+            row["_report"] = {"error": _describe(exc)}
     return row
 
 

@@ -105,12 +105,18 @@ def capability(
 
 @dataclass(frozen=True)
 class Histogram:
-    """Counts of a metric's values in bins; ``edges`` has one more entry than ``counts``."""
+    """Counts of a metric's values in bins; ``edges`` has one more entry than ``counts``.
+
+    ``below`` and ``above`` count the values outside the binned range (far outliers,
+    typically failed units), which are not in ``counts``.
+    """
 
     edges: list[float]
     counts: list[int]
     lower: float | None
     upper: float | None
+    below: int = 0
+    above: int = 0
 
 
 def histogram(
@@ -118,26 +124,33 @@ def histogram(
     *,
     lower: float | None = None,
     upper: float | None = None,
-    max_bins: int = 40,
+    max_bins: int = 60,
 ) -> Histogram:
-    """Histogram of the finite ``values`` over a range that also shows the limits.
+    """Histogram of the finite ``values`` over a range that shows the limits and the bulk.
 
-    The bin count is numpy's "auto" rule (the larger of Sturges and Freedman-Diaconis),
-    capped at ``max_bins``.
+    Range: the limits and the data inside Tukey's far fences (quartiles ∓ 3 IQR; common
+    practice for "far out" values), so one wild unit does not squeeze the rest into a
+    single bar; values beyond are counted in ``below``/``above``. Bin width: the
+    Freedman-Diaconis rule, 2 IQR / n^(1/3), with 10 to ``max_bins`` bins.
     """
     x = np.asarray(values, dtype=float)
     x = x[np.isfinite(x)]
-    points = [float(v) for v in (lower, upper) if v is not None]
     if x.size == 0:
         return Histogram([], [], lower, upper)
-    lo = min([float(x.min()), *points])
-    hi = max([float(x.max()), *points])
+    q1, q3 = (float(v) for v in np.percentile(x, [25.0, 75.0]))
+    iqr = q3 - q1
+    inside = x[(x >= q1 - 3 * iqr) & (x <= q3 + 3 * iqr)] if iqr > 0 else x
+    points = [float(v) for v in (lower, upper) if v is not None]
+    lo = min([float(inside.min()), *points])
+    hi = max([float(inside.max()), *points])
     if hi == lo:
         pad = abs(lo) * 0.01 if lo != 0 else 1.0
         lo, hi = lo - pad, hi + pad
-    auto = np.histogram_bin_edges(x, bins="auto")
-    data_span = float(x.max() - x.min())
-    width = (auto[1] - auto[0]) if auto.size > 1 and data_span > 0 else (hi - lo) / 10
-    bins = int(min(max_bins, max(5, math.ceil((hi - lo) / width))))
-    counts, edges = np.histogram(x, bins=bins, range=(lo, hi))
-    return Histogram([float(e) for e in edges], [int(c) for c in counts], lower, upper)
+    width = 2 * iqr / x.size ** (1 / 3) if iqr > 0 else (hi - lo) / 10
+    bins = int(min(max_bins, max(10, math.ceil((hi - lo) / width))))
+    below = int(np.count_nonzero(x < lo))
+    above = int(np.count_nonzero(x > hi))
+    counts, edges = np.histogram(x[(x >= lo) & (x <= hi)], bins=bins, range=(lo, hi))
+    return Histogram(
+        [float(e) for e in edges], [int(c) for c in counts], lower, upper, below, above
+    )

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -11,11 +12,12 @@ from rich.table import Table
 from piezo.batch.outputs import (
     Journal,
     read_previous_rows,
+    report_file_name,
     summarize,
-    write_capture_reports,
+    write_capture_report,
     write_outputs,
 )
-from piezo.batch.runner import expand_inputs, previous_index, run_batch
+from piezo.batch.runner import evaluate_capture, expand_inputs, previous_index, run_batch
 from piezo.batch.spec import load_spec
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, VERDICTS, WARN
 from piezo.cli.options import JsonOption
@@ -96,21 +98,35 @@ def batch(
     journal = Journal(out, keep=resume)
     reused = 0
     done = False
+    links: dict[str, str] = {}
+    job = functools.partial(evaluate_capture, spec=spec, with_report=reports)
     try:
         with progress(f"Judging {len(files)} captures", len(files)) as advance:
 
             def on_row(row: dict[str, Any], was_reused: bool) -> None:
                 nonlocal reused
                 reused += was_reused
+                data = row.pop("_report", None)
+                if reports:
+                    name = out / "reports" / report_file_name(row["file"])
+                    if data is not None or not name.exists():
+                        links[row["file"]] = write_capture_report(out, row, spec, data)
+                    else:  # reused row: keep the report written with its curves
+                        links[row["file"]] = f"reports/{name.name}"
                 if not was_reused:
                     journal.add(row)
                 advance(1)
 
             rows = run_batch(
-                files, spec, workers=workers, cluster=cluster, previous=previous, on_row=on_row
+                files,
+                spec,
+                workers=workers,
+                cluster=cluster,
+                previous=previous,
+                on_row=on_row,
+                job=job,
             )
-        links = write_capture_reports(out, rows, spec) if reports else None
-        write_outputs(out, rows, spec, reports=links)
+        write_outputs(out, rows, spec, reports=links if reports else None)
         done = True
     finally:
         # The journal survives an interruption (for --resume) and goes once the results
