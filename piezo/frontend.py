@@ -773,7 +773,7 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
     temperature = _temperature_k(data.get("temperature", 300.0), source)
 
     s = _Reader("sensor", _section(data, "sensor", source), source)
-    capacitance = s.quantity("capacitance", "F", required=True, positive=True)
+    capacitance = s.required("capacitance", "F")
     charge = s.sensitivity("charge_sensitivity")
     voltage = s.sensitivity("voltage_sensitivity")
     if (charge is None) == (voltage is None):

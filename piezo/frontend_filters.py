@@ -22,6 +22,7 @@ depends on frequencies above Nyquist that a sampled system cannot have).
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -251,6 +252,11 @@ def _check_rate(sample_rate_hz: float) -> float:
     return float(sample_rate_hz)
 
 
+def _check_input_kind(input: str) -> None:
+    if input not in ("pressure", "charge"):
+        raise InputError(f"input must be 'pressure' or 'charge', got {input!r}")
+
+
 def _check_channels(channels: int) -> int:
     if not (isinstance(channels, int) and channels >= 1):
         raise InputError(f"channels must be a positive integer, got {channels!r}")
@@ -298,10 +304,15 @@ class SimulationResult:
     check_band_hz: tuple[float, float]
 
 
+@functools.lru_cache(maxsize=32)
 def realise_frontend(
     frontend: Frontend, sample_rate_hz: float, *, input: InputKind = "pressure"
 ) -> DigitalRealisation:
-    """Digital realisation of ``frontend`` at ``sample_rate_hz`` (input Pa or C, output V)."""
+    """Digital realisation of ``frontend`` at ``sample_rate_hz`` (input Pa or C, output V).
+
+    Cached: a design realised once at a rate is not fitted again.
+    """
+    _check_input_kind(input)
     fs = _check_rate(sample_rate_hz)
     zeros, poles, gain = analog_zpk(frontend, input=input)
     return realise_zpk(

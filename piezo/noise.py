@@ -44,7 +44,6 @@ __all__ = [
     "NoiseBudget",
     "SelfNoise",
     "SourceNoise",
-    "a_weighting_db",
     "noise_budget",
     "noise_gain",
     "noise_gain_midband",
@@ -66,7 +65,8 @@ def thermal_noise_density_v(resistance_ohm: float, temperature_k: float) -> floa
     return math.sqrt(4.0 * BOLTZMANN_J_PER_K * temperature_k * resistance_ohm)
 
 
-# IEC 61672-1:2013 Annex E design constants (pole frequencies, Hz).
+# A minimal analytic A-weighting, IEC 61672-1:2013 Annex E (pole frequencies in Hz),
+# until piezo.weighting is on main.
 _F1 = 20.598997057618
 _F2 = 107.652648643
 _F3 = 737.862230736
@@ -81,7 +81,7 @@ def _a_weighting_unnormalised_db(frequency_hz: np.ndarray) -> np.ndarray:
     return 20.0 * np.log10(ratio)
 
 
-def a_weighting_db(frequency_hz: np.ndarray | float) -> np.ndarray:
+def _a_weighting_db(frequency_hz: np.ndarray | float) -> np.ndarray:
     """Analytic A-weighting of IEC 61672-1:2013 Annex E, dB (0 dB at 1 kHz)."""
     return _a_weighting_unnormalised_db(frequency_hz) - _a_weighting_unnormalised_db(
         np.array(1000.0)
@@ -282,7 +282,7 @@ def self_noise(
         raise InputError(f"noise band must be 0 < low < high, got {band_hz!r}")
     f = np.geomspace(lo, hi, points)
     budget = noise_budget(frontend, f)
-    weight = 10.0 ** (a_weighting_db(f) / 10.0)
+    weight = 10.0 ** (_a_weighting_db(f) / 10.0)
     ln_f = np.log(f)
 
     def integral(psd: np.ndarray) -> np.ndarray:
