@@ -59,13 +59,16 @@ __all__ = [
     "analog_zpk",
     "band_edges_hz",
     "corner_frequency_hz",
+    "design_key_unit",
     "frequency_response",
     "frontend_from_mapping",
     "load_frontend",
     "midband_charge_gain_v_per_c",
     "midband_sensitivity_v_per_pa",
+    "parse_design_value",
     "phase_deg",
     "read_design",
+    "resolve_design_key",
     "set_design_value",
     "summarise_response",
     "time_constant_s",
@@ -618,6 +621,32 @@ DESIGN_KEYS: dict[str, tuple[str, ...]] = {
     ),
 }
 
+#: Unit of each numeric design key, as understood by piezo.units (plus three special
+#: kinds: "gain" for parse_gain, "sensitivity" for V/Pa or dBV/Pa, "temperature").
+_KEY_UNITS: dict[tuple[str, str], str] = {
+    ("", "temperature"): "temperature",
+    ("sensor", "charge_sensitivity"): "C/Pa",
+    ("sensor", "voltage_sensitivity"): "sensitivity",
+    ("sensor", "capacitance"): "F",
+    ("sensor", "leakage_resistance"): "Ohm",
+    ("sensor", "resonance"): "Hz",
+    ("sensor", "q"): "V/V",
+    ("cable", "capacitance"): "F",
+    ("cable", "length"): "m",
+    ("cable", "capacitance_per_metre"): "F/m",
+    ("amplifier", "feedback_capacitance"): "F",
+    ("amplifier", "feedback_resistance"): "Ohm",
+    ("amplifier", "input_resistance"): "Ohm",
+    ("amplifier", "input_capacitance"): "F",
+    ("amplifier", "voltage_noise"): "V/sqrtHz",
+    ("amplifier", "current_noise"): "A/sqrtHz",
+    ("amplifier", "voltage_noise_corner"): "Hz",
+    ("amplifier", "current_noise_corner"): "Hz",
+    ("amplifier", "gain"): "gain",
+    ("amplifier", "gain_bandwidth"): "Hz",
+    ("amplifier", "clip_level"): "V",
+}
+
 _NUMBER_TEXT = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 _KELVIN_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*K\s*$")
 _CELSIUS_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*(?:°C|degC|C)\s*$")
@@ -682,10 +711,11 @@ class _Reader:
     def has(self, key: str) -> bool:
         return key in self.values
 
-    def quantity(self, key: str, unit: str, *, positive: bool = False) -> float | None:
-        """The value of ``key`` in SI ``unit``, or None when the key is absent."""
+    def quantity(self, key: str, *, positive: bool = False) -> float | None:
+        """The value of ``key`` in its SI unit, or None when the key is absent."""
         if key not in self.values:
             return None
+        unit = _KEY_UNITS[(self.section, key)]
         raw = self.values[key]
         metres = _METRE_RE.match(raw) if unit == "m" and isinstance(raw, str) else None
         try:
@@ -700,9 +730,9 @@ class _Reader:
             raise self.fail(key, "must not be negative")
         return value
 
-    def required(self, key: str, unit: str) -> float:
+    def required(self, key: str) -> float:
         """A positive value that must be present."""
-        value = self.quantity(key, unit, positive=True)
+        value = self.quantity(key, positive=True)
         if value is None:
             raise SpecError(f"{self.label(key)} is required", source=self.source)
         return value
@@ -773,7 +803,7 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
     temperature = _temperature_k(data.get("temperature", 300.0), source)
 
     s = _Reader("sensor", _section(data, "sensor", source), source)
-    capacitance = s.required("capacitance", "F")
+    capacitance = s.required("capacitance")
     charge = s.sensitivity("charge_sensitivity")
     voltage = s.sensitivity("voltage_sensitivity")
     if (charge is None) == (voltage is None):
@@ -782,9 +812,9 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
             "voltage_sensitivity (e.g. '10 mV/Pa', '-40 dBV/Pa')",
             source=source,
         )
-    leakage = s.quantity("leakage_resistance", "Ohm", positive=True)
-    resonance = s.quantity("resonance", "Hz", positive=True)
-    q = s.quantity("q", "V/V", positive=True)
+    leakage = s.quantity("leakage_resistance", positive=True)
+    resonance = s.quantity("resonance", positive=True)
+    q = s.quantity("q", positive=True)
     if (resonance is None) != (q is None):
         raise SpecError(
             "[sensor] resonance and q go together: give both (e.g. resonance = '28 kHz', "
@@ -814,11 +844,9 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
             source=source,
         )
     if c.has("length"):
-        cable = Cable.from_length(
-            c.required("length", "m"), c.required("capacitance_per_metre", "F/m")
-        )
+        cable = Cable.from_length(c.quantity("length") or 0.0, c.required("capacitance_per_metre"))
     else:
-        cable = Cable(c.quantity("capacitance", "F") or 0.0)
+        cable = Cable(c.quantity("capacitance") or 0.0)
 
     a = _Reader("amplifier", _section(data, "amplifier", source), source)
     kind = a.values.get("type")
@@ -834,11 +862,11 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
     for key in wrong:
         if a.has(key):
             raise a.fail(key, f"not a key of a {kind} amplifier")
-    voltage_noise = a.quantity("voltage_noise", "V/sqrtHz")
-    current_noise = a.quantity("current_noise", "A/sqrtHz")
-    voltage_corner = a.quantity("voltage_noise_corner", "Hz")
-    current_corner = a.quantity("current_noise_corner", "Hz")
-    input_capacitance = a.quantity("input_capacitance", "F")
+    voltage_noise = a.quantity("voltage_noise")
+    current_noise = a.quantity("current_noise")
+    voltage_corner = a.quantity("voltage_noise_corner")
+    current_corner = a.quantity("current_noise_corner")
+    input_capacitance = a.quantity("input_capacitance")
     gain = a.gain("gain")
     common: dict[str, Any] = {
         "voltage_noise_v_per_sqrt_hz": voltage_noise or 0.0,
@@ -846,52 +874,86 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
         "voltage_noise_corner_hz": voltage_corner or 0.0,
         "current_noise_corner_hz": current_corner or 0.0,
         "input_capacitance_f": input_capacitance or 0.0,
-        "gain_bandwidth_hz": a.quantity("gain_bandwidth", "Hz", positive=True),
+        "gain_bandwidth_hz": a.quantity("gain_bandwidth", positive=True),
         "gain": 1.0 if gain is None else gain,
-        "clip_level_v": a.quantity("clip_level", "V", positive=True),
+        "clip_level_v": a.quantity("clip_level", positive=True),
     }
     amplifier: ChargeAmplifier | VoltageAmplifier
     if kind == "charge":
         amplifier = ChargeAmplifier(
-            feedback_capacitance_f=a.required("feedback_capacitance", "F"),
-            feedback_resistance_ohm=a.required("feedback_resistance", "Ohm"),
+            feedback_capacitance_f=a.required("feedback_capacitance"),
+            feedback_resistance_ohm=a.required("feedback_resistance"),
             **common,
         )
     else:
-        amplifier = VoltageAmplifier(
-            input_resistance_ohm=a.required("input_resistance", "Ohm"), **common
-        )
+        amplifier = VoltageAmplifier(input_resistance_ohm=a.required("input_resistance"), **common)
     return Frontend(sensor, amplifier, cable, temperature_k=temperature, name=name)
+
+
+def resolve_design_key(name: str) -> tuple[str, str]:
+    """``(section, key)`` of a numeric design key written as ``section.key`` or bare.
+
+    A bare key must occur in one section only (``feedback_resistance``); ``temperature``
+    is the top-level key (section ``""``).
+    """
+    if "." in name:
+        section, key = name.split(".", 1)
+        if (section, key) not in _KEY_UNITS or not section:
+            raise InputError(f"unknown design key {name!r}")
+        return section, key
+    matches = [(sec, key) for sec, key in _KEY_UNITS if key == name]
+    if not matches:
+        numeric = ", ".join(sorted({key for _, key in _KEY_UNITS}))
+        raise InputError(f"unknown design key {name!r}; numeric keys: {numeric}")
+    if len(matches) > 1:
+        options = " or ".join(f"{sec}.{key}" for sec, key in matches)
+        raise InputError(f"{name!r} is ambiguous; write {options}")
+    return matches[0]
+
+
+def design_key_unit(name: str) -> str:
+    """Unit of a numeric design key: a piezo.units unit, or "gain", "sensitivity",
+    "temperature" for the three keys parsed differently."""
+    return _KEY_UNITS[resolve_design_key(name)]
+
+
+def parse_design_value(name: str, text: str | float) -> float:
+    """Parse ``text`` as a value of design key ``name``, in SI units (kelvin, farads...)."""
+    section, key = resolve_design_key(name)
+    unit = _KEY_UNITS[(section, key)]
+    if unit == "temperature":
+        return _temperature_k(text, None)
+    reader = _Reader(section, {key: text}, None)
+    if unit == "gain":
+        value = reader.gain(key)
+    elif key.endswith("sensitivity"):
+        value = reader.sensitivity(key)
+    else:
+        value = reader.quantity(key)
+    assert value is not None  # the key is present in the one-key mapping
+    return value
 
 
 def set_design_value(data: Mapping[str, Any], name: str, value: float) -> dict[str, Any]:
     """Return a copy of a design mapping with one key set to ``value`` (SI units).
 
-    ``name`` is ``section.key`` (``cable.length``) or a bare key that occurs in one
-    section only (``feedback_resistance``). Used for trade-off tables.
+    ``name`` as for :func:`resolve_design_key`. Used for trade-off tables. Setting the
+    cable's capacitance drops its length and capacitance per metre, and the other way
+    round, so the two descriptions never conflict.
     """
-    if name == "temperature":
-        out = {k: (dict(v) if isinstance(v, Mapping) else v) for k, v in data.items()}
-        out["temperature"] = float(value)
-        return out
-    if "." in name:
-        section, key = name.split(".", 1)
-        if section not in DESIGN_KEYS or not section or key not in DESIGN_KEYS[section]:
-            raise InputError(f"--vary: unknown design key {name!r}")
-    else:
-        sections = [sec for sec, keys in DESIGN_KEYS.items() if sec and name in keys]
-        if not sections:
-            raise InputError(f"--vary: unknown design key {name!r}")
-        if len(sections) > 1:
-            options = " or ".join(f"{sec}.{name}" for sec in sections)
-            raise InputError(f"--vary: {name!r} is ambiguous; write {options}")
-        section, key = sections[0], name
-    if key in ("type",):
-        raise InputError(f"--vary: {name!r} is not a numeric value")
+    section, key = resolve_design_key(name)
     out = {k: (dict(v) if isinstance(v, Mapping) else v) for k, v in data.items()}
+    if not section:
+        out[key] = float(value)
+        return out
     table = out.setdefault(section, {})
     table[key] = float(value)
+    if section == "sensor" and key.endswith("sensitivity"):
+        other = "voltage_sensitivity" if key == "charge_sensitivity" else "charge_sensitivity"
+        table.pop(other, None)
     if section == "cable" and key == "capacitance":
         table.pop("length", None)
         table.pop("capacitance_per_metre", None)
+    if section == "cable" and key in ("length", "capacitance_per_metre"):
+        table.pop("capacitance", None)
     return out

@@ -174,25 +174,25 @@ def noise_budget(frontend: Frontend, frequency_hz: np.ndarray | float) -> NoiseB
     rows: list[np.ndarray] = []
     if isinstance(amp, ChargeAmplifier):
         keys.append("feedback_resistance")
-        labels.append("feedback resistor Rf, 4kT/Rf")
+        labels.append("Rf thermal")
         rows.append(kt4 / amp.feedback_resistance_ohm * tz2)
     else:
         keys.append("input_resistance")
-        labels.append("input resistor Rin, 4kT/Rin")
+        labels.append("Rin thermal")
         rows.append(kt4 / amp.input_resistance_ohm * tz2)
     if frontend.sensor.leakage_resistance_ohm is not None:
         keys.append("leakage_resistance")
-        labels.append("sensor leakage Rs, 4kT/Rs")
+        labels.append("Rs (leakage) thermal")
         rows.append(kt4 / frontend.sensor.leakage_resistance_ohm * tz2)
     if amp.voltage_noise_v_per_sqrt_hz > 0:
         en2 = amp.voltage_noise_v_per_sqrt_hz**2 * _one_over_f(f, amp.voltage_noise_corner_hz)
         keys.append("voltage_noise")
-        labels.append("op-amp voltage noise en × noise gain")
+        labels.append("op-amp en × noise gain")
         rows.append(en2 * np.abs(noise_gain(frontend, f)) ** 2)
     if amp.current_noise_a_per_sqrt_hz > 0:
         in2 = amp.current_noise_a_per_sqrt_hz**2 * _one_over_f(f, amp.current_noise_corner_hz)
         keys.append("current_noise")
-        labels.append("op-amp current noise in × input impedance")
+        labels.append("op-amp in × impedance")
         rows.append(in2 * tz2)
     out = np.vstack(rows)
     h2 = np.abs(frequency_response(frontend, f)) ** 2

@@ -32,6 +32,7 @@ COMMAND_MODULES = (
     "info",
     "calibrate",
     "demo",
+    "frontend",
 )
 
 app = typer.Typer(
