@@ -648,9 +648,7 @@ _KEY_UNITS: dict[tuple[str, str], str] = {
 }
 
 _NUMBER_TEXT = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
-_KELVIN_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*K\s*$")
 _CELSIUS_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*(?:°C|degC|C)\s*$")
-_METRE_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*m\s*$")
 
 
 def read_design(path: str | Path) -> dict[str, Any]:
@@ -717,11 +715,8 @@ class _Reader:
             return None
         unit = _KEY_UNITS[(self.section, key)]
         raw = self.values[key]
-        metres = _METRE_RE.match(raw) if unit == "m" and isinstance(raw, str) else None
         try:
-            # "3 m" is three metres, not three milli-(nothing): piezo.units reads a lone
-            # "m" as the prefix.
-            value = float(metres.group(1)) if metres else parse_quantity(raw, unit, what=key)
+            value = parse_quantity(raw, unit, what=key)
         except UnitError as exc:
             raise self.fail(key, exc.message.split(": ", 1)[-1]) from None
         if positive and not value > 0:
@@ -765,17 +760,18 @@ class _Reader:
 
 
 def _temperature_k(raw: Any, source: str | None) -> float:
-    if isinstance(raw, int | float) and not isinstance(raw, bool):
-        value = float(raw)
-    elif isinstance(raw, str) and (m := _KELVIN_RE.match(raw)):
-        value = float(m.group(1))
-    elif isinstance(raw, str) and (m := _CELSIUS_RE.match(raw)):
-        value = float(m.group(1)) + 273.15
-    else:
+    """Kelvin from a number, ``"300 K"`` or ``"25 °C"``."""
+    celsius = _CELSIUS_RE.match(raw) if isinstance(raw, str) else None
+    try:
+        if celsius:
+            value = float(celsius.group(1)) + 273.15
+        else:
+            value = parse_quantity(raw, "K", what="temperature")
+    except UnitError:
         raise SpecError(
             f"temperature = {raw!r}: expected kelvin or degrees Celsius, e.g. '300 K' or '25 °C'",
             source=source,
-        )
+        ) from None
     if not (math.isfinite(value) and value > 0):
         raise SpecError(f"temperature = {raw!r}: must be above absolute zero", source=source)
     return value

@@ -311,11 +311,6 @@ def _check_rate(sample_rate_hz: float) -> float:
     return float(sample_rate_hz)
 
 
-def _check_input_kind(input: str) -> None:
-    if input not in ("pressure", "charge"):
-        raise InputError(f"input must be 'pressure' or 'charge', got {input!r}")
-
-
 def _check_channels(channels: int) -> int:
     if not (isinstance(channels, int) and channels >= 1):
         raise InputError(f"channels must be a positive integer, got {channels!r}")
@@ -371,7 +366,6 @@ def realise_frontend(
 
     Cached: a design realised once at a rate is not fitted again.
     """
-    _check_input_kind(input)
     fs = _check_rate(sample_rate_hz)
     zeros, poles, gain = analog_zpk(frontend, input=input)
     return realise_zpk(

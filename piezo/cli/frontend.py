@@ -186,7 +186,10 @@ def frontend(
     data = read_design(design)
     fe = frontend_from_mapping(data, source=str(design))
     at_hz = tuple(parse_frequency_list(at, what="--at"))
-    doc = {"design": str(design), **design_document(fe, at_hz=at_hz)}
+    try:
+        doc = {"design": str(design), **design_document(fe, at_hz=at_hz)}
+    except InputError as exc:
+        raise exc.with_source(str(design)) from None
     rows = None
     if vary is not None:
         name, values = _parse_vary(vary)
