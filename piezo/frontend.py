@@ -526,7 +526,10 @@ def corner_frequency_hz(frontend: Frontend) -> float:
     """
     edges = band_edges_hz(frontend, -HALF_POWER_DB, math.inf)
     if edges is None or edges[0] is None:
-        raise InputError("the response never reaches half power of midband: no corner")
+        raise InputError(
+            "the response never comes within 3 dB of the midband sensitivity, so there is "
+            "no corner: the high-pass and the resonance overlap"
+        )
     return edges[0]
 
 
