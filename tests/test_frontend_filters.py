@@ -230,3 +230,10 @@ def test_equalizer_blockwise_equals_whole(cuts):
     got = np.concatenate([parts.update(b) for b in _split(SIGNAL, cuts)])
     assert_allclose(got, expected, rtol=1e-12, atol=1e-15)
     assert parts.result().frames == 3000
+
+
+def test_realise_zpk_refuses_unstable_poles():
+    from piezo.frontend_filters import realise_zpk
+
+    with pytest.raises(InputError, match="not in the left half-plane"):
+        realise_zpk(np.array([0.0]), np.array([2.0 + 0j]), 1.0, FS, check_band_hz=(1.0, 100.0))
