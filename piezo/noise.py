@@ -17,8 +17,9 @@ An optional 1/f corner fc scales a density squared by 1 + fc/f. Not modelled: th
 sensor's dielectric loss noise, post-gain stage noise and ADC noise.
 
 The equivalent input pressure is the output PSD divided by |H(f)|² (Pa²/Hz). The
-A-weighted self-noise integrates it over 20 Hz–20 kHz with the A-weighting of
-IEC 61672-1:2013 Annex E and is given in dB re 20 µPa.
+A-weighted self-noise integrates it over 20 Hz–20 kHz with the analytic A-weighting of
+IEC 61672-1:2013 Annex E (:func:`piezo.weighting.weighting_db`) and is given in dB re
+20 µPa.
 """
 
 from __future__ import annotations
@@ -38,6 +39,7 @@ from piezo.frontend import (
     midband_sensitivity_v_per_pa,
     transimpedance,
 )
+from piezo.weighting import weighting_db
 
 __all__ = [
     "REFERENCE_PRESSURE_PA",
@@ -63,29 +65,6 @@ def thermal_noise_density_v(resistance_ohm: float, temperature_k: float) -> floa
             f"{resistance_ohm!r} ohm, {temperature_k!r} K"
         )
     return math.sqrt(4.0 * BOLTZMANN_J_PER_K * temperature_k * resistance_ohm)
-
-
-# A minimal analytic A-weighting, IEC 61672-1:2013 Annex E (pole frequencies in Hz),
-# until piezo.weighting is on main.
-_F1 = 20.598997057618
-_F2 = 107.652648643
-_F3 = 737.862230736
-_F4 = 12194.217147998
-
-
-def _a_weighting_unnormalised_db(frequency_hz: np.ndarray) -> np.ndarray:
-    f2 = np.asarray(frequency_hz, dtype=float) ** 2
-    ratio = (_F4**2 * f2**2) / (
-        (f2 + _F1**2) * np.sqrt(f2 + _F2**2) * np.sqrt(f2 + _F3**2) * (f2 + _F4**2)
-    )
-    return 20.0 * np.log10(ratio)
-
-
-def _a_weighting_db(frequency_hz: np.ndarray | float) -> np.ndarray:
-    """Analytic A-weighting of IEC 61672-1:2013 Annex E, dB (0 dB at 1 kHz)."""
-    return _a_weighting_unnormalised_db(frequency_hz) - _a_weighting_unnormalised_db(
-        np.array(1000.0)
-    )
 
 
 def noise_gain(frontend: Frontend, frequency_hz: np.ndarray | float) -> np.ndarray:
@@ -282,7 +261,7 @@ def self_noise(
         raise InputError(f"noise band must be 0 < low < high, got {band_hz!r}")
     f = np.geomspace(lo, hi, points)
     budget = noise_budget(frontend, f)
-    weight = 10.0 ** (_a_weighting_db(f) / 10.0)
+    weight = 10.0 ** (weighting_db(f, weighting="A") / 10.0)
     ln_f = np.log(f)
 
     def integral(psd: np.ndarray) -> np.ndarray:

@@ -176,15 +176,6 @@ def test_white_input_noise_integrates_to_closed_form():
     assert sn.max_spl_db is None and sn.dynamic_range_db is None
 
 
-def test_private_a_weighting_matches_iec_table():
-    from piezo.noise import _a_weighting_db
-
-    # IEC 61672-1:2013 Table 3 at the exact base-ten frequencies 1000·10^(n/10):
-    # 10 Hz −70.4, 12.5 Hz −63.4, 1 kHz 0.0, 12.5 kHz −4.3 (table rounded to 0.1 dB).
-    n = np.array([-20, -19, 0, 11])
-    assert_allclose(_a_weighting_db(1000 * 10 ** (n / 10)), [-70.4, -63.4, 0.0, -4.3], atol=0.05)
-
-
 def test_dynamic_range_to_the_clip_level():
     fe = charge_frontend(voltage_noise_v_per_sqrt_hz=5e-9, clip_level_v=10.0)
     sn = self_noise(fe)
