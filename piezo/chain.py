@@ -203,11 +203,11 @@ def load_profile(path: str | Path) -> SensorProfile:
         if key not in table:
             return None
         try:
-            return fn(table[key])
+            return fn(table[key], f"{section}.{key}")
         except UnitError as exc:
-            raise SpecError(f"{section}.{key}: {exc.message}", source=str(p)) from None
+            raise SpecError(exc.message, source=str(p)) from None
 
-    charge_gain = parse("chain", "charge_gain", lambda v: parse_charge_gain(v, what="charge_gain"))
+    charge_gain = parse("chain", "charge_gain", lambda v, w: parse_charge_gain(v, what=w))
     sens_text = sensor.get("sensitivity", sensor.get("charge_sensitivity"))
     sensitivity = None
     if sens_text is not None:
@@ -226,12 +226,12 @@ def load_profile(path: str | Path) -> SensorProfile:
         name=_text(sensor.get("name")),
         serial=_text(sensor.get("serial")),
         sensitivity_v_per_pa=sensitivity,
-        capacitance_f=parse("sensor", "capacitance", lambda v: parse_quantity(v, "F")),
+        capacitance_f=parse("sensor", "capacitance", lambda v, w: parse_quantity(v, "F", what=w)),
         calibration_date=_text(date),
-        gain=parse("chain", "gain", lambda v: parse_gain(v, what="chain.gain")),
-        full_scale_v=parse("chain", "full_scale", lambda v: _positive(v, "V", "full_scale")),
-        reference_pa=parse("chain", "reference", lambda v: _positive(v, "Pa", "reference")),
-        sample_rate_hz=parse("chain", "sample_rate", lambda v: _positive(v, "Hz", "sample_rate")),
+        gain=parse("chain", "gain", lambda v, w: parse_gain(v, what=w)),
+        full_scale_v=parse("chain", "full_scale", lambda v, w: _positive(v, "V", w)),
+        reference_pa=parse("chain", "reference", lambda v, w: _positive(v, "Pa", w)),
+        sample_rate_hz=parse("chain", "sample_rate", lambda v, w: _positive(v, "Hz", w)),
         raw=data,
     )
 

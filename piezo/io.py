@@ -171,8 +171,10 @@ class Recording:
                     done += block.shape[0]
                     yield block
         except sf.LibsndfileError as exc:
+            detail = exc.error_string.removeprefix("Error : ").strip()
             raise RecordingError(
-                f"cannot decode audio data: {exc.error_string}", source=str(self.path)
+                f"cannot decode audio data ({detail}); the file is truncated or corrupt",
+                source=str(self.path),
             ) from exc
 
 
@@ -242,6 +244,15 @@ def _open_audio(p: Path, *, rate_hz: float | None) -> Recording:
         )
     if info.frames <= 0:
         raise RecordingError("recording has no samples (0 frames)", source=str(p))
+    if str(info.format) in ("WAV", "WAVEX"):
+        declared = _riff_declared_data_bytes(p)
+        frame_bytes = _bytes_per_frame(str(info.subtype), int(info.channels))
+        if declared is not None and frame_bytes and declared // frame_bytes > info.frames:
+            raise RecordingError(
+                f"truncated: the header announces {declared // frame_bytes} frames but the "
+                f"file holds {info.frames}",
+                source=str(p),
+            )
     if info.samplerate <= 0:
         raise RecordingError(f"invalid sample rate {info.samplerate}", source=str(p))
     return Recording(
@@ -254,6 +265,45 @@ def _open_audio(p: Path, *, rate_hz: float | None) -> Recording:
         channel_names=tuple(f"ch{i}" for i in range(info.channels)),
         is_pcm=True,
     )
+
+
+_SUBTYPE_BYTES = {
+    "PCM_U8": 1,
+    "PCM_S8": 1,
+    "PCM_16": 2,
+    "PCM_24": 3,
+    "PCM_32": 4,
+    "FLOAT": 4,
+    "DOUBLE": 8,
+    "ULAW": 1,
+    "ALAW": 1,
+}
+
+
+def _bytes_per_frame(subtype: str, channels: int) -> int | None:
+    size = _SUBTYPE_BYTES.get(subtype)
+    return None if size is None else size * channels
+
+
+def _riff_declared_data_bytes(p: Path) -> int | None:
+    """Size the ``data`` chunk of a RIFF/WAVE file claims, or None if unknown.
+
+    libsndfile reads a truncated WAV without complaint (it counts the frames present), so
+    the header's claim is compared here. Sizes 0 and 0xFFFFFFFF mark headers a recorder
+    never finalised; they are not taken as claims.
+    """
+    with open(p, "rb") as f:
+        head = f.read(12)
+        if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+            return None
+        while True:
+            chunk = f.read(8)
+            if len(chunk) < 8:
+                return None
+            size = int.from_bytes(chunk[4:8], "little")
+            if chunk[:4] == b"data":
+                return None if size in (0, 0xFFFFFFFF) else size
+            f.seek(size + (size & 1), 1)
 
 
 # --- CSV -------------------------------------------------------------------------------
@@ -276,12 +326,28 @@ def _sniff_layout(p: Path, head: list[str]) -> tuple[str | None, int, list[str] 
     data_lines = [ln for ln in head if ln.strip() and not ln.lstrip().startswith("#")]
     if not data_lines:
         raise RecordingError("no data rows found in the text file", source=str(p))
-    sample = "\n".join(data_lines[-min(len(data_lines), 50) :])
-    delimiter: str | None
-    try:
-        delimiter = csv.Sniffer().sniff(sample, delimiters=",;\t|").delimiter
-    except csv.Error:
-        delimiter = None  # whitespace separated
+    # The delimiter is the one that splits the most trailing lines of the head (data, in
+    # any export we know) into the same number of numeric fields; more fields wins a tie.
+    best: tuple[int, int, str | None] | None = None
+    for candidate in (",", ";", "\t", "|", None):
+        run, width = 0, None
+        for line in reversed(data_lines):
+            fields = _split(line, candidate)
+            if not fields or not all(_is_number(f) for f in fields):
+                break
+            if width is not None and len(fields) != width:
+                break
+            width = len(fields)
+            run += 1
+        if run and width is not None and (best is None or (run, width) > best[:2]):
+            best = (run, width, candidate)
+    if best is None:
+        raise RecordingError(
+            "no numeric data rows found (expected columns of numbers separated by , ; tab "
+            "| or spaces)",
+            source=str(p),
+        )
+    delimiter = best[2]
     # Data starts at the first line from which every following line (in the head) is
     # all-numeric with the same field count.
     start = None
