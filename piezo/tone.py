@@ -49,6 +49,9 @@ __all__ = [
 LINE_HALF_WIDTH_BINS = 6
 #: Bins either side of a line (beyond its own) averaged for the local noise floor.
 _FLOOR_BINS = 20
+#: A line counts as a tone only if its power is this many times the noise floor under it
+#: (10 dB; common practice, no source).
+DETECTION_RATIO = 10.0
 #: With an expected frequency, the fundamental is searched within this ratio of it.
 SEARCH_RATIO = 1.12
 #: Default analysis bandwidth, hertz (AES17 standard audio measurement bandwidth).
@@ -253,6 +256,11 @@ class ToneAnalyzer:
             return power, floor, a, b
 
         fund_power, fund_floor, a, b = line(peak)
+        if not fund_power > DETECTION_RATIO * fund_floor:
+            raise InputError(
+                f"no tone found {where}: the strongest line ({f[peak]:.6g} Hz) is not "
+                f"{10 * math.log10(DETECTION_RATIO):.0f} dB above the noise around it"
+            )
         weights = p[a : b + 1]
         f0 = float(np.dot(weights, f[a : b + 1]) / weights.sum())
         tone_ms = max(fund_power - fund_floor, 0.0)

@@ -137,3 +137,10 @@ def test_bad_options():
         measure_tone(_tone(1000.0), FS, bandwidth_hz=(20000, 20))
     with pytest.raises(InputError, match="harmonics"):
         measure_tone(_tone(1000.0), FS, harmonics=1)
+
+
+def test_noise_alone_is_not_a_tone():
+    # White noise has no line 10 dB above its neighbours (detection rule of piezo.tone).
+    x = np.random.default_rng(2).standard_normal(int(2 * FS))
+    with pytest.raises(InputError, match="no tone found"):
+        measure_tone(x, FS)

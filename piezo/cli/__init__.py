@@ -34,6 +34,9 @@ COMMAND_MODULES = (
     "demo",
     "sweep",
     "response",
+    "spectrum",
+    "bands",
+    "tone",
 )
 
 app = typer.Typer(
