@@ -35,6 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal
 
+from piezo._iir import ParallelSOS
 from piezo.errors import InputError
 
 __all__ = [
@@ -327,17 +328,20 @@ class BandResult:
 
 
 class _Stage:
-    """Filters of one decimation stage, with carried state."""
+    """Filters of one decimation stage (its bands, then the anti-alias low-pass), with
+    carried state."""
 
-    def __init__(self, bank: FilterBank, stage: int, channels: int) -> None:
+    def __init__(self, bank: FilterBank, stage: int, channels: int, engine: str | None) -> None:
         self.stage = stage
         self.factor = 2**stage  # input samples per stage sample
         self.band_indices = [i for i, k in enumerate(bank.stage_of_band) if k == stage]
-        self.sos = [bank.band_sos[i] for i in self.band_indices]
-        self.zi = [np.zeros((s.shape[0], 2, channels)) for s in self.sos]
         self.last = stage == bank.stages - 1
-        self.aa_sos = bank.anti_alias_sos
-        self.aa_zi = np.zeros((self.aa_sos.shape[0], 2, channels))
+        sos = [bank.band_sos[i] for i in self.band_indices]
+        if not self.last:
+            sos.append(bank.anti_alias_sos)
+        self.filters = ParallelSOS(
+            sos, channels, output_index=None if self.last else len(sos) - 1, engine=engine
+        )
         self.count = 0  # stage samples filtered so far
         self.pending: list[np.ndarray] = []
         self.pending_frames = 0
@@ -359,6 +363,10 @@ class BandAnalyzer:
     interval_s
         If given, band levels are also kept for consecutive intervals of this length
         (a band-level history); the last, partial interval is kept too.
+    engine
+        Filtering engine: ``"numba"`` (compiled, needs the optional numba package),
+        ``"scipy"`` (one :func:`scipy.signal.sosfilt` call per filter) or ``None``
+        (numba when installed). Both give the same levels.
     """
 
     def __init__(
@@ -370,6 +378,7 @@ class BandAnalyzer:
         low_hz: float = 20.0,
         high_hz: float = 20000.0,
         interval_s: float | None = None,
+        engine: str | None = None,
     ) -> None:
         if not (isinstance(sample_rate_hz, int | float) and sample_rate_hz > 0):
             raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
@@ -381,7 +390,9 @@ class BandAnalyzer:
             fraction, low_hz=low_hz, high_hz=high_hz, sample_rate_hz=sample_rate_hz
         )
         self.bank = FilterBank(sample_rate_hz, bands)
-        self._stages = [_Stage(self.bank, k, self.channels) for k in range(self.bank.stages)]
+        self._stages = [
+            _Stage(self.bank, k, self.channels, engine) for k in range(self.bank.stages)
+        ]
         nb = len(bands)
         self._sum = np.zeros((nb, self.channels))
         self._n = np.zeros(nb, dtype=np.int64)
@@ -431,25 +442,30 @@ class BandAnalyzer:
         if x.shape[0] == 0:
             return
         start = stage.count
+        n = x.shape[0]
+        first, starts = self._segments(stage, start, n)
+        sums, y = stage.filters.process(x, starts)
+        counts = np.diff(np.append(starts, n))
         for j, band in enumerate(stage.band_indices):
-            y, stage.zi[j] = signal.sosfilt(stage.sos[j], x, axis=0, zi=stage.zi[j])
-            self._accumulate(band, stage, start, y)
-        stage.count += x.shape[0]
+            self._sum[band] += sums[:, j].sum(axis=0)
+            self._n[band] += n
+            if self.interval_s is not None:
+                self._hist_sum[first : first + starts.size, band] += sums[:, j]
+                self._hist_n[first : first + starts.size, band] += counts
+        stage.count += n
         if not stage.last:
-            y, stage.aa_zi = signal.sosfilt(stage.aa_sos, x, axis=0, zi=stage.aa_zi)
             # Keep samples at even stage index: input sample numbers divisible by 2^(k+1).
             self._run(k + 1, y[start % 2 :: 2], flush=flush)
 
-    def _accumulate(self, band: int, stage: _Stage, start: int, y: np.ndarray) -> None:
-        sq = y * y
-        self._sum[band] += sq.sum(axis=0)
-        self._n[band] += y.shape[0]
+    def _segments(self, stage: _Stage, start: int, n: int) -> tuple[int, np.ndarray]:
+        """First interval touched by stage samples ``start .. start+n-1`` and the offsets
+        (within the chunk) where each touched interval begins."""
         if self.interval_s is None:
-            return
-        # Interval of each stage sample: input sample number (start + i)·2^k.
+            return 0, np.zeros(1, dtype=np.int64)
         per = self._interval_frames
+        # Interval of stage sample j: input sample number j·2^k divided by the interval.
         first = (start * stage.factor) // per
-        last = ((start + y.shape[0] - 1) * stage.factor) // per
+        last = ((start + n - 1) * stage.factor) // per
         if last >= self._hist_sum.shape[0]:
             grow = max(last + 1, 2 * self._hist_sum.shape[0])
             hist = np.zeros((grow, *self._hist_sum.shape[1:]))
@@ -457,15 +473,9 @@ class BandAnalyzer:
             hist_n = np.zeros((grow, self._hist_n.shape[1]), dtype=np.int64)
             hist_n[: self._hist_n.shape[0]] = self._hist_n
             self._hist_sum, self._hist_n = hist, hist_n
-        if first == last:
-            self._hist_sum[first, band] += sq.sum(axis=0)
-            self._hist_n[first, band] += y.shape[0]
-            return
-        bounds = np.arange(first + 1, last + 1) * per
+        bounds = np.arange(first + 1, last + 1, dtype=np.int64) * per
         cut = -(-bounds // stage.factor) - start  # first stage sample of each interval
-        starts = np.concatenate([[0], cut])
-        self._hist_sum[first : last + 1, band] += np.add.reduceat(sq, starts, axis=0)
-        self._hist_n[first : last + 1, band] += np.diff(np.concatenate([starts, [y.shape[0]]]))
+        return first, np.concatenate([[0], cut]).astype(np.int64)
 
     def result(self) -> BandResult:
         """Band levels of everything fed so far (pending decimated samples included)."""
