@@ -19,6 +19,8 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 from scipy import signal
 
+from piezo.errors import InputError
+
 try:  # optional accelerator
     if os.environ.get("PIEZO_NO_NUMBA"):
         raise ImportError("disabled by PIEZO_NO_NUMBA")
@@ -143,7 +145,12 @@ class ParallelSOS:
         if engine is None:
             engine = "numba" if HAVE_NUMBA else "scipy"
         if engine == "numba" and not HAVE_NUMBA:
-            raise RuntimeError("the numba engine needs the optional 'numba' package")
+            raise InputError(
+                "engine 'numba' needs the optional numba package (pip install numba), "
+                "or PIEZO_NO_NUMBA is set; use engine='scipy'"
+            )
+        if engine not in ("numba", "scipy"):
+            raise InputError(f"engine must be 'numba', 'scipy' or None; got {engine!r}")
         self.engine = engine
         self.filters = len(sos_list)
         self.channels = channels
