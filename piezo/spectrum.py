@@ -21,6 +21,7 @@ them, see :class:`WelchPSD`.
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -58,6 +59,8 @@ _HFT95 = (1.0, -1.9383379, 1.3045202, -0.4028270, 0.0350665)
 
 #: Memory allowed for the stored segments of a median average, bytes.
 MEDIAN_MEMORY_BYTES = 64 * 2**20
+#: Threads for batched FFTs (the machine this was written for has two cores).
+_WORKERS = min(2, os.cpu_count() or 1)
 #: Segment length when neither a length nor a resolution is given.
 DEFAULT_SEGMENT_FRAMES = 4096
 #: Samples (segments x length x channels) windowed and transformed per FFT call: bounds
@@ -269,6 +272,9 @@ class _Segmenter:
         if self.n % 2 == 0:
             scale[-1] /= 2.0
         self.density_scale = scale
+        self._w_spec = scipy.fft.rfft(self.w)
+        nonzero = np.flatnonzero(np.abs(self._w_spec) > 1e-13 * np.abs(self._w_spec[0]))
+        self._w_bins = int(nonzero[-1]) + 1
 
     def feed(self, block: np.ndarray):
         """Yield ``(first_segment_index, power)`` batches; power is ``(k, channels, bins)``
@@ -285,10 +291,14 @@ class _Segmenter:
             stop = start + (k - 1) * self.step + self.n
             view = np.lib.stride_tricks.sliding_window_view(data[start:stop], self.n, axis=0)
             seg = view[:: self.step]  # (k, channels, n)
+            spec = scipy.fft.rfft(seg * self.w, axis=-1, overwrite_x=True, workers=_WORKERS)
             if self.detrend == "constant":
-                seg = seg - seg.mean(axis=-1, keepdims=True)
-            spec = scipy.fft.rfft(seg * self.w, axis=-1)
-            power = spec.real**2 + spec.imag**2
+                # Removing each segment's mean before windowing subtracts mean·DFT(w),
+                # which is non-zero only in the first few bins of a cosine-sum window.
+                k_w = self._w_bins
+                spec[..., :k_w] -= seg.mean(axis=-1)[..., None] * self._w_spec[:k_w]
+            power = spec.real**2
+            power += spec.imag**2
             power *= self.density_scale
             yield self.segments, power
             self.segments += k
