@@ -37,6 +37,7 @@ from scipy import signal
 
 from piezo._iir import ParallelSOS
 from piezo.errors import InputError
+from piezo.weighting import FrequencyWeighting
 
 __all__ = [
     "ANTI_ALIAS_STOP_DB",
@@ -293,6 +294,8 @@ class BandResult:
         Length of the history intervals, or ``None``.
     history_time_s
         Start time of each interval, shape ``(intervals,)`` (empty without intervals).
+    weighting
+        Frequency weighting applied before the bank: ``"Z"``, ``"A"`` or ``"C"``.
     history_mean_square
         Mean square per interval, shape ``(intervals, bands, channels)``. Each band's
         output is counted in the interval its (decimated) sample falls in; the filters'
@@ -305,6 +308,7 @@ class BandResult:
     interval_s: float | None
     history_time_s: np.ndarray
     history_mean_square: np.ndarray
+    weighting: str = "Z"
 
     @property
     def exact_hz(self) -> np.ndarray:
@@ -363,6 +367,10 @@ class BandAnalyzer:
     interval_s
         If given, band levels are also kept for consecutive intervals of this length
         (a band-level history); the last, partial interval is kept too.
+    weighting
+        ``"Z"`` (none, default), ``"A"`` or ``"C"``: the signal first passes the
+        IEC 61672-1 frequency-weighting filter of :mod:`piezo.weighting`, so the levels
+        are A- or C-weighted band levels.
     engine
         Filtering engine: ``"numba"`` (compiled, needs the optional numba package),
         ``"scipy"`` (one :func:`scipy.signal.sosfilt` call per filter) or ``None``
@@ -378,6 +386,7 @@ class BandAnalyzer:
         low_hz: float = 20.0,
         high_hz: float = 20000.0,
         interval_s: float | None = None,
+        weighting: str = "Z",
         engine: str | None = None,
     ) -> None:
         if not (isinstance(sample_rate_hz, int | float) and sample_rate_hz > 0):
@@ -390,6 +399,14 @@ class BandAnalyzer:
             fraction, low_hz=low_hz, high_hz=high_hz, sample_rate_hz=sample_rate_hz
         )
         self.bank = FilterBank(sample_rate_hz, bands)
+        if weighting not in ("A", "C", "Z"):
+            raise InputError(f"weighting must be 'A', 'C' or 'Z'; got {weighting!r}")
+        self.weighting = weighting
+        self._weighting = (
+            None
+            if weighting == "Z"
+            else FrequencyWeighting(sample_rate_hz, self.channels, weighting=weighting)
+        )
         self._stages = [
             _Stage(self.bank, k, self.channels, engine) for k in range(self.bank.stages)
         ]
@@ -424,6 +441,8 @@ class BandAnalyzer:
         if x.shape[0] == 0:
             return
         self._frames += x.shape[0]
+        if self._weighting is not None:
+            x = self._weighting.update(x)
         self._run(0, x)
 
     def _run(self, k: int, x: np.ndarray, *, flush: bool = False) -> None:
@@ -504,6 +523,7 @@ class BandAnalyzer:
             interval_s=self.interval_s,
             history_time_s=times,
             history_mean_square=hist,
+            weighting=self.weighting,
         )
 
 

@@ -296,3 +296,18 @@ def test_engines_agree(interval_s):
     ra, rb = a.result(), b.result()
     assert_allclose(ra.mean_square, rb.mean_square, rtol=1e-9)
     assert_allclose(ra.history_mean_square, rb.history_mean_square, rtol=1e-9)
+
+
+@pytest.mark.parametrize(("weighting", "table_db"), [("A", -19.1), ("C", -0.3), ("Z", 0.0)])
+def test_weighted_band_level_of_a_100_hz_tone(weighting, table_db):
+    """A 1 Pa tone at the exact frequency 10^2 Hz in its band, weighted by the
+    IEC 61672-1 filters of piezo.weighting: the level drops by the weighting's table
+    value at 100 Hz (IEC 61672-1:2013 table 3: A -19.1 dB, C -0.3 dB). Tolerance 0.1 dB:
+    the table's rounding (0.05) plus the digital filter's deviation from the curve."""
+    t = np.arange(int(2.5 * FS)) / FS
+    x = np.sqrt(2) * np.sin(2 * np.pi * 100.0 * t)
+    r = band_levels(x, FS, fraction=3, low_hz=80, high_hz=125, interval_s=0.5,
+                    weighting=weighting)  # fmt: skip
+    j = list(r.nominal_hz).index(100)
+    assert r.weighting == weighting
+    assert abs(r.history_db(20e-6)[-1, j, 0] - (93.979 + table_db)) <= 0.1

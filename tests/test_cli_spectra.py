@@ -188,3 +188,15 @@ def test_tone_text_output(cli, tone_wav):
     r = cli("tone", tone_wav, *SENS)
     assert r.code == 0, r.err
     assert "THD+N" in r.out and "93.98" in r.out
+
+
+def test_bands_a_weighting(cli, tone_wav):
+    r = cli("bands", tone_wav, *SENS, "--json", "--weighting", "A", "--channel", "0")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["weighting"] == "A"
+    k = next(b for b in doc["channels"][0]["bands"] if b["nominal_hz"] == 1000)
+    # A-weighting is 0 dB at 1 kHz (IEC 61672-1:2013 table 3).
+    assert k["level_db"] == pytest.approx(ONE_PA_DB, abs=0.05)
+    r = cli("bands", tone_wav, "--weighting", "B")
+    assert r.code == 2 and "--weighting must be A, C or Z" in r.err

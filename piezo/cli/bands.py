@@ -51,6 +51,12 @@ def bands(
             "--interval", metavar="TIME", help="Also give band levels per interval, e.g. '1s'."
         ),
     ] = None,
+    weighting: Annotated[
+        str,
+        typer.Option(
+            "--weighting", metavar="A|C|Z", help="Frequency weighting (IEC 61672-1) first."
+        ),
+    ] = "Z",
     csv: Annotated[
         Path | None, typer.Option("--csv", metavar="OUT.csv", help="Write band levels as CSV.")
     ] = None,
@@ -67,6 +73,9 @@ def bands(
         raise InputError(
             f"--fraction must be one of {', '.join(map(str, FRACTIONS))}; got {fraction}"
         )
+    weighting = weighting.upper()
+    if weighting not in ("A", "C", "Z"):
+        raise InputError(f"--weighting must be A, C or Z; got {weighting!r}")
     low_hz = parse_frequency(low, "--low")
     high_hz = parse_frequency(high, "--high")
     interval_s = parse_duration(interval, what="--interval") if interval is not None else None
@@ -82,6 +91,7 @@ def bands(
             low_hz=low_hz,
             high_hz=high_hz,
             interval_s=interval_s,
+            weighting=weighting,
         )
     except InputError as exc:
         raise exc.with_source(str(file)) from None
@@ -97,7 +107,7 @@ def bands(
         "fraction": fraction,
         "unit": source.unit,
         "level_unit": source.chain.level_unit,
-        "weighting": "Z",
+        "weighting": weighting,
         "sample_rate_hz": source.sample_rate_hz,
         "interval_s": interval_s,
         "channels": [],
@@ -169,7 +179,8 @@ def _fmt(value: float) -> str:
 def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     console.print(
-        f"  1/{doc['fraction']}-octave band Leq, {doc['level_unit']}, "
+        f"  1/{doc['fraction']}-octave band Leq ({doc['weighting']}-weighted), "
+        f"{doc['level_unit']}, "
         "IEC 61260-1:2014 class 1 filters"
     )
     table = Table(box=None, pad_edge=False, header_style="bold")
