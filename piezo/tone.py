@@ -42,6 +42,7 @@ __all__ = [
     "ToneResult",
     "band_mean_square",
     "measure_tone",
+    "noise_mean_square",
 ]
 
 #: Bins either side of a line counted as the line (the Blackman-Harris main lobe spans

@@ -311,3 +311,14 @@ def test_weighted_band_level_of_a_100_hz_tone(weighting, table_db):
     j = list(r.nominal_hz).index(100)
     assert r.weighting == weighting
     assert abs(r.history_db(20e-6)[-1, j, 0] - (93.979 + table_db)) <= 0.1
+
+
+def test_public_api_is_pinned():
+    import piezo.bands
+
+    assert set(piezo.bands.__all__) == {
+        "ANTI_ALIAS_STOP_DB", "BAND_ORDER", "Band", "BandAnalyzer", "BandResult", "FRACTIONS",
+        "FilterBank", "OCTAVE_RATIO", "band_levels", "exact_midband_hz",
+        "fractional_octave_bands", "nominal_midband_hz",
+    }  # fmt: skip
+    assert all(hasattr(piezo.bands, name) for name in piezo.bands.__all__)

@@ -302,3 +302,15 @@ def test_spectrogram_bounded_and_consistent_with_welch():
     tone = _tone(8 * n, 86 * FS / n)
     s = spectrogram(tone, FS, segment_frames=n, scaling="spectrum")
     assert_allclose(s.level_db(20e-6)[:, 86, 0], 93.979, atol=0.001)
+
+
+def test_public_api_is_pinned():
+    # Reports, batch checks and the CLI use these names: renaming one is a breaking change.
+    import piezo.spectrum
+
+    assert set(piezo.spectrum.__all__) == {
+        "AVERAGES", "PSDResult", "SCALINGS", "Spectrogram", "SpectrogramResult", "WINDOWS",
+        "WelchPSD", "equivalent_noise_bandwidth_bins", "overlap_correlation",
+        "segment_frames_for", "spectrogram", "welch_psd", "window_coefficients",
+    }  # fmt: skip
+    assert all(hasattr(piezo.spectrum, name) for name in piezo.spectrum.__all__)

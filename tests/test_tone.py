@@ -144,3 +144,14 @@ def test_noise_alone_is_not_a_tone():
     x = np.random.default_rng(2).standard_normal(int(2 * FS))
     with pytest.raises(InputError, match="no tone found"):
         measure_tone(x, FS)
+
+
+def test_public_api_is_pinned():
+    # `measure_tone` is what calibration and production checks call.
+    import piezo.tone
+
+    assert set(piezo.tone.__all__) == {
+        "LINE_HALF_WIDTH_BINS", "ToneAnalyzer", "ToneResult", "band_mean_square",
+        "measure_tone", "noise_mean_square",
+    }  # fmt: skip
+    assert all(hasattr(piezo.tone, name) for name in piezo.tone.__all__)
