@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import itertools
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -11,7 +12,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from scipy import signal
 
-from piezo._iir import HAVE_NUMBA
+from piezo._iir import HAVE_NUMBA, _kernel_source, numba_engine_available
 from piezo.bands import (
     ANTI_ALIAS_RIPPLE_DB,
     ANTI_ALIAS_STOP_DB,
@@ -286,6 +287,8 @@ def test_engines_agree(interval_s):
     of the deepest stage exercise empty segments."""
     if not HAVE_NUMBA:
         pytest.skip("numba not installed (or PIEZO_NO_NUMBA set): one engine only")
+    # The compiled loop passed its own check against sosfilt at first use.
+    assert numba_engine_available()
     x = np.random.default_rng(6).standard_normal((48_000, 2))
     opts = dict(fraction=3, low_hz=31.5, high_hz=20000, interval_s=interval_s)
     a = BandAnalyzer(FS, 2, engine="numba", **opts)
@@ -322,3 +325,13 @@ def test_public_api_is_pinned():
         "fractional_octave_bands", "nominal_midband_hz",
     }  # fmt: skip
     assert all(hasattr(piezo.bands, name) for name in piezo.bands.__all__)
+
+
+def test_generated_kernel_file_is_current():
+    # piezo/_iir_kernel.py is generated (one copy of the loop body per lane): it must be
+    # exactly what the generator gives, or the numba engine would run stale code.
+    import piezo._iir
+    import piezo._iir_kernel
+
+    text = Path(piezo._iir_kernel.__file__).read_text(encoding="utf-8")
+    assert text.endswith(_kernel_source(piezo._iir._LANES))
