@@ -196,3 +196,8 @@ def _print(doc: dict) -> None:
             row.append("—" if v is None or not math.isfinite(v) else f"{v:.1f}")
         table.add_row(*row)
     console.print(table)
+    if doc["weighting"] != "Z":
+        console.print(
+            "  [dim]Weighted band levels from a piezo sensor are not sound level meter "
+            "readings (IEC 61672-1): do not use them to assess noise exposure.[/dim]"
+        )
