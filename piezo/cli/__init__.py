@@ -38,6 +38,7 @@ COMMAND_MODULES = (
     "spectrum",
     "bands",
     "tone",
+    "frontend",
 )
 
 app = typer.Typer(
