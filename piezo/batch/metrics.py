@@ -282,8 +282,101 @@ def _self_noise(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
     return MetricValue(_db(rms) - sens + _DB_RE_20UPA_OF_1PA)
 
 
+# ---------------------------------------------------------------------------------------
+# Test tones: piezo.tone.
+
+
+def _tone(a: CaptureAnalysis) -> Any:
+    from piezo.tone import measure_tone
+
+    def compute() -> Any:
+        cap = a.capture
+        params = a.spec.stimulus.params
+        start = round(float(params.get("silence_before_s", 0.0)) * cap.sample_rate_hz)
+        x = cap.samples[start:]
+        if x.size < 16:
+            raise InputError("no tone after the quiet lead-in: the capture is too short")
+        # The strongest line is taken (no expected frequency): it must then be the
+        # stimulus, see _checked_tone.
+        return measure_tone(x, cap.sample_rate_hz)
+
+    return a.cached("tone", compute)
+
+
+def _checked_tone(a: CaptureAnalysis) -> Any:
+    """The tone result, refusing a capture whose strongest tone is not the stimulus.
+
+    The strongest line more than 2 % from the stimulus frequency (three times a class 1
+    calibrator's ±0.7 % tolerance, IEC 60942) means that another tone, hum or noise
+    dominates the capture, or that no tone was captured (our rule).
+    """
+    tone = _tone(a)
+    expected = float(a.spec.stimulus.params["frequency_hz"])
+    if not tone.tone_rms > 0 or abs(tone.frequency_hz / expected - 1.0) > 0.02:
+        raise InputError(
+            f"no {expected:g} Hz tone found (strongest tone at {tone.frequency_hz:.5g} Hz)"
+        )
+    return tone
+
+
+def _tone_sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    level_pa = a.spec.stimulus.level_pa
+    return MetricValue(_db(_checked_tone(a).tone_rms / level_pa))
+
+
+def _tone_thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_checked_tone(a).thd_percent)
+
+
+def _thd_n(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_checked_tone(a).thd_n_percent)
+
+
+def _tone_frequency(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_checked_tone(a).frequency_hz)
+
+
+# ---------------------------------------------------------------------------------------
+# Band levels: piezo.bands.
+
+
+def _band_mask(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    from piezo.bands import band_levels
+
+    fraction = int(m.params["fraction"])
+    freqs = [float(f) for f in m.params["frequency_hz"]]
+
+    def compute() -> Any:
+        cap = a.capture
+        start = round(
+            float(a.spec.stimulus.params.get("silence_before_s", 0.0)) * cap.sample_rate_hz
+        )
+        if cap.samples.size - start < 16:
+            raise InputError("nothing after the quiet lead-in: the capture is too short")
+        return band_levels(
+            cap.samples[start:],
+            cap.sample_rate_hz,
+            fraction=fraction,
+            low_hz=min(freqs),
+            high_hz=max(freqs),
+        )
+
+    result = a.cached(("bands", fraction, min(freqs), max(freqs)), compute)
+    nominal = result.nominal_hz
+    levels = result.level_db(1.0)[:, 0]
+    curve = []
+    for f in freqs:
+        i = int(np.argmin(np.abs(np.log(nominal / f))))
+        # A mask frequency names a band: within a quarter band of its mid-band.
+        if abs(math.log2(nominal[i] / f)) > 1.0 / (4 * fraction):
+            raise InputError(f"no 1/{fraction}-octave band at {f:g} Hz in the analysis")
+        curve.append(float(levels[i]))
+    return _mask_value(m, freqs, curve, "Hz")
+
+
 _SENSITIVITY: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "sweep": _sweep_sensitivity,
+    "tone": _tone_sensitivity,
 }
 
 
@@ -297,6 +390,7 @@ def _thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 _THD: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "sweep": _sweep_thd,
+    "tone": _tone_thd,
 }
 
 #: Metric kind -> extractor.
@@ -310,6 +404,9 @@ EXTRACTORS: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "clipping": _clipping,
     "noise_floor": _noise_floor,
     "self_noise": _self_noise,
+    "thd_n": _thd_n,
+    "tone_frequency": _tone_frequency,
+    "band_mask": _band_mask,
 }
 
 

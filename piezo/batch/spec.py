@@ -846,6 +846,26 @@ def _check_mask(
                 raise check.error(
                     (*path, "upper_db"), f"upper {hi} not above lower {lo} at {f:g} Hz"
                 )
+    if "fraction" in params:
+        _check_band_frequencies(check, path, freqs, params["fraction"])
+
+
+def _check_band_frequencies(
+    check: _Checker, path: tuple[Any, ...], freqs: list[float], fraction: int
+) -> None:
+    """Each frequency of a band mask must name a 1/fraction-octave band (IEC 61260-1)."""
+    from piezo.bands import fractional_octave_bands
+    from piezo.errors import InputError
+
+    for f in freqs:
+        try:
+            fractional_octave_bands(fraction, low_hz=f, high_hz=f)
+        except InputError:
+            raise check.error(
+                (*path, "frequency_hz"),
+                f"{f:g} Hz is not the mid-band frequency of a 1/{fraction}-octave band "
+                "(IEC 61260-1; e.g. 1000, 1250, 1600 for 1/3 octave)",
+            ) from None
 
 
 def _load_golden(check: _Checker, path: tuple[Any, ...], file: str) -> dict[str, list[float]]:
