@@ -1,0 +1,444 @@
+"""Spectral parts of the capture diagnostics: mains hum lines and the low-frequency corner.
+
+Pure functions over a one-sided power spectral density (private to
+:mod:`piezo.diagnostics`, which re-exports the public names).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize, stats
+
+from piezo._diag_thresholds import Thresholds
+
+__all__ = [
+    "HumLine",
+    "HumResult",
+    "RolloffResult",
+    "estimate_rolloff",
+    "measure_hum",
+    "psd_floor",
+]
+
+
+@dataclass(frozen=True)
+class HumLine:
+    mains_hz: float
+    harmonic: int
+    nominal_hz: float
+    frequency_hz: float
+    level_db: float | None  # dB re the reference; None when nothing stands above the floor
+    re_total_db: float | None  # relative to the channel's AC power
+    above_floor_db: float
+    detected: bool
+
+
+@dataclass(frozen=True)
+class HumResult:
+    status: str  # "detected", "none", "not determinable"
+    mains_hz: float | None
+    level_db: float | None  # all detected lines of the chosen mains family together
+    re_total_db: float | None
+    lines: tuple[HumLine, ...]
+    reason: str
+
+
+@dataclass(frozen=True)
+class RolloffResult:
+    status: str  # "estimated", "below range", "not determinable"
+    corner_hz: float | None
+    order: int | None
+    upper_bound_hz: float | None  # for "below range": the corner lies below this
+    residual_db: float | None
+    lowest_content_hz: float | None
+    expected_corner_hz: float | None
+    reason: str
+
+
+# A line must stand out of the PSD's own scatter with this false-alarm probability per
+# examined line (the search window's bins counted), whatever hum_detect_db says.
+_HUM_FALSE_ALARM = 1e-3
+
+
+def _dof(averages: int) -> float:
+    """Equivalent degrees of freedom of a Hann, 50 %-overlap Welch estimate.
+
+    Welch (1967): with 50 % overlap of Hann segments the correlation of successive
+    periodograms is 0.167² ; the variance of K averages is (1 + 2·0.167²)/K of one
+    periodogram, i.e. ν ≈ 2K/1.056 (a single periodogram has ν = 2).
+    """
+    if averages <= 1:
+        return 2.0
+    return 2.0 * averages / (1.0 + 2.0 * 0.167**2)
+
+
+def measure_hum(
+    frequencies_hz: np.ndarray,
+    psd: np.ndarray,
+    *,
+    total_power: float,
+    averages: int = 1,
+    reference: float = 1.0,
+    thresholds: Thresholds | None = None,
+) -> HumResult:
+    """Find mains hum lines in a one-sided power spectral density.
+
+    For each mains frequency and harmonic k, the peak bin within ``hum_search_hz`` × k of
+    k × mains is taken. The line's mean square is the PSD summed over the peak bin and its
+    two neighbours, times the bin width, less the local floor over the same three bins.
+    With density scaling, PSD × bin width summed over a tone's Hann main lobe is the
+    tone's mean square (Parseval); the three central bins hold at least 97.9 % of it
+    (Harris 1978, Hann window: worst case half a bin off, -0.09 dB).
+
+    The local floor is the median PSD 3 to 13 Hz (at least 4 to 20 bins) either side,
+    divided by the median of the χ² distribution of the estimate so it reads the mean
+    noise density. A line is detected when its peak stands ``hum_detect_db`` above the
+    floor, or more where the estimate's scatter demands it (few averages), and is not
+    weaker than ``hum_ignore_db`` relative to ``total_power``.
+
+    Parameters
+    ----------
+    frequencies_hz, psd
+        Bin frequencies (Hz, uniform spacing from 0) and PSD (unit²/Hz), 1-D.
+    total_power
+        Mean square of the channel's AC part (unit²), for the relative levels.
+    averages
+        Number of averaged periodograms behind ``psd`` (for the scatter).
+    reference
+        Reference value of the unit for the dB levels (1.0 = dB re 1 unit).
+    thresholds
+        Limits (:class:`Thresholds`).
+    """
+    th = thresholds or Thresholds()
+    df = float(frequencies_hz[1] - frequencies_hz[0])
+    nyquist = float(frequencies_hz[-1])
+    if df > 1.0:
+        return HumResult(
+            "not determinable",
+            None,
+            None,
+            None,
+            (),
+            f"spectrum too coarse for hum ({df:.3g} Hz bins; needs at most 1 Hz, i.e. a "
+            "longer recording)",
+        )
+    nu = _dof(averages)
+    median_factor = float(stats.gamma.median(nu / 2.0, scale=2.0 / nu))
+    inner_hz = max(3.0, 4 * df)
+    outer_hz = inner_hz + max(10.0, 16 * df)
+    lines: list[HumLine] = []
+    family_power: dict[float, float] = {}
+    for mains in th.hum_mains_hz:
+        family_power[mains] = 0.0
+        for k in range(1, th.hum_harmonics + 1):
+            f0 = k * mains
+            search = max(th.hum_search_hz * k, df)
+            if f0 + search + outer_hz > 0.95 * nyquist:
+                break
+            dist = np.abs(frequencies_hz - f0)
+            win = np.flatnonzero(dist <= search)
+            p = int(win[np.argmax(psd[win])])
+            ring = (dist >= inner_hz + search) & (dist <= outer_hz + search)
+            floor = float(np.median(psd[ring])) / median_factor
+            lobe = psd[max(p - 1, 1) : p + 2]
+            excess = float(np.sum(lobe - floor) * df)
+            above_db = 10 * math.log10(psd[p] / floor) if floor > 0 else math.inf
+            # Peak of the window's bins under noise alone: exceeded with probability
+            # _HUM_FALSE_ALARM (χ² with nu degrees of freedom, normalised to mean 1).
+            stat = float(stats.gamma.isf(_HUM_FALSE_ALARM / win.size, nu / 2.0, scale=2.0 / nu))
+            need_db = max(th.hum_detect_db, 10 * math.log10(stat))
+            if excess > 0:
+                level_db = 10 * math.log10(excess / reference**2)
+                re_total = 10 * math.log10(excess / total_power) if total_power > 0 else None
+            else:
+                level_db = None
+                re_total = None
+            detected = (
+                above_db >= need_db
+                and excess > 0
+                and (re_total is None or re_total >= th.hum_ignore_db)
+            )
+            lines.append(
+                HumLine(
+                    mains_hz=mains,
+                    harmonic=k,
+                    nominal_hz=f0,
+                    frequency_hz=float(frequencies_hz[p]),
+                    level_db=level_db,
+                    re_total_db=re_total,
+                    above_floor_db=above_db,
+                    detected=detected,
+                )
+            )
+            if detected:
+                family_power[mains] += excess
+    if not lines:
+        return HumResult(
+            "not determinable",
+            None,
+            None,
+            None,
+            (),
+            "sample rate too low to look at the mains frequencies",
+        )
+    best = max(family_power, key=lambda m: family_power[m])
+    if family_power[best] <= 0:
+        return HumResult("none", None, None, None, tuple(lines), "no line above the floor")
+    power = family_power[best]
+    return HumResult(
+        "detected",
+        best,
+        10 * math.log10(power / reference**2),
+        10 * math.log10(power / total_power) if total_power > 0 else None,
+        tuple(lines),
+        f"lines at {best:g} Hz and harmonics stand above the local floor",
+    )
+
+
+_TOO_NARROW = 1e30  # objective value of a fit range with too few bands
+
+
+def psd_floor(
+    frequencies_hz: np.ndarray,
+    psd: np.ndarray,
+    *,
+    averages: int = 1,
+    percentile: float = 10.0,
+    low_hz: float = 20.0,
+) -> float | None:
+    """The floor of a PSD: a low percentile of its locally averaged density (unit²/Hz).
+
+    The bins from ``low_hz`` (at least four bins) to 80 % of the Nyquist frequency are
+    taken in groups of 32; each group's median, divided by the median of the estimate's
+    χ² distribution, estimates the mean density there. The ``percentile`` of these
+    group values is the floor. For white noise of variance s² it reads the one-sided
+    density 2 s²/fs (Heinzel, Rüdiger, Schilling 2002) within the small scatter of the
+    group estimates. Returns None when fewer than 32 bins are available.
+    """
+    df = float(frequencies_hz[1] - frequencies_hz[0])
+    band = (frequencies_hz >= max(low_hz, 4 * df)) & (frequencies_hz <= 0.8 * frequencies_hz[-1])
+    values = np.asarray(psd)[band]
+    groups = values.size // _FLOOR_GROUP
+    if groups == 0:
+        return None
+    nu = _dof(averages)
+    median_factor = float(stats.gamma.median(nu / 2.0, scale=2.0 / nu))
+    local = np.median(values[: groups * _FLOOR_GROUP].reshape(groups, _FLOOR_GROUP), axis=1)
+    return float(np.percentile(local, percentile)) / median_factor
+
+
+_FLOOR_GROUP = 32
+
+
+def _hp_power(r: np.ndarray, order: int) -> np.ndarray:
+    """|H|² of a first-order or a second-order Butterworth high-pass at r = f/fc."""
+    q = r ** (2 * order)
+    return q / (1.0 + q)
+
+
+def estimate_rolloff(
+    frequencies_hz: np.ndarray,
+    psd: np.ndarray,
+    *,
+    averages: int = 1,
+    exclude_hz: Sequence[float] = (),
+    thresholds: Thresholds | None = None,
+) -> RolloffResult:
+    """Estimate the low-frequency corner of a capture from its PSD.
+
+    The PSD is reduced to sixth-octave bands (median of the bins in each band, at least
+    three bins per band, so narrowband lines barely move it; bins within 1 Hz of
+    ``exclude_hz`` are left out). Bands more than ``rolloff_content_db`` under the passband
+    (90th percentile of the band levels) hold no usable content. Over the contiguous
+    bands with content, the shape of a first-order high-pass, |H|² = r²/(1 + r²), and of a
+    second-order Butterworth high-pass, |H|² = r⁴/(1 + r⁴), r = f/f_c, is fitted in dB by
+    weighted least squares over ``[lowest content, rolloff_fit_span × f_c]`` (level and f_c
+    free; weights from the statistical scatter of each band). The misfit is the RMS
+    deviation beyond that scatter.
+
+    The answer is never a guess:
+
+    - ``"estimated"``: misfit within ``rolloff_max_residual_db`` and at least one octave of
+      content below the corner;
+    - ``"below range"``: the spectrum is flat (within 3 dB) down to the lowest analysed
+      frequency, so the corner lies below it (``upper_bound_hz``);
+    - ``"not determinable"``: with the reason (no content below some frequency, a shape
+      that is no first- or second-order high-pass, too little bandwidth).
+
+    The estimate describes the spectrum as captured. It is the chain's corner only when
+    the signal was broadband and above the converter's own noise at low frequencies.
+
+    Parameters
+    ----------
+    frequencies_hz, psd
+        Bin frequencies (Hz, uniform spacing from 0) and PSD (unit²/Hz), 1-D.
+    averages
+        Number of averaged periodograms behind ``psd`` (for the scatter).
+    exclude_hz
+        Frequencies of narrowband lines to leave out (e.g. detected hum).
+    thresholds
+        Limits (:class:`Thresholds`).
+    """
+    th = thresholds or Thresholds()
+    expected = th.rolloff_expected_hz
+
+    def fail(reason: str, content: float | None = None) -> RolloffResult:
+        return RolloffResult("not determinable", None, None, None, None, content, expected, reason)
+
+    freqs = np.asarray(frequencies_hz, dtype=np.float64)
+    p = np.asarray(psd, dtype=np.float64)
+    df = float(freqs[1] - freqs[0])
+    f_lo = 4.0 * df  # below this the window's main lobe around DC interferes
+    f_top = 0.8 * float(freqs[-1])  # clear of anti-alias filters
+    keep = (freqs >= f_lo) & (freqs <= f_top)
+    for f in exclude_hz:
+        keep &= np.abs(freqs - f) > max(1.0, 2 * df)
+    idx = np.flatnonzero(keep)
+    if idx.size < 30:
+        return fail("too few spectral lines (recording too short or sample rate too low)")
+    # Sixth-octave bands from f_lo, merged upward until each holds at least 3 bins.
+    edges = f_lo * 2.0 ** (np.arange(0, 6 * math.log2(f_top / f_lo) + 1) / 6.0)
+    band_of = np.searchsorted(edges, freqs[idx], side="right") - 1
+    groups: list[np.ndarray] = []
+    current: list[int] = []
+    for b in np.unique(band_of):
+        current.extend(idx[band_of == b].tolist())
+        if len(current) >= 3:
+            groups.append(np.array(current))
+            current = []
+    if current and groups:
+        groups[-1] = np.concatenate([groups[-1], np.array(current)])
+    if len(groups) < 8:
+        return fail("too few frequency bands to fit a corner")
+    level = np.array([10 * math.log10(max(float(np.median(p[g])), 1e-300)) for g in groups])
+    count = np.array([g.size for g in groups], dtype=np.float64)
+    # Scatter of each band level (dB): one bin of a ν-dof estimate scatters by
+    # 10 lg(e)·sqrt(2/ν); the median of n bins, about sqrt(π/2) worse than a mean, over
+    # n/1.5 independent bins (Hann bins overlap; NENBW 1.5, Harris 1978).
+    nu = _dof(averages)
+    sigma = 10 * math.log10(math.e) * math.sqrt(2.0 / nu) * math.sqrt(math.pi / 2)
+    sigma_b = sigma / np.sqrt(np.maximum(count / 1.5, 1.0))
+    weight = 1.0 / sigma_b**2
+    f_lo_band = np.array([freqs[g[0]] for g in groups])
+    # The two middle bins of each band: the model's band median (the model is monotonic).
+    mid_a = np.array([freqs[g[(len(g) - 1) // 2]] for g in groups])
+    mid_b = np.array([freqs[g[len(g) // 2]] for g in groups])
+    centre = np.sqrt(mid_a * mid_b)
+    passband = float(np.percentile(level, 90))
+    content = level >= passband - th.rolloff_content_db
+    first = int(np.argmax(level))
+    while first > 0 and content[first - 1]:
+        first -= 1
+    f_content = float(f_lo_band[first])
+    at_floor = first == 0
+    sel = np.arange(first, len(groups))
+    no_content = (
+        f"no usable content below {f_content:.3g} Hz (more than "
+        f"{th.rolloff_content_db:g} dB under the passband)"
+    )
+    if sel.size < 8:
+        return fail(no_content, f_content)
+
+    def misfit(log_fc: float, order: int) -> tuple[float, float]:
+        """(systematic misfit in dB, fitted level offset) for a corner exp(log_fc)."""
+        fc = math.exp(log_fc)
+        use = sel[centre[sel] <= th.rolloff_fit_span * fc]
+        if use.size < 6:
+            return math.inf, 0.0
+        model = 10 * np.log10(
+            0.5 * (_hp_power(mid_a[use] / fc, order) + _hp_power(mid_b[use] / fc, order))
+        )
+        resid = level[use] - model
+        w = weight[use]
+        offset = float(np.sum(w * resid) / np.sum(w))
+        excess = np.mean((resid - offset) ** 2) - np.mean(sigma_b[use] ** 2)
+        return math.sqrt(max(float(excess), 0.0)), offset
+
+    def objective(log_fc: float, order: int) -> float:
+        fc = math.exp(log_fc)
+        use = sel[centre[sel] <= th.rolloff_fit_span * fc]
+        if use.size < 6:
+            return _TOO_NARROW
+        model = 10 * np.log10(
+            0.5 * (_hp_power(mid_a[use] / fc, order) + _hp_power(mid_b[use] / fc, order))
+        )
+        resid = level[use] - model
+        w = weight[use]
+        offset = float(np.sum(w * resid) / np.sum(w))
+        # Mean weighted square deviation: comparable between fit ranges of different size.
+        return float(np.sum(w * (resid - offset) ** 2) / np.sum(w) / np.mean(sigma_b[use] ** 2))
+
+    log_lo = math.log(f_content / 8.0)
+    log_hi = math.log(f_top / th.rolloff_fit_span)
+    if log_hi <= log_lo:
+        return fail("too little bandwidth above the lowest content to fit a corner", f_content)
+    grid = np.linspace(log_lo, log_hi, 240)
+    best: tuple[float, float, int] = (math.inf, 0.0, 1)
+    for order in (1, 2):
+        errs = np.array([objective(g, order) for g in grid])
+        i = int(np.argmin(errs))
+        if errs[i] >= _TOO_NARROW:
+            continue
+        res = optimize.minimize_scalar(
+            lambda g, o=order: objective(g, o),
+            bounds=(grid[max(i - 1, 0)], grid[min(i + 1, grid.size - 1)]),
+            method="bounded",
+            options={"xatol": 1e-4},
+        )
+        cand = (float(res.fun), float(res.x), order)
+        if errs[i] < cand[0]:
+            cand = (float(errs[i]), float(grid[i]), order)
+        if cand[0] < best[0]:
+            best = cand
+    _, log_fc, order = best
+    if best[0] >= _TOO_NARROW:
+        return fail("too little bandwidth to fit a corner", f_content)
+    fc = math.exp(log_fc)
+    resid_db, offset = misfit(log_fc, order)
+    shape_ok = resid_db <= th.rolloff_max_residual_db
+    if not at_floor and (fc < 2.0 * f_content or not shape_ok):
+        return fail(
+            no_content + ": the spectrum falls faster than a first- or second-order "
+            "high-pass, or the signal has no low-frequency content",
+            f_content,
+        )
+    if not shape_ok:
+        return fail(
+            f"the spectrum below {th.rolloff_fit_span * fc:.3g} Hz does not follow a first- "
+            f"or second-order high-pass (misfit {resid_db:.2g} dB RMS > "
+            f"{th.rolloff_max_residual_db:g} dB)",
+            f_content,
+        )
+    if fc < 2.0 * f_content:
+        lowest = float(np.average(level[sel[:3]], weights=weight[sel[:3]]))
+        if lowest >= offset - 3.0:
+            return RolloffResult(
+                "below range",
+                None,
+                None,
+                f_content,
+                resid_db,
+                f_content,
+                expected,
+                f"spectrum flat within 3 dB down to {f_content:.3g} Hz, the lowest analysed "
+                "frequency: the corner lies below it",
+            )
+        return fail(
+            f"less than one octave of content below the fitted corner ({fc:.3g} Hz)",
+            f_content,
+        )
+    return RolloffResult(
+        "estimated",
+        fc,
+        order,
+        None,
+        resid_db,
+        f_content,
+        expected,
+        f"{'first' if order == 1 else 'second'}-order high-pass shape, misfit "
+        f"{resid_db:.2g} dB RMS over {f_content:.3g}..{th.rolloff_fit_span * fc:.3g} Hz",
+    )
