@@ -94,16 +94,17 @@ def _unit_scale(unit_text: str, unit: str) -> float | None:
     """Return the factor that turns ``unit_text`` (prefix + spelling) into ``unit``."""
     spellings = ACCEPTED_UNITS[unit]
     compact = unit_text.replace(" ", "")
-    if compact == "":
+    if compact == "" or compact in spellings:
         return 1.0
-    # Bare prefix: engineering notation such as "47n" or "1G".
-    if compact in PREFIXES:
-        return 10.0 ** PREFIXES[compact]
     for spelling in spellings:
         if compact.endswith(spelling):
             prefix = compact[: -len(spelling)]
             if prefix in PREFIXES:
                 return 10.0 ** PREFIXES[prefix]
+    # Bare prefix: engineering notation such as "47n" or "1G". Checked last, so that a
+    # unit spelled like a prefix ("5 m" of cable, "300 K") keeps its meaning.
+    if compact in PREFIXES:
+        return 10.0 ** PREFIXES[compact]
     return None
 
 
@@ -238,6 +239,11 @@ def _prefixed(text: str, base: str) -> float | None:
     return 10.0 ** PREFIXES[prefix]
 
 
+#: Reference of a sensitivity level -> V/Pa of 0 dB. Hydrophone data sheets give
+#: dB re 1 V/µPa (ISO 1683 reference for liquids): 0 dB re 1 V/µPa is 1e6 V/Pa.
+_LEVEL_SENSITIVITY_REFS = {"V/Pa": 1.0, "V": 1.0, "V/uPa": 1e6}
+
+
 def parse_sensitivity(
     text: str | float,
     *,
@@ -249,7 +255,8 @@ def parse_sensitivity(
     Accepted forms:
 
     - voltage sensitivity ``"20 mV/Pa"``, ``"0.02 V/Pa"``;
-    - level form ``"-34 dBV/Pa"`` (dB re 1 V/Pa);
+    - level form ``"-34 dBV/Pa"`` (dB re 1 V/Pa), or ``"-196 dBV/uPa"`` (dB re 1 V/µPa, as
+      hydrophone data sheets state it);
     - charge sensitivity ``"12 pC/Pa"``, which needs ``charge_gain_v_per_c`` (the charge
       amplifier's gain, e.g. 1 mV/pC = 1e9 V/C) to become a voltage.
 
@@ -261,12 +268,13 @@ def parse_sensitivity(
         t = str(text).strip()
         m = _DB_RE.match(t)
         if m:
-            ref = m.group(2).replace(" ", "")
-            if ref not in ("V/Pa", "V", "re1V/Pa"):
+            ref = m.group(2).replace(" ", "").replace("re1", "").replace("µ", "u")
+            if ref not in _LEVEL_SENSITIVITY_REFS:
                 raise UnitError(
-                    f"{what}: {text!r}: a level sensitivity must be in dBV/Pa (dB re 1 V/Pa)"
+                    f"{what}: {text!r}: a level sensitivity must be in dBV/Pa (dB re 1 V/Pa) "
+                    "or dBV/uPa (dB re 1 V/µPa, hydrophones)"
                 )
-            value = db_to_ratio(float(m.group(1)))
+            value = db_to_ratio(float(m.group(1))) * _LEVEL_SENSITIVITY_REFS[ref]
         elif re.search(r"C\s*/\s*[a-zA-Zµμ]*Pa\s*$", t):
             charge = _parse_ratio(t, "C", "Pa", what)
             if charge_gain_v_per_c is None:
@@ -316,8 +324,18 @@ def _engineering(value: float) -> tuple[float, str]:
         return value, ""
     exponent = int(math.floor(math.log10(abs(value)) / 3.0) * 3)
     exponent = max(-15, min(12, exponent))
-    symbol = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G",
-              12: "T"}[exponent]
+    symbol = {
+        -15: "f",
+        -12: "p",
+        -9: "n",
+        -6: "µ",
+        -3: "m",
+        0: "",
+        3: "k",
+        6: "M",
+        9: "G",
+        12: "T",
+    }[exponent]
     return value / 10.0**exponent, symbol
 
 

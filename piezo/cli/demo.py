@@ -1,0 +1,53 @@
+"""``piezo demo``: write the synthetic demo recordings."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import numpy as np
+import soundfile as sf
+import typer
+
+from piezo.cli.output import atomic_output, console, write_text_atomic
+from piezo.demo import DemoFile, demo_files
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``demo`` command to ``app``."""
+    app.command("demo", help="Write the synthetic demo recordings and their profiles.")(demo)
+
+
+def demo(
+    out: Annotated[Path, typer.Option("--out", help="Folder to write into.")] = Path("demo"),
+) -> None:
+    """Write the demo recordings (seeded, identical on every run) into a folder.
+
+    All data is synthetic: scenarios of our own, made to exercise every command.
+    """
+    out.mkdir(parents=True, exist_ok=True)
+    for item in demo_files():
+        write_demo_file(out, item)
+        console.print(f"  {item.name:<28} {item.description}")
+    console.print(f"wrote {len(demo_files())} recordings to {out}")
+
+
+def write_demo_file(out: Path, item: DemoFile) -> None:
+    """Write one demo recording (and its sidecar) atomically."""
+    target = out / item.name
+    if item.subtype is None:
+        assert item.header is not None
+        with atomic_output(target) as tmp:
+            np.savetxt(
+                tmp,
+                item.samples,
+                delimiter=",",
+                header=",".join(item.header),
+                comments="",
+                fmt="%.6g",
+            )
+    else:
+        with atomic_output(target) as tmp:
+            sf.write(str(tmp), item.samples, int(item.sample_rate_hz), subtype=item.subtype)
+    if item.sidecar is not None:
+        write_text_atomic(target.with_suffix(".toml"), item.sidecar)

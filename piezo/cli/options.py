@@ -1,0 +1,208 @@
+"""Options shared by every analysis command, defined once.
+
+:func:`source_options` adds the measurement-chain and input options to a command and hands
+the command a :class:`SourceOptions`; :func:`open_source` turns it into a
+:class:`~piezo.chain.CalibratedSource`. Option names are a public contract: users' scripts
+rely on them.
+"""
+
+from __future__ import annotations
+
+import functools
+import inspect
+import typing
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from piezo.chain import CalibratedSource, ChainSettings, resolve_chain
+from piezo.errors import InputError
+from piezo.io import open_recording
+
+__all__ = ["JsonOption", "SourceOptions", "open_source", "source_options"]
+
+CHAIN_PANEL = "Measurement chain"
+INPUT_PANEL = "Input"
+
+JsonOption = Annotated[
+    bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.")
+]
+
+
+@dataclass(frozen=True)
+class SourceOptions:
+    """Input and chain options as typed on the command line (text, unparsed)."""
+
+    sensitivity: str | None = None
+    gain: str | None = None
+    full_scale: str | None = None
+    reference: str | None = None
+    charge_gain: str | None = None
+    profile: Path | None = None
+    channel: list[int] | None = None
+    rate: str | None = None
+    columns: str | None = None
+    no_sidecar: bool = False
+
+    def chain_settings(self) -> ChainSettings:
+        """The chain part, for :func:`piezo.chain.resolve_chain`."""
+        return ChainSettings(
+            sensitivity=self.sensitivity,
+            gain=self.gain,
+            full_scale=self.full_scale,
+            reference=self.reference,
+            charge_gain=self.charge_gain,
+            profile=self.profile,
+        )
+
+
+_OPTIONS: dict[str, tuple[Any, Any]] = {
+    "sensitivity": (
+        str | None,
+        typer.Option(
+            "--sensitivity",
+            metavar="SENS",
+            help="Sensor sensitivity: '20 mV/Pa', '-34 dBV/Pa', '12 pC/Pa' (with --charge-gain).",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "gain": (
+        str | None,
+        typer.Option(
+            "--gain",
+            metavar="GAIN",
+            help="Amplifier gain between sensor and ADC: '20 dB' or '10' (V/V). Default 0 dB.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "full_scale": (
+        str | None,
+        typer.Option(
+            "--full-scale",
+            metavar="VOLTS",
+            help="Volts at digital full scale for audio files. Default 1 V. CSV values are volts.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "reference": (
+        str | None,
+        typer.Option(
+            "--reference",
+            metavar="PRESSURE",
+            help="Reference pressure for dB: '20 uPa' (air, default) or '1 uPa' (water).",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "charge_gain": (
+        str | None,
+        typer.Option(
+            "--charge-gain",
+            metavar="V/C",
+            help="Charge amplifier gain for pC/Pa sensitivities, e.g. '1 mV/pC'.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "profile": (
+        Path | None,
+        typer.Option(
+            "--profile",
+            metavar="TOML",
+            help="Sensor profile (TOML). NAME.toml beside NAME.wav is read automatically.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "no_sidecar": (
+        bool,
+        typer.Option(
+            "--no-sidecar",
+            help="Ignore the NAME.toml profile beside the recording.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "channel": (
+        list[int] | None,
+        typer.Option(
+            "--channel",
+            metavar="N",
+            help="Channel to analyse, 0-based; repeat for several. Default: all.",
+            rich_help_panel=INPUT_PANEL,
+        ),
+    ),
+    "rate": (
+        str | None,
+        typer.Option(
+            "--rate",
+            metavar="RATE",
+            help="Sample rate for CSV files without a time column, e.g. '48k' or '10 kHz'.",
+            rich_help_panel=INPUT_PANEL,
+        ),
+    ),
+    "columns": (
+        str | None,
+        typer.Option(
+            "--columns",
+            metavar="COLS",
+            help="CSV value columns by name or 0-based index, comma-separated.",
+            rich_help_panel=INPUT_PANEL,
+        ),
+    ),
+}
+
+_DEFAULTS = {"no_sidecar": False}
+
+
+def source_options(func: Callable[..., Any]) -> Callable[..., Any]:
+    """Add the shared input and chain options to a typer command.
+
+    The decorated function takes a keyword parameter ``src: SourceOptions`` instead of the
+    individual options; the command-line parameters are appended to its signature, so
+    typer shows them (under their own help panels) on every analysis command.
+    """
+    sig = inspect.signature(func)
+    hints = typing.get_type_hints(func, include_extras=True)
+    params = [
+        p.replace(annotation=hints.get(p.name, p.annotation))
+        for p in sig.parameters.values()
+        if p.name != "src"
+    ]
+    annotations = {k: v for k, v in hints.items() if k != "src"}
+    for name, (typ, info) in _OPTIONS.items():
+        params.append(
+            inspect.Parameter(
+                name,
+                inspect.Parameter.KEYWORD_ONLY,
+                default=_DEFAULTS.get(name),
+                annotation=Annotated[typ, info],
+            )
+        )
+        annotations[name] = Annotated[typ, info]
+
+    @functools.wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        picked = {name: kwargs.pop(name, _DEFAULTS.get(name)) for name in _OPTIONS}
+        return func(*args, src=SourceOptions(**picked), **kwargs)
+
+    wrapper.__signature__ = sig.replace(parameters=params)  # type: ignore[attr-defined]
+    wrapper.__annotations__ = annotations
+    return wrapper
+
+
+def open_source(file: Path, src: SourceOptions) -> CalibratedSource:
+    """Open ``file`` and resolve its chain from the options, sidecar and profile."""
+    from piezo.units import parse_quantity
+
+    rate_hz = parse_quantity(src.rate, "Hz", what="--rate") if src.rate is not None else None
+    if rate_hz is not None and rate_hz <= 0:
+        raise InputError(f"--rate must be positive, got {src.rate!r}")
+    columns = [c.strip() for c in src.columns.split(",")] if src.columns else None
+    try:
+        recording = open_recording(file, rate_hz=rate_hz, columns=columns)
+        chain, provenance = resolve_chain(
+            file, src.chain_settings(), use_sidecar=not src.no_sidecar
+        )
+        return CalibratedSource.of(recording, chain, src.channel or None, provenance)
+    except InputError as exc:
+        raise exc.with_source(str(file)) from None

@@ -1,0 +1,583 @@
+"""Reading recordings: libsndfile formats through soundfile, and CSV/TSV exports.
+
+Every analysis reads through :func:`open_recording` and :meth:`Recording.blocks`, so there
+is one read path. Blocks are float64 arrays of shape ``(frames, channels)``: time runs
+along the first axis everywhere in piezo. PCM samples come as fractions of digital full
+scale (soundfile's float conversion); CSV values come as they are in the file (volts).
+
+Reading never loads a whole recording: soundfile decodes block by block, and CSV files are
+parsed in chunks of rows after one validating pass.
+"""
+
+from __future__ import annotations
+
+import csv
+import io as _stdio
+import math
+import re
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import soundfile as sf
+
+from piezo.errors import InputError, RecordingError
+
+__all__ = ["CSV_SUFFIXES", "Recording", "open_recording"]
+
+#: File name endings read by the CSV reader; everything else goes to libsndfile.
+CSV_SUFFIXES = (".csv", ".tsv", ".txt")
+
+#: Header names taken as a time column (compared in lower case, units in brackets dropped).
+TIME_COLUMN_NAMES = ("time", "t", "time_s", "seconds", "second", "sec", "s", "x-axis")
+
+#: Relative tolerance on the spacing of a CSV time column (issue contract: 0.1 %).
+TIME_SPACING_TOLERANCE = 1e-3
+
+_CSV_CHUNK_ROWS = 65536
+
+
+@dataclass(frozen=True)
+class CsvLayout:
+    """Where the numbers are in a CSV file, found once when it is opened."""
+
+    delimiter: str | None
+    skip_lines: int
+    column_names: tuple[str, ...]
+    value_columns: tuple[int, ...]
+    time_column: int | None
+    n_columns: int
+
+
+@dataclass(frozen=True)
+class Recording:
+    """An opened recording: what it is, and a way to read it in blocks.
+
+    Attributes
+    ----------
+    path
+        The file.
+    sample_rate_hz
+        Sample rate in hertz (from the file header, the CSV time column, or given).
+    frames
+        Number of samples per channel.
+    channels
+        Number of channels (for CSV: the value columns chosen).
+    format
+        ``"WAV"``, ``"FLAC"``, ``"RF64"``, ``"W64"``, ... as libsndfile names it, or ``"CSV"``.
+    subtype
+        Sample encoding, e.g. ``"PCM_24"``, ``"FLOAT"``; ``"TEXT"`` for CSV.
+    channel_names
+        A name per channel (CSV header names, or ``"ch0"``, ``"ch1"`` ...).
+    is_pcm
+        True when samples are fractions of digital full scale (audio files), False when
+        they are physical values (CSV, taken as volts).
+    """
+
+    path: Path
+    sample_rate_hz: float
+    frames: int
+    channels: int
+    format: str
+    subtype: str
+    channel_names: tuple[str, ...]
+    is_pcm: bool
+    csv_layout: CsvLayout | None = field(default=None, repr=False)
+
+    @property
+    def duration_s(self) -> float:
+        """Length of the recording in seconds."""
+        return self.frames / self.sample_rate_hz
+
+    def blocks(
+        self,
+        block_frames: int = 65536,
+        *,
+        overlap_frames: int = 0,
+        channels: Sequence[int] | None = None,
+    ) -> Iterator[np.ndarray]:
+        """Yield the recording as float64 blocks of shape ``(frames, channels)``.
+
+        Parameters
+        ----------
+        block_frames
+            Frames per block (the last block may be shorter).
+        overlap_frames
+            Frames shared by consecutive blocks (``0 <= overlap < block_frames``).
+        channels
+            0-based channel indices to read; all channels when None.
+
+        Raises
+        ------
+        RecordingError
+            When the file cannot be decoded part way (truncated or corrupt data).
+        """
+        if block_frames < 1:
+            raise InputError(f"block_frames must be at least 1, got {block_frames}")
+        if not 0 <= overlap_frames < block_frames:
+            raise InputError(
+                f"overlap_frames must be in [0, {block_frames}), got {overlap_frames}"
+            )
+        selected = self._check_channels(channels)
+        step = block_frames - overlap_frames
+        if overlap_frames == 0:
+            for block in self._raw_blocks(block_frames):
+                yield block if selected is None else block[:, selected]
+            return
+        # Re-chunk: every block holds block_frames frames (the last may be shorter) and
+        # starts step frames after the previous one, as soundfile.blocks does.
+        buf = np.empty((0, self.channels))
+        fresh = 0  # frames in buf not yet yielded
+        for raw in self._raw_blocks(step):
+            buf = np.concatenate([buf, raw])
+            fresh += raw.shape[0]
+            while buf.shape[0] >= block_frames:
+                out = buf[:block_frames]
+                yield out if selected is None else out[:, selected]
+                buf = buf[step:]
+                fresh = max(0, buf.shape[0] - overlap_frames)
+        if fresh > 0:
+            yield buf if selected is None else buf[:, selected]
+
+    def _check_channels(self, channels: Sequence[int] | None) -> list[int] | None:
+        if channels is None:
+            return None
+        out = []
+        for c in channels:
+            if not 0 <= int(c) < self.channels:
+                raise InputError(
+                    f"channel {c} is out of range: the recording has {self.channels} "
+                    f"channel(s), numbered 0 to {self.channels - 1}",
+                    source=str(self.path),
+                )
+            out.append(int(c))
+        return out
+
+    def _raw_blocks(self, step: int) -> Iterator[np.ndarray]:
+        if self.csv_layout is not None:
+            yield from _csv_blocks(self.path, self.csv_layout, step)
+            return
+        try:
+            with sf.SoundFile(str(self.path)) as f:
+                done = 0
+                while done < self.frames:
+                    block = f.read(min(step, self.frames - done), dtype="float64", always_2d=True)
+                    if block.shape[0] == 0:
+                        raise RecordingError(
+                            f"data ends after {done} of {self.frames} frames (truncated file?)",
+                            source=str(self.path),
+                        )
+                    done += block.shape[0]
+                    yield block
+        except sf.LibsndfileError as exc:
+            detail = exc.error_string.removeprefix("Error : ").strip()
+            raise RecordingError(
+                f"cannot decode audio data ({detail}); the file is truncated or corrupt",
+                source=str(self.path),
+            ) from exc
+
+
+def open_recording(
+    path: str | Path,
+    *,
+    rate_hz: float | None = None,
+    columns: Sequence[str | int] | None = None,
+) -> Recording:
+    """Open a recording and check that it can be analysed.
+
+    Parameters
+    ----------
+    path
+        A WAV/RF64/W64/FLAC/AIFF/... file (anything libsndfile reads) or a CSV/TSV text
+        export (``.csv``, ``.tsv``, ``.txt``).
+    rate_hz
+        Sample rate for CSV files without a time column. For audio files it must be None
+        (the header's rate is used).
+    columns
+        CSV only: value columns by header name or 0-based index. All non-time columns
+        when None.
+
+    Returns
+    -------
+    Recording
+
+    Raises
+    ------
+    RecordingError
+        Missing, empty, unreadable or zero-length recordings.
+    InputError
+        Inconsistent options (rate for an audio file, unknown column, non-uniform time).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise RecordingError("no such file", source=str(p))
+    if p.is_dir():
+        raise RecordingError("is a directory, expected a recording file", source=str(p))
+    try:
+        size = p.stat().st_size
+    except OSError as exc:  # pragma: no cover - permission races
+        raise RecordingError(f"cannot read: {exc.strerror}", source=str(p)) from exc
+    if size == 0:
+        raise RecordingError("file is empty (0 bytes)", source=str(p))
+    if p.suffix.lower() in CSV_SUFFIXES:
+        return _open_csv(p, rate_hz=rate_hz, columns=columns)
+    if columns is not None:
+        raise InputError("--columns applies to CSV files only", source=str(p))
+    return _open_audio(p, rate_hz=rate_hz)
+
+
+def _open_audio(p: Path, *, rate_hz: float | None) -> Recording:
+    try:
+        info = sf.info(str(p))
+    except sf.LibsndfileError as exc:
+        raise RecordingError(
+            f"not a readable audio file ({exc.error_string.rstrip('.')})", source=str(p)
+        ) from exc
+    except RuntimeError as exc:  # soundfile < 0.11 raised RuntimeError
+        raise RecordingError(f"not a readable audio file ({exc})", source=str(p)) from exc
+    if rate_hz is not None and not math.isclose(rate_hz, info.samplerate):
+        raise InputError(
+            f"--rate {rate_hz:g} Hz contradicts the file header ({info.samplerate} Hz); "
+            "--rate is for CSV files",
+            source=str(p),
+        )
+    if info.frames <= 0:
+        raise RecordingError("recording has no samples (0 frames)", source=str(p))
+    if str(info.format) in ("WAV", "WAVEX"):
+        declared = _riff_declared_data_bytes(p)
+        frame_bytes = _bytes_per_frame(str(info.subtype), int(info.channels))
+        if declared is not None and frame_bytes and declared // frame_bytes > info.frames:
+            raise RecordingError(
+                f"truncated: the header announces {declared // frame_bytes} frames but the "
+                f"file holds {info.frames}",
+                source=str(p),
+            )
+    if info.samplerate <= 0:
+        raise RecordingError(f"invalid sample rate {info.samplerate}", source=str(p))
+    return Recording(
+        path=p,
+        sample_rate_hz=float(info.samplerate),
+        frames=int(info.frames),
+        channels=int(info.channels),
+        format=str(info.format),
+        subtype=str(info.subtype),
+        channel_names=tuple(f"ch{i}" for i in range(info.channels)),
+        is_pcm=True,
+    )
+
+
+_SUBTYPE_BYTES = {
+    "PCM_U8": 1,
+    "PCM_S8": 1,
+    "PCM_16": 2,
+    "PCM_24": 3,
+    "PCM_32": 4,
+    "FLOAT": 4,
+    "DOUBLE": 8,
+    "ULAW": 1,
+    "ALAW": 1,
+}
+
+
+def _bytes_per_frame(subtype: str, channels: int) -> int | None:
+    size = _SUBTYPE_BYTES.get(subtype)
+    return None if size is None else size * channels
+
+
+def _riff_declared_data_bytes(p: Path) -> int | None:
+    """Size the ``data`` chunk of a RIFF/WAVE file claims, or None if unknown.
+
+    libsndfile reads a truncated WAV without complaint (it counts the frames present), so
+    the header's claim is compared here. Sizes 0 and 0xFFFFFFFF mark headers a recorder
+    never finalised; they are not taken as claims.
+    """
+    with open(p, "rb") as f:
+        head = f.read(12)
+        if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+            return None
+        while True:
+            chunk = f.read(8)
+            if len(chunk) < 8:
+                return None
+            size = int.from_bytes(chunk[4:8], "little")
+            if chunk[:4] == b"data":
+                return None if size in (0, 0xFFFFFFFF) else size
+            f.seek(size + (size & 1), 1)
+
+
+# --- CSV -------------------------------------------------------------------------------
+
+_NUMBER_RE = re.compile(r"^\s*[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?\s*$|^\s*[-+]?(?:nan|inf)")
+
+
+def _is_number(text: str) -> bool:
+    return bool(_NUMBER_RE.match(text.strip().lower())) if text.strip() else False
+
+
+def _split(line: str, delimiter: str | None) -> list[str]:
+    if delimiter is None:
+        return line.split()
+    return next(csv.reader([line], delimiter=delimiter))
+
+
+def _sniff_layout(p: Path, head: list[str]) -> tuple[str | None, int, list[str] | None]:
+    """Find the delimiter, the number of lines before the data, and the header fields."""
+    data_lines = [ln for ln in head if ln.strip() and not ln.lstrip().startswith("#")]
+    if not data_lines:
+        raise RecordingError("no data rows found in the text file", source=str(p))
+    # The delimiter is the one that splits the most trailing lines of the head (data, in
+    # any export we know) into the same number of numeric fields; more fields wins a tie.
+    best: tuple[int, int, str | None] | None = None
+    for candidate in (",", ";", "\t", "|", None):
+        run, width = 0, None
+        for line in reversed(data_lines):
+            fields = _split(line, candidate)
+            if not fields or not all(_is_number(f) for f in fields):
+                break
+            if width is not None and len(fields) != width:
+                break
+            width = len(fields)
+            run += 1
+        if run and width is not None and (best is None or (run, width) > best[:2]):
+            best = (run, width, candidate)
+    if best is None:
+        raise RecordingError(
+            "no numeric data rows found (expected columns of numbers separated by , ; tab "
+            "| or spaces)",
+            source=str(p),
+        )
+    delimiter = best[2]
+    # Data starts at the first line from which every following line (in the head) is
+    # all-numeric with the same field count.
+    start = None
+    for i, line in enumerate(head):
+        if not line.strip() or line.lstrip().startswith("#"):
+            continue
+        fields = _split(line, delimiter)
+        if fields and all(_is_number(f) for f in fields):
+            start = i
+            break
+    if start is None:
+        raise RecordingError(
+            "no numeric data rows found (expected columns of numbers)", source=str(p)
+        )
+    header = None
+    for line in reversed(head[:start]):
+        if line.strip() and not line.lstrip().startswith("#"):
+            header = [h.strip() for h in _split(line, delimiter)]
+            break
+    return delimiter, start, header
+
+
+def _normalise_name(name: str) -> str:
+    return re.sub(r"\s*[\(\[].*?[\)\]]\s*", "", name).strip().lower()
+
+
+def _open_csv(p: Path, *, rate_hz: float | None, columns: Sequence[str | int] | None) -> Recording:
+    try:
+        with open(p, encoding="utf-8-sig", errors="strict") as f:
+            head = [f.readline() for _ in range(200)]
+    except UnicodeDecodeError:
+        raise RecordingError("not a text file (cannot decode as UTF-8)", source=str(p)) from None
+    head = [ln for ln in head if ln != ""]
+    delimiter, start, header = _sniff_layout(p, head)
+    first = _split(head[start], delimiter)
+    n_columns = len(first)
+    names = (
+        [h or f"col{i}" for i, h in enumerate(header)]
+        if header is not None and len(header) == n_columns
+        else [f"col{i}" for i in range(n_columns)]
+    )
+    has_header = header is not None and len(header) == n_columns
+
+    time_col: int | None = None
+    if has_header:
+        for i, name in enumerate(names):
+            if _normalise_name(name) in TIME_COLUMN_NAMES:
+                time_col = i
+                break
+    if time_col is None and rate_hz is None and n_columns >= 2:
+        time_col = 0  # no rate given: the first column must be time; checked below
+
+    if columns is None:
+        value_cols = [i for i in range(n_columns) if i != time_col]
+    else:
+        value_cols = []
+        for c in columns:
+            idx = _column_index(p, c, names)
+            if idx == time_col:
+                raise InputError(f"column {c!r} is the time column", source=str(p))
+            value_cols.append(idx)
+    if not value_cols:
+        raise RecordingError("no value columns besides the time column", source=str(p))
+
+    layout = CsvLayout(
+        delimiter=delimiter,
+        skip_lines=start,  # head[i] is line i + 1 of the file
+        column_names=tuple(names),
+        value_columns=tuple(value_cols),
+        time_column=time_col,
+        n_columns=n_columns,
+    )
+    frames, rate_from_time = _validate_csv(p, layout)
+    if frames == 0:
+        raise RecordingError("recording has no samples (0 rows)", source=str(p))
+    if time_col is None and rate_hz is None:
+        raise InputError(
+            "a single-column CSV has no time column: give the sample rate with --rate",
+            source=str(p),
+        )
+    if rate_from_time is not None:
+        if rate_hz is not None and not math.isclose(rate_hz, rate_from_time, rel_tol=1e-3):
+            raise InputError(
+                f"--rate {rate_hz:g} Hz contradicts the time column ({rate_from_time:.6g} Hz)",
+                source=str(p),
+            )
+        rate = rate_from_time
+    else:
+        assert rate_hz is not None
+        rate = float(rate_hz)
+    if not (math.isfinite(rate) and rate > 0):
+        raise InputError(f"sample rate must be positive, got {rate}", source=str(p))
+    return Recording(
+        path=p,
+        sample_rate_hz=rate,
+        frames=frames,
+        channels=len(value_cols),
+        format="CSV",
+        subtype="TEXT",
+        channel_names=tuple(names[i] for i in value_cols),
+        is_pcm=False,
+        csv_layout=layout,
+    )
+
+
+def _column_index(p: Path, c: str | int, names: list[str]) -> int:
+    if isinstance(c, int) or (isinstance(c, str) and c.strip().lstrip("-").isdigit()):
+        idx = int(c)
+        if not 0 <= idx < len(names):
+            raise InputError(
+                f"column {idx} is out of range: the file has {len(names)} columns "
+                f"(0 to {len(names) - 1})",
+                source=str(p),
+            )
+        return idx
+    wanted = str(c).strip()
+    for i, name in enumerate(names):
+        if name == wanted or _normalise_name(name) == _normalise_name(wanted):
+            return i
+    raise InputError(f"no column named {wanted!r}; columns are: {', '.join(names)}", source=str(p))
+
+
+def _csv_chunks(p: Path, layout: CsvLayout, rows: int) -> Iterator[tuple[np.ndarray, int]]:
+    """Yield ``(table, first_line_number)`` chunks of all numeric columns."""
+    with open(p, encoding="utf-8-sig") as f:
+        for _ in range(layout.skip_lines):
+            f.readline()
+        line_no = layout.skip_lines + 1
+        while True:
+            lines = []
+            for _ in range(rows):
+                ln = f.readline()
+                if ln == "":
+                    break
+                if ln.strip() and not ln.lstrip().startswith("#"):
+                    lines.append(ln)
+            if not lines:
+                return
+            try:
+                table = np.loadtxt(
+                    _stdio.StringIO("".join(lines)),
+                    delimiter=layout.delimiter,
+                    ndmin=2,
+                    dtype=np.float64,
+                )
+            except ValueError as exc:
+                raise RecordingError(
+                    f"unreadable row near line {line_no}: {exc}", source=str(p)
+                ) from None
+            if table.shape[1] != layout.n_columns:
+                raise RecordingError(
+                    f"rows near line {line_no} have {table.shape[1]} columns, "
+                    f"expected {layout.n_columns}",
+                    source=str(p),
+                )
+            yield table, line_no
+            line_no += len(lines)
+
+
+def _validate_csv(p: Path, layout: CsvLayout) -> tuple[int, float | None]:
+    """One streaming pass: count rows, reject NaN/inf, derive the rate from time."""
+    frames = 0
+    t_first = t_prev = None
+    spacing_ref = None
+    diffs_min = math.inf
+    diffs_max = -math.inf
+    needed = list(layout.value_columns) + (
+        [layout.time_column] if layout.time_column is not None else []
+    )
+    for table, _line_no in _csv_chunks(p, layout, _CSV_CHUNK_ROWS):
+        sub = table[:, needed]
+        bad = ~np.isfinite(sub)
+        if bad.any():
+            row, col = np.argwhere(bad)[0]
+            name = layout.column_names[needed[col]]
+            raise RecordingError(
+                f"non-finite value ({sub[row, col]}) in column {name!r} at data row "
+                f"{frames + row + 1}",
+                source=str(p),
+            )
+        if layout.time_column is not None:
+            t = table[:, layout.time_column]
+            if t_prev is not None:
+                t = np.concatenate([[t_prev], t])
+            if t.size >= 2:
+                d = np.diff(t)
+                diffs_min = min(diffs_min, float(d.min()))
+                diffs_max = max(diffs_max, float(d.max()))
+            if t_first is None:
+                t_first = float(table[0, layout.time_column])
+            t_prev = float(t[-1])
+        frames += table.shape[0]
+    rate = None
+    if layout.time_column is not None and frames >= 2:
+        spacing_ref = (t_prev - t_first) / (frames - 1)
+        if not spacing_ref > 0:
+            raise InputError(
+                "time column does not increase; give --rate if the first column is data",
+                source=str(p),
+            )
+        worst = max(abs(diffs_min - spacing_ref), abs(diffs_max - spacing_ref)) / spacing_ref
+        if worst > TIME_SPACING_TOLERANCE:
+            raise InputError(
+                f"time column is not uniformly spaced (steps from {diffs_min:.6g} to "
+                f"{diffs_max:.6g} s, {100 * worst:.2g} % off the mean step; the limit is "
+                f"{100 * TIME_SPACING_TOLERANCE:g} %); resample it or give --rate and "
+                "--columns",
+                source=str(p),
+            )
+        rate = 1.0 / spacing_ref
+    elif layout.time_column is not None:
+        raise InputError(
+            "a time column with a single row cannot give a sample rate; give --rate",
+            source=str(p),
+        )
+    return frames, rate
+
+
+def _csv_blocks(p: Path, layout: CsvLayout, step: int) -> Iterator[np.ndarray]:
+    cols = list(layout.value_columns)
+    pending: list[np.ndarray] = []
+    have = 0
+    for table, _ in _csv_chunks(p, layout, max(step, 4096)):
+        pending.append(table[:, cols])
+        have += table.shape[0]
+        while have >= step:
+            joined = np.concatenate(pending) if len(pending) > 1 else pending[0]
+            yield np.ascontiguousarray(joined[:step])
+            rest = joined[step:]
+            pending = [rest] if rest.shape[0] else []
+            have = rest.shape[0]
+    if have:
+        yield np.ascontiguousarray(np.concatenate(pending))
