@@ -200,6 +200,9 @@ def measure_hum(
 
 
 _TOO_NARROW = 1e30  # objective value of a fit range with too few bands
+# The passband may tilt (pink noise: -10 dB/decade; white: 0); a steeper slope is taken as
+# part of the roll-off, otherwise a first-order slope (+20 dB/decade) could pass for tilt.
+_MAX_TILT_DB_PER_DECADE = 10.0
 
 
 def psd_floor(
@@ -256,9 +259,10 @@ def estimate_rolloff(
     (90th percentile of the band levels) hold no usable content. Over the contiguous
     bands with content, the shape of a first-order high-pass, |H|² = r²/(1 + r²), and of a
     second-order Butterworth high-pass, |H|² = r⁴/(1 + r⁴), r = f/f_c, is fitted in dB by
-    weighted least squares over ``[lowest content, rolloff_fit_span × f_c]`` (level and f_c
-    free; weights from the statistical scatter of each band). The misfit is the RMS
-    deviation beyond that scatter.
+    weighted least squares over ``[lowest content, rolloff_fit_span × f_c]``. Free are f_c,
+    the passband level and a passband tilt of at most ±10 dB/decade (white noise is flat,
+    pink noise falls 10 dB/decade); weights come from the statistical scatter of each
+    band. The misfit is the RMS deviation beyond that scatter.
 
     The answer is never a guess:
 
@@ -314,20 +318,29 @@ def estimate_rolloff(
         groups[-1] = np.concatenate([groups[-1], np.array(current)])
     if len(groups) < 8:
         return fail("too few frequency bands to fit a corner")
-    level = np.array([10 * math.log10(max(float(np.median(p[g])), 1e-300)) for g in groups])
+    # Band level: the mean of the band's bins after dropping bins that stand out as
+    # narrowband lines (above the 1e-3 upper tail of the estimate's χ² scatter, taken
+    # from the band median).
+    nu = _dof(averages)
+    tail = float(
+        stats.gamma.isf(1e-3, nu / 2.0, scale=2.0 / nu)
+        / stats.gamma.median(nu / 2.0, scale=2.0 / nu)
+    )
+    groups = [g[p[g] <= tail * np.median(p[g])] for g in groups]
+    level = np.array([10 * math.log10(max(float(np.mean(p[g])), 1e-300)) for g in groups])
     count = np.array([g.size for g in groups], dtype=np.float64)
     # Scatter of each band level (dB): one bin of a ν-dof estimate scatters by
-    # 10 lg(e)·sqrt(2/ν); the median of n bins, about sqrt(π/2) worse than a mean, over
-    # n/1.5 independent bins (Hann bins overlap; NENBW 1.5, Harris 1978).
-    nu = _dof(averages)
-    sigma = 10 * math.log10(math.e) * math.sqrt(2.0 / nu) * math.sqrt(math.pi / 2)
+    # 10 lg(e)·sqrt(2/ν); the mean of n bins over about n/1.5 independent ones (Hann
+    # bins overlap; NENBW 1.5, Harris 1978).
+    sigma = 10 * math.log10(math.e) * math.sqrt(2.0 / nu)
     sigma_b = sigma / np.sqrt(np.maximum(count / 1.5, 1.0))
     weight = 1.0 / sigma_b**2
     f_lo_band = np.array([freqs[g[0]] for g in groups])
-    # The two middle bins of each band: the model's band median (the model is monotonic).
-    mid_a = np.array([freqs[g[(len(g) - 1) // 2]] for g in groups])
-    mid_b = np.array([freqs[g[len(g) // 2]] for g in groups])
-    centre = np.sqrt(mid_a * mid_b)
+    # The model's band value is its mean over the band's bins (bins concatenated in band
+    # order; ``starts`` indexes each band's first bin).
+    bin_f = freqs[np.concatenate(groups)]
+    starts = np.concatenate([[0], np.cumsum(count[:-1])]).astype(np.int64)
+    centre = np.array([math.sqrt(freqs[g[0]] * freqs[g[-1]]) for g in groups])
     passband = float(np.percentile(level, 90))
     content = level >= passband - th.rolloff_content_db
     first = int(np.argmax(level))
@@ -343,62 +356,79 @@ def estimate_rolloff(
     if sel.size < 8:
         return fail(no_content, f_content)
 
-    def misfit(log_fc: float, order: int) -> tuple[float, float]:
-        """(systematic misfit in dB, fitted level offset) for a corner exp(log_fc)."""
-        fc = math.exp(log_fc)
-        use = sel[centre[sel] <= th.rolloff_fit_span * fc]
-        if use.size < 6:
-            return math.inf, 0.0
-        model = 10 * np.log10(
-            0.5 * (_hp_power(mid_a[use] / fc, order) + _hp_power(mid_b[use] / fc, order))
-        )
-        resid = level[use] - model
-        w = weight[use]
-        offset = float(np.sum(w * resid) / np.sum(w))
-        excess = np.mean((resid - offset) ** 2) - np.mean(sigma_b[use] ** 2)
-        return math.sqrt(max(float(excess), 0.0)), offset
+    log_centre = np.log10(centre)
 
-    def objective(log_fc: float, order: int) -> float:
+    def fit(
+        log_fc: float, order: int, use: np.ndarray | None = None
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """Residuals, weights and bands of the best level and tilt at a corner.
+
+        The bands used are those up to ``rolloff_fit_span`` × the corner, unless given.
+        """
         fc = math.exp(log_fc)
-        use = sel[centre[sel] <= th.rolloff_fit_span * fc]
+        if use is None:
+            use = sel[centre[sel] <= th.rolloff_fit_span * fc]
         if use.size < 6:
-            return _TOO_NARROW
-        model = 10 * np.log10(
-            0.5 * (_hp_power(mid_a[use] / fc, order) + _hp_power(mid_b[use] / fc, order))
-        )
-        resid = level[use] - model
+            return None
+        # ``use`` is a contiguous run of bands: their bins are contiguous too.
+        lo_bin = starts[use[0]]
+        hi_bin = starts[use[-1]] + int(count[use[-1]])
+        power = _hp_power(bin_f[lo_bin:hi_bin] / fc, order)
+        model = 10 * np.log10(np.add.reduceat(power, starts[use] - lo_bin) / count[use])
+        y = level[use] - model
         w = weight[use]
-        offset = float(np.sum(w * resid) / np.sum(w))
-        # Mean weighted square deviation: comparable between fit ranges of different size.
-        return float(np.sum(w * (resid - offset) ** 2) / np.sum(w) / np.mean(sigma_b[use] ** 2))
+        x = log_centre[use]
+        xm = float(np.sum(w * x) / np.sum(w))
+        ym = float(np.sum(w * y) / np.sum(w))
+        sxx = float(np.sum(w * (x - xm) ** 2))
+        tilt = float(np.sum(w * (x - xm) * (y - ym)) / sxx) if sxx > 0 else 0.0
+        tilt = min(max(tilt, -_MAX_TILT_DB_PER_DECADE), _MAX_TILT_DB_PER_DECADE)
+        return y - ym - tilt * (x - xm), w, use
+
+    def objective(log_fc: float, order: int, use: np.ndarray | None = None) -> float:
+        got = fit(log_fc, order, use)
+        if got is None:
+            return _TOO_NARROW
+        resid, w, used = got
+        # Mean weighted square deviation in units of the statistical scatter: comparable
+        # between fit ranges of different size.
+        return float(np.sum(w * resid**2) / np.sum(w) / np.mean(sigma_b[used] ** 2))
 
     log_lo = math.log(f_content / 8.0)
     log_hi = math.log(f_top / th.rolloff_fit_span)
     if log_hi <= log_lo:
         return fail("too little bandwidth above the lowest content to fit a corner", f_content)
     grid = np.linspace(log_lo, log_hi, 240)
-    best: tuple[float, float, int] = (math.inf, 0.0, 1)
+    step = float(grid[1] - grid[0])
+    best: tuple[float, float, int] = (_TOO_NARROW, 0.0, 1)
     for order in (1, 2):
         errs = np.array([objective(g, order) for g in grid])
         i = int(np.argmin(errs))
         if errs[i] >= _TOO_NARROW:
             continue
-        res = optimize.minimize_scalar(
-            lambda g, o=order: objective(g, o),
-            bounds=(grid[max(i - 1, 0)], grid[min(i + 1, grid.size - 1)]),
-            method="bounded",
-            options={"xatol": 1e-4},
-        )
-        cand = (float(res.fun), float(res.x), order)
-        if errs[i] < cand[0]:
-            cand = (float(errs[i]), float(grid[i]), order)
-        if cand[0] < best[0]:
-            best = cand
-    _, log_fc, order = best
+        # The coarse search changes its band set with the corner, which makes the
+        # objective jump; refine with the band set held fixed, twice (the second time
+        # with the bands belonging to the refined corner).
+        log_fc = float(grid[i])
+        for _ in range(2):
+            use = sel[centre[sel] <= th.rolloff_fit_span * math.exp(log_fc)]
+            res = optimize.minimize_scalar(
+                lambda g, o=order, u=use: objective(g, o, u),
+                bounds=(log_fc - 4 * step, log_fc + 4 * step),
+                method="bounded",
+                options={"xatol": 1e-5},
+            )
+            log_fc = float(res.x)
+        value = objective(log_fc, order)
+        if value < best[0]:
+            best = (value, log_fc, order)
     if best[0] >= _TOO_NARROW:
         return fail("too little bandwidth to fit a corner", f_content)
+    _, log_fc, order = best
     fc = math.exp(log_fc)
-    resid_db, offset = misfit(log_fc, order)
+    resid, _, use = fit(log_fc, order)  # type: ignore[misc]
+    excess = float(np.mean(resid**2) - np.mean(sigma_b[use] ** 2))
+    resid_db = math.sqrt(max(excess, 0.0))
     shape_ok = resid_db <= th.rolloff_max_residual_db
     if not at_floor and (fc < 2.0 * f_content or not shape_ok):
         return fail(
@@ -414,8 +444,10 @@ def estimate_rolloff(
             f_content,
         )
     if fc < 2.0 * f_content:
-        lowest = float(np.average(level[sel[:3]], weights=weight[sel[:3]]))
-        if lowest >= offset - 3.0:
+        # Flat means: the lowest bands sit on the fitted level-and-tilt line, no
+        # high-pass attenuation is visible (the fitted corner's own is below 3 dB there).
+        hp_low = 10 * math.log10(float(_hp_power(np.array([f_content / fc]), order)[0]))
+        if hp_low >= -3.0:
             return RolloffResult(
                 "below range",
                 None,

@@ -141,7 +141,9 @@ class Thresholds:
         1.5, "largest RMS misfit of the high-pass shape that still gives a corner (dB)"
     )
     rolloff_fit_span: float = _th(
-        10.0, "the fit uses frequencies up to this multiple of the corner"
+        40.0,
+        "the fit uses frequencies up to this multiple of the corner (enough passband to "
+        "pin its level and tilt)",
     )
     # Noise floor
     noise_interval_s: float = _th(0.1, "interval whose RMS level is one noise-floor sample (s)")

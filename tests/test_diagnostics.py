@@ -148,13 +148,32 @@ def _white(seconds: float, seed: int, fs: float = FS) -> np.ndarray:
 def test_rolloff_of_noise_through_a_known_high_pass(order):
     # scipy.signal.butter designs the digital high-pass with its -3 dB corner at exactly
     # 40 Hz (bilinear transform with pre-warping); order 1 is the RC high-pass shape.
-    # The issue asks for the corner within 10 %; 20 s of noise averages 6 segments.
+    # The issue asks for the corner within 10 %. With 20 s of noise (6 averages) the
+    # estimate scattered by 2.8 % (order 1) and 1 % (order 2) over ten other seeds, worst
+    # 6.8 %: 10 % is about 3.5 standard deviations for the first order.
     sos = signal.butter(order, 40.0, "highpass", fs=FS, output="sos")
     x = 0.1 * signal.sosfilt(sos, _white(20.0, 7))
     r = check_capture(x, FS).channels[0].rolloff
     assert r.status == "estimated", r.reason
     assert r.order == order
     assert r.corner_hz == pytest.approx(40.0, rel=0.10)
+
+
+def test_rolloff_of_pink_noise_through_a_second_order_high_pass():
+    # Pink noise falls 10 dB/decade: the fit's passband tilt takes it, so the corner is
+    # not pulled down (without the tilt it read 10 Hz here). Pink noise by 1/sqrt(f)
+    # shaping of white noise (common practice); corner 20 Hz from scipy.signal.butter.
+    x = _white(20.0, 13)
+    spec = np.fft.rfft(x)
+    f = np.fft.rfftfreq(x.size, 1 / FS)
+    spec[1:] /= np.sqrt(f[1:])
+    spec[0] = 0.0
+    x = np.fft.irfft(spec, x.size)
+    x = signal.sosfilt(signal.butter(2, 20.0, "highpass", fs=FS, output="sos"), x)
+    r = check_capture(x / np.std(x), FS).channels[0].rolloff
+    assert r.status == "estimated", r.reason
+    assert r.order == 2
+    assert r.corner_hz == pytest.approx(20.0, rel=0.10)
 
 
 def test_rolloff_not_determinable_without_energy_below_100_hz():
