@@ -57,6 +57,7 @@ from piezo._diag_thresholds import (
     worst_severity,
 )
 from piezo.errors import InputError, RecordingError
+from piezo.units import format_quantity
 
 __all__ = [
     "CaptureChecker",
@@ -168,7 +169,8 @@ class HeadroomResult:
 
 @dataclass(frozen=True)
 class DcResult:
-    dc_offset: float
+    dc_offset: float  # in the unit of the samples
+    dc_offset_v: float  # in volts (at the sensor output)
     dc_fraction_of_fs: float | None
     ac_rms: float
     dc_re_rms: float | None  # |DC| / AC RMS
@@ -266,7 +268,7 @@ class ChannelDiagnostics:
             "peak_dbfs": _num(h.peak_dbfs),
             "rms": h.rms,
             "crest_factor_db": _num(h.crest_factor_db),
-            "dc_offset_v": d.dc_offset,
+            "dc_offset_v": d.dc_offset_v,
             "dc": {
                 "offset": d.dc_offset,
                 "fraction_of_full_scale": _num(d.dc_fraction_of_fs),
@@ -374,6 +376,11 @@ class CaptureDiagnostics:
         }
 
 
+def _pct(fraction: float) -> str:
+    """A fraction as a percentage with two significant digits: '0.012 %'."""
+    return f"{100 * fraction:.2g} %"
+
+
 def _num(value: float | None) -> float | None:
     """A finite float, or None (JSON has no infinities)."""
     if value is None:
@@ -415,6 +422,9 @@ class CaptureChecker:
         20e-6 for dB re 20 µPa when the samples are in pascals).
     unit
         Name of the unit of the samples, for the evidence texts (``"V"`` or ``"Pa"``).
+    volts_per_unit
+        Volts per unit of the samples (the sensitivity in V/Pa for pressure samples, 1 for
+        volts), for ``dc_offset_v`` in the JSON form.
     channel_indices
         Channel numbers in the source file, for the results (default 0, 1, ...).
 
@@ -434,6 +444,7 @@ class CaptureChecker:
         metadata: CaptureMetadata | None = None,
         reference: float = 1.0,
         unit: str = "V",
+        volts_per_unit: float = 1.0,
         channel_indices: Sequence[int] | None = None,
     ) -> None:
         if not (isinstance(sample_rate_hz, int | float) and math.isfinite(sample_rate_hz)):
@@ -453,6 +464,9 @@ class CaptureChecker:
         self.metadata = metadata or CaptureMetadata()
         self.reference = float(reference)
         self.unit = unit
+        if not (math.isfinite(volts_per_unit) and volts_per_unit > 0):
+            raise InputError(f"volts_per_unit: must be positive, got {volts_per_unit!r}")
+        self.volts_per_unit = float(volts_per_unit)
         if channel_indices is None:
             channel_indices = list(range(channels))
         if len(channel_indices) != channels:
@@ -732,7 +746,11 @@ class CaptureChecker:
 
     # ---------------------------------------------------------------- pieces
     def _fmt(self, value: float) -> str:
-        return f"{value:.4g} {self.unit}"
+        return format_quantity(value, self.unit)
+
+    def _ref(self) -> str:
+        """'dB re 20 µPa', 'dB re 1 V' ..."""
+        return f"dB re {format_quantity(self.reference, self.unit)}"
 
     def _dbfs(self, value: float) -> float | None:
         if self.full_scale is None or value <= 0:
@@ -804,9 +822,10 @@ class CaptureChecker:
             digital_determinable=self.full_scale is not None,
         )
         threshold = (
-            f"run of >= {th.clip_min_run} samples at >= {th.digital_clip_level:g} of full "
-            f"scale, or flat at the extreme with histogram spike >= {th.clip_spike_ratio:g}; "
-            f"fail from {th.clip_fail_fraction:g} of samples"
+            f"clip = run of >= {th.clip_min_run} samples at >= {th.digital_clip_level:g} of "
+            f"full scale, or flat at the extreme with value-histogram spike >= "
+            f"{th.clip_spike_ratio:g}; any clip warns, fail from {_pct(th.clip_fail_fraction)} "
+            "of samples"
         )
         if total == 0 and result.over_samples == 0:
             evidence = "no clipping found"
@@ -820,7 +839,7 @@ class CaptureChecker:
                 where += f" ({lv.level_dbfs:.2f} dBFS)"
             parts.append(f"{lv.kind} clip at {where} on the {lv.side} side")
         evidence = (
-            f"{total} clipped samples ({fraction:.3%}) in {events} events"
+            f"{total} clipped samples ({_pct(fraction)}) in {events} events"
             + (f"; {'; '.join(parts)}" if parts else "")
             + (f"; first at {event_times[0]:.4g} s" if event_times else "")
         )
@@ -846,8 +865,8 @@ class CaptureChecker:
         headroom = None if peak_dbfs is None else -peak_dbfs
         result = HeadroomResult(peak, peak_dbfs, headroom, rms, crest)
         threshold = (
-            f"warn when headroom < {th.headroom_warn_db:g} dB or peak < "
-            f"{th.underrange_warn_dbfs:g} dBFS"
+            f"warn when headroom < {th.headroom_warn_db:g} dB, or peak < "
+            f"{th.underrange_warn_dbfs:g} dBFS (little of the range used)"
         )
         crest_text = f", crest factor {crest:.2f} dB" if crest is not None else ""
         if self.full_scale is None:
@@ -889,18 +908,20 @@ class CaptureChecker:
             drift_re = drift_pp / ac if ac > 0 else None
         else:
             drift_pp = slope = drift_re = None
-        result = DcResult(dc, frac, ac, re_rms, drift_pp, slope, drift_re, int(n))
+        result = DcResult(
+            dc, dc * self.volts_per_unit, frac, ac, re_rms, drift_pp, slope, drift_re, int(n)
+        )
         threshold = (
-            f"warn at |DC| >= {th.dc_warn_fraction:g} of full scale or >= "
-            f"{th.dc_warn_ratio:g} of the AC RMS, fail at >= {th.dc_fail_fraction:g} of full "
-            f"scale; drift warns at >= {th.drift_warn_ratio:g} of the AC RMS (means of "
-            f"{th.drift_interval_s:g} s)"
+            f"|DC| warns from {_pct(th.dc_warn_fraction)} of full scale or "
+            f"{th.dc_warn_ratio:g} × AC RMS, fails from {_pct(th.dc_fail_fraction)} of full "
+            f"scale; drift of {th.drift_interval_s:g} s means warns from "
+            f"{th.drift_warn_ratio:g} × AC RMS"
         )
         evidence = f"DC {self._fmt(dc)}"
         if frac is not None:
-            evidence += f" ({frac:.3%} of full scale)"
+            evidence += f" ({_pct(frac)} of full scale)"
         if re_rms is not None:
-            evidence += f", {re_rms:.3g} × AC RMS"
+            evidence += f" = {re_rms:.2g} × AC RMS"
         if drift_pp is not None:
             evidence += f"; drift {self._fmt(drift_pp)} p-p over {int(n)} intervals"
         else:
@@ -966,8 +987,8 @@ class CaptureChecker:
             silent=bool(silent),
         )
         threshold = (
-            f"runs of >= {self._dropout_min} equal samples; any warns, fail from "
-            f"{th.dropout_fail_fraction:g} of samples; any time-column gap warns"
+            f"dropout = run of >= {self._dropout_min} equal samples; any dropout or "
+            f"time-column gap warns, fail from {_pct(th.dropout_fail_fraction)} of samples"
         )
         if silent:
             return result, Check(
@@ -990,7 +1011,7 @@ class CaptureChecker:
             parts.append(f"{meta.time_gaps} gaps in the time column{gap}")
         if not parts:
             return result, Check("dropouts", Severity.OK, "no dropouts found", threshold)
-        evidence = "; ".join(parts) + f" ({fraction:.3%} of samples)"
+        evidence = "; ".join(parts) + f" ({_pct(fraction)} of samples)"
         if event_times:
             evidence += f"; first at {event_times[0]:.4g} s"
         sev = Severity.FAIL if fraction >= th.dropout_fail_fraction else Severity.WARN
@@ -1007,8 +1028,8 @@ class CaptureChecker:
     def _hum_check(self, hum: HumResult) -> Check:
         th = self.thresholds
         threshold = (
-            f"line >= {th.hum_detect_db:g} dB above the local floor; warn at >= "
-            f"{th.hum_warn_db:g} dB, fail at >= {th.hum_fail_db:g} dB re the AC power"
+            f"hum = line >= {th.hum_detect_db:g} dB above the local floor; warns from "
+            f"{th.hum_warn_db:g} dB, fails from {th.hum_fail_db:g} dB re the AC power"
         )
         if hum.status != "detected":
             text = (
@@ -1020,7 +1041,7 @@ class CaptureChecker:
         rel = hum.re_total_db
         evidence = (
             f"mains {hum.mains_hz:g} Hz: lines at {harmonics}; together "
-            f"{hum.level_db:.1f} dB re {self._fmt(self.reference)}"
+            f"{hum.level_db:.1f} {self._ref()}"
             + (f", {rel:.1f} dB re the AC power" if rel is not None else "")
         )
         sev = Severity.OK
@@ -1034,7 +1055,7 @@ class CaptureChecker:
         th = self.thresholds
         exp = th.rolloff_expected_hz
         threshold = (
-            f"expected corner {exp:g} Hz ± {th.rolloff_tolerance:.0%}"
+            f"expected corner {exp:g} Hz ± {_pct(th.rolloff_tolerance)}"
             if exp is not None
             else "no expected corner given"
         ) + f"; fit misfit <= {th.rolloff_max_residual_db:g} dB"
@@ -1071,12 +1092,12 @@ class CaptureChecker:
         floor = self._percentile_db(c, th.noise_floor_percentile)
         sig = self._percentile_db(c, th.signal_percentile)
         threshold = (
-            f"floor = {th.noise_floor_percentile:g}th percentile, signal = "
-            f"{th.signal_percentile:g}th percentile of {th.noise_interval_s:g} s interval "
-            f"levels; signal present when >= {th.signal_presence_db:g} dB above the floor; "
-            f"SNR < {th.snr_warn_db:g} dB warns"
+            f"floor / signal = {th.noise_floor_percentile:g}th / "
+            f"{th.signal_percentile:g}th percentile of {th.noise_interval_s:g} s levels; "
+            f"SNR given when >= {th.signal_presence_db:g} dB, warns below "
+            f"{th.snr_warn_db:g} dB"
         )
-        ref = f"dB re {self._fmt(self.reference)}"
+        ref = self._ref()
         if floor is None or sig is None:
             reason = (
                 "shorter than one noise interval"
@@ -1090,7 +1111,10 @@ class CaptureChecker:
         snr = sig - floor
         evidence = f"quietest intervals {floor:.1f} {ref}"
         if psd_floor is not None:
-            evidence += f"; PSD floor {psd_floor:.1f} dB re ({self._fmt(self.reference)})²/Hz"
+            evidence += (
+                f"; PSD floor {psd_floor:.1f} dB re "
+                f"({format_quantity(self.reference, self.unit)})²/Hz"
+            )
         if silent:
             evidence += f"; {silent} silent intervals"
         if snr >= th.signal_presence_db:
@@ -1162,6 +1186,7 @@ def check_capture(
     metadata: CaptureMetadata | None = None,
     reference: float = 1.0,
     unit: str = "V",
+    volts_per_unit: float = 1.0,
     channel_indices: Sequence[int] | None = None,
 ) -> CaptureDiagnostics:
     """Diagnose a whole capture held in memory (thin wrapper over :class:`CaptureChecker`).
@@ -1181,6 +1206,7 @@ def check_capture(
         metadata=metadata,
         reference=reference,
         unit=unit,
+        volts_per_unit=volts_per_unit,
         channel_indices=channel_indices,
     )
     checker.update(x)

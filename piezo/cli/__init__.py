@@ -32,6 +32,7 @@ COMMAND_MODULES = (
     "info",
     "calibrate",
     "demo",
+    "check",
 )
 
 app = typer.Typer(
