@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
+import json
+
+import jsonschema
 import numpy as np
 import pytest
 import soundfile as sf
 
 from piezo.diagnostics import Thresholds
-from tests.conftest import RECORDINGS
+from tests.conftest import RECORDINGS, REPO
+
+SCHEMA = json.loads((REPO / "docs" / "check.schema.json").read_text(encoding="utf-8"))
 
 FS = 48000
 
@@ -165,3 +170,23 @@ def test_demo_recordings(cli):
     r = cli("check", RECORDINGS / "tap-test.csv", "--json")
     assert r.code == 0
     assert r.json()["full_scale"] is None
+
+
+def test_json_validates_against_the_shipped_schema(cli, clean, clipped):
+    validator = jsonschema.Draft202012Validator(SCHEMA)
+    validator.check_schema(SCHEMA)
+    docs = [
+        cli("check", clean, "--json").json(),
+        cli("check", clipped, "--json").json(),
+        cli("check", RECORDINGS / "tap-test.csv", "--json").json(),
+    ]
+    for doc in docs:
+        validator.validate(doc)
+    # The schema is not a rubber stamp: a broken document is refused.
+    broken = docs[1]
+    broken["channels"][1]["rolloff"]["status"] = "guessed"
+    with pytest.raises(jsonschema.ValidationError):
+        validator.validate(broken)
+    del docs[0]["channels"][0]["clipping"]["clipped_samples"]
+    with pytest.raises(jsonschema.ValidationError):
+        validator.validate(docs[0])

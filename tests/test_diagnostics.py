@@ -9,6 +9,7 @@ from __future__ import annotations
 import itertools
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -523,3 +524,22 @@ def test_memory_does_not_grow_with_length():
             assert len(side.hist) <= bound
             assert len(side.runs) <= bound
     assert checker._spectrum.buffer.shape == (2**15, 1)
+
+
+def test_every_threshold_is_documented_with_its_default():
+    doc = (Path(__file__).resolve().parent.parent / "docs" / "diagnostics.md").read_text(
+        encoding="utf-8"
+    )
+    rows = {}
+    for line in doc.splitlines():
+        if line.startswith("| `"):
+            cells = [c.strip() for c in line.strip("|").split("|")]
+            rows[cells[0].strip("`")] = cells[1].replace("−", "-")
+    for name, default, _ in Thresholds.describe():
+        assert name in rows, name
+        if default is None:
+            assert rows[name] == "none"
+        elif isinstance(default, tuple):
+            assert [float(v) for v in rows[name].split(",")] == list(default), name
+        else:
+            assert float(rows[name]) == default, name
