@@ -57,6 +57,14 @@ class RolloffResult:
     lowest_content_hz: float | None
     expected_corner_hz: float | None
     reason: str
+    # Evidence: the band levels the fit saw (dB re reference²/Hz at the band centres) and
+    # the fitted passband (level at 1 kHz and tilt) when a fit was made.
+    band_hz: tuple[float, ...] = ()
+    band_level_db: tuple[float, ...] = ()
+    fit_level_db: float | None = None
+    tilt_db_per_decade: float | None = None
+    fit_order: int | None = None
+    fit_corner_hz: float | None = None
 
 
 # A line must stand out of the PSD's own scatter with this false-alarm probability per
@@ -249,6 +257,7 @@ def estimate_rolloff(
     *,
     averages: int = 1,
     exclude_hz: Sequence[float] = (),
+    reference: float = 1.0,
     thresholds: Thresholds | None = None,
 ) -> RolloffResult:
     """Estimate the low-frequency corner of a capture from its PSD.
@@ -284,14 +293,20 @@ def estimate_rolloff(
         Number of averaged periodograms behind ``psd`` (for the scatter).
     exclude_hz
         Frequencies of narrowband lines to leave out (e.g. detected hum).
+    reference
+        Reference of the band levels in the evidence (dB re reference²/Hz).
     thresholds
         Limits (:class:`Thresholds`).
     """
     th = thresholds or Thresholds()
     expected = th.rolloff_expected_hz
 
+    evidence: dict = {}
+
     def fail(reason: str, content: float | None = None) -> RolloffResult:
-        return RolloffResult("not determinable", None, None, None, None, content, expected, reason)
+        return RolloffResult(
+            "not determinable", None, None, None, None, content, expected, reason, **evidence
+        )
 
     freqs = np.asarray(frequencies_hz, dtype=np.float64)
     p = np.asarray(psd, dtype=np.float64)
@@ -357,11 +372,14 @@ def estimate_rolloff(
         return fail(no_content, f_content)
 
     log_centre = np.log10(centre)
+    evidence["band_hz"] = tuple(float(f) for f in centre)
+    ref_db = 20 * math.log10(reference)
+    evidence["band_level_db"] = tuple(float(v) - ref_db for v in level)
 
     def fit(
         log_fc: float, order: int, use: np.ndarray | None = None
-    ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
-        """Residuals, weights and bands of the best level and tilt at a corner.
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, float, float] | None:
+        """Residuals, weights, bands, level at 1 kHz and tilt of the best passband line.
 
         The bands used are those up to ``rolloff_fit_span`` × the corner, unless given.
         """
@@ -383,13 +401,13 @@ def estimate_rolloff(
         sxx = float(np.sum(w * (x - xm) ** 2))
         tilt = float(np.sum(w * (x - xm) * (y - ym)) / sxx) if sxx > 0 else 0.0
         tilt = min(max(tilt, -_MAX_TILT_DB_PER_DECADE), _MAX_TILT_DB_PER_DECADE)
-        return y - ym - tilt * (x - xm), w, use
+        return y - ym - tilt * (x - xm), w, use, ym + tilt * (3.0 - xm), tilt
 
     def objective(log_fc: float, order: int, use: np.ndarray | None = None) -> float:
         got = fit(log_fc, order, use)
         if got is None:
             return _TOO_NARROW
-        resid, w, used = got
+        resid, w, used, _, _ = got
         # Mean weighted square deviation in units of the statistical scatter: comparable
         # between fit ranges of different size.
         return float(np.sum(w * resid**2) / np.sum(w) / np.mean(sigma_b[used] ** 2))
@@ -426,7 +444,13 @@ def estimate_rolloff(
         return fail("too little bandwidth to fit a corner", f_content)
     _, log_fc, order = best
     fc = math.exp(log_fc)
-    resid, _, use = fit(log_fc, order)  # type: ignore[misc]
+    resid, _, use, level_1k, tilt = fit(log_fc, order)  # type: ignore[misc]
+    evidence.update(
+        fit_level_db=level_1k - ref_db,
+        tilt_db_per_decade=tilt,
+        fit_order=order,
+        fit_corner_hz=fc,
+    )
     excess = float(np.mean(resid**2) - np.mean(sigma_b[use] ** 2))
     resid_db = math.sqrt(max(excess, 0.0))
     shape_ok = resid_db <= th.rolloff_max_residual_db
@@ -458,6 +482,7 @@ def estimate_rolloff(
                 expected,
                 f"spectrum flat within 3 dB down to {f_content:.3g} Hz, the lowest analysed "
                 "frequency: the corner lies below it",
+                **evidence,
             )
         return fail(
             f"less than one octave of content below the fitted corner ({fc:.3g} Hz)",
@@ -473,4 +498,5 @@ def estimate_rolloff(
         expected,
         f"{'first' if order == 1 else 'second'}-order high-pass shape, misfit "
         f"{resid_db:.2g} dB RMS over {f_content:.3g}..{th.rolloff_fit_span * fc:.3g} Hz",
+        **evidence,
     )

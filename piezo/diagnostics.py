@@ -288,6 +288,12 @@ class ChannelDiagnostics:
                 "lowest_content_hz": _num(r.lowest_content_hz),
                 "expected_corner_hz": _num(r.expected_corner_hz),
                 "reason": r.reason,
+                "band_hz": list(r.band_hz),
+                "band_level_db": [_num(v) for v in r.band_level_db],
+                "fit_level_db": _num(r.fit_level_db),
+                "tilt_db_per_decade": _num(r.tilt_db_per_decade),
+                "fit_order": r.fit_order,
+                "fit_corner_hz": _num(r.fit_corner_hz),
             },
             "dropouts": {
                 "zero_runs": dr.zero_runs,
@@ -688,7 +694,12 @@ class CaptureChecker:
                     )
                     exclude = [ln.frequency_hz for ln in hum.lines if ln.detected]
                     rolloff = estimate_rolloff(
-                        freqs, psd_c, averages=averages, exclude_hz=exclude, thresholds=th
+                        freqs,
+                        psd_c,
+                        averages=averages,
+                        exclude_hz=exclude,
+                        reference=self.reference,
+                        thresholds=th,
                     )
                 else:
                     reason = "channel carries no signal"
