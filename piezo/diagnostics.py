@@ -56,6 +56,7 @@ from piezo._diag_thresholds import (
     parse_threshold_assignment,
     worst_severity,
 )
+from piezo.chain import CalibratedSource
 from piezo.errors import InputError, RecordingError
 from piezo.units import format_quantity
 
@@ -77,6 +78,7 @@ __all__ = [
     "Severity",
     "Thresholds",
     "check_capture",
+    "checker_for_source",
     "estimate_rolloff",
     "load_thresholds",
     "measure_hum",
@@ -1186,6 +1188,49 @@ class CaptureChecker:
                 )
             )
         return tuple(checks)
+
+
+def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> CaptureChecker:
+    """A :class:`CaptureChecker` set up for ``source``: full scale, units, metadata.
+
+    The full scale is known for audio files (a raw sample of 1.0); for CSV files only when
+    a full scale was given by option or profile (otherwise the instrument range is
+    unknown and digital clipping and headroom are not determinable).
+    """
+    rec = source.recording
+    chain = source.chain
+    provenance = source.provenance
+    if rec.is_pcm:
+        full_scale: float | None = source.scale
+    elif provenance is not None and provenance.full_scale_v != "default":
+        full_scale = chain.full_scale_v * source.scale
+    else:
+        full_scale = None
+    sidecar_rate = None
+    if provenance is not None:
+        for prof in provenance.profiles:
+            if prof.sample_rate_hz is not None:
+                sidecar_rate = prof.sample_rate_hz
+    metadata = CaptureMetadata(
+        file_rate_hz=rec.sample_rate_hz,
+        sidecar_rate_hz=sidecar_rate,
+        sensitivity_known=chain.calibrated,
+        # The CSV reader refuses a time column with gaps (InputError), so a readable
+        # recording has none to report; the fields stay for a reader that reports them.
+        time_gaps=None,
+        largest_time_gap_s=None,
+    )
+    return CaptureChecker(
+        source.sample_rate_hz,
+        len(source.channel_indices),
+        full_scale=full_scale,
+        thresholds=thresholds,
+        metadata=metadata,
+        reference=source.reference,
+        unit=source.unit,
+        volts_per_unit=chain.sensitivity_v_per_pa or 1.0,
+        channel_indices=list(source.channel_indices),
+    )
 
 
 def check_capture(

@@ -33,6 +33,7 @@ COMMAND_MODULES = (
     "calibrate",
     "demo",
     "check",
+    "report",
 )
 
 app = typer.Typer(

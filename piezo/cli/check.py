@@ -19,17 +19,16 @@ from piezo.cli import EXIT_FAILED
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.diagnostics import (
-    CaptureChecker,
     CaptureDiagnostics,
-    CaptureMetadata,
     Severity,
     Thresholds,
+    checker_for_source,
     load_thresholds,
     parse_threshold_assignment,
 )
 from piezo.units import format_quantity, parse_quantity
 
-__all__ = ["check", "checker_for", "register", "resolve_thresholds", "run_check"]
+__all__ = ["check", "register", "resolve_thresholds", "run_check"]
 
 
 def register(app: typer.Typer) -> None:
@@ -56,50 +55,9 @@ def resolve_thresholds(
     return th.updated(values, source="--threshold") if values else th
 
 
-def checker_for(source: CalibratedSource, thresholds: Thresholds) -> CaptureChecker:
-    """A :class:`CaptureChecker` set up for ``source``: full scale, units, metadata.
-
-    The full scale is known for audio files (a raw sample of 1.0); for CSV files only when
-    a full scale was given by option or profile (otherwise the instrument range is
-    unknown and digital clipping and headroom are not determinable).
-    """
-    rec = source.recording
-    chain = source.chain
-    provenance = source.provenance
-    if rec.is_pcm:
-        full_scale: float | None = source.scale
-    elif provenance is not None and provenance.full_scale_v != "default":
-        full_scale = chain.full_scale_v * source.scale
-    else:
-        full_scale = None
-    sidecar_rate = None
-    if provenance is not None:
-        for prof in provenance.profiles:
-            if prof.sample_rate_hz is not None:
-                sidecar_rate = prof.sample_rate_hz
-    metadata = CaptureMetadata(
-        file_rate_hz=rec.sample_rate_hz,
-        sidecar_rate_hz=sidecar_rate,
-        sensitivity_known=chain.calibrated,
-        time_gaps=getattr(rec, "time_gaps", None),
-        largest_time_gap_s=getattr(rec, "largest_time_gap_s", None),
-    )
-    return CaptureChecker(
-        source.sample_rate_hz,
-        len(source.channel_indices),
-        full_scale=full_scale,
-        thresholds=thresholds,
-        metadata=metadata,
-        reference=source.reference,
-        unit=source.unit,
-        volts_per_unit=chain.sensitivity_v_per_pa or 1.0,
-        channel_indices=list(source.channel_indices),
-    )
-
-
 def run_check(source: CalibratedSource, thresholds: Thresholds) -> CaptureDiagnostics:
     """Read ``source`` once (with a progress bar on a terminal) and return its diagnostics."""
-    checker = checker_for(source, thresholds)
+    checker = checker_for_source(source, thresholds)
     with progress(f"Checking {source.recording.path.name}", source.frames) as advance:
         for block in source.blocks():
             checker.update(block)

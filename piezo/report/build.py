@@ -1,0 +1,81 @@
+"""Assemble a report: the JSON document, the figures, the HTML page, and write them.
+
+This is the report layer: it may write files (atomically, through
+:func:`piezo.cli.output.atomic_output`), the analysis core does not.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+from piezo.cli.output import atomic_output, to_jsonable
+from piezo.report import plots
+from piezo.report.document import (
+    CAUTIONS,
+    REPORT_SCHEMA,
+    chain_section,
+    recording_section,
+    software_versions,
+)
+from piezo.report.html import render_html
+from piezo.report.run import RunResults
+
+__all__ = ["report_document", "report_figures", "write_report"]
+
+
+def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
+    """The JSON document of a run (``docs/report.schema.json``)."""
+    source = run.source
+    diagnostics = run.diagnostics.as_dict()
+    doc: dict[str, Any] = {
+        "report": {
+            "schema": REPORT_SCHEMA,
+            "generated_utc": run.generated_utc,
+            "software": software_versions(),
+            "json_name": json_name,
+        },
+        "cautions": list(CAUTIONS),
+        "recording": recording_section(source),
+        "chain": chain_section(source),
+        "settings": run.settings.as_dict(),
+        "diagnostics": diagnostics,
+        "levels": None,
+        "spectrum": None,
+        "bands": None,
+        "spectrogram": None,
+        "tone": None,
+        "frontend": None,
+        "conformance": {
+            "weighting": [],
+            "bands": None,
+            "note": "no filter self-test available at this sample rate",
+        },
+    }
+    return to_jsonable(doc)
+
+
+def report_figures(run: RunResults) -> dict[str, bytes]:
+    """Every figure of the report, by name, as PNG bytes."""
+    figures: dict[str, bytes] = {}
+    level_unit = run.source.chain.level_unit
+    for ch in run.diagnostics.channels:
+        png = plots.rolloff_figure(ch, level_unit)
+        if png is not None:
+            figures[f"rolloff_{ch.channel}"] = png
+    return figures
+
+
+def write_report(run: RunResults, out_dir: Path, stem: str) -> tuple[Path, Path]:
+    """Write ``<stem>.html`` and ``<stem>.json`` into ``out_dir`` (atomically each)."""
+    html_path = out_dir / f"{stem}.html"
+    json_path = out_dir / f"{stem}.json"
+    doc = report_document(run, json_name=json_path.name)
+    page = render_html(doc, report_figures(run))
+    text = json.dumps(doc, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+    with atomic_output(json_path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+    with atomic_output(html_path) as tmp:
+        tmp.write_text(page, encoding="utf-8")
+    return html_path, json_path

@@ -1,0 +1,86 @@
+"""Figures of a report, drawn from the same result objects as its JSON document.
+
+Nothing is computed here but the drawing: every number plotted is a field of a result
+object (or the same value the JSON document carries). Each function returns PNG bytes.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from piezo.diagnostics import ChannelDiagnostics
+from piezo.report.style import INK, figure, plot_style, png_bytes, trace
+
+__all__ = ["rolloff_figure"]
+
+
+def _hp_db(f: np.ndarray, corner_hz: float, order: int) -> np.ndarray:
+    """10 lg |H|² of the high-pass shape the roll-off check fits (same formula)."""
+    q = (f / corner_hz) ** (2 * order)
+    return 10 * np.log10(q / (1.0 + q))
+
+
+def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
+    """Band levels seen by the roll-off check, with the fitted high-pass shape.
+
+    Returns None when the check saw no bands (nothing to show).
+    """
+    r = ch.rolloff
+    if not r.band_hz:
+        return None
+    f = np.asarray(r.band_hz)
+    level = np.asarray(r.band_level_db)
+    with plot_style():
+        fig = figure(6.6, 3.0)
+        ax = fig.add_subplot()
+        ax.semilogx(
+            f,
+            level,
+            linestyle="none",
+            marker="o",
+            markersize=3.0,
+            color=INK,
+            label="sixth-octave band levels",
+        )
+        if r.fit_corner_hz is not None and r.fit_level_db is not None:
+            order = r.fit_order or 1
+            tilt = r.tilt_db_per_decade or 0.0
+            fit = r.fit_level_db + tilt * (np.log10(f) - 3.0) + _hp_db(f, r.fit_corner_hz, order)
+            kind = "first" if order == 1 else "second"
+            label = f"fitted {kind}-order high-pass, corner {r.fit_corner_hz:.3g} Hz"
+            if r.status != "estimated":
+                label += " (not accepted)"
+            ax.semilogx(f, fit, label=label, **trace(1))
+            ax.axvline(r.fit_corner_hz, **{**trace(3), "linewidth": 0.9})
+        if r.expected_corner_hz is not None:
+            ax.axvline(
+                r.expected_corner_hz,
+                label=f"expected {r.expected_corner_hz:.3g} Hz",
+                **{**trace(2), "linewidth": 1.2},
+            )
+        if r.lowest_content_hz is not None:
+            ax.axvspan(
+                f[0] / 1.2,
+                r.lowest_content_hz,
+                color="#e4e6ea",
+                zorder=0,
+                label="no usable content" if r.lowest_content_hz > f[0] else None,
+            )
+        ax.set_xlabel("frequency / Hz")
+        ax.set_ylabel(f"PSD / {_density_unit(level_unit)}")
+        ax.set_title(f"Channel {ch.channel}: low-frequency roll-off ({r.status})")
+        finite = level[np.isfinite(level)]
+        if finite.size:
+            top = float(finite.max())
+            ax.set_ylim(max(float(finite.min()), top - 90.0) - 3.0, top + 6.0)
+        ax.set_xlim(f[0] / 1.2, f[-1] * 1.2)
+        fig.legend(loc="outside lower center", ncol=2)
+        return png_bytes(fig)
+
+
+def _density_unit(level_unit: str) -> str:
+    """'dB re 20 µPa' -> 'dB re (20 µPa)²/Hz'."""
+    prefix = "dB re "
+    if level_unit.startswith(prefix):
+        return f"{prefix}({level_unit[len(prefix) :]})²/Hz"
+    return f"{level_unit} per Hz"
