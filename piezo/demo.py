@@ -17,6 +17,8 @@ Scenarios
   small circulation pump; levels in dB re 1 µPa (ISO 1683).
 - ``tap-test.csv``: a scope export of a piezo disc struck by a small hammer, with a time
   column and two voltage columns (disc output, and a reference accelerometer channel).
+- ``valve-pickup-*``: contact pickups on a valve test rig measured with a swept sine
+  (see :mod:`piezo.demo_response`).
 """
 
 from __future__ import annotations
@@ -27,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal
 
-__all__ = ["DemoFile", "demo_files"]
+__all__ = ["DemoFile", "demo_files", "demo_texts"]
 
 
 @dataclass(frozen=True)
@@ -237,5 +239,14 @@ SCENARIOS: tuple[Callable[[], DemoFile], ...] = (_calibrator, _pump_bench, _hydr
 
 
 def demo_files() -> list[DemoFile]:
-    """Generate every demo recording (deterministic)."""
-    return [make() for make in SCENARIOS]
+    """Generate every demo recording (deterministic), all scenarios."""
+    from piezo.demo_response import response_demo_files
+
+    return [make() for make in SCENARIOS] + response_demo_files()
+
+
+def demo_texts() -> dict[str, str]:
+    """Text files that go with the demo recordings (stimulus descriptions, golden data)."""
+    from piezo.demo_response import response_demo_texts
+
+    return dict(response_demo_texts())

@@ -41,3 +41,10 @@ def test_generator_is_deterministic():
 def test_recordings_stay_small():
     total = sum(p.stat().st_size for p in RECORDINGS.rglob("*") if p.is_file())
     assert total < 5e6, f"recordings/ holds {total / 1e6:.1f} MB; the budget is 5 MB"
+
+
+def test_committed_texts_match_generator():
+    from piezo.demo import demo_texts
+
+    for name, text in demo_texts().items():
+        assert (RECORDINGS / name).read_text(encoding="utf-8") == text, name

@@ -32,6 +32,8 @@ COMMAND_MODULES = (
     "info",
     "calibrate",
     "demo",
+    "sweep",
+    "response",
     "check",
     "report",
 )

@@ -10,7 +10,7 @@ import soundfile as sf
 import typer
 
 from piezo.cli.output import atomic_output, console, write_text_atomic
-from piezo.demo import DemoFile, demo_files
+from piezo.demo import DemoFile, demo_files, demo_texts
 
 
 def register(app: typer.Typer) -> None:
@@ -26,10 +26,15 @@ def demo(
     All data is synthetic: scenarios of our own, made to exercise every command.
     """
     out.mkdir(parents=True, exist_ok=True)
-    for item in demo_files():
+    files = demo_files()
+    for item in files:
         write_demo_file(out, item)
-        console.print(f"  {item.name:<28} {item.description}")
-    console.print(f"wrote {len(demo_files())} recordings to {out}")
+        console.print(f"  {item.name:<34} {item.description}")
+    texts = demo_texts()
+    for name, text in texts.items():
+        write_text_atomic(out / name, text)
+        console.print(f"  {name:<34} (text)")
+    console.print(f"wrote {len(files)} recordings and {len(texts)} text files to {out}")
 
 
 def write_demo_file(out: Path, item: DemoFile) -> None:

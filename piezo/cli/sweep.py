@@ -1,0 +1,445 @@
+"""``piezo sweep``: make a sweep or noise stimulus, analyse a swept-sine capture.
+
+``piezo sweep make`` writes the stimulus WAV and, beside it, ``NAME.stimulus.toml`` with
+every parameter (so analysis rebuilds the inverse filter exactly). The suffix keeps it
+apart from the chain profile ``NAME.toml`` that every command reads beside a recording.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+from typing import Annotated
+
+import numpy as np
+import soundfile as sf
+import typer
+
+from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.cli.output import atomic_output, console, emit_json, err_console, write_text_atomic
+from piezo.cli.response import (
+    CsvOption,
+    PlotOption,
+    PointsOption,
+    ReferenceFrequencyOption,
+    SmoothOption,
+    fit_document,
+    golden_document,
+    parse_acoustic_level,
+    parse_frequency,
+    print_fit,
+    table_document,
+    write_csv,
+    write_plot,
+)
+from piezo.errors import InputError, SpecError, UnitError
+from piezo.fit import ResponseTable, deviation_from_golden, fit_response, parse_response_csv
+from piezo.response import analyze_sweep
+from piezo.sweep import (
+    NoiseSpec,
+    SweepSpec,
+    noise_signal,
+    stimulus_from_toml,
+    sweep_signal,
+    sweep_spec,
+)
+from piezo.units import parse_duration, parse_frequency_list, parse_quantity
+
+STIMULUS_SUFFIX = ".stimulus.toml"
+SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
+
+sweep_app = typer.Typer(
+    name="sweep",
+    help="Swept-sine measurement: make the stimulus, analyse the capture.",
+    no_args_is_help=True,
+)
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``sweep`` command group to ``app``."""
+    app.add_typer(sweep_app, name="sweep")
+
+
+def stimulus_sidecar(wav: Path) -> Path:
+    """``NAME.stimulus.toml`` beside ``NAME.wav``."""
+    return wav.with_name(wav.stem + STIMULUS_SUFFIX)
+
+
+_LEVEL_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+))\s*(?:dBFS|dB)?\s*$", re.IGNORECASE)
+
+
+def _parse_level(text: str) -> float:
+    m = _LEVEL_RE.match(text)
+    if not m:
+        raise InputError(f"--level: cannot read {text!r}; give dBFS, e.g. '-6' or '-6 dBFS'")
+    return float(m.group(1))
+
+
+def _parse_rate(text: str) -> float:
+    rate = parse_frequency(text, "--rate")
+    if abs(rate - round(rate)) > 1e-9:
+        raise InputError(f"--rate must be a whole number of hertz for a WAV file, got {text!r}")
+    return float(round(rate))
+
+
+def seconds(text: str, what: str) -> float:
+    """A duration that may be zero (silences, fades)."""
+    try:
+        return parse_duration(text, what=what)
+    except UnitError:
+        if parse_quantity(text, "s", what=what) == 0.0:
+            return 0.0
+        raise
+
+
+def _check_subtype(subtype: str) -> str:
+    if subtype.upper() not in SUBTYPES:
+        raise InputError(f"--subtype {subtype!r}: choose one of {', '.join(SUBTYPES)}")
+    return subtype.upper()
+
+
+def _write_stimulus(out: Path, samples: np.ndarray, rate: float, subtype: str, toml: str) -> Path:
+    fmt = {".wav": "WAV", ".flac": "FLAC"}.get(out.suffix.lower())
+    if fmt is None:
+        raise InputError(f"--out {out.name!r}: the stimulus is written as .wav or .flac")
+    if not sf.check_format(fmt, subtype):
+        raise InputError(f"--subtype {subtype} cannot be written as {fmt}")
+    side = stimulus_sidecar(out)
+    with atomic_output(out) as tmp:
+        sf.write(str(tmp), samples, int(rate), subtype=subtype, format=fmt)
+    write_text_atomic(side, toml)
+    return side
+
+
+OutOption = Annotated[
+    Path, typer.Option("--out", metavar="OUT.wav", help="File to write (.wav or .flac).")
+]
+RateOption = Annotated[str, typer.Option("--rate", metavar="RATE", help="Sample rate, e.g. 48k.")]
+SubtypeOption = Annotated[
+    str, typer.Option("--subtype", help=f"WAV sample format: {', '.join(SUBTYPES)}.")
+]
+
+
+@sweep_app.command("make")
+def make(
+    *,
+    start: Annotated[str, typer.Option("--from", metavar="FREQ", help="Start frequency f1.")],
+    stop: Annotated[str, typer.Option("--to", metavar="FREQ", help="Stop frequency f2.")],
+    duration: Annotated[
+        str, typer.Option("--duration", metavar="TIME", help="Sweep duration T, e.g. 5s.")
+    ],
+    rate: RateOption,
+    out: OutOption,
+    level: Annotated[
+        str, typer.Option("--level", metavar="DBFS", help="Peak level in dBFS (≤ 0).")
+    ] = "-6",
+    silence_before: Annotated[
+        str, typer.Option("--silence-before", metavar="TIME", help="Leading silence.")
+    ] = "0.5 s",
+    silence_after: Annotated[
+        str, typer.Option("--silence-after", metavar="TIME", help="Trailing silence.")
+    ] = "1 s",
+    fade_in: Annotated[
+        str | None,
+        typer.Option("--fade-in", metavar="TIME", help="Fade-in; default half an octave."),
+    ] = None,
+    fade_out: Annotated[
+        str | None,
+        typer.Option("--fade-out", metavar="TIME", help="Fade-out; default 1/24 octave."),
+    ] = None,
+    acoustic_level: Annotated[
+        str | None,
+        typer.Option(
+            "--acoustic-level",
+            metavar="LEVEL",
+            help="Sound pressure the sweep makes at the sensor ('94 dB' or '1 Pa' RMS), "
+            "if known; recorded in the sidecar for calibrated results.",
+        ),
+    ] = None,
+    subtype: SubtypeOption = "PCM_24",
+    json_out: JsonOption = False,
+) -> None:
+    """Write an exponential sine sweep (Farina 2000) and its parameter sidecar.
+
+    The sweep runs from --from to --to in --duration with half-Hann fades, between
+    silences; NAME.stimulus.toml beside NAME.wav records every parameter.
+    """
+
+    spec = sweep_spec(
+        parse_frequency(start, "--from"),
+        parse_frequency(stop, "--to"),
+        parse_duration(duration, what="--duration"),
+        _parse_rate(rate),
+        level_dbfs=_parse_level(level),
+        fade_in_s=None if fade_in is None else seconds(fade_in, "--fade-in"),
+        fade_out_s=None if fade_out is None else seconds(fade_out, "--fade-out"),
+        silence_before_s=seconds(silence_before, "--silence-before"),
+        silence_after_s=seconds(silence_after, "--silence-after"),
+        acoustic_level_pa=parse_acoustic_level(acoustic_level),
+    )
+    side = _write_stimulus(
+        out, sweep_signal(spec), spec.sample_rate_hz, _check_subtype(subtype), spec.to_toml()
+    )
+    doc = {
+        "file": str(out),
+        "sidecar": str(side),
+        "frames": spec.frames,
+        **{k: getattr(spec, k) for k in spec.__dataclass_fields__},
+    }
+    if json_out:
+        emit_json(doc)
+        return
+    console.print(
+        f"wrote {out}: sweep {spec.start_hz:g}–{spec.stop_hz:g} Hz in {spec.duration_s:g} s "
+        f"at {spec.level_dbfs:g} dBFS, {spec.sample_rate_hz:g} Hz, {spec.frames} frames"
+    )
+    console.print(f"  parameters in {side} (give it, or the WAV, to piezo sweep analyze)")
+
+
+@sweep_app.command("noise")
+def noise(
+    *,
+    kind: Annotated[str, typer.Option("--kind", help="pink or white.")],
+    duration: Annotated[str, typer.Option("--duration", metavar="TIME", help="Length.")],
+    rate: RateOption,
+    out: OutOption,
+    level: Annotated[
+        str,
+        typer.Option("--level", metavar="DBFS", help="RMS level in dBFS (AES17: sine = 0)."),
+    ] = "-20",
+    seed: Annotated[int, typer.Option("--seed", min=0, help="Random seed.")] = 1,
+    fade: Annotated[
+        str, typer.Option("--fade", metavar="TIME", help="Half-Hann fade at both ends.")
+    ] = "10 ms",
+    subtype: SubtypeOption = "PCM_24",
+    json_out: JsonOption = False,
+) -> None:
+    """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
+    if kind not in ("pink", "white"):
+        raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
+    spec = NoiseSpec(
+        kind,
+        parse_duration(duration, what="--duration"),
+        _parse_rate(rate),
+        _parse_level(level),
+        seed=seed,
+        fade_s=seconds(fade, "--fade"),
+    )
+    side = _write_stimulus(
+        out, noise_signal(spec), spec.sample_rate_hz, _check_subtype(subtype), spec.to_toml()
+    )
+    doc = {
+        "file": str(out),
+        "sidecar": str(side),
+        "frames": spec.frames,
+        **{k: getattr(spec, k) for k in spec.__dataclass_fields__},
+    }
+    if json_out:
+        emit_json(doc)
+        return
+    console.print(
+        f"wrote {out}: {kind} noise, {spec.duration_s:g} s at {spec.level_dbfs:g} dBFS RMS, "
+        f"seed {seed}"
+    )
+
+
+def load_sweep(path: Path) -> SweepSpec:
+    """The sweep behind ``--stimulus``: a ``.toml`` sidecar, or a WAV with one beside it."""
+    if path.suffix.lower() == ".toml":
+        side = path
+    else:
+        side = stimulus_sidecar(path)
+        if not side.is_file():
+            raise InputError(
+                f"no {side.name} beside the stimulus; give the {STIMULUS_SUFFIX} file written "
+                "by 'piezo sweep make' (the WAV alone does not say f1, f2 and T)",
+                source=str(path),
+            )
+    try:
+        text = side.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError("stimulus file not found", source=str(side)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read the stimulus file: {exc}", source=str(side)) from None
+    spec = stimulus_from_toml(text, source=str(side))
+    if not isinstance(spec, SweepSpec):
+        raise SpecError(
+            f"describes {spec.color} noise; 'sweep analyze' needs a sweep (use 'piezo "
+            "response' for noise stimuli recorded with a reference channel)",
+            source=str(side),
+        )
+    if side is not path and path.is_file():
+        info = sf.info(str(path))
+        if info.samplerate != spec.sample_rate_hz or info.frames != spec.frames:
+            raise SpecError(
+                f"{path.name} ({info.frames} frames at {info.samplerate} Hz) does not match "
+                f"its sidecar ({spec.frames} frames at {spec.sample_rate_hz:g} Hz)",
+                source=str(side),
+            )
+    return spec
+
+
+@sweep_app.command("analyze")
+@source_options
+def analyze(
+    file: Annotated[Path, typer.Argument(help="Capture of the device playing the sweep.")],
+    *,
+    stimulus: Annotated[
+        Path,
+        typer.Option(
+            "--stimulus",
+            metavar="SWEEP",
+            help=f"The sweep: NAME.wav (with NAME{STIMULUS_SUFFIX} beside it) or the sidecar.",
+        ),
+    ],
+    acoustic_level: Annotated[
+        str | None,
+        typer.Option(
+            "--acoustic-level",
+            metavar="LEVEL",
+            help="Sound pressure of the sweep at the sensor ('94 dB' or '1 Pa' RMS); "
+            "overrides the sidecar. Gives the response in dB re 1 V/Pa.",
+        ),
+    ] = None,
+    golden: Annotated[
+        Path | None,
+        typer.Option("--golden", metavar="CSV", help="Golden response: frequency, dB."),
+    ] = None,
+    golden_relative: Annotated[
+        bool,
+        typer.Option(
+            "--golden-relative",
+            help="Align measured and golden at the reference frequency before comparing.",
+        ),
+    ] = False,
+    thd_at: Annotated[
+        str,
+        typer.Option("--thd-at", metavar="FREQS", help="Frequencies to report THD at."),
+    ] = "100 Hz, 1 kHz, 5 kHz",
+    reference_frequency: ReferenceFrequencyOption = "1 kHz",
+    points_per_octave: PointsOption = 24,
+    smooth: SmoothOption = 6,
+    csv: CsvOption = None,
+    plot: PlotOption = None,
+    json_out: JsonOption = False,
+    src: SourceOptions,
+) -> None:
+    """Response, distortion, corner and resonance from a swept-sine capture.
+
+    Deconvolves the capture with the sweep's inverse filter (Farina 2000), finds the
+    latency, and separates the linear response from the harmonics 2 to 5. The capture
+    is taken in volts at the sensor (full scale and gain undone; a sensitivity in the
+    chain is ignored: it is what is measured). With the sweep's acoustic level the
+    magnitude is a sensitivity in dB re 1 V/Pa, otherwise it is relative to the
+    stimulus (dB re 1 V per stimulus full scale).
+    """
+    ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
+    thd_freqs = parse_frequency_list(thd_at, what="--thd-at")
+    spec = load_sweep(stimulus)
+    level_pa = parse_acoustic_level(acoustic_level)
+    source = open_source(file, src)
+    rec = source.recording
+    if len(source.channel_indices) != 1:
+        raise InputError(
+            f"{rec.channels} channels: choose the device's channel with --channel",
+            source=str(file),
+        )
+    volts_per_raw = source.chain.scale(is_pcm=rec.is_pcm)
+    if source.chain.sensitivity_v_per_pa is not None:
+        volts_per_raw *= source.chain.sensitivity_v_per_pa
+    # Whole-array analysis: a sweep capture is seconds to a minute long.
+    capture = np.concatenate(
+        [b[:, 0] for b in rec.blocks(channels=source.channel_indices)] or [np.zeros(0)]
+    )
+    try:
+        result = analyze_sweep(
+            capture * volts_per_raw,
+            spec,
+            rec.sample_rate_hz,
+            unit="V",
+            acoustic_level_pa=level_pa,
+        )
+        table = result.to_table(points_per_octave=points_per_octave)
+        fit = fit_response(
+            table.frequency_hz,
+            table.magnitude_db,
+            reference_hz=ref_hz,
+            magnitude_unit=result.magnitude_unit,
+        )
+    except InputError as exc:
+        raise exc.with_source(str(file)) from None
+    golden_table: ResponseTable | None = None
+    golden_doc = None
+    if golden is not None:
+        try:
+            golden_table = parse_response_csv(
+                golden.read_text(encoding="utf-8"), source=str(golden)
+            )
+        except FileNotFoundError:
+            raise InputError("golden response not found", source=str(golden)) from None
+        try:
+            dev = deviation_from_golden(
+                table.frequency_hz,
+                table.magnitude_db,
+                golden_table.frequency_hz,
+                golden_table.magnitude_db,
+                align_at_hz=ref_hz if golden_relative else None,
+            )
+        except InputError as exc:
+            raise exc.with_source(str(golden)) from None
+        golden_doc = golden_document(dev, golden)
+
+    thd = result.thd_percent_at(thd_freqs)
+    doc = {
+        "file": str(file),
+        "channel": source.channel_indices[0],
+        "stimulus": str(stimulus),
+        "sweep": {k: getattr(spec, k) for k in spec.__dataclass_fields__},
+        "acoustic_level_pa": level_pa if level_pa is not None else spec.acoustic_level_pa,
+        "latency_frames": result.latency_frames,
+        "latency_s": result.latency_s,
+        "peak_to_noise_db": result.peak_to_noise_db,
+        **fit_document(fit),
+        "thd_percent_at": {f"{f:g}": v for f, v in thd.items()},
+        "golden": golden_doc,
+        **table_document(table),
+    }
+    if csv is not None:
+        write_csv(csv, table)
+    if plot is not None:
+        write_plot(
+            plot,
+            table,
+            title=f"{file.name}: swept-sine response",
+            smooth=smooth,
+            golden=golden_table,
+        )
+    if json_out:
+        emit_json(doc)
+    else:
+        _print_summary(doc)
+    for path, what in ((csv, "table"), (plot, "plot")):
+        if path is not None:
+            err_console.print(f"{what} written: {path}")
+
+
+def _print_summary(doc: dict) -> None:
+    console.print(f"[bold]{doc['file']}[/bold]  channel {doc['channel']}")
+    console.print(
+        f"  latency       {doc['latency_frames']} samples ({1e3 * doc['latency_s']:.3f} ms); "
+        f"IR peak/noise {doc['peak_to_noise_db']:.0f} dB"
+    )
+    print_fit(doc)
+    parts = []
+    for f, v in doc["thd_percent_at"].items():
+        text = "—" if v is None or not math.isfinite(v) else f"{v:.3g} %"
+        parts.append(f"{f} Hz {text}")
+    console.print(f"  THD (2–5)     {', '.join(parts)}")
+    g = doc["golden"]
+    if g is not None:
+        how = "aligned at the reference" if g["aligned_at_hz"] else "absolute"
+        console.print(
+            f"  vs golden     worst {g['worst_db']:+.2f} dB at {g['worst_hz']:.4g} Hz, "
+            f"RMS {g['rms_db']:.2f} dB ({how})"
+        )

@@ -1,0 +1,817 @@
+"""Numbers a sensor is judged by, fitted to a measured magnitude response.
+
+Shared by ``piezo sweep analyze``, ``piezo response``, ``piezo fit-frontend`` and the
+production batch checks. Input is a magnitude response in dB on any frequency grid
+(``frequency_hz``, ``magnitude_db``); results are small frozen dataclasses.
+
+- :func:`sensitivity_at` — the response at a reference frequency (default 1 kHz).
+- :func:`band_within` — the range around the reference frequency within ±tolerance.
+- :func:`fit_response` — sensitivity, −3 dB low corner and its order (first- and
+  second-order high-pass models, chosen by residual), resonance frequency, Q and peak
+  height when a peak lies inside the band, each fitted value with a standard uncertainty
+  from the fit's covariance, plus the ±1 dB and ±3 dB bands.
+- :func:`deviation_from_golden` — measured minus golden response per golden frequency,
+  with the worst point.
+- :class:`ResponseTable`, :func:`parse_response_csv`, :func:`format_response_csv` — the
+  response CSV (frequency_hz, magnitude_db, optional phase_deg and more columns).
+
+Models (analog prototypes, r = f / f0, textbook second-order system relations):
+
+- first-order high-pass   |H| = (f/fc) / √(1 + (f/fc)²), −3 dB at fc;
+- second-order high-pass  |H| = r² / √((1 − r²)² + (r/Q)²);
+- resonance (single degree of freedom, as a mounted sensor)
+  |H| = 1 / √((1 − r²)² + (r/Q)²).
+
+The fit minimises the dB error with every point weighted by the log-frequency span it
+covers (so a linearly spaced FFT grid does not over-weight the top octave). Uncertainties
+are 1σ from the covariance s²(JᵀJ)⁻¹ of the weighted least-squares fit; neighbouring
+points of a dense or smoothed grid are correlated, so they understate the true
+uncertainty and are best read as a measure of how well the data pin each parameter.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.optimize
+
+from piezo.errors import InputError
+
+__all__ = [
+    "Band",
+    "GoldenDeviation",
+    "HighPassFit",
+    "ResonanceFit",
+    "ResponseFit",
+    "ResponseTable",
+    "band_within",
+    "deviation_from_golden",
+    "fit_response",
+    "format_response_csv",
+    "highpass_magnitude_db",
+    "parse_response_csv",
+    "resonance_magnitude_db",
+    "sensitivity_at",
+]
+
+#: A peak counts as a resonance inside the band when it rises at least this much above
+#: the reference sensitivity and falls by as much again before the band ends (our rule).
+RESONANCE_MIN_PEAK_DB = 1.0
+#: With a resonance inside the band the model is fitted up to this factor above the
+#: peak: above it a real sensor shows further modes and the measurement chain's own
+#: low-pass, which the single-resonance model does not describe (our rule).
+RESONANCE_FIT_SPAN = math.sqrt(2.0)
+#: The low end counts as rolled off (a corner is fitted) when the response at the lowest
+#: frequency is at least this far below the reference sensitivity (our rule).
+CORNER_MIN_DROP_DB = 1.0
+#: The second-order high-pass is chosen only if it at least halves the first-order
+#: model's RMS residual (our rule: a true first-order roll-off is fitted almost as well by
+#: a degenerate second-order model, so a plain "smaller residual" would always pick 2).
+ORDER_RESIDUAL_RATIO = 0.5
+
+
+# --------------------------------------------------------------------------------------
+# Response table and its CSV form
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ResponseTable:
+    """A magnitude (and optionally phase) response on a frequency grid.
+
+    Attributes
+    ----------
+    frequency_hz
+        Frequencies, Hz, strictly increasing.
+    magnitude_db
+        Magnitude in dB (``magnitude_unit`` when known).
+    phase_deg
+        Phase in degrees, or ``None``.
+    magnitude_unit
+        Reference of the dB values, e.g. ``"dB re 1 V/Pa"``; ``None`` if unknown.
+    extra
+        Further columns by name (coherence, distortion percent, ...).
+    """
+
+    frequency_hz: np.ndarray
+    magnitude_db: np.ndarray
+    phase_deg: np.ndarray | None = None
+    magnitude_unit: str | None = None
+    extra: dict[str, np.ndarray] = field(default_factory=dict)
+
+
+def _fmt(value: float, spec: str) -> str:
+    return "nan" if not math.isfinite(value) else format(value, spec)
+
+
+def format_response_csv(table: ResponseTable) -> str:
+    """Render a :class:`ResponseTable` as CSV text (comma-separated, one header row).
+
+    A leading ``# magnitude_db: <unit>`` comment carries the magnitude's reference.
+    """
+    names = ["frequency_hz", "magnitude_db"]
+    cols: list[tuple[np.ndarray, str]] = [
+        (table.frequency_hz, ".8g"),
+        (table.magnitude_db, ".4f"),
+    ]
+    if table.phase_deg is not None:
+        names.append("phase_deg")
+        cols.append((table.phase_deg, ".3f"))
+    for name, values in table.extra.items():
+        names.append(name)
+        cols.append((values, ".6g"))
+    lines = ["# piezo response table"]
+    if table.magnitude_unit:
+        lines.append(f"# magnitude_db: {table.magnitude_unit}")
+    lines.append(",".join(names))
+    for i in range(len(table.frequency_hz)):
+        lines.append(",".join(_fmt(float(c[i]), spec) for c, spec in cols))
+    return "\n".join(lines) + "\n"
+
+
+_DELIMITED_RE = re.compile(r"[,;\t]")
+
+
+def _cells(line: str) -> list[str]:
+    """Cells split at commas, semicolons or tabs; at runs of spaces if there are none."""
+    text = line.strip()
+    if _DELIMITED_RE.search(text):
+        return [p.strip() for p in _DELIMITED_RE.split(text)]
+    return text.split()
+
+
+def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable:
+    """Parse a response table: frequency (Hz), magnitude (dB), optional phase (degrees).
+
+    Lines starting with ``#`` are comments (``# magnitude_db: dB re 1 V/Pa`` sets the
+    unit). An optional header row names the columns: the frequency column's name starts
+    with ``freq``, the magnitude's contains ``mag``, ``level`` or ``db``, the phase's
+    contains ``phase``; other named columns go to ``extra``. Without a header the columns
+    are frequency, magnitude, phase. Cells are separated by commas, semicolons or tabs,
+    or else by spaces.
+
+    Raises
+    ------
+    InputError
+        With the line number, if a cell is not a number, a row is short, frequencies are
+        not positive and strictly increasing, or fewer than 3 rows remain.
+    """
+    unit: str | None = None
+    header: list[str] | None = None
+    rows: list[list[float]] = []
+    row_lines: list[int] = []
+    for lineno, raw in enumerate(text.splitlines(), start=1):
+        line = raw.strip()
+        if not line:
+            continue
+        if line.startswith("#"):
+            m = re.match(r"#\s*magnitude(?:_db)?\s*:\s*(.+)$", line)
+            if m:
+                unit = m.group(1).strip()
+            continue
+        cells = _cells(line)
+        if header is None and not rows and any(re.search(r"[a-df-zA-DF-Z_]", c) for c in cells):
+            if not any(c.lower() in ("nan", "inf", "-inf") for c in cells):
+                header = [c.lower() for c in cells]
+                continue
+        try:
+            rows.append([float(c) for c in cells])
+        except ValueError:
+            raise InputError(
+                f"line {lineno}: {line!r} is not a row of numbers", source=source
+            ) from None
+        row_lines.append(lineno)
+    if len(rows) < 3:
+        raise InputError(
+            f"a response table needs at least 3 rows of frequency and magnitude, found "
+            f"{len(rows)}",
+            source=source,
+        )
+    if header is not None:
+        i_f = next((i for i, h in enumerate(header) if h.startswith("freq")), 0)
+        i_m = next(
+            (
+                i
+                for i, h in enumerate(header)
+                if i != i_f and ("mag" in h or "level" in h or "db" in h)
+            ),
+            1 if i_f != 1 else 0,
+        )
+        i_p = next((i for i, h in enumerate(header) if "phase" in h), None)
+    else:
+        i_f, i_m = 0, 1
+        i_p = 2 if min(len(r) for r in rows) >= 3 else None
+    width = max(i_f, i_m, i_p if i_p is not None else 0) + 1
+    for r, lineno in zip(rows, row_lines, strict=True):
+        if len(r) < width:
+            raise InputError(
+                f"line {lineno}: expected at least {width} columns, found {len(r)}",
+                source=source,
+            )
+    freq = np.array([r[i_f] for r in rows])
+    mag = np.array([r[i_m] for r in rows])
+    phase = None if i_p is None else np.array([r[i_p] for r in rows])
+    if not np.all(np.isfinite(freq)) or np.any(freq <= 0):
+        bad = row_lines[int(np.flatnonzero(~(np.isfinite(freq) & (freq > 0)))[0])]
+        raise InputError(f"line {bad}: frequencies must be positive numbers", source=source)
+    if np.any(np.diff(freq) <= 0):
+        bad = row_lines[int(np.flatnonzero(np.diff(freq) <= 0)[0]) + 1]
+        raise InputError(f"line {bad}: frequencies must be strictly increasing", source=source)
+    extra: dict[str, np.ndarray] = {}
+    if header is not None:
+        for i, name in enumerate(header):
+            if i in (i_f, i_m, i_p):
+                continue
+            extra[name] = np.array([r[i] if i < len(r) else math.nan for r in rows])
+    return ResponseTable(freq, mag, phase, unit, extra)
+
+
+# --------------------------------------------------------------------------------------
+# Models
+# --------------------------------------------------------------------------------------
+
+
+def highpass_magnitude_db(
+    frequency_hz: np.ndarray, *, order: int, natural_hz: float, q: float | None = None
+) -> np.ndarray:
+    """Magnitude (dB) of a first-order (corner ``natural_hz``) or second-order high-pass."""
+    r = np.asarray(frequency_hz, dtype=np.float64) / natural_hz
+    if order == 1:
+        return 20.0 * np.log10(r) - 10.0 * np.log10(1.0 + r**2)
+    if order == 2:
+        if q is None:
+            raise InputError("a second-order high-pass needs its q")
+        return 40.0 * np.log10(r) - 10.0 * np.log10((1.0 - r**2) ** 2 + (r / q) ** 2)
+    raise InputError(f"order must be 1 or 2, got {order!r}")
+
+
+def resonance_magnitude_db(
+    frequency_hz: np.ndarray, *, resonance_hz: float, q: float
+) -> np.ndarray:
+    """Magnitude (dB) of a single-degree-of-freedom resonance, unity at low frequency."""
+    r = np.asarray(frequency_hz, dtype=np.float64) / resonance_hz
+    return -10.0 * np.log10((1.0 - r**2) ** 2 + (r / q) ** 2)
+
+
+def _second_order_corner_ratio(q: float) -> float:
+    """f(−3 dB) / f0 of a second-order high-pass with quality factor q.
+
+    Solves r⁴ / ((1 − r²)² + r²/q²) = 1/2: with u = r², u² + (2 − 1/q²) u − 1 = 0.
+    """
+    b = 2.0 - 1.0 / q**2
+    u = (-b + math.sqrt(b * b + 4.0)) / 2.0
+    return math.sqrt(u)
+
+
+# --------------------------------------------------------------------------------------
+# Direct reads from the data
+# --------------------------------------------------------------------------------------
+
+
+def _clean(frequency_hz: np.ndarray, magnitude_db: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    f = np.asarray(frequency_hz, dtype=np.float64)
+    m = np.asarray(magnitude_db, dtype=np.float64)
+    if f.ndim != 1 or f.shape != m.shape:
+        raise InputError(
+            f"frequency_hz and magnitude_db must be 1-D arrays of equal length, got shapes "
+            f"{f.shape} and {m.shape}"
+        )
+    ok = np.isfinite(f) & np.isfinite(m) & (f > 0)
+    f, m = f[ok], m[ok]
+    order = np.argsort(f)
+    f, m = f[order], m[order]
+    if f.size < 3:
+        raise InputError(f"need at least 3 finite response points, got {f.size}")
+    return f, m
+
+
+def sensitivity_at(
+    frequency_hz: np.ndarray, magnitude_db: np.ndarray, *, reference_hz: float = 1000.0
+) -> float:
+    """The magnitude (dB) at ``reference_hz``, interpolated linearly in log frequency.
+
+    Raises
+    ------
+    InputError
+        If ``reference_hz`` lies outside the measured frequencies.
+    """
+    f, m = _clean(frequency_hz, magnitude_db)
+    if not (f[0] <= reference_hz <= f[-1]):
+        raise InputError(
+            f"reference_hz {reference_hz:g} Hz is outside the measured range "
+            f"{f[0]:g}–{f[-1]:g} Hz; choose a reference frequency inside it"
+        )
+    return float(np.interp(math.log(reference_hz), np.log(f), m))
+
+
+@dataclass(frozen=True)
+class Band:
+    """Frequency range around the reference frequency within ±``tolerance_db``.
+
+    ``low_limited`` / ``high_limited`` are true when the response stayed within the
+    tolerance up to the end of the measured data, i.e. the true band edge lies beyond
+    the reported one.
+    """
+
+    tolerance_db: float
+    low_hz: float
+    high_hz: float
+    low_limited: bool
+    high_limited: bool
+
+
+def _crossing(f: np.ndarray, dev: np.ndarray, inside: int, outside: int, tol: float) -> float:
+    """Log-frequency interpolation of where |dev| reaches ``tol`` between two points."""
+    a, b = abs(dev[inside]), abs(dev[outside])
+    frac = 0.0 if b == a else (tol - a) / (b - a)
+    lf = math.log(f[inside]) + frac * (math.log(f[outside]) - math.log(f[inside]))
+    return math.exp(lf)
+
+
+def band_within(
+    frequency_hz: np.ndarray,
+    magnitude_db: np.ndarray,
+    *,
+    tolerance_db: float,
+    reference_hz: float = 1000.0,
+) -> Band:
+    """The contiguous range around ``reference_hz`` where |magnitude − sensitivity| ≤ tol.
+
+    Walks down and up from the reference frequency to the first point outside the
+    tolerance and interpolates the crossing in log frequency.
+    """
+    if not (math.isfinite(tolerance_db) and tolerance_db > 0):
+        raise InputError(f"tolerance_db must be positive, got {tolerance_db!r}")
+    f, m = _clean(frequency_hz, magnitude_db)
+    ref = sensitivity_at(f, m, reference_hz=reference_hz)
+    dev = m - ref
+    start_hi = int(np.searchsorted(f, reference_hz, side="left"))
+    start_lo = start_hi - 1 if f[min(start_hi, f.size - 1)] > reference_hz else start_hi
+    # Downwards.
+    low, low_limited = float(f[0]), True
+    i = start_lo
+    prev = None
+    while i >= 0:
+        if abs(dev[i]) > tolerance_db:
+            low = float(reference_hz) if prev is None else _crossing(f, dev, prev, i, tolerance_db)
+            low_limited = False
+            break
+        prev, i = i, i - 1
+    high, high_limited = float(f[-1]), True
+    i = max(start_hi, 0)
+    prev = None
+    while i < f.size:
+        if abs(dev[i]) > tolerance_db:
+            high = (
+                float(reference_hz) if prev is None else _crossing(f, dev, prev, i, tolerance_db)
+            )
+            high_limited = False
+            break
+        prev, i = i, i + 1
+    return Band(float(tolerance_db), low, high, low_limited, high_limited)
+
+
+# --------------------------------------------------------------------------------------
+# Model fit
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class HighPassFit:
+    """The low-frequency roll-off fitted as a first- or second-order high-pass.
+
+    Attributes
+    ----------
+    order
+        1 or 2, chosen by residual (see ``ORDER_RESIDUAL_RATIO``).
+    corner_hz, corner_std_hz
+        −3 dB frequency of the fitted model relative to its passband gain, and its 1σ
+        uncertainty.
+    natural_hz
+        Natural frequency f0 of the model (equals ``corner_hz`` for order 1).
+    q, q_std
+        Quality factor of the second-order model and its uncertainty (None for order 1).
+    in_band
+        True when the corner lies inside the measured frequencies (otherwise it is an
+        extrapolation).
+    residual_rms_db
+        RMS of the fit residual with this order.
+    other_order_residual_rms_db
+        RMS residual of the order that was not chosen.
+    """
+
+    order: int
+    corner_hz: float
+    corner_std_hz: float
+    natural_hz: float
+    q: float | None
+    q_std: float | None
+    in_band: bool
+    residual_rms_db: float
+    other_order_residual_rms_db: float
+
+
+@dataclass(frozen=True)
+class ResonanceFit:
+    """A resonance peak inside the band, fitted as a single-degree-of-freedom resonance.
+
+    Attributes
+    ----------
+    frequency_hz, frequency_std_hz
+        Fitted natural frequency and its 1σ uncertainty.
+    q, q_std
+        Fitted quality factor and its uncertainty.
+    peak_hz
+        Frequency of the largest measured point of the peak.
+    peak_db
+        Height of the measured peak above the reference sensitivity, dB.
+    """
+
+    frequency_hz: float
+    frequency_std_hz: float
+    q: float
+    q_std: float
+    peak_hz: float
+    peak_db: float
+
+
+@dataclass(frozen=True)
+class ResponseFit:
+    """Everything :func:`fit_response` reads from a magnitude response.
+
+    Attributes
+    ----------
+    reference_hz, sensitivity_db
+        Reference frequency and the measured magnitude there (interpolated, not fitted).
+    passband_db, passband_std_db
+        Fitted passband gain of the model (the level the high-pass tends to above its
+        corner, the resonance below its peak) and its uncertainty.
+    highpass
+        The fitted roll-off, or None when the response at the lowest frequency is within
+        ``CORNER_MIN_DROP_DB`` of the sensitivity (corner below the measured band).
+    resonance
+        The fitted resonance, or None when no peak lies inside the band.
+    band_1db, band_3db
+        Ranges within ±1 dB and ±3 dB of the sensitivity (from the data).
+    frequency_hz, model_db
+        The points used and the fitted model on them.
+    residual_rms_db
+        RMS of (data − model), dB.
+    magnitude_unit
+        Reference of the dB values if known.
+    """
+
+    reference_hz: float
+    sensitivity_db: float
+    passband_db: float
+    passband_std_db: float
+    highpass: HighPassFit | None
+    resonance: ResonanceFit | None
+    band_1db: Band
+    band_3db: Band
+    frequency_hz: np.ndarray
+    model_db: np.ndarray
+    residual_rms_db: float
+    magnitude_unit: str | None = None
+
+    @property
+    def sensitivity_v_per_pa(self) -> float | None:
+        """Sensitivity as a ratio when the magnitude is in dB re 1 V/Pa, else None."""
+        if self.magnitude_unit and self.magnitude_unit.replace(" ", "") == "dBre1V/Pa":
+            return 10.0 ** (self.sensitivity_db / 20.0)
+        return None
+
+
+@dataclass(frozen=True)
+class _Lsq:
+    params: np.ndarray
+    cov: np.ndarray
+    rms_db: float
+
+
+def _highpass_part(f: np.ndarray, order: int, p: np.ndarray) -> np.ndarray:
+    if order == 1:
+        return highpass_magnitude_db(f, order=1, natural_hz=math.exp(p[0]))
+    return highpass_magnitude_db(f, order=2, natural_hz=math.exp(p[0]), q=math.exp(p[1]))
+
+
+def _resonance_part(f: np.ndarray, p: np.ndarray) -> np.ndarray:
+    return resonance_magnitude_db(f, resonance_hz=math.exp(p[0]), q=math.exp(p[1]))
+
+
+def _lsq(
+    f: np.ndarray,
+    target: np.ndarray,
+    w: np.ndarray,
+    shape: Callable[[np.ndarray, np.ndarray], np.ndarray] | None,
+    x0: np.ndarray,
+) -> _Lsq:
+    """Weighted least squares of ``target ≈ p[0] + shape(f, p[1:])`` in dB.
+
+    Covariance s² (JᵀJ)⁻¹ with s² the weighted residual variance.
+    """
+
+    def model(p: np.ndarray) -> np.ndarray:
+        return p[0] + (0.0 if shape is None else shape(f, p[1:]))
+
+    def residual(p: np.ndarray) -> np.ndarray:
+        return w * (model(p) - target)
+
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        sol = scipy.optimize.least_squares(residual, x0, method="lm", x_scale="jac")
+    r = model(sol.x) - target
+    dof = max(f.size - sol.x.size, 1)
+    s2 = float(np.sum((w * r) ** 2)) / dof
+    cov = np.linalg.pinv(sol.jac.T @ sol.jac) * s2
+    rms = float(np.sqrt(np.sum(w**2 * r**2) / np.sum(w**2)))
+    return _Lsq(sol.x, cov, rms)
+
+
+def _log_weights(f: np.ndarray) -> np.ndarray:
+    """√(log-frequency span of each point): equal weight per octave on any grid."""
+    return np.sqrt(np.gradient(np.log(f)))
+
+
+def _find_peak(f: np.ndarray, m: np.ndarray, sens: float, reference_hz: float) -> int | None:
+    above = np.flatnonzero(f > reference_hz)
+    if above.size < 3:
+        return None
+    p = int(above[np.argmax(m[above])])
+    if m[p] - sens < RESONANCE_MIN_PEAK_DB or p >= f.size - 1:
+        return None
+    if np.min(m[p:]) > m[p] - RESONANCE_MIN_PEAK_DB:
+        return None
+    return p
+
+
+def _initial_corner(f: np.ndarray, m: np.ndarray, sens: float, reference_hz: float) -> float:
+    below = np.flatnonzero(f < reference_hz)
+    drop = sens - m[below]
+    hit = np.flatnonzero(drop >= 3.0)
+    if hit.size:
+        return float(f[below[hit[-1]]])
+    d = max(float(drop[0]), 0.1)
+    return float(f[0] * math.sqrt(10.0 ** (d / 10.0) - 1.0))
+
+
+def fit_response(
+    frequency_hz: np.ndarray,
+    magnitude_db: np.ndarray,
+    *,
+    reference_hz: float = 1000.0,
+    orders: tuple[int, ...] = (1, 2),
+    fit_range_hz: tuple[float, float] | None = None,
+    magnitude_unit: str | None = None,
+) -> ResponseFit:
+    """Fit sensitivity, low corner (first or second order) and resonance to a response.
+
+    Parameters
+    ----------
+    frequency_hz, magnitude_db
+        The measured magnitude response (any grid; NaN points are ignored).
+    reference_hz
+        Reference frequency for the sensitivity and the ±1/±3 dB bands, Hz.
+    orders
+        High-pass orders to try: (1, 2) chooses by residual; (1,) or (2,) forces one.
+    fit_range_hz
+        (low, high) limits of the points the model is fitted to; default all points, or
+        up to ``RESONANCE_FIT_SPAN`` times the peak frequency when a resonance is found.
+        The sensitivity and the bands always use all points.
+    magnitude_unit
+        Reference of the dB values, carried into the result.
+
+    Returns
+    -------
+    ResponseFit
+        Fitted model S + HP_order(fc[, Q]) + RES(fr, Qr) in dB; the high-pass part only
+        when the low end rolls off by at least ``CORNER_MIN_DROP_DB``, the resonance only
+        when a peak of at least ``RESONANCE_MIN_PEAK_DB`` lies inside the band.
+    """
+    if not orders or any(o not in (1, 2) for o in orders):
+        raise InputError(f"orders must be a non-empty choice from (1, 2), got {orders!r}")
+    f_all, m_all = _clean(frequency_hz, magnitude_db)
+    sens = sensitivity_at(f_all, m_all, reference_hz=reference_hz)
+    peak_all = _find_peak(f_all, m_all, sens, reference_hz)
+    if fit_range_hz is not None:
+        lo, hi = (float(v) for v in fit_range_hz)
+        keep = (f_all >= lo) & (f_all <= hi)
+    elif peak_all is not None:
+        keep = f_all <= f_all[peak_all] * RESONANCE_FIT_SPAN
+    else:
+        keep = np.ones(f_all.size, dtype=bool)
+    f, m = f_all[keep], m_all[keep]
+    if f.size < 6:
+        raise InputError(
+            f"fit_range_hz {fit_range_hz!r} leaves {f.size} points; the model needs at least 6"
+        )
+    w = _log_weights(f)
+
+    peak = _find_peak(f, m, sens, reference_hz)
+    with_res = peak is not None
+    res_x0: list[float] = []
+    if with_res:
+        assert peak is not None
+        res_x0 = [math.log(f[peak]), math.log(max(10.0 ** ((m[peak] - sens) / 20.0), 0.6))]
+    rolled_off = bool(sens - m[0] >= CORNER_MIN_DROP_DB)
+
+    # Two regions fitted in turn, each with the other region's model held fixed, so a
+    # mismatch of the resonance model near the peak cannot bend the corner (and back):
+    # below the reference frequency S + high-pass, above it S' + resonance.
+    lower = f <= reference_hz
+    upper = f >= reference_hz
+    if rolled_off and np.count_nonzero(lower) < 4:
+        rolled_off = False
+    if with_res and np.count_nonzero(upper) < 4:
+        with_res = False
+    hp_fits: dict[int, _Lsq] = {}
+    res_fit: _Lsq | None = None
+    res_x = np.array([sens, *res_x0])
+    hp_x = {}
+    if rolled_off:
+        fc0 = _initial_corner(f, m, sens, reference_hz)
+        hp_x = {
+            1: np.array([sens, math.log(fc0)]),
+            2: np.array([sens, math.log(fc0), math.log(1.0 / math.sqrt(2.0))]),
+        }
+    order = 0
+    for _ in range(3):
+        if rolled_off:
+            offset = _resonance_part(f[lower], res_x[1:]) if with_res else 0.0
+            for o in orders:
+                hp_fits[o] = _lsq(
+                    f[lower],
+                    m[lower] - offset,
+                    w[lower],
+                    lambda ff, pp, o=o: _highpass_part(ff, o, pp),
+                    hp_x[o],
+                )
+                hp_x[o] = hp_fits[o].params
+            if len(hp_fits) == 2 and hp_fits[2].rms_db < ORDER_RESIDUAL_RATIO * hp_fits[1].rms_db:
+                order = 2
+            else:
+                order = orders[0] if len(hp_fits) == 1 else 1
+        if with_res:
+            offset = _highpass_part(f[upper], order, hp_x[order][1:]) if order else 0.0
+            res_fit = _lsq(f[upper], m[upper] - offset, w[upper], _resonance_part, res_x)
+            res_x = res_fit.params
+        if not (rolled_off and with_res):
+            break
+
+    hp_part = _highpass_part(f, order, hp_x[order][1:]) if order else np.zeros(f.size)
+    res_part = _resonance_part(f, res_x[1:]) if with_res else np.zeros(f.size)
+    if order:
+        passband = hp_fits[order]
+    else:
+        passband = _lsq(
+            f[lower | ~upper],
+            (m - res_part)[lower | ~upper],
+            w[lower | ~upper],
+            None,
+            np.array([sens]),
+        )
+    model_db = passband.params[0] + hp_part + res_part
+    residual_rms = float(np.sqrt(np.sum(w**2 * (m - model_db) ** 2) / np.sum(w**2)))
+
+    highpass: HighPassFit | None = None
+    if order == 1:
+        fit1 = hp_fits[1]
+        fc = math.exp(fit1.params[1])
+        highpass = HighPassFit(
+            order=1,
+            corner_hz=fc,
+            corner_std_hz=fc * math.sqrt(max(fit1.cov[1, 1], 0.0)),
+            natural_hz=fc,
+            q=None,
+            q_std=None,
+            in_band=bool(f[0] <= fc <= f[-1]),
+            residual_rms_db=fit1.rms_db,
+            other_order_residual_rms_db=hp_fits[2].rms_db if 2 in hp_fits else math.nan,
+        )
+    elif order == 2:
+        fit2 = hp_fits[2]
+        f0, q = math.exp(fit2.params[1]), math.exp(fit2.params[2])
+        step = 1e-6
+        dlnratio_dlnq = (
+            math.log(_second_order_corner_ratio(q * math.exp(step)))
+            - math.log(_second_order_corner_ratio(q * math.exp(-step)))
+        ) / (2 * step)
+        g = np.array([1.0, dlnratio_dlnq])
+        var_ln_corner = float(g @ fit2.cov[1:3, 1:3] @ g)
+        corner = f0 * _second_order_corner_ratio(q)
+        highpass = HighPassFit(
+            order=2,
+            corner_hz=corner,
+            corner_std_hz=corner * math.sqrt(max(var_ln_corner, 0.0)),
+            natural_hz=f0,
+            q=q,
+            q_std=q * math.sqrt(max(fit2.cov[2, 2], 0.0)),
+            in_band=bool(f[0] <= corner <= f[-1]),
+            residual_rms_db=fit2.rms_db,
+            other_order_residual_rms_db=hp_fits[1].rms_db if 1 in hp_fits else math.nan,
+        )
+    resonance: ResonanceFit | None = None
+    if with_res and res_fit is not None:
+        assert peak is not None
+        fr, qr = math.exp(res_fit.params[1]), math.exp(res_fit.params[2])
+        resonance = ResonanceFit(
+            frequency_hz=fr,
+            frequency_std_hz=fr * math.sqrt(max(res_fit.cov[1, 1], 0.0)),
+            q=qr,
+            q_std=qr * math.sqrt(max(res_fit.cov[2, 2], 0.0)),
+            peak_hz=float(f[peak]),
+            peak_db=float(m[peak] - sens),
+        )
+    return ResponseFit(
+        reference_hz=float(reference_hz),
+        sensitivity_db=sens,
+        passband_db=float(passband.params[0]),
+        passband_std_db=math.sqrt(max(float(passband.cov[0, 0]), 0.0)),
+        highpass=highpass,
+        resonance=resonance,
+        band_1db=band_within(f_all, m_all, tolerance_db=1.0, reference_hz=reference_hz),
+        band_3db=band_within(f_all, m_all, tolerance_db=3.0, reference_hz=reference_hz),
+        frequency_hz=f,
+        model_db=model_db,
+        residual_rms_db=residual_rms,
+        magnitude_unit=magnitude_unit,
+    )
+
+
+# --------------------------------------------------------------------------------------
+# Golden response
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class GoldenDeviation:
+    """Measured minus golden response at the golden frequencies inside the measured range.
+
+    Attributes
+    ----------
+    frequency_hz, deviation_db
+        Golden frequencies compared and the deviation there (measured − golden), dB.
+    worst_hz, worst_db
+        Frequency and signed deviation of the largest |deviation|.
+    rms_db
+        RMS deviation, dB.
+    aligned_at_hz
+        Frequency at which both curves were aligned first, or None (absolute).
+    """
+
+    frequency_hz: np.ndarray
+    deviation_db: np.ndarray
+    worst_hz: float
+    worst_db: float
+    rms_db: float
+    aligned_at_hz: float | None
+
+
+def deviation_from_golden(
+    frequency_hz: np.ndarray,
+    magnitude_db: np.ndarray,
+    golden_frequency_hz: np.ndarray,
+    golden_magnitude_db: np.ndarray,
+    *,
+    align_at_hz: float | None = None,
+) -> GoldenDeviation:
+    """Deviation of a measured response from a golden one, in dB per golden frequency.
+
+    The measured magnitude is interpolated (linearly in log frequency) at each golden
+    frequency inside the measured range. With ``align_at_hz`` both curves are first
+    shifted to agree at that frequency (a relative comparison of shape, for uncalibrated
+    measurements); without it the comparison is absolute.
+    """
+    f, m = _clean(frequency_hz, magnitude_db)
+    gf, gm = _clean(golden_frequency_hz, golden_magnitude_db)
+    inside = (gf >= f[0]) & (gf <= f[-1])
+    if np.count_nonzero(inside) < 1:
+        raise InputError(
+            f"the golden response ({gf[0]:g}–{gf[-1]:g} Hz) does not overlap the measured "
+            f"range ({f[0]:g}–{f[-1]:g} Hz)"
+        )
+    gf, gm = gf[inside], gm[inside]
+    measured = np.interp(np.log(gf), np.log(f), m)
+    dev = measured - gm
+    if align_at_hz is not None:
+        offset = (
+            sensitivity_at(f, m, reference_hz=align_at_hz)
+            - sensitivity_at(gf, gm, reference_hz=align_at_hz)
+            if gf.size >= 3
+            else math.nan
+        )
+        if not math.isfinite(offset):
+            raise InputError("need at least 3 golden points to align the curves")
+        dev = dev - offset
+    worst = int(np.argmax(np.abs(dev)))
+    return GoldenDeviation(
+        frequency_hz=gf,
+        deviation_db=dev,
+        worst_hz=float(gf[worst]),
+        worst_db=float(dev[worst]),
+        rms_db=float(np.sqrt(np.mean(dev**2))),
+        aligned_at_hz=None if align_at_hz is None else float(align_at_hz),
+    )
