@@ -99,7 +99,14 @@ class Thresholds:
     dc_warn_ratio: float = _th(0.25, "DC offset that warns, relative to the AC RMS of the channel")
     drift_interval_s: float = _th(1.0, "interval over which the mean is taken for drift (s)")
     drift_warn_ratio: float = _th(
-        0.25, "peak-to-peak drift of the interval means that warns, relative to the AC RMS"
+        0.25,
+        "change of the interval means' straight-line trend over the recording that warns, "
+        "relative to the AC RMS",
+    )
+    drift_min_t: float = _th(
+        3.0,
+        "t statistic the trend's slope needs (against the means' scatter about the line) "
+        "to count as drift rather than low-frequency signal",
     )
     # Dropouts
     dropout_min_duration_s: float = _th(
@@ -108,6 +115,11 @@ class Thresholds:
     dropout_min_samples: int = _th(8, "shortest dropout run in samples, whatever the rate")
     dropout_fail_fraction: float = _th(
         0.01, "fraction of samples in dropouts from which the check fails (any dropout warns)"
+    )
+    edge_silence_warn_fraction: float = _th(
+        0.5,
+        "constant runs at the start and end (silence before and after the signal) warn "
+        "from this fraction of the recording",
     )
     # Mains hum
     hum_mains_hz: tuple[float, ...] = _th((50.0, 60.0), "mains frequencies to look for (Hz)")
@@ -171,8 +183,10 @@ class Thresholds:
             "dc_warn_ratio",
             "drift_interval_s",
             "drift_warn_ratio",
+            "drift_min_t",
             "dropout_min_duration_s",
             "dropout_fail_fraction",
+            "edge_silence_warn_fraction",
             "hum_search_hz",
             "spectrum_resolution_hz",
             "rolloff_tolerance",

@@ -178,7 +178,9 @@ class DcResult:
     dc_re_rms: float | None  # |DC| / AC RMS
     drift_pp: float | None  # peak-to-peak of interval means
     drift_slope_per_s: float | None
-    drift_re_rms: float | None
+    drift_change: float | None  # |slope| × time between the first and last interval
+    drift_re_rms: float | None  # drift_change / AC RMS
+    drift_t: float | None  # t statistic of the slope (None with fewer than 4 intervals)
     intervals: int
 
 
@@ -195,6 +197,8 @@ class DropoutResult:
     time_gaps: int | None
     largest_time_gap_s: float | None
     silent: bool
+    leading_s: float  # constant (e.g. silent) run the recording starts with, s
+    trailing_s: float  # constant run the recording ends with, s
 
 
 @dataclass(frozen=True)
@@ -278,7 +282,9 @@ class ChannelDiagnostics:
                 "re_rms": _num(d.dc_re_rms),
                 "drift_pp": _num(d.drift_pp),
                 "drift_slope_per_s": _num(d.drift_slope_per_s),
+                "drift_change": _num(d.drift_change),
                 "drift_re_rms": _num(d.drift_re_rms),
+                "drift_t": _num(d.drift_t),
                 "intervals": d.intervals,
             },
             "rolloff": {
@@ -309,6 +315,8 @@ class ChannelDiagnostics:
                 "time_gaps": dr.time_gaps,
                 "largest_time_gap_s": _num(dr.largest_time_gap_s),
                 "silent": dr.silent,
+                "leading_s": dr.leading_s,
+                "trailing_s": dr.trailing_s,
             },
             "noise_floor_db": _num(n.noise_floor_db),
             "noise": {
@@ -514,6 +522,7 @@ class CaptureChecker:
         self._zero_acc = [[0, 0, []] for _ in range(channels)]
         self._repeat_acc: list[dict[float, list[Any]]] = [{} for _ in range(channels)]
         self._repeat_other = [[0, 0, []] for _ in range(channels)]
+        self._leading = [0] * channels  # frames of the constant run the recording opens with
         # DC drift.
         self._drift_len = max(1, round(th.drift_interval_s * fs))
         self._drift = IntervalStats(self._drift_len, channels)
@@ -524,6 +533,8 @@ class CaptureChecker:
         self._drift_stt = np.zeros(channels)
         self._drift_sm = np.zeros(channels)
         self._drift_stm = np.zeros(channels)
+        self._drift_smm = np.zeros(channels)
+        self._drift_m0 = np.full(channels, math.nan)  # first interval mean (origin of sums)
         # Noise floor.
         self._noise_len = max(1, round(th.noise_interval_s * fs))
         self._noise = IntervalStats(self._noise_len, channels)
@@ -613,6 +624,9 @@ class CaptureChecker:
         for start, length, value in zip(
             s[keep].tolist(), ln[keep].tolist(), v[keep].tolist(), strict=True
         ):
+            if start == 0:
+                self._leading[c] = length  # silence or a held value before the signal
+                continue
             if value == 0.0:
                 acc = self._zero_acc[c]
             elif value in table or len(table) < 64:
@@ -634,8 +648,12 @@ class CaptureChecker:
         self._drift_max = np.maximum(self._drift_max, means.max(axis=0))
         self._drift_st += t.sum()
         self._drift_stt += (t**2).sum()
-        self._drift_sm += means.sum(axis=0)
-        self._drift_stm += (t[:, None] * means).sum(axis=0)
+        if self._drift_n[0] == idx.size:  # the first intervals: fix the origin
+            self._drift_m0 = means[0].copy()
+        m = means - self._drift_m0
+        self._drift_sm += m.sum(axis=0)
+        self._drift_stm += (t[:, None] * m).sum(axis=0)
+        self._drift_smm += (m**2).sum(axis=0)
 
     def _update_noise(self, x: np.ndarray) -> None:
         idx, _, var = self._noise.update(x)
@@ -910,33 +928,63 @@ class CaptureChecker:
         frac = abs(dc) / self.full_scale if self.full_scale is not None else None
         re_rms = abs(dc) / ac if ac > 0 else None
         n = float(self._drift_n[c])
+        drift_pp = slope = change = drift_re = t_stat = None
         if n >= 2:
             drift_pp = float(self._drift_max[c] - self._drift_min[c])
-            den = n * self._drift_stt[c] - self._drift_st[c] ** 2
-            slope = (
-                float((n * self._drift_stm[c] - self._drift_st[c] * self._drift_sm[c]) / den)
-                if den > 0
-                else None
-            )
-            drift_re = drift_pp / ac if ac > 0 else None
-        else:
-            drift_pp = slope = drift_re = None
+            # Least-squares line through the interval means: slope, and its t statistic
+            # from the scatter about the line (n - 2 degrees of freedom).
+            sxx = float(self._drift_stt[c] - self._drift_st[c] ** 2 / n)
+            if sxx > 0:
+                sxy = float(self._drift_stm[c] - self._drift_st[c] * self._drift_sm[c] / n)
+                syy = float(self._drift_smm[c] - self._drift_sm[c] ** 2 / n)
+                slope = sxy / sxx
+                span_s = (n - 1) * self._drift_len / self.sample_rate_hz
+                change = abs(slope) * span_s
+                drift_re = change / ac if ac > 0 else None
+                if n >= 4:
+                    resid = max(syy - slope * sxy, 0.0) / (n - 2)
+                    t_stat = abs(slope) / math.sqrt(resid / sxx) if resid > 0 else math.inf
         result = DcResult(
-            dc, dc * self.volts_per_unit, frac, ac, re_rms, drift_pp, slope, drift_re, int(n)
+            dc,
+            dc * self.volts_per_unit,
+            frac,
+            ac,
+            re_rms,
+            drift_pp,
+            slope,
+            change,
+            drift_re,
+            t_stat,
+            int(n),
         )
         threshold = (
             f"|DC| warns from {_pct(th.dc_warn_fraction)} of full scale or "
             f"{th.dc_warn_ratio:g} × AC RMS, fails from {_pct(th.dc_fail_fraction)} of full "
-            f"scale; drift of {th.drift_interval_s:g} s means warns from "
-            f"{th.drift_warn_ratio:g} × AC RMS"
+            f"scale; a trend of the {th.drift_interval_s:g} s means warns when it changes by "
+            f">= {th.drift_warn_ratio:g} × AC RMS with t >= {th.drift_min_t:g}"
         )
         evidence = f"DC {self._fmt(dc)}"
         if frac is not None:
             evidence += f" ({_pct(frac)} of full scale)"
         if re_rms is not None:
             evidence += f" = {re_rms:.2g} × AC RMS"
-        if drift_pp is not None:
-            evidence += f"; drift {self._fmt(drift_pp)} p-p over {int(n)} intervals"
+        drifting = (
+            drift_re is not None
+            and t_stat is not None
+            and drift_re >= th.drift_warn_ratio
+            and t_stat >= th.drift_min_t
+        )
+        if drift_pp is not None and slope is not None:
+            evidence += (
+                f"; means of {int(n)} intervals spread {self._fmt(drift_pp)} p-p, trend "
+                f"{self._fmt(slope)}/s"
+            )
+            if t_stat is None:
+                evidence += " (too few intervals to judge)"
+            elif drifting:
+                evidence += f": drift of {self._fmt(change)} over the recording (t = {t_stat:.3g})"
+            else:
+                evidence += f" (no steady drift, t = {t_stat:.2g})"
         else:
             evidence += "; drift not determinable (shorter than two intervals)"
         sev = Severity.OK
@@ -946,7 +994,7 @@ class CaptureChecker:
             re_rms is not None and re_rms >= th.dc_warn_ratio
         ):
             sev = Severity.WARN
-        if drift_re is not None and drift_re >= th.drift_warn_ratio and sev is Severity.OK:
+        if drifting and sev is Severity.OK:
             sev = Severity.WARN
         return result, Check("dc", sev, evidence, threshold)
 
@@ -958,19 +1006,20 @@ class CaptureChecker:
         table = {k: [v[0], v[1], list(v[2])] for k, v in self._repeat_acc[c].items()}
         ro = self._repeat_other[c]
         other = [ro[0], ro[1], list(ro[2])]
+        digital = th.digital_clip_level * self.full_scale if self.full_scale is not None else None
+        leading = self._leading[c]
+        trailing = 0
+        constant = False
         s, ln, v = self._exact[c].pending()
         if ln.size and ln[0] >= self._dropout_min:
             value = float(v[0])
-            if value == 0.0:
-                acc = zero
-            elif value in table or len(table) < 64:
-                acc = table.setdefault(value, [0, 0, []])
-            else:
-                acc = other
-            acc[0] += int(ln[0])
-            acc[1] += 1
-            acc[2].append(int(s[0]))
-        digital = th.digital_clip_level * self.full_scale if self.full_scale is not None else None
+            at_clip = (digital is not None and abs(value) >= digital) or any(
+                abs(value - lv) <= tol for lv, tol in clip_levels
+            )
+            if int(s[0]) == 0:
+                constant = True  # one value from the first sample to the last
+            elif not at_clip:
+                trailing = int(ln[0])  # silence or a held value after the signal
         rep_samples, rep_runs = other[0], other[1]
         times = list(zero[2]) + list(other[2])
         for value, (n, ev, t) in table.items():
@@ -981,7 +1030,7 @@ class CaptureChecker:
             rep_samples += n
             rep_runs += ev
             times.extend(t)
-        silent = self._peak[c] == 0
+        silent = bool(self._peak[c] == 0) or constant
         total = zero[0] + rep_samples
         fraction = total / self.frames
         event_times = tuple(i / self.sample_rate_hz for i in sorted(times)[: th.max_event_times])
@@ -997,19 +1046,25 @@ class CaptureChecker:
             min_run_samples=self._dropout_min,
             time_gaps=meta.time_gaps,
             largest_time_gap_s=meta.largest_time_gap_s,
-            silent=bool(silent),
+            silent=silent,
+            leading_s=0.0 if constant else leading / self.sample_rate_hz,
+            trailing_s=trailing / self.sample_rate_hz,
         )
         threshold = (
-            f"dropout = run of >= {self._dropout_min} equal samples; any dropout or "
-            f"time-column gap warns, fail from {_pct(th.dropout_fail_fraction)} of samples"
+            f"dropout = run of >= {self._dropout_min} equal samples inside the recording; any "
+            f"dropout or time-column gap warns, fail from {_pct(th.dropout_fail_fraction)} "
+            f"of samples; constant start and end warn from "
+            f"{_pct(th.edge_silence_warn_fraction)} of the recording"
         )
         if silent:
+            what = "every sample is zero" if self._peak[c] == 0 else "one value throughout"
             return result, Check(
                 "dropouts",
                 Severity.FAIL,
-                "every sample is zero: the channel carries no signal",
+                f"{what}: the channel carries no signal",
                 threshold,
             )
+        edge_fraction = (leading + trailing) / self.frames
         parts = []
         if zero[1]:
             parts.append(f"{zero[1]} runs of zeros ({zero[0]} samples)")
@@ -1022,13 +1077,23 @@ class CaptureChecker:
                 else ""
             )
             parts.append(f"{meta.time_gaps} gaps in the time column{gap}")
+        edges = []
+        if leading:
+            edges.append(f"starts with {leading / self.sample_rate_hz:.4g} s of one value")
+        if trailing:
+            edges.append(f"ends with {trailing / self.sample_rate_hz:.4g} s of one value")
+        edge_text = "; ".join(edges)
+        edge_sev = Severity.WARN if edge_fraction >= th.edge_silence_warn_fraction else Severity.OK
         if not parts:
-            return result, Check("dropouts", Severity.OK, "no dropouts found", threshold)
+            evidence = "no dropouts found" + (f" (recording {edge_text})" if edges else "")
+            return result, Check("dropouts", edge_sev, evidence, threshold)
         evidence = "; ".join(parts) + f" ({_pct(fraction)} of samples)"
         if event_times:
             evidence += f"; first at {event_times[0]:.4g} s"
+        if edges:
+            evidence += f"; recording {edge_text}"
         sev = Severity.FAIL if fraction >= th.dropout_fail_fraction else Severity.WARN
-        return result, Check("dropouts", sev, evidence, threshold)
+        return result, Check("dropouts", worst_severity([sev, edge_sev]), evidence, threshold)
 
     def _psd_floor_db(self, freqs: np.ndarray, psd: np.ndarray, averages: int) -> float | None:
         floor = psd_floor(

@@ -284,6 +284,16 @@ def test_dc_offset_and_drift():
     assert ch.dc.drift_slope_per_s == pytest.approx(0.01, rel=1e-3)
     assert ch.dc.drift_pp == pytest.approx(0.09, rel=1e-3)  # 10 means, 1 s apart
     assert ch.dc.intervals == 10
+    # The trend changes by 0.09 V over the means, 1.3 x the AC RMS (0.0707 V): a drift.
+    assert ch.dc.drift_change == pytest.approx(0.09, rel=1e-3)
+    assert ch.check("dc").severity is Severity.WARN
+    # Low-frequency signal is not drift: a 0.3 Hz component moves the 1 s means by more
+    # than the AC RMS, but along no straight line (t of the slope far below 3).
+    slow = base + 0.2 * np.sin(2 * np.pi * 0.3 * t)
+    ch = check_capture(slow, fs).channels[0]
+    assert ch.dc.drift_pp > ch.dc.ac_rms
+    assert ch.dc.drift_t < 3.0
+    assert ch.check("dc").severity is Severity.OK
 
 
 # --------------------------------------------------------------------------- dropouts
@@ -300,8 +310,27 @@ def test_runs_of_zeros_and_held_values_are_dropouts():
     assert (d.repeat_runs, d.repeat_samples) == (1, 41)
     assert d.event_times_s == (pytest.approx(1.0), pytest.approx(15999 / fs))
     assert ch.check("dropouts").severity is Severity.WARN
-    x[0:4000] = 0.0  # 1/8 of the recording: above the 1 % fail fraction
+    x[20000:24000] = 0.0  # 1/8 of the recording: above the 1 % fail fraction
     assert check_capture(x, fs).channels[0].check("dropouts").severity is Severity.FAIL
+
+
+def test_silence_before_and_after_the_signal_is_not_a_dropout():
+    # A playback-and-record capture starts and ends in silence: reported, not a dropout,
+    # until it is most of the recording (edge_silence_warn_fraction 0.5, common practice).
+    fs = 8000.0
+    x = 0.1 * _white(4.0, 14, fs)
+    x[:2000] = 0.0  # 0.25 s before
+    x[-6000:] = 0.0  # 0.75 s after
+    ch = check_capture(x, fs).channels[0]
+    d = ch.dropouts
+    assert (d.zero_runs, d.leading_s, d.trailing_s) == (0, 0.25, 0.75)
+    assert ch.check("dropouts").severity is Severity.OK
+    assert "starts with 0.25 s" in ch.check("dropouts").evidence
+    x[:16000] = 0.0  # 2 s of 4 s silent before the signal
+    assert check_capture(x, fs).channels[0].check("dropouts").severity is Severity.WARN
+    ch = check_capture(np.full(8000, 0.3), fs).channels[0]  # a constant: no signal
+    assert ch.dropouts.silent
+    assert ch.check("dropouts").severity is Severity.FAIL
 
 
 def test_silent_channel_fails_and_time_gaps_are_reported():
