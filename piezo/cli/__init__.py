@@ -30,6 +30,7 @@ EXIT_INTERNAL = 3
 #: Command modules, in the order their commands are listed by ``piezo --help``.
 COMMAND_MODULES = (
     "info",
+    "levels",
     "calibrate",
     "demo",
     "sweep",

@@ -1,0 +1,195 @@
+"""``piezo levels``: the IEC 61672-1 level set of a recording (LAeq, LAFmax, LCpeak, ...)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+from rich.table import Table
+
+from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.cli.output import console, emit_json, progress
+from piezo.errors import InputError
+from piezo.levels import PERCENTILES, LevelMeter, LevelResult
+from piezo.units import parse_duration, parse_quantity
+
+#: Shown with every result (terminal and JSON).
+CAUTION = (
+    "Signal analysis of a recording, not a certified sound level meter measurement. "
+    "Occupational noise exposure must be assessed as local regulations require, with "
+    "calibrated class 1 instruments."
+)
+
+#: Key order of each channel in the JSON document (the names are a public contract).
+LEVEL_KEYS = (
+    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin", "LCpeak", "LZpeak",
+    "LAE", *(f"LAF{p}" for p in PERCENTILES),
+)  # fmt: skip
+
+#: Terminal history tables longer than this are left to --json.
+MAX_HISTORY_ROWS = 60
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``levels`` command to ``app``."""
+    app.command(
+        "levels",
+        help="Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "
+        "LZpeak, LAE, LAF5..LAF95 (IEC 61672-1).",
+    )(levels)
+
+
+@source_options
+def levels(
+    file: Annotated[Path, typer.Argument(help="Recording: WAV, FLAC, RF64, W64, CSV ...")],
+    *,
+    interval: Annotated[
+        str | None,
+        typer.Option(
+            "--interval",
+            metavar="T",
+            help="Also give a level history: Leq per interval of T (e.g. '1s', '100 ms'), "
+            "and LAF/LAS sampled every 0.1 s.",
+        ),
+    ] = None,
+    settle: Annotated[
+        str | None,
+        typer.Option(
+            "--settle",
+            metavar="T",
+            help="Filter settling time excluded from LCpeak, LAFmax, LASmax (and, plus 5 "
+            "time constants, from LAFmin, LASmin, LAF percentiles). Default 0.1 s; use 0 "
+            "for a capture that starts on the event.",
+        ),
+    ] = None,
+    json_out: JsonOption = False,
+    src: SourceOptions,
+) -> None:
+    """Equivalent, maximum, minimum, peak, exposure and percentile levels.
+
+    Frequency weightings A, C, Z and time weightings F (125 ms) and S (1 s) follow
+    IEC 61672-1:2013. Levels are in dB re 20 µPa (air), 1 µPa (water, --reference) or,
+    without a sensitivity, dB re 1 V. See docs/levels.md for each level's definition and
+    the start-up handling.
+    """
+    interval_s = parse_duration(interval, what="--interval") if interval is not None else None
+    source = open_source(file, src)
+    options: dict[str, Any] = {"reference": source.reference}
+    if interval_s is not None:
+        options["interval_s"] = interval_s
+    if settle is not None:
+        settle_s = parse_quantity(settle, "s", what="--settle")
+        if settle_s < 0:
+            raise InputError(f"--settle must be 0 or more, got {settle!r}")
+        options["filter_settle_s"] = settle_s
+    meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
+    with progress(f"Levels {file.name}", source.frames) as advance:
+        for block in source.blocks():
+            meter.update(block)
+            advance(block.shape[0])
+    result = meter.result()
+    doc = _document(file, source, result)
+    if json_out:
+        emit_json(doc)
+        return
+    _print(doc)
+
+
+def _document(file: Path, source: Any, result: LevelResult) -> dict[str, Any]:
+    channels = []
+    for index, ch in zip(source.channel_indices, result.channels, strict=True):
+        entry: dict[str, Any] = {"channel": index}
+        entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
+        entry.update(
+            duration_s=result.duration_s,
+            crest_factor=ch.crest_factor,
+            crest_factor_db=ch.crest_factor_db,
+            notes=list(ch.notes),
+        )
+        channels.append(entry)
+    doc: dict[str, Any] = {
+        "file": str(file),
+        "unit": source.unit,
+        "level_unit": source.chain.level_unit,
+        "reference": result.reference,
+        "sample_rate_hz": result.sample_rate_hz,
+        "duration_s": result.duration_s,
+        "percentile_interval_s": result.percentile_interval_s,
+        "start_up_excluded_s": result.excluded_s,
+        "standard": "IEC 61672-1:2013 frequency and time weightings",
+        "caution": CAUTION,
+        "channels": channels,
+    }
+    if result.history is not None:
+        h = result.history
+        doc["history"] = {
+            "interval_s": h.interval_s,
+            "interval_start_s": h.interval_start_s,
+            "interval_duration_s": h.interval_duration_s,
+            "trace_interval_s": h.trace_interval_s,
+            "trace_time_s": h.trace_time_s,
+            "channels": [
+                {
+                    "channel": index,
+                    "LZeq": h.LZeq[:, i],
+                    "LAeq": h.LAeq[:, i],
+                    "LCeq": h.LCeq[:, i],
+                    "LAF": h.LAF[:, i],
+                    "LAS": h.LAS[:, i],
+                }
+                for i, index in enumerate(source.channel_indices)
+            ],
+        }
+    return doc
+
+
+def _fmt(value: float | None) -> str:
+    return "—" if value is None else f"{value:.1f}"
+
+
+def _print(doc: dict[str, Any]) -> None:
+    console.print(f"[bold]{doc['file']}[/bold]")
+    console.print(
+        f"  {doc['duration_s']:.3f} s at {doc['sample_rate_hz']:g} Hz, levels in "
+        f"{doc['level_unit']}"
+    )
+    table = Table(box=None, pad_edge=False, header_style="bold")
+    table.add_column("level")
+    for ch in doc["channels"]:
+        table.add_column(f"ch {ch['channel']}", justify="right")
+    for key in LEVEL_KEYS:
+        table.add_row(key, *(_fmt(ch[key]) for ch in doc["channels"]))
+    table.add_row("crest factor (dB)", *(_fmt(ch["crest_factor_db"]) for ch in doc["channels"]))
+    console.print(table)
+    excluded = doc["start_up_excluded_s"]
+    console.print(
+        f"  start-up excluded: {excluded['LAFmax']:g} s from LCpeak/LAFmax/LASmax, "
+        f"{excluded['LAFmin']:g} s from LAFmin and LAF percentiles, "
+        f"{excluded['LASmin']:g} s from LASmin"
+    )
+    for ch in doc["channels"]:
+        for note in ch["notes"]:
+            console.print(f"  ch {ch['channel']}: {note}")
+    history = doc.get("history")
+    if history is not None:
+        rows = len(history["interval_start_s"])
+        if rows > MAX_HISTORY_ROWS:
+            console.print(f"  history: {rows} intervals (use --json to get them)")
+        else:
+            hist = Table(box=None, pad_edge=False, header_style="bold")
+            hist.add_column("start s", justify="right")
+            for ch in history["channels"]:
+                for name in ("LZeq", "LAeq", "LCeq"):
+                    hist.add_column(f"{name} ch {ch['channel']}", justify="right")
+            for i in range(rows):
+                cells = [f"{history['interval_start_s'][i]:g}"]
+                for ch in history["channels"]:
+                    cells += [_fmt(_finite(ch[name][i])) for name in ("LZeq", "LAeq", "LCeq")]
+                hist.add_row(*cells)
+            console.print(hist)
+    console.print(f"[dim]{doc['caution']}[/dim]")
+
+
+def _finite(value: float) -> float | None:
+    return None if value != value else float(value)  # NaN -> None
