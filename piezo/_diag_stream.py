@@ -286,6 +286,54 @@ class IntervalStats:
         return np.concatenate(idx), np.concatenate(means), np.concatenate(vars_)
 
 
+_HIST_DB_LO = -320.0
+_HIST_DB_STEP = 0.05
+_HIST_BINS = int(640 / _HIST_DB_STEP)
+
+
+class IntervalLevels:
+    """RMS levels of fixed intervals (mean removed) in a fixed 0.05 dB histogram.
+
+    Percentiles of the interval levels come from the histogram (to within a bin); memory
+    does not depend on the number of intervals. Intervals whose variance is zero (digital
+    silence) are counted apart.
+    """
+
+    def __init__(self, length: int, channels: int, reference: float) -> None:
+        self.stats = IntervalStats(length, channels)
+        self.reference = reference
+        self.hist = np.zeros((_HIST_BINS, channels), dtype=np.int64)
+        self.silent = np.zeros(channels, dtype=np.int64)
+
+    @property
+    def completed(self) -> int:
+        return self.stats.completed
+
+    def update(self, x: np.ndarray) -> None:
+        idx, _, var = self.stats.update(x)
+        if idx.size == 0:
+            return
+        silent = var <= 0
+        self.silent += silent.sum(axis=0)
+        with np.errstate(divide="ignore"):
+            level = 10 * np.log10(var / self.reference**2)
+        bins = np.clip(np.floor((level - _HIST_DB_LO) / _HIST_DB_STEP), 0, _HIST_BINS - 1)
+        bins = bins.astype(np.int64)
+        for c in range(x.shape[1]):
+            np.add.at(self.hist[:, c], bins[~silent[:, c], c], 1)
+
+    def percentile_db(self, channel: int, pct: float) -> float | None:
+        """The ``pct`` percentile of the channel's interval levels (dB), None if none."""
+        hist = self.hist[:, channel]
+        total = int(hist.sum())
+        if total == 0:
+            return None
+        cum = np.cumsum(hist)
+        i = int(np.searchsorted(cum, pct / 100.0 * total, side="left"))
+        i = min(i, _HIST_BINS - 1)
+        return _HIST_DB_LO + (i + 0.5) * _HIST_DB_STEP
+
+
 class SegmentSpectrum:
     """Averaged periodograms: Hann window, 50 % overlap, mean removed per segment.
 

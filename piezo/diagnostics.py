@@ -44,6 +44,7 @@ from piezo._diag_spectral import (
 from piezo._diag_stream import (
     EMPTY_F,
     ExtremeSide,
+    IntervalLevels,
     IntervalStats,
     MaskRuns,
     RunTracker,
@@ -59,6 +60,7 @@ from piezo._diag_thresholds import (
 from piezo.chain import CalibratedSource
 from piezo.errors import InputError, RecordingError
 from piezo.units import format_quantity
+from piezo.weighting import MIN_SAMPLE_RATE_HZ, FrequencyWeighting
 
 __all__ = [
     "CaptureChecker",
@@ -204,6 +206,7 @@ class DropoutResult:
 @dataclass(frozen=True)
 class NoiseFloorResult:
     noise_floor_db: float | None  # quietest intervals, dB re reference
+    noise_floor_a_db: float | None  # the same A-weighted (IEC 61672-1); None below 8 kHz
     signal_level_db: float | None
     snr_db: float | None
     psd_floor_db: float | None  # dB re reference²/Hz
@@ -321,6 +324,7 @@ class ChannelDiagnostics:
             "noise_floor_db": _num(n.noise_floor_db),
             "noise": {
                 "noise_floor_db": _num(n.noise_floor_db),
+                "noise_floor_a_db": _num(n.noise_floor_a_db),
                 "signal_level_db": _num(n.signal_level_db),
                 "snr_db": _num(n.snr_db),
                 "psd_floor_db": _num(n.psd_floor_db),
@@ -408,10 +412,6 @@ def _num(value: float | None) -> float | None:
 # --------------------------------------------------------------------------------------
 # The checker
 # --------------------------------------------------------------------------------------
-
-_HIST_DB_LO = -320.0
-_HIST_DB_STEP = 0.05
-_HIST_BINS = int(640 / _HIST_DB_STEP)
 
 
 class CaptureChecker:
@@ -537,9 +537,13 @@ class CaptureChecker:
         self._drift_m0 = np.full(channels, math.nan)  # first interval mean (origin of sums)
         # Noise floor.
         self._noise_len = max(1, round(th.noise_interval_s * fs))
-        self._noise = IntervalStats(self._noise_len, channels)
-        self._noise_hist = np.zeros((_HIST_BINS, channels), dtype=np.int64)
-        self._noise_silent = np.zeros(channels, dtype=np.int64)
+        self._noise = IntervalLevels(self._noise_len, channels, self.reference)
+        # The same through the IEC 61672-1 A weighting (not below its minimum rate).
+        self._weight_a: FrequencyWeighting | None = None
+        self._noise_a: IntervalLevels | None = None
+        if fs >= MIN_SAMPLE_RATE_HZ:
+            self._weight_a = FrequencyWeighting(fs, channels, weighting="A")
+            self._noise_a = IntervalLevels(self._noise_len, channels, self.reference)
         # Spectrum.
         nperseg = int(2 ** math.ceil(math.log2(max(fs / th.spectrum_resolution_hz, 64))))
         self._spectrum = SegmentSpectrum(fs, channels, nperseg)
@@ -598,7 +602,9 @@ class CaptureChecker:
             self._add_exact_runs(c, s, ln, v)
         self._spectrum.update(x)
         self._update_drift(x)
-        self._update_noise(x)
+        self._noise.update(x)
+        if self._weight_a is not None and self._noise_a is not None:
+            self._noise_a.update(self._weight_a.update(x))
         self.frames += n
 
     def _add_flat_runs(self, c: int, s: np.ndarray, ln: np.ndarray, v: np.ndarray) -> None:
@@ -654,20 +660,6 @@ class CaptureChecker:
         self._drift_sm += m.sum(axis=0)
         self._drift_stm += (t[:, None] * m).sum(axis=0)
         self._drift_smm += (m**2).sum(axis=0)
-
-    def _update_noise(self, x: np.ndarray) -> None:
-        idx, _, var = self._noise.update(x)
-        if idx.size == 0:
-            return
-        silent = var <= 0
-        self._noise_silent += silent.sum(axis=0)
-        with np.errstate(divide="ignore"):
-            level = 10 * np.log10(var / self.reference**2)
-        bins = np.clip(np.floor((level - _HIST_DB_LO) / _HIST_DB_STEP), 0, _HIST_BINS - 1).astype(
-            np.int64
-        )
-        for c in range(self.channels):
-            np.add.at(self._noise_hist[:, c], bins[~silent[:, c], c], 1)
 
     # ---------------------------------------------------------------- result
     def result(self) -> CaptureDiagnostics:
@@ -1153,22 +1145,17 @@ class CaptureChecker:
             return Check("rolloff", sev, evidence, threshold)
         return Check("rolloff", Severity.OK, f"not determinable: {r.reason}", threshold)
 
-    def _percentile_db(self, c: int, pct: float) -> float | None:
-        hist = self._noise_hist[:, c]
-        total = int(hist.sum())
-        if total == 0:
-            return None
-        cum = np.cumsum(hist)
-        i = int(np.searchsorted(cum, pct / 100.0 * total, side="left"))
-        i = min(i, _HIST_BINS - 1)
-        return _HIST_DB_LO + (i + 0.5) * _HIST_DB_STEP
-
     def _noise_floor(self, c: int, psd_floor: float | None) -> tuple[NoiseFloorResult, Check]:
         th = self.thresholds
         intervals = int(self._noise.completed)
-        silent = int(self._noise_silent[c])
-        floor = self._percentile_db(c, th.noise_floor_percentile)
-        sig = self._percentile_db(c, th.signal_percentile)
+        silent = int(self._noise.silent[c])
+        floor = self._noise.percentile_db(c, th.noise_floor_percentile)
+        sig = self._noise.percentile_db(c, th.signal_percentile)
+        floor_a = (
+            self._noise_a.percentile_db(c, th.noise_floor_percentile)
+            if self._noise_a is not None
+            else None
+        )
         threshold = (
             f"floor / signal = {th.noise_floor_percentile:g}th / "
             f"{th.signal_percentile:g}th percentile of {th.noise_interval_s:g} s levels; "
@@ -1182,12 +1169,14 @@ class CaptureChecker:
                 if intervals == 0
                 else "every interval is digital silence"
             )
-            res = NoiseFloorResult(None, None, None, psd_floor, intervals, silent, reason)
+            res = NoiseFloorResult(None, None, None, None, psd_floor, intervals, silent, reason)
             return res, Check(
                 "noise", Severity.OK, f"noise floor not determinable: {reason}", threshold
             )
         snr = sig - floor
         evidence = f"quietest intervals {floor:.1f} {ref}"
+        if floor_a is not None:
+            evidence += f" ({floor_a:.1f} dB A-weighted)"
         if psd_floor is not None:
             evidence += (
                 f"; PSD floor {psd_floor:.1f} dB re "
@@ -1197,7 +1186,7 @@ class CaptureChecker:
             evidence += f"; {silent} silent intervals"
         if snr >= th.signal_presence_db:
             reason = "signal stands out of the quietest intervals"
-            res = NoiseFloorResult(floor, sig, snr, psd_floor, intervals, silent, reason)
+            res = NoiseFloorResult(floor, floor_a, sig, snr, psd_floor, intervals, silent, reason)
             evidence += f"; signal {sig:.1f} {ref}, SNR {snr:.1f} dB"
             sev = Severity.WARN if snr < th.snr_warn_db else Severity.OK
             return res, Check("noise", sev, evidence, threshold)
@@ -1205,7 +1194,7 @@ class CaptureChecker:
             f"steady recording: loud and quiet intervals within {th.signal_presence_db:g} dB, "
             "no SNR"
         )
-        res = NoiseFloorResult(floor, sig, None, psd_floor, intervals, silent, reason)
+        res = NoiseFloorResult(floor, floor_a, sig, None, psd_floor, intervals, silent, reason)
         return res, Check("noise", Severity.OK, evidence + f"; {reason}", threshold)
 
     def _metadata_checks(self) -> tuple[Check, ...]:
