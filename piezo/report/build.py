@@ -10,12 +10,13 @@ import json
 from pathlib import Path
 from typing import Any
 
-from piezo.cli.output import atomic_output, to_jsonable
 from piezo.report import plots
 from piezo.report.document import (
     CAUTIONS,
     REPORT_SCHEMA,
     chain_section,
+    conformance_section,
+    levels_section,
     recording_section,
     software_versions,
 )
@@ -27,6 +28,9 @@ __all__ = ["report_document", "report_figures", "write_report"]
 
 def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
     """The JSON document of a run (``docs/report.schema.json``)."""
+    # Imported here: piezo.cli imports every command, and `piezo report` imports us.
+    from piezo.cli.output import to_jsonable
+
     source = run.source
     diagnostics = run.diagnostics.as_dict()
     doc: dict[str, Any] = {
@@ -37,20 +41,21 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
             "json_name": json_name,
         },
         "cautions": list(CAUTIONS),
+        "notes": list(run.notes),
         "recording": recording_section(source),
         "chain": chain_section(source),
         "settings": run.settings.as_dict(),
         "diagnostics": diagnostics,
-        "levels": None,
+        "levels": (levels_section(run.levels, source.chain.level_unit) if run.levels else None),
         "spectrum": None,
         "bands": None,
         "spectrogram": None,
         "tone": None,
         "frontend": None,
         "conformance": {
-            "weighting": [],
+            "weighting": conformance_section(run.conformance),
             "bands": None,
-            "note": "no filter self-test available at this sample rate",
+            "note": "; ".join(run.notes) or "no filter self-test at this sample rate",
         },
     }
     return to_jsonable(doc)
@@ -64,11 +69,17 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
         png = plots.rolloff_figure(ch, level_unit)
         if png is not None:
             figures[f"rolloff_{ch.channel}"] = png
+    if run.levels is not None and run.levels.history is not None:
+        figures["level_history"] = plots.level_history_figure(
+            run.levels, list(run.source.channel_indices), level_unit
+        )
     return figures
 
 
 def write_report(run: RunResults, out_dir: Path, stem: str) -> tuple[Path, Path]:
     """Write ``<stem>.html`` and ``<stem>.json`` into ``out_dir`` (atomically each)."""
+    from piezo.cli.output import atomic_output  # see report_document
+
     html_path = out_dir / f"{stem}.html"
     json_path = out_dir / f"{stem}.json"
     doc = report_document(run, json_name=json_path.name)

@@ -11,14 +11,21 @@ import platform
 from importlib import metadata
 from typing import Any
 
+import numpy as np
+
 from piezo import __version__
 from piezo.chain import CalibratedSource
+from piezo.levels import LevelResult
 from piezo.units import format_quantity, ratio_to_db
+from piezo.weighting import ConformanceReport
 
 __all__ = [
     "CAUTIONS",
+    "LEVEL_NAMES",
     "REPORT_SCHEMA",
     "chain_section",
+    "conformance_section",
+    "levels_section",
     "recording_section",
     "software_versions",
 ]
@@ -164,3 +171,96 @@ def finite(value: float | None, digits: int | None = None) -> float | None:
     if not math.isfinite(value):
         return None
     return round(value, digits) if digits is not None else value
+
+
+#: Levels shown in the report's table, in this order.
+LEVEL_NAMES = (
+    "LAeq",
+    "LCeq",
+    "LZeq",
+    "LAFmax",
+    "LAFmin",
+    "LASmax",
+    "LASmin",
+    "LCpeak",
+    "LZpeak",
+    "LAE",
+    "LAF5",
+    "LAF10",
+    "LAF50",
+    "LAF90",
+    "LAF95",
+)
+
+
+def _series(values: np.ndarray, digits: int = 2) -> list[float | None]:
+    return [finite(v, digits) for v in np.asarray(values, dtype=float).tolist()]
+
+
+def _columns(matrix: np.ndarray, digits: int = 2) -> list[list[float | None]]:
+    """(points, channels) -> one list per channel."""
+    m = np.asarray(matrix, dtype=float)
+    return [_series(m[:, c], digits) for c in range(m.shape[1])]
+
+
+def levels_section(levels: LevelResult, level_unit: str) -> dict[str, Any]:
+    """The level set per channel and the level history (levels in dB re the reference)."""
+    channels = []
+    for ch in levels.channels:
+        entry: dict[str, Any] = {"channel": ch.channel}
+        entry.update({name: finite(getattr(ch, name)) for name in LEVEL_NAMES})
+        entry["crest_factor_db"] = finite(ch.crest_factor_db)
+        entry["notes"] = list(ch.notes)
+        channels.append(entry)
+    history = None
+    h = levels.history
+    if h is not None:
+        history = {
+            "interval_s": h.interval_s,
+            "interval_start_s": _series(h.interval_start_s, 6),
+            "interval_duration_s": _series(h.interval_duration_s, 6),
+            "LAeq": _columns(h.LAeq),
+            "LCeq": _columns(h.LCeq),
+            "LZeq": _columns(h.LZeq),
+            "trace_interval_s": h.trace_interval_s,
+            "trace_time_s": _series(h.trace_time_s, 6),
+            "LAF": _columns(h.LAF),
+            "LAS": _columns(h.LAS),
+        }
+    return {
+        "reference": levels.reference,
+        "level_unit": level_unit,
+        "names": list(LEVEL_NAMES),
+        "percentile_interval_s": levels.percentile_interval_s,
+        "excluded_s": dict(levels.excluded_s),
+        "channels": channels,
+        "history": history,
+    }
+
+
+def conformance_section(reports: tuple[ConformanceReport, ...]) -> list[dict[str, Any]]:
+    """The weighting filters' self-test at the recording's sample rate."""
+    out = []
+    for rep in reports:
+        out.append(
+            {
+                "weighting": rep.weighting,
+                "sample_rate_hz": rep.sample_rate_hz,
+                "passed": rep.passed,
+                "max_deviation_to_10k_db": finite(rep.max_deviation_to_10k_db),
+                "max_deviation_to_20k_db": finite(rep.max_deviation_to_20k_db),
+                "rows": [
+                    {
+                        "nominal_hz": r.nominal_hz,
+                        "design_db": finite(r.design_db, 3),
+                        "filter_db": finite(r.filter_db, 3),
+                        "deviation_db": finite(r.deviation_db, 3),
+                        "upper_limit_db": finite(r.upper_limit_db),
+                        "lower_limit_db": finite(r.lower_limit_db),
+                        "passed": r.passed,
+                    }
+                    for r in rep.rows
+                ],
+            }
+        )
+    return out

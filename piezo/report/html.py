@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import base64
 import math
+import re
 from collections.abc import Mapping
 from importlib import resources
 from typing import Any
@@ -33,6 +34,9 @@ def _fmt(value: Any, spec: str = "") -> str:
     if isinstance(value, float):
         if not math.isfinite(value):
             return "—"
+        digits = re.search(r"\.(\d+)f$", spec)
+        if digits:
+            value = round(value, int(digits.group(1))) + 0.0  # no "-0.000"
         return format(value, spec) if spec else format(value, "g")
     if isinstance(value, int):
         return format(value, spec) if spec else str(value)

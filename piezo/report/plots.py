@@ -6,12 +6,15 @@ object (or the same value the JSON document carries). Each function returns PNG 
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from piezo.diagnostics import ChannelDiagnostics
-from piezo.report.style import INK, figure, plot_style, png_bytes, trace
+from piezo.levels import LevelResult
+from piezo.report.style import INK, figure, legend_below, plot_style, png_bytes, trace
 
-__all__ = ["rolloff_figure"]
+__all__ = ["level_history_figure", "rolloff_figure"]
 
 
 def _hp_db(f: np.ndarray, corner_hz: float, order: int) -> np.ndarray:
@@ -31,8 +34,7 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
     f = np.asarray(r.band_hz)
     level = np.asarray(r.band_level_db)
     with plot_style():
-        fig = figure(6.6, 3.0)
-        ax = fig.add_subplot()
+        fig, ax = figure(6.6, 3.0, legend_rows=1)
         ax.semilogx(
             f,
             level,
@@ -74,7 +76,7 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
             top = float(finite.max())
             ax.set_ylim(max(float(finite.min()), top - 90.0) - 3.0, top + 6.0)
         ax.set_xlim(f[0] / 1.2, f[-1] * 1.2)
-        fig.legend(loc="outside lower center", ncol=2)
+        legend_below(fig, 2)
         return png_bytes(fig)
 
 
@@ -84,3 +86,39 @@ def _density_unit(level_unit: str) -> str:
     if level_unit.startswith(prefix):
         return f"{prefix}({level_unit[len(prefix) :]})²/Hz"
     return f"{level_unit} per Hz"
+
+
+def level_history_figure(levels: LevelResult, channels: list[int], level_unit: str) -> bytes:
+    """LAeq per interval (steps) and the LAF trace, per channel, against time."""
+    h = levels.history
+    assert h is not None
+    rows = math.ceil(2 * len(channels) / 4)
+    end = h.interval_start_s[-1] + h.interval_duration_s[-1]
+    edges = np.append(h.interval_start_s, end)
+    with plot_style():
+        fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
+        for i, ch in enumerate(channels):
+            style = trace(i)
+            ax.plot(
+                h.trace_time_s,
+                h.LAF[:, i],
+                **{**style, "linewidth": 0.7},
+                alpha=0.55,
+                label=f"channel {ch}: LAF",
+            )
+            ax.stairs(
+                h.LAeq[:, i],
+                edges,
+                **{**style, "linewidth": 1.8},
+                label=f"channel {ch}: LAeq per {h.interval_s:g} s",
+            )
+        ax.set_xlabel("time / s")
+        ax.set_ylabel(f"level / {level_unit}")
+        ax.set_title("Level history")
+        ax.set_xlim(0.0, float(end))
+        finite = np.concatenate([h.LAF[np.isfinite(h.LAF)], h.LAeq[np.isfinite(h.LAeq)]])
+        if finite.size:
+            top = float(finite.max())
+            ax.set_ylim(max(float(finite.min()), top - 60.0) - 2.0, top + 3.0)
+        legend_below(fig, min(4, 2 * len(channels)))
+        return png_bytes(fig)

@@ -9,14 +9,17 @@ objects, so nothing is computed twice.
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from collections.abc import Callable
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
 
 from piezo.chain import CalibratedSource
 from piezo.diagnostics import CaptureDiagnostics, Thresholds, checker_for_source
 from piezo.errors import InputError
+from piezo.levels import LevelMeter, LevelResult
+from piezo.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
 
 __all__ = ["ReportSettings", "RunResults", "analyse"]
 
@@ -29,6 +32,9 @@ class ReportSettings:
     ----------
     block_frames
         Frames per block read from the file.
+    level_interval_s
+        Interval of the level history (LAeq per interval); None: chosen from the length
+        of the recording (about 100 intervals, a round number of seconds, at least 0.1 s).
     thresholds
         Thresholds of the capture diagnostics.
     frontend_design
@@ -36,6 +42,7 @@ class ReportSettings:
     """
 
     block_frames: int = 65536
+    level_interval_s: float | None = None
     thresholds: Thresholds = field(default_factory=Thresholds)
     frontend_design: Path | None = None
 
@@ -64,6 +71,9 @@ class RunResults:
     settings: ReportSettings
     generated_utc: str
     diagnostics: CaptureDiagnostics
+    levels: LevelResult | None
+    conformance: tuple[ConformanceReport, ...]
+    notes: tuple[str, ...]
 
 
 def analyse(
@@ -76,15 +86,49 @@ def analyse(
 
     ``advance(frames)`` is called after each block (for a progress bar).
     """
+    fs = source.sample_rate_hz
+    channels = len(source.channel_indices)
+    notes: list[str] = []
+    interval_s = settings.level_interval_s or _nice_interval(source.frames / fs)
+    settings = replace(settings, level_interval_s=interval_s)
     checker = checker_for_source(source, settings.thresholds)
+    analyses: list[Any] = [checker]
+    meter = None
+    if fs >= MIN_SAMPLE_RATE_HZ:
+        meter = LevelMeter(fs, channels, reference=source.reference, interval_s=interval_s)
+        analyses.append(meter)
+    else:
+        notes.append(
+            f"levels and the weighting self-test need at least {MIN_SAMPLE_RATE_HZ:g} Hz "
+            f"(IEC 61672-1 filters); this recording has {fs:g} Hz"
+        )
     for block in source.blocks(settings.block_frames):
-        checker.update(block)
+        for analysis in analyses:
+            analysis.update(block)
         if advance is not None:
             advance(block.shape[0])
+    selftest: tuple[ConformanceReport, ...] = ()
+    if fs >= MIN_SAMPLE_RATE_HZ:
+        selftest = (conformance("A", fs), conformance("C", fs))
     now = _dt.datetime.now(_dt.UTC).replace(microsecond=0)
     return RunResults(
         source=source,
         settings=settings,
         generated_utc=now.isoformat().replace("+00:00", "Z"),
         diagnostics=checker.result(),
+        levels=meter.result() if meter is not None else None,
+        conformance=selftest,
+        notes=tuple(notes),
     )
+
+
+_NICE_S = (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 15.0, 30.0, 60.0, 120.0, 300.0, 600.0)
+
+
+def _nice_interval(duration_s: float) -> float:
+    """A round interval giving about 100 intervals over ``duration_s`` (at least 0.1 s)."""
+    want = duration_s / 100.0
+    for step in _NICE_S:
+        if step >= want:
+            return step
+    return 60.0 * math.ceil(want / 60.0)
