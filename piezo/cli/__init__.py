@@ -35,6 +35,7 @@ COMMAND_MODULES = (
     "demo",
     "sweep",
     "response",
+    "frontend",
     "check",
     "report",
 )
