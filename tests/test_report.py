@@ -215,3 +215,26 @@ def test_page_renders_in_headless_chromium(reports, tmp_path):
         natural, shown = item.split(":")
         w, h = (int(v) for v in natural.split("x"))
         assert w > 0 and h > 0 and int(shown) > 0, item
+
+
+def test_frontend_design_adds_its_response(cli, tmp_path):
+    t = np.arange(FS) / FS
+    path = tmp_path / "tone.wav"
+    sf.write(str(path), 0.1 * np.sin(2 * np.pi * 440 * t), FS)
+    design = RECORDINGS / "designs" / "pump-disc-charge.toml"
+    out = tmp_path / "out"
+    r = cli("report", path, "--out", out, "--frontend", design)
+    assert r.code == 0, r.err
+    doc = json.loads((out / "tone.report.json").read_text(encoding="utf-8"))
+    fe = doc["frontend"]
+    # Charge amplifier corner f_c = 1/(2 pi R_f C_f) (reference-values.md, circuit
+    # theory): R_f 1 GOhm, C_f 10 nF in this design -> 0.015915 Hz.
+    assert fe["corner_hz"] == pytest.approx(1 / (2 * np.pi * 1e9 * 10e-9), rel=1e-3)
+    assert len(fe["frequency_hz"]) == len(fe["level_db"]) == len(fe["phase_deg"])
+    page = (out / "tone.report.html").read_text(encoding="utf-8")
+    assert "Front-end response" in page
+    assert 'alt="Front-end response"' in page
+    _schema_validator().validate(doc)
+    r = cli("report", path, "--out", out, "--frontend", tmp_path / "none.toml")
+    assert r.code == 2
+    assert "design file" in r.err

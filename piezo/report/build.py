@@ -16,6 +16,7 @@ from piezo.report.document import (
     REPORT_SCHEMA,
     chain_section,
     conformance_section,
+    frontend_section,
     levels_section,
     recording_section,
     software_versions,
@@ -51,7 +52,7 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
         "bands": None,
         "spectrogram": None,
         "tone": None,
-        "frontend": None,
+        "frontend": frontend_section(run.frontend) if run.frontend else None,
         "conformance": {
             "weighting": conformance_section(run.conformance),
             "bands": None,
@@ -73,6 +74,8 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
         figures["level_history"] = plots.level_history_figure(
             run.levels, list(run.source.channel_indices), level_unit
         )
+    if run.frontend is not None:
+        figures["frontend"] = plots.frontend_figure(run.frontend)
     return figures
 
 

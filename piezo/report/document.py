@@ -25,6 +25,7 @@ __all__ = [
     "REPORT_SCHEMA",
     "chain_section",
     "conformance_section",
+    "frontend_section",
     "levels_section",
     "recording_section",
     "software_versions",
@@ -264,3 +265,40 @@ def conformance_section(reports: tuple[ConformanceReport, ...]) -> list[dict[str
             }
         )
     return out
+
+
+def frontend_section(fr: Any) -> dict[str, Any]:
+    """The front-end design's summary and modelled response (a FrontendResponse)."""
+    sm = fr.summary
+    band3 = sm.band_3db_hz
+    parts = [
+        f"{fr.amplifier} amplifier",
+        f"midband {format_quantity(sm.sensitivity_v_per_pa, 'V/Pa')} "
+        f"({sm.sensitivity_db_re_1v_per_pa:.2f} dB re 1 V/Pa)",
+        f"low corner {format_quantity(sm.corner_hz, 'Hz')} "
+        f"(time constant {format_quantity(sm.time_constant_s, 's')})",
+    ]
+    if band3 is not None:
+        lo = "—" if band3[0] is None else format_quantity(band3[0], "Hz")
+        hi = "—" if band3[1] is None else format_quantity(band3[1], "Hz")
+        parts.append(f"−3 dB band {lo} to {hi}")
+    if sm.inverting:
+        parts.append("inverting")
+    return {
+        "design": fr.design,
+        "name": fr.name,
+        "amplifier": fr.amplifier,
+        "summary": "; ".join(parts),
+        "sensitivity_v_per_pa": finite(sm.sensitivity_v_per_pa),
+        "sensitivity_db_re_1v_per_pa": finite(sm.sensitivity_db_re_1v_per_pa),
+        "charge_gain_v_per_c": finite(sm.charge_gain_v_per_c),
+        "corner_hz": finite(sm.corner_hz),
+        "time_constant_s": finite(sm.time_constant_s),
+        "band_3db_hz": None if band3 is None else [finite(v) for v in band3],
+        "band_1db_hz": None if sm.band_1db_hz is None else [finite(v) for v in sm.band_1db_hz],
+        "inverting": sm.inverting,
+        "divider_ratio": finite(sm.divider_ratio),
+        "frequency_hz": _series(fr.frequency_hz, 6),
+        "level_db": _series(fr.level_db, 3),
+        "phase_deg": _series(fr.phase_deg, 2),
+    }

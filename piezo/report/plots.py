@@ -12,9 +12,10 @@ import numpy as np
 
 from piezo.diagnostics import ChannelDiagnostics
 from piezo.levels import LevelResult
+from piezo.report.run import FrontendResponse
 from piezo.report.style import INK, figure, legend_below, plot_style, png_bytes, trace
 
-__all__ = ["level_history_figure", "rolloff_figure"]
+__all__ = ["frontend_figure", "level_history_figure", "rolloff_figure"]
 
 
 def _hp_db(f: np.ndarray, corner_hz: float, order: int) -> np.ndarray:
@@ -121,4 +122,37 @@ def level_history_figure(levels: LevelResult, channels: list[int], level_unit: s
             top = float(finite.max())
             ax.set_ylim(max(float(finite.min()), top - 60.0) - 2.0, top + 3.0)
         legend_below(fig, min(4, 2 * len(channels)))
+        return png_bytes(fig)
+
+
+def frontend_figure(fr: FrontendResponse) -> bytes:
+    """Magnitude (re midband) and phase of a front-end design against frequency."""
+    sm = fr.summary
+    with plot_style():
+        fig, ax = figure(6.6, 4.2)
+        f = fr.frequency_hz
+        ax.semilogx(f, fr.level_db, **trace(0), label="magnitude")
+        ax.axhspan(-1.0, 1.0, color="#e4e6ea", zorder=0)
+        ax.axvline(sm.corner_hz, **{**trace(3), "linewidth": 0.9})
+        ax.annotate(
+            f" corner {sm.corner_hz:.3g} Hz",
+            (sm.corner_hz, -3.0),
+            fontsize=8,
+            color=INK,
+            va="top",
+        )
+        finite = fr.level_db[np.isfinite(fr.level_db)]
+        ax.set_ylim(max(-40.0, float(finite.min()) - 3.0), min(30.0, float(finite.max()) + 3.0))
+        ax.set_xlabel("frequency / Hz")
+        ax.set_ylabel("level re midband / dB")
+        ax.set_title(f"Front-end response: {fr.name or fr.design}")
+        ax.set_xlim(float(f[0]), float(f[-1]))
+        twin = ax.twinx()
+        twin.semilogx(f, fr.phase_deg, **trace(1), label="phase")
+        twin.set_ylabel("phase / degree")
+        twin.grid(False)
+        twin.spines["right"].set_visible(True)
+        lines = ax.get_lines()[:1] + twin.get_lines()[:1]
+        ax.legend(lines, [ln.get_label() for ln in lines], loc="lower right")
+        fig.subplots_adjust(right=1.0 - 0.75 / 6.6)
         return png_bytes(fig)

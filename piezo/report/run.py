@@ -15,13 +15,22 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from piezo.chain import CalibratedSource
 from piezo.diagnostics import CaptureDiagnostics, Thresholds, checker_for_source
 from piezo.errors import InputError
+from piezo.frontend import (
+    ResponseSummary,
+    frequency_response,
+    load_frontend,
+    phase_deg,
+    summarise_response,
+)
 from piezo.levels import LevelMeter, LevelResult
 from piezo.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
 
-__all__ = ["ReportSettings", "RunResults", "analyse"]
+__all__ = ["FrontendResponse", "ReportSettings", "RunResults", "analyse", "frontend_response"]
 
 
 @dataclass(frozen=True)
@@ -64,6 +73,41 @@ class ReportSettings:
 
 
 @dataclass(frozen=True)
+class FrontendResponse:
+    """The modelled response of a front-end design (``piezo.frontend``).
+
+    ``level_db`` is the magnitude relative to the midband sensitivity, ``phase_deg`` the
+    phase, both on ``frequency_hz``.
+    """
+
+    design: str
+    name: str
+    amplifier: str
+    summary: ResponseSummary
+    frequency_hz: np.ndarray
+    level_db: np.ndarray
+    phase_deg: np.ndarray
+
+
+def frontend_response(path: Path, *, top_hz: float) -> FrontendResponse:
+    """Load a design and evaluate its response from below its corner up to ``top_hz``."""
+    fe = load_frontend(path)
+    summary = summarise_response(fe)
+    low = max(summary.corner_hz / 20.0, 1e-4)
+    f = np.geomspace(low, max(top_hz, 10.0 * low), 600)
+    h = frequency_response(fe, f)
+    return FrontendResponse(
+        design=str(path),
+        name=fe.name,
+        amplifier=fe.amplifier.kind,
+        summary=summary,
+        frequency_hz=f,
+        level_db=20.0 * np.log10(np.abs(h) / summary.sensitivity_v_per_pa),
+        phase_deg=np.asarray(phase_deg(fe, f), dtype=float),
+    )
+
+
+@dataclass(frozen=True)
 class RunResults:
     """The result objects of one run, with what they were made from."""
 
@@ -72,6 +116,7 @@ class RunResults:
     generated_utc: str
     diagnostics: CaptureDiagnostics
     levels: LevelResult | None
+    frontend: FrontendResponse | None
     conformance: tuple[ConformanceReport, ...]
     notes: tuple[str, ...]
 
@@ -107,6 +152,9 @@ def analyse(
             analysis.update(block)
         if advance is not None:
             advance(block.shape[0])
+    design = None
+    if settings.frontend_design is not None:
+        design = frontend_response(settings.frontend_design, top_hz=fs / 2.0)
     selftest: tuple[ConformanceReport, ...] = ()
     if fs >= MIN_SAMPLE_RATE_HZ:
         selftest = (conformance("A", fs), conformance("C", fs))
@@ -117,6 +165,7 @@ def analyse(
         generated_utc=now.isoformat().replace("+00:00", "Z"),
         diagnostics=checker.result(),
         levels=meter.result() if meter is not None else None,
+        frontend=design,
         conformance=selftest,
         notes=tuple(notes),
     )
