@@ -72,16 +72,9 @@ class RolloffResult:
 _HUM_FALSE_ALARM = 1e-3
 
 
-def _dof(averages: int) -> float:
-    """Equivalent degrees of freedom of a Hann, 50 %-overlap Welch estimate.
-
-    Welch (1967): with 50 % overlap of Hann segments the correlation of successive
-    periodograms is 0.167² ; the variance of K averages is (1 + 2·0.167²)/K of one
-    periodogram, i.e. ν ≈ 2K/1.056 (a single periodogram has ν = 2).
-    """
-    if averages <= 1:
-        return 2.0
-    return 2.0 * averages / (1.0 + 2.0 * 0.167**2)
+def _chi2_median(dof: float) -> float:
+    """Median of a χ² variable with ``dof`` degrees of freedom, divided by its mean."""
+    return float(stats.gamma.median(dof / 2.0, scale=2.0 / dof))
 
 
 def measure_hum(
@@ -89,7 +82,7 @@ def measure_hum(
     psd: np.ndarray,
     *,
     total_power: float,
-    averages: int = 1,
+    degrees_of_freedom: float = 2.0,
     reference: float = 1.0,
     thresholds: Thresholds | None = None,
 ) -> HumResult:
@@ -114,8 +107,9 @@ def measure_hum(
         Bin frequencies (Hz, uniform spacing from 0) and PSD (unit²/Hz), 1-D.
     total_power
         Mean square of the channel's AC part (unit²), for the relative levels.
-    averages
-        Number of averaged periodograms behind ``psd`` (for the scatter).
+    degrees_of_freedom
+        χ² degrees of freedom of each PSD value (2 for one periodogram; Welch averages:
+        ``PSDResult.degrees_of_freedom``), for the scatter of the estimate.
     reference
         Reference value of the unit for the dB levels (1.0 = dB re 1 unit).
     thresholds
@@ -134,8 +128,8 @@ def measure_hum(
             f"spectrum too coarse for hum ({df:.3g} Hz bins; needs at most 1 Hz, i.e. a "
             "longer recording)",
         )
-    nu = _dof(averages)
-    median_factor = float(stats.gamma.median(nu / 2.0, scale=2.0 / nu))
+    nu = float(degrees_of_freedom)
+    median_factor = _chi2_median(nu)
     inner_hz = max(3.0, 4 * df)
     outer_hz = inner_hz + max(10.0, 16 * df)
     lines: list[HumLine] = []
@@ -211,13 +205,17 @@ _TOO_NARROW = 1e30  # objective value of a fit range with too few bands
 # The passband may tilt (pink noise: -10 dB/decade; white: 0); a steeper slope is taken as
 # part of the roll-off, otherwise a first-order slope (+20 dB/decade) could pass for tilt.
 _MAX_TILT_DB_PER_DECADE = 10.0
+# A corner is accepted only when the high-pass shape improves on the passband line alone
+# by an F statistic (one extra parameter) of at least this: p below about 1e-4 for ten
+# or more bands. Noise alone rarely gets there; a real roll-off gives hundreds.
+_CORNER_F_MIN = 25.0
 
 
 def psd_floor(
     frequencies_hz: np.ndarray,
     psd: np.ndarray,
     *,
-    averages: int = 1,
+    degrees_of_freedom: float = 2.0,
     percentile: float = 10.0,
     low_hz: float = 20.0,
 ) -> float | None:
@@ -236,8 +234,7 @@ def psd_floor(
     groups = values.size // _FLOOR_GROUP
     if groups == 0:
         return None
-    nu = _dof(averages)
-    median_factor = float(stats.gamma.median(nu / 2.0, scale=2.0 / nu))
+    median_factor = _chi2_median(float(degrees_of_freedom))
     local = np.median(values[: groups * _FLOOR_GROUP].reshape(groups, _FLOOR_GROUP), axis=1)
     return float(np.percentile(local, percentile)) / median_factor
 
@@ -247,15 +244,16 @@ _FLOOR_GROUP = 32
 
 def _hp_power(r: np.ndarray, order: int) -> np.ndarray:
     """|H|² of a first-order or a second-order Butterworth high-pass at r = f/fc."""
-    q = r ** (2 * order)
-    return q / (1.0 + q)
+    # 1/(1 + r^-2n) = r^2n/(1 + r^2n), without overflow far above the corner.
+    with np.errstate(divide="ignore", over="ignore"):
+        return 1.0 / (1.0 + np.power(r, -2.0 * order))
 
 
 def estimate_rolloff(
     frequencies_hz: np.ndarray,
     psd: np.ndarray,
     *,
-    averages: int = 1,
+    degrees_of_freedom: float = 2.0,
     exclude_hz: Sequence[float] = (),
     reference: float = 1.0,
     thresholds: Thresholds | None = None,
@@ -289,8 +287,8 @@ def estimate_rolloff(
     ----------
     frequencies_hz, psd
         Bin frequencies (Hz, uniform spacing from 0) and PSD (unit²/Hz), 1-D.
-    averages
-        Number of averaged periodograms behind ``psd`` (for the scatter).
+    degrees_of_freedom
+        χ² degrees of freedom of each PSD value (for the scatter of the band levels).
     exclude_hz
         Frequencies of narrowband lines to leave out (e.g. detected hum).
     reference
@@ -336,11 +334,8 @@ def estimate_rolloff(
     # Band level: the mean of the band's bins after dropping bins that stand out as
     # narrowband lines (above the 1e-3 upper tail of the estimate's χ² scatter, taken
     # from the band median).
-    nu = _dof(averages)
-    tail = float(
-        stats.gamma.isf(1e-3, nu / 2.0, scale=2.0 / nu)
-        / stats.gamma.median(nu / 2.0, scale=2.0 / nu)
-    )
+    nu = float(degrees_of_freedom)
+    tail = float(stats.gamma.isf(1e-3, nu / 2.0, scale=2.0 / nu)) / _chi2_median(nu)
     groups = [g[p[g] <= tail * np.median(p[g])] for g in groups]
     level = np.array([10 * math.log10(max(float(np.mean(p[g])), 1e-300)) for g in groups])
     count = np.array([g.size for g in groups], dtype=np.float64)
@@ -418,7 +413,7 @@ def estimate_rolloff(
         return fail("too little bandwidth above the lowest content to fit a corner", f_content)
     grid = np.linspace(log_lo, log_hi, 240)
     step = float(grid[1] - grid[0])
-    best: tuple[float, float, int] = (_TOO_NARROW, 0.0, 1)
+    best: tuple[float, float, int, np.ndarray] = (_TOO_NARROW, 0.0, 1, sel)
     for order in (1, 2):
         errs = np.array([objective(g, order) for g in grid])
         i = int(np.argmin(errs))
@@ -428,23 +423,27 @@ def estimate_rolloff(
         # objective jump; refine with the band set held fixed, twice (the second time
         # with the bands belonging to the refined corner).
         log_fc = float(grid[i])
+        use = sel[centre[sel] <= th.rolloff_fit_span * math.exp(log_fc)]
+        value = float(errs[i])
         for _ in range(2):
-            use = sel[centre[sel] <= th.rolloff_fit_span * math.exp(log_fc)]
+            bands = sel[centre[sel] <= th.rolloff_fit_span * math.exp(log_fc)]
+            if bands.size >= 6:
+                use = bands
             res = optimize.minimize_scalar(
                 lambda g, o=order, u=use: objective(g, o, u),
                 bounds=(log_fc - 4 * step, log_fc + 4 * step),
                 method="bounded",
                 options={"xatol": 1e-5},
             )
-            log_fc = float(res.x)
-        value = objective(log_fc, order)
+            if float(res.fun) <= value:
+                log_fc, value = float(res.x), float(res.fun)
         if value < best[0]:
-            best = (value, log_fc, order)
+            best = (value, log_fc, order, use)
     if best[0] >= _TOO_NARROW:
         return fail("too little bandwidth to fit a corner", f_content)
-    _, log_fc, order = best
+    _, log_fc, order, use = best
     fc = math.exp(log_fc)
-    resid, _, use, level_1k, tilt = fit(log_fc, order)  # type: ignore[misc]
+    resid, w, use, level_1k, tilt = fit(log_fc, order, use)  # type: ignore[misc]
     evidence.update(
         fit_level_db=level_1k - ref_db,
         tilt_db_per_decade=tilt,
@@ -454,11 +453,32 @@ def estimate_rolloff(
     excess = float(np.mean(resid**2) - np.mean(sigma_b[use] ** 2))
     resid_db = math.sqrt(max(excess, 0.0))
     shape_ok = resid_db <= th.rolloff_max_residual_db
-    if not at_floor and (fc < 2.0 * f_content or not shape_ok):
+    # Is the corner needed at all? Compare with the passband line alone (no high-pass)
+    # over the same bands: an F test for the one extra parameter, the scatter taken from
+    # the high-pass fit itself so a misjudged band scatter does not decide.
+    chi2_hp = float(np.sum(w * resid**2))
+    chi2_flat = float(np.sum(w * _line_residuals(log_centre[use], level[use], w) ** 2))
+    dof_hp = max(use.size - 3, 1)
+    f_stat = (chi2_flat - chi2_hp) / max(chi2_hp / dof_hp, 1e-300)
+    significant = f_stat >= _CORNER_F_MIN
+    if not at_floor and (fc < 2.0 * f_content or not shape_ok or not significant):
         return fail(
             no_content + ": the spectrum falls faster than a first- or second-order "
             "high-pass, or the signal has no low-frequency content",
             f_content,
+        )
+    if not significant:
+        return RolloffResult(
+            "below range",
+            None,
+            None,
+            f_content,
+            None,
+            f_content,
+            expected,
+            f"no high-pass shape stands out of the scatter down to {f_content:.3g} Hz, the "
+            "lowest analysed frequency: the corner lies below it",
+            **evidence,
         )
     if not shape_ok:
         return fail(
@@ -468,22 +488,6 @@ def estimate_rolloff(
             f_content,
         )
     if fc < 2.0 * f_content:
-        # Flat means: the lowest bands sit on the fitted level-and-tilt line, no
-        # high-pass attenuation is visible (the fitted corner's own is below 3 dB there).
-        hp_low = 10 * math.log10(float(_hp_power(np.array([f_content / fc]), order)[0]))
-        if hp_low >= -3.0:
-            return RolloffResult(
-                "below range",
-                None,
-                None,
-                f_content,
-                resid_db,
-                f_content,
-                expected,
-                f"spectrum flat within 3 dB down to {f_content:.3g} Hz, the lowest analysed "
-                "frequency: the corner lies below it",
-                **evidence,
-            )
         return fail(
             f"less than one octave of content below the fitted corner ({fc:.3g} Hz)",
             f_content,
@@ -500,3 +504,13 @@ def estimate_rolloff(
         f"{resid_db:.2g} dB RMS over {f_content:.3g}..{th.rolloff_fit_span * fc:.3g} Hz",
         **evidence,
     )
+
+
+def _line_residuals(x: np.ndarray, y: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """Residuals of the weighted straight line (tilt within ±10 dB/decade) through y(x)."""
+    xm = float(np.sum(w * x) / np.sum(w))
+    ym = float(np.sum(w * y) / np.sum(w))
+    sxx = float(np.sum(w * (x - xm) ** 2))
+    tilt = float(np.sum(w * (x - xm) * (y - ym)) / sxx) if sxx > 0 else 0.0
+    tilt = min(max(tilt, -_MAX_TILT_DB_PER_DECADE), _MAX_TILT_DB_PER_DECADE)
+    return y - ym - tilt * (x - xm)

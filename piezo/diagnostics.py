@@ -694,13 +694,16 @@ class CaptureChecker:
                 psd_floor_db = None
             else:
                 freqs, psd, averages = spec
+                # Welch (1967): K Hann segments overlapping by half are worth
+                # 2K/(1 + 2 x 0.167^2) chi-square degrees of freedom (one: 2).
+                dof = 2.0 if averages <= 1 else 2.0 * averages / (1.0 + 2.0 * 0.167**2)
                 psd_c = psd[:, c]
                 if ac_power > 0:
                     hum = measure_hum(
                         freqs,
                         psd_c,
                         total_power=ac_power,
-                        averages=averages,
+                        degrees_of_freedom=dof,
                         reference=self.reference,
                         thresholds=th,
                     )
@@ -708,7 +711,7 @@ class CaptureChecker:
                     rolloff = estimate_rolloff(
                         freqs,
                         psd_c,
-                        averages=averages,
+                        degrees_of_freedom=dof,
                         exclude_hz=exclude,
                         reference=self.reference,
                         thresholds=th,
@@ -726,7 +729,7 @@ class CaptureChecker:
                         th.rolloff_expected_hz,
                         reason,
                     )
-                psd_floor_db = self._psd_floor_db(freqs, psd_c, averages)
+                psd_floor_db = self._psd_floor_db(freqs, psd_c, dof)
             hum_check = self._hum_check(hum)
             rolloff_check = self._rolloff_check(rolloff)
             noise, noise_check = self._noise_floor(c, psd_floor_db)
@@ -1087,9 +1090,9 @@ class CaptureChecker:
         sev = Severity.FAIL if fraction >= th.dropout_fail_fraction else Severity.WARN
         return result, Check("dropouts", worst_severity([sev, edge_sev]), evidence, threshold)
 
-    def _psd_floor_db(self, freqs: np.ndarray, psd: np.ndarray, averages: int) -> float | None:
+    def _psd_floor_db(self, freqs: np.ndarray, psd: np.ndarray, dof: float) -> float | None:
         floor = psd_floor(
-            freqs, psd, averages=averages, percentile=self.thresholds.noise_floor_percentile
+            freqs, psd, degrees_of_freedom=dof, percentile=self.thresholds.noise_floor_percentile
         )
         if floor is None or floor <= 0:
             return None

@@ -167,6 +167,14 @@ def test_demo_recordings(cli):
     assert ch["verdict"] == "ok"
     assert ch["rolloff"]["status"] == "estimated"
     assert ch["rolloff"]["corner_hz"] == pytest.approx(20.0, rel=0.15)
+    # The valve-rig noise capture (piezo/demo_response.py): channel 1 is the nominal
+    # pickup behind a 1 MOhm buffer, corner 1/(2 pi R_in (C_s + C_c + C_in)) with
+    # 1.8 nF + 250 pF + 10 pF = 77.3 Hz (voltage-mode corner, reference-values.md),
+    # excited by pink noise down to low frequencies: the capture shows the corner.
+    r = cli("check", RECORDINGS / "valve-pickup-noise-2ch.flac", "--json")
+    ro = r.json()["channels"][1]["rolloff"]
+    assert ro["status"] == "estimated"
+    assert ro["corner_hz"] == pytest.approx(1 / (2 * np.pi * 1e6 * 2.06e-9), rel=0.10)
     r = cli("check", RECORDINGS / "tap-test.csv", "--json")
     assert r.code == 0
     assert r.json()["full_scale"] is None
