@@ -443,6 +443,10 @@ class CaptureChecker:
         volts), for ``dc_offset_v`` in the JSON form.
     channel_indices
         Channel numbers in the source file, for the results (default 0, 1, ...).
+    expected_frames
+        Length of the recording when known in advance; a recording shorter than the
+        diagnostic PSD's segment then gets a shorter segment (coarser bins) instead of no
+        spectrum.
 
     Notes
     -----
@@ -462,6 +466,7 @@ class CaptureChecker:
         unit: str = "V",
         volts_per_unit: float = 1.0,
         channel_indices: Sequence[int] | None = None,
+        expected_frames: int | None = None,
     ) -> None:
         if not (isinstance(sample_rate_hz, int | float) and math.isfinite(sample_rate_hz)):
             raise InputError(f"sample_rate_hz: expected a number, got {sample_rate_hz!r}")
@@ -544,8 +549,11 @@ class CaptureChecker:
         if fs >= MIN_SAMPLE_RATE_HZ:
             self._weight_a = FrequencyWeighting(fs, channels, weighting="A")
             self._noise_a = IntervalLevels(self._noise_len, channels, self.reference)
-        # Spectrum.
+        # Diagnostic PSD. A recording known to be shorter than a segment gets the
+        # longest power-of-two segment that fits.
         nperseg = int(2 ** math.ceil(math.log2(max(fs / th.spectrum_resolution_hz, 64))))
+        if expected_frames is not None and expected_frames < nperseg:
+            nperseg = 2 ** max(int(math.floor(math.log2(max(expected_frames, 64)))), 6)
         self._spectrum = SegmentSpectrum(fs, channels, nperseg)
 
     # ---------------------------------------------------------------- update
@@ -1287,6 +1295,7 @@ def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> Capt
         unit=source.unit,
         volts_per_unit=chain.sensitivity_v_per_pa or 1.0,
         channel_indices=list(source.channel_indices),
+        expected_frames=source.frames,
     )
 
 
@@ -1321,6 +1330,7 @@ def check_capture(
         unit=unit,
         volts_per_unit=volts_per_unit,
         channel_indices=channel_indices,
+        expected_frames=x.shape[0],
     )
     checker.update(x)
     return checker.result()
