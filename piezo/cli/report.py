@@ -91,14 +91,16 @@ def report(
             html_path, json_path = write_report(run, out, _stem(file, used))
         except PiezoError as exc:
             failed.append({"file": str(file), "error": str(exc.with_source(str(file)))})
-            err_console.print(f"piezo: error: {escape(str(exc))}", highlight=False)
+            err_console.print(f"piezo: error: {escape(str(exc))}", highlight=False, soft_wrap=True)
             continue
         verdict = run.diagnostics.verdict.value
         written.append(
             {"file": str(file), "html": str(html_path), "json": str(json_path), "verdict": verdict}
         )
         if not json_out:
-            console.print(f"{escape(str(file))}: {verdict} -> {escape(str(html_path))}")
+            console.print(
+                f"{escape(str(file))}: {verdict} -> {escape(str(html_path))}", soft_wrap=True
+            )
     if json_out:
         emit_json({"reports": written, "failed": failed})
     if failed:
