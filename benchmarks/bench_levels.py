@@ -31,6 +31,7 @@ from pathlib import Path
 import numpy as np
 import soundfile as sf
 
+import piezo
 from piezo.chain import CalibratedSource, Chain
 from piezo.io import open_recording
 from piezo.levels import LevelMeter
@@ -116,6 +117,7 @@ def main(argv: list[str] | None = None) -> int:
     result = runs[-1][2]
     ch = result.channels[0]
     frames = result.frames
+    print(f"piezo             {Path(piezo.__file__).parent}")
     print(f"file              {path} ({frames} frames, {duration_s / 60:.1f} min)")
     print(f"best of {args.repeat} runs, block {args.block_frames} frames")
     print("                  wall s  ns/sample   CPU s  ns/sample")
