@@ -171,6 +171,29 @@ def _db_array(mean_square: np.ndarray, reference: float) -> np.ndarray:
     return out
 
 
+class _Growing:
+    """Rows of shape ``row_shape`` appended in bulk, stored in an array that doubles."""
+
+    def __init__(self, row_shape: tuple[int, ...]) -> None:
+        self._data = np.zeros((16, *row_shape))
+        self._n = 0
+
+    def extend(self, rows: np.ndarray) -> None:
+        m = rows.shape[0]
+        if self._n + m > self._data.shape[0]:
+            grown = np.zeros((max(2 * self._data.shape[0], self._n + m), *self._data.shape[1:]))
+            grown[: self._n] = self._data[: self._n]
+            self._data = grown
+        self._data[self._n : self._n + m] = rows
+        self._n += m
+
+    def view(self) -> np.ndarray:
+        return self._data[: self._n]
+
+    def __len__(self) -> int:
+        return self._n
+
+
 class LevelMeter:
     """Streaming sound level meter (IEC 61672-1:2013 quantities), any block sizes.
 
@@ -276,9 +299,10 @@ class LevelMeter:
         # Output buffers of the kernel, reused between blocks.
         self._trace_buf = np.zeros((2, ch, 1))
         self._int_buf = np.zeros((1, 3, ch))
-        # History: completed intervals and F/S traces.
-        self._int_done: list[np.ndarray] = []  # each (3, ch) mean squares Z, C, A
-        self._trace: list[np.ndarray] = []  # each (2, ch, n) F, S mean squares
+        # History, in arrays that double when full: mean squares (Z, C, A) of completed
+        # intervals, and F, S mean squares at the trace instants.
+        self._int_store = _Growing((3, ch))
+        self._trace_store = _Growing((2, ch))
 
     # ---------------------------------------------------------------- streaming input
     def update(self, block: ArrayLike) -> None:
@@ -327,9 +351,8 @@ class LevelMeter:
             raise InputError("block contains NaN or infinite samples")
         self._frames += n
         if q is not None:
-            if n_trace:
-                self._trace.append(self._trace_buf[:, :, :n_trace].copy())
-            self._int_done.extend(self._int_buf[k] / q for k in range(n_int))
+            self._trace_store.extend(np.moveaxis(self._trace_buf[:, :, :n_trace], 2, 0))
+            self._int_store.extend(self._int_buf[:n_int] / q)
 
     # ---------------------------------------------------------------------- result
     def result(self) -> LevelResult:
@@ -454,22 +477,20 @@ class LevelMeter:
         ref = self.reference
         q = self._interval_frames
         assert q is not None
-        done = list(self._int_done)
-        lengths = [q] * len(done)
+        ms = self._int_store.view()  # (intervals, 3, channels)
+        lengths = np.full(len(ms), float(q))
         partial = self._frames % q  # intervals start at frame 0
         if partial:
             rows = [kern.ST_INT_Z, kern.ST_INT_C, kern.ST_INT_A]
-            done.append(self._state[rows] / partial)
-            lengths.append(partial)
-        ms = np.stack(done) if done else np.zeros((0, 3, self.channels))
-        lengths_arr = np.asarray(lengths, dtype=float)
-        starts = np.concatenate([[0.0], np.cumsum(lengths_arr)[:-1]]) / fs if lengths else []
-        traces = np.concatenate([np.zeros((2, self.channels, 0)), *self._trace], axis=2)
+            ms = np.concatenate([ms, (self._state[rows] / partial)[None]])
+            lengths = np.append(lengths, float(partial))
+        starts = (np.cumsum(lengths) - lengths) / fs
+        traces = np.moveaxis(self._trace_store.view(), 0, 2)  # (2, channels, points)
         t = (np.arange(1, traces.shape[2] + 1) * self._trace_frames - 1) / fs
         return LevelHistory(
             interval_s=float(self.interval_s),
-            interval_start_s=np.asarray(starts, dtype=float),
-            interval_duration_s=lengths_arr / fs,
+            interval_start_s=starts,
+            interval_duration_s=lengths / fs,
             LZeq=_db_array(ms[:, 0, :], ref),
             LCeq=_db_array(ms[:, 1, :], ref),
             LAeq=_db_array(ms[:, 2, :], ref),
