@@ -164,10 +164,13 @@ def _db(mean_square: float, reference: float) -> float | None:
 
 
 def _db_array(mean_square: np.ndarray, reference: float) -> np.ndarray:
+    """10 lg(ms / ref^2) elementwise, NaN where ms <= 0; no temporaries (long histories)."""
     ms = np.asarray(mean_square, dtype=float)
     out = np.full(ms.shape, np.nan)
     ok = ms > 0
-    out[ok] = 10.0 * np.log10(ms[ok] / (reference * reference))
+    np.divide(ms, reference * reference, out=out, where=ok)
+    np.log10(out, out=out, where=ok)
+    np.multiply(out, 10.0, out=out, where=ok)
     return out
 
 
@@ -486,7 +489,10 @@ class LevelMeter:
             lengths = np.append(lengths, float(partial))
         starts = (np.cumsum(lengths) - lengths) / fs
         traces = np.moveaxis(self._trace_store.view(), 0, 2)  # (2, channels, points)
-        t = (np.arange(1, traces.shape[2] + 1) * self._trace_frames - 1) / fs
+        t = np.arange(1, traces.shape[2] + 1, dtype=float)  # in place: long histories
+        t *= self._trace_frames
+        t -= 1.0
+        t /= fs
         return LevelHistory(
             interval_s=float(self.interval_s),
             interval_start_s=starts,
