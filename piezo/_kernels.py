@@ -14,17 +14,20 @@ Two kernels live here:
     and S exponential averagers with their maxima and minima, the F level samples for
     the percentile histogram, and the level history (interval sums, F/S traces).
 
-Both are compiled with ``numba.njit(cache=True, nogil=True)``. The compiled code is
-cached on disk beside this module (``__pycache__``) or, when that is not writable, in
-numba's user-wide cache folder; when no cache location is writable at all the kernels
-are compiled once per process instead (about a second). ``fastmath`` is limited to
-``contract`` (fused multiply-add allowed): no reassociation, no assumptions about NaN or
-infinity, so results differ from scipy's ``sosfilt`` by rounding only.
+Both are compiled with ``numba.njit(cache=True, nogil=True)`` on first use (1-3 s,
+once). numba caches the machine code in ``NUMBA_CACHE_DIR`` if set, else beside this
+module (``__pycache__``), else in the user-wide cache folder; later processes load it in
+about 0.2 s. When no cache location is writable the kernels are compiled in every
+process. ``fastmath`` is limited to ``contract`` (fused multiply-add allowed): no
+reassociation, no assumptions about NaN or infinity, so results differ from scipy's
+``sosfilt`` by rounding only. ``nogil``: threads can run kernels in parallel.
 
-Filter recursion: transposed direct form II per section, as scipy's ``sosfilt``::
+Filter recursion: transposed direct form II per section, as scipy's ``sosfilt``, with
+the additions of ``z0`` ordered so that the new ``y`` enters last (shorter dependency
+chain from one sample to the next)::
 
     y  = b0 v + z0
-    z0 = b1 v - a1 y + z1
+    z0 = (b1 v + z1) - a1 y
     z1 = b2 v - a2 y
 
 Sections are run four at a time sample by sample, with their state in registers (the
@@ -80,14 +83,14 @@ def _jit(func: Callable) -> Callable:
 
 
 @numba.njit(inline="always", **_OPTIONS)
-def _biquad(v, b0, b1, b2, a1, a2, z0, z1):  # pragma: no cover - inlined
+def _biquad(v, b0, b1, b2, a1, a2, z0, z1):
     """One transposed-direct-form-II step: (output, new z0, new z1)."""
     y = b0 * v + z0
     return y, (b1 * v + z1) - a1 * y, b2 * v - a2 * y
 
 
 @numba.njit(inline="always", **_OPTIONS)
-def _coefficients(sos, s):  # pragma: no cover - inlined
+def _coefficients(sos, s):
     """(b0, b1, b2, a1, a2) of section ``s``; a pass-through section beyond the end."""
     if s < sos.shape[0]:
         return sos[s, 0], sos[s, 1], sos[s, 2], sos[s, 4], sos[s, 5]
@@ -95,7 +98,7 @@ def _coefficients(sos, s):  # pragma: no cover - inlined
 
 
 @numba.njit(inline="always", **_OPTIONS)
-def _state(zi, s, k, c):  # pragma: no cover - inlined
+def _state(zi, s, k, c):
     return zi[s, k, c] if s < zi.shape[0] else 0.0
 
 
