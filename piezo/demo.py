@@ -247,6 +247,7 @@ def demo_files() -> list[DemoFile]:
 
 def demo_texts() -> dict[str, str]:
     """Text files that go with the demo recordings (stimulus descriptions, golden data)."""
+    from piezo.demo_frontend import frontend_demo_texts
     from piezo.demo_response import response_demo_texts
 
-    return dict(response_demo_texts())
+    return {**response_demo_texts(), **frontend_demo_texts()}

@@ -8,8 +8,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import settings
 
 from piezo.cli import main
+
+# Property tests check results, not speed: no per-example deadline (a loaded CI machine
+# must not turn a correct test red).
+settings.register_profile("piezo", deadline=None)
+settings.load_profile("piezo")
 
 REPO = Path(__file__).resolve().parent.parent
 RECORDINGS = REPO / "recordings"

@@ -35,6 +35,10 @@ COMMAND_MODULES = (
     "demo",
     "sweep",
     "response",
+    "spectrum",
+    "bands",
+    "tone",
+    "frontend",
 )
 
 app = typer.Typer(
