@@ -10,7 +10,6 @@ import math
 from typing import Any
 
 import numpy as np
-from scipy import signal
 
 EMPTY_I = np.zeros(0, dtype=np.int64)
 EMPTY_F = np.zeros(0, dtype=np.float64)
@@ -332,66 +331,3 @@ class IntervalLevels:
         i = int(np.searchsorted(cum, pct / 100.0 * total, side="left"))
         i = min(i, _HIST_BINS - 1)
         return _HIST_DB_LO + (i + 0.5) * _HIST_DB_STEP
-
-
-class SegmentSpectrum:
-    """Averaged periodograms: Hann window, 50 % overlap, mean removed per segment.
-
-    Welch (1967), one-sided power spectral density; the same estimate as
-    ``scipy.signal.welch(x, fs, window="hann", nperseg=n, noverlap=n//2)``. Used only for
-    the diagnostic PSD (hum lines, roll-off, PSD floor).
-    """
-
-    def __init__(self, sample_rate_hz: float, channels: int, nperseg: int) -> None:
-        self.fs = sample_rate_hz
-        self.nperseg = nperseg
-        self.step = nperseg // 2
-        self.window = signal.get_window("hann", nperseg)
-        self.buffer = np.zeros((nperseg, channels))
-        self.filled = 0
-        self.power = np.zeros((nperseg // 2 + 1, channels))
-        self.segments = 0
-
-    def update(self, block: np.ndarray) -> None:
-        pos = 0
-        n = block.shape[0]
-        while pos < n:
-            take = min(self.nperseg - self.filled, n - pos)
-            self.buffer[self.filled : self.filled + take] = block[pos : pos + take]
-            self.filled += take
-            pos += take
-            if self.filled == self.nperseg:
-                self.power += self._periodogram(self.buffer, self.window)
-                self.segments += 1
-                keep = self.nperseg - self.step
-                self.buffer[:keep] = self.buffer[self.step :].copy()
-                self.filled = keep
-
-    @staticmethod
-    def _periodogram(x: np.ndarray, window: np.ndarray, nfft: int | None = None) -> np.ndarray:
-        xd = x - x.mean(axis=0)
-        spec = np.fft.rfft(xd * window[:, None], n=nfft, axis=0)
-        return spec.real**2 + spec.imag**2
-
-    def result(self) -> tuple[np.ndarray, np.ndarray, int] | None:
-        """``(frequencies_hz, psd (bins, channels), averages)`` or None when too short."""
-        if self.segments > 0:
-            power = self.power / self.segments
-            window = self.window
-            nfft = self.nperseg
-            averages = self.segments
-        else:
-            n = self.filled
-            if n < 64:
-                return None
-            window = signal.get_window("hann", n)
-            nfft = n
-            power = self._periodogram(self.buffer[:n], window)
-            averages = 1
-        psd = power / (self.fs * np.sum(window**2))
-        if nfft % 2 == 0:
-            psd[1:-1] *= 2.0
-        else:
-            psd[1:] *= 2.0
-        freqs = np.fft.rfftfreq(nfft, 1.0 / self.fs)
-        return freqs, psd, averages

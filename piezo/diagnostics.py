@@ -48,7 +48,6 @@ from piezo._diag_stream import (
     IntervalStats,
     MaskRuns,
     RunTracker,
-    SegmentSpectrum,
 )
 from piezo._diag_thresholds import (
     Severity,
@@ -59,6 +58,7 @@ from piezo._diag_thresholds import (
 )
 from piezo.chain import CalibratedSource
 from piezo.errors import InputError, RecordingError
+from piezo.spectrum import WelchPSD, segment_frames_for
 from piezo.units import format_quantity
 from piezo.weighting import MIN_SAMPLE_RATE_HZ, FrequencyWeighting
 
@@ -549,12 +549,12 @@ class CaptureChecker:
         if fs >= MIN_SAMPLE_RATE_HZ:
             self._weight_a = FrequencyWeighting(fs, channels, weighting="A")
             self._noise_a = IntervalLevels(self._noise_len, channels, self.reference)
-        # Diagnostic PSD. A recording known to be shorter than a segment gets the
-        # longest power-of-two segment that fits.
-        nperseg = int(2 ** math.ceil(math.log2(max(fs / th.spectrum_resolution_hz, 64))))
-        if expected_frames is not None and expected_frames < nperseg:
-            nperseg = 2 ** max(int(math.floor(math.log2(max(expected_frames, 64)))), 6)
-        self._spectrum = SegmentSpectrum(fs, channels, nperseg)
+        # Diagnostic PSD (Welch, Hann, 50 % overlap; piezo.spectrum). A recording known
+        # to be shorter than a segment gets the longest power-of-two segment that fits.
+        segment = segment_frames_for(fs, th.spectrum_resolution_hz)
+        if expected_frames is not None and expected_frames < segment:
+            segment = 2 ** max(int(math.floor(math.log2(max(expected_frames, 64)))), 6)
+        self._spectrum = WelchPSD(fs, channels, segment_frames=segment, window="hann")
 
     # ---------------------------------------------------------------- update
     def update(self, block: np.ndarray) -> None:
@@ -675,7 +675,7 @@ class CaptureChecker:
         if self.frames == 0:
             raise RecordingError("the recording holds no samples; nothing to check")
         th = self.thresholds
-        spec = self._spectrum.result()
+        spec = self._spectrum.result() if self._spectrum_ready() else None
         meta_checks = self._metadata_checks()
         channels = []
         for c in range(self.channels):
@@ -685,7 +685,10 @@ class CaptureChecker:
             dropouts, dropout_check = self._dropouts(c, clip_levels)
             ac_power = dc.ac_rms**2
             if spec is None:
-                reason = "recording too short for a spectrum"
+                reason = (
+                    "recording shorter than one spectrum segment "
+                    f"({self._spectrum.segment_frames / self.sample_rate_hz:.3g} s)"
+                )
                 hum = HumResult("not determinable", None, None, None, (), reason)
                 rolloff = RolloffResult(
                     "not determinable",
@@ -701,11 +704,8 @@ class CaptureChecker:
                 psd_c = EMPTY_F
                 psd_floor_db = None
             else:
-                freqs, psd, averages = spec
-                # Welch (1967): K Hann segments overlapping by half are worth
-                # 2K/(1 + 2 x 0.167^2) chi-square degrees of freedom (one: 2).
-                dof = 2.0 if averages <= 1 else 2.0 * averages / (1.0 + 2.0 * 0.167**2)
-                psd_c = psd[:, c]
+                freqs, dof = spec.frequency_hz, spec.degrees_of_freedom
+                psd_c = spec.psd[:, c]
                 if ac_power > 0:
                     hum = measure_hum(
                         freqs,
@@ -1097,6 +1097,10 @@ class CaptureChecker:
             evidence += f"; recording {edge_text}"
         sev = Severity.FAIL if fraction >= th.dropout_fail_fraction else Severity.WARN
         return result, Check("dropouts", worst_severity([sev, edge_sev]), evidence, threshold)
+
+    def _spectrum_ready(self) -> bool:
+        """True once the diagnostic PSD has at least one segment."""
+        return self.frames >= self._spectrum.segment_frames
 
     def _psd_floor_db(self, freqs: np.ndarray, psd: np.ndarray, dof: float) -> float | None:
         floor = psd_floor(

@@ -14,12 +14,16 @@ from piezo.report import plots
 from piezo.report.document import (
     CAUTIONS,
     REPORT_SCHEMA,
+    bands_section,
     chain_section,
     conformance_section,
     frontend_section,
     levels_section,
+    psd_section,
     recording_section,
     software_versions,
+    spectrogram_section,
+    tone_section,
 )
 from piezo.report.html import render_html
 from piezo.report.run import RunResults
@@ -33,6 +37,9 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
     from piezo.cli.output import to_jsonable
 
     source = run.source
+    ref = source.reference
+    unit = source.unit
+    channels = list(source.channel_indices)
     diagnostics = run.diagnostics.as_dict()
     doc: dict[str, Any] = {
         "report": {
@@ -48,18 +55,33 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
         "settings": run.settings.as_dict(),
         "diagnostics": diagnostics,
         "levels": (levels_section(run.levels, source.chain.level_unit) if run.levels else None),
-        "spectrum": None,
-        "bands": None,
-        "spectrogram": None,
-        "tone": None,
+        "spectrum": psd_section(run.psd, ref, unit) if run.psd else None,
+        "bands": bands_section(run.bands, ref) if run.bands else None,
+        "spectrogram": spectrogram_section(run.spectrogram, ref) if run.spectrogram else None,
+        "tone": tone_section(run.tones, channels, ref),
         "frontend": frontend_section(run.frontend) if run.frontend else None,
         "conformance": {
             "weighting": conformance_section(run.conformance),
-            "bands": None,
+            "bands": _band_selftest(run),
             "note": "; ".join(run.notes) or "no filter self-test at this sample rate",
         },
     }
     return to_jsonable(doc)
+
+
+def _band_selftest(run: RunResults) -> dict[str, Any] | None:
+    bc = run.band_conformance
+    if bc is None:
+        return None
+    return {
+        "fraction": bc.fraction,
+        "sample_rate_hz": bc.sample_rate_hz,
+        "bands": bc.bands,
+        "worst_margin_db": bc.worst_margin_db,
+        "worst_band": bc.worst_band,
+        "worst_omega": bc.worst_omega,
+        "passed": bc.passed,
+    }
 
 
 def report_figures(run: RunResults) -> dict[str, bytes]:
@@ -74,6 +96,18 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
         figures["level_history"] = plots.level_history_figure(
             run.levels, list(run.source.channel_indices), level_unit
         )
+    channels = list(run.source.channel_indices)
+    ref = run.source.reference
+    unit = run.source.unit
+    if run.psd is not None:
+        figures["psd"] = plots.psd_figure(run.psd, channels, ref, unit)
+    if run.bands is not None:
+        figures["bands"] = plots.bands_figure(run.bands, channels, ref, level_unit)
+    if run.spectrogram is not None:
+        for i, ch in enumerate(channels):
+            figures[f"spectrogram_{ch}"] = plots.spectrogram_figure(
+                run.spectrogram, i, ch, ref, unit
+            )
     if run.frontend is not None:
         figures["frontend"] = plots.frontend_figure(run.frontend)
     return figures

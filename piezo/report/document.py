@@ -14,8 +14,11 @@ from typing import Any
 import numpy as np
 
 from piezo import __version__
+from piezo.bands import BandResult
 from piezo.chain import CalibratedSource
 from piezo.levels import LevelResult
+from piezo.spectrum import PSDResult, SpectrogramResult
+from piezo.tone import ToneResult
 from piezo.units import format_quantity, ratio_to_db
 from piezo.weighting import ConformanceReport
 
@@ -23,12 +26,16 @@ __all__ = [
     "CAUTIONS",
     "LEVEL_NAMES",
     "REPORT_SCHEMA",
+    "bands_section",
     "chain_section",
     "conformance_section",
     "frontend_section",
     "levels_section",
+    "psd_section",
     "recording_section",
     "software_versions",
+    "spectrogram_section",
+    "tone_section",
 ]
 
 #: Identifier of the document layout (``docs/report.schema.json``).
@@ -302,3 +309,96 @@ def frontend_section(fr: Any) -> dict[str, Any]:
         "level_db": _series(fr.level_db, 3),
         "phase_deg": _series(fr.phase_deg, 2),
     }
+
+
+def _db(mean_square: np.ndarray, reference: float) -> np.ndarray:
+    with np.errstate(divide="ignore"):
+        return 10.0 * np.log10(np.asarray(mean_square, dtype=float) / reference**2)
+
+
+def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
+    """The Welch PSD per channel, in dB re reference²/Hz."""
+    return {
+        "window": psd.window,
+        "segment_frames": psd.segment_frames,
+        "overlap_frames": psd.overlap_frames,
+        "resolution_hz": psd.resolution_hz,
+        "enbw_hz": psd.enbw_hz,
+        "averages": psd.averages,
+        "degrees_of_freedom": psd.degrees_of_freedom,
+        "ci_lower_db": finite(psd.ci_lower_db),
+        "ci_upper_db": finite(psd.ci_upper_db),
+        "confidence_level": psd.confidence_level,
+        "reference_text": format_quantity(reference, unit),
+        "frequency_hz": _series(psd.frequency_hz, 4),
+        "level_db": _columns(_db(psd.psd, reference)),
+    }
+
+
+def bands_section(bands: BandResult, reference: float) -> dict[str, Any]:
+    """Band levels per channel (Leq per band, dB re the reference)."""
+    return {
+        "fraction": bands.fraction,
+        "labels": [b.label for b in bands.bands],
+        "nominal_hz": [float(b.nominal_hz) for b in bands.bands],
+        "exact_hz": [float(b.exact_hz) for b in bands.bands],
+        "level_db": _columns(bands.level_db(reference)),
+    }
+
+
+def spectrogram_section(sg: SpectrogramResult, reference: float) -> dict[str, Any]:
+    """Spectrogram per channel: ``level_db[channel][column][bin]``, dB re reference²/Hz."""
+    level = sg.level_db(reference)  # (columns, bins, channels)
+    return {
+        "window": sg.window,
+        "segment_frames": int(2 * (sg.frequency_hz.size - 1)),
+        "resolution_hz": float(sg.frequency_hz[1] - sg.frequency_hz[0]),
+        "time_s": _series(sg.time_s, 4),
+        "frequency_hz": _series(sg.frequency_hz, 3),
+        "segments_per_column": [int(v) for v in sg.segments_per_column],
+        "level_db": [
+            [_series(level[j, :, c], 1) for j in range(level.shape[0])]
+            for c in range(level.shape[2])
+        ],
+    }
+
+
+def tone_section(
+    tones: tuple[ToneResult | str, ...], channels: list[int], reference: float
+) -> dict[str, Any] | None:
+    """Tone metrics of the channels holding a test tone (None when none does)."""
+    out = []
+    for ch, tone in zip(channels, tones, strict=True):
+        if isinstance(tone, str):
+            out.append({"channel": ch, "present": False, "reason": tone})
+            continue
+        out.append(
+            {
+                "channel": ch,
+                "present": True,
+                "reason": "",
+                "frequency_hz": finite(tone.frequency_hz),
+                "tone_rms": finite(tone.tone_rms),
+                "level_db": finite(tone.level_db(reference)),
+                "thd_percent": finite(tone.thd_percent),
+                "thd_n_percent": finite(tone.thd_n_percent),
+                "sinad_db": finite(tone.sinad_db),
+                "bandwidth_hz": list(tone.bandwidth_hz),
+                "resolution_hz": tone.resolution_hz,
+                "harmonics": [
+                    {
+                        "order": n,
+                        "rms": finite(v),
+                        "re_fundamental_db": finite(
+                            20 * math.log10(v / tone.tone_rms)
+                            if v > 0 and tone.tone_rms > 0
+                            else None
+                        ),
+                    }
+                    for n, v in zip(tone.harmonic_orders, tone.harmonic_rms, strict=True)
+                ],
+            }
+        )
+    if not any(t["present"] for t in out):
+        return None
+    return {"channels": out}
