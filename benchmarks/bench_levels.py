@@ -8,15 +8,19 @@ committed) to a benchmark directory, then times
    :class:`piezo.levels.LevelMeter` (A/C/Z weighting, F/S time weighting, peaks,
    percentiles), block by block.
 
-It prints both times, their ratio (target: at most 3x the floor) and the peak resident
+It prints both times, their ratio (target: at most 3x the floor), the peak resident
 memory of the process (``resource.getrusage``; target: under 250 MB whatever the file
-length). The machine may be shared: figures vary from run to run; run it twice.
+length) and the time of the first, untimed update (loading the compiled kernels from
+numba's cache, or compiling them). The machine may be shared: figures vary from run to
+run; the CPU-time ratio is the steadier one; run it twice.
 
-Usage::
+Run it from the repository root with that checkout's ``piezo`` first on the path (an
+installed ``piezo`` elsewhere would be measured otherwise; the first output line says
+which one was)::
 
-    python benchmarks/bench_levels.py                 # one hour
-    python benchmarks/bench_levels.py --minutes 10    # shorter
-    python benchmarks/bench_levels.py --hours 4       # the memory check on a long file
+    PYTHONPATH=. python benchmarks/bench_levels.py                 # one hour
+    PYTHONPATH=. python benchmarks/bench_levels.py --minutes 10    # shorter
+    PYTHONPATH=. python benchmarks/bench_levels.py --hours 4 --repeat 1   # long-file memory
 """
 
 from __future__ import annotations
@@ -31,6 +35,7 @@ from pathlib import Path
 import numpy as np
 import soundfile as sf
 
+import piezo
 from piezo.chain import CalibratedSource, Chain
 from piezo.io import open_recording
 from piezo.levels import LevelMeter
@@ -109,6 +114,12 @@ def main(argv: list[str] | None = None) -> int:
         print(f"writing {path} ({duration_s / 60:.1f} min) ...", file=sys.stderr)
         write_test_file(path, duration_s)
     rss_before = peak_rss_mb()
+    # First use of the compiled kernels: loads them from numba's cache, or compiles
+    # them when there is no cache yet (not part of the timed runs).
+    t0 = time.perf_counter()
+    LevelMeter(FS, 1).update(np.zeros((64, 1)))
+    t_first = time.perf_counter() - t0
+    rss_kernels = peak_rss_mb()
     decode = [decode_floor(path, args.block_frames) for _ in range(args.repeat)]
     runs = [full_levels(path, args.block_frames) for _ in range(args.repeat)]
     t_decode, c_decode = min(d[0] for d in decode), min(d[1] for d in decode)
@@ -116,6 +127,7 @@ def main(argv: list[str] | None = None) -> int:
     result = runs[-1][2]
     ch = result.channels[0]
     frames = result.frames
+    print(f"piezo             {Path(piezo.__file__).parent}")
     print(f"file              {path} ({frames} frames, {duration_s / 60:.1f} min)")
     print(f"best of {args.repeat} runs, block {args.block_frames} frames")
     print("                  wall s  ns/sample   CPU s  ns/sample")
@@ -133,8 +145,10 @@ def main(argv: list[str] | None = None) -> int:
     )
     print(
         f"peak RSS          {peak_rss_mb():6.1f} MB "
-        f"(after imports {rss_before:.1f} MB; target < 250)"
+        f"(after imports {rss_before:.1f} MB, after kernel load {rss_kernels:.1f} MB; "
+        "target < 250)"
     )
+    print(f"first update      {t_first:6.2f} s (kernel cache load, or compile if none)")
     print(
         f"levels            LAeq {ch.LAeq:.2f}  LCeq {ch.LCeq:.2f}  LZeq {ch.LZeq:.2f}  "
         f"LAFmax {ch.LAFmax:.2f}  LAF90 {ch.LAF90:.2f} dB re 20 uPa"

@@ -138,7 +138,7 @@ def _pump_bench() -> DemoFile:
                 i0 = int(start * fs)
                 m = min(n - i0, int(0.02 * fs))
                 tk = np.arange(m) / fs
-                knocks[i0 : i0 + m] += 60.0 * np.exp(-tk / 0.004) * np.sin(2 * np.pi * 2600 * tk)
+                knocks[i0 : i0 + m] += 90.0 * np.exp(-tk / 0.004) * np.sin(2 * np.pi * 2600 * tk)
             pressure = pressure + knocks
         raw = pressure * sens * gain / full_scale
         if ch == 1:

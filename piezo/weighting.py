@@ -34,13 +34,13 @@ from __future__ import annotations
 
 import functools
 import math
-from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy import optimize, signal
 
+from piezo._kernels import sosfilt_inplace
 from piezo.errors import InputError
 
 __all__ = [
@@ -62,7 +62,6 @@ __all__ = [
     "conformance",
     "exact_third_octave_hz",
     "filter_response_db",
-    "sosfilt_inplace",
     "time_weighting_coefficient",
     "weighting_chain_sos",
     "weighting_db",
@@ -437,7 +436,8 @@ class FrequencyWeighting:
             return x.copy()
         if self._zi is None:
             self._zi = signal.sosfilt_zi(self._sos)[:, :, None] * x[0][None, None, :]
-        y, self._zi = signal.sosfilt(self._sos, x, axis=0, zi=self._zi)
+        y = np.array(x, order="C")  # a fresh copy, filtered in place
+        sosfilt_inplace(self._sos, y, self._zi)
         return y
 
 
@@ -498,57 +498,6 @@ class ExponentialAverager:
             return q.copy()
         y, self._zi = signal.lfilter([1.0 - self.a], [1.0, -self.a], q, axis=0, zi=self._zi)
         return y
-
-
-def _public_sosfilt_inplace(sos: np.ndarray, x: np.ndarray, zi: np.ndarray) -> None:
-    y, zf = signal.sosfilt(sos, x, axis=-1, zi=np.moveaxis(zi, 1, 0))
-    x[...] = y
-    zi[...] = np.moveaxis(zf, 0, 1)
-
-
-def _pick_sosfilt_inplace() -> Callable[[np.ndarray, np.ndarray, np.ndarray], None]:
-    """scipy's in-place sosfilt kernel if it behaves as expected, else the public API.
-
-    ``scipy.signal.sosfilt`` copies its input into a fresh array on every call; on long
-    recordings processed in blocks those allocations cost as much as the filtering. The
-    kernel behind it (private, unchanged from scipy 1.11 to 1.17) filters in place. It is
-    used only after a self-check against the public function at import.
-    """
-    try:
-        from scipy.signal._sosfilt import _sosfilt
-
-        sos = signal.butter(2, 0.1, output="sos")
-        x = np.random.default_rng(0).standard_normal((2, 64))
-        zi = np.full((2, 1, 2), 0.25)
-        expected = x.copy()
-        expected_zi = zi.copy()
-        _public_sosfilt_inplace(sos, expected, expected_zi)
-        _sosfilt(sos, x, zi)
-        if np.allclose(x, expected, rtol=1e-12, atol=1e-14) and np.allclose(zi, expected_zi):
-            return _sosfilt
-    except Exception:  # any change in the private kernel: fall back
-        pass
-    return _public_sosfilt_inplace
-
-
-_SOSFILT_INPLACE = _pick_sosfilt_inplace()
-
-
-def sosfilt_inplace(sos: np.ndarray, x: np.ndarray, zi: np.ndarray) -> None:
-    """Filter ``x`` (signals, frames) in place with carried state ``zi``.
-
-    Parameters
-    ----------
-    sos
-        Second-order sections, C-contiguous float64 (sections, 6).
-    x
-        C-contiguous float64 array (signals, frames), overwritten with the output.
-    zi
-        C-contiguous float64 state (signals, sections, 2), updated in place. Same
-        meaning as :func:`scipy.signal.sosfilt`'s ``zi`` (sections and signals swapped).
-    """
-    if len(sos) and x.shape[1]:
-        _SOSFILT_INPLACE(sos, x, zi)
 
 
 def _check_channels(channels: int) -> int:

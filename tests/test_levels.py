@@ -17,7 +17,6 @@ from scipy import signal
 
 from piezo.errors import InputError
 from piezo.levels import (
-    BLOCK_FRAMES,
     PERCENTILES,
     LevelMeter,
     sound_levels,
@@ -337,10 +336,11 @@ def test_result_does_not_disturb_the_stream():
     x, fs, whole = _signal()
     meter = LevelMeter(fs, 2, interval_s=0.5)
     meter.update(x[:12345])
-    meter.result()  # mid-stream result with samples pending on the block grid
+    meter.result()  # mid-stream result between sampling instants and inside an interval
     meter.update(x[12345:])
     _assert_results_equal(meter.result(), whole)
-    assert 12345 % BLOCK_FRAMES != 0
+    assert 12345 % round(whole.percentile_interval_s * fs) != 0
+    assert 12345 % round(whole.history.interval_s * fs) != 0
 
 
 def test_bad_input_is_rejected_with_the_argument_named():

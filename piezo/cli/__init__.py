@@ -39,6 +39,8 @@ COMMAND_MODULES = (
     "bands",
     "tone",
     "frontend",
+    "check",
+    "report",
     "batch",
     "limits",
 )

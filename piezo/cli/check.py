@@ -1,0 +1,198 @@
+"""``piezo check``: is a capture sound? Clipping, headroom, DC, dropouts, hum, roll-off, noise.
+
+Exit codes: 0 when no channel fails, 1 when any channel fails, 2 on unusable input (the
+app wrapper turns every :class:`~piezo.errors.PiezoError` into exit 2).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+from rich import box
+from rich.markup import escape
+from rich.table import Table
+
+from piezo.chain import CalibratedSource
+from piezo.cli import EXIT_FAILED
+from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.cli.output import console, emit_json, progress
+from piezo.diagnostics import (
+    CaptureDiagnostics,
+    Severity,
+    Thresholds,
+    checker_for_source,
+    load_thresholds,
+    parse_threshold_assignment,
+)
+from piezo.units import format_quantity, parse_quantity
+
+__all__ = ["check", "register", "resolve_thresholds", "run_check"]
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``check`` command to ``app``."""
+    app.command(
+        "check",
+        help="Capture diagnostics: clipping, headroom, DC, dropouts, hum, roll-off, noise floor. "
+        "Exit 1 when a channel fails.",
+    )(check)
+
+
+def resolve_thresholds(
+    thresholds_file: Path | None, overrides: list[str] | None, expected_corner: str | None
+) -> Thresholds:
+    """Defaults, then the TOML file, then ``--threshold`` overrides, then the corner option."""
+    th = load_thresholds(thresholds_file) if thresholds_file is not None else Thresholds()
+    values: dict[str, Any] = {}
+    for text in overrides or []:
+        name, value = parse_threshold_assignment(text)
+        values[name] = value
+    if expected_corner is not None:
+        corner = parse_quantity(expected_corner, "Hz", what="--expected-corner")
+        values["rolloff_expected_hz"] = corner
+    return th.updated(values, source="--threshold") if values else th
+
+
+def run_check(source: CalibratedSource, thresholds: Thresholds) -> CaptureDiagnostics:
+    """Read ``source`` once (with a progress bar on a terminal) and return its diagnostics."""
+    checker = checker_for_source(source, thresholds)
+    with progress(f"Checking {source.recording.path.name}", source.frames) as advance:
+        for block in source.blocks():
+            checker.update(block)
+            advance(block.shape[0])
+    return checker.result()
+
+
+def check_document(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> dict:
+    """The ``--json`` document: file, chain and provenance, then the diagnostics."""
+    rec = source.recording
+    chain = source.chain
+    doc: dict[str, Any] = {
+        "file": str(file),
+        "format": rec.format,
+        "subtype": rec.subtype,
+        "level_unit": chain.level_unit,
+        "chain": {
+            "full_scale_v": chain.full_scale_v,
+            "gain": chain.gain,
+            "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
+            "reference_pa": chain.reference_pa,
+            "provenance": source.provenance.as_dict() if source.provenance else None,
+        },
+    }
+    doc.update(result.as_dict())
+    return doc
+
+
+@source_options
+def check(
+    file: Annotated[Path, typer.Argument(help="Recording: WAV, FLAC, RF64, W64, CSV ...")],
+    *,
+    thresholds_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--thresholds",
+            metavar="TOML",
+            help="Thresholds file (keys as in docs/diagnostics.md, optionally in [thresholds]).",
+        ),
+    ] = None,
+    threshold: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--threshold",
+            metavar="NAME=VALUE",
+            help="Override one threshold, e.g. 'clip_min_run=5'; repeat for several.",
+        ),
+    ] = None,
+    expected_corner: Annotated[
+        str | None,
+        typer.Option(
+            "--expected-corner",
+            metavar="FREQ",
+            help="Expected low-frequency corner of the chain, e.g. '0.16 Hz'; the roll-off "
+            "check warns when the capture disagrees.",
+        ),
+    ] = None,
+    json_out: JsonOption = False,
+    src: SourceOptions,
+) -> None:
+    """Check a capture before trusting numbers from it.
+
+    Every check gives a severity (ok, warn, fail), the evidence and the threshold used.
+    A channel's verdict is its worst severity. Exit code 0 when no channel fails, 1 when
+    any fails, 2 when the input cannot be used.
+    """
+    thresholds = resolve_thresholds(thresholds_file, threshold, expected_corner)
+    source = open_source(file, src)
+    result = run_check(source, thresholds)
+    if json_out:
+        emit_json(check_document(file, source, result))
+    else:
+        _print(file, source, result)
+    if any(ch.verdict is Severity.FAIL for ch in result.channels):
+        raise typer.Exit(EXIT_FAILED)
+
+
+_STYLE = {Severity.OK: "green", Severity.WARN: "yellow", Severity.FAIL: "bold red"}
+
+
+def _severity(sev: Severity) -> str:
+    # The word carries the meaning; colour only helps (readable without colour).
+    return f"[{_STYLE[sev]}]{sev.value.upper()}[/]"
+
+
+def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> None:
+    rec = source.recording
+    chain = source.chain
+    console.print(f"[bold]{escape(str(file))}[/bold]")
+    console.print(
+        f"  {rec.format} {rec.subtype}, {rec.sample_rate_hz:g} Hz, {rec.frames} frames "
+        f"({rec.duration_s:.3f} s); values in {source.unit}, levels in {chain.level_unit}"
+    )
+    sens = chain.sensitivity_v_per_pa
+    sens_text = "none (volts)" if sens is None else format_quantity(sens, "V/Pa")
+    fs_text = (
+        "unknown (CSV)"
+        if result.full_scale is None
+        else format_quantity(result.full_scale, source.unit)
+    )
+    console.print(
+        f"  chain: full scale {chain.full_scale_v:g} V, gain {chain.gain:g} V/V, sensitivity "
+        f"{sens_text}; full scale in {source.unit}: {fs_text}"
+    )
+    if result.metadata_checks:
+        console.print()
+        table = _table("metadata")
+        for c in result.metadata_checks:
+            table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
+        console.print(table)
+    for ch in result.channels:
+        console.print()
+        table = _table(f"channel {ch.channel}: {_severity(ch.verdict)}")
+        for c in ch.checks:
+            table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
+        console.print(table)
+    console.print()
+    bad = []
+    for ch in result.channels:
+        if ch.verdict is not Severity.OK:
+            found = ch.checks + result.metadata_checks
+            names = [c.name for c in found if c.severity is ch.verdict]
+            bad.append(f"channel {ch.channel} ({', '.join(names)})")
+    verdict = result.verdict
+    console.print(
+        f"verdict: {_severity(verdict)}" + (f" — {'; '.join(bad)}" if bad else ""),
+    )
+
+
+def _table(title: str) -> Table:
+    table = Table(
+        title=title, title_justify="left", header_style="bold", expand=True, box=box.SIMPLE_HEAD
+    )
+    table.add_column("check", no_wrap=True)
+    table.add_column("result", no_wrap=True)
+    table.add_column("evidence", ratio=3)
+    table.add_column("threshold", ratio=2, style="dim")
+    return table

@@ -1,0 +1,129 @@
+"""Assemble a report: the JSON document, the figures, the HTML page, and write them.
+
+This is the report layer: it may write files (atomically, through
+:func:`piezo.cli.output.atomic_output`), the analysis core does not.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+from piezo.report import plots
+from piezo.report.document import (
+    CAUTIONS,
+    REPORT_SCHEMA,
+    bands_section,
+    chain_section,
+    conformance_section,
+    frontend_section,
+    levels_section,
+    psd_section,
+    recording_section,
+    software_versions,
+    spectrogram_section,
+    tone_section,
+)
+from piezo.report.html import render_html
+from piezo.report.run import RunResults
+
+__all__ = ["report_document", "report_figures", "write_report"]
+
+
+def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
+    """The JSON document of a run (``docs/report.schema.json``)."""
+    # Imported here: piezo.cli imports every command, and `piezo report` imports us.
+    from piezo.cli.output import to_jsonable
+
+    source = run.source
+    ref = source.reference
+    unit = source.unit
+    channels = list(source.channel_indices)
+    diagnostics = run.diagnostics.as_dict()
+    doc: dict[str, Any] = {
+        "report": {
+            "schema": REPORT_SCHEMA,
+            "generated_utc": run.generated_utc,
+            "software": software_versions(),
+            "json_name": json_name,
+        },
+        "cautions": list(CAUTIONS),
+        "notes": list(run.notes),
+        "recording": recording_section(source),
+        "chain": chain_section(source),
+        "settings": run.settings.as_dict(),
+        "diagnostics": diagnostics,
+        "levels": (levels_section(run.levels, source.chain.level_unit) if run.levels else None),
+        "spectrum": psd_section(run.psd, ref, unit) if run.psd else None,
+        "bands": bands_section(run.bands, ref) if run.bands else None,
+        "spectrogram": spectrogram_section(run.spectrogram, ref) if run.spectrogram else None,
+        "tone": tone_section(run.tones, channels, ref),
+        "frontend": frontend_section(run.frontend) if run.frontend else None,
+        "conformance": {
+            "weighting": conformance_section(run.conformance),
+            "bands": _band_selftest(run),
+            "note": "; ".join(run.notes) or "no filter self-test at this sample rate",
+        },
+    }
+    return to_jsonable(doc)
+
+
+def _band_selftest(run: RunResults) -> dict[str, Any] | None:
+    bc = run.band_conformance
+    if bc is None:
+        return None
+    return {
+        "fraction": bc.fraction,
+        "sample_rate_hz": bc.sample_rate_hz,
+        "bands": bc.bands,
+        "worst_margin_db": bc.worst_margin_db,
+        "worst_band": bc.worst_band,
+        "worst_omega": bc.worst_omega,
+        "passed": bc.passed,
+    }
+
+
+def report_figures(run: RunResults) -> dict[str, bytes]:
+    """Every figure of the report, by name, as PNG bytes."""
+    figures: dict[str, bytes] = {}
+    level_unit = run.source.chain.level_unit
+    for ch in run.diagnostics.channels:
+        png = plots.rolloff_figure(ch, level_unit)
+        if png is not None:
+            figures[f"rolloff_{ch.channel}"] = png
+    if run.levels is not None and run.levels.history is not None:
+        figures["level_history"] = plots.level_history_figure(
+            run.levels, list(run.source.channel_indices), level_unit
+        )
+    channels = list(run.source.channel_indices)
+    ref = run.source.reference
+    unit = run.source.unit
+    if run.psd is not None:
+        figures["psd"] = plots.psd_figure(run.psd, channels, ref, unit)
+    if run.bands is not None:
+        figures["bands"] = plots.bands_figure(run.bands, channels, ref, level_unit)
+    if run.spectrogram is not None:
+        for i, ch in enumerate(channels):
+            figures[f"spectrogram_{ch}"] = plots.spectrogram_figure(
+                run.spectrogram, i, ch, ref, unit
+            )
+    if run.frontend is not None:
+        figures["frontend"] = plots.frontend_figure(run.frontend)
+    return figures
+
+
+def write_report(run: RunResults, out_dir: Path, stem: str) -> tuple[Path, Path]:
+    """Write ``<stem>.html`` and ``<stem>.json`` into ``out_dir`` (atomically each)."""
+    from piezo.cli.output import atomic_output  # see report_document
+
+    html_path = out_dir / f"{stem}.html"
+    json_path = out_dir / f"{stem}.json"
+    doc = report_document(run, json_name=json_path.name)
+    page = render_html(doc, report_figures(run))
+    text = json.dumps(doc, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+    with atomic_output(json_path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+    with atomic_output(html_path) as tmp:
+        tmp.write_text(page, encoding="utf-8")
+    return html_path, json_path

@@ -1,0 +1,262 @@
+"""One analysis run for a report: every analysis fed from a single pass over the file.
+
+:func:`analyse` reads the calibrated source once, in blocks, and feeds each streaming
+analysis; :class:`RunResults` holds their result objects. The JSON document
+(:func:`piezo.report.build.report_document`) and the figures are both made from these
+objects, so nothing is computed twice.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field, fields, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from piezo.bands import BandAnalyzer, BandResult
+from piezo.chain import CalibratedSource
+from piezo.diagnostics import CaptureDiagnostics, Thresholds, checker_for_source
+from piezo.errors import InputError
+from piezo.frontend import (
+    ResponseSummary,
+    frequency_response,
+    load_frontend,
+    phase_deg,
+    summarise_response,
+)
+from piezo.levels import LevelMeter, LevelResult
+from piezo.report.selftest import BandConformance, band_conformance
+from piezo.spectrum import PSDResult, Spectrogram, SpectrogramResult, WelchPSD
+from piezo.tone import ToneAnalyzer, ToneResult
+from piezo.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
+
+__all__ = ["FrontendResponse", "ReportSettings", "RunResults", "analyse", "frontend_response"]
+
+
+@dataclass(frozen=True)
+class ReportSettings:
+    """Every setting of a report run (all of them are printed in the report).
+
+    Attributes
+    ----------
+    block_frames
+        Frames per block read from the file.
+    level_interval_s
+        Interval of the level history (LAeq per interval); None: chosen from the length
+        of the recording (about 100 intervals, a round number of seconds, at least 0.1 s).
+    psd_segment_frames
+        Segment length of the Welch PSD; None: 8192 samples, fewer (a power of two) when
+        the recording is shorter than four segments.
+    band_fraction
+        Bandwidth designator of the band levels (3: one-third octaves).
+    spectrogram_segment_frames, spectrogram_columns
+        Segment length and the most columns kept of the spectrogram (None: about
+        1/46.9 of the sample rate rounded to a power of two, 1024 at 48 kHz).
+    tone_resolution_hz
+        Bin spacing of the tone analysis (Blackman-Harris window).
+    tone_min_share
+        A channel's tone metrics are reported when its strongest line carries at least
+        this share of the in-band mean square (a test tone dominates its recording;
+        common practice, no source).
+    thresholds
+        Thresholds of the capture diagnostics.
+    frontend_design
+        Front-end design file whose response is shown, or None.
+    """
+
+    block_frames: int = 65536
+    level_interval_s: float | None = None
+    psd_segment_frames: int | None = None
+    band_fraction: int = 3
+    spectrogram_segment_frames: int | None = None
+    spectrogram_columns: int = 128
+    tone_resolution_hz: float = 1.0
+    tone_min_share: float = 0.5
+    thresholds: Thresholds = field(default_factory=Thresholds)
+    frontend_design: Path | None = None
+
+    def __post_init__(self) -> None:
+        if not (isinstance(self.block_frames, int) and self.block_frames >= 1):
+            raise InputError(
+                f"block_frames: must be a whole number >= 1, got {self.block_frames!r}"
+            )
+
+    def as_dict(self) -> dict[str, Any]:
+        """Settings as plain values (thresholds listed separately in the document)."""
+        out: dict[str, Any] = {}
+        for f in fields(self):
+            if f.name == "thresholds":
+                continue
+            value = getattr(self, f.name)
+            out[f.name] = str(value) if isinstance(value, Path) else value
+        return out
+
+
+@dataclass(frozen=True)
+class FrontendResponse:
+    """The modelled response of a front-end design (``piezo.frontend``).
+
+    ``level_db`` is the magnitude relative to the midband sensitivity, ``phase_deg`` the
+    phase, both on ``frequency_hz``.
+    """
+
+    design: str
+    name: str
+    amplifier: str
+    summary: ResponseSummary
+    frequency_hz: np.ndarray
+    level_db: np.ndarray
+    phase_deg: np.ndarray
+
+
+def frontend_response(path: Path, *, top_hz: float) -> FrontendResponse:
+    """Load a design and evaluate its response from below its corner up to ``top_hz``."""
+    fe = load_frontend(path)
+    summary = summarise_response(fe)
+    low = max(summary.corner_hz / 20.0, 1e-4)
+    f = np.geomspace(low, max(top_hz, 10.0 * low), 600)
+    h = frequency_response(fe, f)
+    return FrontendResponse(
+        design=str(path),
+        name=fe.name,
+        amplifier=fe.amplifier.kind,
+        summary=summary,
+        frequency_hz=f,
+        level_db=20.0 * np.log10(np.abs(h) / summary.sensitivity_v_per_pa),
+        phase_deg=np.asarray(phase_deg(fe, f), dtype=float),
+    )
+
+
+@dataclass(frozen=True)
+class RunResults:
+    """The result objects of one run, with what they were made from."""
+
+    source: CalibratedSource
+    settings: ReportSettings
+    generated_utc: str
+    diagnostics: CaptureDiagnostics
+    levels: LevelResult | None
+    psd: PSDResult | None
+    bands: BandResult | None
+    spectrogram: SpectrogramResult | None
+    tones: tuple[ToneResult | str, ...]  # per channel: the metrics, or why there are none
+    frontend: FrontendResponse | None
+    conformance: tuple[ConformanceReport, ...]
+    band_conformance: BandConformance | None
+    notes: tuple[str, ...]
+
+
+def _power_of_two_at_most(frames: int) -> int:
+    return 2 ** max(int(math.floor(math.log2(max(frames, 16)))), 4)
+
+
+def analyse(
+    source: CalibratedSource,
+    settings: ReportSettings,
+    *,
+    advance: Callable[[int], Any] | None = None,
+) -> RunResults:
+    """Read ``source`` once and run every analysis of the report on it.
+
+    ``advance(frames)`` is called after each block (for a progress bar). Settings left
+    to be chosen (None) are resolved from the recording and kept in the result.
+    """
+    fs = source.sample_rate_hz
+    frames = source.frames
+    channels = len(source.channel_indices)
+    notes: list[str] = []
+    psd_segment = settings.psd_segment_frames or min(8192, _power_of_two_at_most(frames // 4))
+    sg_segment = settings.spectrogram_segment_frames or min(
+        _power_of_two_at_most(int(fs / 46.875)), _power_of_two_at_most(frames // 8)
+    )
+    tone_resolution = max(settings.tone_resolution_hz, 2.0 * fs / frames)
+    settings = replace(
+        settings,
+        level_interval_s=settings.level_interval_s or _nice_interval(frames / fs),
+        psd_segment_frames=psd_segment,
+        spectrogram_segment_frames=sg_segment,
+        tone_resolution_hz=tone_resolution,
+    )
+    checker = checker_for_source(source, settings.thresholds)
+    psd = WelchPSD(fs, channels, segment_frames=psd_segment, window="hann")
+    bands = BandAnalyzer(fs, channels, fraction=settings.band_fraction)
+    sgram = Spectrogram(
+        fs, channels, segment_frames=sg_segment, max_columns=settings.spectrogram_columns
+    )
+    tones = [ToneAnalyzer(fs, 1, resolution_hz=tone_resolution) for _ in range(channels)]
+    analyses: list[Any] = [checker, psd, bands, sgram]
+    meter = None
+    if fs >= MIN_SAMPLE_RATE_HZ:
+        meter = LevelMeter(
+            fs, channels, reference=source.reference, interval_s=settings.level_interval_s
+        )
+        analyses.append(meter)
+    else:
+        notes.append(
+            f"levels and the weighting self-test need at least {MIN_SAMPLE_RATE_HZ:g} Hz "
+            f"(IEC 61672-1 filters); this recording has {fs:g} Hz"
+        )
+    for block in source.blocks(settings.block_frames):
+        for analysis in analyses:
+            analysis.update(block)
+        for c, tone in enumerate(tones):
+            tone.update(block[:, c : c + 1])
+        if advance is not None:
+            advance(block.shape[0])
+    design = None
+    if settings.frontend_design is not None:
+        design = frontend_response(settings.frontend_design, top_hz=fs / 2.0)
+    selftest: tuple[ConformanceReport, ...] = ()
+    if fs >= MIN_SAMPLE_RATE_HZ:
+        selftest = (conformance("A", fs), conformance("C", fs))
+    now = _dt.datetime.now(_dt.UTC).replace(microsecond=0)
+    band_result = bands.result()
+    return RunResults(
+        source=source,
+        settings=settings,
+        generated_utc=now.isoformat().replace("+00:00", "Z"),
+        diagnostics=checker.result(),
+        levels=meter.result() if meter is not None else None,
+        psd=psd.result() if frames >= psd_segment else None,
+        bands=band_result if band_result.bands else None,
+        spectrogram=sgram.result() if frames >= sg_segment else None,
+        tones=tuple(_tone(t, settings.tone_min_share) for t in tones),
+        frontend=design,
+        conformance=selftest,
+        band_conformance=band_conformance(settings.band_fraction, fs)
+        if band_result.bands
+        else None,
+        notes=tuple(notes),
+    )
+
+
+def _tone(analyzer: ToneAnalyzer, min_share: float) -> ToneResult | str:
+    """The tone metrics of one channel, or the reason there are none."""
+    try:
+        (result,) = analyzer.result()
+    except InputError as exc:
+        return exc.message
+    share = (result.tone_rms / result.total_rms) ** 2 if result.total_rms > 0 else 0.0
+    if share < min_share:
+        return (
+            f"no test tone: the strongest line ({result.frequency_hz:.5g} Hz) carries "
+            f"{100 * share:.2g} % of the in-band mean square (at least "
+            f"{100 * min_share:g} % needed)"
+        )
+    return result
+
+
+_NICE_S = (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 15.0, 30.0, 60.0, 120.0, 300.0, 600.0)
+
+
+def _nice_interval(duration_s: float) -> float:
+    """A round interval giving about 100 intervals over ``duration_s`` (at least 0.1 s)."""
+    want = duration_s / 100.0
+    for step in _NICE_S:
+        if step >= want:
+            return step
+    return 60.0 * math.ceil(want / 60.0)
