@@ -206,15 +206,14 @@ def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 def _diagnostics(a: CaptureAnalysis) -> Any:
-    from piezo.diagnostics import CaptureChecker
+    from piezo.diagnostics import check_capture
 
     def compute() -> Any:
         cap = a.capture
-        checker = CaptureChecker(
-            cap.sample_rate_hz, 1, full_scale=cap.clip_level_v, unit="V", reference=1.0
+        result = check_capture(
+            cap.samples, cap.sample_rate_hz, full_scale=cap.clip_level_v, unit="V"
         )
-        checker.update(cap.samples[:, None])
-        return checker.result().channels[0]
+        return result.channels[0]
 
     return a.cached("diagnostics", compute)
 
