@@ -10,7 +10,7 @@ Prints, all measured in this one run:
 - per-capture time over the time soundfile needs just to decode the same file;
 - per-capture overhead beyond the analysis: the whole job (hash, read, calibrate,
   analyses, verdict) against the analyses alone on an already loaded capture, and the
-  runner's own cost per capture (a 1-worker run against the job's median time);
+  runner's own cost per capture (the same lot with a job that analyses nothing);
 - peak resident memory of the main process and of the largest worker for lots of
   increasing size: it must stay flat with the number of captures.
 
@@ -32,8 +32,14 @@ import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
-import soundfile as sf
+# One library thread per process (set before numpy loads), as the pool gives its
+# workers: otherwise OpenBLAS threads spin on the second core during the in-process runs.
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+for _name in THREAD_VARIABLES:
+    os.environ.setdefault(_name, "1")
+
+import numpy as np  # noqa: E402
+import soundfile as sf  # noqa: E402
 
 # Measure the checkout this script lives in, not another installed copy.
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
@@ -115,7 +121,18 @@ def make_lot(folder: Path, captures: int, unique: int) -> list[Path]:
     return files
 
 
-def child_run(lot: str, spec: str, out: str, workers: int, count: int) -> None:
+def null_job(path: str, *, display: str) -> dict:
+    """A job that does no analysis: what the runner and the pool cost per capture."""
+    return {"file": display, "verdict": "pass"}
+
+
+def _cpu_s() -> float:
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
+
+
+def child_run(lot: str, spec: str, out: str, workers: int, count: int, null: bool = False) -> None:
     """One batch run in a fresh process; prints a JSON line with time and peak memory."""
     from piezo.batch.outputs import write_outputs
     from piezo.batch.runner import expand_inputs, run_batch
@@ -123,9 +140,14 @@ def child_run(lot: str, spec: str, out: str, workers: int, count: int) -> None:
 
     s = load_spec(spec)
     files = expand_inputs([lot])[:count]
+    c0 = _cpu_s()
     t0 = time.perf_counter()
-    rows = run_batch(files, s, workers=workers)
+    rows = run_batch(files, s, workers=workers, job=null_job if null else None)
     t1 = time.perf_counter()
+    cpu = _cpu_s() - c0  # workers are counted once they have exited (end of the pool)
+    if null:
+        print(json.dumps({"captures": len(rows), "run_s": t1 - t0, "cpu_s": cpu}))
+        return
     write_outputs(out, rows, s)
     t2 = time.perf_counter()
     verdicts = {v: sum(r["verdict"] == v for r in rows) for v in {r["verdict"] for r in rows}}
@@ -134,6 +156,7 @@ def child_run(lot: str, spec: str, out: str, workers: int, count: int) -> None:
             {
                 "captures": len(rows),
                 "run_s": t1 - t0,
+                "cpu_s": cpu,
                 "write_s": t2 - t1,
                 "verdicts": verdicts,
                 "main_peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
@@ -143,11 +166,14 @@ def child_run(lot: str, spec: str, out: str, workers: int, count: int) -> None:
     )
 
 
-def run_child(lot: Path, spec: Path, out: Path, workers: int, count: int) -> dict:
+def run_child(
+    lot: Path, spec: Path, out: Path, workers: int, count: int, null: bool = False
+) -> dict:
     out.mkdir(parents=True, exist_ok=True)
     code = (
         "import sys; sys.path.insert(0, sys.argv[1]); import bench_batch as b; "
-        "b.child_run(sys.argv[2], sys.argv[3], sys.argv[4], int(sys.argv[5]), int(sys.argv[6]))"
+        "b.child_run(sys.argv[2], sys.argv[3], sys.argv[4], int(sys.argv[5]), int(sys.argv[6]), "
+        "sys.argv[7] == '1')"
     )
     here = str(Path(__file__).resolve().parent)
     res = subprocess.run(
@@ -161,10 +187,12 @@ def run_child(lot: Path, spec: Path, out: Path, workers: int, count: int) -> dic
             str(out),
             str(workers),
             str(count),
+            "1" if null else "0",
         ],
         check=True,
         capture_output=True,
         text=True,
+        env={**os.environ, **dict.fromkeys(THREAD_VARIABLES, "1")},
     )
     return json.loads(res.stdout.strip().splitlines()[-1])
 
@@ -235,19 +263,33 @@ def main() -> None:
             results[workers] = r
             print(
                 f"{workers} worker(s): {r['captures']} captures in {r['run_s']:.1f} s = "
-                f"{r['captures'] / r['run_s']:.1f} captures/s; outputs written in "
+                f"{r['captures'] / r['run_s']:.1f} captures/s (CPU "
+                f"{1e3 * r['cpu_s'] / r['captures']:.1f} ms per capture); outputs written in "
                 f"{r['write_s']:.2f} s; verdicts {r['verdicts']}"
             )
         ratio = (results[2]["captures"] / results[2]["run_s"]) / (
             results[1]["captures"] / results[1]["run_s"]
         )
         print(f"throughput 2 workers / 1 worker = {ratio:.2f}x (target >= 1.7)")
+        cores = results[2]["cpu_s"] / results[2]["run_s"]
+        efficiency = results[1]["cpu_s"] / results[2]["cpu_s"]
+        print(
+            f"  the 2-worker run got {cores:.2f} cores on average (CPU time / wall time; "
+            f"other jobs share the machine); CPU per capture 2 workers / 1 worker = "
+            f"{1 / efficiency:.3f} (parallel efficiency {100 * efficiency:.0f} %)"
+        )
         per_capture_1 = results[1]["run_s"] / results[1]["captures"]
         print(
             f"1 worker, per capture {1e3 * per_capture_1:.1f} ms = "
-            f"{per_capture_1 / split['decode_s']:.1f}x the decode time; runner cost beyond "
-            f"the job {1e3 * (per_capture_1 - split['job_s']):.1f} ms per capture"
+            f"{per_capture_1 / split['decode_s']:.1f}x the decode time"
         )
+        for workers in (1, 2):
+            r = run_child(root / "lot", spec, root / "null", workers, args.captures, null=True)
+            print(
+                f"runner alone (a job that analyses nothing), {workers} worker(s): "
+                f"{1e6 * r['run_s'] / r['captures']:.1f} µs per capture wall, "
+                f"{1e6 * r['cpu_s'] / r['captures']:.1f} µs CPU (pool start-up included)"
+            )
         same = (root / "out-1" / "results.csv").read_bytes() == (
             root / "out-2" / "results.csv"
         ).read_bytes()

@@ -251,3 +251,57 @@ def test_limits_derive_cli(cli, tmp_path, with_fakes):
         "3",
     )
     assert r.code == 2 and "--warn-k: must be between 0 and --k (2), got 3" in r.err
+
+
+def test_cluster_address_gives_the_local_results(cli, fake_lot, with_fakes):
+    distributed = pytest.importorskip("distributed")
+    local = fake_lot / "local"
+    r = cli(
+        "batch",
+        fake_lot / "lot",
+        "--spec",
+        fake_lot / "spec.toml",
+        "--out",
+        local,
+        "--workers",
+        "1",
+    )
+    assert r.code == 1
+    # An in-process scheduler (threads, no worker processes) reached by its address,
+    # as a remote one would be; the workers read the captures by absolute path.
+    with distributed.LocalCluster(
+        n_workers=1, threads_per_worker=2, processes=False, dashboard_address=None
+    ) as cluster:
+        remote = fake_lot / "remote"
+        r = cli(
+            "batch",
+            fake_lot / "lot",
+            "--spec",
+            fake_lot / "spec.toml",
+            "--out",
+            remote,
+            "--cluster",
+            cluster.scheduler_address,
+        )
+    assert r.code == 1, r.err
+    for name in ("results.csv", "results.json", "junit.xml"):
+        assert (remote / name).read_bytes() == (local / name).read_bytes()
+
+
+def test_unreachable_cluster_exits_2(cli, fake_lot, monkeypatch):
+    pytest.importorskip("distributed")
+    import piezo.batch.runner as runner
+
+    monkeypatch.setattr(runner, "CLUSTER_CONNECT_TIMEOUT_S", 1)
+    r = cli(
+        "batch",
+        fake_lot / "lot",
+        "--spec",
+        fake_lot / "spec.toml",
+        "--out",
+        fake_lot / "o",
+        "--cluster",
+        "tcp://127.0.0.1:9",
+    )
+    assert r.code == 2
+    assert "--cluster: cannot connect to 'tcp://127.0.0.1:9'" in r.err

@@ -47,6 +47,9 @@ CAPTURE_SUFFIXES = (".wav", ".flac", ".ogg", ".aif", ".aiff", ".w64", ".rf64", "
 
 _GLOB_CHARS = re.compile(r"[*?\[]")
 
+#: Seconds to wait for a Dask scheduler before giving up on ``--cluster``.
+CLUSTER_CONNECT_TIMEOUT_S = 20
+
 
 def expand_inputs(inputs: Iterable[str]) -> list[str]:
     """Expand files, directories (recursively) and glob patterns into a sorted file list.
@@ -436,7 +439,7 @@ def run_batch(
             for path in todo:
                 finished(job(path, display=path))
         else:
-            _run_pool(todo, job, n, finished, spec)
+            _run_pool(todo, job, min(n, len(todo)), finished, spec)
     rows.sort(key=lambda r: r["file"])
     return rows
 
@@ -552,7 +555,7 @@ def _run_dask(
         ) from None
     own = not hasattr(cluster, "submit")
     try:
-        client = Client(cluster, timeout="20s") if own else cluster
+        client = Client(cluster, timeout=f"{CLUSTER_CONNECT_TIMEOUT_S}s") if own else cluster
     except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(f"--cluster: cannot connect to {cluster!r}: {exc}") from None
     try:
