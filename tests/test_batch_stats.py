@@ -6,7 +6,13 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from piezo.batch.stats import capability, histogram, verdict_counts, yield_fraction
+from piezo.batch.stats import (
+    capability,
+    far_outliers,
+    histogram,
+    verdict_counts,
+    yield_fraction,
+)
 
 
 def test_capability_worked_example_by_hand():
@@ -76,3 +82,14 @@ def test_histogram_spans_values_and_limits():
     same = histogram(np.full(10, 3.0))
     assert sum(same.counts) == 10 and same.edges[0] < 3.0 < same.edges[-1]
     assert histogram([]).counts == []
+
+
+def test_far_outliers_tukey_fences():
+    # x = -30, 1, 2, ..., 20, 50 (22 values). numpy's linear quartiles: position
+    # 21 * 0.25 = 5.25 -> 5.25, position 15.75 -> 15.75; IQR 10.5; Tukey's far fences
+    # 5.25 - 31.5 = -26.25 and 15.75 + 31.5 = 47.25 (worked by hand): -30 and 50 only.
+    x = np.array([-30.0, *range(1, 21), 50.0])
+    assert list(x[far_outliers(x)]) == [-30.0, 50.0]
+    # Zero IQR: everything away from the common value is far out.
+    assert list(far_outliers([0.0, 0.0, 0.0, 0.0, 0.25])) == [False] * 4 + [True]
+    assert far_outliers([]).size == 0

@@ -48,19 +48,23 @@ SUMMARY_TEMPLATE = (
 
 <h2>Metrics</h2>
 <table><tr><th>metric</th><th>unit</th><th>lower</th><th>upper</th><th>n</th>
-<th>mean</th><th>σ</th><th>Cp</th><th>Cpk</th></tr>
+<th>far outliers</th><th>mean</th><th>σ</th><th>Cp</th><th>Cpk</th></tr>
 {% for m in summary.metrics %}<tr><td>{{ m.name }}</td><td>{{ m.unit }}</td>
 <td class="num">{{ m.lower|num }}</td><td class="num">{{ m.upper|num }}</td>
-<td class="num">{{ m.n }}</td><td class="num">{{ m.mean|num }}</td>
+<td class="num">{{ m.n }}</td><td class="num">{{ m.outliers }}</td>
+<td class="num">{{ m.mean|num }}</td>
 <td class="num">{{ m.std|num }}</td>
 <td class="num">{% if m.two_sided %}{{ m.cp|num(3) }}{% else %}—{% endif %}</td>
 <td class="num">{{ m.cpk|num(3) }}</td></tr>
 {% endfor %}</table>
 <p class="note">Cp = (USL − LSL)/(6σ) for two-sided limits; Cpk = min(USL − μ, μ − LSL)/(3σ),
  the one available side for one-sided limits (NIST/SEMATECH e-Handbook of Statistical
- Methods, 6.1.6); μ, σ: mean and sample standard deviation of the evaluated captures;
- limits: the innermost "fail" limits. Masks are shown as their worst margin in dB
- (limit: 0 dB).</p>
+ Methods, 6.1.6). Capability assumes a process in statistical control: μ and σ (sample
+ standard deviation) are taken over the n evaluated captures less the far outliers
+ (beyond the quartiles ∓ 3 IQR, Tukey; special causes such as a clipped capture), which
+ are counted apart and still appear in the histograms. Limits: the innermost "fail"
+ limits ("warn" limits for a metric that has no other). Masks are shown as their worst
+ margin in dB (limit: 0 dB).</p>
 
 {% for m in summary.metrics %}{% if m.png %}
 <h3>{{ m.name }} ({{ m.unit }})</h3>

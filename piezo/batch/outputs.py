@@ -26,9 +26,17 @@ from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from piezo import __version__
 from piezo.batch.spec import MetricSpec, Spec
-from piezo.batch.stats import capability, histogram, verdict_counts, yield_fraction
+from piezo.batch.stats import (
+    capability,
+    far_outliers,
+    histogram,
+    verdict_counts,
+    yield_fraction,
+)
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, VERDICTS, WARN
 
 __all__ = [
@@ -125,16 +133,20 @@ def read_previous_rows(out_dir: str | Path) -> list[dict[str, Any]]:
 def summarize(rows: Sequence[Mapping[str, Any]], spec: Spec) -> dict[str, Any]:
     """Counts per verdict, yield, and per metric n/mean/σ/Cp/Cpk and histogram data.
 
-    Capability uses every capture where the metric was evaluated, against the metric's
-    innermost "fail" limits.
+    Capability (NIST/SEMATECH 6.1.6) assumes a process in statistical control: it uses
+    the captures where the metric was evaluated, less its far outliers (Tukey's fences,
+    :func:`~piezo.batch.stats.far_outliers`; special causes such as a clipped capture,
+    counted in ``outliers``), against the metric's innermost "fail" limits (its "warn"
+    limits when it has no other).
     """
     counts = verdict_counts(r["verdict"] for r in rows)
     metrics: list[dict[str, Any]] = []
     for m in spec.metrics:
         values = [r["metrics"].get(m.name) for r in rows]
-        finite = [float(v) for v in values if v is not None and math.isfinite(v)]
-        lsl, usl = m.fail_limits()
-        cap = capability(finite, lsl=lsl, usl=usl)
+        finite = np.array([float(v) for v in values if v is not None and math.isfinite(v)])
+        far = far_outliers(finite)
+        lsl, usl = m.spec_limits()
+        cap = capability(finite[~far], lsl=lsl, usl=usl)
         hist = histogram(finite, lower=lsl, upper=usl)
         metrics.append(
             {
@@ -144,6 +156,7 @@ def summarize(rows: Sequence[Mapping[str, Any]], spec: Spec) -> dict[str, Any]:
                 "lower": lsl,
                 "upper": usl,
                 "n": cap.n,
+                "outliers": int(np.count_nonzero(far)),
                 "mean": cap.mean,
                 "std": cap.std,
                 "cp": cap.cp,

@@ -223,6 +223,15 @@ class MetricSpec:
         ]
         return (max(lows) if lows else None, min(highs) if highs else None)
 
+    def spec_limits(self) -> tuple[float | None, float | None]:
+        """Limits for capability and histograms: the innermost "fail" limits, or, for a
+        metric with warning limits only, the innermost "warn" limits."""
+        if any(lim.severity == "fail" for lim in self.limits):
+            return self.fail_limits()
+        lows = [lim.lower for lim in self.limits if lim.lower is not None]
+        highs = [lim.upper for lim in self.limits if lim.upper is not None]
+        return (max(lows) if lows else None, min(highs) if highs else None)
+
     def to_json(self) -> dict[str, Any]:
         return {
             "name": self.name,

@@ -25,6 +25,7 @@ __all__ = [
     "Capability",
     "Histogram",
     "capability",
+    "far_outliers",
     "histogram",
     "verdict_counts",
     "yield_fraction",
@@ -103,6 +104,20 @@ def capability(
     return Capability(n, mean, std, lsl, usl, cp, cpk, cpl, cpu)
 
 
+def far_outliers(values: Sequence[float] | np.ndarray) -> np.ndarray:
+    """Mask of the far outliers of ``values``: beyond the quartiles ∓ 3 IQR (Tukey's
+    "far out" fences; common practice). With zero IQR every value other than the
+    quartile value is far out."""
+    x = np.asarray(values, dtype=float)
+    if x.size == 0:
+        return np.zeros(0, dtype=bool)
+    q1, q3 = np.percentile(x, [25.0, 75.0])
+    iqr = q3 - q1
+    if iqr == 0:
+        return x != q1
+    return (x < q1 - 3 * iqr) | (x > q3 + 3 * iqr)
+
+
 @dataclass(frozen=True)
 class Histogram:
     """Counts of a metric's values in bins; ``edges`` has one more entry than ``counts``.
@@ -139,7 +154,7 @@ def histogram(
         return Histogram([], [], lower, upper)
     q1, q3 = (float(v) for v in np.percentile(x, [25.0, 75.0]))
     iqr = q3 - q1
-    inside = x[(x >= q1 - 3 * iqr) & (x <= q3 + 3 * iqr)] if iqr > 0 else x
+    inside = x[~far_outliers(x)] if iqr > 0 else x
     points = [float(v) for v in (lower, upper) if v is not None]
     lo = min([float(inside.min()), *points])
     hi = max([float(inside.max()), *points])
