@@ -14,10 +14,12 @@ Prints, all measured in this one run:
 - peak resident memory of the main process and of the largest worker for lots of
   increasing size: it must stay flat with the number of captures.
 
-Run: ``python benchmarks/bench_batch.py [--captures 2000] [--unique 200]``. The machine
-may be shared: figures are noisy, ratios less so. Unique captures are hard-linked to
-make up the lot, so the disk holds ``--unique`` files' worth of data; the files are
-then read from the page cache, which is what a line PC re-reading a lot sees too.
+Run: ``python benchmarks/bench_batch.py [--captures 2000] [--unique 200] [--rounds 2]``.
+The machine may be shared: runs at 1 and 2 workers alternate and the best of each counts;
+CPU time per capture is printed beside wall time, as it does not depend on other jobs.
+Unique captures are hard-linked to make up the lot, so the disk holds ``--unique``
+files' worth of data; the files are then read from the page cache, which is what a
+line PC re-reading a lot sees too.
 """
 
 from __future__ import annotations
@@ -232,6 +234,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--captures", type=int, default=2000)
     parser.add_argument("--unique", type=int, default=200)
+    parser.add_argument("--rounds", type=int, default=2, help="runs at 1 and at 2 workers")
     parser.add_argument("--dir", type=Path, default=None, help="work folder (default: temp)")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory(prefix="piezo-bench-batch-") as tmp:
@@ -257,21 +260,24 @@ def main() -> None:
             "of the job (hash, read, calibrate, verdict)"
         )
 
-        results = {}
-        for workers in (1, 2):
-            r = run_child(root / "lot", spec, root / f"out-{workers}", workers, args.captures)
-            results[workers] = r
-            print(
-                f"{workers} worker(s): {r['captures']} captures in {r['run_s']:.1f} s = "
-                f"{r['captures'] / r['run_s']:.1f} captures/s (CPU "
-                f"{1e3 * r['cpu_s'] / r['captures']:.1f} ms per capture); outputs written in "
-                f"{r['write_s']:.2f} s; verdicts {r['verdicts']}"
-            )
-        ratio = (results[2]["captures"] / results[2]["run_s"]) / (
-            results[1]["captures"] / results[1]["run_s"]
-        )
-        print(f"throughput 2 workers / 1 worker = {ratio:.2f}x (target >= 1.7)")
-        cores = results[2]["cpu_s"] / results[2]["run_s"]
+        # Rounds alternate 1 and 2 workers; the best round of each counts (as timeit
+        # takes the minimum): other jobs on a shared machine only ever slow a run down.
+        rounds: dict[int, list[dict]] = {1: [], 2: []}
+        for k in range(args.rounds):
+            for workers in (1, 2):
+                r = run_child(root / "lot", spec, root / f"out-{workers}", workers, args.captures)
+                rounds[workers].append(r)
+                print(
+                    f"round {k + 1}, {workers} worker(s): {r['captures']} captures in "
+                    f"{r['run_s']:.1f} s = {r['captures'] / r['run_s']:.1f} captures/s (CPU "
+                    f"{1e3 * r['cpu_s'] / r['captures']:.1f} ms per capture, "
+                    f"{r['cpu_s'] / r['run_s']:.2f} cores); outputs written in "
+                    f"{r['write_s']:.2f} s; verdicts {r['verdicts']}"
+                )
+        results = {w: min(rs, key=lambda r: r["run_s"]) for w, rs in rounds.items()}
+        ratio = results[1]["run_s"] / results[2]["run_s"]
+        print(f"throughput 2 workers / 1 worker, best rounds = {ratio:.2f}x (target >= 1.7)")
+        cores = results[2]["cpu_s"] / results[2]["run_s"]  # of the best 2-worker round
         efficiency = results[1]["cpu_s"] / results[2]["cpu_s"]
         print(
             f"  the 2-worker run got {cores:.2f} cores on average (CPU time / wall time; "
