@@ -73,6 +73,8 @@ ANTI_ALIAS_RIPPLE_DB = 0.002
 ANTI_ALIAS_STOP_DB = 100.0
 #: Samples gathered at a decimated stage before it is filtered (amortises call cost).
 _STAGE_CHUNK = 8192
+#: Longest piece of input filtered at once.
+_UPDATE_FRAMES = 65536
 
 # Preferred (nominal) mid-band frequencies of one-third-octave bands, one decade:
 # IEC 61260-1:2014 annex E (the R10 series of ISO 266), as mantissas.
@@ -435,10 +437,15 @@ class BandAnalyzer:
             )
         if x.shape[0] == 0:
             return
-        self._frames += x.shape[0]
-        if self._weighting is not None:
-            x = self._weighting.update(x)
-        self._run(0, x)
+        # Long blocks are filtered in pieces, so the intermediate arrays of the stages
+        # stay in the processor's cache (measured: a one-minute block in one piece took
+        # six times as long per sample).
+        for first in range(0, x.shape[0], _UPDATE_FRAMES):
+            piece = x[first : first + _UPDATE_FRAMES]
+            self._frames += piece.shape[0]
+            if self._weighting is not None:
+                piece = self._weighting.update(piece)
+            self._run(0, piece)
 
     def _run(self, k: int, x: np.ndarray, *, flush: bool = False) -> None:
         stage = self._stages[k]
