@@ -265,8 +265,6 @@ class _Segmenter:
         self.detrend = detrend
         self.bins = self.n // 2 + 1
         self.segments = 0  # segments emitted so far
-        #: Yield only each batch's sum of periodograms (shape (1, channels, bins)).
-        self.sum_segments = False
         self._pending = np.zeros((0, self.channels))
         # One-sided density scale; DC and (even n) Nyquist bins are not doubled.
         scale = np.full(self.bins, 2.0 / (self.fs * np.dot(self.w, self.w)))
@@ -299,15 +297,8 @@ class _Segmenter:
                 # which is non-zero only in the first few bins of a cosine-sum window.
                 k_w = self._w_bins
                 spec[..., :k_w] -= seg.mean(axis=-1)[..., None] * self._w_spec[:k_w]
-            # |X|² without temporaries: square real and imaginary parts in place.
-            flat = spec.view(np.float64)  # (k, channels, 2·bins): re, im, re, im, ...
-            np.square(flat, out=flat)
-            if self.sum_segments:  # the batch's sum is all a mean needs: reduce first
-                total = flat.sum(axis=0)
-                power = (total[..., 0::2] + total[..., 1::2])[None]
-            else:
-                power = flat[..., 0::2]
-                power += flat[..., 1::2]
+            power = spec.real**2
+            power += spec.imag**2
             power *= self.density_scale
             yield self.segments, power
             self.segments += k
@@ -378,7 +369,6 @@ class WelchPSD:
         self._seg = _Segmenter(
             sample_rate_hz, channels, segment_frames, resolution_hz, window, overlap, detrend
         )
-        self._seg.sum_segments = average == "mean"
         self.average = average
         self.scaling = scaling
         self.confidence_level = float(confidence_level)
