@@ -21,7 +21,6 @@ them, see :class:`WelchPSD`.
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -59,8 +58,10 @@ _HFT95 = (1.0, -1.9383379, 1.3045202, -0.4028270, 0.0350665)
 
 #: Memory allowed for the stored segments of a median average, bytes.
 MEDIAN_MEMORY_BYTES = 64 * 2**20
-#: Threads for batched FFTs (the machine this was written for has two cores).
-_WORKERS = min(2, os.cpu_count() or 1)
+#: Threads for batched FFTs. One: a batch is small (a block's worth of segments), and
+#: with two threads on the two shared cores of the benchmark machine the Welch PSD was
+#: no faster in wall time and used more CPU (docs/performance.md, "Spectra").
+_WORKERS = 1
 #: Segment length when neither a length nor a resolution is given.
 DEFAULT_SEGMENT_FRAMES = 4096
 #: Samples (segments x length x channels) windowed and transformed per FFT call: a
