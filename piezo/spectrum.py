@@ -267,7 +267,10 @@ class _Segmenter:
         self.detrend = detrend
         self.bins = self.n // 2 + 1
         self.segments = 0  # segments emitted so far
-        self._pending = np.zeros((0, self.channels))
+        # Stream buffer: the unused tail of earlier blocks, then the current block. It
+        # grows to the longest block fed plus a segment, not with the recording length.
+        self._data = np.empty((0, self.channels))
+        self._pending = 0
         # One-sided density scale; DC and (even n) Nyquist bins are not doubled.
         scale = np.full(self.bins, 2.0 / (self.fs * np.dot(self.w, self.w)))
         scale[0] /= 2.0
@@ -324,35 +327,37 @@ class _Segmenter:
     def feed(self, block: np.ndarray):
         """Yield ``(first_segment_index, k, spec)`` batches, see :meth:`_batches`.
 
-        Only the segments that straddle the previous block and this one are assembled
-        from a copy; the others are windowed straight out of ``block``.
+        The samples left over from earlier blocks (fewer than a segment) and the block
+        are placed one after the other in a reused buffer, so that every segment of the
+        block goes through the same batched FFT calls; a block that starts a fresh
+        stream is read in place.
         """
         x = _as_block(block, self.channels)
         frames = x.shape[0]
         if frames == 0:
             return
         n, step = self.n, self.step
-        pending = self._pending
-        p = pending.shape[0]  # < n, and the stream offset of x is p
+        p = self._pending  # samples kept from earlier blocks (< n), at the buffer start
         total = p + frames
-        count = 0 if total < n else (total - n) // step + 1
-        # Segments starting inside the pending samples.
-        head = min(count, -(-p // step))
-        if head:
-            need = (head - 1) * step + n - p
-            data = np.concatenate([pending, x[:need]])
-            for k, spec in self._batches(data, 0, head):
-                yield self.segments, k, spec
-                self.segments += k
-        if count > head:
-            for k, spec in self._batches(x, head * step - p, count - head):
-                yield self.segments, k, spec
-                self.segments += k
-        cut = count * step
-        if cut >= p:
-            self._pending = x[cut - p :].copy()
+        if p == 0:
+            data = x
         else:
-            self._pending = np.concatenate([pending[cut:], x])
+            if self._data.shape[0] < total:
+                grown = np.empty((total, self.channels))
+                grown[:p] = self._data[:p]
+                self._data = grown
+            data = self._data
+            data[p:total] = x
+        count = 0 if total < n else (total - n) // step + 1
+        for k, spec in self._batches(data, 0, count):
+            yield self.segments, k, spec
+            self.segments += k
+        cut = count * step
+        rest = total - cut
+        if self._data.shape[0] < rest:
+            self._data = np.empty((max(rest, n), self.channels))
+        self._data[:rest] = data[cut:total]  # numpy buffers overlapping copies
+        self._pending = rest
 
     def feed_power(self, block: np.ndarray):
         """Yield ``(first_segment_index, power)`` batches; power is ``(k, channels,
