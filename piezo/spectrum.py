@@ -457,11 +457,11 @@ class WelchPSD:
         """Feed calibrated samples, shape ``(frames, channels)``."""
         if self.average == "mean":
             # Σ|X|² over the batch, unscaled, as re² and im² side by side (the complex
-            # output viewed as float pairs, squared in place); scaled in result().
+            # output viewed as float pairs, squared and summed in one pass); scaled in
+            # result().
             for _first, _k, spec in self._seg.feed(block):
                 pairs = spec.view(np.float64)
-                np.square(pairs, out=pairs)
-                self._acc += pairs.sum(axis=0)
+                self._acc += np.einsum("kcb,kcb->cb", pairs, pairs)
             return
         for first, power in self._seg.feed_power(block):
             if self.average == "max":
