@@ -23,6 +23,7 @@ Run it from the repository root with this checkout's ``piezo`` first on the path
 
     PYTHONPATH=. python benchmarks/bench_spectra.py                # one hour
     PYTHONPATH=. python benchmarks/bench_spectra.py --minutes 10 --repeat 1
+    PYTHONPATH=. python benchmarks/bench_spectra.py --no-bands --no-reference --fft-workers 1 2
 """
 
 from __future__ import annotations
@@ -40,6 +41,7 @@ import numpy as np
 import soundfile as sf
 
 import piezo
+from piezo import spectrum
 from piezo.bands import BandAnalyzer, band_levels
 from piezo.spectrum import WelchPSD
 
@@ -117,6 +119,15 @@ def main(argv: list[str] | None = None) -> int:
         default=Path(tempfile.gettempdir()) / "piezo-bench",
         help="where the generated WAV is written (default: a temp folder)",
     )
+    ap.add_argument("--no-bands", action="store_true", help="skip the 1/3-octave bands")
+    ap.add_argument("--no-reference", action="store_true", help="skip the PyOctaveBand comparison")
+    ap.add_argument(
+        "--fft-workers",
+        type=int,
+        nargs="+",
+        default=None,
+        help="also time the Welch PSD with these FFT thread counts (default: piezo's own)",
+    )
     ap.add_argument("--json", action="store_true", help="print the figures as JSON")
     args = ap.parse_args(argv)
 
@@ -133,8 +144,19 @@ def main(argv: list[str] | None = None) -> int:
     t_first = time.perf_counter() - t0
     load0 = os.getloadavg()[0]
     t_dec, c_dec = best(lambda: run_decode(path), args.repeat)
-    t_bands, c_bands = best(lambda: run_bands(path), args.repeat)
+    t_bands, c_bands = (
+        (float("nan"), float("nan"))
+        if args.no_bands
+        else best(lambda: run_bands(path), args.repeat)
+    )
     t_welch, c_welch = best(lambda: run_welch(path), args.repeat)
+    welch_workers = {}
+    for workers in args.fft_workers or []:
+        default, spectrum._WORKERS = spectrum._WORKERS, workers
+        try:
+            welch_workers[workers] = best(lambda: run_welch(path), args.repeat)
+        finally:
+            spectrum._WORKERS = default
     load1 = os.getloadavg()[0]
     figures = {
         "piezo": str(Path(piezo.__file__).parent),
@@ -147,13 +169,18 @@ def main(argv: list[str] | None = None) -> int:
         "welch_s": [t_welch, c_welch],
         "bands_over_decode": [t_bands / t_dec, c_bands / c_dec],
         "welch_over_decode": [t_welch / t_dec, c_welch / c_dec],
+        "welch_fft_workers": spectrum._WORKERS,
+        "welch_by_fft_workers": {
+            str(w): {"s": [t, c], "over_decode": [t / t_dec, c / c_dec]}
+            for w, (t, c) in welch_workers.items()
+        },
     }
 
     try:
         import pyoctaveband
     except ImportError:
         pyoctaveband = None
-    if pyoctaveband is not None:
+    if pyoctaveband is not None and not args.no_reference:
         x = pink(int(args.reference_minutes * 60 * FS))
         t_ours, c_ours, ours = timed(lambda: band_levels(x, FS, fraction=3))
         t_ref, c_ref, (ref_db, ref_f) = timed(
@@ -184,17 +211,18 @@ def main(argv: list[str] | None = None) -> int:
     print(f"file              {path} ({frames} frames, 24-bit WAV)")
     print(f"best of {args.repeat} runs; load average {load0:.2f} before, {load1:.2f} after")
     print("                         wall s  ns/frame   CPU s  ns/frame  ratio wall / CPU")
-    for name, wall, cpu in (
-        ("decode floor", t_dec, c_dec),
-        ("1/3-octave 20 Hz-20 kHz", t_bands, c_bands),
-        ("Welch PSD (4096 Hann)", t_welch, c_welch),
-    ):
+    rows = [("decode floor", t_dec, c_dec)]
+    if not args.no_bands:
+        rows.append(("1/3-octave 20 Hz-20 kHz", t_bands, c_bands))
+    rows.append((f"Welch PSD, {spectrum._WORKERS} FFT thr.", t_welch, c_welch))
+    rows += [(f"Welch PSD, {w} FFT thr.", t, c) for w, (t, c) in welch_workers.items()]
+    for name, wall, cpu in rows:
         print(
             f"{name:24s} {wall:6.2f}  {wall * ns:8.2f}  {cpu:6.2f}  {cpu * ns:8.2f}"
             f"  {wall / t_dec:5.2f}x / {cpu / c_dec:.2f}x"
         )
     print(f"first use         {t_first:.2f} s (kernel cache load, or compile if none)")
-    if pyoctaveband is not None:
+    if "speedup" in figures:
         print(
             f"PyOctaveBand 2.0.0 on {args.reference_minutes:g} min of pink noise in memory: "
             f"{t_ref:.2f} s (CPU {c_ref:.2f}); piezo {t_ours:.3f} s (CPU {c_ours:.3f}): "
