@@ -642,13 +642,17 @@ class SOSBank:
         self._z = np.zeros((self.channels, groups, BANK_SECTIONS, 2, lanes))
         self._kernel = _bank_kernel(lanes)
 
-    def process(self, x: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    def process(
+        self, x: np.ndarray, starts: np.ndarray, *, out: np.ndarray | None = None
+    ) -> tuple[np.ndarray, np.ndarray | None]:
         """Filter ``x`` (``(n, channels)``, n >= 1).
 
         ``starts`` are the first sample of each segment (``starts[0] == 0``,
         non-decreasing). Returns ``sums`` of shape ``(segments, filters, channels)``
         (sum of squared outputs per segment) and the chosen filter's output
-        ``(n, channels)``, or None.
+        ``(n, channels)``, or None. ``out``: a C-contiguous float64 buffer
+        ``(channels, >= n)`` to hold that output (reused by the caller between calls to
+        save allocating); the output returned is then a view of it.
         """
         n = x.shape[0]
         bounds = np.append(np.asarray(starts, dtype=np.int64), n)
@@ -656,7 +660,10 @@ class SOSBank:
         groups = self._co.shape[0]
         sums = np.zeros((self.channels, nseg, groups, self._lanes))
         want = self.output_index is not None
-        out = np.empty((self.channels, n))
+        if out is None or out.shape[0] != self.channels or out.shape[1] < n:
+            out = np.empty((self.channels, n))
+        else:
+            out = out[:, :n]
         gain0 = float(self._gain[0])
 
         def run(c: int) -> None:

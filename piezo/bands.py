@@ -76,6 +76,10 @@ _STAGE_CHUNK = 8192
 #: Longest piece of input filtered at once.
 _UPDATE_FRAMES = 65536
 
+#: Segment starts of a chunk without history intervals (read only).
+_ONE_SEGMENT = np.zeros(1, dtype=np.int64)
+_ONE_SEGMENT.flags.writeable = False
+
 # Preferred (nominal) mid-band frequencies of one-third-octave bands, one decade:
 # IEC 61260-1:2014 annex E (the R10 series of ISO 266), as mantissas.
 _R10 = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
@@ -345,13 +349,24 @@ class _Stage:
         self.stage = stage
         self.factor = 2**stage  # input samples per stage sample
         self.band_indices = [i for i, k in enumerate(bank.stage_of_band) if k == stage]
+        # Bands run low to high and stages high to low rate, so a stage's bands are
+        # contiguous: one slice updates all their sums at once.
+        lo = self.band_indices[0] if self.band_indices else 0
+        self.bands = slice(lo, lo + len(self.band_indices))
+        if self.band_indices != list(range(self.bands.start, self.bands.stop)):
+            raise AssertionError("bands of a stage must be contiguous")
         self.last = stage == bank.stages - 1
         sos = [bank.band_sos[i] for i in self.band_indices]
         if not self.last:
             sos.append(bank.anti_alias_sos)
         self.filters = SOSBank(sos, channels, output_index=None if self.last else len(sos) - 1)
         self.count = 0  # stage samples filtered so far
-        self.pending: list[np.ndarray] = []
+        # Output of the anti-alias low-pass, reused between chunks (the next stage
+        # copies the samples it keeps).
+        self.out = np.empty((channels, _STAGE_CHUNK + _UPDATE_FRAMES // 2**stage))
+        # Decimated samples waiting to be filtered (stages after the first), gathered
+        # into one buffer (grown if a piece does not fit).
+        self.pending = np.empty((_STAGE_CHUNK + _UPDATE_FRAMES // 2**stage, channels))
         self.pending_frames = 0
 
 
@@ -449,30 +464,38 @@ class BandAnalyzer:
 
     def _run(self, k: int, x: np.ndarray, *, flush: bool = False) -> None:
         stage = self._stages[k]
-        if k > 0 and not flush:
-            stage.pending.append(x)
-            stage.pending_frames += x.shape[0]
-            if stage.pending_frames < _STAGE_CHUNK:
+        if k > 0:
+            # Gather the decimated samples (``x`` may be a view of the previous stage's
+            # reused output buffer: copied here).
+            m = stage.pending_frames
+            need = m + x.shape[0]
+            if need > stage.pending.shape[0]:
+                grown = np.empty((2 * need, self.channels))
+                grown[:m] = stage.pending[:m]
+                stage.pending = grown
+            stage.pending[m:need] = x
+            stage.pending_frames = need
+            if need < _STAGE_CHUNK and not flush:
                 return
-        if stage.pending:
-            if k > 0 and not flush:
-                x = np.concatenate(stage.pending)
-            else:
-                x = np.concatenate([*stage.pending, x])
-            stage.pending, stage.pending_frames = [], 0
+            x = stage.pending[:need]
+            stage.pending_frames = 0
         if x.shape[0] == 0:
             return
         start = stage.count
         n = x.shape[0]
         first, starts = self._segments(stage, start, n)
-        sums, y = stage.filters.process(x, starts)
-        counts = np.diff(np.append(starts, n))
-        for j, band in enumerate(stage.band_indices):
-            self._sum[band] += sums[:, j].sum(axis=0)
-            self._n[band] += n
+        if stage.out.shape[1] < n:
+            stage.out = np.empty((self.channels, n))
+        sums, y = stage.filters.process(x, starts, out=stage.out)
+        nb = len(stage.band_indices)
+        if nb:
+            bands = stage.bands
+            self._sum[bands] += sums[:, :nb].sum(axis=0)
+            self._n[bands] += n
             if self.interval_s is not None:
-                self._hist_sum[first : first + starts.size, band] += sums[:, j]
-                self._hist_n[first : first + starts.size, band] += counts
+                counts = np.diff(np.append(starts, n))
+                self._hist_sum[first : first + starts.size, bands] += sums[:, :nb]
+                self._hist_n[first : first + starts.size, bands] += counts[:, None]
         stage.count += n
         if not stage.last:
             # Keep samples at even stage index: input sample numbers divisible by 2^(k+1).
@@ -482,7 +505,7 @@ class BandAnalyzer:
         """First interval touched by stage samples ``start .. start+n-1`` and the offsets
         (within the chunk) where each touched interval begins."""
         if self.interval_s is None:
-            return 0, np.zeros(1, dtype=np.int64)
+            return 0, _ONE_SEGMENT
         per = self._interval_frames
         # Interval of stage sample j: input sample number j·2^k divided by the interval.
         first = (start * stage.factor) // per
