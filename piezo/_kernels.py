@@ -641,6 +641,9 @@ class SOSBank:
         )
         self._z = np.zeros((self.channels, groups, BANK_SECTIONS, 2, lanes))
         self._kernel = _bank_kernel(lanes)
+        self._gain0 = float(gain[0])
+        self._slot_of_filter = np.argsort(self._order)  # filter i sits in this slot
+        self._gain_sq = gain[self._slot_of_filter] ** 2
 
     def process(
         self, x: np.ndarray, starts: np.ndarray, *, out: np.ndarray | None = None
@@ -655,28 +658,30 @@ class SOSBank:
         save allocating); the output returned is then a view of it.
         """
         n = x.shape[0]
-        bounds = np.append(np.asarray(starts, dtype=np.int64), n)
-        nseg = bounds.size - 1
-        groups = self._co.shape[0]
-        sums = np.zeros((self.channels, nseg, groups, self._lanes))
-        want = self.output_index is not None
+        nseg = len(starts)
+        bounds = np.empty(nseg + 1, dtype=np.int64)
+        bounds[:nseg] = starts
+        bounds[nseg] = n
+        sums = np.zeros((self.channels, nseg, self._co.shape[0], self._lanes))
         if out is None or out.shape[0] != self.channels or out.shape[1] < n:
             out = np.empty((self.channels, n))
-        else:
+        elif out.shape[1] != n:
             out = out[:, :n]
-        gain0 = float(self._gain[0])
-
-        def run(c: int) -> None:
-            xc = np.ascontiguousarray(x[:, c])
-            self._kernel(xc, self._co, self._z[c], bounds, sums[c], out[c], gain0)
-
-        if self.channels > 1 and n >= _THREAD_MIN_FRAMES:
-            list(_pool().map(run, range(self.channels)))
+        if self.channels == 1:
+            xc = x[:, 0] if x.flags.c_contiguous else np.ascontiguousarray(x[:, 0])
+            self._kernel(xc, self._co, self._z[0], bounds, sums[0], out[0], self._gain0)
         else:
-            for c in range(self.channels):
-                run(c)
-        flat = sums.reshape(self.channels, nseg, groups * self._lanes)
-        scaled = flat[:, :, : self.filters] * self._gain[: self.filters] ** 2
-        result = np.empty((nseg, self.filters, self.channels))
-        result[:, self._order, :] = scaled.transpose(1, 2, 0)
-        return result, (out.T if want else None)
+
+            def run(c: int) -> None:
+                xc = np.ascontiguousarray(x[:, c])
+                self._kernel(xc, self._co, self._z[c], bounds, sums[c], out[c], self._gain0)
+
+            if n >= _THREAD_MIN_FRAMES:
+                list(_pool().map(run, range(self.channels)))
+            else:
+                for c in range(self.channels):
+                    run(c)
+        # (channels, segments, slots) -> (segments, filters, channels), scaled.
+        flat = sums.reshape(self.channels, nseg, -1)[:, :, self._slot_of_filter]
+        result = (flat * self._gain_sq).transpose(1, 2, 0)
+        return result, (out.T if self.output_index is not None else None)
