@@ -41,6 +41,8 @@ COMMAND_MODULES = (
     "frontend",
     "check",
     "report",
+    "batch",
+    "limits",
 )
 
 app = typer.Typer(

@@ -1,0 +1,424 @@
+"""Metric extractors: the batch's glue to piezo's analyses.
+
+Each extractor takes a :class:`~piezo.batch.runner.CaptureAnalysis` (one capture, whole,
+in volts at the sensor) and a :class:`~piezo.batch.spec.MetricSpec`, runs the analysis
+it needs through :meth:`CaptureAnalysis.cached` (so the swept response that feeds five
+metrics is computed once per capture) and returns a
+:class:`~piezo.batch.verdict.MetricValue`. No analysis is implemented here: the numbers
+come from :mod:`piezo.response` and :mod:`piezo.fit` (swept sine), :mod:`piezo.tone`
+(test tones), :mod:`piezo.diagnostics` (clipping), :mod:`piezo.weighting` and
+:mod:`piezo.stats` (noise levels) and :mod:`piezo.bands` (band levels).
+
+A metric that cannot be determined returns ``MetricValue(None, reason=...)``, which the
+verdict turns into "not evaluable", never into a pass.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from typing import Any
+
+import numpy as np
+
+from piezo.batch.runner import CaptureAnalysis
+from piezo.batch.spec import MetricSpec
+from piezo.batch.verdict import MetricValue
+from piezo.errors import InputError
+
+__all__ = ["EXTRACTORS", "report_data", "sweep_stimulus"]
+
+#: dB re 20 µPa of 1 Pa: 20 lg(1 / 20e-6) (ISO 1683 reference pressure in air).
+_DB_RE_20UPA_OF_1PA = 20.0 * math.log10(1.0 / 20e-6)
+
+
+def _db(ratio: float) -> float:
+    return 20.0 * math.log10(ratio) if ratio > 0 else -math.inf
+
+
+# ---------------------------------------------------------------------------------------
+# Swept sine: piezo.sweep, piezo.response, piezo.fit.
+
+
+def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
+    """The :class:`piezo.sweep.SweepSpec` of the spec's sweep at the capture's rate."""
+    from piezo.sweep import SweepSpec, stimulus_from_toml, sweep_spec
+
+    if params.get("file_data") is not None:
+        stim = stimulus_from_toml(params["file_data"], source=params.get("file"))
+        if not isinstance(stim, SweepSpec):
+            raise InputError(f"{params.get('file')}: not an exponential sine sweep")
+        if not math.isclose(stim.sample_rate_hz, sample_rate_hz, rel_tol=1e-9):
+            raise InputError(
+                f"the capture's sample rate ({sample_rate_hz:g} Hz) differs from the "
+                f"stimulus's ({stim.sample_rate_hz:g} Hz)"
+            )
+        return stim
+    return sweep_spec(
+        params["start_hz"],
+        params["stop_hz"],
+        params["duration_s"],
+        sample_rate_hz,
+        fade_in_s=params.get("fade_in_s"),
+        fade_out_s=params.get("fade_out_s"),
+        silence_before_s=params.get("silence_before_s", 0.0),
+        silence_after_s=params.get("silence_after_s", 0.0),
+    )
+
+
+def _sweep_response(a: CaptureAnalysis) -> Any:
+    from piezo.response import analyze_sweep
+
+    def compute() -> Any:
+        cap = a.capture
+        stim = sweep_stimulus(a.spec.stimulus.params, cap.sample_rate_hz)
+        return analyze_sweep(
+            cap.samples,
+            stim,
+            cap.sample_rate_hz,
+            unit="V",
+            acoustic_level_pa=a.spec.stimulus.level_pa,
+        )
+
+    return a.cached("sweep_response", compute)
+
+
+def _reference_hz(a: CaptureAnalysis) -> float:
+    for m in a.spec.metrics:
+        if m.kind == "sensitivity":
+            return float(m.params["reference_hz"])
+    return 1000.0
+
+
+def _response_fit(a: CaptureAnalysis) -> Any:
+    from piezo.fit import fit_response
+
+    def compute() -> Any:
+        r = _sweep_response(a)
+        return fit_response(
+            r.frequency_hz,
+            r.magnitude_db,
+            reference_hz=_reference_hz(a),
+            magnitude_unit=r.magnitude_unit,
+        )
+
+    return a.cached("response_fit", compute)
+
+
+def _response_at(a: CaptureAnalysis, frequency_hz: float) -> float:
+    from piezo.fit import sensitivity_at
+
+    r = _sweep_response(a)
+    return sensitivity_at(r.frequency_hz, r.magnitude_db, reference_hz=frequency_hz)
+
+
+def _sweep_sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_response_at(a, float(m.params["reference_hz"])))
+
+
+def _corner(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    fit = _response_fit(a)
+    r = _sweep_response(a)
+    low = float(r.frequency_hz[0])
+    if fit.highpass is None:
+        return MetricValue(
+            None, reason=f"no low-frequency roll-off measured: corner below {low:.3g} Hz"
+        )
+    if not fit.highpass.in_band:
+        return MetricValue(
+            None,
+            reason=f"corner {fit.highpass.corner_hz:.3g} Hz is outside the measured band "
+            f"({low:.3g}-{float(r.frequency_hz[-1]):.3g} Hz): an extrapolation",
+        )
+    return MetricValue(fit.highpass.corner_hz, detail=f"order {fit.highpass.order}")
+
+
+def _resonance(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    fit = _response_fit(a)
+    if fit.resonance is None:
+        return MetricValue(None, reason="no resonance peak inside the measured band")
+    res = fit.resonance
+    return MetricValue(res.frequency_hz, detail=f"Q {res.q:.3g}, peak +{res.peak_db:.3g} dB")
+
+
+def _sweep_thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    f = float(m.params["frequency_hz"])
+    value = _sweep_response(a).thd_percent_at([f])[f]
+    if not math.isfinite(value):
+        return MetricValue(None, reason=f"distortion not measurable at {f:g} Hz")
+    return MetricValue(value)
+
+
+def _relative_offset(a: CaptureAnalysis, m: MetricSpec) -> float:
+    f = m.params.get("relative_to_hz")
+    return 0.0 if f is None else _response_at(a, float(f))
+
+
+def _response_mask(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    freqs = [float(f) for f in m.params["frequency_hz"]]
+    offset = _relative_offset(a, m)
+    curve = [_response_at(a, f) - offset for f in freqs]
+    return _mask_value(m, freqs, curve, "Hz")
+
+
+def _mask_value(m: MetricSpec, freqs: list[float], curve: list[float], unit: str) -> MetricValue:
+    """Worst margin of ``curve`` inside the mask (negative: outside), and where."""
+    margins: list[tuple[float, float, str]] = []
+    lower, upper = m.params.get("lower_db"), m.params.get("upper_db")
+    for i, (f, v) in enumerate(zip(freqs, curve, strict=True)):
+        if lower is not None:
+            margins.append((v - lower[i], f, "below"))
+        if upper is not None:
+            margins.append((upper[i] - v, f, "above"))
+    if not margins:
+        return MetricValue(None, reason="the mask has no lower_db or upper_db", curve=tuple(curve))
+    margin, f, side = min(margins)
+    detail = f"{side} the mask at {f:g} {unit}" if margin < 0 else f"closest at {f:g} {unit}"
+    return MetricValue(margin, detail=detail, curve=tuple(curve))
+
+
+def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    from piezo.fit import deviation_from_golden
+
+    r = _sweep_response(a)
+    golden = m.params["golden_data"]
+    dev = deviation_from_golden(
+        r.frequency_hz,
+        r.magnitude_db,
+        np.asarray(golden["frequency_hz"]),
+        np.asarray(golden["magnitude_db"]),
+        align_at_hz=m.params.get("relative_to_hz"),
+    )
+    f = np.asarray(dev.frequency_hz)
+    d = np.asarray(dev.deviation_db)
+    band = m.params.get("band_hz")
+    if band is not None:
+        keep = (f >= band[0]) & (f <= band[1])
+        f, d = f[keep], d[keep]
+    if f.size == 0:
+        return MetricValue(None, reason="no golden frequency inside band_hz and the measurement")
+    worst = int(np.argmax(np.abs(d)))
+    return MetricValue(float(abs(d[worst])), detail=f"{d[worst]:+.3g} dB at {f[worst]:g} Hz")
+
+
+# ---------------------------------------------------------------------------------------
+# Clipping: piezo.diagnostics.
+
+
+def _diagnostics(a: CaptureAnalysis) -> Any:
+    from piezo.diagnostics import check_capture
+
+    def compute() -> Any:
+        cap = a.capture
+        result = check_capture(
+            cap.samples, cap.sample_rate_hz, full_scale=cap.clip_level_v, unit="V"
+        )
+        return result.channels[0]
+
+    return a.cached("diagnostics", compute)
+
+
+def _clipping(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    clip = _diagnostics(a).clipping
+    detail = f"{clip.clipped_samples} samples in {clip.events} event(s)"
+    return MetricValue(float(clip.clipped_fraction), detail=detail)
+
+
+# ---------------------------------------------------------------------------------------
+# Noise in the quiet part: piezo.weighting, piezo.stats.
+
+
+def _quiet_segment(a: CaptureAnalysis, m: MetricSpec) -> np.ndarray:
+    """Samples of the quiet part: segment_s, or the stimulus's lead-in less 10 %.
+
+    The last tenth of the lead-in is left out so the stimulus's first samples (and the
+    acoustic delay's uncertainty) do not count as noise.
+    """
+    cap = a.capture
+    fs = cap.sample_rate_hz
+    seg = m.params.get("segment_s")
+    if seg is None:
+        seg = (0.0, 0.9 * float(a.spec.stimulus.params["silence_before_s"]))
+    start, stop = round(seg[0] * fs), round(seg[1] * fs)
+    if stop > cap.samples.size or stop - start < 16:
+        raise InputError(
+            f"quiet segment {seg[0]:g}-{seg[1]:g} s does not fit the capture "
+            f"({cap.samples.size / fs:.3g} s)"
+        )
+    return cap.samples[start:stop]
+
+
+def _weighted_rms(a: CaptureAnalysis, m: MetricSpec) -> float:
+    from piezo.stats import SignalStats
+
+    x = _quiet_segment(a, m)
+    weighting = m.params.get("weighting", "Z")
+    if weighting != "Z":
+        from piezo.weighting import FrequencyWeighting
+
+        x = FrequencyWeighting(a.capture.sample_rate_hz, 1, weighting=weighting).update(
+            x[:, None]
+        )[:, 0]
+    stats = SignalStats(1)
+    stats.update((x - np.mean(x))[:, None])
+    return float(stats.rms[0])
+
+
+def _noise_floor(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    rms = _weighted_rms(a, m)
+    if rms <= 0:
+        return MetricValue(None, reason="the quiet segment is digital silence")
+    return MetricValue(_db(rms), detail=f"{m.params.get('weighting', 'Z')}-weighted")
+
+
+def _self_noise(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    rms = _weighted_rms(a, m)
+    if rms <= 0:
+        return MetricValue(None, reason="the quiet segment is digital silence")
+    sens = _SENSITIVITY[a.spec.stimulus.kind](a, m).value
+    if sens is None:
+        return MetricValue(None, reason="sensitivity not measurable")
+    return MetricValue(_db(rms) - sens + _DB_RE_20UPA_OF_1PA)
+
+
+# ---------------------------------------------------------------------------------------
+# Test tones: piezo.tone.
+
+
+def _tone(a: CaptureAnalysis) -> Any:
+    from piezo.tone import measure_tone
+
+    def compute() -> Any:
+        cap = a.capture
+        params = a.spec.stimulus.params
+        start = round(float(params.get("silence_before_s", 0.0)) * cap.sample_rate_hz)
+        x = cap.samples[start:]
+        if x.size < 16:
+            raise InputError("no tone after the quiet lead-in: the capture is too short")
+        # The strongest line is taken (no expected frequency): it must then be the
+        # stimulus, see _checked_tone.
+        return measure_tone(x, cap.sample_rate_hz)
+
+    return a.cached("tone", compute)
+
+
+def _checked_tone(a: CaptureAnalysis) -> Any:
+    """The tone result, refusing a capture whose strongest tone is not the stimulus.
+
+    The strongest line more than 2 % from the stimulus frequency (three times a class 1
+    calibrator's ±0.7 % tolerance, IEC 60942) means that another tone, hum or noise
+    dominates the capture, or that no tone was captured (our rule).
+    """
+    tone = _tone(a)
+    expected = float(a.spec.stimulus.params["frequency_hz"])
+    if not tone.tone_rms > 0 or abs(tone.frequency_hz / expected - 1.0) > 0.02:
+        raise InputError(
+            f"no {expected:g} Hz tone found (strongest tone at {tone.frequency_hz:.5g} Hz)"
+        )
+    return tone
+
+
+def _tone_sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    level_pa = a.spec.stimulus.level_pa
+    return MetricValue(_db(_checked_tone(a).tone_rms / level_pa))
+
+
+def _tone_thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_checked_tone(a).thd_percent)
+
+
+def _thd_n(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_checked_tone(a).thd_n_percent)
+
+
+def _tone_frequency(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return MetricValue(_checked_tone(a).frequency_hz)
+
+
+# ---------------------------------------------------------------------------------------
+# Band levels: piezo.bands.
+
+
+def _band_mask(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    from piezo.bands import band_levels
+
+    fraction = int(m.params["fraction"])
+    freqs = [float(f) for f in m.params["frequency_hz"]]
+
+    def compute() -> Any:
+        cap = a.capture
+        start = round(
+            float(a.spec.stimulus.params.get("silence_before_s", 0.0)) * cap.sample_rate_hz
+        )
+        if cap.samples.size - start < 16:
+            raise InputError("nothing after the quiet lead-in: the capture is too short")
+        return band_levels(
+            cap.samples[start:],
+            cap.sample_rate_hz,
+            fraction=fraction,
+            low_hz=min(freqs),
+            high_hz=max(freqs),
+        )
+
+    result = a.cached(("bands", fraction, min(freqs), max(freqs)), compute)
+    nominal = result.nominal_hz
+    levels = result.level_db(1.0)[:, 0]
+    curve = []
+    for f in freqs:
+        i = int(np.argmin(np.abs(np.log(nominal / f))))
+        # A mask frequency names a band: within a quarter band of its mid-band.
+        if abs(math.log2(nominal[i] / f)) > 1.0 / (4 * fraction):
+            raise InputError(f"no 1/{fraction}-octave band at {f:g} Hz in the analysis")
+        curve.append(float(levels[i]))
+    return _mask_value(m, freqs, curve, "Hz")
+
+
+_SENSITIVITY: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
+    "sweep": _sweep_sensitivity,
+    "tone": _tone_sensitivity,
+}
+
+
+def _sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return _SENSITIVITY[a.spec.stimulus.kind](a, m)
+
+
+def _thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    return _THD[a.spec.stimulus.kind](a, m)
+
+
+_THD: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
+    "sweep": _sweep_thd,
+    "tone": _tone_thd,
+}
+
+#: Metric kind -> extractor.
+EXTRACTORS: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
+    "sensitivity": _sensitivity,
+    "corner": _corner,
+    "resonance": _resonance,
+    "thd": _thd,
+    "response_mask": _response_mask,
+    "golden_deviation": _golden_deviation,
+    "clipping": _clipping,
+    "noise_floor": _noise_floor,
+    "self_noise": _self_noise,
+    "thd_n": _thd_n,
+    "tone_frequency": _tone_frequency,
+    "band_mask": _band_mask,
+}
+
+
+def report_data(a: CaptureAnalysis) -> dict[str, Any]:
+    """Curves for a capture's report, from the analyses already run (nothing is
+    computed again): the swept response on a 1/12-octave grid when there is one."""
+    out: dict[str, Any] = {}
+    found, response = a.peek("sweep_response")
+    if found:
+        table = response.to_table(points_per_octave=12)
+        out["response"] = {
+            "frequency_hz": [float(v) for v in table.frequency_hz],
+            "magnitude_db": [float(v) for v in table.magnitude_db],
+            "unit": table.magnitude_unit,
+        }
+    return out

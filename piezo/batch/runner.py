@@ -1,0 +1,587 @@
+"""Batch runner: expands inputs, judges every capture, in parallel, deterministically.
+
+The unit of work is :func:`evaluate_capture`, a pure function of a capture file and a
+spec returning one result row (a plain dict); it never raises for a bad capture, it
+returns an error row instead. :func:`run_batch` maps it over many captures with a local
+process pool or on a Dask distributed cluster and returns the rows sorted by file name,
+so the results do not depend on the worker count or the order of completion.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import contextlib
+import functools
+import glob
+import hashlib
+import multiprocessing
+import os
+import re
+import traceback
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from piezo.batch.spec import METRIC_KINDS, MetricSpec, Spec
+from piezo.batch.verdict import MetricValue, judge
+from piezo.errors import InputError, PiezoError
+
+__all__ = [
+    "CAPTURE_SUFFIXES",
+    "Capture",
+    "CaptureAnalysis",
+    "content_sha256",
+    "error_row",
+    "evaluate_capture",
+    "expand_inputs",
+    "load_capture",
+    "run_batch",
+]
+
+#: File name endings taken as captures when a directory is expanded (case-insensitive).
+CAPTURE_SUFFIXES = (".wav", ".flac", ".ogg", ".aif", ".aiff", ".w64", ".rf64", ".caf", ".csv")
+
+_GLOB_CHARS = re.compile(r"[*?\[]")
+
+#: Seconds to wait for a Dask scheduler before giving up on ``--cluster``.
+CLUSTER_CONNECT_TIMEOUT_S = 20
+
+
+def expand_inputs(inputs: Iterable[str]) -> list[str]:
+    """Expand files, directories (recursively) and glob patterns into a sorted file list.
+
+    Files named explicitly are taken whatever their ending; inside directories only files
+    ending in one of :data:`CAPTURE_SUFFIXES` are taken (hidden files and folders are
+    skipped). Glob patterns are expanded with ``**`` matching any depth. Duplicates are
+    removed; the result is sorted by path text, so it does not depend on the file
+    system's listing order.
+
+    Raises
+    ------
+    InputError
+        If an input neither exists nor matches any file, or nothing is found at all.
+    """
+    found: set[str] = set()
+    for item in inputs:
+        p = Path(item)
+        if p.is_dir():
+            found.update(_walk(p))
+        elif p.is_file():
+            found.add(str(p))
+        elif _GLOB_CHARS.search(item):
+            matches = sorted(glob.glob(item, recursive=True))
+            files = [m for m in matches if Path(m).is_file()]
+            for m in matches:
+                if Path(m).is_dir():
+                    files.extend(_walk(Path(m)))
+            if not files:
+                raise InputError(f"INPUT: pattern {item!r} matches no file")
+            found.update(files)
+        else:
+            raise InputError(f"INPUT: {item!r} is neither a file, a directory nor a pattern")
+    if not found:
+        raise InputError(
+            "INPUT: no capture files found (directories are searched for "
+            + ", ".join(CAPTURE_SUFFIXES)
+            + ")"
+        )
+    return sorted(found)
+
+
+def _walk(folder: Path) -> Iterator[str]:
+    for root, dirs, files in os.walk(folder):
+        dirs[:] = sorted(d for d in dirs if not d.startswith("."))
+        for name in files:
+            if not name.startswith(".") and name.lower().endswith(CAPTURE_SUFFIXES):
+                yield str(Path(root) / name)
+
+
+def content_sha256(path: str | Path) -> str:
+    """SHA-256 of the file's bytes (hex)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(functools.partial(fh.read, 1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+@dataclass
+class Capture:
+    """One capture, whole, in volts at the sensor's output.
+
+    ``samples`` has shape (frames,): the spec's channel, calibrated by the spec's full
+    scale and divided by the front-end gain. ``clip_level_v`` is the ADC full scale
+    expressed in the same volts, for clipping checks.
+    """
+
+    path: str
+    sample_rate_hz: float
+    samples: np.ndarray
+    clip_level_v: float
+
+
+def path_is_csv(path: str) -> bool:
+    """True for text exports (read as volts at the ADC input, rate from capture.rate_hz)."""
+    from piezo.io import CSV_SUFFIXES
+
+    return Path(path).suffix.lower() in CSV_SUFFIXES
+
+
+def load_capture(path: str, spec: Spec) -> Capture:
+    """Read ``path`` whole with piezo's reader and calibrate it by the spec's chain."""
+    from piezo.chain import CalibratedSource, Chain
+    from piezo.io import open_recording
+
+    recording = open_recording(path, rate_hz=spec.rate_hz if path_is_csv(path) else None)
+    if spec.channel >= recording.channels:
+        raise InputError(
+            f"capture.channel = {spec.channel} but the capture has "
+            f"{recording.channels} channel(s)",
+            source=path,
+        )
+    chain = Chain(full_scale_v=spec.full_scale_v, gain=spec.gain)
+    source = CalibratedSource.of(recording, chain, [spec.channel])
+    blocks = [b[:, 0] for b in source.blocks()]
+    samples = np.concatenate(blocks) if blocks else np.zeros(0)
+    if samples.size == 0:
+        raise PiezoError("capture is empty", source=path)
+    return Capture(path, float(source.sample_rate_hz), samples, spec.full_scale_v / spec.gain)
+
+
+@dataclass
+class CaptureAnalysis:
+    """A capture and the analyses already run on it, shared by the metric extractors.
+
+    Extractors call :meth:`cached` so an analysis that feeds several metrics (the swept
+    response feeds sensitivity, corner, resonance and masks) runs once per capture.
+    """
+
+    capture: Capture
+    spec: Spec
+    _cache: dict[Any, Any] = field(default_factory=dict)
+
+    def cached(self, key: Any, compute: Callable[[], Any]) -> Any:
+        """Return the value stored under ``key``, computing it on first use.
+
+        An exception raised by ``compute`` is stored too and raised again on every call,
+        so a failing analysis is tried once per capture.
+        """
+        if key not in self._cache:
+            try:
+                self._cache[key] = (True, compute())
+            except Exception as exc:  # re-raised below, for each caller
+                self._cache[key] = (False, exc)
+        ok, value = self._cache[key]
+        if not ok:
+            raise value
+        return value
+
+    def peek(self, key: Any) -> tuple[bool, Any]:
+        """``(True, value)`` if the analysis under ``key`` ran and succeeded, else
+        ``(False, None)``; never computes anything."""
+        ok, value = self._cache.get(key, (False, None))
+        return (True, value) if ok else (False, None)
+
+
+#: An extractor computes one metric kind: (analysis, metric) -> MetricValue.
+Extractor = Callable[[CaptureAnalysis, MetricSpec], MetricValue]
+Loader = Callable[[str, Spec], Capture]
+
+
+def _default_extractors() -> Mapping[str, Extractor]:
+    from piezo.batch.metrics import EXTRACTORS
+
+    return EXTRACTORS
+
+
+def error_row(display: str, spec: Spec, message: str, content: str = "") -> dict[str, Any]:
+    """A result row for a capture that could not be used at all."""
+    verdict = judge(spec.metrics, {}, error=message)
+    return {
+        "file": display,
+        "serial": _serial(spec, display) or "",
+        "verdict": verdict.verdict,
+        "metrics": {m.name: None for m in spec.metrics},
+        "failed_limits": [],
+        "warnings": [],
+        "not_evaluable": list(verdict.not_evaluable),
+        "error": message,
+        "content_sha256": content,
+        "spec_sha256": spec.sha256,
+    }
+
+
+def _serial(spec: Spec, display: str) -> str | None:
+    return spec.serial_from_name(display)
+
+
+def evaluate_capture(
+    path: str,
+    spec: Spec,
+    *,
+    display: str | None = None,
+    loader: Loader | None = None,
+    extractors: Mapping[str, Extractor] | None = None,
+    with_curves: bool = False,
+    with_report: bool = False,
+) -> dict[str, Any]:
+    """Judge one capture against ``spec`` and return its result row.
+
+    Pure apart from reading ``path``: no printing, no writing. Never raises for a bad
+    capture: an unreadable file gives a row with verdict "not evaluable" and ``error``
+    set; a metric whose analysis fails is "not evaluable" with the analysis's message.
+
+    Parameters
+    ----------
+    path
+        Capture file to read (absolute for cluster workers).
+    spec
+        Validated limit spec.
+    display
+        File name written into the row (default ``path``).
+    loader, extractors
+        Capture reader and metric extractors (kind -> function); the defaults are
+        :func:`load_capture` and :data:`piezo.batch.metrics.EXTRACTORS`. Tests inject
+        their own.
+    with_curves
+        Add ``curves`` (mask name -> measured values at the mask frequencies, or None)
+        to the row; used to derive masks from golden units.
+    with_report
+        Add ``_report`` (curves for the capture's report, see
+        :func:`piezo.batch.metrics.report_data`); the caller removes it before storing
+        the row.
+
+    Returns
+    -------
+    dict
+        Keys ``file, serial, verdict, metrics (name -> float or None), failed_limits,
+        warnings, not_evaluable, error, content_sha256, spec_sha256``.
+    """
+    display = path if display is None else display
+    loader = load_capture if loader is None else loader
+    extractors = _default_extractors() if extractors is None else extractors
+    try:
+        content = content_sha256(path)
+    except OSError as exc:
+        return error_row(display, spec, f"cannot read file: {exc.strerror or exc}")
+    serial = _serial(spec, display)
+    if spec.serial_required and not serial:
+        return error_row(
+            display,
+            spec,
+            f"no serial number in the file name (spec.serial_pattern {spec.serial_pattern!r})",
+            content,
+        )
+    try:
+        capture = loader(path, spec)
+    except PiezoError as exc:
+        return error_row(display, spec, f"unreadable capture: {exc.message}", content)
+    except Exception as exc:  # one bad capture must not stop a lot
+        return error_row(display, spec, f"unreadable capture: {_describe(exc)}", content)
+    analysis = CaptureAnalysis(capture, spec)
+    values: dict[str, MetricValue] = {}
+    for metric in spec.metrics:
+        values[metric.name] = _extract(extractors, analysis, metric)
+    verdict = judge(spec.metrics, values)
+    row = {
+        "file": display,
+        "serial": serial or "",
+        "verdict": verdict.verdict,
+        "metrics": {
+            name: (float(v.value) if v.evaluable else None)  # type: ignore[arg-type]
+            for name, v in values.items()
+        },
+        "failed_limits": list(verdict.failed),
+        "warnings": list(verdict.warnings),
+        "not_evaluable": list(verdict.not_evaluable),
+        "error": None,
+        "content_sha256": content,
+        "spec_sha256": spec.sha256,
+    }
+    if with_curves:
+        row["curves"] = {
+            name: (list(v.curve) if v.curve is not None else None)
+            for name, v in values.items()
+            if METRIC_KINDS[_kind(spec, name)].mask
+        }
+    if with_report:
+        from piezo.batch.metrics import report_data
+
+        try:
+            row["_report"] = report_data(analysis)
+        except Exception as exc:  # a report is an extra: never lose the verdict for it
+            row["_report"] = {"error": _describe(exc)}
+    return row
+
+
+def _kind(spec: Spec, name: str) -> str:
+    return next(m.kind for m in spec.metrics if m.name == name)
+
+
+def _describe(exc: BaseException) -> str:
+    text = str(exc) or type(exc).__name__
+    return f"{type(exc).__name__}: {text}" if not isinstance(exc, PiezoError) else text
+
+
+def _extract(
+    extractors: Mapping[str, Extractor], analysis: CaptureAnalysis, metric: MetricSpec
+) -> MetricValue:
+    fn = extractors.get(metric.kind)
+    if fn is None:
+        return MetricValue(None, reason=f"no extractor for metric kind {metric.kind!r}")
+    try:
+        result = fn(analysis, metric)
+    except PiezoError as exc:
+        return MetricValue(None, reason=exc.message)
+    except Exception as exc:  # reported as not evaluable, never as pass
+        where = traceback.extract_tb(exc.__traceback__)[-1]
+        return MetricValue(
+            None,
+            reason=f"analysis failed: {_describe(exc)} ({Path(where.filename).name}:"
+            f"{where.lineno})",
+        )
+    if not isinstance(result, MetricValue):
+        return MetricValue(None, reason=f"extractor returned {type(result).__name__}")
+    return result
+
+
+# ---------------------------------------------------------------------------------------
+# Running many captures.
+
+Job = Callable[..., dict[str, Any]]
+RowCallback = Callable[[dict[str, Any], bool], None]
+
+
+def previous_index(rows: Iterable[Mapping[str, Any]]) -> dict[tuple[str, str], dict[str, Any]]:
+    """Index earlier rows by (content hash, spec hash) for ``--resume``.
+
+    Error rows are not indexed: a capture that could not be read is tried again.
+    """
+    index: dict[tuple[str, str], dict[str, Any]] = {}
+    for row in rows:
+        content, spec_hash = row.get("content_sha256"), row.get("spec_sha256")
+        if content and spec_hash and not row.get("error"):
+            index[(str(content), str(spec_hash))] = dict(row)
+    return index
+
+
+def run_batch(
+    paths: Sequence[str],
+    spec: Spec,
+    *,
+    workers: int | None = None,
+    cluster: Any = None,
+    previous: Mapping[tuple[str, str], Mapping[str, Any]] | None = None,
+    on_row: RowCallback | None = None,
+    job: Job | None = None,
+) -> list[dict[str, Any]]:
+    """Judge every capture of ``paths`` and return the rows sorted by file.
+
+    Parameters
+    ----------
+    paths
+        Capture files (see :func:`expand_inputs`). Written into the rows as given.
+    spec
+        Validated limit spec.
+    workers
+        Local worker processes (default: all cores). 1 runs in this process.
+    cluster
+        A Dask distributed scheduler address (``"tcp://host:8786"``) or a
+        ``distributed.Client``. Workers read the captures themselves, by absolute path,
+        so the files must be on storage every worker sees at the same path.
+    previous
+        Earlier rows indexed by :func:`previous_index`; a capture whose content hash and
+        spec hash match is not analysed again (its row is reused, with the file and
+        serial of the current name).
+    on_row
+        Called in this process as ``on_row(row, reused)`` for each finished capture, in
+        completion order (progress bars, journals).
+    job
+        ``job(path, display=...) -> row``; default :func:`evaluate_capture` bound to
+        ``spec``. Must be picklable for process pools and clusters.
+    """
+    job = functools.partial(evaluate_capture, spec=spec) if job is None else job
+    callback = on_row if on_row is not None else (lambda row, reused: None)
+    rows: list[dict[str, Any]] = []
+    todo: list[str] = []
+    spec_hash = spec.sha256
+    for path in paths:
+        if previous:
+            try:
+                content = content_sha256(path)
+            except OSError:
+                content = ""
+            old = previous.get((content, spec_hash))
+            if old is not None:
+                row = dict(old)
+                row["file"] = path
+                row["serial"] = _serial(spec, path) or ""
+                rows.append(row)
+                callback(row, True)
+                continue
+        todo.append(path)
+
+    def finished(row: dict[str, Any]) -> None:
+        rows.append(row)
+        callback(row, False)
+
+    if cluster is not None:
+        _run_dask(todo, job, cluster, finished, spec)
+    else:
+        n = (os.cpu_count() or 1) if workers is None else workers
+        if n < 1:
+            raise InputError(f"--workers: must be at least 1, got {workers}")
+        if n == 1 or len(todo) <= 1:
+            for path in todo:
+                finished(job(path, display=path))
+        else:
+            _run_pool(todo, job, min(n, len(todo)), finished, spec)
+    rows.sort(key=lambda r: r["file"])
+    return rows
+
+
+def _run_pool(
+    paths: Sequence[str],
+    job: Job,
+    workers: int,
+    finished: Callable[[dict[str, Any]], None],
+    spec: Spec,
+) -> None:
+    """Run on a local process pool, at most 4 jobs per worker in flight.
+
+    A worker process that dies (a crash in a decoder library, the out-of-memory killer)
+    breaks the pool; the captures that were in flight are then run again one at a time
+    in a fresh pool, and the one that kills its worker again becomes an error row.
+    """
+    context = multiprocessing.get_context("spawn")
+    with _one_thread_per_worker():
+        _pool_loop(paths, job, workers, finished, spec, context)
+
+
+#: Thread-count variables of the numeric libraries numpy and scipy may be built with.
+_THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@contextlib.contextmanager
+def _one_thread_per_worker() -> Iterator[None]:
+    """Let spawned workers use one BLAS/OpenMP thread each (unless the user set a count).
+
+    N worker processes each running N library threads would oversubscribe the cores;
+    the variables are read when a worker imports numpy, so they are set while the pool
+    lives and restored afterwards.
+    """
+    saved = {name: os.environ.get(name) for name in _THREAD_VARIABLES}
+    for name, value in saved.items():
+        if value is None:
+            os.environ[name] = "1"
+    try:
+        yield
+    finally:
+        for name, value in saved.items():
+            if value is None:
+                os.environ.pop(name, None)
+
+
+def _pool_loop(
+    paths: Sequence[str],
+    job: Job,
+    workers: int,
+    finished: Callable[[dict[str, Any]], None],
+    spec: Spec,
+    context: Any,
+) -> None:
+    queue = list(reversed(paths))
+    suspects: list[str] = []
+    window = workers * 4
+    while queue or suspects:
+        isolate = bool(suspects)
+        pending = suspects if isolate else queue
+        with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+            inflight: dict[cf.Future[dict[str, Any]], str] = {}
+            broken = False
+            while pending or inflight:
+                limit = 1 if isolate else window
+                while pending and len(inflight) < limit and not broken:
+                    path = pending.pop()
+                    inflight[pool.submit(job, path, display=path)] = path
+                if not inflight:
+                    break
+                done, _ = cf.wait(inflight, return_when=cf.FIRST_COMPLETED)
+                for fut in done:
+                    path = inflight.pop(fut)
+                    try:
+                        finished(fut.result())
+                    except BrokenProcessPool:
+                        broken = True
+                        if isolate:
+                            finished(
+                                error_row(
+                                    path, spec, "the worker process died reading this capture"
+                                )
+                            )
+                        else:
+                            suspects.append(path)
+                    except Exception as exc:  # pickling or similar
+                        finished(error_row(path, spec, f"worker error: {_describe(exc)}"))
+                if broken:
+                    for path in inflight.values():
+                        if isolate:
+                            pending.append(path)
+                        else:
+                            suspects.append(path)
+                    inflight.clear()
+                    break
+            if not broken and isolate:
+                suspects.clear()
+
+
+def _run_dask(
+    paths: Sequence[str],
+    job: Job,
+    cluster: Any,
+    finished: Callable[[dict[str, Any]], None],
+    spec: Spec,
+) -> None:
+    """Run on a Dask distributed cluster, bounded number of tasks in flight."""
+    try:
+        from distributed import Client, as_completed
+    except ImportError:
+        raise InputError(
+            "--cluster needs the optional package 'distributed' (pip install 'piezo[cluster]')"
+        ) from None
+    own = not hasattr(cluster, "submit")
+    try:
+        client = Client(cluster, timeout=f"{CLUSTER_CONNECT_TIMEOUT_S}s") if own else cluster
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise InputError(f"--cluster: cannot connect to {cluster!r}: {exc}") from None
+    try:
+        workers = max(1, sum(client.nthreads().values()))
+        window = workers * 4
+        queue = list(reversed(paths))
+        names: dict[Any, str] = {}
+        seq = as_completed()
+
+        def submit() -> None:
+            path = queue.pop()
+            fut = client.submit(job, str(Path(path).resolve()), display=path, pure=False)
+            names[fut] = path
+            seq.add(fut)
+
+        while queue and len(names) < window:
+            submit()
+        for fut in seq:
+            path = names.pop(fut)
+            try:
+                finished(fut.result())
+            except Exception as exc:  # a lost worker, a pickling problem
+                finished(error_row(path, spec, f"cluster task failed: {_describe(exc)}"))
+            fut.release()
+            if queue:
+                submit()
+    finally:
+        if own:
+            client.close()

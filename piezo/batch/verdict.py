@@ -1,0 +1,149 @@
+"""Verdict of one capture against a limit spec (pure logic, no I/O).
+
+Rules
+-----
+- A limit is met when ``lower <= value <= upper`` (limits are inclusive).
+- A metric whose value is missing or not finite is *not evaluable*, with the reason the
+  extractor gave (missing stimulus, undeterminable corner ...). It is never a pass.
+- Verdict of the capture, in order of precedence:
+
+  1. ``fail``: some limit of severity "fail" is violated (a unit that is known to be bad
+     is reported bad even when another metric could not be evaluated);
+  2. ``not evaluable``: the capture could not be read, its serial number is missing where
+     the spec requires one, or some metric could not be evaluated;
+  3. ``warn``: only limits of severity "warn" are violated;
+  4. ``pass``: every limit of every metric is met.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+from piezo.batch.spec import MetricSpec
+
+__all__ = [
+    "FAIL",
+    "NOT_EVALUABLE",
+    "PASS",
+    "VERDICTS",
+    "WARN",
+    "MetricValue",
+    "Verdict",
+    "judge",
+]
+
+PASS = "pass"
+WARN = "warn"
+FAIL = "fail"
+NOT_EVALUABLE = "not evaluable"
+#: All verdicts, best first.
+VERDICTS = (PASS, WARN, FAIL, NOT_EVALUABLE)
+
+
+@dataclass(frozen=True)
+class MetricValue:
+    """What an extractor found for one metric on one capture.
+
+    Parameters
+    ----------
+    value
+        The metric in the unit of its kind, or None when it cannot be evaluated.
+    reason
+        Why the value is None (shown to the user), e.g. "no corner inside the sweep range".
+    detail
+        Optional context for a limit message, e.g. "worst at 8000 Hz".
+    curve
+        For masks: the measured values at the mask's frequencies (dB), used when limits
+        are derived from golden units.
+    """
+
+    value: float | None
+    reason: str | None = None
+    detail: str | None = None
+    curve: tuple[float, ...] | None = None
+
+    @property
+    def evaluable(self) -> bool:
+        return self.value is not None and math.isfinite(self.value)
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """Outcome for one capture.
+
+    ``failed``, ``warnings`` and ``not_evaluable`` are messages naming the metric, the
+    value and the limit, in spec order.
+    """
+
+    verdict: str
+    failed: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = ()
+    not_evaluable: tuple[str, ...] = ()
+
+
+def _fmt(value: float) -> str:
+    return f"{value:.6g}"
+
+
+def judge(
+    metrics: Sequence[MetricSpec],
+    values: Mapping[str, MetricValue],
+    *,
+    error: str | None = None,
+) -> Verdict:
+    """Judge one capture.
+
+    Parameters
+    ----------
+    metrics
+        The spec's metrics (each with its limits).
+    values
+        Metric name -> :class:`MetricValue`. A metric missing from the mapping is not
+        evaluable.
+    error
+        When set, the capture itself could not be used (unreadable file, missing serial
+        number); the verdict is ``not evaluable`` with this message.
+    """
+    if error is not None:
+        return Verdict(NOT_EVALUABLE, not_evaluable=(error,))
+    failed: list[str] = []
+    warnings: list[str] = []
+    missing: list[str] = []
+    for metric in metrics:
+        mv = values.get(metric.name)
+        if mv is None or not mv.evaluable:
+            reason = mv.reason if mv is not None and mv.reason else "no value"
+            missing.append(f"{metric.name}: not evaluable ({reason})")
+            continue
+        value = float(mv.value)  # type: ignore[arg-type]
+        for lim in metric.limits:
+            message = _violation(metric, lim.lower, lim.upper, value, mv.detail)
+            if message is None:
+                continue
+            (failed if lim.severity == "fail" else warnings).append(f"{message} [{lim.severity}]")
+    if failed:
+        return Verdict(FAIL, tuple(failed), tuple(warnings), tuple(missing))
+    if missing:
+        return Verdict(NOT_EVALUABLE, (), tuple(warnings), tuple(missing))
+    if warnings:
+        return Verdict(WARN, (), tuple(warnings), ())
+    return Verdict(PASS)
+
+
+def _violation(
+    metric: MetricSpec, lower: float | None, upper: float | None, value: float, detail: str | None
+) -> str | None:
+    unit = metric.unit
+    if metric.kind in ("response_mask", "band_mask"):
+        if lower is not None and value < lower:
+            where = f", {detail}" if detail else ""
+            return f"{metric.name}: outside the mask by {_fmt(-value)} dB{where}"
+        return None
+    suffix = f" ({detail})" if detail else ""
+    if lower is not None and value < lower:
+        return f"{metric.name} = {_fmt(value)} {unit} below lower limit {_fmt(lower)}{suffix}"
+    if upper is not None and value > upper:
+        return f"{metric.name} = {_fmt(value)} {unit} above upper limit {_fmt(upper)}{suffix}"
+    return None
