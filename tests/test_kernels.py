@@ -72,11 +72,19 @@ def test_sosfilt_matches_scipy_for_random_designs_and_splits(sos, channels, cuts
     x = rng.standard_normal((1500, channels))
     zi0 = rng.standard_normal((len(sos), 2, channels))  # an arbitrary carried-in state
     ref = signal.sosfilt(sos, x, axis=0, zi=zi0)[0]
+    # Rounding differences (the kernel contracts multiply-adds, scipy rounds twice) are
+    # relative to the largest signal inside the cascade, which for a high-order band-stop
+    # started from an arbitrary state can be 1e4 times the input: scale by that.
+    inner = x
+    internal = float(np.max(np.abs(x)))
+    for k in range(len(sos)):
+        inner = signal.sosfilt(sos[k : k + 1], inner, axis=0, zi=zi0[k : k + 1])[0]
+        internal = max(internal, float(np.max(np.abs(inner))))
 
     whole = x.copy()
     zi_whole = zi0.copy()
     kern.sosfilt_inplace(sos, whole, zi_whole)
-    assert_allclose(whole, ref, rtol=0, atol=OUTPUT_RTOL * _scale(ref))
+    assert_allclose(whole, ref, rtol=0, atol=OUTPUT_RTOL * internal)
 
     # Block by block (random uneven splits, empty blocks, single samples) with the
     # state carried: the kernel does the same operations per sample in the same order,
