@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal
 
-from piezo._iir import ParallelSOS
+from piezo._kernels import SOSBank
 from piezo.errors import InputError
 from piezo.weighting import FrequencyWeighting
 
@@ -73,6 +73,12 @@ ANTI_ALIAS_RIPPLE_DB = 0.002
 ANTI_ALIAS_STOP_DB = 100.0
 #: Samples gathered at a decimated stage before it is filtered (amortises call cost).
 _STAGE_CHUNK = 8192
+#: Longest piece of input filtered at once.
+_UPDATE_FRAMES = 65536
+
+#: Segment starts of a chunk without history intervals (read only).
+_ONE_SEGMENT = np.zeros(1, dtype=np.int64)
+_ONE_SEGMENT.flags.writeable = False
 
 # Preferred (nominal) mid-band frequencies of one-third-octave bands, one decade:
 # IEC 61260-1:2014 annex E (the R10 series of ISO 266), as mantissas.
@@ -191,9 +197,13 @@ def _anti_alias_sos() -> np.ndarray:
     """
     wp = STAGE_EDGE_RATIO  # = (STAGE_EDGE_RATIO / 2) / 0.5
     order, _ = signal.ellipord(wp, 0.5, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB)
-    return signal.ellip(
+    sos = signal.ellip(
         order, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB, wp, btype="low", output="sos"
     )
+    # The zeros lie on the unit circle, so b2 = b0 up to rounding; make it exact, as the
+    # compiled bank (piezo._kernels.SOSBank) requires.
+    sos[:, 2] = sos[:, 0]
+    return sos
 
 
 def _band_sos(band: Band, rate_hz: float) -> np.ndarray:
@@ -335,19 +345,28 @@ class _Stage:
     """Filters of one decimation stage (its bands, then the anti-alias low-pass), with
     carried state."""
 
-    def __init__(self, bank: FilterBank, stage: int, channels: int, engine: str | None) -> None:
+    def __init__(self, bank: FilterBank, stage: int, channels: int) -> None:
         self.stage = stage
         self.factor = 2**stage  # input samples per stage sample
         self.band_indices = [i for i, k in enumerate(bank.stage_of_band) if k == stage]
+        # Bands run low to high and stages high to low rate, so a stage's bands are
+        # contiguous: one slice updates all their sums at once.
+        lo = self.band_indices[0] if self.band_indices else 0
+        self.bands = slice(lo, lo + len(self.band_indices))
+        if self.band_indices != list(range(self.bands.start, self.bands.stop)):
+            raise AssertionError("bands of a stage must be contiguous")
         self.last = stage == bank.stages - 1
         sos = [bank.band_sos[i] for i in self.band_indices]
         if not self.last:
             sos.append(bank.anti_alias_sos)
-        self.filters = ParallelSOS(
-            sos, channels, output_index=None if self.last else len(sos) - 1, engine=engine
-        )
+        self.filters = SOSBank(sos, channels, output_index=None if self.last else len(sos) - 1)
         self.count = 0  # stage samples filtered so far
-        self.pending: list[np.ndarray] = []
+        # Output of the anti-alias low-pass, reused between chunks (the next stage
+        # copies the samples it keeps).
+        self.out = np.empty((channels, _STAGE_CHUNK + _UPDATE_FRAMES // 2**stage))
+        # Decimated samples waiting to be filtered (stages after the first), gathered
+        # into one buffer (grown if a piece does not fit).
+        self.pending = np.empty((_STAGE_CHUNK + _UPDATE_FRAMES // 2**stage, channels))
         self.pending_frames = 0
 
 
@@ -371,10 +390,6 @@ class BandAnalyzer:
         ``"Z"`` (none, default), ``"A"`` or ``"C"``: the signal first passes the
         IEC 61672-1 frequency-weighting filter of :mod:`piezo.weighting`, so the levels
         are A- or C-weighted band levels.
-    engine
-        Filtering engine: ``"numba"`` (compiled, needs the optional numba package),
-        ``"scipy"`` (one :func:`scipy.signal.sosfilt` call per filter) or ``None``
-        (numba when installed). Both give the same levels.
     """
 
     def __init__(
@@ -387,7 +402,6 @@ class BandAnalyzer:
         high_hz: float = 20000.0,
         interval_s: float | None = None,
         weighting: str = "Z",
-        engine: str | None = None,
     ) -> None:
         if not (isinstance(sample_rate_hz, int | float) and sample_rate_hz > 0):
             raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
@@ -407,9 +421,7 @@ class BandAnalyzer:
             if weighting == "Z"
             else FrequencyWeighting(sample_rate_hz, self.channels, weighting=weighting)
         )
-        self._stages = [
-            _Stage(self.bank, k, self.channels, engine) for k in range(self.bank.stages)
-        ]
+        self._stages = [_Stage(self.bank, k, self.channels) for k in range(self.bank.stages)]
         nb = len(bands)
         self._sum = np.zeros((nb, self.channels))
         self._n = np.zeros(nb, dtype=np.int64)
@@ -440,37 +452,50 @@ class BandAnalyzer:
             )
         if x.shape[0] == 0:
             return
-        self._frames += x.shape[0]
-        if self._weighting is not None:
-            x = self._weighting.update(x)
-        self._run(0, x)
+        # Long blocks are filtered in pieces, so the intermediate arrays of the stages
+        # stay in the processor's cache (measured: a one-minute block in one piece took
+        # six times as long per sample).
+        for first in range(0, x.shape[0], _UPDATE_FRAMES):
+            piece = x[first : first + _UPDATE_FRAMES]
+            self._frames += piece.shape[0]
+            if self._weighting is not None:
+                piece = self._weighting.update(piece)
+            self._run(0, piece)
 
     def _run(self, k: int, x: np.ndarray, *, flush: bool = False) -> None:
         stage = self._stages[k]
-        if k > 0 and not flush:
-            stage.pending.append(x)
-            stage.pending_frames += x.shape[0]
-            if stage.pending_frames < _STAGE_CHUNK:
+        if k > 0:
+            # Gather the decimated samples (``x`` may be a view of the previous stage's
+            # reused output buffer: copied here).
+            m = stage.pending_frames
+            need = m + x.shape[0]
+            if need > stage.pending.shape[0]:
+                grown = np.empty((2 * need, self.channels))
+                grown[:m] = stage.pending[:m]
+                stage.pending = grown
+            stage.pending[m:need] = x
+            stage.pending_frames = need
+            if need < _STAGE_CHUNK and not flush:
                 return
-        if stage.pending:
-            if k > 0 and not flush:
-                x = np.concatenate(stage.pending)
-            else:
-                x = np.concatenate([*stage.pending, x])
-            stage.pending, stage.pending_frames = [], 0
+            x = stage.pending[:need]
+            stage.pending_frames = 0
         if x.shape[0] == 0:
             return
         start = stage.count
         n = x.shape[0]
         first, starts = self._segments(stage, start, n)
-        sums, y = stage.filters.process(x, starts)
-        counts = np.diff(np.append(starts, n))
-        for j, band in enumerate(stage.band_indices):
-            self._sum[band] += sums[:, j].sum(axis=0)
-            self._n[band] += n
+        if stage.out.shape[1] < n:
+            stage.out = np.empty((self.channels, n))
+        sums, y = stage.filters.process(x, starts, out=stage.out)
+        nb = len(stage.band_indices)
+        if nb:
+            bands = stage.bands
+            self._sum[bands] += sums[:, :nb].sum(axis=0)
+            self._n[bands] += n
             if self.interval_s is not None:
-                self._hist_sum[first : first + starts.size, band] += sums[:, j]
-                self._hist_n[first : first + starts.size, band] += counts
+                counts = np.diff(np.append(starts, n))
+                self._hist_sum[first : first + starts.size, bands] += sums[:, :nb]
+                self._hist_n[first : first + starts.size, bands] += counts[:, None]
         stage.count += n
         if not stage.last:
             # Keep samples at even stage index: input sample numbers divisible by 2^(k+1).
@@ -480,7 +505,7 @@ class BandAnalyzer:
         """First interval touched by stage samples ``start .. start+n-1`` and the offsets
         (within the chunk) where each touched interval begins."""
         if self.interval_s is None:
-            return 0, np.zeros(1, dtype=np.int64)
+            return 0, _ONE_SEGMENT
         per = self._interval_frames
         # Interval of stage sample j: input sample number j·2^k divided by the interval.
         first = (start * stage.factor) // per

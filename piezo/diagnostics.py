@@ -1284,10 +1284,10 @@ def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> Capt
         file_rate_hz=rec.sample_rate_hz,
         sidecar_rate_hz=sidecar_rate,
         sensitivity_known=chain.calibrated,
-        # The CSV reader refuses a time column with gaps (InputError), so a readable
-        # recording has none to report; the fields stay for a reader that reports them.
-        time_gaps=None,
-        largest_time_gap_s=None,
+        # Set when the CSV reader was asked to report gaps (piezo check) instead of
+        # refusing them; None for audio files and for readers that refuse gaps.
+        time_gaps=rec.time_gaps,
+        largest_time_gap_s=rec.largest_time_gap_s,
     )
     return CaptureChecker(
         source.sample_rate_hz,

@@ -34,6 +34,8 @@ TIME_COLUMN_NAMES = ("time", "t", "time_s", "seconds", "second", "sec", "s", "x-
 
 #: Relative tolerance on the spacing of a CSV time column (issue contract: 0.1 %).
 TIME_SPACING_TOLERANCE = 1e-3
+#: A time step this many times the nominal step or more is a gap (a missing row makes 2).
+GAP_STEP_RATIO = 1.5
 
 _CSV_CHUNK_ROWS = 65536
 
@@ -73,6 +75,10 @@ class Recording:
     is_pcm
         True when samples are fractions of digital full scale (audio files), False when
         they are physical values (CSV, taken as volts).
+    time_gaps, largest_time_gap_s
+        CSV opened with ``allow_time_gaps``: how many steps of the time column are gaps
+        (at least :data:`GAP_STEP_RATIO` nominal steps) and the longest gap's missing
+        time in seconds. None otherwise.
     """
 
     path: Path
@@ -84,6 +90,8 @@ class Recording:
     channel_names: tuple[str, ...]
     is_pcm: bool
     csv_layout: CsvLayout | None = field(default=None, repr=False)
+    time_gaps: int | None = None
+    largest_time_gap_s: float | None = None
 
     @property
     def duration_s(self) -> float:
@@ -183,6 +191,7 @@ def open_recording(
     *,
     rate_hz: float | None = None,
     columns: Sequence[str | int] | None = None,
+    allow_time_gaps: bool = False,
 ) -> Recording:
     """Open a recording and check that it can be analysed.
 
@@ -197,6 +206,11 @@ def open_recording(
     columns
         CSV only: value columns by header name or 0-based index. All non-time columns
         when None.
+    allow_time_gaps
+        CSV only: accept a time column with gaps (missing rows) and report them on the
+        recording instead of refusing the file. The steps that are not gaps must still be
+        uniform to :data:`TIME_SPACING_TOLERANCE`. Samples on either side of a gap are
+        read as if they were contiguous.
 
     Returns
     -------
@@ -221,7 +235,7 @@ def open_recording(
     if size == 0:
         raise RecordingError("file is empty (0 bytes)", source=str(p))
     if p.suffix.lower() in CSV_SUFFIXES:
-        return _open_csv(p, rate_hz=rate_hz, columns=columns)
+        return _open_csv(p, rate_hz=rate_hz, columns=columns, allow_gaps=allow_time_gaps)
     if columns is not None:
         raise InputError("--columns applies to CSV files only", source=str(p))
     return _open_audio(p, rate_hz=rate_hz)
@@ -374,7 +388,13 @@ def _normalise_name(name: str) -> str:
     return re.sub(r"\s*[\(\[].*?[\)\]]\s*", "", name).strip().lower()
 
 
-def _open_csv(p: Path, *, rate_hz: float | None, columns: Sequence[str | int] | None) -> Recording:
+def _open_csv(
+    p: Path,
+    *,
+    rate_hz: float | None,
+    columns: Sequence[str | int] | None,
+    allow_gaps: bool = False,
+) -> Recording:
     try:
         with open(p, encoding="utf-8-sig", errors="strict") as f:
             head = [f.readline() for _ in range(200)]
@@ -420,7 +440,7 @@ def _open_csv(p: Path, *, rate_hz: float | None, columns: Sequence[str | int] | 
         time_column=time_col,
         n_columns=n_columns,
     )
-    frames, rate_from_time = _validate_csv(p, layout)
+    frames, rate_from_time, gaps, largest_gap = _validate_csv(p, layout, allow_gaps=allow_gaps)
     if frames == 0:
         raise RecordingError("recording has no samples (0 rows)", source=str(p))
     if time_col is None and rate_hz is None:
@@ -450,6 +470,8 @@ def _open_csv(p: Path, *, rate_hz: float | None, columns: Sequence[str | int] | 
         channel_names=tuple(names[i] for i in value_cols),
         is_pcm=False,
         csv_layout=layout,
+        time_gaps=gaps,
+        largest_time_gap_s=largest_gap,
     )
 
 
@@ -507,13 +529,23 @@ def _csv_chunks(p: Path, layout: CsvLayout, rows: int) -> Iterator[tuple[np.ndar
             line_no += len(lines)
 
 
-def _validate_csv(p: Path, layout: CsvLayout) -> tuple[int, float | None]:
-    """One streaming pass: count rows, reject NaN/inf, derive the rate from time."""
+def _validate_csv(
+    p: Path, layout: CsvLayout, *, allow_gaps: bool = False
+) -> tuple[int, float | None, int | None, float | None]:
+    """One streaming pass: count rows, reject NaN/inf, derive the rate from time.
+
+    Returns ``(frames, rate_hz, gaps, largest_gap_s)``; the last two are None unless
+    ``allow_gaps``. The nominal step is the median step of the first chunk of rows.
+    """
     frames = 0
     t_first = t_prev = None
-    spacing_ref = None
-    diffs_min = math.inf
-    diffs_max = -math.inf
+    nominal = None
+    steps_min = math.inf
+    steps_max = -math.inf
+    steps_sum = 0.0
+    steps_n = 0
+    gaps = 0
+    largest_gap = 0.0
     needed = list(layout.value_columns) + (
         [layout.time_column] if layout.time_column is not None else []
     )
@@ -530,40 +562,52 @@ def _validate_csv(p: Path, layout: CsvLayout) -> tuple[int, float | None]:
             )
         if layout.time_column is not None:
             t = table[:, layout.time_column]
+            if t_first is None:
+                t_first = float(t[0])
             if t_prev is not None:
                 t = np.concatenate([[t_prev], t])
             if t.size >= 2:
                 d = np.diff(t)
-                diffs_min = min(diffs_min, float(d.min()))
-                diffs_max = max(diffs_max, float(d.max()))
-            if t_first is None:
-                t_first = float(table[0, layout.time_column])
+                if nominal is None:
+                    nominal = float(np.median(d))
+                is_gap = d >= GAP_STEP_RATIO * nominal if nominal > 0 else np.zeros(d.size, bool)
+                if allow_gaps and is_gap.any():
+                    gaps += int(is_gap.sum())
+                    largest_gap = max(largest_gap, float(d[is_gap].max()) - nominal)
+                    d = d[~is_gap]
+                if d.size:
+                    steps_min = min(steps_min, float(d.min()))
+                    steps_max = max(steps_max, float(d.max()))
+                    steps_sum += float(d.sum())
+                    steps_n += d.size
             t_prev = float(t[-1])
         frames += table.shape[0]
-    rate = None
-    if layout.time_column is not None and frames >= 2:
-        spacing_ref = (t_prev - t_first) / (frames - 1)
-        if not spacing_ref > 0:
-            raise InputError(
-                "time column does not increase; give --rate if the first column is data",
-                source=str(p),
-            )
-        worst = max(abs(diffs_min - spacing_ref), abs(diffs_max - spacing_ref)) / spacing_ref
-        if worst > TIME_SPACING_TOLERANCE:
-            raise InputError(
-                f"time column is not uniformly spaced (steps from {diffs_min:.6g} to "
-                f"{diffs_max:.6g} s, {100 * worst:.2g} % off the mean step; the limit is "
-                f"{100 * TIME_SPACING_TOLERANCE:g} %); resample it or give --rate and "
-                "--columns",
-                source=str(p),
-            )
-        rate = 1.0 / spacing_ref
-    elif layout.time_column is not None:
+    if layout.time_column is None:
+        return frames, None, None, None
+    if frames < 2:
         raise InputError(
             "a time column with a single row cannot give a sample rate; give --rate",
             source=str(p),
         )
-    return frames, rate
+    spacing = steps_sum / steps_n if steps_n else 0.0
+    if not spacing > 0 or not (t_prev is not None and t_first is not None and t_prev > t_first):
+        raise InputError(
+            "time column does not increase; give --rate if the first column is data",
+            source=str(p),
+        )
+    worst = max(abs(steps_min - spacing), abs(steps_max - spacing)) / spacing
+    if worst > TIME_SPACING_TOLERANCE:
+        raise InputError(
+            f"time column is not uniformly spaced (steps from {steps_min:.6g} to "
+            f"{steps_max:.6g} s, {100 * worst:.2g} % off the mean step; the limit is "
+            f"{100 * TIME_SPACING_TOLERANCE:g} %); resample it or give --rate and "
+            "--columns"
+            + ("" if allow_gaps else " ('piezo check' reports gaps instead of refusing)"),
+            source=str(p),
+        )
+    if allow_gaps:
+        return frames, 1.0 / spacing, gaps, (largest_gap if gaps else 0.0)
+    return frames, 1.0 / spacing, None, None
 
 
 def _csv_blocks(p: Path, layout: CsvLayout, step: int) -> Iterator[np.ndarray]:

@@ -21,7 +21,6 @@ them, see :class:`WelchPSD`.
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -59,13 +58,16 @@ _HFT95 = (1.0, -1.9383379, 1.3045202, -0.4028270, 0.0350665)
 
 #: Memory allowed for the stored segments of a median average, bytes.
 MEDIAN_MEMORY_BYTES = 64 * 2**20
-#: Threads for batched FFTs (the machine this was written for has two cores).
-_WORKERS = min(2, os.cpu_count() or 1)
+#: Threads for batched FFTs. One: a batch is small (a block's worth of segments), and
+#: with two threads on the two shared cores of the benchmark machine the Welch PSD was
+#: no faster in wall time and used more CPU (docs/performance.md, "Spectra").
+_WORKERS = 1
 #: Segment length when neither a length nor a resolution is given.
 DEFAULT_SEGMENT_FRAMES = 4096
-#: Samples (segments x length x channels) windowed and transformed per FFT call: bounds
-#: the working memory of one update to a few tens of MB whatever the block size.
-_FFT_BATCH_SAMPLES = 2**22
+#: Samples (segments x length x channels) windowed and transformed per FFT call: a
+#: batch (2 MB windowed, 2 MB transformed) stays in the processor's cache and bounds the
+#: working memory of one update whatever the block size.
+_FFT_BATCH_SAMPLES = 2**18
 
 
 def window_coefficients(name: str, frames: int) -> np.ndarray:
@@ -265,7 +267,10 @@ class _Segmenter:
         self.detrend = detrend
         self.bins = self.n // 2 + 1
         self.segments = 0  # segments emitted so far
-        self._pending = np.zeros((0, self.channels))
+        # Stream buffer: the unused tail of earlier blocks, then the current block. It
+        # grows to the longest block fed plus a segment, not with the recording length.
+        self._data = np.empty((0, self.channels))
+        self._pending = 0
         # One-sided density scale; DC and (even n) Nyquist bins are not doubled.
         scale = np.full(self.bins, 2.0 / (self.fs * np.dot(self.w, self.w)))
         scale[0] /= 2.0
@@ -275,34 +280,93 @@ class _Segmenter:
         self._w_spec = scipy.fft.rfft(self.w)
         nonzero = np.flatnonzero(np.abs(self._w_spec) > 1e-13 * np.abs(self._w_spec[0]))
         self._w_bins = int(nonzero[-1]) + 1
+        # Segments windowed and transformed per FFT call, into a preallocated buffer.
+        self._batch = max(1, _FFT_BATCH_SAMPLES // (self.n * self.channels))
+        self._buf = np.empty((self._batch, self.channels, self.n))
+        g = math.gcd(self.n, self.step)
+        self._chunk = g if self.n // g <= 8 else None
 
-    def feed(self, block: np.ndarray):
-        """Yield ``(first_segment_index, power)`` batches; power is ``(k, channels, bins)``
-        in density scaling."""
-        x = _as_block(block, self.channels)
-        if x.shape[0] == 0:
-            return
-        data = np.concatenate([self._pending, x]) if self._pending.shape[0] else x
-        count = 0 if data.shape[0] < self.n else (data.shape[0] - self.n) // self.step + 1
-        batch = max(1, _FFT_BATCH_SAMPLES // (self.n * self.channels))
-        for first in range(0, count, batch):
-            k = min(batch, count - first)
-            start = first * self.step
-            stop = start + (k - 1) * self.step + self.n
-            view = np.lib.stride_tricks.sliding_window_view(data[start:stop], self.n, axis=0)
-            seg = view[:: self.step]  # (k, channels, n)
-            spec = scipy.fft.rfft(seg * self.w, axis=-1, overwrite_x=True, workers=_WORKERS)
+    def _batches(self, data: np.ndarray, first: int, count: int):
+        """Yield ``(k, spec)`` for ``count`` segments of ``data`` starting at sample
+        ``first`` (step ``self.step``), in batches: ``spec`` is the ``(k, channels, bins)``
+        DFT of the windowed (and, if asked, mean-removed) segments. ``spec`` is a scratch
+        array, valid until the next batch."""
+        n, step = self.n, self.step
+        for done in range(0, count, self._batch):
+            k = min(self._batch, count - done)
+            start = first + done * step
+            stop = start + (k - 1) * step + n
+            region = data[start:stop]
+            view = np.lib.stride_tricks.sliding_window_view(region, n, axis=0)[::step]
+            buf = self._buf[:k]
+            np.multiply(view, self.w, out=buf)  # (k, channels, n)
+            spec = scipy.fft.rfft(buf, axis=-1, overwrite_x=True, workers=_WORKERS)
             if self.detrend == "constant":
                 # Removing each segment's mean before windowing subtracts mean·DFT(w),
                 # which is non-zero only in the first few bins of a cosine-sum window.
                 k_w = self._w_bins
-                spec[..., :k_w] -= seg.mean(axis=-1)[..., None] * self._w_spec[:k_w]
+                spec[..., :k_w] -= (
+                    self._segment_means(region, view, k)[..., None] * (self._w_spec[:k_w])
+                )
+            yield k, spec
+
+    def _segment_means(self, region: np.ndarray, view: np.ndarray, k: int) -> np.ndarray:
+        """Means ``(k, channels)`` of the segments in ``region``: from sums over chunks
+        of ``gcd(n, step)`` samples when a segment spans few of them (each sample is read
+        once), else from the segments themselves."""
+        g = self._chunk
+        if g is None:
+            return view.mean(axis=-1)
+        chunks = region.reshape(-1, g, self.channels).sum(axis=1)  # (chunks, channels)
+        per_seg, chunk_step = self.n // g, self.step // g
+        sums = chunks[0 : (k - 1) * chunk_step + 1 : chunk_step].copy()
+        for j in range(1, per_seg):
+            sums += chunks[j : j + (k - 1) * chunk_step + 1 : chunk_step]
+        return sums / self.n
+
+    def feed(self, block: np.ndarray):
+        """Yield ``(first_segment_index, k, spec)`` batches, see :meth:`_batches`.
+
+        The samples left over from earlier blocks (fewer than a segment) and the block
+        are placed one after the other in a reused buffer, so that every segment of the
+        block goes through the same batched FFT calls; a block that starts a fresh
+        stream is read in place.
+        """
+        x = _as_block(block, self.channels)
+        frames = x.shape[0]
+        if frames == 0:
+            return
+        n, step = self.n, self.step
+        p = self._pending  # samples kept from earlier blocks (< n), at the buffer start
+        total = p + frames
+        if p == 0:
+            data = x
+        else:
+            if self._data.shape[0] < total:
+                grown = np.empty((total, self.channels))
+                grown[:p] = self._data[:p]
+                self._data = grown
+            data = self._data
+            data[p:total] = x
+        count = 0 if total < n else (total - n) // step + 1
+        for k, spec in self._batches(data, 0, count):
+            yield self.segments, k, spec
+            self.segments += k
+        cut = count * step
+        rest = total - cut
+        if self._data.shape[0] < rest:
+            self._data = np.empty((max(rest, n), self.channels))
+        self._data[:rest] = data[cut:total]  # numpy buffers overlapping copies
+        self._pending = rest
+
+    def feed_power(self, block: np.ndarray):
+        """Yield ``(first_segment_index, power)`` batches; power is ``(k, channels,
+        bins)`` in density scaling."""
+        for first, _k, spec in self.feed(block):
             power = spec.real**2
             power += spec.imag**2
             power *= self.density_scale
-            yield self.segments, power
-            self.segments += k
-        self._pending = data[count * self.step :].copy()
+            yield first, power
 
 
 class WelchPSD:
@@ -373,7 +437,10 @@ class WelchPSD:
         self.scaling = scaling
         self.confidence_level = float(confidence_level)
         shape = (channels, self._seg.bins)
-        self._acc = np.zeros(shape) if average == "mean" else np.full(shape, -np.inf)
+        if average == "mean":
+            self._acc = np.zeros((channels, 2 * self._seg.bins))  # (re², im²) pairs
+        else:
+            self._acc = np.full(shape, -np.inf)
         if average == "median":
             per_segment = 8 * channels * self._seg.bins
             self._cap = max(16, int(median_memory_bytes // per_segment) // 2 * 2)
@@ -388,10 +455,16 @@ class WelchPSD:
 
     def update(self, block: np.ndarray) -> None:
         """Feed calibrated samples, shape ``(frames, channels)``."""
-        for first, power in self._seg.feed(block):
-            if self.average == "mean":
-                self._acc += power.sum(axis=0)
-            elif self.average == "max":
+        if self.average == "mean":
+            # Σ|X|² over the batch, unscaled, as re² and im² side by side (the complex
+            # output viewed as float pairs, squared and summed in one pass); scaled in
+            # result().
+            for _first, _k, spec in self._seg.feed(block):
+                pairs = spec.view(np.float64)
+                self._acc += np.einsum("kcb,kcb->cb", pairs, pairs)
+            return
+        for first, power in self._seg.feed_power(block):
+            if self.average == "max":
                 np.maximum(self._acc, power.max(axis=0), out=self._acc)
             else:
                 self._keep(first, power)
@@ -428,7 +501,7 @@ class WelchPSD:
             )
         median_segments = None
         if self.average == "mean":
-            psd = self._acc / k
+            psd = (self._acc[:, 0::2] + self._acc[:, 1::2]) * (seg.density_scale / k)
         elif self.average == "max":
             psd = self._acc.copy()
         else:
@@ -570,7 +643,7 @@ class Spectrogram:
     def update(self, block: np.ndarray) -> None:
         """Feed calibrated samples, shape ``(frames, channels)``."""
         seg = self._seg
-        for first, power in seg.feed(block):
+        for first, power in seg.feed_power(block):
             for i in range(power.shape[0]):
                 index = first + i
                 col = index // self._group

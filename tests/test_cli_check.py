@@ -202,3 +202,22 @@ def test_json_validates_against_the_shipped_schema(cli, clean, clipped):
     del docs[0]["channels"][0]["clipping"]["clipped_samples"]
     with pytest.raises(jsonschema.ValidationError):
         validator.validate(docs[0])
+
+
+def test_csv_time_gaps_are_reported_by_check(cli, tmp_path):
+    # A scope export with one missing row: 'info' refuses it, 'check' reports the gap.
+    t = np.arange(4000) / 4000.0
+    rng = np.random.default_rng(7)
+    v = 0.1 * rng.standard_normal(t.size)
+    keep = np.ones(t.size, bool)
+    keep[2000] = False
+    path = tmp_path / "gap.csv"
+    path.write_text(
+        "time,v\n" + "\n".join(f"{a:.7f},{b:.6f}" for a, b in zip(t[keep], v[keep], strict=True))
+    )
+    assert cli("info", path).code == 2
+    r = cli("check", path, "--json")
+    assert r.code in (0, 1), r.err
+    drop = r.json()["channels"][0]["dropouts"]
+    assert drop["time_gaps"] == 1
+    assert drop["largest_time_gap_s"] == pytest.approx(1 / 4000, rel=1e-6)

@@ -252,3 +252,21 @@ def test_truncated_flac_fails_while_reading(tmp_path, rng):
         rec = open_recording(path)
         for _ in rec.blocks(4096):
             pass
+
+
+def test_csv_gaps_are_refused_or_reported(tmp_path):
+    # 1 kHz sampling with rows 700..709 and 1500 missing: two gaps, the longest missing
+    # 10 ms (11 steps where 1 was expected).
+    t = np.arange(2000) / 1000.0
+    keep = np.ones(t.size, bool)
+    keep[700:710] = False
+    keep[1500] = False
+    text = "time,v\n" + "\n".join(f"{a:.6f},{i % 7}" for i, a in enumerate(t[keep]))
+    path = write_text(tmp_path / "g.csv", text)
+    with pytest.raises(InputError, match="reports gaps instead of refusing"):
+        open_recording(path)
+    rec = open_recording(path, allow_time_gaps=True)
+    assert rec.time_gaps == 2
+    assert rec.largest_time_gap_s == pytest.approx(0.010, abs=1e-9)
+    assert rec.sample_rate_hz == pytest.approx(1000.0, rel=1e-9)
+    assert rec.frames == keep.sum()

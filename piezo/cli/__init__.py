@@ -30,19 +30,19 @@ EXIT_INTERNAL = 3
 #: Command modules, in the order their commands are listed by ``piezo --help``.
 COMMAND_MODULES = (
     "info",
-    "levels",
     "calibrate",
-    "demo",
-    "sweep",
-    "response",
+    "levels",
     "spectrum",
     "bands",
     "tone",
+    "sweep",
+    "response",
     "frontend",
     "check",
     "report",
     "batch",
     "limits",
+    "demo",
 )
 
 app = typer.Typer(

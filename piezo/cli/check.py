@@ -125,7 +125,7 @@ def check(
     any fails, 2 when the input cannot be used.
     """
     thresholds = resolve_thresholds(thresholds_file, threshold, expected_corner)
-    source = open_source(file, src)
+    source = open_source(file, src, allow_time_gaps=True)
     result = run_check(source, thresholds)
     if json_out:
         emit_json(check_document(file, source, result))

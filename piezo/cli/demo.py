@@ -11,6 +11,7 @@ import typer
 
 from piezo.cli.output import atomic_output, console, write_text_atomic
 from piezo.demo import DemoFile, demo_files, demo_texts
+from piezo.demo_lot import lot_files
 
 
 def register(app: typer.Typer) -> None:
@@ -34,7 +35,15 @@ def demo(
     for name, text in texts.items():
         write_text_atomic(out / name, text)
         console.print(f"  {name:<34} (text)")
-    console.print(f"wrote {len(files)} recordings and {len(texts)} text files to {out}")
+    lot = lot_files()
+    for lot_item in lot:
+        with atomic_output(out / lot_item.name) as tmp:
+            tmp.write_bytes(lot_item.payload())
+    console.print(f"  {'pd27-*':<34} production lot: {len(lot)} files (captures, spec, golden)")
+    console.print(
+        f"wrote {len(files)} recordings, {len(texts)} text files and the {len(lot)}-file "
+        f"production lot to {out}"
+    )
 
 
 def write_demo_file(out: Path, item: DemoFile) -> None:

@@ -190,8 +190,14 @@ def source_options(func: Callable[..., Any]) -> Callable[..., Any]:
     return wrapper
 
 
-def open_source(file: Path, src: SourceOptions) -> CalibratedSource:
-    """Open ``file`` and resolve its chain from the options, sidecar and profile."""
+def open_source(
+    file: Path, src: SourceOptions, *, allow_time_gaps: bool = False
+) -> CalibratedSource:
+    """Open ``file`` and resolve its chain from the options, sidecar and profile.
+
+    ``allow_time_gaps`` lets a CSV time column with gaps through (reported on the
+    recording) instead of refusing it; only the capture check asks for that.
+    """
     from piezo.units import parse_quantity
 
     rate_hz = parse_quantity(src.rate, "Hz", what="--rate") if src.rate is not None else None
@@ -199,7 +205,9 @@ def open_source(file: Path, src: SourceOptions) -> CalibratedSource:
         raise InputError(f"--rate must be positive, got {src.rate!r}")
     columns = [c.strip() for c in src.columns.split(",")] if src.columns else None
     try:
-        recording = open_recording(file, rate_hz=rate_hz, columns=columns)
+        recording = open_recording(
+            file, rate_hz=rate_hz, columns=columns, allow_time_gaps=allow_time_gaps
+        )
         chain, provenance = resolve_chain(
             file, src.chain_settings(), use_sidecar=not src.no_sidecar
         )
