@@ -414,6 +414,17 @@ def _num(value: float | None) -> float | None:
 # --------------------------------------------------------------------------------------
 
 
+def _not_determinable(
+    reason: str, expected_corner_hz: float | None
+) -> tuple[HumResult, RolloffResult]:
+    """Hum and roll-off results for a channel whose spectrum cannot say anything."""
+    hum = HumResult("not determinable", None, None, None, (), reason)
+    rolloff = RolloffResult(
+        "not determinable", None, None, None, None, None, expected_corner_hz, reason
+    )
+    return hum, rolloff
+
+
 class CaptureChecker:
     """Streaming diagnostics of a capture.
 
@@ -689,17 +700,7 @@ class CaptureChecker:
                     "recording shorter than one spectrum segment "
                     f"({self._spectrum.segment_frames / self.sample_rate_hz:.3g} s)"
                 )
-                hum = HumResult("not determinable", None, None, None, (), reason)
-                rolloff = RolloffResult(
-                    "not determinable",
-                    None,
-                    None,
-                    None,
-                    None,
-                    None,
-                    th.rolloff_expected_hz,
-                    reason,
-                )
+                hum, rolloff = _not_determinable(reason, th.rolloff_expected_hz)
                 freqs = EMPTY_F
                 psd_c = EMPTY_F
                 psd_floor_db = None
@@ -726,17 +727,7 @@ class CaptureChecker:
                     )
                 else:
                     reason = "channel carries no signal"
-                    hum = HumResult("not determinable", None, None, None, (), reason)
-                    rolloff = RolloffResult(
-                        "not determinable",
-                        None,
-                        None,
-                        None,
-                        None,
-                        None,
-                        th.rolloff_expected_hz,
-                        reason,
-                    )
+                    hum, rolloff = _not_determinable(reason, th.rolloff_expected_hz)
                 psd_floor_db = self._psd_floor_db(freqs, psd_c, dof)
             hum_check = self._hum_check(hum)
             rolloff_check = self._rolloff_check(rolloff)
