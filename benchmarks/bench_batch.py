@@ -1,7 +1,7 @@
 """Benchmark of ``piezo batch``: throughput at 1 and 2 workers, overhead, peak memory.
 
 Generates a lot of 2 s, 48 kHz, 16-bit FLAC captures of the PD27 scenario (see
-``piezo.demo_lot``; a swept sine 20 Hz - 20 kHz) and judges it with a realistic spec of
+``piezo.demo.lot``; a swept sine 20 Hz - 20 kHz) and judges it with a realistic spec of
 six metrics (sensitivity, corner, resonance, THD at 1 kHz, clipping, noise floor).
 
 Prints, all measured in this one run:
@@ -100,7 +100,7 @@ severity = "warn"
 
 
 def make_lot(folder: Path, captures: int, unique: int) -> list[Path]:
-    from piezo.demo_lot import draw_unit, flac_bytes, simulate_capture
+    from piezo.demo.lot import draw_unit, flac_bytes, simulate_capture
 
     folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(48000)

@@ -4,8 +4,8 @@ Writes a 48 kHz, 24-bit mono WAV of noise plus tones (generated with a fixed see
 committed) to a benchmark directory, then times
 
 1. the floor: ``soundfile`` decoding the whole file to float64 blocks, nothing else;
-2. the full level set: the same file through ``piezo.io`` and the measurement chain into
-   :class:`piezo.levels.LevelMeter` (A/C/Z weighting, F/S time weighting, peaks,
+2. the full level set: the same file through ``piezo.io.reader`` and the measurement chain into
+   :class:`piezo.levels.meter.LevelMeter` (A/C/Z weighting, F/S time weighting, peaks,
    percentiles), block by block.
 
 It prints both times, their ratio (target: at most 3x the floor), the peak resident
@@ -36,9 +36,9 @@ import numpy as np
 import soundfile as sf
 
 import piezo
-from piezo.chain import CalibratedSource, Chain
-from piezo.io import open_recording
-from piezo.levels import LevelMeter
+from piezo.chain.measurement import CalibratedSource, Chain
+from piezo.io.reader import open_recording
+from piezo.levels.meter import LevelMeter
 
 FS = 48000
 CHUNK_S = 5  # small chunks: generating the file must not raise the peak RSS

@@ -6,9 +6,9 @@ default) and times, best of ``--repeat`` runs:
 
 * the decode floor: reading the whole file into float64 blocks of 65536 frames with
   soundfile;
-* piezo's 1/3-octave bands 20 Hz - 20 kHz (:class:`piezo.bands.BandAnalyzer`), reading
+* piezo's 1/3-octave bands 20 Hz - 20 kHz (:class:`piezo.spectral.bands.BandAnalyzer`), reading
   the same blocks (decode included);
-* piezo's Welch PSD (:class:`piezo.spectrum.WelchPSD`, 4096-sample Hann, 50 %), same.
+* piezo's Welch PSD (:class:`piezo.spectral.welch.WelchPSD`, 4096-sample Hann, 50 %), same.
 
 Then, on pink noise held in memory (``--reference-minutes``, no decoding on either side),
 PyOctaveBand 2.0.0 (``pyoctaveband.octavefilter``, order 6, test/bench-only reference)
@@ -41,9 +41,9 @@ import numpy as np
 import soundfile as sf
 
 import piezo
-from piezo import spectrum
-from piezo.bands import BandAnalyzer, band_levels
-from piezo.spectrum import WelchPSD
+from piezo.spectral import welch as spectrum
+from piezo.spectral.bands import BandAnalyzer, band_levels
+from piezo.spectral.welch import WelchPSD
 
 FS = 48000
 BLOCK = 65536

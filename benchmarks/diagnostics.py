@@ -22,7 +22,7 @@ import numpy as np
 import scipy.signal
 import soundfile as sf
 
-from piezo.diagnostics import CaptureChecker
+from piezo.diagnostics.checker import CaptureChecker
 
 FS = 48000
 BLOCK = 65536

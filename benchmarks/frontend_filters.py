@@ -18,8 +18,8 @@ from pathlib import Path
 import numpy as np
 import soundfile as sf
 
-from piezo.frontend import load_frontend
-from piezo.frontend_filters import Equalizer, FrontendFilter, realise_frontend
+from piezo.frontend.filters import Equalizer, FrontendFilter, realise_frontend
+from piezo.frontend.model import load_frontend
 
 REPO = Path(__file__).resolve().parent.parent
 FS = 48000

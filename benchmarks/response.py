@@ -22,8 +22,8 @@ import numpy as np
 import scipy.signal
 import soundfile as sf
 
-from piezo.response import H1Estimator, analyze_sweep
-from piezo.sweep import sweep_signal, sweep_spec
+from piezo.response.measure import H1Estimator, analyze_sweep
+from piezo.response.stimulus import sweep_signal, sweep_spec
 
 FS = 48000
 

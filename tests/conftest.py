@@ -17,9 +17,6 @@ from piezo.cli import main
 settings.register_profile("piezo", deadline=None)
 settings.load_profile("piezo")
 
-REPO = Path(__file__).resolve().parent.parent
-RECORDINGS = REPO / "recordings"
-
 
 @pytest.fixture
 def rng() -> np.random.Generator:

@@ -5,9 +5,10 @@ in volts at the sensor) and a :class:`~piezo.batch.spec.MetricSpec`, runs the an
 it needs through :meth:`CaptureAnalysis.cached` (so the swept response that feeds five
 metrics is computed once per capture) and returns a
 :class:`~piezo.batch.verdict.MetricValue`. No analysis is implemented here: the numbers
-come from :mod:`piezo.response` and :mod:`piezo.fit` (swept sine), :mod:`piezo.tone`
-(test tones), :mod:`piezo.diagnostics` (clipping), :mod:`piezo.weighting` and
-:mod:`piezo.stats` (noise levels) and :mod:`piezo.bands` (band levels).
+come from :mod:`piezo.response.measure` and :mod:`piezo.response.fit` (swept sine),
+:mod:`piezo.tone.analysis`
+(test tones), :mod:`piezo.diagnostics.checker` (clipping), :mod:`piezo.levels.weighting` and
+:mod:`piezo.levels.stats` (noise levels) and :mod:`piezo.spectral.bands` (band levels).
 
 A metric that cannot be determined returns ``MetricValue(None, reason=...)``, which the
 verdict turns into "not evaluable", never into a pass.
@@ -37,12 +38,12 @@ def _db(ratio: float) -> float:
 
 
 # ---------------------------------------------------------------------------------------
-# Swept sine: piezo.sweep, piezo.response, piezo.fit.
+# Swept sine: piezo.response.stimulus, piezo.response.measure, piezo.response.fit.
 
 
 def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
-    """The :class:`piezo.sweep.SweepSpec` of the spec's sweep at the capture's rate."""
-    from piezo.sweep import SweepSpec, stimulus_from_toml, sweep_spec
+    """The :class:`piezo.response.stimulus.SweepSpec` of the spec's sweep at the capture's rate."""
+    from piezo.response.stimulus import SweepSpec, stimulus_from_toml, sweep_spec
 
     if params.get("file_data") is not None:
         stim = stimulus_from_toml(params["file_data"], source=params.get("file"))
@@ -67,7 +68,7 @@ def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
 
 
 def _sweep_response(a: CaptureAnalysis) -> Any:
-    from piezo.response import analyze_sweep
+    from piezo.response.measure import analyze_sweep
 
     def compute() -> Any:
         cap = a.capture
@@ -91,7 +92,7 @@ def _reference_hz(a: CaptureAnalysis) -> float:
 
 
 def _response_fit(a: CaptureAnalysis) -> Any:
-    from piezo.fit import fit_response
+    from piezo.response.fit import fit_response
 
     def compute() -> Any:
         r = _sweep_response(a)
@@ -106,7 +107,7 @@ def _response_fit(a: CaptureAnalysis) -> Any:
 
 
 def _response_at(a: CaptureAnalysis, frequency_hz: float) -> float:
-    from piezo.fit import sensitivity_at
+    from piezo.response.fit import sensitivity_at
 
     r = _sweep_response(a)
     return sensitivity_at(r.frequency_hz, r.magnitude_db, reference_hz=frequency_hz)
@@ -178,7 +179,7 @@ def _mask_value(m: MetricSpec, freqs: list[float], curve: list[float], unit: str
 
 
 def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
-    from piezo.fit import deviation_from_golden
+    from piezo.response.fit import deviation_from_golden
 
     r = _sweep_response(a)
     golden = m.params["golden_data"]
@@ -202,11 +203,11 @@ def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 # ---------------------------------------------------------------------------------------
-# Clipping: piezo.diagnostics.
+# Clipping: piezo.diagnostics.checker.
 
 
 def _diagnostics(a: CaptureAnalysis) -> Any:
-    from piezo.diagnostics import check_capture
+    from piezo.diagnostics.checker import check_capture
 
     def compute() -> Any:
         cap = a.capture
@@ -225,7 +226,7 @@ def _clipping(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 # ---------------------------------------------------------------------------------------
-# Noise in the quiet part: piezo.weighting, piezo.stats.
+# Noise in the quiet part: piezo.levels.weighting, piezo.levels.stats.
 
 
 def _quiet_segment(a: CaptureAnalysis, m: MetricSpec) -> np.ndarray:
@@ -249,12 +250,12 @@ def _quiet_segment(a: CaptureAnalysis, m: MetricSpec) -> np.ndarray:
 
 
 def _weighted_rms(a: CaptureAnalysis, m: MetricSpec) -> float:
-    from piezo.stats import SignalStats
+    from piezo.levels.stats import SignalStats
 
     x = _quiet_segment(a, m)
     weighting = m.params.get("weighting", "Z")
     if weighting != "Z":
-        from piezo.weighting import FrequencyWeighting
+        from piezo.levels.weighting import FrequencyWeighting
 
         x = FrequencyWeighting(a.capture.sample_rate_hz, 1, weighting=weighting).update(
             x[:, None]
@@ -282,11 +283,11 @@ def _self_noise(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 # ---------------------------------------------------------------------------------------
-# Test tones: piezo.tone.
+# Test tones: piezo.tone.analysis.
 
 
 def _tone(a: CaptureAnalysis) -> Any:
-    from piezo.tone import measure_tone
+    from piezo.tone.analysis import measure_tone
 
     def compute() -> Any:
         cap = a.capture
@@ -336,11 +337,11 @@ def _tone_frequency(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 # ---------------------------------------------------------------------------------------
-# Band levels: piezo.bands.
+# Band levels: piezo.spectral.bands.
 
 
 def _band_mask(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
-    from piezo.bands import band_levels
+    from piezo.spectral.bands import band_levels
 
     fraction = int(m.params["fraction"])
     freqs = [float(f) for f in m.params["frequency_hz"]]

@@ -126,15 +126,15 @@ class Capture:
 
 def path_is_csv(path: str) -> bool:
     """True for text exports (read as volts at the ADC input, rate from capture.rate_hz)."""
-    from piezo.io import CSV_SUFFIXES
+    from piezo.io.reader import CSV_SUFFIXES
 
     return Path(path).suffix.lower() in CSV_SUFFIXES
 
 
 def load_capture(path: str, spec: Spec) -> Capture:
     """Read ``path`` whole with piezo's reader and calibrate it by the spec's chain."""
-    from piezo.chain import CalibratedSource, Chain
-    from piezo.io import open_recording
+    from piezo.chain.measurement import CalibratedSource, Chain
+    from piezo.io.reader import open_recording
 
     recording = open_recording(path, rate_hz=spec.rate_hz if path_is_csv(path) else None)
     if spec.channel >= recording.channels:

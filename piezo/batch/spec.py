@@ -24,8 +24,8 @@ from typing import Any
 import numpy as np
 
 from piezo import __version__
+from piezo.chain.units import parse_gain
 from piezo.errors import SpecError, UnitError
-from piezo.units import parse_gain
 
 __all__ = [
     "METRIC_KINDS",
@@ -807,7 +807,7 @@ _SWEEP_FILE_KEYS = (
 
 def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> dict[str, Any]:
     """Sweep parameters from a stimulus file written by ``piezo sweep make``."""
-    from piezo.sweep import SweepSpec, stimulus_from_toml
+    from piezo.response.stimulus import SweepSpec, stimulus_from_toml
 
     path = ("stimulus", "file")
     for key in _SWEEP_FILE_KEYS:
@@ -863,8 +863,8 @@ def _check_band_frequencies(
     check: _Checker, path: tuple[Any, ...], freqs: list[float], fraction: int
 ) -> None:
     """Each frequency of a band mask must name a 1/fraction-octave band (IEC 61260-1)."""
-    from piezo.bands import fractional_octave_bands
     from piezo.errors import InputError
+    from piezo.spectral.bands import fractional_octave_bands
 
     for f in freqs:
         try:
@@ -878,10 +878,10 @@ def _check_band_frequencies(
 
 
 def _load_golden(check: _Checker, path: tuple[Any, ...], file: str) -> dict[str, list[float]]:
-    """Read a golden response with :func:`piezo.fit.parse_response_csv` (frequency_hz,
+    """Read a golden response with :func:`piezo.response.fit.parse_response_csv` (frequency_hz,
     magnitude_db; the response CSV that ``piezo sweep analyze --csv`` writes)."""
     from piezo.errors import InputError
-    from piezo.fit import parse_response_csv
+    from piezo.response.fit import parse_response_csv
 
     try:
         text = Path(file).read_text(encoding="utf-8")

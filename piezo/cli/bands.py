@@ -11,12 +11,12 @@ import numpy as np
 import typer
 from rich.table import Table
 
-from piezo.bands import FRACTIONS, BandAnalyzer, BandResult
+from piezo.chain.units import parse_duration
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
-from piezo.units import parse_duration
+from piezo.spectral.bands import FRACTIONS, BandAnalyzer, BandResult
 
 
 def register(app: typer.Typer) -> None:

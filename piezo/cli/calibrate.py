@@ -9,12 +9,12 @@ from typing import Annotated
 
 import typer
 
-from piezo.calibration import ToneCalibrator, calibrator_pressure_pa
-from piezo.chain import sidecar_path
+from piezo.chain.measurement import sidecar_path
+from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError
-from piezo.units import parse_quantity
+from piezo.tone.calibrator import ToneCalibrator, calibrator_pressure_pa
 
 
 def register(app: typer.Typer) -> None:

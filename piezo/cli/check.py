@@ -14,11 +14,12 @@ from rich import box
 from rich.markup import escape
 from rich.table import Table
 
-from piezo.chain import CalibratedSource
+from piezo.chain.measurement import CalibratedSource
+from piezo.chain.units import format_quantity, parse_quantity
 from piezo.cli import EXIT_FAILED
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
-from piezo.diagnostics import (
+from piezo.diagnostics.checker import (
     CaptureDiagnostics,
     Severity,
     Thresholds,
@@ -26,7 +27,6 @@ from piezo.diagnostics import (
     load_thresholds,
     parse_threshold_assignment,
 )
-from piezo.units import format_quantity, parse_quantity
 
 __all__ = ["check", "register", "resolve_thresholds", "run_check"]
 

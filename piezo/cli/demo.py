@@ -10,8 +10,8 @@ import soundfile as sf
 import typer
 
 from piezo.cli.output import atomic_output, console, write_text_atomic
-from piezo.demo import DemoFile, demo_files, demo_texts
-from piezo.demo_lot import lot_files
+from piezo.demo.lot import lot_files
+from piezo.demo.scenes import DemoFile, demo_files, demo_texts
 
 
 def register(app: typer.Typer) -> None:

@@ -17,10 +17,12 @@ import soundfile as sf
 import typer
 from rich.table import Table
 
+from piezo.chain.units import format_quantity, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import atomic_output, console, emit_json, progress
 from piezo.errors import InputError
-from piezo.frontend import (
+from piezo.frontend.filters import Equalizer, FrontendFilter
+from piezo.frontend.model import (
     Frontend,
     design_key_unit,
     frequency_response,
@@ -32,9 +34,7 @@ from piezo.frontend import (
     set_design_value,
     summarise_response,
 )
-from piezo.frontend_filters import Equalizer, FrontendFilter
-from piezo.noise import noise_budget, noise_gain_midband, self_noise
-from piezo.units import format_quantity, parse_frequency_list, parse_quantity
+from piezo.frontend.noise import noise_budget, noise_gain_midband, self_noise
 
 CAUTION = (
     "Caution: piezo elements can produce high voltages under shock or temperature change; "

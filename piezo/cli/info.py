@@ -12,7 +12,7 @@ from rich.table import Table
 
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
-from piezo.stats import SignalStats
+from piezo.levels.stats import SignalStats
 
 
 def register(app: typer.Typer) -> None:

@@ -8,11 +8,11 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
+from piezo.chain.units import parse_duration, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
-from piezo.levels import PERCENTILES, LevelMeter, LevelResult
-from piezo.units import parse_duration, parse_quantity
+from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
 
 #: Shown with every result (terminal and JSON).
 CAUTION = (

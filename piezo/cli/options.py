@@ -2,7 +2,8 @@
 
 :func:`source_options` adds the measurement-chain and input options to a command and hands
 the command a :class:`SourceOptions`; :func:`open_source` turns it into a
-:class:`~piezo.chain.CalibratedSource`. Option names are a public contract: users' scripts
+:class:`~piezo.chain.measurement.CalibratedSource`. Option names are a public contract:
+users' scripts
 rely on them.
 """
 
@@ -18,9 +19,9 @@ from typing import Annotated, Any
 
 import typer
 
-from piezo.chain import CalibratedSource, ChainSettings, resolve_chain
+from piezo.chain.measurement import CalibratedSource, ChainSettings, resolve_chain
 from piezo.errors import InputError
-from piezo.io import open_recording
+from piezo.io.reader import open_recording
 
 __all__ = ["JsonOption", "SourceOptions", "open_source", "source_options"]
 
@@ -48,7 +49,7 @@ class SourceOptions:
     no_sidecar: bool = False
 
     def chain_settings(self) -> ChainSettings:
-        """The chain part, for :func:`piezo.chain.resolve_chain`."""
+        """The chain part, for :func:`piezo.chain.measurement.resolve_chain`."""
         return ChainSettings(
             sensitivity=self.sensitivity,
             gain=self.gain,
@@ -198,7 +199,7 @@ def open_source(
     ``allow_time_gaps`` lets a CSV time column with gaps through (reported on the
     recording) instead of refusing it; only the capture check asks for that.
     """
-    from piezo.units import parse_quantity
+    from piezo.chain.units import parse_quantity
 
     rate_hz = parse_quantity(src.rate, "Hz", what="--rate") if src.rate is not None else None
     if rate_hz is not None and rate_hz <= 0:

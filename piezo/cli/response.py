@@ -15,6 +15,7 @@ from typing import Annotated, Any
 import numpy as np
 import typer
 
+from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     atomic_output,
@@ -25,7 +26,7 @@ from piezo.cli.output import (
     write_text_atomic,
 )
 from piezo.errors import InputError
-from piezo.fit import (
+from piezo.response.fit import (
     GoldenDeviation,
     ResponseFit,
     ResponseTable,
@@ -33,8 +34,7 @@ from piezo.fit import (
     format_response_csv,
     parse_response_csv,
 )
-from piezo.response import H1Estimator, smooth_fractional_octave
-from piezo.units import parse_quantity
+from piezo.response.measure import H1Estimator, smooth_fractional_octave
 
 FRONTEND_CAUTION = (
     "Fitted values are an engineering estimate of the sensor and front-end; confirm them "

@@ -11,6 +11,7 @@ import numpy as np
 import typer
 from rich.table import Table
 
+from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     atomic_output,
@@ -21,8 +22,7 @@ from piezo.cli.output import (
     write_text_atomic,
 )
 from piezo.errors import InputError
-from piezo.spectrum import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectrogram, WelchPSD
-from piezo.units import parse_quantity
+from piezo.spectral.welch import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectrogram, WelchPSD
 
 #: Columns kept for the plotted spectrogram (time-decimated by averaging).
 PLOT_COLUMNS = 600

@@ -16,6 +16,7 @@ import numpy as np
 import soundfile as sf
 import typer
 
+from piezo.chain.units import parse_duration, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import atomic_output, console, emit_json, err_console, write_text_atomic
 from piezo.cli.response import (
@@ -34,9 +35,14 @@ from piezo.cli.response import (
     write_plot,
 )
 from piezo.errors import InputError, SpecError, UnitError
-from piezo.fit import ResponseTable, deviation_from_golden, fit_response, parse_response_csv
-from piezo.response import analyze_sweep
-from piezo.sweep import (
+from piezo.response.fit import (
+    ResponseTable,
+    deviation_from_golden,
+    fit_response,
+    parse_response_csv,
+)
+from piezo.response.measure import analyze_sweep
+from piezo.response.stimulus import (
     NoiseSpec,
     SweepSpec,
     noise_signal,
@@ -44,7 +50,6 @@ from piezo.sweep import (
     sweep_signal,
     sweep_spec,
 )
-from piezo.units import parse_duration, parse_frequency_list, parse_quantity
 
 STIMULUS_SUFFIX = ".stimulus.toml"
 SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")

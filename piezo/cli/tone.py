@@ -13,8 +13,8 @@ from piezo.cli.options import JsonOption, SourceOptions, open_source, source_opt
 from piezo.cli.output import console, emit_json, progress
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
-from piezo.spectrum import WelchPSD
-from piezo.tone import ToneAnalyzer, band_mean_square
+from piezo.spectral.welch import WelchPSD
+from piezo.tone.analysis import ToneAnalyzer, band_mean_square
 
 #: Bin spacing of the tone analysis, hertz (1 s segments).
 RESOLUTION_HZ = 1.0

@@ -10,7 +10,7 @@ import json
 from pathlib import Path
 from typing import Any
 
-from piezo.report import plots
+from piezo.plots import figures as plots
 from piezo.report.document import (
     CAUTIONS,
     REPORT_SCHEMA,

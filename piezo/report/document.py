@@ -14,13 +14,13 @@ from typing import Any
 import numpy as np
 
 from piezo import __version__
-from piezo.bands import BandResult
-from piezo.chain import CalibratedSource
-from piezo.levels import LevelResult
-from piezo.spectrum import PSDResult, SpectrogramResult
-from piezo.tone import ToneResult
-from piezo.units import format_quantity, ratio_to_db
-from piezo.weighting import ConformanceReport
+from piezo.chain.measurement import CalibratedSource
+from piezo.chain.units import format_quantity, ratio_to_db
+from piezo.levels.meter import LevelResult
+from piezo.levels.weighting import ConformanceReport
+from piezo.spectral.bands import BandResult
+from piezo.spectral.welch import PSDResult, SpectrogramResult
+from piezo.tone.analysis import ToneResult
 
 __all__ = [
     "CAUTIONS",

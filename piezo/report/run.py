@@ -17,22 +17,22 @@ from typing import Any
 
 import numpy as np
 
-from piezo.bands import BandAnalyzer, BandResult
-from piezo.chain import CalibratedSource
-from piezo.diagnostics import CaptureDiagnostics, Thresholds, checker_for_source
+from piezo.chain.measurement import CalibratedSource
+from piezo.diagnostics.checker import CaptureDiagnostics, Thresholds, checker_for_source
 from piezo.errors import InputError
-from piezo.frontend import (
+from piezo.frontend.model import (
     ResponseSummary,
     frequency_response,
     load_frontend,
     phase_deg,
     summarise_response,
 )
-from piezo.levels import LevelMeter, LevelResult
-from piezo.report.selftest import BandConformance, band_conformance
-from piezo.spectrum import PSDResult, Spectrogram, SpectrogramResult, WelchPSD
-from piezo.tone import ToneAnalyzer, ToneResult
-from piezo.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
+from piezo.levels.meter import LevelMeter, LevelResult
+from piezo.levels.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
+from piezo.spectral.bands import BandAnalyzer, BandResult
+from piezo.spectral.selftest import BandConformance, band_conformance
+from piezo.spectral.welch import PSDResult, Spectrogram, SpectrogramResult, WelchPSD
+from piezo.tone.analysis import ToneAnalyzer, ToneResult
 
 __all__ = ["FrontendResponse", "ReportSettings", "RunResults", "analyse", "frontend_response"]
 
@@ -98,7 +98,7 @@ class ReportSettings:
 
 @dataclass(frozen=True)
 class FrontendResponse:
-    """The modelled response of a front-end design (``piezo.frontend``).
+    """The modelled response of a front-end design (``piezo.frontend.model``).
 
     ``level_db`` is the magnitude relative to the midband sensitivity, ``phase_deg`` the
     phase, both on ``frequency_hz``.

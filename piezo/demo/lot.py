@@ -1,0 +1,333 @@
+"""A synthetic production lot for the batch checks (scenario of our own; pure).
+
+Scenario
+--------
+End-of-line test of "PD27" piezo disc microphones: a 27 mm brass-backed piezo disc with a
+JFET buffer, acoustically sealed in a small test coupler with a reference loudspeaker.
+Every unit hears the same exponential sine sweep, 20 Hz to 7 kHz in 0.6 s, at 94 dB SPL
+(RMS sound pressure 1.00237 Pa), with 0.2 s of quiet before and after; the buffer output
+goes through a 20 dB preamplifier into a 1 V full-scale ADC at 16 kHz, 16-bit FLAC. The
+serial number is in the file name (``PD27-<5 digits>.flac``).
+
+A unit's response is modelled as sensitivity × first-order high-pass (the buffer's bias
+resistor against the disc's capacitance) × single-degree-of-freedom resonance (the
+disc's first bending mode), plus a small acoustic delay, a weak second-order
+nonlinearity, the buffer's self-noise and 16-bit quantisation. Nominal design values
+and the spread of a good lot are invented for the demo:
+
+=====================  ==============  ==============
+parameter              nominal         spread (1σ)
+=====================  ==============  ==============
+sensitivity at 1 kHz   −42 dB re 1 V/Pa  0.5 dB
+low corner             55 Hz           3 Hz
+resonance              4300 Hz         60 Hz (Q 3.0 ± 0.15)
+2nd harmonic           0.2–0.4 %       uniform
+self-noise             4 µV RMS        —
+=====================  ==============  ==============
+
+The lot (``pd27-lot/``, 40 captures) holds five seeded faults:
+
+- ``PD27-24107``: front-end gain switch left at +40 dB instead of +20 dB: the capture clips
+  at full scale;
+- ``PD27-24115``: poorly bonded element: sensitivity 7 dB low;
+- ``PD27-24122``: wrong bias resistor: low corner at 190 Hz;
+- ``PD27-24131``: cracked ceramic: resonance down to 3 kHz with a low Q;
+- ``PD27-24136``: file transfer interrupted: a FLAC file cut off half way;
+
+and one good unit inside the fail limits but outside the warning band
+(``PD27-24118``, sensitivity 2.4 dB low). ``pd27-golden/`` holds ten known-good units of
+the same design for ``piezo limits derive``.
+
+Nothing here writes files: :func:`lot_files` returns samples and texts;
+:func:`flac_bytes` encodes in memory; the command line writes.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import soundfile as sf
+
+__all__ = [
+    "DESIGN",
+    "FAULTS",
+    "LotFile",
+    "UnitModel",
+    "draw_unit",
+    "flac_bytes",
+    "golden_response_csv",
+    "lot_files",
+    "simulate_capture",
+    "spec_text",
+    "unit_response",
+]
+
+SAMPLE_RATE_HZ = 16000.0
+SWEEP = {
+    "start_hz": 20.0,
+    "stop_hz": 7000.0,
+    "duration_s": 0.6,
+    "silence_before_s": 0.2,
+    "silence_after_s": 0.2,
+}
+LEVEL_DB_SPL = 94.0
+FULL_SCALE_V = 1.0
+GAIN_DB = 20.0
+NOISE_V = 4e-6
+
+
+@dataclass(frozen=True)
+class UnitModel:
+    """One unit's true parameters (what the analysis should find)."""
+
+    serial: str
+    sensitivity_db: float  # dB re 1 V/Pa at mid band (model passband gain)
+    corner_hz: float
+    resonance_hz: float
+    q: float
+    delay_s: float
+    h2: float  # second-harmonic ratio at the nominal sweep amplitude
+    gain_db: float = GAIN_DB
+    fault: str | None = None
+
+
+#: Nominal design (the golden response is this model without noise).
+DESIGN = UnitModel("design", -42.0, 55.0, 4300.0, 3.0, 0.6e-3, 0.003)
+
+#: Serial -> (fault name, changes to the drawn unit).
+FAULTS: dict[str, tuple[str, dict[str, float]]] = {
+    "24107": ("clipped", {"gain_db": 40.0}),
+    "24115": ("low sensitivity", {"sensitivity_db": -49.0}),
+    "24122": ("high corner", {"corner_hz": 190.0}),
+    "24131": ("cracked element", {"resonance_hz": 3000.0, "q": 1.8}),
+    "24136": ("corrupt file", {}),
+    "24118": ("warn: sensitivity 2.4 dB low", {"sensitivity_db": -44.4}),
+}
+
+
+@dataclass(frozen=True)
+class LotFile:
+    """One file of the demo lot.
+
+    ``samples`` (fractions of full scale, 16-bit FLAC) for captures; ``text`` for the
+    spec and the golden response; ``data`` for the deliberately corrupt capture.
+    """
+
+    name: str
+    description: str
+    samples: np.ndarray | None = None
+    sample_rate_hz: float | None = None
+    text: str | None = None
+    data: bytes | None = None
+    unit: UnitModel | None = field(default=None, repr=False)
+
+    def payload(self) -> bytes:
+        """The file's bytes (FLAC encoded in memory for captures)."""
+        if self.text is not None:
+            return self.text.encode("utf-8")
+        if self.data is not None:
+            return self.data
+        assert self.samples is not None and self.sample_rate_hz is not None
+        return flac_bytes(self.samples, self.sample_rate_hz)
+
+
+def flac_bytes(samples: np.ndarray, sample_rate_hz: float) -> bytes:
+    """16-bit FLAC of ``samples`` (fractions of full scale), encoded in memory."""
+    buf = io.BytesIO()
+    sf.write(buf, samples, int(sample_rate_hz), format="FLAC", subtype="PCM_16")
+    return buf.getvalue()
+
+
+def _sweep_spec(sweep: dict[str, float] | None = None, sample_rate_hz: float = SAMPLE_RATE_HZ):
+    from piezo.response.stimulus import sweep_spec
+
+    p = SWEEP if sweep is None else sweep
+    return sweep_spec(
+        p["start_hz"],
+        p["stop_hz"],
+        p["duration_s"],
+        sample_rate_hz,
+        silence_before_s=p["silence_before_s"],
+        silence_after_s=p["silence_after_s"],
+    )
+
+
+def _level_pa() -> float:
+    return 20e-6 * 10.0 ** (LEVEL_DB_SPL / 20.0)
+
+
+def unit_response(unit: UnitModel, frequency_hz: np.ndarray) -> np.ndarray:
+    """Complex response of the model, V/Pa (delay excluded)."""
+    f = np.asarray(frequency_hz, dtype=float)
+    jf = 1j * f
+    highpass = jf / (jf + unit.corner_hz)
+    r = f / unit.resonance_hz
+    resonance = 1.0 / (1.0 - r**2 + 1j * r / unit.q)
+    return 10.0 ** (unit.sensitivity_db / 20.0) * highpass * resonance
+
+
+def simulate_capture(
+    unit: UnitModel,
+    rng: np.random.Generator,
+    *,
+    sweep: dict[str, float] | None = None,
+    sample_rate_hz: float = SAMPLE_RATE_HZ,
+) -> np.ndarray:
+    """The unit's capture of the sweep, fractions of full scale in 16-bit steps, (frames,).
+
+    ``sweep`` (keys as :data:`SWEEP`) and ``sample_rate_hz`` default to the demo lot's.
+    """
+    from piezo.response.stimulus import sweep_signal
+
+    spec = _sweep_spec(sweep, sample_rate_hz)
+    stimulus = sweep_signal(spec)
+    pressure = stimulus / spec.amplitude * _level_pa() * math.sqrt(2.0)  # Pa
+    n = pressure.size
+    nfft = 2 * n  # zero padding: the responses decay in well under n samples
+    f = np.fft.rfftfreq(nfft, 1.0 / sample_rate_hz)
+    h = unit_response(unit, f) * np.exp(-2j * np.pi * f * unit.delay_s)
+    volts = np.fft.irfft(np.fft.rfft(pressure, nfft) * h, nfft)[:n]
+    peak = 10.0 ** (unit.sensitivity_db / 20.0) * _level_pa() * math.sqrt(2.0)
+    volts = volts + (2.0 * unit.h2 / peak) * volts**2  # y = x + c x²: H2 = c·A/2
+    volts = volts + NOISE_V * rng.standard_normal(n)
+    fs_units = volts * 10.0 ** (unit.gain_db / 20.0) / FULL_SCALE_V
+    return np.round(np.clip(fs_units, -1.0, 32767 / 32768) * 32768) / 32768
+
+
+def draw_unit(serial: str, rng: np.random.Generator) -> UnitModel:
+    """A good unit drawn from the design's spread (table in the module docstring)."""
+    return UnitModel(
+        serial=serial,
+        sensitivity_db=float(rng.normal(DESIGN.sensitivity_db, 0.5)),
+        corner_hz=float(rng.normal(DESIGN.corner_hz, 3.0)),
+        resonance_hz=float(rng.normal(DESIGN.resonance_hz, 60.0)),
+        q=float(rng.normal(DESIGN.q, 0.15)),
+        delay_s=float(rng.uniform(0.55e-3, 0.65e-3)),
+        h2=float(rng.uniform(0.002, 0.004)),
+    )
+
+
+def golden_response_csv() -> str:
+    """The design's nominal response (the model, no noise) on a 1/12-octave grid, as a
+    response CSV (frequency_hz, magnitude_db)."""
+    f = 20.0 * 2.0 ** (np.arange(0, int(12 * math.log2(7000 / 20)) + 1) / 12.0)
+    mag = 20.0 * np.log10(np.abs(unit_response(DESIGN, f)))
+    lines = [
+        "# PD27 design response (model, no noise): golden reference for the demo lot",
+        "# magnitude_db: dB re 1 V/Pa",
+        "frequency_hz,magnitude_db",
+    ]
+    lines += [f"{fq:.6g},{m:.4f}" for fq, m in zip(f, mag, strict=True)]
+    return "\n".join(lines) + "\n"
+
+
+def spec_text() -> str:
+    """The lot's limit spec (engineering limits around the design; invented for the demo)."""
+    return f"""\
+# Limit spec of the PD27 end-of-line test (demo; limits invented for the scenario).
+[spec]
+name = "PD27 disc microphone, end of line"
+serial_pattern = 'PD27-(?P<serial>[0-9]{{5}})'
+serial_required = true
+
+[capture]
+full_scale_v = {FULL_SCALE_V}
+gain = "{GAIN_DB:g} dB"
+
+[stimulus]
+kind = "sweep"
+start_hz = {SWEEP["start_hz"]}
+stop_hz = {SWEEP["stop_hz"]}
+duration_s = {SWEEP["duration_s"]}
+silence_before_s = {SWEEP["silence_before_s"]}
+silence_after_s = {SWEEP["silence_after_s"]}
+level_db = {LEVEL_DB_SPL}                 # dB SPL at the unit, from the coupler's calibration
+
+[metrics.sensitivity]
+reference_hz = 1000
+nominal = -41.5                 # the design's -42 dB passband plus its +0.5 dB at 1 kHz
+
+[[metrics.sensitivity.limits]]
+lower_rel = -3.0
+upper_rel = 3.0
+
+[[metrics.sensitivity.limits]]
+lower_rel = -2.0
+upper_rel = 2.0
+severity = "warn"
+
+[metrics.corner]
+upper = 80.0
+
+[metrics.resonance]
+lower = 3900.0
+upper = 4700.0
+
+[metrics.thd_1k]
+kind = "thd"
+frequency_hz = 1000
+upper = 1.0
+
+[metrics.clipping]
+upper = 0.0
+
+[metrics.noise_floor]
+weighting = "Z"
+upper = -95.0
+severity = "warn"
+
+[metrics.golden]
+kind = "golden_deviation"
+golden = "pd27-golden.csv"
+band_hz = [100, 3000]
+relative_to_hz = 1000
+upper = 1.5
+"""
+
+
+def lot_files() -> list[LotFile]:
+    """Every file of the demo lot, in writing order (deterministic)."""
+    files = [
+        LotFile("pd27-spec.toml", "limit spec of the PD27 end-of-line test", text=spec_text()),
+        LotFile(
+            "pd27-golden.csv",
+            "PD27 design response: golden reference",
+            text=golden_response_csv(),
+        ),
+    ]
+    rng = np.random.default_rng(2427)
+    for i in range(40):
+        serial = f"{24101 + i}"
+        unit = draw_unit(serial, rng)
+        noise_rng = np.random.default_rng(int(serial))
+        fault = FAULTS.get(serial)
+        if fault is not None:
+            unit = UnitModel(**{**unit.__dict__, **fault[1], "fault": fault[0]})
+        name = f"pd27-lot/PD27-{serial}.flac"
+        samples = simulate_capture(unit, noise_rng)
+        if unit.fault == "corrupt file":
+            data = flac_bytes(samples, SAMPLE_RATE_HZ)
+            files.append(
+                LotFile(name, "capture cut off half way", data=data[: len(data) // 2], unit=unit)
+            )
+            continue
+        what = f"unit {serial}" + (f" ({unit.fault})" if unit.fault else "")
+        files.append(LotFile(name, what, samples, SAMPLE_RATE_HZ, unit=unit))
+    golden_rng = np.random.default_rng(2327)
+    for i in range(10):
+        serial = f"{23001 + i}"
+        unit = draw_unit(serial, golden_rng)
+        samples = simulate_capture(unit, np.random.default_rng(int(serial)))
+        files.append(
+            LotFile(
+                f"pd27-golden/PD27-{serial}.flac",
+                f"golden unit {serial}",
+                samples,
+                SAMPLE_RATE_HZ,
+                unit=unit,
+            )
+        )
+    return files

@@ -1,0 +1,309 @@
+"""Figures of a report, drawn from the same result objects as its JSON document.
+
+Nothing is computed here but the drawing: every number plotted is a field of a result
+object (or the same value the JSON document carries). Each function returns PNG bytes.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from piezo.chain.units import format_quantity
+from piezo.diagnostics.checker import ChannelDiagnostics
+from piezo.levels.meter import LevelResult
+from piezo.plots.style import (
+    COLORMAP,
+    INK,
+    TRACES,
+    figure,
+    legend_below,
+    plot_style,
+    png_bytes,
+    trace,
+)
+from piezo.report.run import FrontendResponse
+from piezo.spectral.bands import BandResult
+from piezo.spectral.welch import PSDResult, SpectrogramResult
+
+__all__ = [
+    "bands_figure",
+    "frontend_figure",
+    "level_history_figure",
+    "psd_figure",
+    "rolloff_figure",
+    "spectrogram_figure",
+]
+
+
+def _hp_db(f: np.ndarray, corner_hz: float, order: int) -> np.ndarray:
+    """10 lg |H|² of the high-pass shape the roll-off check fits (same formula)."""
+    q = (f / corner_hz) ** (2 * order)
+    return 10 * np.log10(q / (1.0 + q))
+
+
+def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
+    """Band levels seen by the roll-off check, with the fitted high-pass shape.
+
+    Returns None when the check saw no bands (nothing to show).
+    """
+    r = ch.rolloff
+    if not r.band_hz:
+        return None
+    f = np.asarray(r.band_hz)
+    level = np.asarray(r.band_level_db)
+    with plot_style():
+        fig, ax = figure(6.6, 3.0, legend_rows=1)
+        ax.semilogx(
+            f,
+            level,
+            linestyle="none",
+            marker="o",
+            markersize=3.0,
+            color=INK,
+            label="sixth-octave band levels",
+        )
+        if r.fit_corner_hz is not None and r.fit_level_db is not None:
+            order = r.fit_order or 1
+            tilt = r.tilt_db_per_decade or 0.0
+            fit = r.fit_level_db + tilt * (np.log10(f) - 3.0) + _hp_db(f, r.fit_corner_hz, order)
+            kind = "first" if order == 1 else "second"
+            label = f"fitted {kind}-order high-pass, corner {r.fit_corner_hz:.3g} Hz"
+            if r.status != "estimated":
+                label += " (not accepted)"
+            ax.semilogx(f, fit, label=label, **trace(1))
+            ax.axvline(r.fit_corner_hz, **{**trace(3), "linewidth": 0.9})
+        if r.expected_corner_hz is not None:
+            ax.axvline(
+                r.expected_corner_hz,
+                label=f"expected {r.expected_corner_hz:.3g} Hz",
+                **{**trace(2), "linewidth": 1.2},
+            )
+        if r.lowest_content_hz is not None:
+            ax.axvspan(
+                f[0] / 1.2,
+                r.lowest_content_hz,
+                color="#e4e6ea",
+                zorder=0,
+                label="no usable content" if r.lowest_content_hz > f[0] else None,
+            )
+        ax.set_xlabel("frequency / Hz")
+        ax.set_ylabel(f"PSD / {_density_unit(level_unit)}")
+        ax.set_title(f"Channel {ch.channel}: low-frequency roll-off ({r.status})")
+        finite = level[np.isfinite(level)]
+        if finite.size:
+            top = float(finite.max())
+            ax.set_ylim(max(float(finite.min()), top - 90.0) - 3.0, top + 6.0)
+        ax.set_xlim(f[0] / 1.2, f[-1] * 1.2)
+        legend_below(fig, 2)
+        return png_bytes(fig)
+
+
+def _density_unit(level_unit: str) -> str:
+    """'dB re 20 µPa' -> 'dB re (20 µPa)²/Hz'."""
+    prefix = "dB re "
+    if level_unit.startswith(prefix):
+        return f"{prefix}({level_unit[len(prefix) :]})²/Hz"
+    return f"{level_unit} per Hz"
+
+
+def level_history_figure(levels: LevelResult, channels: list[int], level_unit: str) -> bytes:
+    """LAeq per interval (steps) and the LAF trace, per channel, against time."""
+    h = levels.history
+    assert h is not None
+    rows = math.ceil(2 * len(channels) / 4)
+    end = h.interval_start_s[-1] + h.interval_duration_s[-1]
+    edges = np.append(h.interval_start_s, end)
+    with plot_style():
+        fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
+        for i, ch in enumerate(channels):
+            style = trace(i)
+            ax.plot(
+                h.trace_time_s,
+                h.LAF[:, i],
+                **{**style, "linewidth": 0.7},
+                alpha=0.55,
+                label=f"channel {ch}: LAF",
+            )
+            ax.stairs(
+                h.LAeq[:, i],
+                edges,
+                **{**style, "linewidth": 1.8},
+                label=f"channel {ch}: LAeq per {h.interval_s:g} s",
+            )
+        ax.set_xlabel("time / s")
+        ax.set_ylabel(f"level / {level_unit}")
+        ax.set_title("Level history")
+        ax.set_xlim(0.0, float(end))
+        finite = np.concatenate([h.LAF[np.isfinite(h.LAF)], h.LAeq[np.isfinite(h.LAeq)]])
+        if finite.size:
+            top = float(finite.max())
+            ax.set_ylim(max(float(finite.min()), top - 60.0) - 2.0, top + 3.0)
+        legend_below(fig, min(4, 2 * len(channels)))
+        return png_bytes(fig)
+
+
+def frontend_figure(fr: FrontendResponse) -> bytes:
+    """Magnitude (re midband) and phase of a front-end design against frequency."""
+    sm = fr.summary
+    with plot_style():
+        fig, ax = figure(6.6, 4.2)
+        f = fr.frequency_hz
+        ax.semilogx(f, fr.level_db, **trace(0), label="magnitude")
+        ax.axhspan(-1.0, 1.0, color="#e4e6ea", zorder=0)
+        ax.axvline(sm.corner_hz, **{**trace(3), "linewidth": 0.9})
+        ax.annotate(
+            f" corner {sm.corner_hz:.3g} Hz",
+            (sm.corner_hz, -3.0),
+            fontsize=8,
+            color=INK,
+            va="top",
+        )
+        finite = fr.level_db[np.isfinite(fr.level_db)]
+        ax.set_ylim(max(-40.0, float(finite.min()) - 3.0), min(30.0, float(finite.max()) + 3.0))
+        ax.set_xlabel("frequency / Hz")
+        ax.set_ylabel("level re midband / dB")
+        ax.set_title(f"Front-end response: {fr.name or fr.design}")
+        ax.set_xlim(float(f[0]), float(f[-1]))
+        twin = ax.twinx()
+        twin.semilogx(f, fr.phase_deg, **trace(1), label="phase")
+        twin.set_ylabel("phase / degree")
+        twin.grid(False)
+        twin.spines["right"].set_visible(True)
+        lines = ax.get_lines()[:1] + twin.get_lines()[:1]
+        ax.legend(lines, [ln.get_label() for ln in lines], loc="lower right")
+        fig.subplots_adjust(right=1.0 - 0.75 / 6.6)
+        return png_bytes(fig)
+
+
+def _ref_text(reference: float, unit: str) -> str:
+    return format_quantity(reference, unit)
+
+
+def psd_figure(psd: PSDResult, channels: list[int], reference: float, unit: str) -> bytes:
+    """Welch PSD per channel, dB re reference²/Hz, on a logarithmic frequency axis."""
+    f = psd.frequency_hz[1:]
+    with np.errstate(divide="ignore"):
+        level = 10.0 * np.log10(psd.psd[1:] / reference**2)
+    rows = math.ceil(len(channels) / 4)
+    with plot_style():
+        fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
+        for i, ch in enumerate(channels):
+            ax.semilogx(f, level[:, i], **{**trace(i), "linewidth": 1.0}, label=f"channel {ch}")
+        ax.set_xlabel("frequency / Hz")
+        ax.set_ylabel(f"PSD / dB re ({_ref_text(reference, unit)})²/Hz")
+        ax.set_title(
+            f"Power spectral density ({psd.resolution_hz:.3g} Hz bins, {psd.averages} averages)"
+        )
+        ax.set_xlim(float(f[0]), float(f[-1]))
+        finite = level[np.isfinite(level)]
+        if finite.size:
+            top = float(finite.max())
+            ax.set_ylim(max(float(finite.min()), top - 100.0) - 3.0, top + 5.0)
+        legend_below(fig, min(4, len(channels)))
+        return png_bytes(fig)
+
+
+_HATCHES = ("", "////", "....", "xxxx")
+
+
+def bands_figure(
+    bands: BandResult, channels: list[int], reference: float, level_unit: str
+) -> bytes:
+    """Band levels per channel as grouped bars (hatched per channel, for greyscale)."""
+    level = bands.level_db(reference)
+    labels = [b.label for b in bands.bands]
+    n = len(labels)
+    k = len(channels)
+    width = 0.8 / k
+    x = np.arange(n)
+    finite = level[np.isfinite(level)]
+    floor = (float(finite.min()) - 5.0) if finite.size else 0.0
+    floor = max(floor, float(finite.max()) - 80.0) if finite.size else 0.0
+    rows = math.ceil(k / 4)
+    with plot_style():
+        fig, ax = figure(6.6, 3.2 + 0.2 * rows, legend_rows=rows)
+        for i, ch in enumerate(channels):
+            style = TRACES[i % len(TRACES)]
+            heights = np.where(np.isfinite(level[:, i]), level[:, i] - floor, 0.0)
+            ax.bar(
+                x + (i - (k - 1) / 2) * width,
+                heights,
+                width,
+                bottom=floor,
+                color=style.color,
+                edgecolor="white" if i == 0 else style.color,
+                hatch=_HATCHES[i % len(_HATCHES)],
+                fill=i == 0,
+                linewidth=0.6,
+                label=f"channel {ch}",
+            )
+        step = max(1, math.ceil(n / 16))
+        ax.set_xticks(x[::step], labels[::step], rotation=0)
+        ax.set_xlim(-0.6, n - 0.4)
+        ax.grid(axis="x", visible=False)
+        ax.set_xlabel(f"1/{bands.fraction}-octave band, nominal mid-band frequency / Hz")
+        ax.set_ylabel(f"band level / {level_unit}")
+        ax.set_title("Band levels (Leq per band)")
+        if finite.size:
+            ax.set_ylim(floor, float(finite.max()) + 5.0)
+        legend_below(fig, min(4, k))
+        return png_bytes(fig)
+
+
+def _edges(centres: np.ndarray, *, log: bool) -> np.ndarray:
+    """Cell edges halfway between centres (geometrically when ``log``), ends extended."""
+    if centres.size == 1:
+        c = float(centres[0])
+        return np.array([c * 0.9, c * 1.1]) if log else np.array([c - 0.5, c + 0.5])
+    v = np.log(centres) if log else centres
+    mid = (v[1:] + v[:-1]) / 2
+    e = np.concatenate([[2 * v[0] - mid[0]], mid, [2 * v[-1] - mid[-1]]])
+    return np.exp(e) if log else e
+
+
+def spectrogram_figure(
+    sg: SpectrogramResult, index: int, channel: int, reference: float, unit: str
+) -> bytes:
+    """Spectrogram of one channel: time against frequency (logarithmic), level in dB."""
+    level = sg.level_db(reference)[:, 1:, index]  # drop DC for the log axis
+    f = sg.frequency_hz[1:]
+    t = sg.time_s
+
+    # Cell edges: halfway between centres, extended by half a step at the ends.
+    def edges(c: np.ndarray, log: bool) -> np.ndarray:
+        if c.size == 1:
+            return (
+                np.array([c[0] * 0.9, c[0] * 1.1]) if log else np.array([c[0] - 0.5, c[0] + 0.5])
+            )
+        v = np.log(c) if log else c
+        mid = (v[1:] + v[:-1]) / 2
+        e = np.concatenate([[2 * v[0] - mid[0]], mid, [2 * v[-1] - mid[-1]]])
+        return np.exp(e) if log else e
+
+    finite = level[np.isfinite(level)]
+    top = float(finite.max()) if finite.size else 0.0
+    with plot_style():
+        fig, ax = figure(6.6, 3.4)
+        mesh = ax.pcolormesh(
+            _edges(t, log=False),
+            _edges(f, log=True),
+            np.where(np.isfinite(level), level, top - 200.0).T,
+            cmap=COLORMAP,
+            vmin=top - 80.0,
+            vmax=top,
+            shading="flat",
+            rasterized=True,
+        )
+        ax.set_yscale("log")
+        ax.set_ylim(max(float(f[0]), 10.0), float(f[-1]))
+        ax.grid(False, which="both")  # after the scale change, which makes new ticks
+        ax.set_xlabel("time / s")
+        ax.set_ylabel("frequency / Hz")
+        ax.set_title(f"Channel {channel}: spectrogram")
+        bar = fig.colorbar(mesh, ax=ax, pad=0.015, fraction=0.05)
+        bar.set_label(f"PSD / dB re ({_ref_text(reference, unit)})²/Hz")
+        bar.outline.set_visible(False)
+        fig.subplots_adjust(right=0.9)
+        return png_bytes(fig)

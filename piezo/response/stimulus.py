@@ -1,0 +1,494 @@
+"""Measurement stimuli: exponential sine sweep, its inverse filter, pink and white noise.
+
+The exponential (logarithmic) sine sweep and its inverse filter follow A. Farina,
+"Simultaneous measurement of impulse response and distortion with a swept-sine
+technique", AES 108th Convention, Paris, 2000, preprint 5093:
+
+    x(t) = A sin[(2π f1 T / R) (e^(R t / T) − 1)],   R = ln(f2 / f1),   0 ≤ t < T,
+
+whose instantaneous frequency is f1 e^(R t / T). The inverse filter is the time-reversed
+sweep whose amplitude falls by e^(−R τ / T) along the reversed time τ (6 dB per octave as
+the frequency falls), which whitens the sweep's pink spectrum. Convolving a capture with
+it gives the linear impulse response at time 0 and the impulse response of the N-th
+harmonic Δt_N = T ln N / R earlier.
+
+Levels are in dBFS with the convention of AES17 (a full-scale sine is 0 dBFS; from
+memory): a sweep at −6 dBFS has a peak of 10^(−6/20) of full scale, and a noise at
+−6 dBFS has the same RMS as that sine, 10^(−6/20)/√2.
+
+Everything here is pure: parameters are small frozen dataclasses that render to and
+parse from TOML text (the sidecar that lets analysis rebuild the inverse filter
+exactly); writing files is left to the command line.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass, fields
+from typing import Any, ClassVar
+
+import numpy as np
+import scipy.fft
+
+from piezo.errors import InputError, SpecError
+
+__all__ = [
+    "NoiseSpec",
+    "SweepSpec",
+    "harmonic_offsets_s",
+    "inverse_filter",
+    "noise_signal",
+    "stimulus_from_toml",
+    "sweep_signal",
+    "sweep_spec",
+]
+
+#: Default fade-in length, in octaves of the sweep: the low band edge of the
+#: deconvolved response is smooth over this span, which keeps its ringing short enough
+#: for the analysis window (see ``piezo.response.measure``).
+FADE_IN_OCTAVES = 0.5
+#: Default fade-out length, in octaves of the sweep (a few milliseconds near 20 kHz).
+FADE_OUT_OCTAVES = 1.0 / 24.0
+
+_FORMAT_VERSION = 1
+
+
+def _positive(value: float, what: str) -> float:
+    if not (isinstance(value, int | float) and math.isfinite(value) and value > 0):
+        raise InputError(f"{what} must be a positive finite number, got {value!r}")
+    return float(value)
+
+
+def _non_negative(value: float, what: str) -> float:
+    if not (isinstance(value, int | float) and math.isfinite(value) and value >= 0):
+        raise InputError(f"{what} must be zero or a positive finite number, got {value!r}")
+    return float(value)
+
+
+def _level(value: float, what: str) -> float:
+    if not (isinstance(value, int | float) and math.isfinite(value)):
+        raise InputError(f"{what} must be a finite level in dBFS, got {value!r}")
+    if value > 0:
+        raise InputError(f"{what} must be at most 0 dBFS (full scale), got {value!r} dBFS")
+    return float(value)
+
+
+def _toml_value(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        # repr() round-trips a float exactly and is valid TOML for finite values.
+        return repr(value)
+    if isinstance(value, str):
+        escaped = value.replace("\\", "\\\\").replace('"', '\\"')
+        return f'"{escaped}"'
+    raise TypeError(f"cannot render {value!r} as TOML")
+
+
+def _render_table(table: str, kind: str, values: dict[str, Any]) -> str:
+    lines = [
+        "# Stimulus written by piezo; analysis rebuilds the signal from these values.",
+        f"format_version = {_FORMAT_VERSION}",
+        "",
+        f"[{table}]",
+        f"kind = {_toml_value(kind)}",
+    ]
+    for key, value in values.items():
+        if value is not None:
+            lines.append(f"{key} = {_toml_value(value)}")
+    return "\n".join(lines) + "\n"
+
+
+def _table_values(cls: type, table: dict[str, Any], source: str) -> dict[str, Any]:
+    known = {f.name for f in fields(cls)}
+    unknown = sorted(set(table) - known - {"kind"})
+    if unknown:
+        raise SpecError(f"unknown key(s) {', '.join(unknown)} in the stimulus file", source=source)
+    values: dict[str, Any] = {}
+    for f in fields(cls):
+        if f.name not in table:
+            continue
+        value = table[f.name]
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            raise SpecError(f"key {f.name!r} must be a number, got {value!r}", source=source)
+        values[f.name] = int(value) if f.name == "seed" else float(value)
+    return values
+
+
+@dataclass(frozen=True)
+class SweepSpec:
+    """Every parameter of an exponential sine sweep stimulus (Farina 2000).
+
+    Build one with :func:`sweep_spec`, which fills in the default fades. The stimulus is
+    ``silence_before_s`` of zeros, then the sweep of ``duration_s`` from ``start_hz`` to
+    ``stop_hz`` with half-Hann fades at both ends (inside the sweep duration), then
+    ``silence_after_s`` of zeros.
+
+    Attributes
+    ----------
+    start_hz, stop_hz
+        Sweep start frequency f1 and stop frequency f2, Hz; 0 < f1 < f2 ≤ fs/2.
+    duration_s
+        Sweep duration T in seconds (the fades lie inside it, the silences outside).
+    sample_rate_hz
+        Sample rate of the stimulus, Hz.
+    level_dbfs
+        Peak of the sweep in dBFS (≤ 0).
+    fade_in_s, fade_out_s
+        Half-Hann fade lengths in seconds.
+    silence_before_s, silence_after_s
+        Zeros before and after the sweep, seconds.
+    acoustic_level_pa
+        RMS sound pressure the sweep produces at the sensor, Pa, when known (from a
+        reference microphone or coupler calibration). It turns the measured response
+        into a sensitivity in V/Pa. ``None`` leaves the response relative.
+    """
+
+    kind: ClassVar[str] = "exponential-sine-sweep"
+
+    start_hz: float
+    stop_hz: float
+    duration_s: float
+    sample_rate_hz: float
+    level_dbfs: float
+    fade_in_s: float
+    fade_out_s: float
+    silence_before_s: float = 0.0
+    silence_after_s: float = 0.0
+    acoustic_level_pa: float | None = None
+
+    def __post_init__(self) -> None:
+        fs = _positive(self.sample_rate_hz, "sample_rate_hz")
+        f1 = _positive(self.start_hz, "start_hz")
+        f2 = _positive(self.stop_hz, "stop_hz")
+        if f2 <= f1:
+            raise InputError(
+                f"stop_hz ({f2:g} Hz) must be above start_hz ({f1:g} Hz) for a rising sweep"
+            )
+        if f2 > fs / 2:
+            raise InputError(
+                f"stop_hz ({f2:g} Hz) is above half the sample rate ({fs / 2:g} Hz); "
+                "lower it or raise the sample rate"
+            )
+        duration = _positive(self.duration_s, "duration_s")
+        if duration * fs < 64:
+            raise InputError(
+                f"duration_s ({duration:g} s) gives fewer than 64 samples at {fs:g} Hz"
+            )
+        _level(self.level_dbfs, "level_dbfs")
+        fade_in = _non_negative(self.fade_in_s, "fade_in_s")
+        fade_out = _non_negative(self.fade_out_s, "fade_out_s")
+        if fade_in + fade_out > duration:
+            raise InputError(
+                f"fades ({fade_in:g} s + {fade_out:g} s) are longer than the sweep "
+                f"({duration:g} s)"
+            )
+        _non_negative(self.silence_before_s, "silence_before_s")
+        _non_negative(self.silence_after_s, "silence_after_s")
+        if self.acoustic_level_pa is not None:
+            _positive(self.acoustic_level_pa, "acoustic_level_pa")
+
+    # -- derived quantities -------------------------------------------------------------
+    @property
+    def rate_constant(self) -> float:
+        """R = ln(f2 / f1), the sweep's rate constant (Farina 2000)."""
+        return math.log(self.stop_hz / self.start_hz)
+
+    @property
+    def sweep_frames(self) -> int:
+        """Number of samples of the sweep itself (without silences)."""
+        return round(self.duration_s * self.sample_rate_hz)
+
+    @property
+    def silence_before_frames(self) -> int:
+        """Number of leading zero samples."""
+        return round(self.silence_before_s * self.sample_rate_hz)
+
+    @property
+    def silence_after_frames(self) -> int:
+        """Number of trailing zero samples."""
+        return round(self.silence_after_s * self.sample_rate_hz)
+
+    @property
+    def frames(self) -> int:
+        """Total number of samples of the stimulus."""
+        return self.silence_before_frames + self.sweep_frames + self.silence_after_frames
+
+    @property
+    def amplitude(self) -> float:
+        """Peak amplitude of the sweep as a fraction of full scale."""
+        return 10.0 ** (self.level_dbfs / 20.0)
+
+    def instantaneous_frequency_hz(self, time_s: np.ndarray | float) -> np.ndarray:
+        """Instantaneous frequency f1 e^(R t / T) at ``time_s`` from the sweep start."""
+        t = np.asarray(time_s, dtype=np.float64)
+        return self.start_hz * np.exp(self.rate_constant * t / self.duration_s)
+
+    # -- sidecar ----------------------------------------------------------------------
+    def to_toml(self) -> str:
+        """Render the parameters as TOML text (floats written exactly)."""
+        values = {f.name: getattr(self, f.name) for f in fields(self)}
+        return _render_table("stimulus", self.kind, values)
+
+    @classmethod
+    def from_toml(cls, text: str, *, source: str | None = None) -> SweepSpec:
+        """Parse TOML text written by :meth:`to_toml`."""
+        spec = stimulus_from_toml(text, source=source)
+        if not isinstance(spec, SweepSpec):
+            raise SpecError(
+                f"the stimulus file describes {spec.kind!r}, not an exponential sine sweep",
+                source=source,
+            )
+        return spec
+
+
+@dataclass(frozen=True)
+class NoiseSpec:
+    """Parameters of a seeded noise stimulus.
+
+    Attributes
+    ----------
+    color
+        ``"white"`` (flat power spectral density) or ``"pink"`` (density ∝ 1/f, equal
+        power per octave).
+    duration_s
+        Length in seconds.
+    sample_rate_hz
+        Sample rate, Hz.
+    level_dbfs
+        RMS level in dBFS (AES17 convention: 0 dBFS is the RMS of a full-scale sine).
+    seed
+        Seed of ``numpy.random.default_rng``; the same spec always gives the same noise.
+    fade_s
+        Half-Hann fade at both ends, seconds.
+    """
+
+    kind: ClassVar[str] = "noise"
+
+    color: str
+    duration_s: float
+    sample_rate_hz: float
+    level_dbfs: float
+    seed: int
+    fade_s: float = 0.0
+
+    def __post_init__(self) -> None:
+        if self.color not in ("white", "pink"):
+            raise InputError(f"noise color must be 'white' or 'pink', got {self.color!r}")
+        fs = _positive(self.sample_rate_hz, "sample_rate_hz")
+        duration = _positive(self.duration_s, "duration_s")
+        if duration * fs < 16:
+            raise InputError(f"duration_s ({duration:g} s) gives fewer than 16 samples")
+        _level(self.level_dbfs, "level_dbfs")
+        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
+            raise InputError(f"seed must be a non-negative integer, got {self.seed!r}")
+        fade = _non_negative(self.fade_s, "fade_s")
+        if 2 * fade > duration:
+            raise InputError(f"fade_s ({fade:g} s) is longer than half the noise ({duration:g} s)")
+
+    @property
+    def frames(self) -> int:
+        """Number of samples."""
+        return round(self.duration_s * self.sample_rate_hz)
+
+    def to_toml(self) -> str:
+        """Render the parameters as TOML text."""
+        values: dict[str, Any] = {f.name: getattr(self, f.name) for f in fields(self)}
+        color = values.pop("color")
+        return _render_table("stimulus", f"{color}-noise", values)
+
+
+def stimulus_from_toml(text: str, *, source: str | None = None) -> SweepSpec | NoiseSpec:
+    """Parse a stimulus sidecar (TOML text) into a :class:`SweepSpec` or :class:`NoiseSpec`.
+
+    Raises
+    ------
+    SpecError
+        If the text is not TOML, has no ``[stimulus]`` table, names an unknown kind or
+        carries an unknown or non-numeric key.
+    """
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError(f"not a valid TOML stimulus file: {exc}", source=source) from None
+    table = doc.get("stimulus")
+    if not isinstance(table, dict):
+        raise SpecError("no [stimulus] table in the stimulus file", source=source)
+    kind = table.get("kind")
+    try:
+        if kind == SweepSpec.kind:
+            return SweepSpec(**_table_values(SweepSpec, table, source or "stimulus"))
+        if kind in ("white-noise", "pink-noise"):
+            values = _table_values(NoiseSpec, table, source or "stimulus")
+            return NoiseSpec(color=str(kind).split("-")[0], **values)
+    except TypeError as exc:
+        raise SpecError(f"incomplete [stimulus] table: {exc}", source=source) from None
+    except InputError as exc:
+        raise SpecError(exc.message, source=source) from None
+    raise SpecError(
+        f"unknown stimulus kind {kind!r}; expected {SweepSpec.kind!r}, 'white-noise' or "
+        "'pink-noise'",
+        source=source,
+    )
+
+
+def sweep_spec(
+    start_hz: float,
+    stop_hz: float,
+    duration_s: float,
+    sample_rate_hz: float,
+    *,
+    level_dbfs: float = -6.0,
+    fade_in_s: float | None = None,
+    fade_out_s: float | None = None,
+    silence_before_s: float = 0.0,
+    silence_after_s: float = 0.0,
+    acoustic_level_pa: float | None = None,
+) -> SweepSpec:
+    """Build a :class:`SweepSpec`, choosing the fades when they are not given.
+
+    The default fade-in spans the first half octave of the sweep and the default fade-out
+    the last 1/24 octave, i.e. T·ln(2^k)/R seconds for k octaves.
+    """
+    ratio = stop_hz / start_hz if start_hz > 0 and stop_hz > start_hz else math.e
+    seconds_per_octave = duration_s * math.log(2.0) / math.log(ratio) if duration_s > 0 else 0.0
+    if fade_in_s is None:
+        fade_in_s = FADE_IN_OCTAVES * seconds_per_octave
+    if fade_out_s is None:
+        fade_out_s = FADE_OUT_OCTAVES * seconds_per_octave
+    return SweepSpec(
+        start_hz=float(start_hz),
+        stop_hz=float(stop_hz),
+        duration_s=float(duration_s),
+        sample_rate_hz=float(sample_rate_hz),
+        level_dbfs=float(level_dbfs),
+        fade_in_s=float(fade_in_s),
+        fade_out_s=float(fade_out_s),
+        silence_before_s=float(silence_before_s),
+        silence_after_s=float(silence_after_s),
+        acoustic_level_pa=None if acoustic_level_pa is None else float(acoustic_level_pa),
+    )
+
+
+def _half_hann_fades(frames: int, fade_in: int, fade_out: int) -> np.ndarray:
+    """Gain curve rising over ``fade_in`` samples and falling over ``fade_out`` samples."""
+    gain = np.ones(frames)
+    if fade_in > 0:
+        k = np.arange(fade_in)
+        gain[:fade_in] = 0.5 * (1.0 - np.cos(np.pi * k / fade_in))
+    if fade_out > 0:
+        k = np.arange(fade_out)
+        gain[frames - fade_out :] *= 0.5 * (1.0 + np.cos(np.pi * (k + 1) / fade_out))
+    return gain
+
+
+def _sweep_only(spec: SweepSpec) -> np.ndarray:
+    """The faded sweep without its silences, in fractions of full scale."""
+    n = spec.sweep_frames
+    t = np.arange(n) / spec.sample_rate_hz
+    r = spec.rate_constant
+    big_t = spec.duration_s
+    phase = 2.0 * np.pi * spec.start_hz * big_t / r * np.expm1(r * t / big_t)
+    fade_in = round(spec.fade_in_s * spec.sample_rate_hz)
+    fade_out = round(spec.fade_out_s * spec.sample_rate_hz)
+    return spec.amplitude * np.sin(phase) * _half_hann_fades(n, fade_in, fade_out)
+
+
+def sweep_signal(spec: SweepSpec) -> np.ndarray:
+    """The stimulus samples, shape (frames,), in fractions of full scale.
+
+    Leading silence, the faded exponential sweep (Farina 2000), trailing silence.
+    """
+    return np.concatenate(
+        [
+            np.zeros(spec.silence_before_frames),
+            _sweep_only(spec),
+            np.zeros(spec.silence_after_frames),
+        ]
+    )
+
+
+def inverse_filter(spec: SweepSpec) -> np.ndarray:
+    """Inverse filter of the sweep, shape (sweep_frames,).
+
+    The time-reversed faded sweep multiplied by the envelope e^(−R τ / T), τ being the
+    time along the reversed signal (Farina 2000), then scaled so that convolving the
+    stimulus's sweep with it gives unit gain: the mean of |X(f) F(f)| over
+    √2 f1 … f2/√2, weighted evenly per octave, is 1. A capture equal to the stimulus
+    therefore deconvolves to a unit impulse at lag ``sweep_frames − 1`` of the full
+    convolution, counted from the sweep start.
+    """
+    return _inverse_and_reference(spec)[0]
+
+
+def _inverse_and_reference(spec: SweepSpec) -> tuple[np.ndarray, np.ndarray]:
+    """The inverse filter and the deconvolved sweep itself (sweep * inverse).
+
+    The reference has length 2·sweep_frames (rounded up for the FFT); its zero lag is
+    at index ``sweep_frames − 1``.
+    """
+    sweep = _sweep_only(spec)
+    n = sweep.size
+    tau = np.arange(n) / spec.sample_rate_hz
+    inverse = sweep[::-1] * np.exp(-spec.rate_constant * tau / spec.duration_s)
+    nfft = scipy.fft.next_fast_len(2 * n, real=True)
+    product = scipy.fft.rfft(sweep, nfft) * scipy.fft.rfft(inverse, nfft)
+    magnitude = np.abs(product)
+    freq = scipy.fft.rfftfreq(nfft, 1.0 / spec.sample_rate_hz)
+    band = (freq >= spec.start_hz * math.sqrt(2.0)) & (freq <= spec.stop_hz / math.sqrt(2.0))
+    if np.count_nonzero(band) < 2:
+        band = (freq >= spec.start_hz) & (freq <= spec.stop_hz)
+    if np.count_nonzero(band) < 2:
+        raise InputError(
+            f"the sweep {spec.start_hz:g}–{spec.stop_hz:g} Hz over {spec.duration_s:g} s is "
+            "too short to resolve its own band; make it longer or wider"
+        )
+    weight = 1.0 / freq[band]
+    gain = float(np.sum(magnitude[band] * weight) / np.sum(weight))
+    reference = scipy.fft.irfft(product / gain, nfft)
+    return inverse / gain, reference
+
+
+def harmonic_offsets_s(spec: SweepSpec, orders: int | list[int] = 5) -> dict[int, float]:
+    """Time by which the N-th harmonic impulse response precedes the linear one.
+
+    Δt_N = T ln N / ln(f2 / f1) (Farina 2000), in seconds, for N = 2 … ``orders`` (or the
+    listed orders).
+    """
+    wanted = list(range(2, orders + 1)) if isinstance(orders, int) else list(orders)
+    return {n: spec.duration_s * math.log(n) / spec.rate_constant for n in wanted}
+
+
+def noise_signal(spec: NoiseSpec) -> np.ndarray:
+    """Seeded white or pink noise, shape (frames,), in fractions of full scale.
+
+    Both are shaped in the frequency domain from one Gaussian draw: white keeps the
+    spectrum flat, pink scales bin k by 1/√k (power ∝ 1/f, equal power per octave). The
+    DC bin is removed and the result scaled to the RMS of ``level_dbfs``. The peak is not
+    limited: Gaussian noise has a crest factor of about 4 to 5, so a level above about
+    −15 dBFS may clip when played; :func:`noise_signal` raises if a sample would exceed
+    full scale.
+    """
+    n = spec.frames
+    rng = np.random.default_rng(spec.seed)
+    spectrum = scipy.fft.rfft(rng.standard_normal(n))
+    spectrum[0] = 0.0
+    if spec.color == "pink":
+        k = np.arange(1, spectrum.size)
+        spectrum[1:] /= np.sqrt(k)
+    signal = scipy.fft.irfft(spectrum, n)
+    fade = round(spec.fade_s * spec.sample_rate_hz)
+    signal *= _half_hann_fades(n, fade, fade)
+    target_rms = 10.0 ** (spec.level_dbfs / 20.0) / math.sqrt(2.0)
+    signal *= target_rms / math.sqrt(float(np.mean(signal**2)))
+    peak = float(np.max(np.abs(signal)))
+    if peak > 1.0:
+        raise InputError(
+            f"level_dbfs {spec.level_dbfs:g} dBFS makes the {spec.color} noise peak at "
+            f"{20 * math.log10(peak):+.1f} dB re full scale; lower the level by at least "
+            f"{20 * math.log10(peak):.1f} dB"
+        )
+    return signal

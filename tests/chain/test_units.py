@@ -1,0 +1,155 @@
+"""Parsing and formatting of quantities (piezo.chain.units)."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from piezo.chain.units import (
+    ACCEPTED_UNITS,
+    db_to_ratio,
+    format_quantity,
+    parse_charge_gain,
+    parse_duration,
+    parse_frequency_list,
+    parse_gain,
+    parse_quantity,
+    parse_sensitivity,
+    ratio_to_db,
+)
+from piezo.errors import UnitError
+
+
+@pytest.mark.parametrize(
+    ("text", "unit", "expected"),
+    [
+        ("47n", "F", 47e-9),
+        ("47 nF", "F", 47e-9),
+        ("100 pF", "F", 100e-12),
+        ("1G", "Ohm", 1e9),
+        ("1 GOhm", "Ohm", 1e9),
+        ("1 GΩ", "Ohm", 1e9),
+        ("4k7", "Ohm", 4700.0),
+        ("2M2", "Ohm", 2.2e6),
+        ("2.5 V", "V", 2.5),
+        ("20 uPa", "Pa", 20e-6),
+        ("20 µPa", "Pa", 20e-6),
+        ("48k", "Hz", 48000.0),
+        ("10 kHz", "Hz", 10000.0),
+        ("1e3", "Hz", 1000.0),
+        ("-3.5e-2 V", "V", -0.035),
+        ("4 nV/sqrtHz", "V/sqrtHz", 4e-9),
+        ("90 pF/m", "F/m", 90e-12),
+    ],
+)
+def test_parse_quantity_known_values(text, unit, expected):
+    # SI prefixes per the SI Brochure (BIPM, 9th ed., table 7); relative 1e-12 covers the
+    # decimal-to-binary rounding of the product mantissa * 10^k.
+    assert parse_quantity(text, unit) == pytest.approx(expected, rel=1e-12)
+
+
+def test_unknown_unit_lists_what_is_accepted():
+    with pytest.raises(UnitError, match=r"--cap: unknown unit in '47 nH'; expected .*F"):
+        parse_quantity("47 nH", "F", what="--cap")
+
+
+def test_not_a_number():
+    with pytest.raises(UnitError, match="does not start with a number"):
+        parse_quantity("lots", "V")
+
+
+@pytest.mark.parametrize(
+    ("text", "expected_v_per_pa"),
+    [
+        ("20 mV/Pa", 0.02),
+        ("0.02 V/Pa", 0.02),
+        # -34 dBV/Pa = 10^(-34/20) V/Pa (IEC 60027-3 field-quantity level).
+        ("-34 dBV/Pa", 10 ** (-34 / 20)),
+        ("-34dB re 1V/Pa", 10 ** (-34 / 20)),
+        # Hydrophone form: -196 dB re 1 V/µPa = -76 dB re 1 V/Pa (120 dB per 10^6).
+        ("-196 dBV/uPa", 10 ** (-76 / 20)),
+    ],
+)
+def test_parse_sensitivity(text, expected_v_per_pa):
+    assert parse_sensitivity(text) == pytest.approx(expected_v_per_pa, rel=1e-12)
+
+
+def test_charge_sensitivity_needs_charge_gain():
+    with pytest.raises(UnitError, match="charge-gain"):
+        parse_sensitivity("12 pC/Pa")
+    # 12 pC/Pa through 1 mV/pC is 12 mV/Pa (charge amplifier textbook relation V = Q/Cf).
+    gain = parse_charge_gain("1 mV/pC")
+    assert gain == pytest.approx(1e9)
+    assert parse_sensitivity("12 pC/Pa", charge_gain_v_per_c=gain) == pytest.approx(12e-3)
+
+
+@pytest.mark.parametrize("text", ["0 mV/Pa", "-20 mV/Pa", "nan V/Pa"])
+def test_sensitivity_must_be_positive(text):
+    with pytest.raises(UnitError):
+        parse_sensitivity(text)
+
+
+@pytest.mark.parametrize(
+    ("text", "ratio"),
+    [
+        ("20 dB", 10.0),
+        ("0 dB", 1.0),
+        ("-6.0206 dB", 0.5),
+        ("10", 10.0),
+        ("x2", 2.0),
+        ("10 V/V", 10.0),
+    ],
+)
+def test_parse_gain(text, ratio):
+    assert parse_gain(text) == pytest.approx(ratio, rel=1e-5)
+
+
+@pytest.mark.parametrize("text", ["0", "-3", "loud", "20 dBA"])
+def test_bad_gain(text):
+    with pytest.raises(UnitError):
+        parse_gain(text)
+
+
+@pytest.mark.parametrize(
+    ("text", "seconds"),
+    [("1s", 1.0), ("125 ms", 0.125), ("2 min", 120.0), ("1 h", 3600.0), ("0.5", 0.5)],
+)
+def test_parse_duration(text, seconds):
+    assert parse_duration(text) == pytest.approx(seconds)
+
+
+def test_parse_frequency_list():
+    assert parse_frequency_list("10Hz, 100 Hz,1k") == pytest.approx([10, 100, 1000])
+
+
+def test_db_round_trip():
+    # 20 lg 10 = 20 dB by definition of the field-quantity level.
+    assert ratio_to_db(10.0) == pytest.approx(20.0)
+    assert db_to_ratio(ratio_to_db(0.3)) == pytest.approx(0.3)
+
+
+units = st.sampled_from(sorted(ACCEPTED_UNITS))
+magnitudes = st.floats(min_value=1e-14, max_value=1e13, allow_nan=False, allow_infinity=False)
+
+
+@given(value=magnitudes, sign=st.sampled_from([1.0, -1.0]), unit=units)
+def test_format_then_parse_is_identity(value, sign, unit):
+    """Property: parse(format(x)) equals x rounded to the formatted digits."""
+    x = sign * value
+    text = format_quantity(x, unit, digits=6)
+    back = parse_quantity(text, unit)
+    # Six significant digits: the round trip can differ by half a unit in the 6th digit.
+    assert math.isclose(back, x, rel_tol=5e-6), (x, text, back)
+
+
+@given(st.text(max_size=12))
+def test_parser_never_crashes_unexpectedly(text):
+    """Property: any text either parses or raises UnitError, nothing else."""
+    try:
+        value = parse_quantity(text, "F")
+    except UnitError:
+        return
+    assert math.isfinite(value)

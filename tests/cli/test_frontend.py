@@ -1,0 +1,198 @@
+"""The frontend, simulate and equalize commands: exit codes, JSON, files, errors."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from tests.paths import REPO
+
+DESIGN = """
+name = "test charge amplifier"
+[sensor]
+charge_sensitivity = "12 pC/Pa"
+capacitance = "1 nF"
+[amplifier]
+type = "charge"
+feedback_capacitance = "1 nF"
+feedback_resistance = "1 GOhm"
+voltage_noise = "5 nV/rtHz"
+clip_level = "10 V"
+"""
+
+FS = 48000
+
+
+@pytest.fixture
+def design(tmp_path):
+    path = tmp_path / "amp.toml"
+    path.write_text(DESIGN, encoding="utf-8")
+    return path
+
+
+@pytest.fixture
+def tone(tmp_path):
+    """0.25 s of a 1 kHz sine, 0.5 of full scale, two channels (second at half)."""
+    t = np.arange(FS // 4) / FS
+    x = 0.5 * np.sin(2 * np.pi * 1000 * t)
+    path = tmp_path / "tone.wav"
+    sf.write(str(path), np.column_stack([x, 0.5 * x]), FS, subtype="FLOAT")
+    return path
+
+
+def test_frontend_json_contract(cli, design):
+    r = cli("frontend", design, "--json", "--at", "0.159Hz,10Hz")
+    assert r.code == 0, r.err
+    doc = r.json()
+    # Charge-amplifier relations (reference-values.md): 12 pC/Pa / 1 nF = 12 mV/Pa,
+    # f_c = 1/(2π·1 GΩ·1 nF), τ = 1 s, noise gain 1 + Cs/Cf = 2.
+    assert doc["sensitivity_mv_per_pa"] == pytest.approx(12.0)
+    assert doc["corner_hz"] == pytest.approx(1 / (2 * math.pi), rel=1e-9)
+    assert doc["time_constant_s"] == pytest.approx(1.0)
+    assert doc["noise_gain_midband"] == pytest.approx(2.0)
+    assert doc["band_1db_hz"][1] is None and doc["band_3db_hz"][0] == pytest.approx(
+        doc["corner_hz"]
+    )
+    assert isinstance(doc["self_noise_dba"], float)
+    assert [p["frequency_hz"] for p in doc["phase"]] == [0.159, 10.0]
+    assert doc["phase"][0]["phase_deg"] == pytest.approx(45.0, abs=0.1)
+    assert {s["source"] for s in doc["noise_budget"]} == {"feedback_resistance", "voltage_noise"}
+    assert "high voltages" in doc["caution"]
+
+
+def test_frontend_terminal_output_has_budget_and_caution(cli):
+    r = cli("frontend", REPO / "recordings" / "designs" / "film-buffer-voltage.toml")
+    assert r.code == 0, r.err
+    assert "Noise budget" in r.out
+    assert "Rin thermal" in r.out
+    assert "high voltages" in r.out and "confirm them by measurement" in r.out
+
+
+def test_frontend_vary_and_plot(cli, design, tmp_path):
+    png = tmp_path / "plots" / "amp.png"
+    r = cli(
+        "frontend", design, "--json", "--vary", "feedback_resistance=100M:10G:3", "--plot", png
+    )
+    assert r.code == 0, r.err
+    rows = r.json()["vary"]["rows"]
+    assert [row["value"] for row in rows] == pytest.approx([1e8, 1e9, 1e10])
+    # f_c = 1/(2π Rf Cf) scales as 1/Rf.
+    assert [row["corner_hz"] for row in rows] == pytest.approx(
+        [1 / (2 * math.pi * rf * 1e-9) for rf in (1e8, 1e9, 1e10)], rel=1e-9
+    )
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    r = cli("frontend", design, "--vary", "feedback_resistance=100M:10G:3")
+    assert r.code == 0 and "Trade-off over feedback_resistance" in r.out
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (("--vary", "feedback_resistance=100M:10G"), "expected NAME=LO:HI:N"),
+        (("--vary", "capacitance=1n:2n:3"), "ambiguous"),
+        (("--vary", "feedback_resistance=1 GF:10G:3"), "feedback_resistance = '1 GF'"),
+        (("--at", "ten hertz"), "--at"),
+    ],
+)
+def test_frontend_bad_options_exit_2(cli, design, args, message):
+    r = cli("frontend", design, *args)
+    assert r.code == 2
+    assert r.err.count("\n") == 1 and r.err.startswith("piezo: error: ")
+    assert message in r.err
+
+
+def test_bad_design_gives_one_line_and_exit_2(cli, tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(DESIGN.replace('capacitance = "1 nF"', 'capacitance = "1 nX"', 1))
+    r = cli("frontend", bad)
+    assert r.code == 2
+    assert r.err == (
+        f"piezo: error: {bad}: [sensor] capacitance = '1 nX': unknown unit in '1 nX'; "
+        "expected a number with an optional SI prefix (f p n u m k M G T) and unit F\n"
+    )
+    assert r.out == ""
+    r = cli("frontend", tmp_path / "none.toml")
+    assert r.code == 2 and "design file not found" in r.err
+
+
+def test_simulate_writes_volts(cli, design, tone, tmp_path):
+    out = tmp_path / "sim.wav"
+    # The samples read as pascals with 1 V/Pa: 0.5 Pa peak at 1 kHz.
+    r = cli(
+        "simulate", tone, "--frontend", design, "--out", out, "--sensitivity", "1 V/Pa", "--json"
+    )
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["frames"] == FS // 4 and doc["output_unit"] == "V"
+    assert doc["max_error_db"] < 0.05
+    y, rate = sf.read(str(out))
+    assert rate == FS and y.shape == (FS // 4, 2)
+    # 0.5 Pa × 12 mV/Pa = 6 mV peak, inverted; the 0.16 Hz corner is 2e-8 dB down at 1 kHz
+    # and the realisation within 0.05 dB: rtol 0.6 % covers it.
+    assert np.max(np.abs(y[FS // 8 :, 0])) == pytest.approx(6e-3, rel=6e-3)
+    assert doc["peak_v"][1] == pytest.approx(3e-3, rel=6e-3)
+    assert doc["clipped_samples"] == [0, 0]
+    # An existing output is not replaced without --force.
+    r = cli("simulate", tone, "--frontend", design, "--out", out, "--sensitivity", "1 V/Pa")
+    assert r.code == 2 and "use --force" in r.err
+    r = cli(
+        "simulate", tone, "--frontend", design, "--out", out, "--sensitivity", "1 V/Pa", "--force"
+    )
+    assert r.code == 0 and "high voltages" in r.out
+
+
+def test_simulate_charge_input(cli, design, tone, tmp_path):
+    out = tmp_path / "q.wav"
+    r = cli(
+        "simulate", tone, "--frontend", design, "--out", out, "--input", "charge",
+        "--charge-unit", "1 nC", "--channel", "0", "--json",
+    )  # fmt: skip
+    assert r.code == 0, r.err
+    # 0.5 V of samples = 0.5 nC peak through 1 mV/pC = 0.5 V.
+    assert r.json()["peak_v"][0] == pytest.approx(0.5, rel=6e-3)
+
+
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        ((), "give its sensitivity"),
+        (("--input", "charge"), "needs --charge-unit"),
+        (("--input", "voltage"), "--input must be"),
+    ],
+)
+def test_simulate_refusals(cli, design, tone, tmp_path, extra, message):
+    r = cli("simulate", tone, "--frontend", design, "--out", tmp_path / "x.wav", *extra)
+    assert r.code == 2 and message in r.err
+    assert not (tmp_path / "x.wav").exists()
+
+
+def test_simulate_needs_a_float_format(cli, design, tone, tmp_path):
+    r = cli("simulate", tone, "--frontend", design, "--out", tmp_path / "x.flac")
+    assert r.code == 2 and "float samples" in r.err
+
+
+def test_equalize_reports_boost_and_keeps_the_scale(cli, design, tone, tmp_path):
+    out = tmp_path / "eq.wav"
+    r = cli("equalize", tone, "--frontend", design, "--corner", "0.05Hz", "--out", out, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    # Shelf depth 20 lg(fc/ft) with fc = 1/(2π) Hz and ft = 0.05 Hz.
+    assert doc["boost_db"] == pytest.approx(20 * math.log10(1 / (2 * math.pi) / 0.05), rel=1e-9)
+    assert doc["max_error_db"] < 0.05
+    y, _ = sf.read(str(out))
+    # Midband gain 1: a 1 kHz tone keeps its amplitude (0.5 of full scale) to within the
+    # shelf's residue at 1 kHz, (0.16/1000)² → 1e-7 dB, and the 0.05 dB realisation.
+    assert np.max(np.abs(y[FS // 8 :, 0])) == pytest.approx(0.5, rel=6e-3)
+    r = cli("equalize", tone, "--frontend", design, "--corner", "1Hz", "--out", tmp_path / "e.wav")
+    assert r.code == 2 and "not below the front-end's corner" in r.err
+    r = cli(
+        "equalize", tone, "--frontend", design, "--corner", "0.1mHz", "--out", tmp_path / "e.wav"
+    )
+    assert r.code == 2 and "limit 40 dB" in r.err
+    r = cli(
+        "equalize", tone, "--frontend", design, "--corner", "20 mHz", "--out", tmp_path / "t.wav"
+    )
+    assert r.code == 0 and "low-frequency boost up to 18.0 dB" in r.out

@@ -1,0 +1,138 @@
+"""Command-line tests of ``piezo levels``: exit codes, the JSON contract, defaults."""
+
+from __future__ import annotations
+
+import inspect
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from piezo.cli.levels import LEVEL_KEYS
+from piezo.levels.meter import FILTER_SETTLE_S, LevelMeter, sound_levels
+
+FS = 48000
+RECORDINGS = Path(__file__).resolve().parents[2] / "recordings"
+
+# The issue's JSON contract: these keys must be present in every channel entry.
+CONTRACT_KEYS = {
+    "channel", "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin", "LCpeak",
+    "LZpeak", "LAE", "LAF10", "LAF50", "LAF90", "duration_s",
+}  # fmt: skip
+
+
+@pytest.fixture
+def tone_and_silence(tmp_path):
+    """2 s, 2 channels, 24-bit: ch 0 a 1 kHz sine of 0.5 (fraction of full scale RMS),
+    ch 1 digital silence."""
+    t = np.arange(2 * FS) / FS
+    x = np.zeros((2 * FS, 2))
+    x[:, 0] = 0.5 * math.sqrt(2) * np.sin(2 * np.pi * 1000 * t)
+    path = tmp_path / "tone.wav"
+    sf.write(path, x, FS, subtype="PCM_24")
+    return path
+
+
+def test_levels_json_contract(cli, tone_and_silence):
+    res = cli("levels", tone_and_silence, "--sensitivity", "1 V/Pa", "--json")
+    assert res.code == 0, res.err
+    doc = res.json()
+    assert doc["unit"] == "Pa" and doc["reference"] == pytest.approx(20e-6)
+    tone, silent = doc["channels"]
+    assert CONTRACT_KEYS <= set(tone) and CONTRACT_KEYS <= set(silent)
+    # 1 V full scale, 1 V/Pa: 0.5 Pa RMS = 20 lg(0.5 / 20e-6) = 87.96 dB (computed); the
+    # 24-bit quantisation and filter start-up are far below the 0.02 dB allowed.
+    for key in ("LZeq", "LAeq", "LCeq"):
+        assert abs(tone[key] - 87.96) <= 0.02
+    assert tone["duration_s"] == pytest.approx(2.0)
+    # An all-zero channel: null levels with a note, never -inf.
+    assert all(silent[key] is None for key in LEVEL_KEYS)
+    assert any("all zeros" in note for note in silent["notes"])
+
+
+def test_levels_uncalibrated_is_db_re_1_volt(cli, tone_and_silence):
+    res = cli("levels", tone_and_silence, "--channel", "0", "--json")
+    assert res.code == 0, res.err
+    doc = res.json()
+    assert doc["unit"] == "V" and doc["reference"] == 1.0
+    assert [c["channel"] for c in doc["channels"]] == [0]
+    assert abs(doc["channels"][0]["LZeq"] - 20 * math.log10(0.5)) <= 0.02
+
+
+def test_levels_history(cli, tone_and_silence):
+    res = cli("levels", tone_and_silence, "--interval", "500 ms", "--channel", "0", "--json")
+    assert res.code == 0, res.err
+    hist = res.json()["history"]
+    assert hist["interval_start_s"] == pytest.approx([0.0, 0.5, 1.0, 1.5])
+    assert hist["trace_interval_s"] == pytest.approx(0.1)
+    assert len(hist["channels"][0]["LAF"]) == 20
+    assert all(abs(v - 20 * math.log10(0.5)) < 0.05 for v in hist["channels"][0]["LAeq"])
+
+
+def test_levels_terminal_table(cli, tone_and_silence):
+    res = cli("levels", tone_and_silence, "--sensitivity", "1 V/Pa")
+    assert res.code == 0, res.err
+    # 87.96 dB printed to 0.1 dB.
+    assert "LAeq" in res.out and "LAF90" in res.out and "88.0" in res.out
+    assert "not a certified sound level meter" in res.out.replace("\n", " ")
+
+
+def test_cli_defaults_equal_library_defaults(cli, tone_and_silence):
+    # The CLI passes nothing it was not given: its numbers are the library's defaults.
+    doc = cli("levels", tone_and_silence, "--json").json()
+    x, fs = sf.read(tone_and_silence, dtype="float64", always_2d=True)
+    lib = sound_levels(x, fs, reference=1.0)
+    for entry, ch in zip(doc["channels"], lib.channels, strict=True):
+        for key in LEVEL_KEYS:
+            assert entry[key] == (
+                None if getattr(ch, key) is None else pytest.approx(getattr(ch, key), rel=1e-12)
+            )
+    defaults = {name: p.default for name, p in inspect.signature(LevelMeter).parameters.items()}
+    assert doc["percentile_interval_s"] == pytest.approx(defaults["percentile_interval_s"])
+    assert doc["start_up_excluded_s"]["LAFmax"] == pytest.approx(defaults["filter_settle_s"])
+    assert defaults["filter_settle_s"] == FILTER_SETTLE_S
+    assert "history" not in doc and defaults["interval_s"] is None
+
+
+def test_levels_settle_zero_keeps_an_event_at_the_start(cli, tmp_path):
+    # A tap in the first 10 ms: excluded from LCpeak by default (with a note), kept with
+    # --settle 0.
+    x = np.zeros(FS)
+    x[100:148] = 0.8 * np.hanning(48)
+    x[148:] = 1e-4 * np.random.default_rng(3).standard_normal(FS - 148)
+    path = tmp_path / "tap.wav"
+    sf.write(path, x, FS, subtype="PCM_24")
+    default = cli("levels", path, "--json").json()["channels"][0]
+    kept = cli("levels", path, "--settle", "0", "--json").json()["channels"][0]
+    assert any("largest sample" in note for note in default["notes"])
+    assert kept["LCpeak"] > default["LCpeak"] + 20
+
+
+@pytest.mark.parametrize(
+    "options, message",
+    [
+        (["--interval", "0 s"], "--interval: must be positive"),
+        (["--settle", "-1"], "--settle must be 0 or more"),
+        (["--interval", "fast"], "--interval"),
+    ],
+)
+def test_levels_bad_options(cli, tone_and_silence, options, message):
+    res = cli("levels", tone_and_silence, *options)
+    assert res.code == 2
+    assert message in res.err and res.out == ""
+
+
+@pytest.mark.parametrize(
+    "name, unit, channels",
+    [("pump-bench.flac", "Pa", 2), ("tank-hydrophone.flac", "Pa", 1), ("tap-test.csv", "V", 2)],
+)
+def test_levels_on_demo_recordings(cli, name, unit, channels):
+    res = cli("levels", RECORDINGS / name, "--json")
+    assert res.code == 0, res.err
+    doc = res.json()
+    assert doc["unit"] == unit and len(doc["channels"]) == channels
+    for ch in doc["channels"]:
+        # An RMS never exceeds the peak of the same signal.
+        assert ch["LZeq"] is not None and ch["LZeq"] <= ch["LZpeak"]

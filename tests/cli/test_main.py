@@ -1,0 +1,252 @@
+"""The command line: info, calibrate, demo, global options and bad input handling."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from piezo import __version__
+from piezo.cli import COMMAND_MODULES, app
+from piezo.tone.calibrator import calibrator_pressure_pa
+
+
+def test_version(cli):
+    r = cli("--version")
+    assert r.code == 0
+    assert r.out.strip() == f"piezo {__version__}"
+
+
+def test_help_lists_every_command(cli):
+    r = cli("--help")
+    assert r.code == 0
+    names = {c.name for c in app.registered_commands} | {g.name for g in app.registered_groups}
+    for name in names:
+        assert name in r.out
+    assert len(names) >= len(COMMAND_MODULES)
+
+
+def test_python_dash_m_works(tmp_path):
+    r = subprocess.run(
+        [sys.executable, "-m", "piezo", "--version"], capture_output=True, text=True, check=False
+    )
+    assert r.returncode == 0
+    assert r.stdout.strip() == f"piezo {__version__}"
+
+
+@pytest.fixture
+def full_scale_sine(tmp_path):
+    fs = 48000
+    t = np.arange(fs) / fs
+    x = np.sin(2 * np.pi * 1000 * t)
+    path = tmp_path / "fs.wav"
+    sf.write(str(path), np.column_stack([x, 0.5 * x]), fs, subtype="DOUBLE")
+    return path
+
+
+def test_info_json_contract(cli, full_scale_sine):
+    r = cli("info", full_scale_sine, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["sample_rate_hz"] == 48000
+    assert doc["frames"] == 48000
+    assert doc["duration_s"] == pytest.approx(1.0)
+    ch0, ch1 = doc["channels"]
+    assert ch0["channel"] == 0
+    # AES17: a full-scale sine has peak 0 dBFS and RMS 0 dBFS.
+    assert ch0["peak_dbfs"] == pytest.approx(0.0, abs=1e-6)
+    assert ch0["rms_dbfs"] == pytest.approx(0.0, abs=1e-6)
+    # Half amplitude: -6.02 dB (20 lg 0.5).
+    assert ch1["rms_dbfs"] == pytest.approx(-6.0206, abs=1e-3)
+    assert doc["unit"] == "V"
+
+
+def test_info_calibrated(cli, full_scale_sine):
+    r = cli(
+        "info",
+        full_scale_sine,
+        "--json",
+        "--sensitivity",
+        "10 mV/Pa",
+        "--full-scale",
+        "2 V",
+        "--gain",
+        "20 dB",
+        "--channel",
+        "1",
+    )
+    doc = r.json()
+    (ch,) = doc["channels"]
+    assert ch["channel"] == 1
+    # 0.5 FS sine: RMS 0.5/√2 FS x 2 V / 10 / 0.01 V/Pa = 7.071 Pa.
+    assert ch["rms_pa"] == pytest.approx(7.0711, rel=1e-4)
+    assert ch["rms_db"] == pytest.approx(20 * np.log10(7.0711 / 20e-6), abs=1e-3)
+
+
+def calibrator_file(tmp_path, *, sens=0.0085, gain_db=20.0, full_scale=2.0, level=94.0):
+    fs = 48000
+    t = np.arange(3 * fs) / fs
+    p = calibrator_pressure_pa(level) * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t)
+    raw = p * sens * 10 ** (gain_db / 20) / full_scale
+    path = tmp_path / "cal.wav"
+    sf.write(str(path), raw, fs, subtype="PCM_24")
+    return path
+
+
+def test_calibrate_json_contract(cli, tmp_path):
+    path = calibrator_file(tmp_path)
+    r = cli("calibrate", path, "--gain", "20 dB", "--full-scale", "2 V", "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert set(doc) >= {
+        "sensitivity_mv_per_pa",
+        "sensitivity_dbv_per_pa",
+        "tone_hz",
+        "residual_db",
+    }
+    # 24-bit quantisation of a -27 dBFS tone leaves ~ -120 dB re tone: 1e-4 is ample.
+    assert doc["sensitivity_mv_per_pa"] == pytest.approx(8.5, rel=1e-4)
+    assert doc["sensitivity_dbv_per_pa"] == pytest.approx(20 * np.log10(0.0085), abs=1e-3)
+    assert doc["tone_hz"] == pytest.approx(1000.0, rel=1e-5)
+
+
+def test_calibrate_114_db(cli, tmp_path):
+    path = calibrator_file(tmp_path, level=114.0, gain_db=0.0)
+    r = cli("calibrate", path, "--level", "114", "--full-scale", "2 V", "--json")
+    assert r.json()["sensitivity_mv_per_pa"] == pytest.approx(8.5, rel=1e-4)
+
+
+def test_calibrate_writes_profile(cli, tmp_path):
+    path = calibrator_file(tmp_path)
+    prof = tmp_path / "cal.toml"
+    prof.write_text('[sensor]\nname = "x"\n\n[chain]\ngain = "20 dB"\nfull_scale = "2 V"\n')
+    r = cli("calibrate", path, "--write-profile", prof)
+    assert r.code == 0, r.err
+    text = prof.read_text()
+    assert 'sensitivity = "8.5 mV/Pa"' in text
+    # The sidecar is now read automatically: 94 dB comes back from info.
+    doc = cli("info", path, "--json").json()
+    assert doc["channels"][0]["rms_db"] == pytest.approx(94.0, abs=0.01)
+
+
+def test_demo_writes_recordings_that_analyse(cli, tmp_path):
+    r = cli("demo", "--out", tmp_path)
+    assert r.code == 0, r.err
+    cal = cli("calibrate", tmp_path / "calibrator-94dB.wav", "--json").json()
+    # The demo's film element was made with 8.5 mV/Pa; the 42 dB room noise in the
+    # one-third-octave band sits ~60 dB under the tone, so 0.05 % is ample.
+    assert cal["sensitivity_mv_per_pa"] == pytest.approx(8.5, rel=5e-4)
+    hyd = cli("info", tmp_path / "tank-hydrophone.flac", "--json").json()
+    assert hyd["level_unit"] == "dB re 1 µPa"
+
+
+# --- bad input: one line on stderr naming the file, exit 2, no traceback -----------------
+
+
+def make_bad(tmp_path, kind):
+    p = tmp_path / "bad.wav"
+    if kind == "missing":
+        return tmp_path / "missing.wav", "no such file"
+    if kind == "directory":
+        return tmp_path, "is a directory"
+    if kind == "empty":
+        p.write_bytes(b"")
+        return p, "empty"
+    if kind == "text":
+        p.write_text("hello, I am a text file\n" * 10)
+        return p, "not a readable audio file"
+    if kind == "garbage":
+        p.write_bytes(b"RIFF\x10\x00\x00\x00WAVEfmt " + bytes(range(256)) * 4)
+        return p, "not a readable audio file"
+    if kind == "zero_frames":
+        sf.write(str(p), np.zeros((0, 1)), 8000)
+        return p, "no samples"
+    if kind == "truncated":
+        q = tmp_path / "bad.flac"
+        sf.write(str(q), np.random.default_rng(1).uniform(-1, 1, 96000), 48000)
+        q.write_bytes(q.read_bytes()[:20000])
+        return q, "bad.flac"
+    if kind == "truncated_wav":
+        sf.write(str(p), np.random.default_rng(1).uniform(-1, 1, 96000), 48000)
+        p.write_bytes(p.read_bytes()[:20000])
+        return p, "truncated: the header announces 96000 frames"
+    if kind == "nan_csv":
+        q = tmp_path / "bad.csv"
+        q.write_text("time,v\n0,1\n0.001,nan\n0.002,3\n")
+        return q, "non-finite value"
+    if kind == "uneven_csv":
+        q = tmp_path / "bad.csv"
+        q.write_text("time,v\n0,1\n0.001,2\n0.0025,3\n0.0035,4\n")
+        return q, "not uniformly spaced"
+    raise AssertionError(kind)
+
+
+@pytest.mark.parametrize(
+    "kind",
+    [
+        "missing",
+        "directory",
+        "empty",
+        "text",
+        "garbage",
+        "zero_frames",
+        "truncated",
+        "nan_csv",
+        "uneven_csv",
+    ],
+)
+def test_bad_files(cli, tmp_path, kind):
+    path, message = make_bad(tmp_path, kind)
+    r = cli("info", path)
+    assert r.code == 2
+    lines = r.err.strip().splitlines()
+    assert len(lines) == 1, r.err
+    assert lines[0].startswith("piezo: error: ")
+    assert str(path) in lines[0]
+    assert message in lines[0]
+    assert "Traceback" not in r.err
+
+
+@pytest.mark.parametrize(
+    ("options", "message"),
+    [
+        (["--sensitivity", "12 mV"], "--sensitivity: cannot read sensitivity '12 mV'"),
+        (["--sensitivity", "0 mV/Pa"], "sensitivity must be positive"),
+        (["--sensitivity", "-5 mV/Pa"], "sensitivity must be positive"),
+        (["--gain", "3 furlongs"], "--gain"),
+        (["--full-scale", "2 A"], "--full-scale: unknown unit in '2 A'"),
+        (["--channel", "5"], "channel 5 is out of range"),
+        (["--sensitivity", "12 pC/Pa"], "--charge-gain"),
+    ],
+)
+def test_bad_options(cli, full_scale_sine, options, message):
+    r = cli("info", full_scale_sine, *options)
+    assert r.code == 2
+    lines = r.err.strip().splitlines()
+    assert len(lines) == 1, r.err
+    assert message in lines[0]
+    assert str(full_scale_sine) in lines[0]
+    assert "Traceback" not in r.err
+
+
+def test_debug_shows_the_traceback(tmp_path):
+    r = subprocess.run(
+        [sys.executable, "-m", "piezo", "info", str(tmp_path / "missing.wav"), "--debug"],
+        capture_output=True,
+        text=True,
+        check=False,
+    )
+    assert r.returncode != 0
+    assert "Traceback" in r.stderr
+    assert "RecordingError" in r.stderr
+
+
+def test_json_output_is_one_document_and_nothing_else(cli, full_scale_sine):
+    r = cli("info", full_scale_sine, "--json")
+    import json
+
+    json.loads(r.out)  # raises if anything else is on stdout
+    assert r.err == ""

@@ -1,0 +1,202 @@
+"""Command line: piezo spectrum, piezo bands, piezo tone (exit codes, JSON contracts)."""
+
+from __future__ import annotations
+
+import csv
+import inspect
+import math
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from piezo.cli import bands as cli_bands
+from piezo.cli import spectrum as cli_spectrum
+from piezo.spectral.bands import BandAnalyzer
+from piezo.spectral.welch import WelchPSD
+
+FS = 48000
+#: 1 Pa RMS = 93.979 dB re 20 µPa (reference-values.md).
+ONE_PA_DB = 93.979
+
+
+@pytest.fixture
+def tone_wav(tmp_path):
+    """2 s of a 1 kHz sine, 0.1 full scale RMS, with 1 % second harmonic; with
+    --sensitivity 100 mV/Pa (full scale 1 V) it is a 1 Pa RMS tone."""
+    t = np.arange(2 * FS) / FS
+    x = 0.1 * math.sqrt(2) * (np.sin(2 * np.pi * 1000 * t) + 0.01 * np.sin(2 * np.pi * 2000 * t))
+    # 10 ms raised-cosine fade-in: no switch-on click spreading into other bands.
+    ramp = int(0.01 * FS)
+    x[:ramp] *= 0.5 - 0.5 * np.cos(np.pi * np.arange(ramp) / ramp)
+    path = tmp_path / "tone.wav"
+    sf.write(str(path), np.column_stack([x, 0.5 * x]), FS, subtype="DOUBLE")
+    return path
+
+
+SENS = ("--sensitivity", "100 mV/Pa")
+
+
+def test_spectrum_json_contract(cli, tone_wav, tmp_path):
+    out_csv, out_png = tmp_path / "psd.csv", tmp_path / "psd.png"
+    r = cli("spectrum", tone_wav, *SENS, "--json", "--resolution", "10Hz",
+            "--csv", out_csv, "--plot", out_png)  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["unit"] == "Pa^2/Hz"
+    assert doc["averages"] >= 1 and doc["enbw_hz"] > 0
+    ch0 = doc["channels"][0]
+    assert ch0["channel"] == 0
+    assert len(ch0["frequency_hz"]) == len(ch0["psd"])
+    assert doc["resolution_hz"] <= 10.0
+    # Parseval over the PSD gives the tone's mean square (1 Pa² + 1e-4) within 0.5 %.
+    assert ch0["mean_square"] == pytest.approx(1.0001, rel=0.005)
+    assert doc["channels"][1]["mean_square"] == pytest.approx(0.25 * 1.0001, rel=0.005)
+    rows = list(csv.reader(out_csv.read_text().splitlines()))
+    assert rows[0][:3] == ["frequency_hz", "ch0_Pa^2/Hz", "ch0_dB"]
+    assert len(rows) == len(ch0["psd"]) + 1
+    assert out_png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_spectrum_uncalibrated_and_options(cli, tone_wav):
+    r = cli("spectrum", tone_wav, "--json", "--window", "flattop", "--average", "median",
+            "--overlap", "0.75", "--scaling", "spectrum", "--channel", "1")  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["unit"] == "V^2"
+    assert [c["channel"] for c in doc["channels"]] == [1]
+    assert doc["confidence"]["lower_db"] is None  # no chi-square interval for a median
+
+
+def test_spectrum_text_output(cli, tone_wav):
+    r = cli("spectrum", tone_wav, *SENS)
+    assert r.code == 0, r.err
+    assert "averages" in r.out and "RMS Pa" in r.out
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (("--window", "kaiser"), "--window must be one of"),
+        (("--average", "mode"), "--average must be one of"),
+        (("--resolution", "0.01Hz"), "fewer than one segment"),
+        (("--resolution", "fast"), "--resolution"),
+    ],
+)
+def test_spectrum_bad_options_exit_2(cli, tone_wav, args, message):
+    r = cli("spectrum", tone_wav, *args)
+    assert r.code == 2
+    assert message in r.err and r.err.startswith("piezo: error:")
+
+
+def test_spectrum_defaults_match_library():
+    params = inspect.signature(cli_spectrum.spectrum).parameters
+    lib = inspect.signature(WelchPSD).parameters
+    for name in ("window", "overlap", "average", "scaling"):
+        assert params[name].default == lib[name].default, name
+
+
+def test_bands_json_contract(cli, tone_wav, tmp_path):
+    out_csv = tmp_path / "bands.csv"
+    r = cli("bands", tone_wav, *SENS, "--json", "--fraction", "3", "--csv", out_csv)
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["fraction"] == 3
+    bands = doc["channels"][0]["bands"]
+    assert bands[0]["nominal_hz"] == 20 and bands[-1]["nominal_hz"] == 20000
+    k = next(b for b in bands if b["nominal_hz"] == 1000)
+    assert k["exact_hz"] == 1000.0
+    # 1 Pa tone at 1 kHz: 93.98 dB in its band; the 2 s Leq includes the 10 ms fade-in
+    # (-0.01 dB) and the filters' start-up: 0.05 dB.
+    assert k["level_db"] == pytest.approx(ONE_PA_DB, abs=0.05)
+    two_k = next(b for b in bands if b["nominal_hz"] == 2000)
+    assert two_k["level_db"] == pytest.approx(ONE_PA_DB - 40, abs=0.05)  # 1 % harmonic
+    rows = list(csv.reader(out_csv.read_text().splitlines()))
+    assert rows[0] == ["nominal_hz", "exact_hz", "ch0_dB", "ch1_dB"]
+    assert len(rows) == 32
+
+
+def test_bands_history_and_range(cli, tone_wav):
+    r = cli("bands", tone_wav, *SENS, "--json", "--fraction", "1", "--low", "250Hz",
+            "--high", "4kHz", "--interval", "0.5s", "--channel", "0")  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    ch = doc["channels"][0]
+    assert [b["nominal_hz"] for b in ch["bands"]] == [250, 500, 1000, 2000, 4000]
+    assert ch["history"]["time_s"] == [0.0, 0.5, 1.0, 1.5]
+    assert ch["history"]["level_db"][-1][2] == pytest.approx(ONE_PA_DB, abs=0.005)
+
+
+def test_bands_bad_fraction_exit_2(cli, tone_wav):
+    r = cli("bands", tone_wav, "--fraction", "5")
+    assert r.code == 2 and "--fraction must be one of" in r.err
+
+
+def test_bands_defaults_match_library():
+    params = inspect.signature(cli_bands.bands).parameters
+    lib = inspect.signature(BandAnalyzer).parameters
+    assert params["fraction"].default == lib["fraction"].default
+
+
+def test_tone_json_contract(cli, tone_wav):
+    r = cli("tone", tone_wav, *SENS, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    c0, c1 = doc["channels"]
+    assert c0["channel"] == 0
+    assert c0["frequency_hz"] == pytest.approx(1000.0, rel=1e-6)
+    assert c0["level_db"] == pytest.approx(ONE_PA_DB, abs=0.001)
+    assert c1["level_db"] == pytest.approx(ONE_PA_DB - 6.0206, abs=0.001)  # half amplitude
+    assert c0["thd_percent"] == pytest.approx(1.0, abs=0.01)
+    assert c0["thd_n_percent"] == pytest.approx(100 * 0.01 / math.sqrt(1.0001), abs=0.01)
+    assert c0["sinad_db"] == pytest.approx(40.0, abs=0.01)
+    assert c0["snr_db"] is None
+    assert doc["bandwidth_hz"] == [20.0, 20000.0]
+
+
+def test_tone_with_noise_file(cli, tmp_path):
+    rng = np.random.default_rng(8)
+    t = np.arange(2 * FS) / FS
+    noise = 1e-4 * rng.standard_normal(t.size)
+    tone = 0.1 * math.sqrt(2) * np.sin(2 * np.pi * 1000 * t) + noise
+    sf.write(str(tmp_path / "t.wav"), tone, FS, subtype="DOUBLE")
+    sf.write(str(tmp_path / "n.wav"), noise, FS, subtype="DOUBLE")
+    r = cli("tone", tmp_path / "t.wav", "--json", "--noise", tmp_path / "n.wav",
+            "--bandwidth", "20Hz:20kHz")  # fmt: skip
+    assert r.code == 0, r.err
+    c = r.json()["channels"][0]
+    # Tone 0.1 V RMS over white noise of 1e-4 V: noise in 20 Hz - 20 kHz is
+    # 1e-8·19980/24000 V² (2σ²/fs density); SNR within 0.1 dB (2 s of averaging).
+    want = 10 * math.log10(0.01 / (1e-8 * 19980 / 24000))
+    assert c["snr_db"] == pytest.approx(want, abs=0.1)
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (("--bandwidth", "20Hz-20kHz"), "--bandwidth must look like"),
+        (("--expected", "5kHz"), "no tone found near 5000 Hz"),
+    ],
+)
+def test_tone_errors_exit_2(cli, tone_wav, args, message):
+    r = cli("tone", tone_wav, *args)
+    assert r.code == 2
+    assert message in r.err
+
+
+def test_tone_text_output(cli, tone_wav):
+    r = cli("tone", tone_wav, *SENS)
+    assert r.code == 0, r.err
+    assert "THD+N" in r.out and "93.98" in r.out
+
+
+def test_bands_a_weighting(cli, tone_wav):
+    r = cli("bands", tone_wav, *SENS, "--json", "--weighting", "A", "--channel", "0")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["weighting"] == "A"
+    k = next(b for b in doc["channels"][0]["bands"] if b["nominal_hz"] == 1000)
+    # A-weighting is 0 dB at 1 kHz (IEC 61672-1:2013 table 3).
+    assert k["level_db"] == pytest.approx(ONE_PA_DB, abs=0.05)
+    r = cli("bands", tone_wav, "--weighting", "B")
+    assert r.code == 2 and "--weighting must be A, C or Z" in r.err

@@ -1,0 +1,273 @@
+"""``piezo report``: HTML that parses strictly and renders, JSON that validates, safe text."""
+
+from __future__ import annotations
+
+import base64
+import json
+import re
+import shutil
+import struct
+import subprocess
+
+import html5lib
+import jinja2
+import jsonschema
+import numpy as np
+import pytest
+import referencing
+import soundfile as sf
+
+from piezo.report import render_html
+from tests.paths import RECORDINGS, REPO
+
+CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
+FS = 48000
+
+
+def _schema_validator() -> jsonschema.Draft202012Validator:
+    report = json.loads((REPO / "docs" / "report.schema.json").read_text(encoding="utf-8"))
+    check = json.loads((REPO / "docs" / "check.schema.json").read_text(encoding="utf-8"))
+    registry = referencing.Registry().with_resources(
+        [(s["$id"], referencing.Resource.from_contents(s)) for s in (report, check)]
+    )
+    jsonschema.Draft202012Validator.check_schema(report)
+    return jsonschema.Draft202012Validator(report, registry=registry)
+
+
+@pytest.fixture(scope="module")
+def reports(tmp_path_factory):
+    """Reports of two demo recordings and of a small clipped capture, written once."""
+    from piezo.cli import main
+
+    root = tmp_path_factory.mktemp("reports")
+    t = np.arange(2 * FS) / FS
+    clipped = root / "clipped <b>.wav"  # markup in the name must come out escaped
+    x = np.clip(np.sin(2 * np.pi * 997 * t), -0.8, 0.8)
+    sf.write(
+        str(clipped), np.column_stack([x, 0.3 * np.sin(2 * np.pi * 200 * t)]), FS, subtype="PCM_24"
+    )
+    out = root / "out"
+    files = [clipped, RECORDINGS / "pump-bench.flac", RECORDINGS / "tap-test.csv"]
+    try:
+        main(["report", *map(str, files), "--out", str(out), "--expected-corner", "20 Hz"])
+    except SystemExit as exc:
+        assert exc.code in (0, None)
+    return out
+
+
+def _pages(out):
+    return sorted(out.glob("*.html"))
+
+
+def test_one_html_and_one_json_per_file(reports):
+    names = sorted(p.name for p in reports.iterdir())
+    assert names == [
+        "clipped_b_.report.html",
+        "clipped_b_.report.json",
+        "pump-bench.report.html",
+        "pump-bench.report.json",
+        "tap-test.report.html",
+        "tap-test.report.json",
+    ]
+
+
+def test_html_passes_a_strict_html5_parser(reports):
+    for page in _pages(reports):
+        parser = html5lib.HTMLParser(strict=True)
+        parser.parse(page.read_text(encoding="utf-8"))  # raises on the first parse error
+        assert not parser.errors, (page.name, parser.errors[:3])
+
+
+def test_strict_parser_does_catch_broken_html():
+    # The check above is not a rubber stamp: html5lib's strict mode refuses bad markup.
+    with pytest.raises(html5lib.html5parser.ParseError):
+        html5lib.HTMLParser(strict=True).parse("<!DOCTYPE html><p><table></p>")
+
+
+def test_page_is_self_contained_and_escaped(reports):
+    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    assert "clipped &lt;b&gt;.wav" in page
+    assert "clipped <b>" not in page
+    # No network: nothing is loaded from elsewhere, no scripts at all.
+    assert not re.search(r"""(src|href)=["']?(https?:)?//""", page)
+    assert "<script" not in page
+    assert "<link" not in page
+    # Every image is an embedded PNG.
+    srcs = re.findall(r'<img src="([^"]+)"', page)
+    assert srcs and all(s.startswith("data:image/png;base64,") for s in srcs)
+
+
+def _png_size(uri: str) -> tuple[int, int]:
+    data = base64.b64decode(uri.split(",", 1)[1])
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    return struct.unpack(">II", data[16:24])
+
+
+def test_embedded_figures_are_real_pngs(reports):
+    page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
+    sizes = [_png_size(s) for s in re.findall(r'<img src="([^"]+)"', page)]
+    assert sizes
+    assert all(w >= 600 and h >= 200 for w, h in sizes)
+
+
+def test_cautions_are_stated(reports):
+    doc = json.loads((reports / "pump-bench.report.json").read_text(encoding="utf-8"))
+    page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
+    text = " ".join(doc["cautions"])
+    assert "not a certified sound level meter measurement" in text
+    assert "local regulations" in text and "class 1" in text
+    for caution in doc["cautions"]:
+        assert caution in page
+
+
+def test_json_validates_against_the_shipped_schema(reports):
+    validator = _schema_validator()
+    docs = [json.loads(p.read_text(encoding="utf-8")) for p in sorted(reports.glob("*.json"))]
+    for doc in docs:
+        validator.validate(doc)
+    broken = docs[0]
+    broken["diagnostics"]["channels"][0]["verdict"] = "fine"
+    with pytest.raises(jsonschema.ValidationError):
+        validator.validate(broken)
+
+
+def test_json_and_page_carry_the_same_numbers(reports):
+    doc = json.loads((reports / "clipped_b_.report.json").read_text(encoding="utf-8"))
+    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    ch0 = doc["diagnostics"]["channels"][0]
+    assert ch0["verdict"] == "fail"
+    clip = next(c for c in ch0["checks"] if c["name"] == "clipping")
+    assert clip["evidence"] in page
+    expected = (1 - 2 / np.pi * np.arcsin(0.8)) * 2 * FS  # tests/test_diagnostics.py
+    assert ch0["clipping"]["clipped_samples"] == pytest.approx(expected, rel=0.01)
+
+
+def test_template_refuses_a_missing_value():
+    # StrictUndefined: a document without a section is an error, not a blank page.
+    with pytest.raises(jinja2.UndefinedError, match="no attribute 'software'"):
+        render_html({"report": {}, "recording": {"name": "x"}}, {})
+
+
+def test_report_cli_errors(cli, tmp_path):
+    t = np.arange(FS) / FS
+    good = tmp_path / "good.wav"
+    sf.write(str(good), 0.1 * np.sin(2 * np.pi * 440 * t), FS)
+    missing = tmp_path / "missing.wav"
+    out = tmp_path / "out"
+    r = cli("report", missing, good, "--out", out, "--json")
+    assert r.code == 2  # one file could not be analysed ...
+    doc = r.json()
+    assert [d["file"] for d in doc["reports"]] == [str(good)]  # ... the other still was
+    assert doc["failed"][0]["file"] == str(missing)
+    assert (out / "good.report.html").is_file()
+    not_dir = tmp_path / "file.txt"
+    not_dir.write_text("x")
+    r = cli("report", good, "--out", not_dir)
+    assert r.code == 2
+    assert "not a directory" in r.err
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed: page not rendered")
+def test_page_renders_in_headless_chromium(reports, tmp_path):
+    page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
+    # A probe appended to a copy of the page writes each image's decoded and laid-out
+    # size into the DOM once the page has loaded; the report itself has no script.
+    probe = (
+        "<script>window.addEventListener('load', () => { document.body.setAttribute("
+        "'data-sizes', [...document.images].map(i => i.naturalWidth + 'x' + "
+        "i.naturalHeight + ':' + Math.round(i.getBoundingClientRect().width)).join(' ')); "
+        "});</script>"
+    )
+    probed = tmp_path / "probed.html"
+    probed.write_text(page.replace("</body>", probe + "</body>"), encoding="utf-8")
+    result = subprocess.run(
+        [
+            CHROMIUM,
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            f"--user-data-dir={tmp_path / 'profile'}",
+            "--enable-logging=stderr",
+            "--v=0",
+            "--virtual-time-budget=5000",
+            "--window-size=1200,3000",
+            "--dump-dom",
+            probed.as_uri(),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        check=False,
+    )
+    assert result.returncode == 0, result.stderr[-2000:]
+    console = [line for line in result.stderr.splitlines() if ":CONSOLE" in line]
+    assert console == []
+    m = re.search(r'data-sizes="([^"]*)"', result.stdout)
+    assert m, "the page did not finish loading"
+    sizes = m.group(1).split()
+    assert len(sizes) == page.count("<img ")
+    for item in sizes:
+        natural, shown = item.split(":")
+        w, h = (int(v) for v in natural.split("x"))
+        assert w > 0 and h > 0 and int(shown) > 0, item
+
+
+def test_frontend_design_adds_its_response(cli, tmp_path):
+    t = np.arange(2 * FS) / FS
+    path = tmp_path / "tone.wav"
+    w = 2 * np.pi * 1000 * t
+    x = 0.1 * (np.sin(w) + 0.01 * np.sin(2 * w) + 0.005 * np.sin(3 * w))
+    sf.write(str(path), x, FS, subtype="FLOAT")
+    design = RECORDINGS / "designs" / "pump-disc-charge.toml"
+    out = tmp_path / "out"
+    r = cli("report", path, "--out", out, "--frontend", design)
+    assert r.code == 0, r.err
+    doc = json.loads((out / "tone.report.json").read_text(encoding="utf-8"))
+    fe = doc["frontend"]
+    # Charge amplifier corner f_c = 1/(2 pi R_f C_f) (reference-values.md, circuit
+    # theory): R_f 1 GOhm, C_f 10 nF in this design -> 0.015915 Hz.
+    assert fe["corner_hz"] == pytest.approx(1 / (2 * np.pi * 1e9 * 10e-9), rel=1e-3)
+    assert len(fe["frequency_hz"]) == len(fe["level_db"]) == len(fe["phase_deg"])
+    page = (out / "tone.report.html").read_text(encoding="utf-8")
+    assert "Front-end response" in page
+    assert 'alt="Front-end response"' in page
+    _schema_validator().validate(doc)
+    # The tone section: 1 % second and 0.5 % third harmonic give THD =
+    # sqrt(0.01^2 + 0.005^2) = 1.1180 % (reference-values.md, distortion). The tone
+    # analysis removes the noise floor under each line; with a float file there is none
+    # to speak of, so 0.001 % (a thousandth of the value) is ample.
+    (tone,) = doc["tone"]["channels"]
+    assert tone["present"]
+    assert tone["frequency_hz"] == pytest.approx(1000.0, abs=0.01)
+    assert tone["thd_percent"] == pytest.approx(1.1180, abs=1e-3)
+    assert "THD+N" in page
+    r = cli("report", path, "--out", out, "--frontend", tmp_path / "none.toml")
+    assert r.code == 2
+    assert "design file" in r.err
+
+
+def test_spectrum_sections_agree_with_the_levels(reports):
+    doc = json.loads((reports / "clipped_b_.report.json").read_text(encoding="utf-8"))
+    spec = doc["spectrum"]
+    df = spec["resolution_hz"]
+    for c, levels in enumerate(doc["levels"]["channels"]):
+        # Parseval for a density PSD: sum of PSD x bin width = mean square (Heinzel,
+        # Rudiger, Schilling 2002). LZeq is that mean square in dB; the PSD misses only
+        # the DC bin (a zero-mean signal) and is rounded to 0.01 dB: +-0.05 dB.
+        psd = np.array([v if v is not None else -np.inf for v in spec["level_db"][c]])
+        total_db = 10 * np.log10(np.sum(10 ** (psd / 10)) * df)
+        assert total_db == pytest.approx(levels["LZeq"], abs=0.05)
+    # The band filters' self-test at 48 kHz: IEC 61260-1:2014 class 1 met with about
+    # 0.4 dB to spare (piezo.spectral.bands measures the same in its own tests).
+    bands = doc["conformance"]["bands"]
+    assert bands["passed"] and bands["fraction"] == 3
+    assert bands["worst_margin_db"] > 0.3
+    # No dominant tone in these captures... except channel 0 of the clipped sine.
+    assert doc["tone"]["channels"][0]["present"]
+    pump = json.loads((reports / "pump-bench.report.json").read_text(encoding="utf-8"))
+    assert pump["tone"] is None
