@@ -53,3 +53,7 @@ class RecordingError(PiezoError, OSError):
 
 class SpecError(InputError):
     """A limit specification, profile or design file that is invalid."""
+
+
+class OutputError(PiezoError, OSError):
+    """An output path that cannot be written: a folder, read-only, full disk, a link."""

@@ -20,7 +20,6 @@ import json
 import math
 import os
 import re
-import tempfile
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
@@ -38,12 +37,12 @@ from piezo.batch.stats import (
     yield_fraction,
 )
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, VERDICTS, WARN
+from piezo.io.atomic import write_bytes_atomic
 
 __all__ = [
     "JOURNAL_NAME",
     "RESULT_FILES",
     "Journal",
-    "atomic_write",
     "capture_report_html",
     "junit_xml_text",
     "read_previous_rows",
@@ -59,28 +58,6 @@ __all__ = [
 
 RESULT_FILES = ("results.csv", "junit.xml", "summary.html", "results.json")
 JOURNAL_NAME = ".piezo-batch-journal.jsonl"
-
-
-def atomic_write(path: str | Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` through a temporary file and ``os.replace``."""
-    target = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    try:
-        # mkstemp creates the file private (0600); give it the mode open() would.
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, target)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
 
 
 class Journal:
@@ -527,7 +504,7 @@ def write_outputs(
     }
     written = []
     for name in RESULT_FILES:
-        atomic_write(out / name, texts[name].encode("utf-8"))
+        write_bytes_atomic(out / name, texts[name].encode("utf-8"))
         written.append(out / name)
     return written
 
@@ -542,7 +519,7 @@ def write_capture_report(
     folder = Path(out_dir) / "reports"
     folder.mkdir(parents=True, exist_ok=True)
     name = report_file_name(row["file"])
-    atomic_write(folder / name, capture_report_html(row, spec, data).encode("utf-8"))
+    write_bytes_atomic(folder / name, capture_report_html(row, spec, data).encode("utf-8"))
     return f"reports/{name}"
 
 

@@ -1,7 +1,7 @@
 """Assemble a report: the JSON document, the figures, the HTML page, and write them.
 
 This is the report layer: it may write files (atomically, through
-:func:`piezo.cli.output.atomic_output`), the analysis core does not.
+:func:`piezo.io.atomic.atomic_output`), the analysis core does not.
 """
 
 from __future__ import annotations
@@ -10,6 +10,7 @@ import json
 from pathlib import Path
 from typing import Any
 
+from piezo.io.atomic import atomic_output
 from piezo.plots import figures as plots
 from piezo.report.document import (
     CAUTIONS,
@@ -27,6 +28,7 @@ from piezo.report.document import (
 )
 from piezo.report.html import render_html
 from piezo.report.run import RunResults
+from piezo.results import to_jsonable
 
 __all__ = ["report_document", "report_figures", "write_report"]
 
@@ -34,7 +36,6 @@ __all__ = ["report_document", "report_figures", "write_report"]
 def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
     """The JSON document of a run (``docs/report.schema.json``)."""
     # Imported here: piezo.cli imports every command, and `piezo report` imports us.
-    from piezo.cli.output import to_jsonable
 
     source = run.source
     ref = source.reference
@@ -115,7 +116,6 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
 
 def write_report(run: RunResults, out_dir: Path, stem: str) -> tuple[Path, Path]:
     """Write ``<stem>.html`` and ``<stem>.json`` into ``out_dir`` (atomically each)."""
-    from piezo.cli.output import atomic_output  # see report_document
 
     html_path = out_dir / f"{stem}.html"
     json_path = out_dir / f"{stem}.json"

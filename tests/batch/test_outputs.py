@@ -16,7 +16,6 @@ from piezo.batch import outputs
 from piezo.batch.outputs import (
     JOURNAL_NAME,
     Journal,
-    atomic_write,
     junit_xml_text,
     read_previous_rows,
     results_csv_text,
@@ -27,6 +26,7 @@ from piezo.batch.outputs import (
 )
 from piezo.batch.runner import expand_inputs, run_batch
 from piezo.batch.spec import parse_spec
+from piezo.io.atomic import write_bytes_atomic
 from tests import batch_fakes as fakes
 
 SPEC = parse_spec(fakes.SPEC_TEXT)
@@ -145,7 +145,7 @@ def test_outputs_byte_identical_and_atomic(rows, tmp_path, monkeypatch):
 
     monkeypatch.setattr(os, "replace", broken_replace)
     with pytest.raises(OSError, match="disk full"):
-        atomic_write(tmp_path / "results.csv", b"half")
+        write_bytes_atomic(tmp_path / "results.csv", b"half")
     assert (tmp_path / "results.csv").read_bytes() == first["results.csv"]
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(outputs.RESULT_FILES)
 

@@ -1,0 +1,43 @@
+"""Plain JSON values from result objects: the one conversion every output uses.
+
+Result objects are dataclasses over numbers and numpy arrays. :func:`to_jsonable` turns
+them into JSON values: dataclasses become objects, numpy scalars and arrays numbers and
+lists, paths strings, and non-finite floats ``null`` (JSON has no NaN or infinity).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, is_dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["to_jsonable"]
+
+
+def to_jsonable(obj: Any) -> Any:
+    """Turn result objects into plain JSON values.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> to_jsonable({"level_db": np.float64(94.0), "peaks": np.array([1.0, np.nan])})
+    {'level_db': 94.0, 'peaks': [1.0, None]}
+    """
+    if is_dataclass(obj) and not isinstance(obj, type):
+        return to_jsonable(asdict(obj))
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return to_jsonable(obj.tolist())
+    if isinstance(obj, np.generic):
+        return to_jsonable(obj.item())
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if isinstance(obj, Path):
+        return str(obj)
+    return obj
