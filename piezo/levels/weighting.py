@@ -442,7 +442,7 @@ class FrequencyWeighting:
 
 
 # --- time weighting ------------------------------------------------------------------
-#: Exponential time constants (IEC 61672-1:2013; reference-values.md, V): F 125 ms, S 1 s.
+#: Exponential time constants (IEC 61672-1:2013, time weighting): F 125 ms, S 1 s.
 TIME_CONSTANTS_S: dict[str, float] = {"F": 0.125, "S": 1.0}
 
 

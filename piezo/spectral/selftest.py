@@ -22,7 +22,7 @@ G = OCTAVE_RATIO  # 10^(3/10), IEC 61260-1:2014
 # IEC 61260-1:2014, table 1: class 1 acceptance limits on the relative attenuation (dB)
 # of an octave filter at Omega = f/f_m (above f_m; mirrored below with 1/Omega). The band
 # edge G^(1/2) has a pass-side row (max 5.3) and a stop-side row (min 1.2).
-# (reference-values.md, status V.)
+# (IEC 61260-1:2014, acceptance limits for class 1 filters.)
 _OCTAVE_ROWS = (
     (1.0, -0.4, 0.4),
     (G ** (1 / 8), -0.4, 0.5),

@@ -223,7 +223,7 @@ def _tone_capture(folder, name, *, amplitude_v, harmonics=(), frequency_hz=1000.
 
 def test_tone_metrics_of_a_calibrator_capture(tmp_path):
     spec = parse_spec(TONE_SPEC)
-    # A sensor of 8.5 mV/Pa in a 94 dB calibrator (1.00237 Pa RMS, reference-values.md):
+    # A sensor of 8.5 mV/Pa in a 94 dB calibrator (1.00237 Pa RMS = 20 µPa · 10^(94/20)):
     # tone 8.520 mV RMS; 1 % second and 0.5 % third harmonic: THD 1.1180 % (issue 4
     # check value, sqrt(0.01² + 0.005²)).
     rms = 8.5e-3 * 1.00237
@@ -254,7 +254,7 @@ def test_band_mask_neighbours_attenuated(tmp_path):
     assert mid == pytest.approx(-40.0, abs=0.1)  # 10 mV RMS = -40 dB re 1 V
     # At the neighbouring 1/3-octave mid-bands (Ω = 10^(±0.1)) class 1 filters attenuate
     # at least 13.6 dB: between the band edge (+1.2 dB at Ω = 1.12202) and +16.6 dB at
-    # Ω = 1.29437, interpolated in lg Ω (IEC 61260-1:2014 limits, reference-values.md).
+    # Ω = 1.29437, interpolated in lg Ω (IEC 61260-1:2014 class 1 limits).
     assert low <= mid - 13.6 and high <= mid - 13.6
 
 

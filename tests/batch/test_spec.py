@@ -73,7 +73,7 @@ def test_full_spec_parses_with_resolved_limits():
     # 20 dB voltage gain is a ratio of 10 (20 lg 10 = 20, IEC 60027-3 field quantity).
     assert spec.gain == pytest.approx(10.0, rel=1e-12)
     assert spec.stimulus.kind == "sweep"
-    # 94 dB re 20 µPa = 1.00237 Pa (reference-values.md, computed).
+    # 94 dB re 20 µPa = 1.00237 Pa (20e-6 · 10^(94/20), ISO 1683:2015 reference).
     assert spec.stimulus.level_pa == pytest.approx(1.00237, rel=1e-5)
     names = [m.name for m in spec.metrics]
     assert names == ["sensitivity", "corner", "thd_1k", "mask", "noise_floor"]

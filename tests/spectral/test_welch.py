@@ -132,8 +132,8 @@ def test_welch_spectrum_scaling_equals_scipy():
 
 
 def test_reference_tone_on_bin():
-    # reference-values.md (Heinzel et al. 2002 scaling): fs 48 kHz, N 4096 Hann, 1 Pa RMS
-    # tone on bin 86: spectrum peak 1.000 Pa², density peak 0.056889 Pa²/Hz.
+    # Heinzel, Rüdiger, Schilling 2002 (spectrum and density scaling): fs 48 kHz,
+    # N 4096 Hann, 1 Pa RMS tone on bin 86: spectrum peak 1.000 Pa², density peak 0.056889 Pa²/Hz.
     n = 4096
     t = np.arange(16 * n) / FS
     x = np.sqrt(2) * np.sin(2 * np.pi * 86 * FS / n * t)
@@ -146,7 +146,7 @@ def test_reference_tone_on_bin():
 
 
 def test_white_noise_density_level():
-    # One-sided density of unit-variance white noise is 2/fs (reference-values.md).
+    # One-sided density of unit-variance white noise is 2/fs (Heinzel et al. 2002).
     x = _noise(400_000)
     r = welch_psd(x, FS, segment_frames=256)
     interior = r.psd[2:-2, 0].mean()
@@ -315,7 +315,7 @@ def test_spectrogram_bounded_and_consistent_with_welch():
     assert_allclose(mean, w.psd, rtol=1e-10)
     assert np.all(np.diff(r.time_s) > 0)
     # Calibrated dB: a 1 Pa RMS tone reads 93.98 dB re (20 µPa)² in the spectrum scaling
-    # (reference-values.md: 1 Pa RMS = 93.979 dB).
+    # (1 Pa RMS = 20 lg(1 / 20e-6) = 93.979 dB, ISO 1683:2015 reference).
     n = 4096
     tone = _tone(8 * n, 86 * FS / n)
     s = spectrogram(tone, FS, segment_frames=n, scaling="spectrum")

@@ -27,7 +27,7 @@ def _tone(f0, *, seconds=3.0, rms=1.0, harmonics=(), phase=0.4):
 
 
 def test_one_pascal_1khz_reads_93_98_db():
-    # reference-values.md: 1 Pa RMS = 93.979 dB re 20 µPa (ISO 1683 reference).
+    # 1 Pa RMS = 20 lg(1 / 20e-6) = 93.979 dB re 20 µPa (ISO 1683:2015 reference).
     r = measure_tone(_tone(1000.0), FS)
     assert_allclose(r.level_db(20e-6), 93.979, atol=0.001)
     assert_allclose(r.frequency_hz, 1000.0, rtol=1e-6)
@@ -46,12 +46,13 @@ def test_frequency_better_than_0_01_percent(f0):
 
 @pytest.mark.parametrize("f0", [997.3, 1000.0, 2500.5])
 def test_thd_known_harmonics(f0):
-    # reference-values.md: 1 % second + 0.5 % third harmonic gives
-    # THD = sqrt(0.01² + 0.005²) = 1.1180 %; issue tolerance 0.01 percentage points.
+    # THD re the fundamental (the common definition, common practice): 1 % second + 0.5 % third
+    # harmonic gives THD = sqrt(0.01² + 0.005²) = 1.1180 %; issue tolerance 0.01 percentage points.
     r = measure_tone(_tone(f0, harmonics=[(2, 0.01), (3, 0.005)]), FS)
     assert abs(r.thd_percent - 1.1180) <= 0.01
     # With nothing but harmonics, THD+N re the total is the distortion factor
-    # THD/sqrt(1+THD²) (reference-values.md, "Distortion"); SINAD = -THD+N in dB.
+    # THD/sqrt(1+THD²) (the distortion factor re the total, common definition);
+    # SINAD = -THD+N in dB.
     thd = math.hypot(0.01, 0.005)
     assert_allclose(r.thd_n_ratio, thd / math.sqrt(1 + thd**2), rtol=1e-4)
     assert_allclose(r.sinad_db, -20 * math.log10(r.thd_n_ratio), rtol=1e-12)
@@ -61,7 +62,7 @@ def test_thd_known_harmonics(f0):
 
 def test_thd_with_noise_and_snr():
     # White noise of standard deviation s has one-sided density 2 s²/fs, so its mean
-    # square in 20 Hz - 20 kHz is s²·(19980/24000) (reference-values.md, density of
+    # square in 20 Hz - 20 kHz is s²·(19980/24000) (Heinzel et al. 2002, density of
     # white noise). Three seconds at 1 Hz bins: ~60 000 degrees of freedom, so the
     # noise power is known to ~0.6 %: 0.05 dB on SNR.
     rng = np.random.default_rng(12)
