@@ -77,7 +77,7 @@ def _numba_cache_dir(folder: str) -> Iterator[None]:
     # the setting is changed for piezo's decorations only and put back afterwards.
     import numba
 
-    config = numba.core.config
+    config: Any = numba.core.config  # settings are plain module attributes
     previous = config.CACHE_DIR
     config.CACHE_DIR = folder
     try:

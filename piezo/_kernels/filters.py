@@ -49,6 +49,7 @@ import math
 import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
+from typing import Any
 
 import numba
 import numpy as np
@@ -80,7 +81,7 @@ __all__ = [
     "sosfilt_inplace",
 ]
 
-_OPTIONS = {"nogil": True, "fastmath": {"contract"}, "error_model": "numpy"}
+_OPTIONS: dict[str, Any] = {"nogil": True, "fastmath": {"contract"}, "error_model": "numpy"}
 
 
 def _jit(func: Callable) -> Callable:
@@ -547,10 +548,14 @@ def _bank_kernel(lanes: int) -> Callable:
     # package, so a copy of the two files outside the package works as well).
     module = importlib.import_module(f"{__package__}.bank" if __package__ else "bank")
     func = getattr(module, f"bank{lanes}")
-    config = numba.core.config
+    config: Any = numba.core.config  # settings are plain module attributes
     previous = config.SLP_VECTORIZE
     config.SLP_VECTORIZE = 1
-    options = {"nogil": True, "fastmath": {"contract", "reassoc"}, "error_model": "numpy"}
+    options: dict[str, Any] = {
+        "nogil": True,
+        "fastmath": {"contract", "reassoc"},
+        "error_model": "numpy",
+    }
     try:
         kernel = compile_cached(func, **options)
         kernel.compile(_BANK_SIGNATURE)
