@@ -1,0 +1,323 @@
+"""What a channel measures: the physical quantity, its unit, its level reference.
+
+A piezoelectric sensor turns one mechanical quantity into charge or voltage: sound
+pressure (microphones, hydrophones), acceleration (accelerometers), velocity,
+displacement, or force (force and impact sensors). A channel may also carry a plain
+electrical signal (voltage or charge). Each quantity has one SI unit and one reference
+value for levels in decibels, those of ISO 1683:2015 (Table 1) for the mechanical ones:
+
+============  =======  ==========================================
+quantity      unit     level reference
+============  =======  ==========================================
+pressure      Pa       20 µPa in gases, 1 µPa in liquids
+acceleration  m/s²     1 µm/s²
+velocity      m/s      1 nm/s
+displacement  m        1 pm
+force         N        1 µN
+voltage       V        1 V
+charge        C        1 pC (our convention; no standard sets one)
+============  =======  ==========================================
+
+The standard acceleration of gravity g = 9.80665 m/s² is exact (3rd CGPM, 1901;
+ISO 80000-3:2019), so "mV/g" is an exact form of "mV/(m/s²)".
+
+Sensitivities are read in the trade's forms: ``"12 mV/Pa"``, ``"-38 dB re 1 V/Pa"``,
+``"-196 dB re 1 V/µPa"`` (hydrophones), ``"10.2 mV/g"``, ``"1.04 mV/(m/s²)"``,
+``"0.5 pC/(m/s²)"``, ``"4.9 pC/g"``, ``"4 pC/N"``, ``"2.2 mV/N"``, ``"100 mV/(mm/s)"``,
+``"8 mV/µm"``. :func:`parse_sensitivity_of` returns a :class:`Sensitivity` that knows
+its quantity and whether it is a voltage or a charge sensitivity.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+
+from piezo.errors import UnitError
+
+__all__ = [
+    "QUANTITIES",
+    "STANDARD_GRAVITY_M_PER_S2",
+    "Quantity",
+    "Sensitivity",
+    "format_sensitivity",
+    "parse_sensitivity_of",
+    "quantity_named",
+]
+
+#: Standard acceleration of gravity, exact (3rd CGPM 1901; ISO 80000-3:2019).
+STANDARD_GRAVITY_M_PER_S2 = 9.80665
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A measured quantity: its name, SI unit and reference value for levels.
+
+    Attributes
+    ----------
+    name
+        One of ``pressure``, ``acceleration``, ``velocity``, ``displacement``, ``force``,
+        ``voltage``, ``charge``.
+    unit
+        The SI unit symbol (``"Pa"``, ``"m/s²"``, ...).
+    reference
+        Reference value for levels in dB, in ``unit`` (ISO 1683:2015 for the mechanical
+        quantities; in-air pressure here, see :meth:`level_reference`).
+    reference_text
+        The reference as written in a level's label, e.g. ``"1 µm/s²"``.
+
+    Examples
+    --------
+    >>> q = quantity_named("acceleration")
+    >>> q.unit, q.reference, q.level_label()
+    ('m/s²', 1e-06, 'dB re 1 µm/s²')
+    """
+
+    name: str
+    unit: str
+    reference: float
+    reference_text: str
+
+    @property
+    def mechanical(self) -> bool:
+        """True for the quantities a sensor senses (not voltage or charge)."""
+        return self.name not in ("voltage", "charge")
+
+    @property
+    def weightable(self) -> bool:
+        """True when the A and C frequency weightings apply (sound pressure only)."""
+        return self.name == "pressure"
+
+    def level_reference(self, *, in_water: bool = False) -> float:
+        """Reference value for levels: 1 µPa instead of 20 µPa for pressure in water.
+
+        Examples
+        --------
+        >>> quantity_named("pressure").level_reference(in_water=True)
+        1e-06
+        """
+        if self.name == "pressure" and in_water:
+            return 1e-6
+        return self.reference
+
+    def level_label(self, *, in_water: bool = False) -> str:
+        """How levels of this quantity are labelled, e.g. ``"dB re 20 µPa"``."""
+        if self.name == "pressure" and in_water:
+            return "dB re 1 µPa"
+        return f"dB re {self.reference_text}"
+
+
+#: The quantities, by name (references: ISO 1683:2015, Table 1).
+QUANTITIES: dict[str, Quantity] = {
+    q.name: q
+    for q in (
+        Quantity("pressure", "Pa", 20e-6, "20 µPa"),
+        Quantity("acceleration", "m/s²", 1e-6, "1 µm/s²"),
+        Quantity("velocity", "m/s", 1e-9, "1 nm/s"),
+        Quantity("displacement", "m", 1e-12, "1 pm"),
+        Quantity("force", "N", 1e-6, "1 µN"),
+        Quantity("voltage", "V", 1.0, "1 V"),
+        Quantity("charge", "C", 1e-12, "1 pC"),
+    )
+}
+
+
+def quantity_named(name: str, *, what: str = "quantity") -> Quantity:
+    """The :class:`Quantity` called ``name``; a clear error for any other name.
+
+    Examples
+    --------
+    >>> quantity_named("force").unit
+    'N'
+    >>> quantity_named("speed")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: quantity: unknown quantity 'speed'; one of pressure, \
+acceleration, velocity, displacement, force, voltage, charge
+    """
+    q = QUANTITIES.get(str(name).strip().lower())
+    if q is None:
+        raise UnitError(f"{what}: unknown quantity {name!r}; one of {', '.join(QUANTITIES)}")
+    return q
+
+
+# --- sensitivities -------------------------------------------------------------------
+
+#: Electrical side of a sensitivity: symbol -> (kind, factor to V or C).
+_ELECTRICAL = {
+    "V": ("V", 1.0),
+    "mV": ("V", 1e-3),
+    "µV": ("V", 1e-6),
+    "uV": ("V", 1e-6),
+    "C": ("C", 1.0),
+    "nC": ("C", 1e-9),
+    "pC": ("C", 1e-12),
+    "fC": ("C", 1e-15),
+}
+
+#: Mechanical side: unit text (spaces removed) -> (quantity, factor to the SI unit).
+_MECHANICAL = {
+    "Pa": ("pressure", 1.0),
+    "kPa": ("pressure", 1e3),
+    "µPa": ("pressure", 1e-6),
+    "uPa": ("pressure", 1e-6),
+    "g": ("acceleration", STANDARD_GRAVITY_M_PER_S2),
+    "m/s²": ("acceleration", 1.0),
+    "m/s^2": ("acceleration", 1.0),
+    "m/s2": ("acceleration", 1.0),
+    "m/s": ("velocity", 1.0),
+    "mm/s": ("velocity", 1e-3),
+    "m": ("displacement", 1.0),
+    "mm": ("displacement", 1e-3),
+    "µm": ("displacement", 1e-6),
+    "um": ("displacement", 1e-6),
+    "nm": ("displacement", 1e-9),
+    "N": ("force", 1.0),
+    "kN": ("force", 1e3),
+    "V": ("voltage", 1.0),
+}
+
+_NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+_ELEC = "|".join(sorted((re.escape(k) for k in _ELECTRICAL), key=len, reverse=True))
+_LINEAR_RE = re.compile(rf"^({_NUMBER})\s*({_ELEC})\s*/\s*(.+)$")
+_LEVEL_RE = re.compile(rf"^({_NUMBER})\s*dB\s*(?:re\s*1\s*)?({_ELEC})\s*/\s*(.+)$")
+
+_ACCEPTED = (
+    "'12 mV/Pa', '-38 dB re 1 V/Pa', '-196 dB re 1 V/µPa', '10 mV/g', '1 mV/(m/s²)', "
+    "'0.5 pC/(m/s²)', '4 pC/N', '2 mV/N', '100 mV/(mm/s)'"
+)
+
+
+@dataclass(frozen=True)
+class Sensitivity:
+    """A sensor sensitivity in SI units, with its quantity.
+
+    Attributes
+    ----------
+    value
+        Output per unit of the quantity, in V/unit (``electrical == "V"``) or C/unit
+        (``"C"``), the unit being the quantity's SI unit (Pa, m/s², m/s, m, N).
+    electrical
+        ``"V"`` for a voltage sensitivity, ``"C"`` for a charge sensitivity.
+    quantity
+        The measured quantity.
+
+    Examples
+    --------
+    >>> s = parse_sensitivity_of("10 mV/g")
+    >>> s.quantity.name, s.electrical, round(s.value, 9)
+    ('acceleration', 'V', 0.001019716)
+    """
+
+    value: float
+    electrical: str
+    quantity: Quantity
+
+    def volts_per_unit(self, charge_gain_v_per_c: float | None = None) -> float:
+        """The sensitivity in V per SI unit; a charge sensitivity needs the amplifier gain.
+
+        Examples
+        --------
+        >>> parse_sensitivity_of("4 pC/N").volts_per_unit(1e9)  # 1 mV/pC
+        0.004
+        """
+        if self.electrical == "V":
+            return self.value
+        if charge_gain_v_per_c is None:
+            raise UnitError(
+                "a charge sensitivity needs the charge amplifier's gain (V/C) to become a "
+                "voltage sensitivity"
+            )
+        return self.value * charge_gain_v_per_c
+
+
+def parse_sensitivity_of(
+    text: str, *, quantity: str | None = None, what: str = "sensitivity"
+) -> Sensitivity:
+    """Read a sensitivity in any trade form; its unit tells the quantity.
+
+    Parameters
+    ----------
+    text
+        The sensitivity as written on a data sheet or calibration chart.
+    quantity
+        When given, the quantity the sensitivity must belong to (a mismatch is refused).
+    what
+        Name of the input in error messages.
+
+    Examples
+    --------
+    >>> s = parse_sensitivity_of("-196 dB re 1 V/µPa")
+    >>> s.quantity.name, round(s.value * 1e3, 4)   # mV/Pa
+    ('pressure', 0.1585)
+    >>> parse_sensitivity_of("0.5 pC/(m/s²)").value
+    5e-13
+    >>> parse_sensitivity_of("12 mV/Pa", quantity="force")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: sensitivity: '12 mV/Pa' is a pressure sensitivity, not force
+    """
+    t = str(text).strip()
+    level = _LEVEL_RE.match(t)
+    match = level or _LINEAR_RE.match(t)
+    if match is None:
+        raise UnitError(f"{what}: cannot read {text!r}; accepted forms: {_ACCEPTED}")
+    number = float(match.group(1))
+    kind, electrical_factor = _ELECTRICAL[match.group(2)]
+    mechanical = match.group(3).replace(" ", "")
+    if mechanical.startswith("(") and mechanical.endswith(")"):
+        mechanical = mechanical[1:-1]
+    found = _MECHANICAL.get(mechanical.replace("μ", "µ"))
+    if found is None or found[0] == "voltage":
+        raise UnitError(f"{what}: cannot read the unit of {text!r}; accepted forms: {_ACCEPTED}")
+    name, mechanical_factor = found
+    ratio = 10.0 ** (number / 20.0) if level else number
+    value = ratio * electrical_factor / mechanical_factor
+    if not (math.isfinite(value) and value > 0):
+        raise UnitError(f"{what}: sensitivity must be positive and finite, got {text!r}")
+    q = QUANTITIES[name]
+    if quantity is not None and quantity_named(quantity, what=what) != q:
+        raise UnitError(f"{what}: {text!r} is a {name} sensitivity, not {quantity}")
+    return Sensitivity(value, kind, q)
+
+
+#: Trade form of each quantity's sensitivity: (electrical kind, quantity) -> (text, factor).
+_TRADE_FORMS = {
+    ("V", "pressure"): ("mV/Pa", 1e3),
+    ("C", "pressure"): ("pC/Pa", 1e12),
+    ("V", "acceleration"): ("mV/(m/s²)", 1e3),
+    ("C", "acceleration"): ("pC/(m/s²)", 1e12),
+    ("V", "velocity"): ("mV/(mm/s)", 1.0),
+    ("C", "velocity"): ("pC/(mm/s)", 1e9),
+    ("V", "displacement"): ("mV/µm", 1e-3),
+    ("C", "displacement"): ("pC/µm", 1e6),
+    ("V", "force"): ("mV/N", 1e3),
+    ("C", "force"): ("pC/N", 1e12),
+}
+
+
+def format_sensitivity(s: Sensitivity, *, digits: int = 4) -> str:
+    """The trade form of a sensitivity, e.g. ``"1.02 mV/(m/s²) (10.00 mV/g)"``.
+
+    Examples
+    --------
+    >>> format_sensitivity(parse_sensitivity_of("10 mV/g"))
+    '1.020 mV/(m/s²) (10.00 mV/g)'
+    >>> format_sensitivity(parse_sensitivity_of("4 pC/N"))
+    '4.000 pC/N'
+    """
+    unit, factor = _TRADE_FORMS[(s.electrical, s.quantity.name)]
+    text = _keep_zeros(s.value * factor, digits) + f" {unit}"
+    if s.quantity.name == "acceleration":
+        per_g = s.value * STANDARD_GRAVITY_M_PER_S2 * factor
+        text += f" ({_keep_zeros(per_g, digits)} {unit.split('/')[0]}/g)"
+    return text
+
+
+def _keep_zeros(value: float, digits: int) -> str:
+    """``value`` to ``digits`` significant digits, trailing zeros kept (``10.00``)."""
+    if value == 0 or not math.isfinite(value):
+        return f"{value:g}"
+    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(value)))))
+    return f"{value:.{decimals}f}"
