@@ -160,3 +160,18 @@ def test_errors_name_the_argument():
         CrossSpectra(1000.0, 2, segment_frames=64).result()
     with pytest.raises(InputError, match="window must be one of"):
         window_coefficients("kaiser", 8)
+
+
+def test_public_api_is_pinned():
+    import piezo.spectral.averaging as averaging
+
+    assert set(averaging.__all__) >= {
+        "AutoSpectra",
+        "AutoSpectraResult",
+        "CrossSpectra",
+        "CrossSpectraResult",
+        "Segmenter",
+        "window_coefficients",
+        "equivalent_noise_bandwidth_bins",
+    }
+    assert all(hasattr(averaging, name) for name in averaging.__all__)
