@@ -47,6 +47,12 @@ class SpectralLine:
         The bins summed (inclusive).
     bin_width_hz
         Bin spacing of the spectrum, hertz.
+
+    Examples
+    --------
+    >>> line = SpectralLine(1000.0, 0.5, 0.1, 99, 101, 10.0)
+    >>> round(line.mean_square, 12), line.bins, round(line.with_floor(0.0).rms, 6)
+    (0.4, 3, 0.707107)
     """
 
     frequency_hz: float
