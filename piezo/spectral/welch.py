@@ -376,16 +376,14 @@ class Spectrogram:
         seg = self._seg
         c = self._columns
         if c == 0:
-            raise InputError(
-                f"too little data for one segment of {seg.n} samples ({seg.n / seg.fs:g} s)"
-            )
+            raise seg.too_short()
         count = self._count[:c]
         power = self._power[:c] / count[:, None, None]
         if self.scaling == "spectrum":
-            power = power * equivalent_noise_bandwidth_bins(seg.w) * seg.fs / seg.n
+            power = power * seg.enbw_hz
         return SpectrogramResult(
             time_s=self._tsum[:c] / count,
-            frequency_hz=np.arange(seg.bins) * seg.fs / seg.n,
+            frequency_hz=seg.frequency_hz(),
             power=np.ascontiguousarray(power.transpose(0, 2, 1)),
             segments_per_column=count.copy(),
             scaling=self.scaling,
