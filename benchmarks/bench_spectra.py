@@ -41,7 +41,7 @@ import numpy as np
 import soundfile as sf
 
 import piezo
-from piezo.spectral import welch as spectrum
+from piezo.spectral import averaging as spectrum
 from piezo.spectral.bands import BandAnalyzer, band_levels
 from piezo.spectral.welch import WelchPSD
 

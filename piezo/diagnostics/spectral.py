@@ -14,6 +14,8 @@ import numpy as np
 from scipy import optimize, stats
 
 from piezo.diagnostics.thresholds import Thresholds
+from piezo.response.model import highpass_power
+from piezo.tone.line import spectral_line
 
 __all__ = [
     "HumLine",
@@ -90,7 +92,9 @@ def measure_hum(
 
     For each mains frequency and harmonic k, the peak bin within ``hum_search_hz`` × k of
     k × mains is taken. The line's mean square is the PSD summed over the peak bin and its
-    two neighbours, times the bin width, less the local floor over the same three bins.
+    two neighbours, times the bin width, less the local floor over the same three bins;
+    its frequency the power-weighted centroid of those bins (the one tone-line
+    estimator, :func:`piezo.tone.line.spectral_line`).
     With density scaling, PSD × bin width summed over a tone's Hann main lobe is the
     tone's mean square (Parseval); the three central bins hold at least 97.9 % of it
     (Harris 1978, Hann window: worst case half a bin off, -0.09 dB).
@@ -146,8 +150,8 @@ def measure_hum(
             p = int(win[np.argmax(psd[win])])
             ring = (dist >= inner_hz + search) & (dist <= outer_hz + search)
             floor = float(np.median(psd[ring])) / median_factor
-            lobe = psd[max(p - 1, 1) : p + 2]
-            excess = float(np.sum(lobe - floor) * df)
+            line = spectral_line(frequencies_hz, psd, p, half_width_bins=1, floor_density=floor)
+            excess = line.mean_square
             above_db = 10 * math.log10(psd[p] / floor) if floor > 0 else math.inf
             # Peak of the window's bins under noise alone: exceeded with probability
             # _HUM_FALSE_ALARM (χ² with nu degrees of freedom, normalised to mean 1).
@@ -169,7 +173,7 @@ def measure_hum(
                     mains_hz=mains,
                     harmonic=k,
                     nominal_hz=f0,
-                    frequency_hz=float(frequencies_hz[p]),
+                    frequency_hz=line.frequency_hz,
                     level_db=level_db,
                     re_total_db=re_total,
                     above_floor_db=above_db,
@@ -240,13 +244,6 @@ def psd_floor(
 
 
 _FLOOR_GROUP = 32
-
-
-def _hp_power(r: np.ndarray, order: int) -> np.ndarray:
-    """|H|² of a first-order or a second-order Butterworth high-pass at r = f/fc."""
-    # 1/(1 + r^-2n) = r^2n/(1 + r^2n), without overflow far above the corner.
-    with np.errstate(divide="ignore", over="ignore"):
-        return 1.0 / (1.0 + np.power(r, -2.0 * order))
 
 
 def estimate_rolloff(
@@ -386,7 +383,7 @@ def estimate_rolloff(
         # ``use`` is a contiguous run of bands: their bins are contiguous too.
         lo_bin = starts[use[0]]
         hi_bin = starts[use[-1]] + int(count[use[-1]])
-        power = _hp_power(bin_f[lo_bin:hi_bin] / fc, order)
+        power = highpass_power(bin_f[lo_bin:hi_bin], corner_hz=fc, order=order)
         model = 10 * np.log10(np.add.reduceat(power, starts[use] - lo_bin) / count[use])
         y = level[use] - model
         w = weight[use]

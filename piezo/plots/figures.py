@@ -24,6 +24,7 @@ from piezo.plots.style import (
     trace,
 )
 from piezo.report.run import FrontendResponse
+from piezo.response.model import highpass_db
 from piezo.spectral.bands import BandResult
 from piezo.spectral.welch import PSDResult, SpectrogramResult
 
@@ -35,12 +36,6 @@ __all__ = [
     "rolloff_figure",
     "spectrogram_figure",
 ]
-
-
-def _hp_db(f: np.ndarray, corner_hz: float, order: int) -> np.ndarray:
-    """10 lg |H|² of the high-pass shape the roll-off check fits (same formula)."""
-    q = (f / corner_hz) ** (2 * order)
-    return 10 * np.log10(q / (1.0 + q))
 
 
 def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
@@ -67,7 +62,11 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
         if r.fit_corner_hz is not None and r.fit_level_db is not None:
             order = r.fit_order or 1
             tilt = r.tilt_db_per_decade or 0.0
-            fit = r.fit_level_db + tilt * (np.log10(f) - 3.0) + _hp_db(f, r.fit_corner_hz, order)
+            fit = (
+                r.fit_level_db
+                + tilt * (np.log10(f) - 3.0)
+                + highpass_db(f, corner_hz=r.fit_corner_hz, order=order)
+            )
             kind = "first" if order == 1 else "second"
             label = f"fitted {kind}-order high-pass, corner {r.fit_corner_hz:.3g} Hz"
             if r.status != "estimated":

@@ -40,6 +40,7 @@ import numpy as np
 import scipy.optimize
 
 from piezo.errors import InputError
+from piezo.response.model import highpass_db, resonance_db
 
 __all__ = [
     "Band",
@@ -238,23 +239,25 @@ def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable
 def highpass_magnitude_db(
     frequency_hz: np.ndarray, *, order: int, natural_hz: float, q: float | None = None
 ) -> np.ndarray:
-    """Magnitude (dB) of a first-order (corner ``natural_hz``) or second-order high-pass."""
-    r = np.asarray(frequency_hz, dtype=np.float64) / natural_hz
-    if order == 1:
-        return 20.0 * np.log10(r) - 10.0 * np.log10(1.0 + r**2)
-    if order == 2:
-        if q is None:
-            raise InputError("a second-order high-pass needs its q")
-        return 40.0 * np.log10(r) - 10.0 * np.log10((1.0 - r**2) ** 2 + (r / q) ** 2)
-    raise InputError(f"order must be 1 or 2, got {order!r}")
+    """Magnitude (dB) of a first-order (corner ``natural_hz``) or second-order high-pass.
+
+    The shape is :func:`piezo.response.model.highpass_db`, the one high-pass model.
+    """
+    if order == 2 and q is None:
+        raise InputError("a second-order high-pass needs its q")
+    if order not in (1, 2):
+        raise InputError(f"order must be 1 or 2, got {order!r}")
+    return highpass_db(frequency_hz, corner_hz=natural_hz, order=order, q=q)
 
 
 def resonance_magnitude_db(
     frequency_hz: np.ndarray, *, resonance_hz: float, q: float
 ) -> np.ndarray:
-    """Magnitude (dB) of a single-degree-of-freedom resonance, unity at low frequency."""
-    r = np.asarray(frequency_hz, dtype=np.float64) / resonance_hz
-    return -10.0 * np.log10((1.0 - r**2) ** 2 + (r / q) ** 2)
+    """Magnitude (dB) of a single-degree-of-freedom resonance, unity at low frequency.
+
+    The shape is :func:`piezo.response.model.resonance_db`.
+    """
+    return resonance_db(frequency_hz, resonance_hz=resonance_hz, q=q)
 
 
 def _second_order_corner_ratio(q: float) -> float:

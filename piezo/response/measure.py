@@ -37,6 +37,7 @@ from piezo.response.stimulus import (
     harmonic_offsets_s,
     inverse_filter,
 )
+from piezo.spectral.averaging import CrossSpectra
 
 __all__ = [
     "H1Estimator",
@@ -606,12 +607,12 @@ def _default_segment_frames(sample_rate_hz: float) -> int:
 class H1Estimator:
     """Streaming H1 = Gxy / Gxx and coherence from Welch-averaged spectra (Welch 1967).
 
-    Blocks (frames, channels) of calibrated samples are cut into segments of
-    ``segment_frames`` samples overlapping by ``overlap``; each segment has its mean
-    removed (like ``scipy.signal.csd``'s default ``detrend="constant"``), is windowed
-    and transformed, and the cross and auto spectra are summed. Memory is one segment
-    per channel plus the sums, whatever the recording's length. Block boundaries do not
-    change the result.
+    Blocks (frames, channels) of calibrated samples go to the one averaging core,
+    :class:`piezo.spectral.averaging.CrossSpectra`: segments of ``segment_frames``
+    samples overlapping by ``overlap``, each with its mean removed (like
+    ``scipy.signal.csd``'s default ``detrend="constant"``), windowed and transformed;
+    the cross and auto spectra are averaged. Memory is bounded whatever the
+    recording's length. Block boundaries do not change the result.
 
     Parameters
     ----------
@@ -631,6 +632,17 @@ class H1Estimator:
         Window name for ``scipy.signal.get_window`` (periodic).
     unit
         Unit of the measured over the reference channel, for the magnitude label.
+
+    Examples
+    --------
+    A device that halves the reference: H1 = 0.5 (-6.02 dB), coherence 1.
+
+    >>> x = np.random.default_rng(3).standard_normal(48000)
+    >>> est = H1Estimator(48000.0, 2, segment_frames=4096)
+    >>> est.update(np.column_stack([x, 0.5 * x]))
+    >>> r = est.result()
+    >>> bool(np.allclose(r.response[1:-1, 0], 0.5)), bool(np.all(r.coherence[1:-1] > 0.999))
+    (True, True)
     """
 
     def __init__(
@@ -689,13 +701,16 @@ class H1Estimator:
             raise InputError(f"window {window!r}: {exc}") from None
         self.window = window
         self.unit = unit
-        bins = segment_frames // 2 + 1
         self._columns = [self.reference_channel, *measured]
-        self._buffer = np.zeros((0, len(self._columns)))
-        self._gxx = np.zeros(bins)
-        self._gyy = np.zeros((bins, len(measured)))
-        self._gxy = np.zeros((bins, len(measured)), dtype=np.complex128)
-        self._segments = 0
+        # The one averaging core; the reference goes first.
+        self._spectra = CrossSpectra(
+            self.sample_rate_hz,
+            len(self._columns),
+            reference_channel=0,
+            segment_frames=segment_frames,
+            window=self._window,
+            overlap=self.overlap,
+        )
 
     def update(self, block: np.ndarray) -> None:
         """Add a block of shape (frames, channels); any frame count, including 0."""
@@ -708,36 +723,23 @@ class H1Estimator:
             return
         if not np.all(np.isfinite(arr)):
             raise InputError("block contains NaN or infinite samples")
-        data = np.concatenate([self._buffer, arr[:, self._columns]], axis=0)
-        nseg, hop = self.segment_frames, self._hop
-        count = 0 if data.shape[0] < nseg else (data.shape[0] - nseg) // hop + 1
-        for i in range(count):
-            seg = data[i * hop : i * hop + nseg]
-            seg = (seg - seg.mean(axis=0)) * self._window[:, None]
-            spec = scipy.fft.rfft(seg, axis=0)
-            x, y = spec[:, 0], spec[:, 1:]
-            self._gxx += np.abs(x) ** 2
-            self._gyy += np.abs(y) ** 2
-            self._gxy += np.conj(x)[:, None] * y
-        self._segments += count
-        self._buffer = data[count * hop :].copy()
+        self._spectra.update(arr[:, self._columns])
 
     def result(self) -> TransferEstimate:
         """H1 and coherence over everything seen so far."""
-        if self._segments == 0:
+        if self._spectra.segmenter.segments == 0:
             raise InputError(
                 f"too short for one Welch segment of {self.segment_frames} samples; record "
                 "longer or choose a shorter segment"
             )
-        with np.errstate(divide="ignore", invalid="ignore"):
-            h1 = self._gxy / self._gxx[:, None]
-            coh = np.abs(self._gxy) ** 2 / (self._gxx[:, None] * self._gyy)
-        freq = scipy.fft.rfftfreq(self.segment_frames, 1.0 / self.sample_rate_hz)
+        spectra = self._spectra.result()
+        h1 = spectra.transfer_h1()[:, 1:]
+        coh = spectra.coherence()[:, 1:]
         return TransferEstimate(
-            frequency_hz=freq,
+            frequency_hz=spectra.frequency_hz,
             response=h1,
             coherence=np.clip(np.nan_to_num(coh, nan=0.0), 0.0, 1.0),
-            segments=self._segments,
+            segments=spectra.averages,
             segment_frames=self.segment_frames,
             reference_channel=self.reference_channel,
             measured_channels=self.measured_channels,

@@ -21,7 +21,8 @@ bounded whatever the length; the metrics describe the average over the whole rec
 By Parseval, the power summed over a few bins either side of a spectral line is the
 line's mean square whatever its position between bins (no scalloping loss), and the
 power-weighted centroid of those bins is its frequency (the window's power kernel is
-symmetric), which gives the fundamental frequency to a small fraction of a bin. The
+symmetric), which gives the fundamental frequency to a small fraction of a bin (the one
+tone-line estimator, :func:`piezo.tone.line.spectral_line`). The
 noise under each line (the mean of the neighbouring bins) is subtracted from the
 harmonics and added back to the THD+N residual.
 """
@@ -35,6 +36,7 @@ import numpy as np
 
 from piezo.errors import InputError
 from piezo.spectral.welch import PSDResult, WelchPSD
+from piezo.tone.line import SpectralLine, spectral_line
 
 __all__ = [
     "LINE_HALF_WIDTH_BINS",
@@ -246,25 +248,24 @@ class ToneAnalyzer:
         if peak + k >= nbins:
             raise InputError(f"the tone at {f[peak]:g} Hz is too close to Nyquist to measure")
 
-        def line(center: int) -> tuple[float, float, int, int]:
-            """Power (unit²) of the line around bin ``center``, floor removed."""
-            a, b = max(center - k, 1), min(center + k, nbins - 1)
-            power = p[a : b + 1].sum() * df
+        def line(center: int) -> SpectralLine:
+            """The line around bin ``center``, with the mean density beside it as floor."""
+            found = spectral_line(f, p, center, half_width_bins=k)
+            a, b = found.first_bin, found.last_bin
             ring = np.concatenate(
                 [p[max(a - _FLOOR_BINS, 1) : a], p[b + 1 : min(b + 1 + _FLOOR_BINS, nbins)]]
             )
-            floor = (ring.mean() if ring.size else 0.0) * df * (b - a + 1)
-            return power, floor, a, b
+            return found.with_floor(ring.mean() if ring.size else 0.0)
 
-        fund_power, fund_floor, a, b = line(peak)
+        fund = line(peak)
+        fund_power, fund_floor, a, b = fund.power, fund.floor_power, fund.first_bin, fund.last_bin
         if not fund_power > DETECTION_RATIO * fund_floor:
             raise InputError(
                 f"no tone found {where}: the strongest line ({f[peak]:.6g} Hz) is not "
                 f"{10 * math.log10(DETECTION_RATIO):.0f} dB above the noise around it"
             )
-        weights = p[a : b + 1]
-        f0 = float(np.dot(weights, f[a : b + 1]) / weights.sum())
-        tone_ms = max(fund_power - fund_floor, 0.0)
+        f0 = fund.frequency_hz
+        tone_ms = max(fund.mean_square, 0.0)
         if f0 < 2 * (k + 1) * df:
             raise InputError(
                 f"tone at {f0:.3g} Hz is too low for {df:g} Hz bins; use a finer resolution"
@@ -274,9 +275,8 @@ class ToneAnalyzer:
             center = int(round(n * f0 / df))
             if center + k >= nbins - 1:
                 break
-            power, floor, _, _ = line(center)
             orders.append(n)
-            harm_ms.append(max(power - floor, 0.0))
+            harm_ms.append(max(line(center).mean_square, 0.0))
         thd = math.sqrt(sum(harm_ms)) / math.sqrt(tone_ms) if tone_ms > 0 else math.inf
         in_band = (f >= lo) & (f <= hi)
         total_ms = float(p[in_band].sum() * df)

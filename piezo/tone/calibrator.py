@@ -7,7 +7,8 @@ by the calibrator's RMS pressure, is the sensitivity in V/Pa.
 Method (streamed, one pass):
 
 1. The tone frequency is located in the first second with a Hann-windowed FFT and must lie
-   within :data:`FREQUENCY_SEARCH_RATIO` of the expected frequency.
+   within :data:`FREQUENCY_SEARCH_RATIO` of the expected frequency; the line's frequency
+   comes from the one tone-line estimator, :func:`piezo.tone.line.spectral_line`.
 2. A one-third-octave Butterworth band-pass (order 3, second-order sections with carried
    state) centred on the found frequency isolates the tone. Its gain at the found frequency
    is divided out, so the band RMS reads the tone alone.
@@ -32,6 +33,8 @@ from scipy import signal
 from piezo.chain.measurement import REFERENCE_AIR_PA
 from piezo.chain.units import ratio_to_db
 from piezo.errors import InputError
+from piezo.spectral.averaging import AutoSpectra
+from piezo.tone.line import spectral_line
 
 __all__ = ["CalibrationResult", "ToneCalibrator", "calibrate_tone", "calibrator_pressure_pa"]
 
@@ -185,30 +188,28 @@ class ToneCalibrator:
 
     def _design(self, head: np.ndarray) -> None:
         n = head.size
-        w = signal.windows.hann(n, sym=False)
-        spec = np.abs(np.fft.rfft((head - head.mean()) * w))
-        freqs = np.fft.rfftfreq(n, 1 / self.fs)
+        # One Hann-windowed, mean-removed segment of the head, density-scaled.
+        auto = AutoSpectra(self.fs, 1, segment_frames=n, window="hann")
+        auto.update(head)
+        psd = auto.result()
+        spec, freqs = psd.density[:, 0], psd.frequency_hz
         lo = self.expected_hz / FREQUENCY_SEARCH_RATIO
         hi = self.expected_hz * FREQUENCY_SEARCH_RATIO
         band = (freqs >= lo) & (freqs <= hi)
         if not band.any() or spec[band].max() <= 0:
             raise InputError(f"no tone found between {lo:.0f} and {hi:.0f} Hz")
         k = int(np.flatnonzero(band)[np.argmax(spec[band])])
-        # The strongest component overall must be the tone, not a louder disturbance.
-        if spec[k] < 0.5 * spec[1:].max():
+        # The strongest component overall must be the tone, not a louder disturbance
+        # (half its amplitude: a quarter of its power).
+        if spec[k] < 0.25 * spec[1:].max():
             k_all = 1 + int(np.argmax(spec[1:]))
             raise InputError(
                 f"the strongest component is at {freqs[k_all]:.1f} Hz, not near the "
                 f"expected {self.expected_hz:g} Hz; give the calibrator frequency with "
                 "--frequency"
             )
-        # Parabolic interpolation on log magnitude (Hann) for the coarse frequency.
-        if 0 < k < spec.size - 1:
-            a, b, c = np.log(spec[k - 1 : k + 2] + 1e-300)
-            delta = 0.5 * (a - c) / (a - 2 * b + c)
-        else:
-            delta = 0.0
-        f0 = (k + delta) * self.fs / n
+        # The coarse frequency: the one tone-line estimator over the Hann main lobe.
+        f0 = spectral_line(freqs, spec, k, half_width_bins=2).frequency_hz
         self.tone_hz_coarse = float(f0)
         edges = f0 * np.array([2 ** (-1 / 6), 2 ** (1 / 6)])
         self._sos = signal.butter(3, edges, btype="bandpass", fs=self.fs, output="sos")
