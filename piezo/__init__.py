@@ -14,9 +14,10 @@ from piezo.errors import InputError, PiezoError, RecordingError, SpecError, Unit
 
 __version__ = "0.1.0"
 
-#: Public name -> module that defines it.
+#: Public name -> module that defines it (``"module:name"`` where the names differ).
 _API = {
     # reading and the measurement chain
+    "open": "piezo.chain.open:open_source",
     "open_recording": "piezo.io.reader",
     "Recording": "piezo.io.reader",
     "Chain": "piezo.chain.measurement",
@@ -62,10 +63,11 @@ __all__ = [
 
 
 def __getattr__(name: str) -> Any:
-    module = _API.get(name)
-    if module is None:
+    target = _API.get(name)
+    if target is None:
         raise AttributeError(f"module 'piezo' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
+    module, _, attr = target.partition(":")
+    value = getattr(importlib.import_module(module), attr or name)
     globals()[name] = value
     return value
 

@@ -23,7 +23,7 @@ import datetime as _dt
 import math
 import tomllib
 from collections.abc import Iterator, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -252,19 +252,30 @@ def sidecar_path(recording_path: str | Path) -> Path:
     return Path(recording_path).with_suffix(".toml")
 
 
+#: A chain value as given: a number in SI units, or text with its unit ("12 mV/Pa").
+ChainValue = str | float | None
+
+
 @dataclass(frozen=True)
 class ChainSettings:
-    """Chain options as the user typed them (text), before parsing.
+    """Chain values as given, before parsing: numbers in SI units or unit text.
 
-    None means "not given": the profile or default applies.
+    None means "not given": the profile or default applies. Error messages name the
+    field (``sensitivity``, ``full_scale`` ...).
+
+    Examples
+    --------
+    >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="20 mV/Pa", gain="20 dB"))
+    >>> round(chain.sensitivity_v_per_pa, 6), round(chain.gain, 6)
+    (0.02, 10.0)
     """
 
-    sensitivity: str | None = None
-    gain: str | None = None
-    full_scale: str | None = None
-    reference: str | None = None
-    charge_gain: str | None = None
-    profile: Path | None = None
+    sensitivity: ChainValue = None
+    gain: ChainValue = None
+    full_scale: ChainValue = None
+    reference: ChainValue = None
+    charge_gain: ChainValue = None
+    profile: str | Path | None = None
 
 
 @dataclass(frozen=True)
@@ -290,9 +301,11 @@ class Provenance:
 def resolve_chain(
     recording_path: str | Path | None, settings: ChainSettings, *, use_sidecar: bool = True
 ) -> tuple[Chain, Provenance]:
-    """Combine defaults, sidecar profile, ``--profile`` and options into a :class:`Chain`.
+    """Combine defaults, sidecar profile, profile file and given values into a :class:`Chain`.
 
-    Later sources override earlier ones: defaults, sidecar, profile file, options.
+    Later sources override earlier ones: defaults, the sidecar ``NAME.toml`` (when
+    ``use_sidecar``), ``settings.profile``, then the values of ``settings``. Text is
+    parsed here, once, by :mod:`piezo.chain.units`.
     """
     values: dict[str, float | None] = {
         "full_scale_v": 1.0,
@@ -319,21 +332,23 @@ def resolve_chain(
                 origin[key] = str(path)
 
     charge_gain = (
-        parse_charge_gain(settings.charge_gain) if settings.charge_gain is not None else None
+        parse_charge_gain(settings.charge_gain, what="charge_gain")
+        if settings.charge_gain is not None
+        else None
     )
     if settings.sensitivity is not None:
         values["sensitivity_v_per_pa"] = parse_sensitivity(
-            settings.sensitivity, charge_gain_v_per_c=charge_gain
+            settings.sensitivity, charge_gain_v_per_c=charge_gain, what="sensitivity"
         )
         origin["sensitivity_v_per_pa"] = "option"
     if settings.gain is not None:
-        values["gain"] = parse_gain(settings.gain)
+        values["gain"] = parse_gain(settings.gain, what="gain")
         origin["gain"] = "option"
     if settings.full_scale is not None:
-        values["full_scale_v"] = _positive(settings.full_scale, "V", "--full-scale")
+        values["full_scale_v"] = _positive(settings.full_scale, "V", "full_scale")
         origin["full_scale_v"] = "option"
     if settings.reference is not None:
-        values["reference_pa"] = _positive(settings.reference, "Pa", "--reference")
+        values["reference_pa"] = _positive(settings.reference, "Pa", "reference")
         origin["reference_pa"] = "option"
     chain = Chain(
         full_scale_v=float(values["full_scale_v"]),  # type: ignore[arg-type]
@@ -402,6 +417,46 @@ class CalibratedSource:
     def scale(self) -> float:
         """Factor from raw samples to calibrated units."""
         return self.chain.scale(is_pcm=self.recording.is_pcm)
+
+    def volts_at_sensor(self) -> CalibratedSource:
+        """The same recording and channels in volts at the sensor's output.
+
+        Full scale and gain are undone, a sensitivity is not applied: what a calibration,
+        a response measurement or a production check measures is the sensor's voltage.
+        An uncalibrated source is returned as it is.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("ch0",), True)
+        >>> src = CalibratedSource.of(rec, Chain(full_scale_v=2.0, gain=10.0,
+        ...                                      sensitivity_v_per_pa=0.02))
+        >>> src.unit, round(src.scale, 12)
+        ('Pa', 10.0)
+        >>> volts = src.volts_at_sensor()
+        >>> volts.unit, round(volts.scale, 12)
+        ('V', 0.2)
+        """
+        if not self.chain.calibrated:
+            return self
+        chain = replace(self.chain, sensitivity_v_per_pa=None)
+        return replace(self, chain=chain)
+
+    def with_channels(self, channels: Sequence[int] | None) -> CalibratedSource:
+        """The same source restricted to ``channels`` (0-based; all when None).
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("ch0", "ch1"), True)
+        >>> CalibratedSource.of(rec, Chain()).with_channels([1]).channel_indices
+        (1,)
+        """
+        idx = tuple(range(self.recording.channels)) if channels is None else tuple(channels)
+        return replace(self, channel_indices=idx)
 
     def blocks(
         self, block_frames: int = 65536, *, overlap_frames: int = 0
