@@ -67,21 +67,16 @@ def calibrate(
             f"{source.recording.channels} channels: choose the calibrated one with --channel",
             source=str(file),
         )
-    # Volts at the sensor: the chain without its sensitivity.
-    volts_per_raw = source.chain.scale(is_pcm=source.recording.is_pcm)
-    if source.chain.sensitivity_v_per_pa is not None:
-        volts_per_raw *= source.chain.sensitivity_v_per_pa
     cal = ToneCalibrator(
         source.sample_rate_hz,
         expected_hz=expected_hz,
         level_db=level,
         reference_pa=source.chain.reference_pa,
     )
-    rec = source.recording
     try:
-        with progress(f"Measuring {file.name}", rec.frames) as advance:
-            for block in rec.blocks(channels=source.channel_indices):
-                cal.update(block * volts_per_raw)
+        with progress(f"Measuring {file.name}", source.frames) as advance:
+            for block in source.volts_at_sensor().blocks():
+                cal.update(block)
                 advance(block.shape[0])
         result = cal.result()
     except InputError as exc:

@@ -16,7 +16,7 @@ from rich.table import Table
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity, parse_quantity
-from piezo.cli import EXIT_FAILED
+from piezo.cli.exits import EXIT_FAILED
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.diagnostics.checker import (

@@ -342,24 +342,20 @@ def response(
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     measured = list(src.channel) if src.channel else None
-    source = open_source(file, replace(src, channel=None))
-    rec = source.recording
-    volts_per_raw = source.chain.scale(is_pcm=rec.is_pcm)
-    if source.chain.sensitivity_v_per_pa is not None:
-        volts_per_raw *= source.chain.sensitivity_v_per_pa
+    source = open_source(file, replace(src, channel=None)).volts_at_sensor()
     try:
         est = H1Estimator(
-            rec.sample_rate_hz,
-            rec.channels,
+            source.sample_rate_hz,
+            len(source.channel_indices),
             reference_channel=reference_channel,
             measured_channels=measured,
             segment_frames=segment,
             overlap=overlap,
             unit="V/V",
         )
-        with progress(f"Reading {file.name}", rec.frames) as advance:
-            for block in rec.blocks():
-                est.update(block * volts_per_raw)
+        with progress(f"Reading {file.name}", source.frames) as advance:
+            for block in source.blocks():
+                est.update(block)
                 advance(block.shape[0])
         result = est.result()
     except InputError as exc:

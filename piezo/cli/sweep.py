@@ -350,16 +350,11 @@ def analyze(
             f"{rec.channels} channels: choose the device's channel with --channel",
             source=str(file),
         )
-    volts_per_raw = source.chain.scale(is_pcm=rec.is_pcm)
-    if source.chain.sensitivity_v_per_pa is not None:
-        volts_per_raw *= source.chain.sensitivity_v_per_pa
     # Whole-array analysis: a sweep capture is seconds to a minute long.
-    capture = np.concatenate(
-        [b[:, 0] for b in rec.blocks(channels=source.channel_indices)] or [np.zeros(0)]
-    )
+    capture = np.concatenate([b[:, 0] for b in source.volts_at_sensor().blocks()] or [np.zeros(0)])
     try:
         result = analyze_sweep(
-            capture * volts_per_raw,
+            capture,
             spec,
             rec.sample_rate_hz,
             unit="V",

@@ -35,8 +35,6 @@ __all__ = ["report_document", "report_figures", "write_report"]
 
 def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
     """The JSON document of a run (``docs/report.schema.json``)."""
-    # Imported here: piezo.cli imports every command, and `piezo report` imports us.
-
     source = run.source
     ref = source.reference
     unit = source.unit
