@@ -6,8 +6,13 @@ from __future__ import annotations
 import pytest
 
 import piezo
+from piezo.batch.lot import judge_lot
 from piezo.diagnostics.summary import check_of
+from piezo.frontend.study import study_frontend, vary_values
 from piezo.levels.summary import levels_of
+from piezo.response.fit import parse_response_csv
+from piezo.response.stimulus import stimulus_from_toml
+from piezo.response.summary import h1_response_of, sweep_response_of
 from piezo.spectral.summary import bands_of, spectrum_of
 from piezo.tone.summary import tone_of
 from tests.paths import RECORDINGS
@@ -93,3 +98,65 @@ def test_check(cli):
     checked = check_of(piezo.open(PUMP, allow_time_gaps=True))
     assert checked.failed
     assert checked.to_dict() == r.json()
+
+
+# --------------------------------------------------------------------------------------
+# Response, front-end, batch
+
+VALVE = RECORDINGS / "valve-pickup-nominal.flac"
+SWEEP = RECORDINGS / "valve-pickup-sweep.stimulus.toml"
+GOLDEN = RECORDINGS / "valve-pickup-golden.csv"
+
+
+def test_sweep_analyze(cli):
+    r = cli("sweep", "analyze", VALVE, "--stimulus", SWEEP, "--golden", GOLDEN, "--json")
+    assert r.code == 0, r.err
+    sweep = stimulus_from_toml(SWEEP.read_text(encoding="utf-8"), source=str(SWEEP))
+    golden = parse_response_csv(GOLDEN.read_text(encoding="utf-8"), source=str(GOLDEN))
+    analysis = sweep_response_of(
+        piezo.open(VALVE),
+        sweep,
+        stimulus=str(SWEEP),
+        golden=golden,
+        golden_file=str(GOLDEN),
+    )
+    assert analysis.to_dict() == r.json()
+
+
+def test_response_h1(cli):
+    path = RECORDINGS / "valve-pickup-noise-2ch.flac"
+    r = cli("response", path, "--reference-channel", "0", "--json")
+    assert r.code == 0, r.err
+    assert h1_response_of(piezo.open(path), reference_channel=0).to_dict() == r.json()
+
+
+@pytest.mark.parametrize("design", sorted((RECORDINGS / "designs").glob("*.toml")), ids=str)
+def test_frontend(cli, design):
+    r = cli("frontend", design, "--json")
+    assert r.code == 0, r.err
+    assert study_frontend(design).to_dict() == r.json()
+
+
+def test_frontend_vary(cli):
+    design = RECORDINGS / "designs" / "pump-disc-charge.toml"
+    r = cli("frontend", design, "--vary", "feedback_resistance=100M:10G:3", "--json")
+    assert r.code == 0, r.err
+    values = vary_values("feedback_resistance", "100M", "10G", 3)
+    study = study_frontend(design, vary=("feedback_resistance", values))
+    assert study.to_dict() == r.json()
+
+
+def test_batch_verdicts(cli, tmp_path):
+    # Part of the PD27 lot: good units, the clipped 24107, the warned 24118 and the
+    # corrupt file 24136 (faults of piezo.demo.lot), so pass, warn, fail and not
+    # evaluable are all compared.
+    names = ("24101", "24102", "24107", "24118", "24136")
+    lot = [RECORDINGS / "pd27-lot" / f"PD27-{n}.flac" for n in names]
+    spec = RECORDINGS / "pd27-spec.toml"
+    r = cli("batch", *lot, "--spec", spec, "--out", tmp_path / "cli", "--workers", "1", "--json")
+    assert r.code == 1, r.err
+    verdicts = judge_lot(lot, spec, out=tmp_path / "cli", workers=1)
+    doc = verdicts.to_dict()
+    assert doc == r.json()
+    assert doc["captures"] == 5
+    assert {v for v, n in doc["counts"].items() if n} == {"pass", "warn", "fail", "not evaluable"}
