@@ -47,6 +47,7 @@ __all__ = [
     "ChainSettings",
     "SensorProfile",
     "load_profile",
+    "profile_with_sensitivity",
     "resolve_chain",
     "sidecar_path",
 ]
@@ -234,6 +235,85 @@ def load_profile(path: str | Path) -> SensorProfile:
         sample_rate_hz=parse("chain", "sample_rate", lambda v, w: _positive(v, "Hz", w)),
         raw=data,
     )
+
+
+def profile_with_sensitivity(
+    text: str | None,
+    sensitivity_v_per_pa: float,
+    *,
+    calibration_date: str,
+    source: str | None = None,
+) -> str:
+    r"""A profile's text with ``[sensor] sensitivity`` and ``calibration_date`` set.
+
+    Everything else (other keys, sections, comments, blank lines) is kept as it is; a
+    ``charge_sensitivity`` is dropped (the measured voltage sensitivity replaces it).
+    ``text`` None or empty starts a new profile. The caller writes the result.
+
+    Raises
+    ------
+    InputError
+        ``text`` is not valid TOML (the message names ``source``).
+
+    Examples
+    --------
+    >>> old = '# bench mic\n[sensor]\nname = "film"\n\n[chain]\ngain = "20 dB"\n'
+    >>> print(profile_with_sensitivity(old, 8.5e-3, calibration_date="2026-12-01"))
+    # bench mic
+    [sensor]
+    name = "film"
+    sensitivity = "8.5 mV/Pa"
+    calibration_date = 2026-12-01
+    <BLANKLINE>
+    [chain]
+    gain = "20 dB"
+    <BLANKLINE>
+    >>> load = tomllib.loads(profile_with_sensitivity(None, 0.012, calibration_date="2026-12-01"))
+    >>> load["sensor"]["sensitivity"]
+    '12 mV/Pa'
+    """
+    lines = text.splitlines() if text else []
+    if lines:
+        try:
+            tomllib.loads("\n".join(lines))
+        except tomllib.TOMLDecodeError as exc:
+            raise InputError(
+                f"cannot update profile: invalid TOML: {exc}", source=source
+            ) from None
+    values = {
+        "sensitivity": f'"{1e3 * sensitivity_v_per_pa:.5g} mV/Pa"',
+        "calibration_date": calibration_date,
+    }
+    out: list[str] = []
+    section = None
+    seen_sensor = False
+    written: set[str] = set()
+    for line in lines:
+        stripped = line.strip()
+        if stripped.startswith("["):
+            if section == "sensor":
+                blanks = 0
+                while out and not out[-1].strip():
+                    out.pop()
+                    blanks += 1
+                out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
+                out.extend([""] * blanks)
+                written.update(values)
+            section = stripped.strip("[]").strip()
+            seen_sensor = seen_sensor or section == "sensor"
+        key = stripped.split("=", 1)[0].strip() if "=" in stripped else None
+        if section == "sensor" and key in values and key not in written:
+            out.append(f"{key} = {values[key]}")
+            written.add(key)
+            continue
+        if section == "sensor" and key == "charge_sensitivity":
+            continue  # replaced by the measured voltage sensitivity
+        out.append(line)
+    if section == "sensor":
+        out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
+    elif not seen_sensor:
+        out = ["[sensor]", *(f"{k} = {v}" for k, v in values.items()), "", *out]
+    return "\n".join(out).rstrip("\n") + "\n"
 
 
 def _text(value: Any) -> str | None:

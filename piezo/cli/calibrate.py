@@ -3,13 +3,12 @@
 from __future__ import annotations
 
 import datetime as _dt
-import tomllib
 from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from piezo.chain.measurement import sidecar_path
+from piezo.chain.measurement import profile_with_sensitivity, sidecar_path
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
@@ -135,46 +134,17 @@ def calibrate(
 
 
 def _update_profile(path: Path, sensitivity_mv_per_pa: float) -> None:
-    """Set ``[sensor] sensitivity`` and ``calibration_date`` in a profile, keeping the rest."""
-    lines = path.read_text(encoding="utf-8").splitlines() if path.exists() else []
-    if lines:
+    """Set the measured sensitivity in the profile at ``path`` (created or updated)."""
+    old = None
+    if path.exists():
         try:
-            tomllib.loads("\n".join(lines))
-        except tomllib.TOMLDecodeError as exc:
-            raise InputError(
-                f"cannot update profile: invalid TOML: {exc}", source=str(path)
-            ) from None
-    values = {
-        "sensitivity": f'"{sensitivity_mv_per_pa:.5g} mV/Pa"',
-        "calibration_date": _dt.date.today().isoformat(),
-    }
-    out: list[str] = []
-    section = None
-    seen_sensor = False
-    written: set[str] = set()
-    for line in lines:
-        stripped = line.strip()
-        if stripped.startswith("["):
-            if section == "sensor":
-                blanks = 0
-                while out and not out[-1].strip():
-                    out.pop()
-                    blanks += 1
-                out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
-                out.extend([""] * blanks)
-                written.update(values)
-            section = stripped.strip("[]").strip()
-            seen_sensor = seen_sensor or section == "sensor"
-        key = stripped.split("=", 1)[0].strip() if "=" in stripped else None
-        if section == "sensor" and key in values and key not in written:
-            out.append(f"{key} = {values[key]}")
-            written.add(key)
-            continue
-        if section == "sensor" and key == "charge_sensitivity":
-            continue  # replaced by the measured voltage sensitivity
-        out.append(line)
-    if section == "sensor":
-        out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
-    elif not seen_sensor:
-        out = ["[sensor]", *(f"{k} = {v}" for k, v in values.items()), "", *out]
-    write_text_atomic(path, "\n".join(out).rstrip("\n") + "\n")
+            old = path.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            raise InputError(f"cannot read profile: {exc}", source=str(path)) from None
+    text = profile_with_sensitivity(
+        old,
+        sensitivity_mv_per_pa * 1e-3,
+        calibration_date=_dt.date.today().isoformat(),
+        source=str(path),
+    )
+    write_text_atomic(path, text)
