@@ -3,6 +3,8 @@ reproduce each command's ``--json`` document exactly (same keys, same values).""
 
 from __future__ import annotations
 
+import doctest
+
 import pytest
 
 import piezo
@@ -15,7 +17,7 @@ from piezo.response.stimulus import stimulus_from_toml
 from piezo.response.summary import h1_response_of, sweep_response_of
 from piezo.spectral.summary import bands_of, spectrum_of
 from piezo.tone.summary import tone_of
-from tests.paths import RECORDINGS
+from tests.paths import DOCS, RECORDINGS, REPO
 
 PUMP = RECORDINGS / "pump-bench.flac"
 CALIBRATOR = RECORDINGS / "calibrator-94dB.wav"
@@ -160,3 +162,23 @@ def test_batch_verdicts(cli, tmp_path):
     assert doc == r.json()
     assert doc["captures"] == 5
     assert {v for v, n in doc["counts"].items() if n} == {"pass", "warn", "fail", "not evaluable"}
+
+
+# --------------------------------------------------------------------------------------
+# docs/library.md: every example on the page runs and shows what it prints.
+
+
+def test_the_library_page_runs(monkeypatch):
+    # The page's examples use paths from the repository root, as a reader types them.
+    monkeypatch.chdir(REPO)
+    text = (DOCS / "library.md").read_text(encoding="utf-8")
+    test = doctest.DocTestParser().get_doctest(text, {}, "docs/library.md", str(DOCS), 0)
+    assert len(test.examples) > 30  # the parser found the examples
+    runner = doctest.DocTestRunner(optionflags=doctest.ELLIPSIS | doctest.NORMALIZE_WHITESPACE)
+    out: list[str] = []
+    runner.run(test, out=out.append)
+    assert runner.failures == 0, "".join(out)
+
+
+def test_the_library_page_is_linked_from_the_readme():
+    assert "(docs/library.md)" in (REPO / "README.md").read_text(encoding="utf-8")
