@@ -405,7 +405,11 @@ def simulate(
     rate = _integer_rate(source.sample_rate_hz)
     channels = len(source.channel_indices)
     filt = FrontendFilter(
-        source.sample_rate_hz, channels, frontend=fe, input=input_kind, clip=not no_clip
+        source.sample_rate_hz,
+        channels,
+        frontend=fe,
+        input="charge" if input_kind == "charge" else "pressure",
+        clip=not no_clip,
     )
     with atomic_output(out) as tmp:
         with sf.SoundFile(
@@ -507,7 +511,7 @@ def equalize(
                     advance(block.shape[0])
     result = eq.result()
     probe = np.geomspace(target_hz / 10, result.measured_corner_hz * 10, 5)
-    doc = {
+    doc: dict[str, Any] = {
         "file": str(file),
         "frontend": str(frontend_path),
         "out": str(out),

@@ -190,7 +190,7 @@ def study_frontend(
     design: str | Path,
     *,
     at_hz: Sequence[float] = DEFAULT_AT_HZ,
-    vary: tuple[str, Sequence[float]] | None = None,
+    vary: tuple[str, Sequence[float] | np.ndarray] | None = None,
 ) -> FrontendStudy:
     """Model a front-end design file; with ``vary``, a trade-off table over one value.
 

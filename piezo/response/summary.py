@@ -435,7 +435,7 @@ def h1_response_of(
             volts.sample_rate_hz,
             len(volts.channel_indices),
             reference_channel=reference_channel,
-            measured_channels=measured_channels,
+            measured_channels=None if measured_channels is None else list(measured_channels),
             segment_frames=segment_frames,
             overlap=overlap,
             unit="V/V",
