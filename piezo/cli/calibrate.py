@@ -13,7 +13,7 @@ from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError
-from piezo.tone.calibrator import ToneCalibrator, calibrator_pressure_pa
+from piezo.tone.summary import calibration_of
 
 
 def register(app: typer.Typer) -> None:
@@ -66,20 +66,11 @@ def calibrate(
             f"{source.recording.channels} channels: choose the calibrated one with --channel",
             source=str(file),
         )
-    cal = ToneCalibrator(
-        source.sample_rate_hz,
-        expected_hz=expected_hz,
-        level_db=level,
-        reference_pa=source.chain.reference_pa,
-    )
-    try:
-        with progress(f"Measuring {file.name}", source.frames) as advance:
-            for block in source.volts_at_sensor().blocks():
-                cal.update(block)
-                advance(block.shape[0])
-        result = cal.result()
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
+    with progress(f"Measuring {file.name}", source.frames) as advance:
+        calibration = calibration_of(
+            source, level_db=level, expected_hz=expected_hz, advance=advance
+        )
+    result = calibration.result
     if not result.stable and not accept_unstable:
         raise InputError(
             f"the tone is not stable (level spread {result.level_spread_db:.2f} dB, "
@@ -87,23 +78,7 @@ def calibrate(
             "and record again, or pass --accept-unstable",
             source=str(file),
         )
-    doc = {
-        "file": str(file),
-        "channel": source.channel_indices[0],
-        "sensitivity_mv_per_pa": result.sensitivity_mv_per_pa,
-        "sensitivity_dbv_per_pa": result.sensitivity_dbv_per_pa,
-        "tone_hz": result.tone_hz,
-        "residual_db": result.residual_db,
-        "tone_rms_v": result.tone_rms_v,
-        "calibrator_level_db": level,
-        "calibrator_pressure_pa": calibrator_pressure_pa(level, source.chain.reference_pa),
-        "reference_pa": source.chain.reference_pa,
-        "level_spread_db": result.level_spread_db,
-        "frequency_spread_percent": 100 * result.frequency_spread,
-        "stable": result.stable,
-        "gain": source.chain.gain,
-        "full_scale_v": source.chain.full_scale_v,
-    }
+    doc = calibration.to_dict()
     if write_profile is not None:
         _update_profile(write_profile, result.sensitivity_mv_per_pa)
         doc["profile_written"] = str(write_profile)

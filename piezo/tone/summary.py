@@ -1,4 +1,5 @@
-"""Test-tone metrics as ``piezo tone`` reports them, for Python and JSON.
+"""Test-tone metrics and calibrator sensitivity as ``piezo tone`` and ``piezo calibrate``
+report them, for Python and JSON.
 
 :func:`tone_of` streams a :class:`~piezo.chain.measurement.CalibratedSource` through a
 :class:`~piezo.tone.analysis.ToneAnalyzer` (and, for the SNR, a recording with the tone
@@ -17,8 +18,9 @@ from piezo.errors import InputError
 from piezo.results import to_jsonable
 from piezo.spectral.welch import WelchPSD
 from piezo.tone.analysis import ToneAnalyzer, ToneResult, band_mean_square
+from piezo.tone.calibrator import CalibrationResult, ToneCalibrator, calibrator_pressure_pa
 
-__all__ = ["RESOLUTION_HZ", "Tone", "tone_of"]
+__all__ = ["RESOLUTION_HZ", "Calibration", "Tone", "calibration_of", "tone_of"]
 
 #: Bin spacing of the tone analysis, hertz (1 s segments).
 RESOLUTION_HZ = 1.0
@@ -186,4 +188,116 @@ def tone_of(
         bandwidth_hz=(float(low), float(high)),
         channel_indices=source.channel_indices,
         results=tuple(results),
+    )
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """A sensor's sensitivity measured on a sound calibrator (``piezo calibrate``).
+
+    Attributes
+    ----------
+    file, channel
+        The capture and its channel.
+    calibrator_level_db
+        The calibrator's level, dB re ``reference_pa``.
+    reference_pa, gain, full_scale_v
+        The chain the capture was taken through (its sensitivity, if any, is ignored).
+    result
+        The calibrator measurement (tone, RMS volts, sensitivity, stability).
+    """
+
+    file: str
+    channel: int
+    calibrator_level_db: float
+    reference_pa: float
+    gain: float
+    full_scale_v: float
+    result: CalibrationResult
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo calibrate --json`` document (without ``profile_written``)."""
+        r = self.result
+        doc = {
+            "file": self.file,
+            "channel": self.channel,
+            "sensitivity_mv_per_pa": r.sensitivity_mv_per_pa,
+            "sensitivity_dbv_per_pa": r.sensitivity_dbv_per_pa,
+            "tone_hz": r.tone_hz,
+            "residual_db": r.residual_db,
+            "tone_rms_v": r.tone_rms_v,
+            "calibrator_level_db": self.calibrator_level_db,
+            "calibrator_pressure_pa": calibrator_pressure_pa(
+                self.calibrator_level_db, self.reference_pa
+            ),
+            "reference_pa": self.reference_pa,
+            "level_spread_db": r.level_spread_db,
+            "frequency_spread_percent": 100 * r.frequency_spread,
+            "stable": r.stable,
+            "gain": self.gain,
+            "full_scale_v": self.full_scale_v,
+        }
+        return to_jsonable(doc)
+
+
+def calibration_of(
+    source: CalibratedSource,
+    *,
+    level_db: float = 94.0,
+    expected_hz: float = 1000.0,
+    advance: Callable[[int], object] | None = None,
+) -> Calibration:
+    """Sensitivity of the sensor on one channel of ``source`` from a calibrator tone.
+
+    The capture is read in volts at the sensor
+    (:meth:`~piezo.chain.measurement.CalibratedSource.volts_at_sensor`); the tone's
+    band-limited RMS voltage over the calibrator's RMS pressure is the sensitivity
+    (:class:`~piezo.tone.calibrator.ToneCalibrator`). ``result.stable`` says whether the
+    tone's level and frequency held still; the caller decides whether to accept it.
+
+    Raises
+    ------
+    InputError
+        More than one channel, or no calibrator tone.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "cal.wav"
+    >>> t = np.arange(48000 * 3) / 48000
+    >>> # 94 dB re 20 µPa is 1.0024 Pa RMS; 10 mV/Pa gives 10.02 mV RMS at the sensor.
+    >>> sf.write(path, 0.010024 * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t), 48000,
+    ...          subtype="FLOAT")
+    >>> cal = calibration_of(piezo.open(path), level_db=94.0)
+    >>> round(cal.result.sensitivity_mv_per_pa, 2), cal.result.stable
+    (10.0, True)
+    """
+    file = str(source.recording.path)
+    if len(source.channel_indices) != 1:
+        raise InputError(
+            f"{source.recording.channels} channels: choose the calibrated one", source=file
+        )
+    cal = ToneCalibrator(
+        source.sample_rate_hz,
+        expected_hz=expected_hz,
+        level_db=level_db,
+        reference_pa=source.chain.reference_pa,
+    )
+    try:
+        for block in source.volts_at_sensor().blocks():
+            cal.update(block)
+            if advance is not None:
+                advance(block.shape[0])
+        result = cal.result()
+    except InputError as exc:
+        raise exc.with_source(file) from None
+    return Calibration(
+        file=file,
+        channel=source.channel_indices[0],
+        calibrator_level_db=level_db,
+        reference_pa=source.chain.reference_pa,
+        gain=source.chain.gain,
+        full_scale_v=source.chain.full_scale_v,
+        result=result,
     )
