@@ -5,9 +5,9 @@ The public library API is listed in :data:`__all__`. Names are loaded on first u
 usual. Implementation modules may change; these names are the contract.
 
 :func:`open` is the calibrated open every command uses; ``levels_of``, ``spectrum_of``,
-``bands_of``, ``tone_of``, ``sweep_response_of``, ``h1_response_of``, ``study_frontend``,
-``check_of`` and ``judge_lot`` return what the commands report, as objects whose
-``to_dict()`` equals the command's ``--json`` document (``docs/library.md``).
+``bands_of``, ``tone_of``, ``calibration_of``, ``sweep_response_of``, ``h1_response_of``,
+``study_frontend``, ``check_of`` and ``judge_lot`` return what the commands report, as
+objects whose ``to_dict()`` equals the command's ``--json`` document (``docs/library.md``).
 
 Examples
 --------
@@ -71,6 +71,8 @@ _API = {
     "Bands": "piezo.spectral.summary",
     "tone_of": "piezo.tone.summary",
     "Tone": "piezo.tone.summary",
+    "calibration_of": "piezo.tone.summary",
+    "Calibration": "piezo.tone.summary",
     "sweep_response_of": "piezo.response.summary",
     "SweepAnalysis": "piezo.response.summary",
     "h1_response_of": "piezo.response.summary",

@@ -16,6 +16,7 @@ EXPECTED = {
     "open", "levels_of", "Levels", "spectrum_of", "Spectrum", "bands_of", "Bands", "tone_of",
     "Tone", "sweep_response_of", "SweepAnalysis", "h1_response_of", "H1Analysis",
     "study_frontend", "FrontendStudy", "check_of", "Check", "judge_lot", "LotVerdicts",
+    "calibration_of", "Calibration",
 }  # fmt: skip
 
 

@@ -22,7 +22,7 @@ from __future__ import annotations
 import datetime as _dt
 import math
 import tomllib
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
@@ -537,6 +537,39 @@ class CalibratedSource:
         """
         idx = tuple(range(self.recording.channels)) if channels is None else tuple(channels)
         return replace(self, channel_indices=idx)
+
+    def feed(
+        self,
+        *analyses: Any,
+        advance: Callable[[int], object] | None = None,
+        block_frames: int = 65536,
+    ) -> None:
+        """Read the source once, handing every calibrated block to each analysis.
+
+        Each analysis is anything with ``update(block)`` (the streaming classes);
+        ``advance(frames)`` is called after each block (a progress bar).
+
+        Examples
+        --------
+        >>> import numpy as np, soundfile as sf, tempfile, pathlib
+        >>> from piezo.io.reader import open_recording
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "ramp.wav"
+        >>> sf.write(path, np.linspace(-0.5, 0.5, 1000), 8000, subtype="FLOAT")
+        >>> class Peak:
+        ...     value = 0.0
+        ...     def update(self, block):
+        ...         self.value = max(self.value, float(np.abs(block).max()))
+        >>> peak, done = Peak(), []
+        >>> src = CalibratedSource.of(open_recording(path), Chain(full_scale_v=2.0))
+        >>> src.feed(peak, advance=done.append, block_frames=300)
+        >>> peak.value, done  # volts: 0.5 of full scale at 2 V
+        (1.0, [300, 300, 300, 100])
+        """
+        for block in self.blocks(block_frames):
+            for analysis in analyses:
+                analysis.update(block)
+            if advance is not None:
+                advance(block.shape[0])
 
     def blocks(
         self, block_frames: int = 65536, *, overlap_frames: int = 0

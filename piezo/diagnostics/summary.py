@@ -92,8 +92,5 @@ def check_of(
     (True, 'fail')
     """
     checker = checker_for_source(source, Thresholds() if thresholds is None else thresholds)
-    for block in source.blocks():
-        checker.update(block)
-        if advance is not None:
-            advance(block.shape[0])
+    source.feed(checker, advance=advance)
     return Check(source, checker.result())

@@ -158,10 +158,7 @@ def levels_of(
     if filter_settle_s is not None:
         options["filter_settle_s"] = filter_settle_s
     meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
-    for block in source.blocks():
-        meter.update(block)
-        if advance is not None:
-            advance(block.shape[0])
+    source.feed(meter, advance=advance)
     return Levels(
         file=str(source.recording.path),
         unit=source.unit,

@@ -440,10 +440,7 @@ def h1_response_of(
             overlap=overlap,
             unit="V/V",
         )
-        for block in volts.blocks():
-            est.update(block)
-            if advance is not None:
-                advance(block.shape[0])
+        volts.feed(est, advance=advance)
         estimate = est.result()
     except InputError as exc:
         raise exc.with_source(file) from None

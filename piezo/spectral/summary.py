@@ -161,12 +161,7 @@ def spectrum_of(
             "resolution",
             source=str(source.recording.path),
         )
-    for block in source.blocks():
-        est.update(block)
-        if spectrogram is not None:
-            spectrogram.update(block)
-        if advance is not None:
-            advance(block.shape[0])
+    source.feed(est, *([] if spectrogram is None else [spectrogram]), advance=advance)
     result = est.result()
     return Spectrum(
         file=str(source.recording.path),
@@ -298,10 +293,7 @@ def bands_of(
         )
     except InputError as exc:
         raise exc.with_source(str(source.recording.path)) from None
-    for block in source.blocks():
-        analyzer.update(block)
-        if advance is not None:
-            advance(block.shape[0])
+    source.feed(analyzer, advance=advance)
     return Bands(
         file=str(source.recording.path),
         unit=source.unit,

@@ -154,10 +154,7 @@ def tone_of(
         )
     except InputError as exc:
         raise exc.with_source(file) from None
-    for block in source.blocks():
-        analyzer.update(block)
-        if advance is not None:
-            advance(block.shape[0])
+    source.feed(analyzer, advance=advance)
     noise_ms = None
     if noise is not None:
         noise_file = str(noise.recording.path)
@@ -285,10 +282,7 @@ def calibration_of(
         reference_pa=source.chain.reference_pa,
     )
     try:
-        for block in source.volts_at_sensor().blocks():
-            cal.update(block)
-            if advance is not None:
-                advance(block.shape[0])
+        source.volts_at_sensor().feed(cal, advance=advance)
         result = cal.result()
     except InputError as exc:
         raise exc.with_source(file) from None
