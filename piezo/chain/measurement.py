@@ -11,7 +11,7 @@ chain gives, per sample::
 Without a sensitivity the chain stops at volts, and levels are in dB re 1 V.
 
 Settings come, lowest priority first, from the defaults, a sidecar profile ``NAME.toml``
-next to ``NAME.wav``, a profile given with ``--profile``, and explicit options. Each value
+next to ``NAME.wav``, a profile file given explicitly, and explicit values. Each value
 remembers where it came from (:class:`Provenance`), for reports.
 
 Reference pressures are those of ISO 1683:2015: 20 µPa in gases, 1 µPa in liquids.

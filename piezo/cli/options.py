@@ -197,7 +197,9 @@ _OPTION_NAMES = {
     "charge_gain": "--charge-gain",
     "reference": "--reference",
     "gain": "--gain",
+    "rate_hz": "--rate",
     "rate": "--rate",
+    "columns": "--columns",
 }
 
 
