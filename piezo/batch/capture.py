@@ -31,6 +31,13 @@ class Capture:
     ``samples`` has shape (frames,): the spec's channel, calibrated by the spec's full
     scale and divided by the front-end gain. ``clip_level_v`` is the ADC full scale
     expressed in the same volts, for clipping checks.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> cap = Capture("PD27-00001.flac", 48000.0, np.zeros(480), clip_level_v=0.1)
+    >>> cap.samples.size / cap.sample_rate_hz  # seconds
+    0.01
     """
 
     path: str

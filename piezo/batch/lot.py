@@ -37,6 +37,18 @@ class LotVerdicts:
         Folder the result files were written to, or None.
     reused
         Rows taken from an earlier run (``--resume``) instead of judged again.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.batch.spec import load_spec
+    >>> from piezo.demo import lot
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (folder / "spec.toml").write_text(lot.spec_text())
+    >>> _ = (folder / "pd27-golden.csv").write_text(lot.golden_response_csv())
+    >>> empty = LotVerdicts((), load_spec(folder / "spec.toml"))
+    >>> empty.to_dict()["captures"], empty.failing
+    (0, [])
     """
 
     rows: tuple[dict[str, Any], ...]

@@ -30,6 +30,16 @@ class Check:
         The calibrated recording (chain and provenance are part of the document).
     diagnostics
         Every check per channel and for the metadata, with severities and evidence.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "quiet.wav"
+    >>> x = 0.1 * np.sin(2 * np.pi * 100 * np.arange(48000) / 48000)
+    >>> sf.write(path, x, 48000, subtype="PCM_24")
+    >>> doc = check_of(piezo.open(path, full_scale="2 V")).to_dict()
+    >>> doc["chain"]["full_scale_v"], doc["chain"]["provenance"]["full_scale_v"]
+    (2.0, 'option')
     """
 
     source: CalibratedSource

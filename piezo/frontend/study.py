@@ -170,6 +170,16 @@ class FrontendStudy:
         The design key varied, or None.
     vary_rows
         One row per value: ``value`` and the figures of :data:`VARY_KEYS`.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.demo.frontend import frontend_demo_texts
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "buffer.toml"
+    >>> _ = path.write_text(frontend_demo_texts()["designs/film-buffer-voltage.toml"])
+    >>> study = study_frontend(path)
+    >>> study.to_dict()["amplifier"], study.vary_name, "vary" in study.to_dict()
+    ('voltage', None, False)
     """
 
     design: str

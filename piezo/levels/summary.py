@@ -45,6 +45,15 @@ class Levels:
         The recording's channels, 0-based, in the order of ``result.channels``.
     result
         The level meter's result.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "dc.wav"
+    >>> sf.write(path, np.full(48000, 0.1), 48000, subtype="FLOAT")
+    >>> lv = levels_of(piezo.open(path))  # no sensitivity: volts, dB re 1 V
+    >>> lv.unit, lv.channel_indices, round(lv.channel(0)["LZeq"], 2)  # 20 lg 0.1
+    ('V', (0,), -20.0)
     """
 
     file: str

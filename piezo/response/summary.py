@@ -175,6 +175,18 @@ class SweepAnalysis:
         THD (harmonics 2 to 5) at the requested frequencies.
     golden, golden_file
         Deviation from a golden response and the file it came from, or None.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> from piezo.response.stimulus import sweep_signal, sweep_spec
+    >>> spec = sweep_spec(50.0, 10000.0, 1.0, 48000.0, silence_after_s=0.5)
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "capture.wav"
+    >>> sf.write(path, sweep_signal(spec), 48000, subtype="FLOAT")
+    >>> a = sweep_response_of(piezo.open(path), spec, stimulus="sweep.stimulus.toml")
+    >>> doc = a.to_dict()
+    >>> doc["stimulus"], doc["golden"], doc["sweep"]["start_hz"]
+    ('sweep.stimulus.toml', None, 50.0)
     """
 
     file: str
@@ -329,7 +341,19 @@ def sweep_response_of(
 
 @dataclass(frozen=True)
 class H1Channel:
-    """One measured channel of an H1 measurement: its table and the fit to it."""
+    """One measured channel of an H1 measurement: its table and the fit to it.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> x = np.random.default_rng(2).standard_normal(48000 * 4) * 0.1
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "h1.wav"
+    >>> sf.write(path, np.column_stack([x, 0.25 * x]), 48000, subtype="FLOAT")
+    >>> h1 = h1_response_of(piezo.open(path))
+    >>> ch = h1.channels[0]
+    >>> ch.channel, ch.fitted_points == ch.to_dict()["fitted_points"]
+    (1, True)
+    """
 
     channel: int
     table: ResponseTable
@@ -358,6 +382,17 @@ class H1Analysis:
         Only points at least this coherent were fitted.
     channels
         One :class:`H1Channel` per measured channel.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> x = np.random.default_rng(2).standard_normal(48000 * 4) * 0.1
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "h1.wav"
+    >>> sf.write(path, np.column_stack([x, 0.25 * x]), 48000, subtype="FLOAT")
+    >>> h1 = h1_response_of(piezo.open(path))
+    >>> doc = h1.to_dict()
+    >>> doc["reference_channel"], doc["channel"], round(doc["sensitivity_db"], 2)  # 20 lg ¼
+    (0, 1, -12.04)
     """
 
     file: str

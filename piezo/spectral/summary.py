@@ -56,6 +56,16 @@ class Spectrum:
         The recording's channels, in the order of the PSD's columns.
     result
         The estimator's result.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "noise.wav"
+    >>> x = np.random.default_rng(0).standard_normal(48000) * 0.01
+    >>> sf.write(path, x, 48000, subtype="FLOAT")
+    >>> sp = spectrum_of(piezo.open(path))
+    >>> sp.result.segment_frames, sp.to_dict()["window"]
+    (4096, 'hann')
     """
 
     file: str
@@ -200,6 +210,16 @@ class Bands:
         The recording's channels, in the order of the result's columns.
     result
         The band bank's result (fraction, weighting, bands, mean squares, history).
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(48000) / 48000
+    >>> sf.write(path, np.sin(2 * np.pi * 500 * t), 48000, subtype="FLOAT")
+    >>> b = bands_of(piezo.open(path), fraction=1, low_hz=125, high_hz=2000)
+    >>> b.result.bands[int(np.argmax(b.level_db()[:, 0]))].nominal_hz
+    500.0
     """
 
     file: str

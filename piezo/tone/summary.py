@@ -44,6 +44,16 @@ class Tone:
         The recording's channels, in the order of ``results``.
     results
         One :class:`~piezo.tone.analysis.ToneResult` per channel.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(96000) / 48000
+    >>> sf.write(path, 0.5 * np.sin(2 * np.pi * 440 * t), 48000, subtype="FLOAT")
+    >>> tone = tone_of(piezo.open(path))
+    >>> round(tone.to_dict()["channels"][0]["frequency_hz"], 2), tone.bandwidth_hz
+    (440.0, (20.0, 20000.0))
     """
 
     file: str
@@ -202,6 +212,16 @@ class Calibration:
         The chain the capture was taken through (its sensitivity, if any, is ignored).
     result
         The calibrator measurement (tone, RMS volts, sensitivity, stability).
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "cal.wav"
+    >>> t = np.arange(48000 * 3) / 48000
+    >>> sf.write(path, 0.05 * np.sin(2 * np.pi * 1000 * t), 48000, subtype="FLOAT")
+    >>> cal = calibration_of(piezo.open(path, gain="20 dB"), level_db=114.0)
+    >>> cal.to_dict()["gain"], round(cal.to_dict()["calibrator_pressure_pa"], 3)  # 114 dB
+    (10.0, 10.024)
     """
 
     file: str
