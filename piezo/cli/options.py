@@ -18,7 +18,7 @@ from typing import Annotated, Any
 
 import typer
 
-from piezo.chain.measurement import CalibratedSource, ChainSettings
+from piezo.chain.measurement import CalibratedSource
 from piezo.chain.open import open_source as open_calibrated
 from piezo.errors import InputError
 
@@ -46,17 +46,6 @@ class SourceOptions:
     rate: str | None = None
     columns: str | None = None
     no_sidecar: bool = False
-
-    def chain_settings(self) -> ChainSettings:
-        """The chain part, for :func:`piezo.chain.measurement.resolve_chain`."""
-        return ChainSettings(
-            sensitivity=self.sensitivity,
-            gain=self.gain,
-            full_scale=self.full_scale,
-            reference=self.reference,
-            charge_gain=self.charge_gain,
-            profile=self.profile,
-        )
 
 
 _OPTIONS: dict[str, tuple[Any, Any]] = {
