@@ -3,6 +3,19 @@
 The public library API is listed in :data:`__all__`. Names are loaded on first use
 (PEP 562), so ``import piezo`` stays light; ``from piezo import LevelMeter`` works as
 usual. Implementation modules may change; these names are the contract.
+
+:func:`open` is the calibrated open every command uses; ``levels_of``, ``spectrum_of``,
+``bands_of``, ``tone_of``, ``calibration_of``, ``sweep_response_of``, ``h1_response_of``,
+``study_frontend``, ``check_of`` and ``judge_lot`` return what the commands report, as
+objects whose ``to_dict()`` equals the command's ``--json`` document (``docs/library.md``).
+
+Examples
+--------
+>>> import piezo
+>>> piezo.LevelMeter.__name__
+'LevelMeter'
+>>> piezo.open.__module__
+'piezo.chain.open'
 """
 
 from __future__ import annotations
@@ -14,9 +27,10 @@ from piezo.errors import InputError, PiezoError, RecordingError, SpecError, Unit
 
 __version__ = "0.1.0"
 
-#: Public name -> module that defines it.
+#: Public name -> module that defines it (``"module:name"`` where the names differ).
 _API = {
     # reading and the measurement chain
+    "open": "piezo.chain.open:open_source",
     "open_recording": "piezo.io.reader",
     "Recording": "piezo.io.reader",
     "Chain": "piezo.chain.measurement",
@@ -48,6 +62,27 @@ _API = {
     "load_frontend": "piezo.frontend.model",
     "CaptureChecker": "piezo.diagnostics.checker",
     "check_capture": "piezo.diagnostics.checker",
+    # what each command reports, as result objects (``to_dict()`` is its --json)
+    "levels_of": "piezo.levels.summary",
+    "Levels": "piezo.levels.summary",
+    "spectrum_of": "piezo.spectral.summary",
+    "Spectrum": "piezo.spectral.summary",
+    "bands_of": "piezo.spectral.summary",
+    "Bands": "piezo.spectral.summary",
+    "tone_of": "piezo.tone.summary",
+    "Tone": "piezo.tone.summary",
+    "calibration_of": "piezo.tone.summary",
+    "Calibration": "piezo.tone.summary",
+    "sweep_response_of": "piezo.response.summary",
+    "SweepAnalysis": "piezo.response.summary",
+    "h1_response_of": "piezo.response.summary",
+    "H1Analysis": "piezo.response.summary",
+    "study_frontend": "piezo.frontend.study",
+    "FrontendStudy": "piezo.frontend.study",
+    "check_of": "piezo.diagnostics.summary",
+    "Check": "piezo.diagnostics.summary",
+    "judge_lot": "piezo.batch.lot",
+    "LotVerdicts": "piezo.batch.lot",
 }
 
 __all__ = [
@@ -62,10 +97,11 @@ __all__ = [
 
 
 def __getattr__(name: str) -> Any:
-    module = _API.get(name)
-    if module is None:
+    target = _API.get(name)
+    if target is None:
         raise AttributeError(f"module 'piezo' has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
+    module, _, attr = target.partition(":")
+    value = getattr(importlib.import_module(module), attr or name)
     globals()[name] = value
     return value
 

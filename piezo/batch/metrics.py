@@ -1,6 +1,6 @@
 """Metric extractors: the batch's glue to piezo's analyses.
 
-Each extractor takes a :class:`~piezo.batch.runner.CaptureAnalysis` (one capture, whole,
+Each extractor takes a :class:`~piezo.batch.capture.CaptureAnalysis` (one capture, whole,
 in volts at the sensor) and a :class:`~piezo.batch.spec.MetricSpec`, runs the analysis
 it needs through :meth:`CaptureAnalysis.cached` (so the swept response that feeds five
 metrics is computed once per capture) and returns a
@@ -22,10 +22,18 @@ from typing import Any
 
 import numpy as np
 
-from piezo.batch.runner import CaptureAnalysis
+from piezo.batch.capture import CaptureAnalysis
 from piezo.batch.spec import MetricSpec
 from piezo.batch.verdict import MetricValue
+from piezo.diagnostics.checker import check_capture
 from piezo.errors import InputError
+from piezo.levels.stats import SignalStats
+from piezo.levels.weighting import FrequencyWeighting
+from piezo.response.fit import deviation_from_golden, fit_response, sensitivity_at
+from piezo.response.measure import analyze_sweep
+from piezo.response.stimulus import SweepSpec, stimulus_from_toml, sweep_spec
+from piezo.spectral.bands import band_levels
+from piezo.tone.analysis import measure_tone
 
 __all__ = ["EXTRACTORS", "report_data", "sweep_stimulus"]
 
@@ -43,8 +51,6 @@ def _db(ratio: float) -> float:
 
 def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
     """The :class:`piezo.response.stimulus.SweepSpec` of the spec's sweep at the capture's rate."""
-    from piezo.response.stimulus import SweepSpec, stimulus_from_toml, sweep_spec
-
     if params.get("file_data") is not None:
         stim = stimulus_from_toml(params["file_data"], source=params.get("file"))
         if not isinstance(stim, SweepSpec):
@@ -68,8 +74,6 @@ def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
 
 
 def _sweep_response(a: CaptureAnalysis) -> Any:
-    from piezo.response.measure import analyze_sweep
-
     def compute() -> Any:
         cap = a.capture
         stim = sweep_stimulus(a.spec.stimulus.params, cap.sample_rate_hz)
@@ -92,8 +96,6 @@ def _reference_hz(a: CaptureAnalysis) -> float:
 
 
 def _response_fit(a: CaptureAnalysis) -> Any:
-    from piezo.response.fit import fit_response
-
     def compute() -> Any:
         r = _sweep_response(a)
         return fit_response(
@@ -107,8 +109,6 @@ def _response_fit(a: CaptureAnalysis) -> Any:
 
 
 def _response_at(a: CaptureAnalysis, frequency_hz: float) -> float:
-    from piezo.response.fit import sensitivity_at
-
     r = _sweep_response(a)
     return sensitivity_at(r.frequency_hz, r.magnitude_db, reference_hz=frequency_hz)
 
@@ -179,8 +179,6 @@ def _mask_value(m: MetricSpec, freqs: list[float], curve: list[float], unit: str
 
 
 def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
-    from piezo.response.fit import deviation_from_golden
-
     r = _sweep_response(a)
     golden = m.params["golden_data"]
     dev = deviation_from_golden(
@@ -207,8 +205,6 @@ def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 def _diagnostics(a: CaptureAnalysis) -> Any:
-    from piezo.diagnostics.checker import check_capture
-
     def compute() -> Any:
         cap = a.capture
         result = check_capture(
@@ -250,13 +246,9 @@ def _quiet_segment(a: CaptureAnalysis, m: MetricSpec) -> np.ndarray:
 
 
 def _weighted_rms(a: CaptureAnalysis, m: MetricSpec) -> float:
-    from piezo.levels.stats import SignalStats
-
     x = _quiet_segment(a, m)
     weighting = m.params.get("weighting", "Z")
     if weighting != "Z":
-        from piezo.levels.weighting import FrequencyWeighting
-
         x = FrequencyWeighting(a.capture.sample_rate_hz, 1, weighting=weighting).update(
             x[:, None]
         )[:, 0]
@@ -287,8 +279,6 @@ def _self_noise(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 def _tone(a: CaptureAnalysis) -> Any:
-    from piezo.tone.analysis import measure_tone
-
     def compute() -> Any:
         cap = a.capture
         params = a.spec.stimulus.params
@@ -341,8 +331,6 @@ def _tone_frequency(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 
 def _band_mask(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
-    from piezo.spectral.bands import band_levels
-
     fraction = int(m.params["fraction"])
     freqs = [float(f) for f in m.params["frequency_hz"]]
 

@@ -20,12 +20,11 @@ import re
 import traceback
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from concurrent.futures.process import BrokenProcessPool
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
+from piezo.batch.capture import Capture, CaptureAnalysis, load_capture
+from piezo.batch.metrics import EXTRACTORS, report_data
 from piezo.batch.spec import METRIC_KINDS, MetricSpec, Spec
 from piezo.batch.verdict import MetricValue, judge
 from piezo.errors import InputError, PiezoError
@@ -109,92 +108,12 @@ def content_sha256(path: str | Path) -> str:
     return digest.hexdigest()
 
 
-@dataclass
-class Capture:
-    """One capture, whole, in volts at the sensor's output.
-
-    ``samples`` has shape (frames,): the spec's channel, calibrated by the spec's full
-    scale and divided by the front-end gain. ``clip_level_v`` is the ADC full scale
-    expressed in the same volts, for clipping checks.
-    """
-
-    path: str
-    sample_rate_hz: float
-    samples: np.ndarray
-    clip_level_v: float
-
-
-def path_is_csv(path: str) -> bool:
-    """True for text exports (read as volts at the ADC input, rate from capture.rate_hz)."""
-    from piezo.io.reader import CSV_SUFFIXES
-
-    return Path(path).suffix.lower() in CSV_SUFFIXES
-
-
-def load_capture(path: str, spec: Spec) -> Capture:
-    """Read ``path`` whole with piezo's reader and calibrate it by the spec's chain."""
-    from piezo.chain.measurement import CalibratedSource, Chain
-    from piezo.io.reader import open_recording
-
-    recording = open_recording(path, rate_hz=spec.rate_hz if path_is_csv(path) else None)
-    if spec.channel >= recording.channels:
-        raise InputError(
-            f"capture.channel = {spec.channel} but the capture has "
-            f"{recording.channels} channel(s)",
-            source=path,
-        )
-    chain = Chain(full_scale_v=spec.full_scale_v, gain=spec.gain)
-    source = CalibratedSource.of(recording, chain, [spec.channel])
-    blocks = [b[:, 0] for b in source.blocks()]
-    samples = np.concatenate(blocks) if blocks else np.zeros(0)
-    if samples.size == 0:
-        raise PiezoError("capture is empty", source=path)
-    return Capture(path, float(source.sample_rate_hz), samples, spec.full_scale_v / spec.gain)
-
-
-@dataclass
-class CaptureAnalysis:
-    """A capture and the analyses already run on it, shared by the metric extractors.
-
-    Extractors call :meth:`cached` so an analysis that feeds several metrics (the swept
-    response feeds sensitivity, corner, resonance and masks) runs once per capture.
-    """
-
-    capture: Capture
-    spec: Spec
-    _cache: dict[Any, Any] = field(default_factory=dict)
-
-    def cached(self, key: Any, compute: Callable[[], Any]) -> Any:
-        """Return the value stored under ``key``, computing it on first use.
-
-        An exception raised by ``compute`` is stored too and raised again on every call,
-        so a failing analysis is tried once per capture.
-        """
-        if key not in self._cache:
-            try:
-                self._cache[key] = (True, compute())
-            except Exception as exc:  # re-raised below, for each caller
-                self._cache[key] = (False, exc)
-        ok, value = self._cache[key]
-        if not ok:
-            raise value
-        return value
-
-    def peek(self, key: Any) -> tuple[bool, Any]:
-        """``(True, value)`` if the analysis under ``key`` ran and succeeded, else
-        ``(False, None)``; never computes anything."""
-        ok, value = self._cache.get(key, (False, None))
-        return (True, value) if ok else (False, None)
-
-
 #: An extractor computes one metric kind: (analysis, metric) -> MetricValue.
 Extractor = Callable[[CaptureAnalysis, MetricSpec], MetricValue]
 Loader = Callable[[str, Spec], Capture]
 
 
 def _default_extractors() -> Mapping[str, Extractor]:
-    from piezo.batch.metrics import EXTRACTORS
-
     return EXTRACTORS
 
 
@@ -287,7 +206,7 @@ def evaluate_capture(
     for metric in spec.metrics:
         values[metric.name] = _extract(extractors, analysis, metric)
     verdict = judge(spec.metrics, values)
-    row = {
+    row: dict[str, Any] = {
         "file": display,
         "serial": serial or "",
         "verdict": verdict.verdict,
@@ -309,8 +228,6 @@ def evaluate_capture(
             if METRIC_KINDS[_kind(spec, name)].mask
         }
     if with_report:
-        from piezo.batch.metrics import report_data
-
         try:
             row["_report"] = report_data(analysis)
         except Exception as exc:  # a report is an extra: never lose the verdict for it

@@ -11,7 +11,7 @@ chain gives, per sample::
 Without a sensitivity the chain stops at volts, and levels are in dB re 1 V.
 
 Settings come, lowest priority first, from the defaults, a sidecar profile ``NAME.toml``
-next to ``NAME.wav``, a profile given with ``--profile``, and explicit options. Each value
+next to ``NAME.wav``, a profile file given explicitly, and explicit values. Each value
 remembers where it came from (:class:`Provenance`), for reports.
 
 Reference pressures are those of ISO 1683:2015: 20 µPa in gases, 1 µPa in liquids.
@@ -22,8 +22,8 @@ from __future__ import annotations
 import datetime as _dt
 import math
 import tomllib
-from collections.abc import Iterator, Mapping, Sequence
-from dataclasses import dataclass, field
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -47,6 +47,7 @@ __all__ = [
     "ChainSettings",
     "SensorProfile",
     "load_profile",
+    "profile_with_sensitivity",
     "resolve_chain",
     "sidecar_path",
 ]
@@ -236,6 +237,85 @@ def load_profile(path: str | Path) -> SensorProfile:
     )
 
 
+def profile_with_sensitivity(
+    text: str | None,
+    sensitivity_v_per_pa: float,
+    *,
+    calibration_date: str,
+    source: str | None = None,
+) -> str:
+    r"""A profile's text with ``[sensor] sensitivity`` and ``calibration_date`` set.
+
+    Everything else (other keys, sections, comments, blank lines) is kept as it is; a
+    ``charge_sensitivity`` is dropped (the measured voltage sensitivity replaces it).
+    ``text`` None or empty starts a new profile. The caller writes the result.
+
+    Raises
+    ------
+    InputError
+        ``text`` is not valid TOML (the message names ``source``).
+
+    Examples
+    --------
+    >>> old = '# bench mic\n[sensor]\nname = "film"\n\n[chain]\ngain = "20 dB"\n'
+    >>> print(profile_with_sensitivity(old, 8.5e-3, calibration_date="2026-12-01"))
+    # bench mic
+    [sensor]
+    name = "film"
+    sensitivity = "8.5 mV/Pa"
+    calibration_date = 2026-12-01
+    <BLANKLINE>
+    [chain]
+    gain = "20 dB"
+    <BLANKLINE>
+    >>> load = tomllib.loads(profile_with_sensitivity(None, 0.012, calibration_date="2026-12-01"))
+    >>> load["sensor"]["sensitivity"]
+    '12 mV/Pa'
+    """
+    lines = text.splitlines() if text else []
+    if lines:
+        try:
+            tomllib.loads("\n".join(lines))
+        except tomllib.TOMLDecodeError as exc:
+            raise InputError(
+                f"cannot update profile: invalid TOML: {exc}", source=source
+            ) from None
+    values = {
+        "sensitivity": f'"{1e3 * sensitivity_v_per_pa:.5g} mV/Pa"',
+        "calibration_date": calibration_date,
+    }
+    out: list[str] = []
+    section = None
+    seen_sensor = False
+    written: set[str] = set()
+    for line in lines:
+        stripped = line.strip()
+        if stripped.startswith("["):
+            if section == "sensor":
+                blanks = 0
+                while out and not out[-1].strip():
+                    out.pop()
+                    blanks += 1
+                out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
+                out.extend([""] * blanks)
+                written.update(values)
+            section = stripped.strip("[]").strip()
+            seen_sensor = seen_sensor or section == "sensor"
+        key = stripped.split("=", 1)[0].strip() if "=" in stripped else None
+        if section == "sensor" and key in values and key not in written:
+            out.append(f"{key} = {values[key]}")
+            written.add(key)
+            continue
+        if section == "sensor" and key == "charge_sensitivity":
+            continue  # replaced by the measured voltage sensitivity
+        out.append(line)
+    if section == "sensor":
+        out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
+    elif not seen_sensor:
+        out = ["[sensor]", *(f"{k} = {v}" for k, v in values.items()), "", *out]
+    return "\n".join(out).rstrip("\n") + "\n"
+
+
 def _text(value: Any) -> str | None:
     return None if value is None else str(value)
 
@@ -252,19 +332,30 @@ def sidecar_path(recording_path: str | Path) -> Path:
     return Path(recording_path).with_suffix(".toml")
 
 
+#: A chain value as given: a number in SI units, or text with its unit ("12 mV/Pa").
+ChainValue = str | float | None
+
+
 @dataclass(frozen=True)
 class ChainSettings:
-    """Chain options as the user typed them (text), before parsing.
+    """Chain values as given, before parsing: numbers in SI units or unit text.
 
-    None means "not given": the profile or default applies.
+    None means "not given": the profile or default applies. Error messages name the
+    field (``sensitivity``, ``full_scale`` ...).
+
+    Examples
+    --------
+    >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="20 mV/Pa", gain="20 dB"))
+    >>> round(chain.sensitivity_v_per_pa, 6), round(chain.gain, 6)
+    (0.02, 10.0)
     """
 
-    sensitivity: str | None = None
-    gain: str | None = None
-    full_scale: str | None = None
-    reference: str | None = None
-    charge_gain: str | None = None
-    profile: Path | None = None
+    sensitivity: ChainValue = None
+    gain: ChainValue = None
+    full_scale: ChainValue = None
+    reference: ChainValue = None
+    charge_gain: ChainValue = None
+    profile: str | Path | None = None
 
 
 @dataclass(frozen=True)
@@ -290,9 +381,11 @@ class Provenance:
 def resolve_chain(
     recording_path: str | Path | None, settings: ChainSettings, *, use_sidecar: bool = True
 ) -> tuple[Chain, Provenance]:
-    """Combine defaults, sidecar profile, ``--profile`` and options into a :class:`Chain`.
+    """Combine defaults, sidecar profile, profile file and given values into a :class:`Chain`.
 
-    Later sources override earlier ones: defaults, sidecar, profile file, options.
+    Later sources override earlier ones: defaults, the sidecar ``NAME.toml`` (when
+    ``use_sidecar``), ``settings.profile``, then the values of ``settings``. Text is
+    parsed here, once, by :mod:`piezo.chain.units`.
     """
     values: dict[str, float | None] = {
         "full_scale_v": 1.0,
@@ -319,21 +412,23 @@ def resolve_chain(
                 origin[key] = str(path)
 
     charge_gain = (
-        parse_charge_gain(settings.charge_gain) if settings.charge_gain is not None else None
+        parse_charge_gain(settings.charge_gain, what="charge_gain")
+        if settings.charge_gain is not None
+        else None
     )
     if settings.sensitivity is not None:
         values["sensitivity_v_per_pa"] = parse_sensitivity(
-            settings.sensitivity, charge_gain_v_per_c=charge_gain
+            settings.sensitivity, charge_gain_v_per_c=charge_gain, what="sensitivity"
         )
         origin["sensitivity_v_per_pa"] = "option"
     if settings.gain is not None:
-        values["gain"] = parse_gain(settings.gain)
+        values["gain"] = parse_gain(settings.gain, what="gain")
         origin["gain"] = "option"
     if settings.full_scale is not None:
-        values["full_scale_v"] = _positive(settings.full_scale, "V", "--full-scale")
+        values["full_scale_v"] = _positive(settings.full_scale, "V", "full_scale")
         origin["full_scale_v"] = "option"
     if settings.reference is not None:
-        values["reference_pa"] = _positive(settings.reference, "Pa", "--reference")
+        values["reference_pa"] = _positive(settings.reference, "Pa", "reference")
         origin["reference_pa"] = "option"
     chain = Chain(
         full_scale_v=float(values["full_scale_v"]),  # type: ignore[arg-type]
@@ -402,6 +497,79 @@ class CalibratedSource:
     def scale(self) -> float:
         """Factor from raw samples to calibrated units."""
         return self.chain.scale(is_pcm=self.recording.is_pcm)
+
+    def volts_at_sensor(self) -> CalibratedSource:
+        """The same recording and channels in volts at the sensor's output.
+
+        Full scale and gain are undone, a sensitivity is not applied: what a calibration,
+        a response measurement or a production check measures is the sensor's voltage.
+        An uncalibrated source is returned as it is.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("ch0",), True)
+        >>> src = CalibratedSource.of(rec, Chain(full_scale_v=2.0, gain=10.0,
+        ...                                      sensitivity_v_per_pa=0.02))
+        >>> src.unit, round(src.scale, 12)
+        ('Pa', 10.0)
+        >>> volts = src.volts_at_sensor()
+        >>> volts.unit, round(volts.scale, 12)
+        ('V', 0.2)
+        """
+        if not self.chain.calibrated:
+            return self
+        chain = replace(self.chain, sensitivity_v_per_pa=None)
+        return replace(self, chain=chain)
+
+    def with_channels(self, channels: Sequence[int] | None) -> CalibratedSource:
+        """The same source restricted to ``channels`` (0-based; all when None).
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("ch0", "ch1"), True)
+        >>> CalibratedSource.of(rec, Chain()).with_channels([1]).channel_indices
+        (1,)
+        """
+        idx = tuple(range(self.recording.channels)) if channels is None else tuple(channels)
+        return replace(self, channel_indices=idx)
+
+    def feed(
+        self,
+        *analyses: Any,
+        advance: Callable[[int], object] | None = None,
+        block_frames: int = 65536,
+    ) -> None:
+        """Read the source once, handing every calibrated block to each analysis.
+
+        Each analysis is anything with ``update(block)`` (the streaming classes);
+        ``advance(frames)`` is called after each block (a progress bar).
+
+        Examples
+        --------
+        >>> import numpy as np, soundfile as sf, tempfile, pathlib
+        >>> from piezo.io.reader import open_recording
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "ramp.wav"
+        >>> sf.write(path, np.linspace(-0.5, 0.5, 1000), 8000, subtype="FLOAT")
+        >>> class Peak:
+        ...     value = 0.0
+        ...     def update(self, block):
+        ...         self.value = max(self.value, float(np.abs(block).max()))
+        >>> peak, done = Peak(), []
+        >>> src = CalibratedSource.of(open_recording(path), Chain(full_scale_v=2.0))
+        >>> src.feed(peak, advance=done.append, block_frames=300)
+        >>> peak.value, done  # volts: 0.5 of full scale at 2 V
+        (1.0, [300, 300, 300, 100])
+        """
+        for block in self.blocks(block_frames):
+            for analysis in analyses:
+                analysis.update(block)
+            if advance is not None:
+                advance(block.shape[0])
 
     def blocks(
         self, block_frames: int = 65536, *, overlap_frames: int = 0

@@ -18,14 +18,11 @@ from typing import Annotated
 import typer
 
 from piezo import __version__
+from piezo.cli.exits import EXIT_FAILED, EXIT_INTERNAL, EXIT_OK, EXIT_USAGE
 from piezo.errors import PiezoError
 
 __all__ = ["EXIT_FAILED", "EXIT_INTERNAL", "EXIT_OK", "EXIT_USAGE", "app", "main"]
 
-EXIT_OK = 0
-EXIT_FAILED = 1
-EXIT_USAGE = 2
-EXIT_INTERNAL = 3
 
 #: Command modules, in the order their commands are listed by ``piezo --help``.
 COMMAND_MODULES = (

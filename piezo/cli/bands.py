@@ -16,7 +16,8 @@ from piezo.cli.options import JsonOption, SourceOptions, open_source, source_opt
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
-from piezo.spectral.bands import FRACTIONS, BandAnalyzer, BandResult
+from piezo.spectral.bands import FRACTIONS, BandResult
+from piezo.spectral.summary import bands_of
 
 
 def register(app: typer.Typer) -> None:
@@ -82,57 +83,19 @@ def bands(
     if interval_s is not None and not interval_s > 0:
         raise InputError(f"--interval must be positive, got {interval!r}")
     source = open_source(file, src)
-    nch = len(source.channel_indices)
-    try:
-        analyzer = BandAnalyzer(
-            source.sample_rate_hz,
-            nch,
+    with progress(f"Bands of {file.name}", source.frames) as advance:
+        measured = bands_of(
+            source,
             fraction=fraction,
             low_hz=low_hz,
             high_hz=high_hz,
             interval_s=interval_s,
             weighting=weighting,
+            advance=advance,
         )
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
-    with progress(f"Bands of {file.name}", source.frames) as advance:
-        for block in source.blocks():
-            analyzer.update(block)
-            advance(block.shape[0])
-    result = analyzer.result()
-    ref = source.reference
-    levels = result.level_db(ref)
-    doc = {
-        "file": str(file),
-        "fraction": fraction,
-        "unit": source.unit,
-        "level_unit": source.chain.level_unit,
-        "weighting": weighting,
-        "sample_rate_hz": source.sample_rate_hz,
-        "interval_s": interval_s,
-        "channels": [],
-    }
-    for i, ch in enumerate(source.channel_indices):
-        entry = {
-            "channel": ch,
-            "bands": [
-                {
-                    "nominal_hz": _number(b.nominal_hz),
-                    "exact_hz": b.exact_hz,
-                    "lower_hz": b.lower_hz,
-                    "upper_hz": b.upper_hz,
-                    "level_db": _finite(levels[j, i]),
-                }
-                for j, b in enumerate(result.bands)
-            ],
-        }
-        if interval_s is not None:
-            hist = result.history_db(ref)[:, :, i]
-            entry["history"] = {
-                "time_s": result.history_time_s,
-                "level_db": [[_finite(v) for v in row] for row in hist],
-            }
-        doc["channels"].append(entry)
+    result = measured.result
+    ref = measured.reference
+    doc = measured.to_dict()
     if csv is not None:
         write_text_atomic(csv, format_csv(result, source.channel_indices, ref))
     if json_out:
@@ -141,15 +104,6 @@ def bands(
         _print(doc)
     if csv is not None:
         err_console.print(f"table written: {csv}")
-
-
-def _number(value: float) -> int | float:
-    """1000.0 -> 1000, 31.5 stays 31.5 (nominal labels read naturally in JSON)."""
-    return int(value) if float(value).is_integer() else value
-
-
-def _finite(value: float) -> float | None:
-    return float(value) if np.isfinite(value) else None
 
 
 def format_csv(result: BandResult, channels: tuple[int, ...], reference: float) -> str:

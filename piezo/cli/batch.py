@@ -9,6 +9,7 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
+from piezo.batch.lot import LotVerdicts
 from piezo.batch.outputs import (
     Journal,
     read_previous_rows,
@@ -135,26 +136,7 @@ def batch(
     summary = summarize(rows, spec)
     bad = summary["counts"][FAIL] + summary["counts"][NOT_EVALUABLE]
     if json_out:
-        emit_json(
-            {
-                "out": str(out),
-                "captures": summary["captures"],
-                "reused": reused,
-                "counts": summary["counts"],
-                "yield": summary["yield"],
-                "failing": [
-                    {
-                        "file": r["file"],
-                        "serial": r["serial"],
-                        "verdict": r["verdict"],
-                        "failed_limits": r["failed_limits"],
-                        "not_evaluable": r["not_evaluable"],
-                    }
-                    for r in rows
-                    if r["verdict"] in (FAIL, NOT_EVALUABLE)
-                ],
-            }
-        )
+        emit_json(LotVerdicts(tuple(rows), spec, str(out), reused).to_dict())
     else:
         _print_summary(rows, summary, out, reused)
     if bad:

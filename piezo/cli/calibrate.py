@@ -3,18 +3,17 @@
 from __future__ import annotations
 
 import datetime as _dt
-import tomllib
 from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from piezo.chain.measurement import sidecar_path
+from piezo.chain.measurement import profile_with_sensitivity, sidecar_path
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError
-from piezo.tone.calibrator import ToneCalibrator, calibrator_pressure_pa
+from piezo.tone.summary import calibration_of
 
 
 def register(app: typer.Typer) -> None:
@@ -67,25 +66,11 @@ def calibrate(
             f"{source.recording.channels} channels: choose the calibrated one with --channel",
             source=str(file),
         )
-    # Volts at the sensor: the chain without its sensitivity.
-    volts_per_raw = source.chain.scale(is_pcm=source.recording.is_pcm)
-    if source.chain.sensitivity_v_per_pa is not None:
-        volts_per_raw *= source.chain.sensitivity_v_per_pa
-    cal = ToneCalibrator(
-        source.sample_rate_hz,
-        expected_hz=expected_hz,
-        level_db=level,
-        reference_pa=source.chain.reference_pa,
-    )
-    rec = source.recording
-    try:
-        with progress(f"Measuring {file.name}", rec.frames) as advance:
-            for block in rec.blocks(channels=source.channel_indices):
-                cal.update(block * volts_per_raw)
-                advance(block.shape[0])
-        result = cal.result()
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
+    with progress(f"Measuring {file.name}", source.frames) as advance:
+        calibration = calibration_of(
+            source, level_db=level, expected_hz=expected_hz, advance=advance
+        )
+    result = calibration.result
     if not result.stable and not accept_unstable:
         raise InputError(
             f"the tone is not stable (level spread {result.level_spread_db:.2f} dB, "
@@ -93,23 +78,7 @@ def calibrate(
             "and record again, or pass --accept-unstable",
             source=str(file),
         )
-    doc = {
-        "file": str(file),
-        "channel": source.channel_indices[0],
-        "sensitivity_mv_per_pa": result.sensitivity_mv_per_pa,
-        "sensitivity_dbv_per_pa": result.sensitivity_dbv_per_pa,
-        "tone_hz": result.tone_hz,
-        "residual_db": result.residual_db,
-        "tone_rms_v": result.tone_rms_v,
-        "calibrator_level_db": level,
-        "calibrator_pressure_pa": calibrator_pressure_pa(level, source.chain.reference_pa),
-        "reference_pa": source.chain.reference_pa,
-        "level_spread_db": result.level_spread_db,
-        "frequency_spread_percent": 100 * result.frequency_spread,
-        "stable": result.stable,
-        "gain": source.chain.gain,
-        "full_scale_v": source.chain.full_scale_v,
-    }
+    doc = calibration.to_dict()
     if write_profile is not None:
         _update_profile(write_profile, result.sensitivity_mv_per_pa)
         doc["profile_written"] = str(write_profile)
@@ -140,46 +109,17 @@ def calibrate(
 
 
 def _update_profile(path: Path, sensitivity_mv_per_pa: float) -> None:
-    """Set ``[sensor] sensitivity`` and ``calibration_date`` in a profile, keeping the rest."""
-    lines = path.read_text(encoding="utf-8").splitlines() if path.exists() else []
-    if lines:
+    """Set the measured sensitivity in the profile at ``path`` (created or updated)."""
+    old = None
+    if path.exists():
         try:
-            tomllib.loads("\n".join(lines))
-        except tomllib.TOMLDecodeError as exc:
-            raise InputError(
-                f"cannot update profile: invalid TOML: {exc}", source=str(path)
-            ) from None
-    values = {
-        "sensitivity": f'"{sensitivity_mv_per_pa:.5g} mV/Pa"',
-        "calibration_date": _dt.date.today().isoformat(),
-    }
-    out: list[str] = []
-    section = None
-    seen_sensor = False
-    written: set[str] = set()
-    for line in lines:
-        stripped = line.strip()
-        if stripped.startswith("["):
-            if section == "sensor":
-                blanks = 0
-                while out and not out[-1].strip():
-                    out.pop()
-                    blanks += 1
-                out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
-                out.extend([""] * blanks)
-                written.update(values)
-            section = stripped.strip("[]").strip()
-            seen_sensor = seen_sensor or section == "sensor"
-        key = stripped.split("=", 1)[0].strip() if "=" in stripped else None
-        if section == "sensor" and key in values and key not in written:
-            out.append(f"{key} = {values[key]}")
-            written.add(key)
-            continue
-        if section == "sensor" and key == "charge_sensitivity":
-            continue  # replaced by the measured voltage sensitivity
-        out.append(line)
-    if section == "sensor":
-        out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
-    elif not seen_sensor:
-        out = ["[sensor]", *(f"{k} = {v}" for k, v in values.items()), "", *out]
-    write_text_atomic(path, "\n".join(out).rstrip("\n") + "\n")
+            old = path.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            raise InputError(f"cannot read profile: {exc}", source=str(path)) from None
+    text = profile_with_sensitivity(
+        old,
+        sensitivity_mv_per_pa * 1e-3,
+        calibration_date=_dt.date.today().isoformat(),
+        source=str(path),
+    )
+    write_text_atomic(path, text)

@@ -16,17 +16,17 @@ from rich.table import Table
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity, parse_quantity
-from piezo.cli import EXIT_FAILED
+from piezo.cli.exits import EXIT_FAILED
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.diagnostics.checker import (
     CaptureDiagnostics,
     Severity,
     Thresholds,
-    checker_for_source,
     load_thresholds,
     parse_threshold_assignment,
 )
+from piezo.diagnostics.summary import Check, check_of
 
 __all__ = ["check", "register", "resolve_thresholds", "run_check"]
 
@@ -55,35 +55,10 @@ def resolve_thresholds(
     return th.updated(values, source="--threshold") if values else th
 
 
-def run_check(source: CalibratedSource, thresholds: Thresholds) -> CaptureDiagnostics:
-    """Read ``source`` once (with a progress bar on a terminal) and return its diagnostics."""
-    checker = checker_for_source(source, thresholds)
+def run_check(source: CalibratedSource, thresholds: Thresholds) -> Check:
+    """Read ``source`` once (with a progress bar on a terminal) and return its check."""
     with progress(f"Checking {source.recording.path.name}", source.frames) as advance:
-        for block in source.blocks():
-            checker.update(block)
-            advance(block.shape[0])
-    return checker.result()
-
-
-def check_document(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> dict:
-    """The ``--json`` document: file, chain and provenance, then the diagnostics."""
-    rec = source.recording
-    chain = source.chain
-    doc: dict[str, Any] = {
-        "file": str(file),
-        "format": rec.format,
-        "subtype": rec.subtype,
-        "level_unit": chain.level_unit,
-        "chain": {
-            "full_scale_v": chain.full_scale_v,
-            "gain": chain.gain,
-            "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
-            "reference_pa": chain.reference_pa,
-            "provenance": source.provenance.as_dict() if source.provenance else None,
-        },
-    }
-    doc.update(result.as_dict())
-    return doc
+        return check_of(source, thresholds, advance=advance)
 
 
 @source_options
@@ -126,12 +101,12 @@ def check(
     """
     thresholds = resolve_thresholds(thresholds_file, threshold, expected_corner)
     source = open_source(file, src, allow_time_gaps=True)
-    result = run_check(source, thresholds)
+    checked = run_check(source, thresholds)
     if json_out:
-        emit_json(check_document(file, source, result))
+        emit_json(checked.to_dict())
     else:
-        _print(file, source, result)
-    if any(ch.verdict is Severity.FAIL for ch in result.channels):
+        _print(file, source, checked.diagnostics)
+    if checked.failed:
         raise typer.Exit(EXIT_FAILED)
 
 

@@ -27,20 +27,12 @@ from piezo.frontend.model import (
     design_key_unit,
     frequency_response,
     frontend_from_mapping,
-    parse_design_value,
     phase_deg,
     read_design,
-    resolve_design_key,
-    set_design_value,
     summarise_response,
 )
-from piezo.frontend.noise import noise_budget, noise_gain_midband, self_noise
-
-CAUTION = (
-    "Caution: piezo elements can produce high voltages under shock or temperature change; "
-    "protect the amplifier input. These figures are an engineering estimate from the "
-    "model: confirm them by measurement."
-)
+from piezo.frontend.noise import noise_budget
+from piezo.frontend.study import CAUTION, study_frontend, vary_values
 
 #: Output formats that hold 32-bit float samples (values beyond ±1 survive).
 _FLOAT_FORMATS = {".wav": "WAV", ".w64": "W64", ".rf64": "RF64", ".caf": "CAF", ".aiff": "AIFF"}
@@ -74,58 +66,6 @@ def register(app: typer.Typer) -> None:
 # --------------------------------------------------------------------------- frontend
 
 
-def _band(band: tuple[float | None, float | None] | None) -> list[float | None] | None:
-    return None if band is None else [band[0], band[1]]
-
-
-def design_document(fe: Frontend, *, at_hz: tuple[float, ...] = ()) -> dict[str, Any]:
-    """Every figure of ``frontend`` as plain JSON values (the ``--json`` contract)."""
-    summary = summarise_response(fe, at_hz=at_hz)
-    noise = self_noise(fe)
-    amp = fe.amplifier
-    return {
-        "name": fe.name,
-        "amplifier": amp.kind,
-        "sensitivity_mv_per_pa": 1e3 * summary.sensitivity_v_per_pa,
-        "sensitivity_dbv_per_pa": summary.sensitivity_db_re_1v_per_pa,
-        "charge_gain_mv_per_pc": summary.charge_gain_v_per_c * 1e-9,
-        "inverting": summary.inverting,
-        "divider_ratio": summary.divider_ratio,
-        "corner_hz": summary.corner_hz,
-        "time_constant_s": summary.time_constant_s,
-        "band_1db_hz": _band(summary.band_1db_hz),
-        "band_3db_hz": _band(summary.band_3db_hz),
-        "phase": [
-            {"frequency_hz": f, "level_db": level, "phase_deg": ph}
-            for f, level, ph in zip(
-                summary.at_hz, summary.relative_level_db, summary.phase_deg, strict=True
-            )
-        ],
-        "noise_gain_midband": noise_gain_midband(fe),
-        "self_noise_dba": noise.a_weighted_db_spl,
-        "self_noise_unweighted_db": noise.unweighted_db_spl,
-        "noise_band_hz": list(noise.band_hz),
-        "output_noise_v_rms": noise.output_noise_v_rms,
-        "noise_budget": [
-            {
-                "source": s.key,
-                "label": s.label,
-                "output_v_per_sqrt_hz": s.output_density_v_per_sqrt_hz,
-                "input_pa_per_sqrt_hz": s.input_density_pa_per_sqrt_hz,
-                "a_weighted_db": s.a_weighted_db_spl,
-                "share": s.share,
-            }
-            for s in noise.sources
-        ],
-        "noise_reference_hz": noise.reference_hz,
-        "clip_level_v": amp.clip_level_v,
-        "max_spl_db": noise.max_spl_db,
-        "dynamic_range_db": noise.dynamic_range_db,
-        "temperature_k": fe.temperature_k,
-        "caution": CAUTION,
-    }
-
-
 def _parse_vary(text: str) -> tuple[str, np.ndarray]:
     name, sep, spec = text.partition("=")
     parts = spec.split(":")
@@ -135,19 +75,13 @@ def _parse_vary(text: str) -> tuple[str, np.ndarray]:
         )
     name = name.strip()
     try:
-        resolve_design_key(name)
-    except InputError as exc:
-        raise InputError(f"--vary: {exc.message}") from None
-    lo = parse_design_value(name, parts[0].strip())
-    hi = parse_design_value(name, parts[1].strip())
-    try:
         count = int(parts[2])
     except ValueError:
         raise InputError(f"--vary {text!r}: N must be a whole number, got {parts[2]!r}") from None
-    if not 2 <= count <= 50:
-        raise InputError(f"--vary {text!r}: N must be 2 to 50, got {count}")
-    values = np.geomspace(lo, hi, count) if lo > 0 and hi > 0 else np.linspace(lo, hi, count)
-    return name, values
+    try:
+        return name, vary_values(name, parts[0].strip(), parts[1].strip(), count)
+    except InputError as exc:
+        raise InputError(f"--vary: {exc.message}") from None
 
 
 def frontend(
@@ -183,22 +117,12 @@ def frontend(
     level and phase at --at frequencies, the noise budget per source, the A-weighted
     self-noise (dB re 20 µPa, 20 Hz–20 kHz) and the dynamic range to the clip level.
     """
-    data = read_design(design)
-    fe = frontend_from_mapping(data, source=str(design))
     at_hz = tuple(parse_frequency_list(at, what="--at"))
-    try:
-        doc = {"design": str(design), **design_document(fe, at_hz=at_hz)}
-    except InputError as exc:
-        raise exc.with_source(str(design)) from None
-    rows = None
-    if vary is not None:
-        name, values = _parse_vary(vary)
-        rows = []
-        for value in values:
-            varied = frontend_from_mapping(set_design_value(data, name, value), source=str(design))
-            row = design_document(varied)
-            rows.append({"value": float(value), **{k: row[k] for k in _VARY_KEYS}})
-        doc["vary"] = {"name": name, "rows": rows}
+    varied = _parse_vary(vary) if vary is not None else None
+    study = study_frontend(design, at_hz=at_hz, vary=varied)
+    fe = study.frontend
+    doc = study.to_dict()
+    rows = doc["vary"]["rows"] if varied is not None else None
     if plot is not None:
         _plot(fe, plot, title=fe.name or design.name)
         doc["plot"] = str(plot)
@@ -211,17 +135,6 @@ def frontend(
     if plot is not None:
         console.print(f"plot written to {plot}")
     console.print(f"[yellow]{CAUTION}[/yellow]")
-
-
-_VARY_KEYS = (
-    "sensitivity_mv_per_pa",
-    "corner_hz",
-    "time_constant_s",
-    "band_1db_hz",
-    "self_noise_dba",
-    "noise_gain_midband",
-    "dynamic_range_db",
-)
 
 
 def _q(value: float | None, unit: str, digits: int = 4) -> str:
@@ -492,7 +405,11 @@ def simulate(
     rate = _integer_rate(source.sample_rate_hz)
     channels = len(source.channel_indices)
     filt = FrontendFilter(
-        source.sample_rate_hz, channels, frontend=fe, input=input_kind, clip=not no_clip
+        source.sample_rate_hz,
+        channels,
+        frontend=fe,
+        input="charge" if input_kind == "charge" else "pressure",
+        clip=not no_clip,
     )
     with atomic_output(out) as tmp:
         with sf.SoundFile(
@@ -594,7 +511,7 @@ def equalize(
                     advance(block.shape[0])
     result = eq.result()
     probe = np.geomspace(target_hz / 10, result.measured_corner_hz * 10, 5)
-    doc = {
+    doc: dict[str, Any] = {
         "file": str(file),
         "frontend": str(frontend_path),
         "out": str(out),

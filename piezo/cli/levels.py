@@ -12,20 +12,7 @@ from piezo.chain.units import parse_duration, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
-from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
-
-#: Shown with every result (terminal and JSON).
-CAUTION = (
-    "Signal analysis of a recording, not a certified sound level meter measurement. "
-    "Occupational noise exposure must be assessed as local regulations require, with "
-    "calibrated class 1 instruments."
-)
-
-#: Key order of each channel in the JSON document (the names are a public contract).
-LEVEL_KEYS = (
-    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin", "LCpeak", "LZpeak",
-    "LAE", *(f"LAF{p}" for p in PERCENTILES),
-)  # fmt: skip
+from piezo.levels.summary import LEVEL_KEYS, levels_of
 
 #: Terminal history tables longer than this are left to --json.
 MAX_HISTORY_ROWS = 60
@@ -75,73 +62,20 @@ def levels(
     """
     interval_s = parse_duration(interval, what="--interval") if interval is not None else None
     source = open_source(file, src)
-    options: dict[str, Any] = {"reference": source.reference}
-    if interval_s is not None:
-        options["interval_s"] = interval_s
+    settle_s = None
     if settle is not None:
         settle_s = parse_quantity(settle, "s", what="--settle")
         if settle_s < 0:
             raise InputError(f"--settle must be 0 or more, got {settle!r}")
-        options["filter_settle_s"] = settle_s
-    meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
     with progress(f"Levels {file.name}", source.frames) as advance:
-        for block in source.blocks():
-            meter.update(block)
-            advance(block.shape[0])
-    result = meter.result()
-    doc = _document(file, source, result)
+        measured = levels_of(
+            source, interval_s=interval_s, filter_settle_s=settle_s, advance=advance
+        )
+    doc = measured.to_dict()
     if json_out:
         emit_json(doc)
         return
     _print(doc)
-
-
-def _document(file: Path, source: Any, result: LevelResult) -> dict[str, Any]:
-    channels = []
-    for index, ch in zip(source.channel_indices, result.channels, strict=True):
-        entry: dict[str, Any] = {"channel": index}
-        entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
-        entry.update(
-            duration_s=result.duration_s,
-            crest_factor=ch.crest_factor,
-            crest_factor_db=ch.crest_factor_db,
-            notes=list(ch.notes),
-        )
-        channels.append(entry)
-    doc: dict[str, Any] = {
-        "file": str(file),
-        "unit": source.unit,
-        "level_unit": source.chain.level_unit,
-        "reference": result.reference,
-        "sample_rate_hz": result.sample_rate_hz,
-        "duration_s": result.duration_s,
-        "percentile_interval_s": result.percentile_interval_s,
-        "start_up_excluded_s": result.excluded_s,
-        "standard": "IEC 61672-1:2013 frequency and time weightings",
-        "caution": CAUTION,
-        "channels": channels,
-    }
-    if result.history is not None:
-        h = result.history
-        doc["history"] = {
-            "interval_s": h.interval_s,
-            "interval_start_s": h.interval_start_s,
-            "interval_duration_s": h.interval_duration_s,
-            "trace_interval_s": h.trace_interval_s,
-            "trace_time_s": h.trace_time_s,
-            "channels": [
-                {
-                    "channel": index,
-                    "LZeq": h.LZeq[:, i],
-                    "LAeq": h.LAeq[:, i],
-                    "LCeq": h.LCeq[:, i],
-                    "LAF": h.LAF[:, i],
-                    "LAS": h.LAS[:, i],
-                }
-                for i, index in enumerate(source.channel_indices)
-            ],
-        }
-    return doc
 
 
 def _fmt(value: float | None) -> str:

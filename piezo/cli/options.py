@@ -1,10 +1,9 @@
 """Options shared by every analysis command, defined once.
 
 :func:`source_options` adds the measurement-chain and input options to a command and hands
-the command a :class:`SourceOptions`; :func:`open_source` turns it into a
-:class:`~piezo.chain.measurement.CalibratedSource`. Option names are a public contract:
-users' scripts
-rely on them.
+the command a :class:`SourceOptions`; :func:`open_source` hands them to :func:`piezo.open`
+(:func:`piezo.chain.open.open_source`), the one calibrated open. Option names are a public
+contract: users' scripts rely on them.
 """
 
 from __future__ import annotations
@@ -19,9 +18,9 @@ from typing import Annotated, Any
 
 import typer
 
-from piezo.chain.measurement import CalibratedSource, ChainSettings, resolve_chain
+from piezo.chain.measurement import CalibratedSource
+from piezo.chain.open import open_source as open_calibrated
 from piezo.errors import InputError
-from piezo.io.reader import open_recording
 
 __all__ = ["JsonOption", "SourceOptions", "open_source", "source_options"]
 
@@ -47,17 +46,6 @@ class SourceOptions:
     rate: str | None = None
     columns: str | None = None
     no_sidecar: bool = False
-
-    def chain_settings(self) -> ChainSettings:
-        """The chain part, for :func:`piezo.chain.measurement.resolve_chain`."""
-        return ChainSettings(
-            sensitivity=self.sensitivity,
-            gain=self.gain,
-            full_scale=self.full_scale,
-            reference=self.reference,
-            charge_gain=self.charge_gain,
-            profile=self.profile,
-        )
 
 
 _OPTIONS: dict[str, tuple[Any, Any]] = {
@@ -191,27 +179,60 @@ def source_options(func: Callable[..., Any]) -> Callable[..., Any]:
     return wrapper
 
 
+#: Library parameter names -> the options that set them, for error messages.
+_OPTION_NAMES = {
+    "sensitivity": "--sensitivity",
+    "full_scale": "--full-scale",
+    "charge_gain": "--charge-gain",
+    "reference": "--reference",
+    "gain": "--gain",
+    "rate_hz": "--rate",
+    "rate": "--rate",
+    "columns": "--columns",
+}
+
+
+def option_message(message: str) -> str:
+    """A library message with its parameter name spelt as the command-line option.
+
+    Examples
+    --------
+    >>> option_message("full_scale: unknown unit in '2 A'")
+    "--full-scale: unknown unit in '2 A'"
+    >>> option_message("rate must be positive, got '-1'")
+    "--rate must be positive, got '-1'"
+    """
+    for name, option in _OPTION_NAMES.items():
+        for sep in (":", " "):
+            if message.startswith(name + sep):
+                return option + message[len(name) :]
+    return message
+
+
 def open_source(
     file: Path, src: SourceOptions, *, allow_time_gaps: bool = False
 ) -> CalibratedSource:
-    """Open ``file`` and resolve its chain from the options, sidecar and profile.
+    """Open ``file`` through :func:`piezo.open` with the command's options.
 
     ``allow_time_gaps`` lets a CSV time column with gaps through (reported on the
     recording) instead of refusing it; only the capture check asks for that.
     """
-    from piezo.chain.units import parse_quantity
-
-    rate_hz = parse_quantity(src.rate, "Hz", what="--rate") if src.rate is not None else None
-    if rate_hz is not None and rate_hz <= 0:
-        raise InputError(f"--rate must be positive, got {src.rate!r}")
-    columns = [c.strip() for c in src.columns.split(",")] if src.columns else None
     try:
-        recording = open_recording(
-            file, rate_hz=rate_hz, columns=columns, allow_time_gaps=allow_time_gaps
+        return open_calibrated(
+            file,
+            sensitivity=src.sensitivity,
+            gain=src.gain,
+            full_scale=src.full_scale,
+            reference=src.reference,
+            charge_gain=src.charge_gain,
+            profile=src.profile,
+            channels=src.channel or None,
+            rate=src.rate,
+            columns=src.columns,
+            use_sidecar=not src.no_sidecar,
+            allow_time_gaps=allow_time_gaps,
         )
-        chain, provenance = resolve_chain(
-            file, src.chain_settings(), use_sidecar=not src.no_sidecar
-        )
-        return CalibratedSource.of(recording, chain, src.channel or None, provenance)
     except InputError as exc:
-        raise exc.with_source(str(file)) from None
+        exc.message = option_message(exc.message)
+        exc.args = (exc.message,)
+        raise

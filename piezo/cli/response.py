@@ -1,7 +1,7 @@
 """``piezo response`` (two-channel H1) and ``piezo fit-frontend`` (fits to a response CSV).
 
-Also the helpers ``piezo sweep analyze`` shares with them: the JSON form of a fit, the
-terminal summary, the response plot.
+Also the helpers ``piezo sweep analyze`` shares with them: the terminal summary of a fit
+and the response plot. The JSON documents come from :mod:`piezo.response.summary`.
 """
 
 from __future__ import annotations
@@ -27,14 +27,13 @@ from piezo.cli.output import (
 )
 from piezo.errors import InputError
 from piezo.response.fit import (
-    GoldenDeviation,
-    ResponseFit,
     ResponseTable,
     fit_response,
     format_response_csv,
     parse_response_csv,
 )
-from piezo.response.measure import H1Estimator, smooth_fractional_octave
+from piezo.response.measure import smooth_fractional_octave
+from piezo.response.summary import fit_document, h1_response_of, table_subset
 
 FRONTEND_CAUTION = (
     "Fitted values are an engineering estimate of the sensor and front-end; confirm them "
@@ -122,59 +121,6 @@ def parse_acoustic_level(text: str | None) -> float | None:
     if not value > 0:
         raise InputError(f"--acoustic-level must be positive, got {text!r}")
     return value
-
-
-def fit_document(fit: ResponseFit) -> dict[str, Any]:
-    """The fitted numbers as a JSON-ready mapping (keys shared by all response commands)."""
-    hp, res = fit.highpass, fit.resonance
-    sens_v = fit.sensitivity_v_per_pa
-    return {
-        "magnitude_unit": fit.magnitude_unit,
-        "reference_hz": fit.reference_hz,
-        "sensitivity_db": fit.sensitivity_db,
-        "sensitivity_mv_per_pa": None if sens_v is None else 1e3 * sens_v,
-        "passband_db": fit.passband_db,
-        "passband_std_db": fit.passband_std_db,
-        "corner_hz": None if hp is None else hp.corner_hz,
-        "corner_std_hz": None if hp is None else hp.corner_std_hz,
-        "corner_order": None if hp is None else hp.order,
-        "corner_q": None if hp is None else hp.q,
-        "corner_in_band": None if hp is None else hp.in_band,
-        "resonance_hz": None if res is None else res.frequency_hz,
-        "resonance_std_hz": None if res is None else res.frequency_std_hz,
-        "resonance_q": None if res is None else res.q,
-        "resonance_q_std": None if res is None else res.q_std,
-        "resonance_peak_db": None if res is None else res.peak_db,
-        "band_1db_hz": [fit.band_1db.low_hz, fit.band_1db.high_hz],
-        "band_1db_limited": [fit.band_1db.low_limited, fit.band_1db.high_limited],
-        "band_3db_hz": [fit.band_3db.low_hz, fit.band_3db.high_hz],
-        "band_3db_limited": [fit.band_3db.low_limited, fit.band_3db.high_limited],
-        "fit_residual_rms_db": fit.residual_rms_db,
-    }
-
-
-def golden_document(dev: GoldenDeviation, path: Path) -> dict[str, Any]:
-    """Deviation from the golden response as a JSON-ready mapping."""
-    return {
-        "file": str(path),
-        "worst_hz": dev.worst_hz,
-        "worst_db": dev.worst_db,
-        "rms_db": dev.rms_db,
-        "aligned_at_hz": dev.aligned_at_hz,
-        "frequency_hz": dev.frequency_hz,
-        "deviation_db": dev.deviation_db,
-    }
-
-
-def table_document(table: ResponseTable) -> dict[str, Any]:
-    """The response table's columns as a JSON-ready mapping."""
-    doc: dict[str, Any] = {
-        "frequency_hz": table.frequency_hz,
-        "magnitude_db": table.magnitude_db,
-        "phase_deg": table.phase_deg,
-    }
-    doc.update(table.extra)
-    return doc
 
 
 def _band_text(lo: float, hi: float, lo_limited: bool, hi_limited: bool) -> str:
@@ -280,16 +226,6 @@ def write_plot(
 # --------------------------------------------------------------------------------------
 
 
-def _table_subset(table: ResponseTable, keep: np.ndarray) -> ResponseTable:
-    return ResponseTable(
-        table.frequency_hz[keep],
-        table.magnitude_db[keep],
-        None if table.phase_deg is None else table.phase_deg[keep],
-        table.magnitude_unit,
-        {k: v[keep] for k, v in table.extra.items()},
-    )
-
-
 @source_options
 def response(
     file: Annotated[Path, typer.Argument(help="Recording with a reference and a device channel.")],
@@ -343,66 +279,23 @@ def response(
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     measured = list(src.channel) if src.channel else None
     source = open_source(file, replace(src, channel=None))
-    rec = source.recording
-    volts_per_raw = source.chain.scale(is_pcm=rec.is_pcm)
-    if source.chain.sensitivity_v_per_pa is not None:
-        volts_per_raw *= source.chain.sensitivity_v_per_pa
-    try:
-        est = H1Estimator(
-            rec.sample_rate_hz,
-            rec.channels,
+    with progress(f"Reading {file.name}", source.frames) as advance:
+        analysis = h1_response_of(
+            source,
             reference_channel=reference_channel,
             measured_channels=measured,
             segment_frames=segment,
             overlap=overlap,
-            unit="V/V",
+            min_coherence=min_coherence,
+            reference_hz=ref_hz,
+            points_per_octave=points_per_octave,
+            advance=advance,
         )
-        with progress(f"Reading {file.name}", rec.frames) as advance:
-            for block in rec.blocks():
-                est.update(block * volts_per_raw)
-                advance(block.shape[0])
-        result = est.result()
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
-
-    channels = []
-    tables = []
-    for i, ch in enumerate(result.measured_channels):
-        table = result.to_table(channel=i, points_per_octave=points_per_octave)
-        keep = table.extra["coherence"] >= min_coherence
-        if np.count_nonzero(keep) < 6:
-            raise InputError(
-                f"channel {ch}: only {np.count_nonzero(keep)} points have coherence ≥ "
-                f"{min_coherence:g}; lower --min-coherence or record longer / louder",
-                source=str(file),
-            )
-        good = _table_subset(table, keep)
-        try:
-            fit = fit_response(
-                good.frequency_hz,
-                good.magnitude_db,
-                reference_hz=ref_hz,
-                magnitude_unit=result.magnitude_unit,
-            )
-        except InputError as exc:
-            raise exc.with_source(str(file)) from None
-        entry = {"channel": ch, **fit_document(fit), "fitted_points": int(keep.sum())}
-        entry.update(table_document(table))
-        channels.append(entry)
-        tables.append(table)
-
+    doc = analysis.to_dict()
+    channels = [ch.to_dict() for ch in analysis.channels]
+    tables = [ch.table for ch in analysis.channels]
     first = channels[0]
-    doc = {
-        "file": str(file),
-        "reference_channel": result.reference_channel,
-        "sample_rate_hz": result.sample_rate_hz,
-        "segments": result.segments,
-        "segment_frames": result.segment_frames,
-        "min_coherence": min_coherence,
-        **first,
-    }
-    if len(channels) > 1:
-        doc["channels"] = channels
+    result = analysis.estimate
     if csv is not None:
         write_csv(csv, tables[0])
     if plot is not None:
@@ -478,7 +371,7 @@ def fit_frontend(
     keep = np.isfinite(table.magnitude_db)
     if "coherence" in table.extra:
         keep &= table.extra["coherence"] >= min_coherence
-    sub = _table_subset(table, keep)
+    sub = table_subset(table, keep)
     fit_range = None
     if fit_from is not None or fit_to is not None:
         lo = parse_frequency(fit_from, "--fit-from") if fit_from else 0.0

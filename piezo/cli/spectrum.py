@@ -22,6 +22,7 @@ from piezo.cli.output import (
     write_text_atomic,
 )
 from piezo.errors import InputError
+from piezo.spectral.summary import spectrum_of
 from piezo.spectral.welch import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectrogram, WelchPSD
 
 #: Columns kept for the plotted spectrogram (time-decimated by averaging).
@@ -102,25 +103,11 @@ def spectrum(
     fs = source.sample_rate_hz
     nch = len(source.channel_indices)
     res_hz = parse_frequency(resolution, "--resolution") if resolution is not None else None
-    est = WelchPSD(
-        fs,
-        nch,
-        resolution_hz=res_hz,
-        window=window,
-        overlap=overlap,
-        average=average,
-        scaling=scaling,
-    )
-    if est.segment_frames > source.frames:
-        raise InputError(
-            f"the recording has {source.frames} samples, fewer than one segment of "
-            f"{est.segment_frames} ({est.segment_frames / fs:g} s); use a coarser --resolution",
-            source=str(file),
-        )
     spectro = None
     if plot is not None:
         # About 50 ms segments (a power of two) for the picture, never longer than the PSD's.
-        seg = min(est.segment_frames, 2 ** max(8, round(math.log2(fs / 20))))
+        psd_frames = WelchPSD(fs, nch, resolution_hz=res_hz, window=window).segment_frames
+        seg = min(psd_frames, 2 ** max(8, round(math.log2(fs / 20))))
         spectro = Spectrogram(
             fs,
             nch,
@@ -131,49 +118,25 @@ def spectrum(
             max_columns=PLOT_COLUMNS,
         )
     with progress(f"Spectrum of {file.name}", source.frames) as advance:
-        for block in source.blocks():
-            est.update(block)
-            if spectro is not None:
-                spectro.update(block)
-            advance(block.shape[0])
-    result = est.result()
-    unit = f"{source.unit}{result.unit_suffix}"
-    ref = source.reference
-    level_unit = _level_unit(source.chain.level_unit, scaling)
+        measured = spectrum_of(
+            source,
+            resolution_hz=res_hz,
+            window=window,
+            overlap=overlap,
+            average=average,
+            scaling=scaling,
+            spectrogram=spectro,
+            advance=advance,
+        )
+    result = measured.result
+    unit = measured.unit
+    ref = measured.reference
+    level_unit = measured.level_unit
     if csv is not None:
         write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref))
     if plot is not None and spectro is not None:
         write_plot(plot, result, spectro, source.channel_indices, file.name, level_unit, ref)
-    doc = {
-        "file": str(file),
-        "unit": unit,
-        "level_unit": level_unit,
-        "scaling": scaling,
-        "sample_rate_hz": fs,
-        "segment_frames": result.segment_frames,
-        "overlap_frames": result.overlap_frames,
-        "resolution_hz": result.resolution_hz,
-        "window": window,
-        "average": average,
-        "enbw_hz": result.enbw_hz,
-        "enbw_bins": result.enbw_bins,
-        "averages": result.averages,
-        "effective_averages": result.effective_averages,
-        "confidence": {
-            "level": result.confidence_level,
-            "lower_db": result.ci_lower_db,
-            "upper_db": result.ci_upper_db,
-        },
-        "channels": [
-            {
-                "channel": ch,
-                "mean_square": float(result.mean_square()[i]),
-                "frequency_hz": result.frequency_hz,
-                "psd": result.psd[:, i],
-            }
-            for i, ch in enumerate(source.channel_indices)
-        ],
-    }
+    doc = measured.to_dict()
     if json_out:
         emit_json(doc)
     else:
@@ -181,12 +144,6 @@ def spectrum(
     for path, what in ((csv, "table"), (plot, "plot")):
         if path is not None:
             err_console.print(f"{what} written: {path}")
-
-
-def _level_unit(level_unit: str, scaling: str) -> str:
-    """``dB re 20 µPa`` -> ``dB re (20 µPa)²/Hz`` for a density."""
-    ref = level_unit.removeprefix("dB re ")
-    return f"dB re ({ref})²/Hz" if scaling == "density" else f"dB re ({ref})²"
 
 
 def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, reference: float) -> str:

@@ -25,23 +25,17 @@ from piezo.cli.response import (
     PointsOption,
     ReferenceFrequencyOption,
     SmoothOption,
-    fit_document,
-    golden_document,
     parse_acoustic_level,
     parse_frequency,
     print_fit,
-    table_document,
     write_csv,
     write_plot,
 )
 from piezo.errors import InputError, SpecError, UnitError
 from piezo.response.fit import (
     ResponseTable,
-    deviation_from_golden,
-    fit_response,
     parse_response_csv,
 )
-from piezo.response.measure import analyze_sweep
 from piezo.response.stimulus import (
     NoiseSpec,
     SweepSpec,
@@ -50,6 +44,7 @@ from piezo.response.stimulus import (
     sweep_signal,
     sweep_spec,
 )
+from piezo.response.summary import sweep_response_of
 
 STIMULUS_SUFFIX = ".stimulus.toml"
 SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
@@ -344,38 +339,12 @@ def analyze(
     spec = load_sweep(stimulus)
     level_pa = parse_acoustic_level(acoustic_level)
     source = open_source(file, src)
-    rec = source.recording
     if len(source.channel_indices) != 1:
         raise InputError(
-            f"{rec.channels} channels: choose the device's channel with --channel",
+            f"{source.recording.channels} channels: choose the device's channel with --channel",
             source=str(file),
         )
-    volts_per_raw = source.chain.scale(is_pcm=rec.is_pcm)
-    if source.chain.sensitivity_v_per_pa is not None:
-        volts_per_raw *= source.chain.sensitivity_v_per_pa
-    # Whole-array analysis: a sweep capture is seconds to a minute long.
-    capture = np.concatenate(
-        [b[:, 0] for b in rec.blocks(channels=source.channel_indices)] or [np.zeros(0)]
-    )
-    try:
-        result = analyze_sweep(
-            capture * volts_per_raw,
-            spec,
-            rec.sample_rate_hz,
-            unit="V",
-            acoustic_level_pa=level_pa,
-        )
-        table = result.to_table(points_per_octave=points_per_octave)
-        fit = fit_response(
-            table.frequency_hz,
-            table.magnitude_db,
-            reference_hz=ref_hz,
-            magnitude_unit=result.magnitude_unit,
-        )
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
     golden_table: ResponseTable | None = None
-    golden_doc = None
     if golden is not None:
         try:
             golden_table = parse_response_csv(
@@ -383,33 +352,20 @@ def analyze(
             )
         except FileNotFoundError:
             raise InputError("golden response not found", source=str(golden)) from None
-        try:
-            dev = deviation_from_golden(
-                table.frequency_hz,
-                table.magnitude_db,
-                golden_table.frequency_hz,
-                golden_table.magnitude_db,
-                align_at_hz=ref_hz if golden_relative else None,
-            )
-        except InputError as exc:
-            raise exc.with_source(str(golden)) from None
-        golden_doc = golden_document(dev, golden)
-
-    thd = result.thd_percent_at(thd_freqs)
-    doc = {
-        "file": str(file),
-        "channel": source.channel_indices[0],
-        "stimulus": str(stimulus),
-        "sweep": {k: getattr(spec, k) for k in spec.__dataclass_fields__},
-        "acoustic_level_pa": level_pa if level_pa is not None else spec.acoustic_level_pa,
-        "latency_frames": result.latency_frames,
-        "latency_s": result.latency_s,
-        "peak_to_noise_db": result.peak_to_noise_db,
-        **fit_document(fit),
-        "thd_percent_at": {f"{f:g}": v for f, v in thd.items()},
-        "golden": golden_doc,
-        **table_document(table),
-    }
+    analysis = sweep_response_of(
+        source,
+        spec,
+        stimulus=str(stimulus),
+        acoustic_level_pa=level_pa,
+        golden=golden_table,
+        golden_file=None if golden is None else str(golden),
+        golden_relative=golden_relative,
+        thd_at_hz=thd_freqs,
+        reference_hz=ref_hz,
+        points_per_octave=points_per_octave,
+    )
+    table = analysis.table
+    doc = analysis.to_dict()
     if csv is not None:
         write_csv(csv, table)
     if plot is not None:

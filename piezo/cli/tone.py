@@ -13,11 +13,7 @@ from piezo.cli.options import JsonOption, SourceOptions, open_source, source_opt
 from piezo.cli.output import console, emit_json, progress
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
-from piezo.spectral.welch import WelchPSD
-from piezo.tone.analysis import ToneAnalyzer, band_mean_square
-
-#: Bin spacing of the tone analysis, hertz (1 s segments).
-RESOLUTION_HZ = 1.0
+from piezo.tone.summary import tone_of
 
 
 def register(app: typer.Typer) -> None:
@@ -73,77 +69,17 @@ def tone(
     lo, hi = parse_bandwidth(bandwidth)
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
-    fs = source.sample_rate_hz
-    nch = len(source.channel_indices)
-    seg = None if source.frames >= fs / RESOLUTION_HZ else source.frames
-    if source.frames < 2:
-        raise InputError("the recording is too short for a tone analysis", source=str(file))
-    try:
-        analyzer = ToneAnalyzer(
-            fs,
-            nch,
+    noise_source = open_source(noise, src) if noise is not None else None
+    with progress(f"Tone in {file.name}", source.frames) as advance:
+        measured = tone_of(
+            source,
             expected_hz=expected_hz,
             bandwidth_hz=(lo, hi),
             harmonics=harmonics,
-            resolution_hz=RESOLUTION_HZ,
-            segment_frames=seg,
+            noise=noise_source,
+            advance=advance,
         )
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
-    with progress(f"Tone in {file.name}", source.frames) as advance:
-        for block in source.blocks():
-            analyzer.update(block)
-            advance(block.shape[0])
-    noise_ms = None
-    if noise is not None:
-        nsrc = open_source(noise, src)
-        if len(nsrc.channel_indices) != nch or nsrc.sample_rate_hz != fs:
-            raise InputError(
-                f"the noise recording must have the same rate and channels as {file.name} "
-                f"({fs:g} Hz, {nch} channel(s))",
-                source=str(noise),
-            )
-        nseg = int(min(nsrc.frames, round(fs / RESOLUTION_HZ)))
-        if nseg < 2:
-            raise InputError("the noise recording is empty", source=str(noise))
-        welch = WelchPSD(fs, nch, segment_frames=nseg, window="blackmanharris")
-        for block in nsrc.blocks():
-            welch.update(block)
-        noise_ms = band_mean_square(welch.result(), *analyzer.bandwidth_hz)
-    try:
-        results = analyzer.result(noise_mean_square=noise_ms)
-    except InputError as exc:
-        raise exc.with_source(str(file)) from None
-    ref = source.reference
-    doc = {
-        "file": str(file),
-        "unit": source.unit,
-        "level_unit": source.chain.level_unit,
-        "bandwidth_hz": list(analyzer.bandwidth_hz),
-        "resolution_hz": results[0].resolution_hz,
-        "segments": results[0].segments,
-        "noise_file": None if noise is None else str(noise),
-        "channels": [
-            {
-                "channel": ch,
-                "frequency_hz": r.frequency_hz,
-                "level_db": r.level_db(ref),
-                "tone_rms": r.tone_rms,
-                "thd_percent": r.thd_percent,
-                "thd_n_percent": r.thd_n_percent,
-                "sinad_db": r.sinad_db,
-                "snr_db": r.snr_db,
-                "noise_rms": r.noise_rms,
-                "total_rms": r.total_rms,
-                "residual_rms": r.residual_rms,
-                "harmonics": [
-                    {"order": n, "rms": v, "percent": 100 * v / r.tone_rms if r.tone_rms else None}
-                    for n, v in zip(r.harmonic_orders, r.harmonic_rms, strict=True)
-                ],
-            }
-            for ch, r in zip(source.channel_indices, results, strict=True)
-        ],
-    }
+    doc = measured.to_dict()
     if json_out:
         emit_json(doc)
     else:

@@ -51,6 +51,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import soundfile as sf
 
+from piezo.response.stimulus import sweep_signal, sweep_spec
+
 __all__ = [
     "DESIGN",
     "FAULTS",
@@ -142,8 +144,6 @@ def flac_bytes(samples: np.ndarray, sample_rate_hz: float) -> bytes:
 
 
 def _sweep_spec(sweep: dict[str, float] | None = None, sample_rate_hz: float = SAMPLE_RATE_HZ):
-    from piezo.response.stimulus import sweep_spec
-
     p = SWEEP if sweep is None else sweep
     return sweep_spec(
         p["start_hz"],
@@ -180,8 +180,6 @@ def simulate_capture(
 
     ``sweep`` (keys as :data:`SWEEP`) and ``sample_rate_hz`` default to the demo lot's.
     """
-    from piezo.response.stimulus import sweep_signal
-
     spec = _sweep_spec(sweep, sample_rate_hz)
     stimulus = sweep_signal(spec)
     pressure = stimulus / spec.amplitude * _level_pa() * math.sqrt(2.0)  # Pa

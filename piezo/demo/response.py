@@ -33,7 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from piezo.demo.scenes import DemoFile
+from piezo.demo.files import DemoFile
 from piezo.response.fit import ResponseTable, format_response_csv
 from piezo.response.measure import log_frequency_grid
 from piezo.response.stimulus import NoiseSpec, SweepSpec, noise_signal, sweep_signal, sweep_spec

@@ -24,44 +24,15 @@ Scenarios
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
 
 import numpy as np
 from scipy import signal
 
+from piezo.demo.files import DemoFile
+from piezo.demo.frontend import frontend_demo_texts
+from piezo.demo.response import response_demo_files, response_demo_texts
+
 __all__ = ["DemoFile", "demo_files", "demo_texts"]
-
-
-@dataclass(frozen=True)
-class DemoFile:
-    """One demo recording, ready to write.
-
-    Attributes
-    ----------
-    name
-        File name (its suffix selects the format).
-    samples
-        ``(frames, channels)`` samples: fractions of full scale for audio files, volts
-        (with the time in column 0) for CSV.
-    sample_rate_hz
-        Sample rate.
-    subtype
-        soundfile subtype for audio files (``"PCM_16"``, ``"PCM_24"`` ...); None for CSV.
-    sidecar
-        TOML text of the profile written beside the file, or None.
-    header
-        CSV column names, or None.
-    description
-        One line on what the recording is.
-    """
-
-    name: str
-    samples: np.ndarray
-    sample_rate_hz: float
-    subtype: str | None
-    sidecar: str | None
-    header: tuple[str, ...] | None
-    description: str
 
 
 def _pink(n: int, rng: np.random.Generator) -> np.ndarray:
@@ -240,14 +211,9 @@ SCENARIOS: tuple[Callable[[], DemoFile], ...] = (_calibrator, _pump_bench, _hydr
 
 def demo_files() -> list[DemoFile]:
     """Generate every demo recording (deterministic), all scenarios."""
-    from piezo.demo.response import response_demo_files
-
     return [make() for make in SCENARIOS] + response_demo_files()
 
 
 def demo_texts() -> dict[str, str]:
     """Text files that go with the demo recordings (stimulus descriptions, golden data)."""
-    from piezo.demo.frontend import frontend_demo_texts
-    from piezo.demo.response import response_demo_texts
-
     return {**response_demo_texts(), **frontend_demo_texts()}

@@ -2,5 +2,5 @@
 
 May import: :mod:`piezo.errors`, :mod:`piezo.validate`, :mod:`piezo.chain`,
 :mod:`piezo.levels`, :mod:`piezo.spectral`, :mod:`piezo.tone`, :mod:`piezo.response`,
-numpy, scipy.
+:mod:`piezo.results`, numpy, scipy. ``summary`` holds what ``piezo check`` reports.
 """

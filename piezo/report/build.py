@@ -35,8 +35,6 @@ __all__ = ["report_document", "report_figures", "write_report"]
 
 def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
     """The JSON document of a run (``docs/report.schema.json``)."""
-    # Imported here: piezo.cli imports every command, and `piezo report` imports us.
-
     source = run.source
     ref = source.reference
     unit = source.unit
@@ -89,10 +87,10 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
     """Every figure of the report, by name, as PNG bytes."""
     figures: dict[str, bytes] = {}
     level_unit = run.source.chain.level_unit
-    for ch in run.diagnostics.channels:
-        png = plots.rolloff_figure(ch, level_unit)
+    for diag in run.diagnostics.channels:
+        png = plots.rolloff_figure(diag, level_unit)
         if png is not None:
-            figures[f"rolloff_{ch.channel}"] = png
+            figures[f"rolloff_{diag.channel}"] = png
     if run.levels is not None and run.levels.history is not None:
         figures["level_history"] = plots.level_history_figure(
             run.levels, list(run.source.channel_indices), level_unit

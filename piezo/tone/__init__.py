@@ -1,5 +1,6 @@
 """Tones: tone-line frequency and level, THD, THD+N, SINAD, SNR; calibrator sensitivity.
 
-May import: :mod:`piezo.errors`, :mod:`piezo.validate`, :mod:`piezo.chain`,
-:mod:`piezo.spectral`, numpy, scipy.
+``summary`` holds what ``piezo tone`` reports. May import: :mod:`piezo.errors`,
+:mod:`piezo.validate`, :mod:`piezo.chain`, :mod:`piezo.spectral`, :mod:`piezo.results`,
+numpy, scipy.
 """

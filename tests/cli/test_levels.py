@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from piezo.cli.levels import LEVEL_KEYS
 from piezo.levels.meter import FILTER_SETTLE_S, LevelMeter, sound_levels
+from piezo.levels.summary import LEVEL_KEYS
 
 FS = 48000
 RECORDINGS = Path(__file__).resolve().parents[2] / "recordings"

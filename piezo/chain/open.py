@@ -1,0 +1,114 @@
+"""The one calibrated open: a file and its chain, ready for every analysis.
+
+:func:`open_source` (``piezo.open``) reads a recording's header, resolves its
+measurement chain (defaults < sidecar ``NAME.toml`` < profile < given values) and returns
+the :class:`~piezo.chain.measurement.CalibratedSource` that every command, the report and
+the batch runner analyse. Values may be numbers in SI units or unit text such as
+``"12 mV/Pa"``; text is parsed here, once, by :mod:`piezo.chain.units`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from pathlib import Path
+
+from piezo.chain.measurement import CalibratedSource, ChainSettings, ChainValue, resolve_chain
+from piezo.chain.units import parse_quantity
+from piezo.errors import InputError
+from piezo.io.reader import open_recording
+
+__all__ = ["open_source"]
+
+
+def open_source(
+    path: str | Path,
+    *,
+    sensitivity: ChainValue = None,
+    gain: ChainValue = None,
+    full_scale: ChainValue = None,
+    reference: ChainValue = None,
+    charge_gain: ChainValue = None,
+    profile: str | Path | None = None,
+    channels: Sequence[int] | None = None,
+    rate: ChainValue = None,
+    columns: Sequence[str | int] | str | None = None,
+    use_sidecar: bool = True,
+    allow_time_gaps: bool = False,
+) -> CalibratedSource:
+    """Open a recording through its measurement chain.
+
+    Parameters
+    ----------
+    path
+        A WAV/FLAC/RF64/W64/... file or a CSV/TSV export (values taken as volts).
+    sensitivity
+        Sensor sensitivity: V/Pa as a number, or text (``"20 mV/Pa"``, ``"-34 dBV/Pa"``,
+        ``"12 pC/Pa"`` with ``charge_gain``).
+    gain
+        Amplifier gain between sensor and ADC: V/V as a number, or ``"20 dB"``.
+    full_scale
+        Volts at digital full scale of an audio file (number or ``"2 V"``).
+    reference
+        Reference pressure for levels in dB (number in Pa, or ``"1 uPa"`` in water).
+    charge_gain
+        Charge amplifier gain for a charge sensitivity (V/C, or ``"1 mV/pC"``).
+    profile
+        A sensor profile (TOML, ``docs/profiles.md``), applied after the sidecar.
+    channels
+        0-based channels to analyse, in order; all when None.
+    rate
+        Sample rate of a CSV file without a time column (Hz, or ``"48k"``).
+    columns
+        CSV value columns by header name or 0-based index (a sequence, or text with
+        commas); all non-time columns when None.
+    use_sidecar
+        Read ``NAME.toml`` beside ``NAME.wav`` when it exists.
+    allow_time_gaps
+        CSV only: accept a time column with gaps and report them on the recording.
+
+    Returns
+    -------
+    CalibratedSource
+        Blocks in Pa with a sensitivity, else in V at the sensor.
+
+    Raises
+    ------
+    RecordingError
+        The file is missing, unreadable or empty.
+    InputError
+        A value that cannot be used; the message names the parameter and the file.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> sf.write(folder / "tone.wav", 0.5 * np.ones(4800), 48000, subtype="FLOAT")
+    >>> src = open_source(folder / "tone.wav", sensitivity="50 mV/Pa", full_scale="2 V")
+    >>> src.unit, src.sample_rate_hz, src.frames
+    ('Pa', 48000.0, 4800)
+    >>> float(next(src.blocks())[0, 0])  # 0.5 FS * 2 V / 0.05 V/Pa
+    20.0
+    """
+    rate_hz = None
+    if rate is not None:
+        rate_hz = parse_quantity(rate, "Hz", what="rate")
+        if not rate_hz > 0:
+            raise InputError(f"rate must be positive, got {rate!r}")
+    if isinstance(columns, str):
+        columns = [c.strip() for c in columns.split(",") if c.strip()] or None
+    settings = ChainSettings(
+        sensitivity=sensitivity,
+        gain=gain,
+        full_scale=full_scale,
+        reference=reference,
+        charge_gain=charge_gain,
+        profile=profile,
+    )
+    try:
+        recording = open_recording(
+            path, rate_hz=rate_hz, columns=columns, allow_time_gaps=allow_time_gaps
+        )
+        chain, provenance = resolve_chain(path, settings, use_sidecar=use_sidecar)
+        return CalibratedSource.of(recording, chain, channels or None, provenance)
+    except InputError as exc:
+        raise exc.with_source(str(path)) from None

@@ -1,0 +1,13 @@
+"""Exit codes of the command line (documented in the README).
+
+0 success; 1 the analysis ran and found a failure (``check``, ``batch``); 2 unusable
+input or options; 3 an internal error (a bug). A module of its own so that command
+modules can name them without importing :mod:`piezo.cli`, which loads the commands.
+"""
+
+__all__ = ["EXIT_FAILED", "EXIT_INTERNAL", "EXIT_OK", "EXIT_USAGE"]
+
+EXIT_OK = 0
+EXIT_FAILED = 1
+EXIT_USAGE = 2
+EXIT_INTERNAL = 3

@@ -1,0 +1,177 @@
+"""The level set of a recording as ``piezo levels`` reports it, for Python and JSON.
+
+:func:`levels_of` streams a :class:`~piezo.chain.measurement.CalibratedSource` through
+a :class:`~piezo.levels.meter.LevelMeter`; :class:`Levels` holds the result with what it
+was measured on, and :meth:`Levels.to_dict` is the command's ``--json`` document.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+from piezo.chain.measurement import CalibratedSource
+from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
+from piezo.results import to_jsonable
+
+__all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of"]
+
+#: Shown with every result (terminal and JSON).
+CAUTION = (
+    "Signal analysis of a recording, not a certified sound level meter measurement. "
+    "Occupational noise exposure must be assessed as local regulations require, with "
+    "calibrated class 1 instruments."
+)
+
+#: Key order of each channel in the JSON document (the names are a public contract).
+LEVEL_KEYS = (
+    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin", "LCpeak", "LZpeak",
+    "LAE", *(f"LAF{p}" for p in PERCENTILES),
+)  # fmt: skip
+
+
+@dataclass(frozen=True)
+class Levels:
+    """Levels of every analysed channel of one recording.
+
+    Attributes
+    ----------
+    file
+        The recording, as it was opened.
+    unit, level_unit
+        Unit of the samples (``"Pa"`` or ``"V"``) and of the levels (``"dB re 20 µPa"``).
+    channel_indices
+        The recording's channels, 0-based, in the order of ``result.channels``.
+    result
+        The level meter's result.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "dc.wav"
+    >>> sf.write(path, np.full(48000, 0.1), 48000, subtype="FLOAT")
+    >>> lv = levels_of(piezo.open(path))  # no sensitivity: volts, dB re 1 V
+    >>> lv.unit, lv.channel_indices, round(lv.channel(0)["LZeq"], 2)  # 20 lg 0.1
+    ('V', (0,), -20.0)
+    """
+
+    file: str
+    unit: str
+    level_unit: str
+    channel_indices: tuple[int, ...]
+    result: LevelResult
+
+    def channel(self, index: int) -> dict[str, Any]:
+        """The levels of the recording's channel ``index`` (0-based), by name.
+
+        Examples
+        --------
+        See :func:`levels_of`.
+        """
+        for entry in self.to_dict()["channels"]:
+            if entry["channel"] == index:
+                return entry
+        raise KeyError(f"channel {index} was not analysed (analysed: {self.channel_indices})")
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo levels --json`` document (plain JSON values)."""
+        result = self.result
+        channels = []
+        for index, ch in zip(self.channel_indices, result.channels, strict=True):
+            entry: dict[str, Any] = {"channel": index}
+            entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
+            entry.update(
+                duration_s=result.duration_s,
+                crest_factor=ch.crest_factor,
+                crest_factor_db=ch.crest_factor_db,
+                notes=list(ch.notes),
+            )
+            channels.append(entry)
+        doc: dict[str, Any] = {
+            "file": self.file,
+            "unit": self.unit,
+            "level_unit": self.level_unit,
+            "reference": result.reference,
+            "sample_rate_hz": result.sample_rate_hz,
+            "duration_s": result.duration_s,
+            "percentile_interval_s": result.percentile_interval_s,
+            "start_up_excluded_s": result.excluded_s,
+            "standard": "IEC 61672-1:2013 frequency and time weightings",
+            "caution": CAUTION,
+            "channels": channels,
+        }
+        if result.history is not None:
+            h = result.history
+            doc["history"] = {
+                "interval_s": h.interval_s,
+                "interval_start_s": h.interval_start_s,
+                "interval_duration_s": h.interval_duration_s,
+                "trace_interval_s": h.trace_interval_s,
+                "trace_time_s": h.trace_time_s,
+                "channels": [
+                    {
+                        "channel": index,
+                        "LZeq": h.LZeq[:, i],
+                        "LAeq": h.LAeq[:, i],
+                        "LCeq": h.LCeq[:, i],
+                        "LAF": h.LAF[:, i],
+                        "LAS": h.LAS[:, i],
+                    }
+                    for i, index in enumerate(self.channel_indices)
+                ],
+            }
+        return to_jsonable(doc)
+
+
+def levels_of(
+    source: CalibratedSource,
+    *,
+    interval_s: float | None = None,
+    filter_settle_s: float | None = None,
+    advance: Callable[[int], object] | None = None,
+) -> Levels:
+    """Equivalent, maximum, minimum, peak, exposure and percentile levels of ``source``.
+
+    IEC 61672-1:2013 frequency (A, C, Z) and time (F, S) weightings, through
+    :class:`~piezo.levels.meter.LevelMeter`, in one streaming pass.
+
+    Parameters
+    ----------
+    source
+        The calibrated recording (:func:`piezo.open`).
+    interval_s
+        Also give a level history: Leq per interval, LAF/LAS every 0.1 s.
+    filter_settle_s
+        Filter settling time excluded from the maxima, minima and percentiles; None
+        keeps the meter's default.
+    advance
+        Called with the frames of each block read (a progress bar).
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(48000 * 2) / 48000
+    >>> sf.write(path, 0.5 * np.sin(2 * np.pi * 1000 * t), 48000, subtype="FLOAT")
+    >>> lv = levels_of(piezo.open(path, sensitivity="10 mV/Pa"))
+    >>> lv.level_unit
+    'dB re 20 µPa'
+    >>> round(lv.channel(0)["LZeq"], 2)  # 0.5/√2 V RMS over 10 mV/Pa: 35.36 Pa RMS
+    124.95
+    """
+    options: dict[str, Any] = {"reference": source.reference}
+    if interval_s is not None:
+        options["interval_s"] = interval_s
+    if filter_settle_s is not None:
+        options["filter_settle_s"] = filter_settle_s
+    meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
+    source.feed(meter, advance=advance)
+    return Levels(
+        file=str(source.recording.path),
+        unit=source.unit,
+        level_unit=source.chain.level_unit,
+        channel_indices=source.channel_indices,
+        result=meter.result(),
+    )

@@ -1,0 +1,503 @@
+"""Response measurements as ``piezo sweep analyze``, ``piezo response`` and
+``piezo fit-frontend`` report them, for Python and JSON.
+
+:func:`sweep_response_of` (swept sine, Farina 2000) and :func:`h1_response_of` (two
+channels, H1 = Gxy/Gxx) take a calibrated source in volts at the sensor, fit the
+response (:func:`~piezo.response.fit.fit_response`) and return :class:`SweepAnalysis`
+and :class:`H1Analysis`, whose ``to_dict()`` is the command's ``--json`` document.
+:func:`fit_document`, :func:`golden_document` and :func:`table_document` are the JSON
+forms the three commands share.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from piezo.chain.measurement import CalibratedSource
+from piezo.errors import InputError
+from piezo.response.fit import (
+    GoldenDeviation,
+    ResponseFit,
+    ResponseTable,
+    deviation_from_golden,
+    fit_response,
+)
+from piezo.response.measure import H1Estimator, SweepResponse, TransferEstimate, analyze_sweep
+from piezo.response.stimulus import SweepSpec
+from piezo.results import to_jsonable
+
+__all__ = [
+    "H1Analysis",
+    "H1Channel",
+    "SweepAnalysis",
+    "fit_document",
+    "golden_document",
+    "h1_response_of",
+    "sweep_response_of",
+    "table_document",
+    "table_subset",
+]
+
+
+def fit_document(fit: ResponseFit) -> dict[str, Any]:
+    """The fitted numbers as a JSON-ready mapping (keys shared by all response commands).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from piezo.response.fit import fit_response
+    >>> f = np.geomspace(1, 20000, 200)
+    >>> r = f / 20.0  # first-order high-pass, |H| = r / sqrt(1 + r²), corner 20 Hz
+    >>> m = -40 + 20 * np.log10(r / np.sqrt(1 + r**2))
+    >>> doc = fit_document(fit_response(f, m, orders=(1,)))
+    >>> round(doc["corner_hz"], 3), doc["corner_order"], round(doc["sensitivity_db"], 2)
+    (20.0, 1, -40.0)
+    """
+    hp, res = fit.highpass, fit.resonance
+    sens_v = fit.sensitivity_v_per_pa
+    return {
+        "magnitude_unit": fit.magnitude_unit,
+        "reference_hz": fit.reference_hz,
+        "sensitivity_db": fit.sensitivity_db,
+        "sensitivity_mv_per_pa": None if sens_v is None else 1e3 * sens_v,
+        "passband_db": fit.passband_db,
+        "passband_std_db": fit.passband_std_db,
+        "corner_hz": None if hp is None else hp.corner_hz,
+        "corner_std_hz": None if hp is None else hp.corner_std_hz,
+        "corner_order": None if hp is None else hp.order,
+        "corner_q": None if hp is None else hp.q,
+        "corner_in_band": None if hp is None else hp.in_band,
+        "resonance_hz": None if res is None else res.frequency_hz,
+        "resonance_std_hz": None if res is None else res.frequency_std_hz,
+        "resonance_q": None if res is None else res.q,
+        "resonance_q_std": None if res is None else res.q_std,
+        "resonance_peak_db": None if res is None else res.peak_db,
+        "band_1db_hz": [fit.band_1db.low_hz, fit.band_1db.high_hz],
+        "band_1db_limited": [fit.band_1db.low_limited, fit.band_1db.high_limited],
+        "band_3db_hz": [fit.band_3db.low_hz, fit.band_3db.high_hz],
+        "band_3db_limited": [fit.band_3db.low_limited, fit.band_3db.high_limited],
+        "fit_residual_rms_db": fit.residual_rms_db,
+    }
+
+
+def golden_document(dev: GoldenDeviation, file: str) -> dict[str, Any]:
+    """Deviation from the golden response (read from ``file``) as a JSON-ready mapping.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from piezo.response.fit import deviation_from_golden
+    >>> f = np.array([100.0, 1000.0, 10000.0])
+    >>> dev = deviation_from_golden(f, np.array([0.0, 1.0, 0.0]), f, np.zeros(3))
+    >>> doc = golden_document(dev, "golden.csv")
+    >>> doc["worst_hz"], doc["worst_db"]
+    (1000.0, 1.0)
+    """
+    return {
+        "file": file,
+        "worst_hz": dev.worst_hz,
+        "worst_db": dev.worst_db,
+        "rms_db": dev.rms_db,
+        "aligned_at_hz": dev.aligned_at_hz,
+        "frequency_hz": dev.frequency_hz,
+        "deviation_db": dev.deviation_db,
+    }
+
+
+def table_document(table: ResponseTable) -> dict[str, Any]:
+    """The response table's columns as a JSON-ready mapping.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = ResponseTable(np.array([1.0]), np.array([-3.0]), None, "dB re 1 V/V",
+    ...                   {"coherence": np.array([0.99])})
+    >>> sorted(table_document(t))
+    ['coherence', 'frequency_hz', 'magnitude_db', 'phase_deg']
+    """
+    doc: dict[str, Any] = {
+        "frequency_hz": table.frequency_hz,
+        "magnitude_db": table.magnitude_db,
+        "phase_deg": table.phase_deg,
+    }
+    doc.update(table.extra)
+    return doc
+
+
+def table_subset(table: ResponseTable, keep: np.ndarray) -> ResponseTable:
+    """The rows of ``table`` where ``keep`` is true (every column).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = ResponseTable(np.array([1.0, 2.0]), np.array([0.0, -1.0]), None, None, {})
+    >>> table_subset(t, np.array([False, True])).frequency_hz
+    array([2.])
+    """
+    return ResponseTable(
+        table.frequency_hz[keep],
+        table.magnitude_db[keep],
+        None if table.phase_deg is None else table.phase_deg[keep],
+        table.magnitude_unit,
+        {k: v[keep] for k, v in table.extra.items()},
+    )
+
+
+# --------------------------------------------------------------------------------------
+# Swept sine
+
+
+@dataclass(frozen=True)
+class SweepAnalysis:
+    """A swept-sine capture analysed: response, fit, distortion, deviation from golden.
+
+    Attributes
+    ----------
+    file, channel
+        The capture and its analysed channel.
+    stimulus
+        Where the sweep's parameters came from (its sidecar or WAV).
+    sweep
+        The sweep.
+    acoustic_level_pa
+        Sound pressure of the sweep at the sensor (RMS), or None (relative response).
+    response
+        Deconvolution result (impulse response, harmonics, latency).
+    table
+        The response on a log grid.
+    fit
+        Sensitivity, corner, resonance and bands fitted to ``table``.
+    thd_percent_at
+        THD (harmonics 2 to 5) at the requested frequencies.
+    golden, golden_file
+        Deviation from a golden response and the file it came from, or None.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> from piezo.response.stimulus import sweep_signal, sweep_spec
+    >>> spec = sweep_spec(50.0, 10000.0, 1.0, 48000.0, silence_after_s=0.5)
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "capture.wav"
+    >>> sf.write(path, sweep_signal(spec), 48000, subtype="FLOAT")
+    >>> a = sweep_response_of(piezo.open(path), spec, stimulus="sweep.stimulus.toml")
+    >>> doc = a.to_dict()
+    >>> doc["stimulus"], doc["golden"], doc["sweep"]["start_hz"]
+    ('sweep.stimulus.toml', None, 50.0)
+    """
+
+    file: str
+    channel: int
+    stimulus: str
+    sweep: SweepSpec
+    acoustic_level_pa: float | None
+    response: SweepResponse
+    table: ResponseTable
+    fit: ResponseFit
+    thd_percent_at: dict[float, float]
+    golden: GoldenDeviation | None = None
+    golden_file: str | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo sweep analyze --json`` document (plain JSON values)."""
+        spec = self.sweep
+        r = self.response
+        golden = None
+        if self.golden is not None:
+            golden = golden_document(self.golden, self.golden_file or "")
+        doc = {
+            "file": self.file,
+            "channel": self.channel,
+            "stimulus": self.stimulus,
+            "sweep": {k: getattr(spec, k) for k in spec.__dataclass_fields__},
+            "acoustic_level_pa": self.acoustic_level_pa,
+            "latency_frames": r.latency_frames,
+            "latency_s": r.latency_s,
+            "peak_to_noise_db": r.peak_to_noise_db,
+            **fit_document(self.fit),
+            "thd_percent_at": {f"{f:g}": v for f, v in self.thd_percent_at.items()},
+            "golden": golden,
+            **table_document(self.table),
+        }
+        return to_jsonable(doc)
+
+
+def sweep_response_of(
+    source: CalibratedSource,
+    sweep: SweepSpec,
+    *,
+    stimulus: str = "",
+    acoustic_level_pa: float | None = None,
+    golden: ResponseTable | None = None,
+    golden_file: str | None = None,
+    golden_relative: bool = False,
+    thd_at_hz: Sequence[float] = (100.0, 1000.0, 5000.0),
+    reference_hz: float = 1000.0,
+    points_per_octave: int = 24,
+) -> SweepAnalysis:
+    """Response, distortion, corner and resonance of a swept-sine capture.
+
+    The capture (one channel of ``source``) is taken in volts at the sensor
+    (:meth:`~piezo.chain.measurement.CalibratedSource.volts_at_sensor`: full scale and
+    gain undone, a sensitivity ignored, since it is what is measured) and deconvolved
+    with the sweep's inverse filter (Farina 2000).
+
+    Parameters
+    ----------
+    sweep
+        The sweep that was played.
+    stimulus
+        A label of where ``sweep`` came from (a file name), kept in the document.
+    acoustic_level_pa
+        Sound pressure of the sweep at the sensor (RMS); the sweep's own when None.
+        With it the magnitude is a sensitivity in dB re 1 V/Pa.
+    golden, golden_file, golden_relative
+        A golden response to compare with, the file it came from, and whether both are
+        aligned at ``reference_hz`` first.
+    thd_at_hz
+        Frequencies to report THD at.
+    reference_hz
+        Frequency of the sensitivity and the ±1/±3 dB bands.
+    points_per_octave
+        Resolution of the response table.
+
+    Raises
+    ------
+    InputError
+        More than one channel, or a capture the sweep cannot be found in.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> from piezo.response.stimulus import sweep_signal, sweep_spec
+    >>> spec = sweep_spec(20.0, 20000.0, 2.0, 48000.0, silence_after_s=0.5)
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "capture.wav"
+    >>> sf.write(path, 0.5 * sweep_signal(spec), 48000, subtype="FLOAT")
+    >>> a = sweep_response_of(piezo.open(path), spec)
+    >>> a.to_dict()["latency_frames"], round(a.fit.sensitivity_db, 1)  # 0.5: -6 dB
+    (0, -6.0)
+    """
+    volts = source.volts_at_sensor()
+    file = str(source.recording.path)
+    if len(volts.channel_indices) != 1:
+        raise InputError(
+            f"{source.recording.channels} channels: choose the device's channel",
+            source=file,
+        )
+    # Whole-array analysis: a sweep capture is seconds to a minute long.
+    capture = np.concatenate([b[:, 0] for b in volts.blocks()] or [np.zeros(0)])
+    try:
+        response = analyze_sweep(
+            capture,
+            sweep,
+            volts.sample_rate_hz,
+            unit="V",
+            acoustic_level_pa=acoustic_level_pa,
+        )
+        table = response.to_table(points_per_octave=points_per_octave)
+        fit = fit_response(
+            table.frequency_hz,
+            table.magnitude_db,
+            reference_hz=reference_hz,
+            magnitude_unit=response.magnitude_unit,
+        )
+    except InputError as exc:
+        raise exc.with_source(file) from None
+    dev = None
+    if golden is not None:
+        try:
+            dev = deviation_from_golden(
+                table.frequency_hz,
+                table.magnitude_db,
+                golden.frequency_hz,
+                golden.magnitude_db,
+                align_at_hz=reference_hz if golden_relative else None,
+            )
+        except InputError as exc:
+            raise exc.with_source(golden_file or "golden") from None
+    level = acoustic_level_pa if acoustic_level_pa is not None else sweep.acoustic_level_pa
+    return SweepAnalysis(
+        file=file,
+        channel=volts.channel_indices[0],
+        stimulus=stimulus,
+        sweep=sweep,
+        acoustic_level_pa=level,
+        response=response,
+        table=table,
+        fit=fit,
+        thd_percent_at=response.thd_percent_at(list(thd_at_hz)),
+        golden=dev,
+        golden_file=golden_file,
+    )
+
+
+# --------------------------------------------------------------------------------------
+# Two-channel H1
+
+
+@dataclass(frozen=True)
+class H1Channel:
+    """One measured channel of an H1 measurement: its table and the fit to it.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> x = np.random.default_rng(2).standard_normal(48000 * 4) * 0.1
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "h1.wav"
+    >>> sf.write(path, np.column_stack([x, 0.25 * x]), 48000, subtype="FLOAT")
+    >>> h1 = h1_response_of(piezo.open(path))
+    >>> ch = h1.channels[0]
+    >>> ch.channel, ch.fitted_points == ch.to_dict()["fitted_points"]
+    (1, True)
+    """
+
+    channel: int
+    table: ResponseTable
+    fit: ResponseFit
+    fitted_points: int
+
+    def to_dict(self) -> dict[str, Any]:
+        """The channel's entry in the ``piezo response --json`` document."""
+        entry = {"channel": self.channel, **fit_document(self.fit)}
+        entry["fitted_points"] = self.fitted_points
+        entry.update(table_document(self.table))
+        return to_jsonable(entry)
+
+
+@dataclass(frozen=True)
+class H1Analysis:
+    """H1 = Gxy/Gxx and coherence of each measured channel over a reference channel.
+
+    Attributes
+    ----------
+    file
+        The recording.
+    estimate
+        The Welch-averaged transfer estimate.
+    min_coherence
+        Only points at least this coherent were fitted.
+    channels
+        One :class:`H1Channel` per measured channel.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> x = np.random.default_rng(2).standard_normal(48000 * 4) * 0.1
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "h1.wav"
+    >>> sf.write(path, np.column_stack([x, 0.25 * x]), 48000, subtype="FLOAT")
+    >>> h1 = h1_response_of(piezo.open(path))
+    >>> doc = h1.to_dict()
+    >>> doc["reference_channel"], doc["channel"], round(doc["sensitivity_db"], 2)  # 20 lg ¼
+    (0, 1, -12.04)
+    """
+
+    file: str
+    estimate: TransferEstimate
+    min_coherence: float
+    channels: tuple[H1Channel, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo response --json`` document: the first channel's entry at the top,
+        every channel under ``channels`` when there are several."""
+        entries = [ch.to_dict() for ch in self.channels]
+        doc = {
+            "file": self.file,
+            "reference_channel": self.estimate.reference_channel,
+            "sample_rate_hz": self.estimate.sample_rate_hz,
+            "segments": self.estimate.segments,
+            "segment_frames": self.estimate.segment_frames,
+            "min_coherence": self.min_coherence,
+            **entries[0],
+        }
+        if len(entries) > 1:
+            doc["channels"] = entries
+        return to_jsonable(doc)
+
+
+def h1_response_of(
+    source: CalibratedSource,
+    *,
+    reference_channel: int = 0,
+    measured_channels: Sequence[int] | None = None,
+    segment_frames: int | None = None,
+    overlap: float = 0.5,
+    min_coherence: float = 0.99,
+    reference_hz: float = 1000.0,
+    points_per_octave: int = 24,
+    advance: Callable[[int], object] | None = None,
+) -> H1Analysis:
+    """Frequency response H1 = Gxy/Gxx with coherence, from Welch-averaged spectra.
+
+    Every channel of ``source`` is read in volts at the sensor (a sensitivity is
+    ignored), so H1 is in V/V. The response is fitted where the coherence is at least
+    ``min_coherence``; the tables keep every frequency.
+
+    Parameters
+    ----------
+    reference_channel
+        Channel with the stimulus or the reference sensor (x).
+    measured_channels
+        Channels measured (y); all others when None.
+    segment_frames, overlap
+        Welch segments (default: the next power of two ≥ rate/6) and their overlap.
+    advance
+        Called with the frames of each block read (a progress bar).
+
+    Raises
+    ------
+    InputError
+        Fewer than six coherent points in a channel.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> x = np.random.default_rng(1).standard_normal(48000 * 4) * 0.1
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "h1.wav"
+    >>> sf.write(path, np.column_stack([x, 0.5 * x]), 48000, subtype="FLOAT")
+    >>> h1 = h1_response_of(piezo.open(path))
+    >>> round(h1.channels[0].fit.sensitivity_db, 2)  # y = x/2: 20 lg 0.5
+    -6.02
+    """
+    volts = source.volts_at_sensor().with_channels(None)
+    file = str(source.recording.path)
+    try:
+        est = H1Estimator(
+            volts.sample_rate_hz,
+            len(volts.channel_indices),
+            reference_channel=reference_channel,
+            measured_channels=None if measured_channels is None else list(measured_channels),
+            segment_frames=segment_frames,
+            overlap=overlap,
+            unit="V/V",
+        )
+        volts.feed(est, advance=advance)
+        estimate = est.result()
+    except InputError as exc:
+        raise exc.with_source(file) from None
+    channels = []
+    for i, ch in enumerate(estimate.measured_channels):
+        table = estimate.to_table(channel=i, points_per_octave=points_per_octave)
+        keep = table.extra["coherence"] >= min_coherence
+        if np.count_nonzero(keep) < 6:
+            raise InputError(
+                f"channel {ch}: only {np.count_nonzero(keep)} points have coherence ≥ "
+                f"{min_coherence:g}; lower the minimum coherence or record longer / louder",
+                source=file,
+            )
+        good = table_subset(table, keep)
+        try:
+            fit = fit_response(
+                good.frequency_hz,
+                good.magnitude_db,
+                reference_hz=reference_hz,
+                magnitude_unit=estimate.magnitude_unit,
+            )
+        except InputError as exc:
+            raise exc.with_source(file) from None
+        channels.append(H1Channel(int(ch), table, fit, int(keep.sum())))
+    return H1Analysis(file, estimate, min_coherence, tuple(channels))

@@ -1,0 +1,325 @@
+"""Spectra and band levels as ``piezo spectrum`` and ``piezo bands`` report them.
+
+:func:`spectrum_of` and :func:`bands_of` stream a
+:class:`~piezo.chain.measurement.CalibratedSource` through
+:class:`~piezo.spectral.welch.WelchPSD` and :class:`~piezo.spectral.bands.BandAnalyzer`;
+:class:`Spectrum` and :class:`Bands` hold the results with what they were measured on,
+and their ``to_dict()`` is the command's ``--json`` document.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from piezo.chain.measurement import CalibratedSource
+from piezo.errors import InputError
+from piezo.results import to_jsonable
+from piezo.spectral.bands import BandAnalyzer, BandResult
+from piezo.spectral.welch import PSDResult, Spectrogram, WelchPSD
+
+__all__ = ["Bands", "Spectrum", "bands_of", "psd_level_unit", "spectrum_of"]
+
+
+def psd_level_unit(level_unit: str, scaling: str) -> str:
+    """How PSD levels are labelled: ``dB re (20 µPa)²/Hz`` for a density.
+
+    Examples
+    --------
+    >>> psd_level_unit("dB re 20 µPa", "density")
+    'dB re (20 µPa)²/Hz'
+    >>> psd_level_unit("dB re 1 V", "spectrum")
+    'dB re (1 V)²'
+    """
+    ref = level_unit.removeprefix("dB re ")
+    return f"dB re ({ref})²/Hz" if scaling == "density" else f"dB re ({ref})²"
+
+
+@dataclass(frozen=True)
+class Spectrum:
+    """The Welch PSD of every analysed channel of one recording.
+
+    Attributes
+    ----------
+    file
+        The recording, as it was opened.
+    unit
+        Unit of the PSD, e.g. ``"Pa^2/Hz"``.
+    level_unit
+        Unit of PSD levels, e.g. ``"dB re (20 µPa)²/Hz"``.
+    reference
+        Reference of the levels (Pa, or 1 V), squared in the level unit.
+    channel_indices
+        The recording's channels, in the order of the PSD's columns.
+    result
+        The estimator's result.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "noise.wav"
+    >>> x = np.random.default_rng(0).standard_normal(48000) * 0.01
+    >>> sf.write(path, x, 48000, subtype="FLOAT")
+    >>> sp = spectrum_of(piezo.open(path))
+    >>> sp.result.segment_frames, sp.to_dict()["window"]
+    (4096, 'hann')
+    """
+
+    file: str
+    unit: str
+    level_unit: str
+    reference: float
+    channel_indices: tuple[int, ...]
+    result: PSDResult
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo spectrum --json`` document (plain JSON values)."""
+        r = self.result
+        doc = {
+            "file": self.file,
+            "unit": self.unit,
+            "level_unit": self.level_unit,
+            "scaling": r.scaling,
+            "sample_rate_hz": r.sample_rate_hz,
+            "segment_frames": r.segment_frames,
+            "overlap_frames": r.overlap_frames,
+            "resolution_hz": r.resolution_hz,
+            "window": r.window,
+            "average": r.average,
+            "enbw_hz": r.enbw_hz,
+            "enbw_bins": r.enbw_bins,
+            "averages": r.averages,
+            "effective_averages": r.effective_averages,
+            "confidence": {
+                "level": r.confidence_level,
+                "lower_db": r.ci_lower_db,
+                "upper_db": r.ci_upper_db,
+            },
+            "channels": [
+                {
+                    "channel": ch,
+                    "mean_square": float(r.mean_square()[i]),
+                    "frequency_hz": r.frequency_hz,
+                    "psd": r.psd[:, i],
+                }
+                for i, ch in enumerate(self.channel_indices)
+            ],
+        }
+        return to_jsonable(doc)
+
+
+def spectrum_of(
+    source: CalibratedSource,
+    *,
+    resolution_hz: float | None = None,
+    window: str = "hann",
+    overlap: float = 0.5,
+    average: str = "mean",
+    scaling: str = "density",
+    spectrogram: Spectrogram | None = None,
+    advance: Callable[[int], object] | None = None,
+) -> Spectrum:
+    """Welch power spectral density of each channel of ``source``, in one pass.
+
+    One-sided and calibrated (Pa^2/Hz with a sensitivity, V^2/Hz without); the options
+    are those of :class:`~piezo.spectral.welch.WelchPSD`. Without ``resolution_hz`` the
+    segments are 4096 samples long.
+
+    Parameters
+    ----------
+    spectrogram
+        A :class:`~piezo.spectral.welch.Spectrogram` fed the same blocks (for a
+        picture), so the file is read once.
+    advance
+        Called with the frames of each block read (a progress bar).
+
+    Raises
+    ------
+    InputError
+        The recording is shorter than one segment.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(48000 * 2) / 48000
+    >>> sf.write(path, 0.5 * np.sin(2 * np.pi * 1000 * t), 48000, subtype="FLOAT")
+    >>> sp = spectrum_of(piezo.open(path), resolution_hz=5.0)
+    >>> sp.unit, sp.level_unit
+    ('V^2/Hz', 'dB re (1 V)²/Hz')
+    >>> round(sp.to_dict()["channels"][0]["mean_square"], 4)  # (0.5 V)² / 2, Parseval
+    0.125
+    """
+    fs = source.sample_rate_hz
+    est = WelchPSD(
+        fs,
+        len(source.channel_indices),
+        resolution_hz=resolution_hz,
+        window=window,
+        overlap=overlap,
+        average=average,
+        scaling=scaling,
+    )
+    if est.segment_frames > source.frames:
+        raise InputError(
+            f"the recording has {source.frames} samples, fewer than one segment of "
+            f"{est.segment_frames} ({est.segment_frames / fs:g} s); use a coarser "
+            "resolution",
+            source=str(source.recording.path),
+        )
+    source.feed(est, *([] if spectrogram is None else [spectrogram]), advance=advance)
+    result = est.result()
+    return Spectrum(
+        file=str(source.recording.path),
+        unit=f"{source.unit}{result.unit_suffix}",
+        level_unit=psd_level_unit(source.chain.level_unit, scaling),
+        reference=source.reference,
+        channel_indices=source.channel_indices,
+        result=result,
+    )
+
+
+def _nominal(value: float) -> int | float:
+    """1000.0 -> 1000, 31.5 stays 31.5 (nominal labels read naturally in JSON)."""
+    return int(value) if float(value).is_integer() else value
+
+
+def _finite(value: float) -> float | None:
+    return float(value) if np.isfinite(value) else None
+
+
+@dataclass(frozen=True)
+class Bands:
+    """Fractional-octave band levels of every analysed channel of one recording.
+
+    Attributes
+    ----------
+    file
+        The recording, as it was opened.
+    unit, level_unit
+        Unit of the samples and of the band levels.
+    reference
+        Reference of the levels (Pa, or 1 V).
+    sample_rate_hz
+        Sample rate of the recording.
+    channel_indices
+        The recording's channels, in the order of the result's columns.
+    result
+        The band bank's result (fraction, weighting, bands, mean squares, history).
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(48000) / 48000
+    >>> sf.write(path, np.sin(2 * np.pi * 500 * t), 48000, subtype="FLOAT")
+    >>> b = bands_of(piezo.open(path), fraction=1, low_hz=125, high_hz=2000)
+    >>> b.result.bands[int(np.argmax(b.level_db()[:, 0]))].nominal_hz
+    500.0
+    """
+
+    file: str
+    unit: str
+    level_unit: str
+    reference: float
+    sample_rate_hz: float
+    channel_indices: tuple[int, ...]
+    result: BandResult
+
+    def level_db(self) -> np.ndarray:
+        """Band Leq in dB re the reference, shape ``(bands, channels)``."""
+        return self.result.level_db(self.reference)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo bands --json`` document (plain JSON values)."""
+        result = self.result
+        levels = self.level_db()
+        doc: dict[str, Any] = {
+            "file": self.file,
+            "fraction": result.fraction,
+            "unit": self.unit,
+            "level_unit": self.level_unit,
+            "weighting": result.weighting,
+            "sample_rate_hz": self.sample_rate_hz,
+            "interval_s": result.interval_s,
+            "channels": [],
+        }
+        for i, ch in enumerate(self.channel_indices):
+            entry: dict[str, Any] = {
+                "channel": ch,
+                "bands": [
+                    {
+                        "nominal_hz": _nominal(b.nominal_hz),
+                        "exact_hz": b.exact_hz,
+                        "lower_hz": b.lower_hz,
+                        "upper_hz": b.upper_hz,
+                        "level_db": _finite(levels[j, i]),
+                    }
+                    for j, b in enumerate(result.bands)
+                ],
+            }
+            if result.interval_s is not None:
+                hist = result.history_db(self.reference)[:, :, i]
+                entry["history"] = {
+                    "time_s": result.history_time_s,
+                    "level_db": [[_finite(v) for v in row] for row in hist],
+                }
+            doc["channels"].append(entry)
+        return to_jsonable(doc)
+
+
+def bands_of(
+    source: CalibratedSource,
+    *,
+    fraction: int = 3,
+    low_hz: float = 20.0,
+    high_hz: float = 20000.0,
+    interval_s: float | None = None,
+    weighting: str = "Z",
+    advance: Callable[[int], object] | None = None,
+) -> Bands:
+    """Band Leq of each channel through the IEC 61260-1:2014 class 1 filter bank.
+
+    The options are those of :class:`~piezo.spectral.bands.BandAnalyzer` (1/``fraction``
+    octave bands from ``low_hz`` to ``high_hz`` nominal, limited by Nyquist, after an
+    IEC 61672-1 ``weighting``).
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(48000 * 2) / 48000
+    >>> sf.write(path, 0.5 * np.sin(2 * np.pi * 1000 * t), 48000, subtype="FLOAT")
+    >>> b = bands_of(piezo.open(path), fraction=1, low_hz=250, high_hz=4000)
+    >>> [band["nominal_hz"] for band in b.to_dict()["channels"][0]["bands"]]
+    [250, 500, 1000, 2000, 4000]
+    >>> round(float(b.level_db()[2, 0]), 1)  # the 1 kHz band holds the tone: 20 lg(0.5/√2)
+    -9.0
+    """
+    try:
+        analyzer = BandAnalyzer(
+            source.sample_rate_hz,
+            len(source.channel_indices),
+            fraction=fraction,
+            low_hz=low_hz,
+            high_hz=high_hz,
+            interval_s=interval_s,
+            weighting=weighting,
+        )
+    except InputError as exc:
+        raise exc.with_source(str(source.recording.path)) from None
+    source.feed(analyzer, advance=advance)
+    return Bands(
+        file=str(source.recording.path),
+        unit=source.unit,
+        level_unit=source.chain.level_unit,
+        reference=source.reference,
+        sample_rate_hz=source.sample_rate_hz,
+        channel_indices=source.channel_indices,
+        result=analyzer.result(),
+    )

@@ -1,0 +1,317 @@
+"""Test-tone metrics and calibrator sensitivity as ``piezo tone`` and ``piezo calibrate``
+report them, for Python and JSON.
+
+:func:`tone_of` streams a :class:`~piezo.chain.measurement.CalibratedSource` through a
+:class:`~piezo.tone.analysis.ToneAnalyzer` (and, for the SNR, a recording with the tone
+switched off through a Welch spectrum); :class:`Tone` holds the results and
+:meth:`Tone.to_dict` is the command's ``--json`` document.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+from piezo.chain.measurement import CalibratedSource
+from piezo.errors import InputError
+from piezo.results import to_jsonable
+from piezo.spectral.welch import WelchPSD
+from piezo.tone.analysis import ToneAnalyzer, ToneResult, band_mean_square
+from piezo.tone.calibrator import CalibrationResult, ToneCalibrator, calibrator_pressure_pa
+
+__all__ = ["RESOLUTION_HZ", "Calibration", "Tone", "calibration_of", "tone_of"]
+
+#: Bin spacing of the tone analysis, hertz (1 s segments).
+RESOLUTION_HZ = 1.0
+
+
+@dataclass(frozen=True)
+class Tone:
+    """Tone metrics of every analysed channel of one recording.
+
+    Attributes
+    ----------
+    file, noise_file
+        The recording and the tone-off recording (or None), as they were opened.
+    unit, level_unit
+        Unit of the samples and of the tone level.
+    reference
+        Reference of the tone level (Pa, or 1 V).
+    bandwidth_hz
+        Measurement bandwidth actually used (limited by Nyquist).
+    channel_indices
+        The recording's channels, in the order of ``results``.
+    results
+        One :class:`~piezo.tone.analysis.ToneResult` per channel.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(96000) / 48000
+    >>> sf.write(path, 0.5 * np.sin(2 * np.pi * 440 * t), 48000, subtype="FLOAT")
+    >>> tone = tone_of(piezo.open(path))
+    >>> round(tone.to_dict()["channels"][0]["frequency_hz"], 2), tone.bandwidth_hz
+    (440.0, (20.0, 20000.0))
+    """
+
+    file: str
+    noise_file: str | None
+    unit: str
+    level_unit: str
+    reference: float
+    bandwidth_hz: tuple[float, float]
+    channel_indices: tuple[int, ...]
+    results: tuple[ToneResult, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo tone --json`` document (plain JSON values)."""
+        first = self.results[0]
+        doc = {
+            "file": self.file,
+            "unit": self.unit,
+            "level_unit": self.level_unit,
+            "bandwidth_hz": list(self.bandwidth_hz),
+            "resolution_hz": first.resolution_hz,
+            "segments": first.segments,
+            "noise_file": self.noise_file,
+            "channels": [
+                {
+                    "channel": ch,
+                    "frequency_hz": r.frequency_hz,
+                    "level_db": r.level_db(self.reference),
+                    "tone_rms": r.tone_rms,
+                    "thd_percent": r.thd_percent,
+                    "thd_n_percent": r.thd_n_percent,
+                    "sinad_db": r.sinad_db,
+                    "snr_db": r.snr_db,
+                    "noise_rms": r.noise_rms,
+                    "total_rms": r.total_rms,
+                    "residual_rms": r.residual_rms,
+                    "harmonics": [
+                        {
+                            "order": n,
+                            "rms": v,
+                            "percent": 100 * v / r.tone_rms if r.tone_rms else None,
+                        }
+                        for n, v in zip(r.harmonic_orders, r.harmonic_rms, strict=True)
+                    ],
+                }
+                for ch, r in zip(self.channel_indices, self.results, strict=True)
+            ],
+        }
+        return to_jsonable(doc)
+
+
+def tone_of(
+    source: CalibratedSource,
+    *,
+    expected_hz: float | None = None,
+    bandwidth_hz: tuple[float, float] = (20.0, 20000.0),
+    harmonics: int = 10,
+    noise: CalibratedSource | None = None,
+    advance: Callable[[int], object] | None = None,
+) -> Tone:
+    """Fundamental, level, THD, THD+N, SINAD (and SNR) of a steady tone in ``source``.
+
+    THD after IEC 60268-3 (harmonics 2..``harmonics`` over the fundamental), THD+N and
+    SINAD after AES17, from a 1 Hz Blackman-Harris Welch spectrum of the whole recording
+    (one segment when it is shorter than 1 s). With ``noise``, a recording of the same
+    chain with the tone off, the SNR is its in-band mean square against the tone's.
+
+    Parameters
+    ----------
+    expected_hz
+        Nominal tone frequency (searched within ±12 %); the strongest line when None.
+    advance
+        Called with the frames of each block read (a progress bar).
+
+    Raises
+    ------
+    InputError
+        Too short a recording, a noise recording of another rate or channel count, or
+        no tone in the band.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "tone.wav"
+    >>> t = np.arange(48000 * 2) / 48000
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * t) + 0.005 * np.sin(2 * np.pi * 2000 * t)
+    >>> sf.write(path, x, 48000, subtype="FLOAT")
+    >>> tone = tone_of(piezo.open(path), expected_hz=1000)
+    >>> r = tone.results[0]
+    >>> round(r.frequency_hz, 3), round(r.thd_percent, 3)  # second harmonic at 1 %
+    (1000.0, 1.0)
+    """
+    file = str(source.recording.path)
+    fs = source.sample_rate_hz
+    nch = len(source.channel_indices)
+    if source.frames < 2:
+        raise InputError("the recording is too short for a tone analysis", source=file)
+    seg = None if source.frames >= fs / RESOLUTION_HZ else source.frames
+    try:
+        analyzer = ToneAnalyzer(
+            fs,
+            nch,
+            expected_hz=expected_hz,
+            bandwidth_hz=bandwidth_hz,
+            harmonics=harmonics,
+            resolution_hz=RESOLUTION_HZ,
+            segment_frames=seg,
+        )
+    except InputError as exc:
+        raise exc.with_source(file) from None
+    source.feed(analyzer, advance=advance)
+    noise_ms = None
+    if noise is not None:
+        noise_file = str(noise.recording.path)
+        if len(noise.channel_indices) != nch or noise.sample_rate_hz != fs:
+            raise InputError(
+                f"the noise recording must have the same rate and channels as "
+                f"{source.recording.path.name} ({fs:g} Hz, {nch} channel(s))",
+                source=noise_file,
+            )
+        nseg = int(min(noise.frames, round(fs / RESOLUTION_HZ)))
+        if nseg < 2:
+            raise InputError("the noise recording is empty", source=noise_file)
+        welch = WelchPSD(fs, nch, segment_frames=nseg, window="blackmanharris")
+        for block in noise.blocks():
+            welch.update(block)
+        noise_ms = band_mean_square(welch.result(), *analyzer.bandwidth_hz)
+    try:
+        results = analyzer.result(noise_mean_square=noise_ms)
+    except InputError as exc:
+        raise exc.with_source(file) from None
+    low, high = analyzer.bandwidth_hz
+    return Tone(
+        file=file,
+        noise_file=None if noise is None else str(noise.recording.path),
+        unit=source.unit,
+        level_unit=source.chain.level_unit,
+        reference=source.reference,
+        bandwidth_hz=(float(low), float(high)),
+        channel_indices=source.channel_indices,
+        results=tuple(results),
+    )
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """A sensor's sensitivity measured on a sound calibrator (``piezo calibrate``).
+
+    Attributes
+    ----------
+    file, channel
+        The capture and its channel.
+    calibrator_level_db
+        The calibrator's level, dB re ``reference_pa``.
+    reference_pa, gain, full_scale_v
+        The chain the capture was taken through (its sensitivity, if any, is ignored).
+    result
+        The calibrator measurement (tone, RMS volts, sensitivity, stability).
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "cal.wav"
+    >>> t = np.arange(48000 * 3) / 48000
+    >>> sf.write(path, 0.05 * np.sin(2 * np.pi * 1000 * t), 48000, subtype="FLOAT")
+    >>> cal = calibration_of(piezo.open(path, gain="20 dB"), level_db=114.0)
+    >>> cal.to_dict()["gain"], round(cal.to_dict()["calibrator_pressure_pa"], 3)  # 114 dB
+    (10.0, 10.024)
+    """
+
+    file: str
+    channel: int
+    calibrator_level_db: float
+    reference_pa: float
+    gain: float
+    full_scale_v: float
+    result: CalibrationResult
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``piezo calibrate --json`` document (without ``profile_written``)."""
+        r = self.result
+        doc = {
+            "file": self.file,
+            "channel": self.channel,
+            "sensitivity_mv_per_pa": r.sensitivity_mv_per_pa,
+            "sensitivity_dbv_per_pa": r.sensitivity_dbv_per_pa,
+            "tone_hz": r.tone_hz,
+            "residual_db": r.residual_db,
+            "tone_rms_v": r.tone_rms_v,
+            "calibrator_level_db": self.calibrator_level_db,
+            "calibrator_pressure_pa": calibrator_pressure_pa(
+                self.calibrator_level_db, self.reference_pa
+            ),
+            "reference_pa": self.reference_pa,
+            "level_spread_db": r.level_spread_db,
+            "frequency_spread_percent": 100 * r.frequency_spread,
+            "stable": r.stable,
+            "gain": self.gain,
+            "full_scale_v": self.full_scale_v,
+        }
+        return to_jsonable(doc)
+
+
+def calibration_of(
+    source: CalibratedSource,
+    *,
+    level_db: float = 94.0,
+    expected_hz: float = 1000.0,
+    advance: Callable[[int], object] | None = None,
+) -> Calibration:
+    """Sensitivity of the sensor on one channel of ``source`` from a calibrator tone.
+
+    The capture is read in volts at the sensor
+    (:meth:`~piezo.chain.measurement.CalibratedSource.volts_at_sensor`); the tone's
+    band-limited RMS voltage over the calibrator's RMS pressure is the sensitivity
+    (:class:`~piezo.tone.calibrator.ToneCalibrator`). ``result.stable`` says whether the
+    tone's level and frequency held still; the caller decides whether to accept it.
+
+    Raises
+    ------
+    InputError
+        More than one channel, or no calibrator tone.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib
+    >>> import piezo
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "cal.wav"
+    >>> t = np.arange(48000 * 3) / 48000
+    >>> # 94 dB re 20 µPa is 1.0024 Pa RMS; 10 mV/Pa gives 10.02 mV RMS at the sensor.
+    >>> sf.write(path, 0.010024 * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t), 48000,
+    ...          subtype="FLOAT")
+    >>> cal = calibration_of(piezo.open(path), level_db=94.0)
+    >>> round(cal.result.sensitivity_mv_per_pa, 2), cal.result.stable
+    (10.0, True)
+    """
+    file = str(source.recording.path)
+    if len(source.channel_indices) != 1:
+        raise InputError(
+            f"{source.recording.channels} channels: choose the calibrated one", source=file
+        )
+    cal = ToneCalibrator(
+        source.sample_rate_hz,
+        expected_hz=expected_hz,
+        level_db=level_db,
+        reference_pa=source.chain.reference_pa,
+    )
+    try:
+        source.volts_at_sensor().feed(cal, advance=advance)
+        result = cal.result()
+    except InputError as exc:
+        raise exc.with_source(file) from None
+    return Calibration(
+        file=file,
+        channel=source.channel_indices[0],
+        calibrator_level_db=level_db,
+        reference_pa=source.chain.reference_pa,
+        gain=source.chain.gain,
+        full_scale_v=source.chain.full_scale_v,
+        result=result,
+    )
