@@ -32,9 +32,9 @@ from piezo.cli.response import (
     print_fit,
     table_document,
     write_csv,
-    write_plot,
 )
 from piezo.errors import InputError, SpecError, UnitError
+from piezo.plots.response import write_plot
 from piezo.response.fit import (
     ResponseTable,
     deviation_from_golden,
