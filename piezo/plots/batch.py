@@ -58,6 +58,8 @@ def histogram_figure(summary: Mapping[str, Any], metric: MetricSpec) -> bytes | 
     edges, counts = list(hist["edges"]), list(hist["counts"])
     if not counts:
         return None
+    from matplotlib.ticker import MaxNLocator
+
     limits = _limit_values(metric)
     with plot_style():
         fig, ax = figure(6.6, 3.0, legend_rows=1)
@@ -83,17 +85,15 @@ def histogram_figure(summary: Mapping[str, Any], metric: MetricSpec) -> bytes | 
         pad = 0.04 * (hi - lo) if hi > lo else 1.0
         ax.set_xlim(lo - pad, hi + pad)
         ax.set_ylim(0, max(counts) * 1.15 + 0.5)
-        ax.yaxis.get_major_locator().set_params(integer=True)
+        ax.yaxis.set_major_locator(MaxNLocator(integer=True))  # whole captures
         ax.grid(axis="x", visible=False)
         ax.set_xlabel(axis_label(summary["name"], summary["unit"]))
         ax.set_ylabel(axis_label("number of captures"))
-        outside = []
-        if hist.get("below"):
-            outside.append(f"{hist['below']} below the range shown")
-        if hist.get("above"):
-            outside.append(f"{hist['above']} above the range shown")
-        title = f"{summary['name']}: {summary['n']} captures"
-        ax.set_title(title + (f" ({'; '.join(outside)})" if outside else ""))
+        below, above = int(hist.get("below") or 0), int(hist.get("above") or 0)
+        title = f"{sum(counts) + below + above} captures"
+        if below or above:
+            title += f"; {below} below and {above} above the range shown"
+        ax.set_title(title)
         legend_below(fig, 1 + len(labelled))
         return png_bytes(fig)
 

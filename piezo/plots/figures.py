@@ -177,7 +177,7 @@ def frontend_figure(fr: FrontendResponse) -> bytes:
         twin.grid(False)
         twin.spines["right"].set_visible(True)
         lines = ax.get_lines()[:1] + twin.get_lines()[:1]
-        ax.legend(lines, [ln.get_label() for ln in lines], loc="lower right")
+        ax.legend(lines, [str(ln.get_label()) for ln in lines], loc="lower right")
         fig.subplots_adjust(right=1.0 - 0.75 / 6.6)
         return png_bytes(fig)
 

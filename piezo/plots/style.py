@@ -184,7 +184,8 @@ def plot_style() -> Iterator[None]:
     """Apply the project style to the figures made and rendered inside the block."""
     import matplotlib
 
-    with matplotlib.rc_context(_rc()):
+    rc: Any = _rc()  # matplotlib types the keys as literals; ours are checked at run time
+    with matplotlib.rc_context(rc):
         yield
 
 
@@ -210,7 +211,7 @@ def figure(
     --------
     >>> with plot_style():
     ...     fig, ax = figure(6.6, 3.0)
-    >>> [round(v, 2) for v in fig.get_size_inches()]
+    >>> [round(float(v), 2) for v in fig.get_size_inches()]
     [6.6, 3.0]
     """
     fig = _new_figure(width_in, height_in)

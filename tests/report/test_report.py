@@ -110,6 +110,43 @@ def test_embedded_figures_are_real_pngs(reports):
     assert all(w >= 600 and h >= 200 for w, h in sizes)
 
 
+def test_level_rows_in_the_order_of_the_levels_command(reports):
+    from piezo.cli.levels import LEVEL_KEYS
+
+    page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
+    table = page[page.index(">Levels</h2>") :]
+    table = table[: table.index("</table>")]
+    rows = re.findall(r"<tr><td>(L[A-Za-z0-9]+)</td>", table)
+    assert rows and rows == [k for k in LEVEL_KEYS if k in rows]
+
+
+def test_badges_read_the_same_on_every_page(reports):
+    from piezo.report.html import render_page
+
+    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    badges = set(re.findall(r'<span class="sev sev-([a-z-]+)">([^<]*)</span>', page))
+    assert {"ok", "fail"} <= {cls for cls, _ in badges}
+    # One form: symbol, space, the JSON word in lower case; the style sheet sets every
+    # badge in capitals ("✓ OK", "! WARN", "✗ FAIL").
+    symbols = {"ok": "✓", "pass": "✓", "warn": "!", "fail": "✗", "not-evaluable": "?"}
+    for cls, text in badges:
+        assert text == f"{symbols[cls]} {cls.replace('-', ' ')}"
+    css = re.search(r"<style>(.*?)</style>", page, re.S).group(1)
+    assert re.search(r"\.sev \{[^}]*text-transform: uppercase", css)
+    # The batch pages embed the same style sheet.
+    row = {
+        "file": "u.wav", "serial": "", "verdict": "warn", "error": None,
+        "content_sha256": "0" * 64, "failed_limits": [], "warnings": ["w"],
+        "not_evaluable": [],
+    }  # fmt: skip
+    batch = render_page(
+        "batch_capture.html.j2", row=row, spec={"name": "", "sha256": "1" * 64}, lines=[], png=None
+    )
+    html5lib.HTMLParser(strict=True).parse(batch)
+    assert re.search(r"<style>(.*?)</style>", batch, re.S).group(1) == css
+    assert '<span class="sev sev-warn">! warn</span>' in batch
+
+
 def test_cautions_are_stated(reports):
     doc = json.loads((reports / "pump-bench.report.json").read_text(encoding="utf-8"))
     page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
