@@ -90,9 +90,10 @@ def histogram_figure(summary: Mapping[str, Any], metric: MetricSpec) -> bytes | 
         ax.set_xlabel(axis_label(summary["name"], summary["unit"]))
         ax.set_ylabel(axis_label("number of captures"))
         below, above = int(hist.get("below") or 0), int(hist.get("above") or 0)
+        outside = [f"{n} {side}" for n, side in ((below, "below"), (above, "above")) if n]
         title = f"{sum(counts) + below + above} captures"
-        if below or above:
-            title += f"; {below} below and {above} above the range shown"
+        if outside:
+            title += f"; {' and '.join(outside)} the range shown"
         ax.set_title(title)
         legend_below(fig, 1 + len(labelled))
         return png_bytes(fig)

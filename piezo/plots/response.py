@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from piezo.plots.style import RULE, axis_label, panels, plot_style, save_figure, trace
+from piezo.plots.style import INK, TRACES, axis_label, panels, plot_style, save_figure, trace
 from piezo.response.measure import smooth_fractional_octave
 
 if TYPE_CHECKING:
@@ -37,7 +37,9 @@ def response_figure(
     unit = table.magnitude_unit or "dB (relative)"
     with plot_style():
         fig, (ax_m, ax_p, ax_l) = panels(3, 8.0, 3.0, sharex=True)
-        ax_m.semilogx(f, table.magnitude_db, color=RULE, linewidth=0.8, label="measured")
+        ax_m.semilogx(
+            f, table.magnitude_db, color=TRACES[3].color, linewidth=0.7, label="measured"
+        )
         if smooth:
             ax_m.semilogx(
                 f,
@@ -66,9 +68,12 @@ def response_figure(
                 values = table.extra[name]
                 if np.any(np.isfinite(values) & (values > 0)):
                     label = name.removesuffix("_percent").upper()
+                    if label == "THD":  # the sum of the harmonics: the strongest line
+                        ax_l.loglog(f, values, color=INK, linewidth=1.8, label=label)
+                        continue
                     ax_l.loglog(f, values, **trace(drew), label=label)
                     drew += 1
-            if drew:
+            if ax_l.get_lines():
                 ax_l.legend(loc="best")
             ax_l.set_ylabel(axis_label("distortion", "% of fundamental"))
         ax_l.set_xlabel(axis_label("frequency", "Hz"))

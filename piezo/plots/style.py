@@ -132,6 +132,8 @@ _RC: dict[str, Any] = {
     "grid.color": RULE,
     "grid.linewidth": 0.5,
     "grid.alpha": 1.0,
+    "grid.minor.color": SHADE,  # decades stand out from the lines between them
+    "grid.minor.linewidth": 0.4,
     "xtick.color": INK,
     "ytick.color": INK,
     "xtick.labelsize": FONT_SIZES["tick"],
@@ -170,9 +172,11 @@ def axis_label(quantity: str, unit: str | None = None) -> str:
 
 
 def _rc() -> dict[str, Any]:
+    import matplotlib
     from cycler import cycler
 
-    rc = dict(_RC)
+    # Settings this matplotlib does not know (grid.minor.* came with 3.10) are left out.
+    rc = {k: v for k, v in _RC.items() if k in matplotlib.rcParams}
     rc["axes.prop_cycle"] = cycler(
         color=[t.color for t in TRACES], linestyle=[t.linestyle for t in TRACES]
     )

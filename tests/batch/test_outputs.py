@@ -215,8 +215,8 @@ def test_outputs_byte_identical_and_atomic(rows, tmp_path, monkeypatch):
     write_outputs(tmp_path, rows, SPEC)
     first = {name: (tmp_path / name).read_bytes() for name in outputs.RESULT_FILES}
     write_outputs(tmp_path, list(rows), SPEC)
-    for name in ("results.csv", "results.json", "junit.xml"):
-        assert (tmp_path / name).read_bytes() == first[name]
+    for name in ("results.csv", "results.json", "junit.xml", "summary.html"):
+        assert (tmp_path / name).read_bytes() == first[name]  # figures included
 
     # A failure while replacing leaves the previous complete file and no temporary file.
     def broken_replace(src, dst):
