@@ -323,10 +323,22 @@ def png_bytes(fig: Figure) -> bytes:
 
 
 def save_figure(fig: Figure, path: str | Path) -> None:
-    """Write ``fig`` to ``path`` atomically; the format follows the suffix (PNG, SVG, PDF;
-    PNG when there is none), with fixed metadata (no dates)."""
+    """Write ``fig`` to ``path`` atomically, with fixed metadata (no dates): SVG or PDF
+    when the suffix says so, PNG otherwise (also for an unknown or missing suffix).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> with plot_style():
+    ...     fig, ax = figure()
+    >>> save_figure(fig, folder / "a.plot")
+    >>> (folder / "a.plot").read_bytes()[:4] == b"\x89PNG"
+    True
+    """
     from piezo.io.atomic import atomic_output
 
-    fmt = Path(path).suffix.lstrip(".").lower() or "png"
+    suffix = Path(path).suffix.lstrip(".").lower()
+    fmt = suffix if suffix in _METADATA else "png"
     with atomic_output(path) as tmp:
         _render(fig, tmp, fmt)
