@@ -30,6 +30,7 @@ from piezo.batch.spec import load_spec, parse_spec
 from piezo.io.atomic import write_bytes_atomic
 from piezo.plots.style import LIMIT_STYLES, capture_figures
 from tests import batch_fakes as fakes
+from tests.chromium import CHROMIUM, image_layout
 from tests.paths import RECORDINGS
 
 SPEC = parse_spec(fakes.SPEC_TEXT)
@@ -209,6 +210,18 @@ def test_golden_curve_legend_names_it_once():
     (fig,) = figs
     legend = [t.get_text() for t in fig.legends[0].get_texts()]
     assert legend == ["measured", "golden response"]
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed: page not rendered")
+def test_summary_renders_with_full_width_histograms(rows, tmp_path):
+    page = summary_html_text(rows, SPEC)
+    sizes, console = image_layout(page, tmp_path)
+    assert console == []
+    assert len(sizes) == 3
+    for w, h, shown in sizes:
+        # Laid out at the text width of the page (62 rem at 15 px less the padding;
+        # the window is 1200 px wide), not as a thumbnail.
+        assert w >= 900 and h > 0 and shown >= 800, (w, h, shown)
 
 
 def test_outputs_byte_identical_and_atomic(rows, tmp_path, monkeypatch):

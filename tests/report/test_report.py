@@ -5,9 +5,7 @@ from __future__ import annotations
 import base64
 import json
 import re
-import shutil
 import struct
-import subprocess
 
 import html5lib
 import jinja2
@@ -18,9 +16,9 @@ import referencing
 import soundfile as sf
 
 from piezo.report import render_html
+from tests.chromium import CHROMIUM, image_layout
 from tests.paths import RECORDINGS, REPO
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 FS = 48000
 
 
@@ -207,51 +205,11 @@ def test_report_cli_errors(cli, tmp_path):
 @pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed: page not rendered")
 def test_page_renders_in_headless_chromium(reports, tmp_path):
     page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
-    # A probe appended to a copy of the page writes each image's decoded and laid-out
-    # size into the DOM once the page has loaded; the report itself has no script.
-    probe = (
-        "<script>window.addEventListener('load', () => { document.body.setAttribute("
-        "'data-sizes', [...document.images].map(i => i.naturalWidth + 'x' + "
-        "i.naturalHeight + ':' + Math.round(i.getBoundingClientRect().width)).join(' ')); "
-        "});</script>"
-    )
-    probed = tmp_path / "probed.html"
-    probed.write_text(page.replace("</body>", probe + "</body>"), encoding="utf-8")
-    result = subprocess.run(
-        [
-            CHROMIUM,
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            f"--user-data-dir={tmp_path / 'profile'}",
-            "--enable-logging=stderr",
-            "--v=0",
-            "--virtual-time-budget=5000",
-            "--window-size=1200,3000",
-            "--dump-dom",
-            probed.as_uri(),
-        ],
-        capture_output=True,
-        text=True,
-        timeout=120,
-        check=False,
-    )
-    assert result.returncode == 0, result.stderr[-2000:]
-    console = [line for line in result.stderr.splitlines() if ":CONSOLE" in line]
+    sizes, console = image_layout(page, tmp_path)
     assert console == []
-    m = re.search(r'data-sizes="([^"]*)"', result.stdout)
-    assert m, "the page did not finish loading"
-    sizes = m.group(1).split()
     assert len(sizes) == page.count("<img ")
-    for item in sizes:
-        natural, shown = item.split(":")
-        w, h = (int(v) for v in natural.split("x"))
-        assert w > 0 and h > 0 and int(shown) > 0, item
+    for w, h, shown in sizes:
+        assert w > 0 and h > 0 and shown > 0, (w, h, shown)
 
 
 def test_frontend_design_adds_its_response(cli, tmp_path):
