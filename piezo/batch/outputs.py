@@ -12,10 +12,8 @@ bytes, whatever order they were computed in.
 
 from __future__ import annotations
 
-import base64
 import csv
 import io
-import itertools
 import json
 import math
 import os
@@ -36,8 +34,10 @@ from piezo.batch.stats import (
     verdict_counts,
     yield_fraction,
 )
-from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, VERDICTS, WARN
+from piezo.batch.verdict import FAIL, NOT_EVALUABLE, VERDICTS, WARN
 from piezo.io.atomic import write_bytes_atomic
+from piezo.plots.batch import histogram_figure, response_figure
+from piezo.report.html import data_uri, render_page
 
 __all__ = [
     "JOURNAL_NAME",
@@ -291,53 +291,6 @@ def junit_xml_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
 # HTML.
 
 
-def _histogram_png(metric: Mapping[str, Any]) -> str | None:
-    """Histogram of one metric with its limits as vertical lines, as base64 PNG."""
-    edges, counts = metric["histogram"]["edges"], metric["histogram"]["counts"]
-    if not counts:
-        return None
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(5.0, 2.4), dpi=90)
-    FigureCanvasAgg(fig)
-    ax = fig.add_subplot()
-    widths = [b - a for a, b in itertools.pairwise(edges)]
-    ax.bar(edges[:-1], counts, width=widths, align="edge", color="#5b7fa6", edgecolor="white")
-    for key, label in (("lower", "lower limit"), ("upper", "upper limit")):
-        if metric[key] is not None:
-            ax.axvline(metric[key], color="#b22222", linestyle="--", linewidth=1.2, label=label)
-    ax.set_xlabel(f"{metric['name']} ({metric['unit']})")
-    ax.set_ylabel("captures")
-    outside = []
-    if metric["histogram"].get("below"):
-        outside.append(f"{metric['histogram']['below']} below the range")
-    if metric["histogram"].get("above"):
-        outside.append(f"{metric['histogram']['above']} above the range")
-    if outside:
-        ax.set_title("; ".join(outside), fontsize="small", loc="left")
-    if metric["lower"] is not None or metric["upper"] is not None:
-        ax.legend(fontsize="small", frameon=False)
-    fig.tight_layout()
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", metadata={"Software": None})
-    return base64.b64encode(buf.getvalue()).decode("ascii")
-
-
-def _fmt(value: float | None, digits: int = 4) -> str:
-    if value is None or (isinstance(value, float) and not math.isfinite(value)):
-        return "—"
-    return f"{value:.{digits}g}"
-
-
-def _environment() -> Any:
-    import jinja2
-
-    env = jinja2.Environment(autoescape=True, undefined=jinja2.StrictUndefined)
-    env.filters["num"] = _fmt
-    return env
-
-
 def summary_html_text(
     rows: Sequence[Mapping[str, Any]],
     spec: Spec,
@@ -348,27 +301,20 @@ def summary_html_text(
 
     ``reports`` maps a row's file to the relative link of its capture report.
     """
-    from piezo.batch._templates import SUMMARY_TEMPLATE
-
     summary = summarize(rows, spec)
-    for metric in summary["metrics"]:
-        metric["png"] = _histogram_png(metric)
+    for metric, m in zip(summary["metrics"], spec.metrics, strict=True):
+        metric["png"] = data_uri(histogram_figure(metric, m))
         metric["two_sided"] = metric["lower"] is not None and metric["upper"] is not None
     bad = [r for r in rows if r["verdict"] in (FAIL, NOT_EVALUABLE)]
     warned = [r for r in rows if r["verdict"] == WARN]
-    return (
-        _environment()
-        .from_string(SUMMARY_TEMPLATE)
-        .render(
-            spec=spec,
-            version=__version__,
-            summary=summary,
-            verdicts=VERDICTS,
-            bad=bad,
-            warned=warned,
-            reports=reports or {},
-            pass_label=PASS,
-        )
+    return render_page(
+        "batch_summary.html.j2",
+        spec=spec,
+        summary=summary,
+        verdicts=VERDICTS,
+        bad=bad,
+        warned=warned,
+        reports=reports or {},
     )
 
 
@@ -384,8 +330,6 @@ def capture_report_html(
     """Report of one capture: verdict, every metric with its value, limits and margin,
     and, when ``data`` carries the swept response, a plot of it with the spec's golden
     response and masks."""
-    from piezo.batch._templates import CAPTURE_TEMPLATE
-
     lines = []
     for m in spec.metrics:
         value = row["metrics"].get(m.name)
@@ -395,65 +339,11 @@ def capture_report_html(
                 "value": value,
                 "limits": [_limit_text(m, lim.lower, lim.upper, lim.severity) for lim in m.limits],
                 "margin": _margin(m, value),
+                "margin_to": "fail limit" if m.fail_limits() != (None, None) else "warn limit",
             }
         )
-    png = _response_png(data.get("response"), spec) if data else None
-    return (
-        _environment()
-        .from_string(CAPTURE_TEMPLATE)
-        .render(row=row, spec=spec, lines=lines, version=__version__, png=png)
-    )
-
-
-def _at(frequency_hz: Sequence[float], magnitude_db: Sequence[float], f: float) -> float:
-    """Magnitude at ``f``, linear in log frequency (for placing curves on the plot)."""
-    import numpy as np
-
-    return float(np.interp(math.log(f), np.log(frequency_hz), magnitude_db))
-
-
-def _response_png(response: Mapping[str, Any] | None, spec: Spec) -> str | None:
-    """The measured response with the golden curve and masks, as base64 PNG."""
-    if not response:
-        return None
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    f, mag = response["frequency_hz"], response["magnitude_db"]
-    fig = Figure(figsize=(6.4, 3.2), dpi=90)
-    FigureCanvasAgg(fig)
-    ax = fig.add_subplot()
-    ax.semilogx(f, mag, color="#1f3a5f", linewidth=1.6, label="measured")
-    for m in spec.metrics:
-        ref = m.params.get("relative_to_hz")
-        offset = _at(f, mag, ref) if ref is not None and f[0] <= ref <= f[-1] else 0.0
-        if m.kind == "golden_deviation":
-            g = m.params["golden_data"]
-            gf, gm = g["frequency_hz"], g["magnitude_db"]
-            if ref is not None and gf[0] <= ref <= gf[-1]:
-                gm = [v - _at(gf, g["magnitude_db"], ref) + offset for v in gm]
-            ax.semilogx(
-                gf, gm, color="#8a8f98", linestyle="--", linewidth=1.2, label=f"golden ({m.name})"
-            )
-        if m.kind == "response_mask":
-            for key, style in (("lower_db", ":"), ("upper_db", ":")):
-                if m.params.get(key) is not None:
-                    ax.semilogx(
-                        m.params["frequency_hz"],
-                        [v + offset for v in m.params[key]],
-                        color="#b5502f",
-                        linestyle=style,
-                        marker="_",
-                        label=f"{m.name} {key[:5]}",
-                    )
-    ax.set_xlabel("frequency / Hz")
-    ax.set_ylabel(f"magnitude / {response.get('unit') or 'dB'}")
-    ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize="small", frameon=False)
-    fig.tight_layout()
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", metadata={"Software": None})
-    return base64.b64encode(buf.getvalue()).decode("ascii")
+    png = data_uri(response_figure(data.get("response"), spec)) if data else None
+    return render_page("batch_capture.html.j2", row=row, spec=spec, lines=lines, png=png)
 
 
 def _limit_text(m: MetricSpec, lower: float | None, upper: float | None, severity: str) -> str:
@@ -461,17 +351,18 @@ def _limit_text(m: MetricSpec, lower: float | None, upper: float | None, severit
         return f"inside the mask ({severity})"
     parts = []
     if lower is not None:
-        parts.append(f"≥ {_fmt(lower, 6)}")
+        parts.append(f"≥ {lower:.6g}")
     if upper is not None:
-        parts.append(f"≤ {_fmt(upper, 6)}")
+        parts.append(f"≤ {upper:.6g}")
     return f"{' and '.join(parts)} {m.unit} ({severity})"
 
 
 def _margin(m: MetricSpec, value: float | None) -> float | None:
-    """Distance from the value to the nearest fail limit (negative: outside)."""
+    """Distance from the value to the nearest fail limit, or, for a metric with warn
+    limits only, to the nearest warn limit (negative: outside)."""
     if value is None:
         return None
-    lsl, usl = m.fail_limits()
+    lsl, usl = m.spec_limits()
     sides = [
         v
         for v in (

@@ -23,16 +23,13 @@ from piezo.cli.output import atomic_output, console, emit_json, progress
 from piezo.errors import InputError
 from piezo.frontend.filters import Equalizer, FrontendFilter
 from piezo.frontend.model import (
-    Frontend,
     design_key_unit,
-    frequency_response,
     frontend_from_mapping,
-    phase_deg,
     read_design,
     summarise_response,
 )
-from piezo.frontend.noise import noise_budget
 from piezo.frontend.study import CAUTION, study_frontend, vary_values
+from piezo.plots.frontend import write_plot as _plot
 
 #: Output formats that hold 32-bit float samples (values beyond ±1 survive).
 _FLOAT_FORMATS = {".wav": "WAV", ".w64": "W64", ".rf64": "RF64", ".caf": "CAF", ".aiff": "AIFF"}
@@ -272,41 +269,6 @@ def _print_vary(name: str, rows: list[dict[str, Any]]) -> None:
         )
     console.print(table)
     console.print("  NG: noise gain (midband); DR: dynamic range to the clip level")
-
-
-def _plot(fe: Frontend, path: Path, *, title: str) -> None:
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    summary = summarise_response(fe)
-    top = max(40e3, 3 * (fe.sensor.resonance_hz or 0.0))
-    f = np.geomspace(max(summary.corner_hz / 20, 1e-4), top, 1500)
-    h = frequency_response(fe, f)
-    level = 20 * np.log10(np.abs(h) / summary.sensitivity_v_per_pa)
-    budget = noise_budget(fe, f)
-    fig, axes = plt.subplots(3, 1, figsize=(8, 9), sharex=True, constrained_layout=True)
-    axes[0].semilogx(f, level)
-    axes[0].set_ylabel("level re midband (dB)")
-    axes[0].axhspan(-1, 1, color="0.9")
-    axes[0].set_ylim(max(-40.0, float(level.min()) - 3), min(40.0, float(level.max()) + 3))
-    axes[0].set_title(title)
-    axes[1].semilogx(f, phase_deg(fe, f))
-    axes[1].set_ylabel("phase (°)")
-    for label, row in zip(budget.labels, budget.input_psd_pa2_per_hz, strict=True):
-        axes[2].semilogx(f, 10 * np.log10(row / (20e-6) ** 2), label=label)
-    axes[2].semilogx(
-        f, 10 * np.log10(budget.total_input_psd_pa2_per_hz / (20e-6) ** 2), "k", label="total"
-    )
-    axes[2].set_ylabel("input noise (dB re 20 µPa/√Hz)")
-    axes[2].set_xlabel("frequency (Hz)")
-    axes[2].legend(fontsize="small")
-    for ax in axes:
-        ax.grid(True, which="both", alpha=0.3)
-    with atomic_output(path) as tmp:
-        fig.savefig(tmp, format=path.suffix.lstrip(".").lower() or "png", dpi=100)
-    plt.close(fig)
 
 
 # --------------------------------------------------------------------------- recordings

@@ -18,7 +18,6 @@ import typer
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
-    atomic_output,
     console,
     emit_json,
     err_console,
@@ -26,13 +25,13 @@ from piezo.cli.output import (
     write_text_atomic,
 )
 from piezo.errors import InputError
+from piezo.plots.response import write_plot
 from piezo.response.fit import (
     ResponseTable,
     fit_response,
     format_response_csv,
     parse_response_csv,
 )
-from piezo.response.measure import smooth_fractional_octave
 from piezo.response.summary import fit_document, h1_response_of, table_subset
 
 FRONTEND_CAUTION = (
@@ -163,62 +162,6 @@ def print_fit(doc: dict[str, Any]) -> None:
 def write_csv(path: Path, table: ResponseTable) -> None:
     """Write the response table atomically."""
     write_text_atomic(path, format_response_csv(table))
-
-
-def write_plot(
-    path: Path,
-    table: ResponseTable,
-    *,
-    title: str,
-    smooth: int,
-    golden: ResponseTable | None = None,
-    lower: str = "distortion",
-) -> None:
-    """PNG with magnitude (raw and smoothed), phase and distortion or coherence."""
-    from matplotlib.figure import Figure
-
-    f = table.frequency_hz
-    fig = Figure(figsize=(8.0, 9.0), layout="constrained")
-    ax_m, ax_p, ax_l = fig.subplots(3, 1, sharex=True)
-    unit = table.magnitude_unit or "dB (relative)"
-    ax_m.semilogx(f, table.magnitude_db, color="0.6", linewidth=0.8, label="measured")
-    if smooth:
-        ax_m.semilogx(
-            f,
-            smooth_fractional_octave(f, table.magnitude_db, fraction=smooth),
-            color="C0",
-            linewidth=1.6,
-            label=f"1/{smooth}-octave smoothed (display only)",
-        )
-    if golden is not None:
-        ax_m.semilogx(golden.frequency_hz, golden.magnitude_db, "--", color="C3", label="golden")
-    ax_m.set_ylabel(f"magnitude / {unit}")
-    ax_m.legend(loc="best", fontsize="small")
-    ax_m.set_title(title)
-    if table.phase_deg is not None:
-        ax_p.semilogx(f, table.phase_deg, color="C1")
-    ax_p.set_ylabel("phase / degrees")
-    ax_p.set_ylim(-185, 185)
-    if lower == "coherence" and "coherence" in table.extra:
-        ax_l.semilogx(f, table.extra["coherence"], color="C2")
-        ax_l.set_ylabel("coherence γ² / 1")
-        ax_l.set_ylim(0, 1.05)
-    else:
-        drew = False
-        for name in sorted(k for k in table.extra if k.endswith("_percent")):
-            values = table.extra[name]
-            if np.any(np.isfinite(values) & (values > 0)):
-                label = name.removesuffix("_percent").upper()
-                ax_l.loglog(f, values, label=label)
-                drew = True
-        if drew:
-            ax_l.legend(loc="best", fontsize="small")
-        ax_l.set_ylabel("distortion / % of fundamental")
-    ax_l.set_xlabel("frequency / Hz")
-    for ax in (ax_m, ax_p, ax_l):
-        ax.grid(True, which="both", alpha=0.3)
-    with atomic_output(path) as tmp:
-        fig.savefig(tmp, format="png", dpi=110)
 
 
 # --------------------------------------------------------------------------------------

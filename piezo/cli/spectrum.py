@@ -14,7 +14,6 @@ from rich.table import Table
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
-    atomic_output,
     console,
     emit_json,
     err_console,
@@ -22,6 +21,7 @@ from piezo.cli.output import (
     write_text_atomic,
 )
 from piezo.errors import InputError
+from piezo.plots.spectrum import write_plot
 from piezo.spectral.summary import spectrum_of
 from piezo.spectral.welch import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectrogram, WelchPSD
 
@@ -162,60 +162,6 @@ def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, referenc
             row += [f"{result.psd[k, i]:.6e}", f"{lv:.3f}" if np.isfinite(lv) else ""]
         buf.write(",".join(row) + "\n")
     return buf.getvalue()
-
-
-def write_plot(
-    path: Path,
-    result: PSDResult,
-    spectro: Spectrogram,
-    channels: tuple[int, ...],
-    name: str,
-    level_unit: str,
-    reference: float,
-) -> None:
-    """PNG: PSD level of every channel over log frequency, and the first channel's
-    spectrogram (time-decimated by averaging)."""
-    from matplotlib.figure import Figure
-
-    f = result.frequency_hz[1:]
-    fig = Figure(figsize=(9.0, 8.0), layout="constrained")
-    ax_p, ax_s = fig.subplots(2, 1)
-    with np.errstate(divide="ignore"):
-        for i, ch in enumerate(channels):
-            ax_p.semilogx(f, 10 * np.log10(result.psd[1:, i] / reference**2), lw=0.9,
-                          label=f"channel {ch}")  # fmt: skip
-    ax_p.set_xlabel("frequency / Hz")
-    ax_p.set_ylabel(f"PSD / {level_unit}")
-    ax_p.set_title(
-        f"{name}: {result.window} window, {result.resolution_hz:.3g} Hz bins, "
-        f"{result.averages} averages ({result.average})"
-    )
-    ax_p.grid(True, which="both", alpha=0.3)
-    ax_p.legend(loc="best", fontsize="small")
-    s = spectro.result()
-    fs_ = s.frequency_hz[1:]
-    levels = s.level_db(reference)[:, 1:, 0]
-    finite = levels[np.isfinite(levels)]
-    top = float(finite.max()) if finite.size else 0.0
-    # Cell edges: time between column centres, frequency half a bin either side.
-    t = s.time_s
-    dt = float(np.median(np.diff(t))) if t.size > 1 else 2 * t[0]
-    t_edges = np.concatenate([t - dt / 2, [t[-1] + dt / 2]])
-    df = fs_[0]
-    f_edges = np.concatenate([fs_ - df / 2, [fs_[-1] + df / 2]])
-    img = ax_s.pcolormesh(
-        t_edges, f_edges, levels.T, vmin=top - 90, vmax=top, cmap="magma", shading="flat"
-    )
-    ax_s.set_yscale("log")
-    ax_s.set_xlabel("time / s")
-    ax_s.set_ylabel("frequency / Hz")
-    most = int(s.segments_per_column.max())
-    ax_s.set_title(
-        f"channel {channels[0]}: {df:.3g} Hz bins, each column averages up to {most} segment(s)"
-    )
-    fig.colorbar(img, ax=ax_s, label=level_unit)
-    with atomic_output(path) as tmp:
-        fig.savefig(tmp, format="png", dpi=110)
 
 
 def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit: str) -> None:

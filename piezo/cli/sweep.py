@@ -29,9 +29,9 @@ from piezo.cli.response import (
     parse_frequency,
     print_fit,
     write_csv,
-    write_plot,
 )
 from piezo.errors import InputError, SpecError, UnitError
+from piezo.plots.response import write_plot
 from piezo.response.fit import (
     ResponseTable,
     parse_response_csv,

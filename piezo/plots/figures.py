@@ -15,8 +15,11 @@ from piezo.diagnostics.checker import ChannelDiagnostics
 from piezo.levels.meter import LevelResult
 from piezo.plots.style import (
     COLORMAP,
+    FONT_SIZES,
     INK,
+    SHADE,
     TRACES,
+    axis_label,
     figure,
     legend_below,
     plot_style,
@@ -83,12 +86,12 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
             ax.axvspan(
                 f[0] / 1.2,
                 r.lowest_content_hz,
-                color="#e4e6ea",
+                color=SHADE,
                 zorder=0,
                 label="no usable content" if r.lowest_content_hz > f[0] else None,
             )
-        ax.set_xlabel("frequency / Hz")
-        ax.set_ylabel(f"PSD / {_density_unit(level_unit)}")
+        ax.set_xlabel(axis_label("frequency", "Hz"))
+        ax.set_ylabel(axis_label("PSD", _density_unit(level_unit)))
         ax.set_title(f"Channel {ch.channel}: low-frequency roll-off ({r.status})")
         finite = level[np.isfinite(level)]
         if finite.size:
@@ -131,8 +134,8 @@ def level_history_figure(levels: LevelResult, channels: list[int], level_unit: s
                 **{**style, "linewidth": 1.8},
                 label=f"channel {ch}: LAeq per {h.interval_s:g} s",
             )
-        ax.set_xlabel("time / s")
-        ax.set_ylabel(f"level / {level_unit}")
+        ax.set_xlabel(axis_label("time", "s"))
+        ax.set_ylabel(axis_label("level", level_unit))
         ax.set_title("Level history")
         ax.set_xlim(0.0, float(end))
         finite = np.concatenate([h.LAF[np.isfinite(h.LAF)], h.LAeq[np.isfinite(h.LAeq)]])
@@ -150,28 +153,28 @@ def frontend_figure(fr: FrontendResponse) -> bytes:
         fig, ax = figure(6.6, 4.2)
         f = fr.frequency_hz
         ax.semilogx(f, fr.level_db, **trace(0), label="magnitude")
-        ax.axhspan(-1.0, 1.0, color="#e4e6ea", zorder=0)
+        ax.axhspan(-1.0, 1.0, color=SHADE, zorder=0)
         ax.axvline(sm.corner_hz, **{**trace(3), "linewidth": 0.9})
         ax.annotate(
             f" corner {sm.corner_hz:.3g} Hz",
             (sm.corner_hz, -3.0),
-            fontsize=8,
+            fontsize=FONT_SIZES["note"],
             color=INK,
             va="top",
         )
         finite = fr.level_db[np.isfinite(fr.level_db)]
         ax.set_ylim(max(-40.0, float(finite.min()) - 3.0), min(30.0, float(finite.max()) + 3.0))
-        ax.set_xlabel("frequency / Hz")
-        ax.set_ylabel("level re midband / dB")
+        ax.set_xlabel(axis_label("frequency", "Hz"))
+        ax.set_ylabel(axis_label("level re midband", "dB"))
         ax.set_title(f"Front-end response: {fr.name or fr.design}")
         ax.set_xlim(float(f[0]), float(f[-1]))
         twin = ax.twinx()
         twin.semilogx(f, fr.phase_deg, **trace(1), label="phase")
-        twin.set_ylabel("phase / degree")
+        twin.set_ylabel(axis_label("phase", "°"))
         twin.grid(False)
         twin.spines["right"].set_visible(True)
         lines = ax.get_lines()[:1] + twin.get_lines()[:1]
-        ax.legend(lines, [ln.get_label() for ln in lines], loc="lower right")
+        ax.legend(lines, [str(ln.get_label()) for ln in lines], loc="lower right")
         fig.subplots_adjust(right=1.0 - 0.75 / 6.6)
         return png_bytes(fig)
 
@@ -190,8 +193,8 @@ def psd_figure(psd: PSDResult, channels: list[int], reference: float, unit: str)
         fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
         for i, ch in enumerate(channels):
             ax.semilogx(f, level[:, i], **{**trace(i), "linewidth": 1.0}, label=f"channel {ch}")
-        ax.set_xlabel("frequency / Hz")
-        ax.set_ylabel(f"PSD / dB re ({_ref_text(reference, unit)})²/Hz")
+        ax.set_xlabel(axis_label("frequency", "Hz"))
+        ax.set_ylabel(axis_label("PSD", f"dB re ({_ref_text(reference, unit)})²/Hz"))
         ax.set_title(
             f"Power spectral density ({psd.resolution_hz:.3g} Hz bins, {psd.averages} averages)"
         )
@@ -242,8 +245,10 @@ def bands_figure(
         ax.set_xticks(x[::step], labels[::step], rotation=0)
         ax.set_xlim(-0.6, n - 0.4)
         ax.grid(axis="x", visible=False)
-        ax.set_xlabel(f"1/{bands.fraction}-octave band, nominal mid-band frequency / Hz")
-        ax.set_ylabel(f"band level / {level_unit}")
+        ax.set_xlabel(
+            axis_label(f"1/{bands.fraction}-octave band, nominal mid-band frequency", "Hz")
+        )
+        ax.set_ylabel(axis_label("band level", level_unit))
         ax.set_title("Band levels (Leq per band)")
         if finite.size:
             ax.set_ylim(floor, float(finite.max()) + 5.0)
@@ -270,17 +275,6 @@ def spectrogram_figure(
     f = sg.frequency_hz[1:]
     t = sg.time_s
 
-    # Cell edges: halfway between centres, extended by half a step at the ends.
-    def edges(c: np.ndarray, log: bool) -> np.ndarray:
-        if c.size == 1:
-            return (
-                np.array([c[0] * 0.9, c[0] * 1.1]) if log else np.array([c[0] - 0.5, c[0] + 0.5])
-            )
-        v = np.log(c) if log else c
-        mid = (v[1:] + v[:-1]) / 2
-        e = np.concatenate([[2 * v[0] - mid[0]], mid, [2 * v[-1] - mid[-1]]])
-        return np.exp(e) if log else e
-
     finite = level[np.isfinite(level)]
     top = float(finite.max()) if finite.size else 0.0
     with plot_style():
@@ -298,11 +292,11 @@ def spectrogram_figure(
         ax.set_yscale("log")
         ax.set_ylim(max(float(f[0]), 10.0), float(f[-1]))
         ax.grid(False, which="both")  # after the scale change, which makes new ticks
-        ax.set_xlabel("time / s")
-        ax.set_ylabel("frequency / Hz")
+        ax.set_xlabel(axis_label("time", "s"))
+        ax.set_ylabel(axis_label("frequency", "Hz"))
         ax.set_title(f"Channel {channel}: spectrogram")
         bar = fig.colorbar(mesh, ax=ax, pad=0.015, fraction=0.05)
-        bar.set_label(f"PSD / dB re ({_ref_text(reference, unit)})²/Hz")
+        bar.set_label(axis_label("PSD", f"dB re ({_ref_text(reference, unit)})²/Hz"))
         bar.outline.set_visible(False)
         fig.subplots_adjust(right=0.9)
         return png_bytes(fig)

@@ -103,9 +103,9 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
     if run.bands is not None:
         figures["bands"] = plots.bands_figure(run.bands, channels, ref, level_unit)
     if run.spectrogram is not None:
-        for i, ch in enumerate(channels):
-            figures[f"spectrogram_{ch}"] = plots.spectrogram_figure(
-                run.spectrogram, i, ch, ref, unit
+        for i, channel in enumerate(channels):
+            figures[f"spectrogram_{channel}"] = plots.spectrogram_figure(
+                run.spectrogram, i, channel, ref, unit
             )
     if run.frontend is not None:
         figures["frontend"] = plots.frontend_figure(run.frontend)

@@ -181,14 +181,14 @@ def finite(value: float | None, digits: int | None = None) -> float | None:
     return round(value, digits) if digits is not None else value
 
 
-#: Levels shown in the report's table, in this order.
+#: Levels shown in the report's table, in this order (the order of ``piezo levels``).
 LEVEL_NAMES = (
+    "LZeq",
     "LAeq",
     "LCeq",
-    "LZeq",
     "LAFmax",
-    "LAFmin",
     "LASmax",
+    "LAFmin",
     "LASmin",
     "LCpeak",
     "LZpeak",

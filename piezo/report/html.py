@@ -1,7 +1,18 @@
-"""Render a report document to one self-contained HTML page (Jinja2, autoescaped).
+"""Render piezo's HTML pages: the capture report and the batch pages (Jinja2, autoescaped).
 
-The page embeds its style sheet and its figures (PNG as base64 data URIs): it needs no
-network and no other file, and prints on A4.
+One template system for every page: the templates in ``piezo/report/templates/`` share
+one frame (``_page.html.j2``), one set of pieces (``_macros.html.j2``: severity badges,
+figures) and one style sheet (``piezo.css``). Each page embeds the style sheet and its
+figures (PNG as base64 data URIs): it needs no network and no other file, and prints on A4.
+
+Examples
+--------
+>>> page = render_page("batch_capture.html.j2", row={"file": "<a>.wav", "serial": "",
+...     "verdict": "pass", "error": None, "content_sha256": "0" * 64, "failed_limits": [],
+...     "warnings": [], "not_evaluable": []}, spec={"name": "lot", "sha256": "1" * 64},
+...     lines=[], png=None)
+>>> "&lt;a&gt;.wav" in page and "<a>.wav" not in page
+True
 """
 
 from __future__ import annotations
@@ -16,9 +27,13 @@ from typing import Any
 import jinja2
 from markupsafe import Markup
 
-__all__ = ["data_uri", "render_html"]
+from piezo import __version__
+
+__all__ = ["data_uri", "environment", "render_html", "render_page"]
 
 _TEMPLATES = resources.files("piezo.report") / "templates"
+#: The one style sheet of every page.
+STYLESHEET = "piezo.css"
 
 
 def _load(name: str) -> str:
@@ -26,7 +41,13 @@ def _load(name: str) -> str:
 
 
 def _fmt(value: Any, spec: str = "") -> str:
-    """Format a number with ``spec``; None and non-finite values show as a dash."""
+    """Format a number with ``spec``; None and non-finite values show as a dash.
+
+    Examples
+    --------
+    >>> _fmt(-0.0001, ".3f"), _fmt(None), _fmt(float("nan"), ".4g"), _fmt(12345.678, ".4g")
+    ('0.000', '—', '—', '1.235e+04')
+    """
     if value is None:
         return "—"
     if isinstance(value, bool):
@@ -45,7 +66,9 @@ def _fmt(value: Any, spec: str = "") -> str:
     return str(value)
 
 
-def _environment() -> jinja2.Environment:
+def environment() -> jinja2.Environment:
+    """The Jinja2 environment of every piezo page: package templates, autoescape on,
+    a missing value an error (StrictUndefined), the ``fmt`` number filter."""
     env = jinja2.Environment(
         loader=jinja2.FunctionLoader(lambda name: _load(name)),
         autoescape=True,  # every value is escaped unless marked safe in code
@@ -58,18 +81,28 @@ def _environment() -> jinja2.Environment:
     return env
 
 
-def data_uri(png: bytes) -> str:
-    """A PNG as a ``data:`` URI for an ``<img src>``."""
+def data_uri(png: bytes | None) -> str | None:
+    """A PNG as a ``data:`` URI for an ``<img src>`` (None stays None).
+
+    Examples
+    --------
+    >>> data_uri(b"\\x89PNG")
+    'data:image/png;base64,iVBORw=='
+    """
+    if png is None:
+        return None
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
-def render_html(doc: Mapping[str, Any], figures: Mapping[str, bytes]) -> str:
-    """The report page for ``doc`` (the JSON document) with ``figures`` (name -> PNG).
+def render_page(template: str, **context: Any) -> str:
+    """Render the page ``template`` with ``context``, the shared style sheet and the
+    piezo version. Only the project's own style sheet is inserted unescaped; every value
+    of ``context`` is escaped by the template engine."""
+    page = environment().get_template(template)
+    return page.render(css=Markup(_load(STYLESHEET)), version=__version__, **context)
 
-    Only the project's own style sheet is inserted unescaped; every value of ``doc`` is
-    escaped by the template engine.
-    """
-    env = _environment()
-    template = env.get_template("report.html.j2")
+
+def render_html(doc: Mapping[str, Any], figures: Mapping[str, bytes]) -> str:
+    """The report page for ``doc`` (the JSON document) with ``figures`` (name -> PNG)."""
     uris = {name: data_uri(png) for name, png in figures.items()}
-    return template.render(doc=doc, figures=uris, css=Markup(_load("report.css")))
+    return render_page("report.html.j2", doc=doc, figures=uris)

@@ -7,6 +7,7 @@ import functools
 import io
 import json
 import os
+import re
 import xml.etree.ElementTree as ET
 
 import html5lib
@@ -25,9 +26,12 @@ from piezo.batch.outputs import (
     write_outputs,
 )
 from piezo.batch.runner import expand_inputs, run_batch
-from piezo.batch.spec import parse_spec
+from piezo.batch.spec import load_spec, parse_spec
 from piezo.io.atomic import write_bytes_atomic
+from piezo.plots.style import LIMIT_STYLES, capture_figures
 from tests import batch_fakes as fakes
+from tests.chromium import CHROMIUM, image_layout
+from tests.paths import RECORDINGS
 
 SPEC = parse_spec(fakes.SPEC_TEXT)
 
@@ -132,12 +136,100 @@ def test_capture_reports_written_and_linked(rows, tmp_path):
         assert row["verdict"] in page
 
 
+# ---------------------------------------------------------------------------------------
+# Defect: batch pages. The golden curve's legend read "golden (golden)"; warn-only limits
+# showed no margin; the histograms were small (450 px) and drew no warn limits.
+
+#: The fake spec with a warn band inside the fail band of the sensitivity.
+WARN_SPEC = parse_spec(
+    fakes.SPEC_TEXT.replace(
+        "[metrics.sensitivity]\nnominal = -10.0\nlower_rel = -3.0\nupper_rel = 3.0\n",
+        "[metrics.sensitivity]\nnominal = -10.0\n"
+        "[[metrics.sensitivity.limits]]\nlower_rel = -3.0\nupper_rel = 3.0\n"
+        "[[metrics.sensitivity.limits]]\nlower_rel = -1.0\nupper_rel = 1.0\n"
+        'severity = "warn"\n',
+    )
+)
+
+
+def _vertical_lines(ax):
+    """x position and colour of every vertical line of ``ax``."""
+    from matplotlib.colors import to_hex
+
+    out = set()
+    for line in ax.get_lines():
+        x = list(line.get_xdata())
+        if len(x) == 2 and x[0] == x[1]:
+            out.add((round(float(x[0]), 9), to_hex(line.get_color())))
+    return out
+
+
+def test_histograms_are_large_and_draw_fail_and_warn_limits(rows):
+    assert len(WARN_SPEC.metrics[0].limits) == 2  # the spec text above did change
+    with capture_figures() as figs:
+        summary_html_text(rows, WARN_SPEC)
+    assert len(figs) == 3  # one histogram per metric
+    for fig in figs:
+        width_px = fig.get_size_inches()[0] * fig.dpi
+        assert width_px >= 900  # as wide as the report's figures (6.6 in at 150 dpi)
+    fail, warn = LIMIT_STYLES["fail"]["color"], LIMIT_STYLES["warn"]["color"]
+    sensitivity, _, noise = (fig.axes[0] for fig in figs)
+    assert _vertical_lines(sensitivity) == {
+        (-13.0, fail), (-7.0, fail), (-11.0, warn), (-9.0, warn)
+    }  # fmt: skip
+    assert _vertical_lines(noise) == {(-60.0, warn)}  # a warn-only limit is drawn too
+    legend = [t.get_text() for t in sensitivity.figure.legends[0].get_texts()]
+    assert "fail limit" in legend and "warn limit" in legend
+
+
+def test_warn_only_limit_shows_its_margin(rows):
+    row = next(r for r in rows if r["metrics"].get("noise_floor") is not None)
+    page = outputs.capture_report_html(row, SPEC)
+    html5lib.HTMLParser(strict=True).parse(page)
+    cells = re.search(r"<td>noise_floor</td>(.*?)</tr>", page, re.S).group(1)
+    expected = -60.0 - row["metrics"]["noise_floor"]  # upper warn limit − value
+    assert f"{expected:.3g}" in cells and "to warn limit" in cells
+    sens = re.search(r"<td>sensitivity</td>(.*?)</tr>", page, re.S).group(1)
+    assert "to fail limit" in sens
+
+
+def test_golden_curve_legend_names_it_once():
+    spec = load_spec(RECORDINGS / "pd27-spec.toml")
+    golden = next(m for m in spec.metrics if m.kind == "golden_deviation")
+    assert golden.name == "golden"  # the case that read "golden (golden)"
+    g = golden.params["golden_data"]
+    row = {
+        "file": "u.flac", "serial": "1", "verdict": "pass", "error": None,
+        "content_sha256": "0" * 64, "metrics": {}, "failed_limits": [], "warnings": [],
+        "not_evaluable": [],
+    }  # fmt: skip
+    data = {"response": {"frequency_hz": g["frequency_hz"], "magnitude_db": g["magnitude_db"]}}
+    with capture_figures() as figs:
+        page = outputs.capture_report_html(row, spec, data)
+    html5lib.HTMLParser(strict=True).parse(page)
+    (fig,) = figs
+    legend = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert legend == ["measured", "golden response"]
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed: page not rendered")
+def test_summary_renders_with_full_width_histograms(rows, tmp_path):
+    page = summary_html_text(rows, SPEC)
+    sizes, console = image_layout(page, tmp_path)
+    assert console == []
+    assert len(sizes) == 3
+    for w, h, shown in sizes:
+        # Laid out at the text width of the page (62 rem at 15 px less the padding;
+        # the window is 1200 px wide), not as a thumbnail.
+        assert w >= 900 and h > 0 and shown >= 800, (w, h, shown)
+
+
 def test_outputs_byte_identical_and_atomic(rows, tmp_path, monkeypatch):
     write_outputs(tmp_path, rows, SPEC)
     first = {name: (tmp_path / name).read_bytes() for name in outputs.RESULT_FILES}
     write_outputs(tmp_path, list(rows), SPEC)
-    for name in ("results.csv", "results.json", "junit.xml"):
-        assert (tmp_path / name).read_bytes() == first[name]
+    for name in ("results.csv", "results.json", "junit.xml", "summary.html"):
+        assert (tmp_path / name).read_bytes() == first[name]  # figures included
 
     # A failure while replacing leaves the previous complete file and no temporary file.
     def broken_replace(src, dst):

@@ -5,9 +5,7 @@ from __future__ import annotations
 import base64
 import json
 import re
-import shutil
 import struct
-import subprocess
 
 import html5lib
 import jinja2
@@ -18,9 +16,9 @@ import referencing
 import soundfile as sf
 
 from piezo.report import render_html
+from tests.chromium import CHROMIUM, image_layout
 from tests.paths import RECORDINGS, REPO
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 FS = 48000
 
 
@@ -110,6 +108,43 @@ def test_embedded_figures_are_real_pngs(reports):
     assert all(w >= 600 and h >= 200 for w, h in sizes)
 
 
+def test_level_rows_in_the_order_of_the_levels_command(reports):
+    from piezo.cli.levels import LEVEL_KEYS
+
+    page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
+    table = page[page.index(">Levels</h2>") :]
+    table = table[: table.index("</table>")]
+    rows = re.findall(r"<tr><td>(L[A-Za-z0-9]+)</td>", table)
+    assert rows and rows == [k for k in LEVEL_KEYS if k in rows]
+
+
+def test_badges_read_the_same_on_every_page(reports):
+    from piezo.report.html import render_page
+
+    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    badges = set(re.findall(r'<span class="sev sev-([a-z-]+)">([^<]*)</span>', page))
+    assert {"ok", "fail"} <= {cls for cls, _ in badges}
+    # One form: symbol, space, the JSON word in lower case; the style sheet sets every
+    # badge in capitals ("✓ OK", "! WARN", "✗ FAIL").
+    symbols = {"ok": "✓", "pass": "✓", "warn": "!", "fail": "✗", "not-evaluable": "?"}
+    for cls, text in badges:
+        assert text == f"{symbols[cls]} {cls.replace('-', ' ')}"
+    css = re.search(r"<style>(.*?)</style>", page, re.S).group(1)
+    assert re.search(r"\.sev \{[^}]*text-transform: uppercase", css)
+    # The batch pages embed the same style sheet.
+    row = {
+        "file": "u.wav", "serial": "", "verdict": "warn", "error": None,
+        "content_sha256": "0" * 64, "failed_limits": [], "warnings": ["w"],
+        "not_evaluable": [],
+    }  # fmt: skip
+    batch = render_page(
+        "batch_capture.html.j2", row=row, spec={"name": "", "sha256": "1" * 64}, lines=[], png=None
+    )
+    html5lib.HTMLParser(strict=True).parse(batch)
+    assert re.search(r"<style>(.*?)</style>", batch, re.S).group(1) == css
+    assert '<span class="sev sev-warn">! warn</span>' in batch
+
+
 def test_cautions_are_stated(reports):
     doc = json.loads((reports / "pump-bench.report.json").read_text(encoding="utf-8"))
     page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
@@ -170,51 +205,11 @@ def test_report_cli_errors(cli, tmp_path):
 @pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed: page not rendered")
 def test_page_renders_in_headless_chromium(reports, tmp_path):
     page = (reports / "pump-bench.report.html").read_text(encoding="utf-8")
-    # A probe appended to a copy of the page writes each image's decoded and laid-out
-    # size into the DOM once the page has loaded; the report itself has no script.
-    probe = (
-        "<script>window.addEventListener('load', () => { document.body.setAttribute("
-        "'data-sizes', [...document.images].map(i => i.naturalWidth + 'x' + "
-        "i.naturalHeight + ':' + Math.round(i.getBoundingClientRect().width)).join(' ')); "
-        "});</script>"
-    )
-    probed = tmp_path / "probed.html"
-    probed.write_text(page.replace("</body>", probe + "</body>"), encoding="utf-8")
-    result = subprocess.run(
-        [
-            CHROMIUM,
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            f"--user-data-dir={tmp_path / 'profile'}",
-            "--enable-logging=stderr",
-            "--v=0",
-            "--virtual-time-budget=5000",
-            "--window-size=1200,3000",
-            "--dump-dom",
-            probed.as_uri(),
-        ],
-        capture_output=True,
-        text=True,
-        timeout=120,
-        check=False,
-    )
-    assert result.returncode == 0, result.stderr[-2000:]
-    console = [line for line in result.stderr.splitlines() if ":CONSOLE" in line]
+    sizes, console = image_layout(page, tmp_path)
     assert console == []
-    m = re.search(r'data-sizes="([^"]*)"', result.stdout)
-    assert m, "the page did not finish loading"
-    sizes = m.group(1).split()
     assert len(sizes) == page.count("<img ")
-    for item in sizes:
-        natural, shown = item.split(":")
-        w, h = (int(v) for v in natural.split("x"))
-        assert w > 0 and h > 0 and int(shown) > 0, item
+    for w, h, shown in sizes:
+        assert w > 0 and h > 0 and shown > 0, (w, h, shown)
 
 
 def test_frontend_design_adds_its_response(cli, tmp_path):
