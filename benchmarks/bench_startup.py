@@ -38,13 +38,11 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-import numpy as np
-import soundfile as sf
-
-sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_levels import write_test_file  # one generator for the test files
-
-REPO = Path(__file__).resolve().parent.parent
+# This process imports no numpy, soundfile or piezo: a child's peak RSS as the kernel
+# reports it includes the pages of the parent it was forked from, so the parent stays
+# small. Test files are written by child processes.
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parent
 
 #: The seventeen commands of ``piezo --help`` (names only: the minimal app's help lists
 #: them with a one-line help of similar length).
@@ -128,29 +126,37 @@ def measure(argv: list[str], *, repeat: int) -> Run:
     return Run(statistics.median(walls), statistics.median(cpus), max(rss))
 
 
+#: Writes ``argv[1]`` (``argv[2]`` seconds) with bench_levels' generator unless a file of
+#: that length is there already (one generator for the benchmark files).
+WRITER = """\
+import sys
+from pathlib import Path
+
+import soundfile as sf
+
+sys.path.insert(0, sys.argv[3])
+from bench_levels import write_test_file
+
+path, seconds = Path(sys.argv[1]), float(sys.argv[2])
+if not path.exists() or sf.info(str(path)).frames != round(seconds * 48000):
+    print(f"  writing {path} ({seconds / 60:.1f} min) ...", flush=True)
+    write_test_file(path, seconds)
+"""
+
+
 def data_file(folder: Path, name: str, seconds: float) -> Path:
     """A 48 kHz 24-bit mono test file, generated once (fixed seed) and kept."""
     path = folder / name
-    if not path.exists() or sf.info(str(path)).frames != round(seconds * 48000):
-        print(f"  writing {path} ({seconds / 60:.0f} min) ...", flush=True)
-        write_test_file(path, seconds)
-    return path
-
-
-def short_capture(folder: Path) -> Path:
-    path = folder / "capture-2s.wav"
-    if not path.exists():
-        fs = 48000
-        t = np.arange(2 * fs) / fs
-        rng = np.random.default_rng(12)
-        x = 0.1 * np.sin(2 * np.pi * 1000 * t) + 0.01 * rng.standard_normal(t.size)
-        sf.write(str(path), x, fs, subtype="PCM_24")
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    subprocess.run(
+        [sys.executable, "-c", WRITER, str(path), str(seconds), str(HERE)], check=True, env=env
+    )
     return path
 
 
 def report(label: str, run: Run, floor: Run, target: float) -> None:
     wall, cpu = run.wall_s / floor.wall_s, run.cpu_s / floor.cpu_s
-    verdict = "ok" if min(wall, cpu) <= target else "OVER"
+    verdict = "ok" if cpu <= target else "OVER"  # judged on CPU time, the steadier ratio
     print(
         f"{label:<44} {run.wall_s:7.2f} s {run.cpu_s:7.2f} s cpu {run.rss_mb:6.0f} MB | "
         f"floor {floor.wall_s:6.2f} s {floor.cpu_s:6.2f} s cpu | "
@@ -188,7 +194,7 @@ def main() -> None:
         report("piezo --version vs minimal typer app", version, base, 1.5)
 
         print("\n2. a 2-s capture")
-        capture = short_capture(data)
+        capture = data_file(data, "capture-2s.wav", 2.0)
         measure([*piezo, "levels", str(capture)], repeat=1)  # numba cache filled
         floor = measure([py, str(reader), str(capture)], repeat=args.repeat)
         run = measure([*piezo, "levels", str(capture)], repeat=args.repeat)
