@@ -16,6 +16,7 @@ import pytest
 import soundfile as sf
 
 from piezo import __version__
+from piezo._kernels.cache import cache_folder
 from piezo.cli import COMMANDS, _load
 from piezo.tone.calibrator import calibrator_pressure_pa
 from tests.paths import REPO
@@ -41,8 +42,8 @@ def run_piezo(*args, env=None, **kwargs):
     )
 
 
-def imported_top_levels(*args):
-    """Top-level packages ``piezo ARGS`` has imported when it exits."""
+def imported_top_levels(*args, env=None):
+    """Modules ``piezo ARGS`` has imported when it exits."""
     probe = textwrap.dedent(
         f"""
         import runpy, sys
@@ -60,7 +61,7 @@ def imported_top_levels(*args):
         text=True,
         check=False,
         cwd=REPO.parent,
-        env={**os.environ, "PYTHONPATH": str(REPO), "COLUMNS": "80"},
+        env={**os.environ, "PYTHONPATH": str(REPO), "COLUMNS": "80", **(env or {})},
     )
     (line,) = [ln for ln in r.stderr.splitlines() if ln.startswith("MODULES ")]
     return set(line.split()[1:])
@@ -110,13 +111,20 @@ def test_a_command_loads_only_its_own_module():
     assert not cli_modules & {"piezo.cli.batch", "piezo.cli.report", "piezo.cli.sweep"}
 
 
-def test_levels_loads_no_plotting_or_templates(tmp_path):
+def test_levels_loads_no_plotting_templates_or_filter_design(tmp_path):
     path = tmp_path / "short.wav"
     fs = 8000
     sf.write(str(path), 0.1 * np.sin(2 * np.pi * 1000 * np.arange(fs) / fs), fs)
-    loaded = imported_top_levels("levels", path, "--json")
+    # A design cache of this test's own; the compiled kernels stay where they are.
+    env = {"PIEZO_CACHE_DIR": str(tmp_path / "cache"), "NUMBA_CACHE_DIR": str(cache_folder())}
+    first = imported_top_levels("levels", path, "--json", env=env)
+    assert "scipy.optimize" in first  # the weighting was designed for 8 kHz ...
+    assert list((tmp_path / "cache" / "designs").glob("weighting-*.npz"))
+    loaded = imported_top_levels("levels", path, "--json", env=env)
     assert "piezo.levels.meter" in loaded  # it did measure
     assert not {m.split(".")[0] for m in loaded} & {"matplotlib", "jinja2"}
+    # ... and is read back from the cache: no filter design code is loaded.
+    assert not {"scipy.optimize", "scipy.signal"} & loaded
 
 
 def test_python_dash_m_works(tmp_path):
