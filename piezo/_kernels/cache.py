@@ -63,10 +63,15 @@ def cache_folder() -> Path:
     numba_dir = os.environ.get("NUMBA_CACHE_DIR")
     if numba_dir:
         return Path(numba_dir)
+    return _piezo_cache("numba")
+
+
+def _piezo_cache(name: str) -> Path:
+    """``$PIEZO_CACHE_DIR/<name>`` when set, else ``<platform cache>/piezo/<name>``."""
     piezo_dir = os.environ.get("PIEZO_CACHE_DIR")
     if piezo_dir:
-        return Path(piezo_dir) / "numba"
-    return _platform_cache_home() / "piezo" / "numba"
+        return Path(piezo_dir) / name
+    return _platform_cache_home() / "piezo" / name
 
 
 @cache
@@ -117,10 +122,7 @@ def design_folder() -> Path:
     >>> Path(piezo.__file__).parent in design_folder().parents
     False
     """
-    piezo_dir = os.environ.get("PIEZO_CACHE_DIR")
-    if piezo_dir:
-        return Path(piezo_dir) / "designs"
-    return _platform_cache_home() / "piezo" / "designs"
+    return _piezo_cache("designs")
 
 
 def cached_arrays(name: str, key: str, compute: Callable[[], dict[str, Any]]) -> dict[str, Any]:
