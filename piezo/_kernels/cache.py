@@ -14,11 +14,18 @@ piezo chooses the folder itself, in this order:
 
 When the chosen folder cannot be created or written, kernels are compiled in every
 process (about 1-3 s) and nothing is written anywhere.
+
+Filter designs that need an optimiser or scipy's filter design (the IEC 61672-1 weighting
+fit, for instance) are kept the same way, per sample rate, by :func:`cached_arrays` in
+``<dir>/designs`` (``$PIEZO_CACHE_DIR/designs`` when set): a later process at the same rate
+reads a few hundred bytes instead of importing and running the design code.
 """
 
 from __future__ import annotations
 
 import contextlib
+import hashlib
+import io
 import os
 import sys
 import tempfile
@@ -27,7 +34,10 @@ from functools import cache
 from pathlib import Path
 from typing import Any
 
-__all__ = ["cache_folder", "compile_cached"]
+from piezo.errors import OutputError
+from piezo.io.atomic import write_bytes_atomic
+
+__all__ = ["cache_folder", "cached_arrays", "compile_cached", "design_folder"]
 
 
 def _platform_cache_home() -> Path:
@@ -53,10 +63,15 @@ def cache_folder() -> Path:
     numba_dir = os.environ.get("NUMBA_CACHE_DIR")
     if numba_dir:
         return Path(numba_dir)
+    return _piezo_cache("numba")
+
+
+def _piezo_cache(name: str) -> Path:
+    """``$PIEZO_CACHE_DIR/<name>`` when set, else ``<platform cache>/piezo/<name>``."""
     piezo_dir = os.environ.get("PIEZO_CACHE_DIR")
     if piezo_dir:
-        return Path(piezo_dir) / "numba"
-    return _platform_cache_home() / "piezo" / "numba"
+        return Path(piezo_dir) / name
+    return _platform_cache_home() / "piezo" / name
 
 
 @cache
@@ -95,3 +110,56 @@ def compile_cached(func: Callable[..., Any], **options: Any) -> Any:
         return numba.njit(cache=False, **options)(func)
     with _numba_cache_dir(folder):
         return numba.njit(cache=True, **options)(func)
+
+
+def design_folder() -> Path:
+    """The folder for cached filter designs (it may not exist yet).
+
+    Examples
+    --------
+    >>> import piezo
+    >>> from pathlib import Path
+    >>> Path(piezo.__file__).parent in design_folder().parents
+    False
+    """
+    return _piezo_cache("designs")
+
+
+def cached_arrays(name: str, key: str, compute: Callable[[], dict[str, Any]]) -> dict[str, Any]:
+    """``compute()`` (a dict of float arrays), kept in :func:`design_folder` under ``key``.
+
+    ``key`` must change whenever the result would (the caller includes its inputs and a
+    digest of the code that computes it). A missing, unreadable or foreign file is
+    recomputed; when the folder cannot be written the result is simply not kept. Files are
+    read without pickle and replaced atomically, so concurrent processes see a whole file
+    or none.
+
+    Examples
+    --------
+    >>> import numpy as np, os, tempfile
+    >>> calls = []
+    >>> def design():
+    ...     calls.append(1)
+    ...     return {"sos": np.array([[1.0, 0.0, 0.0, 1.0, -0.5, 0.0]])}
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     os.environ["PIEZO_CACHE_DIR"] = tmp
+    ...     first = cached_arrays("example", "fs=48000", design)
+    ...     again = cached_arrays("example", "fs=48000", design)
+    ...     del os.environ["PIEZO_CACHE_DIR"]
+    >>> len(calls), bool(np.array_equal(first["sos"], again["sos"]))
+    (1, True)
+    """
+    import numpy as np
+
+    digest = hashlib.sha256(key.encode()).hexdigest()[:24]
+    path = design_folder() / f"{name}-{digest}.npz"
+    with contextlib.suppress(OSError, ValueError, KeyError):
+        with np.load(path, allow_pickle=False) as stored:
+            if str(stored["_key"]) == key:
+                return {k: stored[k] for k in stored.files if k != "_key"}
+    arrays = compute()
+    buffer = io.BytesIO()
+    np.savez(buffer, _key=np.array(key), **arrays)
+    with contextlib.suppress(OutputError):  # a cache that cannot be written is not kept
+        write_bytes_atomic(path, buffer.getvalue())
+    return arrays

@@ -1,50 +1,265 @@
 """The ``piezo`` command line.
 
 Each command group lives in its own module under :mod:`piezo.cli` and exposes
-``register(app)``. :func:`main` is the console-script entry point: it runs the typer app
-and turns a :class:`~piezo.errors.PiezoError` into one line on stderr.
+``register(app)``. :data:`COMMANDS` lists every command with its module and one-line help:
+``piezo --help`` is rendered from that table alone, and a command's module is imported only
+when that command runs (or shows its own ``--help``), so start-up does not pay for the
+analysis stack. :func:`main` is the console-script entry point: it runs the typer app and
+turns a :class:`~piezo.errors.PiezoError`, a usage mistake or an interrupt into one line on
+stderr.
 
 Exit codes (documented in the README): 0 success; 1 the analysis ran and found a failure
 (``check``, ``batch``); 2 unusable input or options; 3 an internal error (a bug: please
-report it with the ``--debug`` traceback).
+report it with the ``--debug`` traceback); 130 interrupted (Ctrl-C).
+
+Help text is plain text: square brackets are shown as written (no rich markup) and the
+lines of a paragraph are joined so that the terminal reflows them.
 """
 
 from __future__ import annotations
 
+import difflib
+import errno
 import importlib
+import importlib.util
+import inspect
+import re
 import sys
-from typing import Annotated
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Annotated, Any
 
 import typer
+import typer.core
+import typer.main
+from typer.core import TyperArgument, TyperCommand, TyperGroup
+
+try:  # recent typer carries its own copy of click: its exceptions are the ones raised
+    from typer._click import exceptions as click_errors
+    from typer._click.utils import PacifyFlushWrapper
+except ImportError:  # older typer runs on click itself
+    from click import exceptions as click_errors  # type: ignore[no-redef]
+    from click.utils import PacifyFlushWrapper  # type: ignore[no-redef]
 
 from piezo import __version__
-from piezo.cli.exits import EXIT_FAILED, EXIT_INTERNAL, EXIT_OK, EXIT_USAGE
+from piezo.cli.exits import (
+    EXIT_FAILED,
+    EXIT_INTERNAL,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
+    EXIT_USAGE,
+)
 from piezo.errors import PiezoError
 
-__all__ = ["EXIT_FAILED", "EXIT_INTERNAL", "EXIT_OK", "EXIT_USAGE", "app", "main"]
+__all__ = [
+    "COMMANDS",
+    "COMMAND_MODULES",
+    "EXIT_FAILED",
+    "EXIT_INTERNAL",
+    "EXIT_INTERRUPTED",
+    "EXIT_OK",
+    "EXIT_USAGE",
+    "Command",
+    "app",
+    "main",
+]
 
 
-#: Command modules, in the order their commands are listed by ``piezo --help``.
-COMMAND_MODULES = (
-    "info",
-    "calibrate",
-    "levels",
-    "spectrum",
-    "bands",
-    "tone",
-    "sweep",
-    "response",
-    "frontend",
-    "check",
-    "report",
-    "batch",
-    "limits",
-    "demo",
+@dataclass(frozen=True)
+class Command:
+    """One top-level command: its name, the module under :mod:`piezo.cli` whose
+    ``register(app)`` adds it, and the one-line help ``piezo --help`` lists."""
+
+    name: str
+    module: str
+    help: str
+
+
+#: Every top-level command, in the order ``piezo --help`` lists them. The help is the one
+#: the module registers (a test keeps the two equal); a module not present in this
+#: installation is left out of the listing.
+COMMANDS: tuple[Command, ...] = (
+    Command("info", "info", "Format, rate, duration and peak/RMS per channel (dBFS, Pa, dB SPL)."),
+    Command(
+        "calibrate",
+        "calibrate",
+        "Sensitivity (mV/Pa, dBV/Pa) from a 94 or 114 dB calibrator capture.",
+    ),
+    Command(
+        "levels",
+        "levels",
+        "Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "
+        "LZpeak, LAE, LAF5..LAF95 (IEC 61672-1).",
+    ),
+    Command(
+        "spectrum", "spectrum", "Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG."
+    ),
+    Command("bands", "bands", "Octave and fractional-octave band levels (IEC 61260-1 class 1)."),
+    Command("tone", "tone", "Test-tone frequency, level, THD, THD+N, SINAD and SNR."),
+    Command("sweep", "sweep", "Swept-sine measurement: make the stimulus, analyse the capture."),
+    Command(
+        "response",
+        "response",
+        "Frequency response H1 = Gxy/Gxx with coherence from a two-channel recording.",
+    ),
+    Command(
+        "fit-frontend",
+        "response",
+        "Fit sensitivity, corner (1st/2nd order) and resonance to a response CSV.",
+    ),
+    Command(
+        "frontend",
+        "frontend",
+        "Sensitivity, corner, bands, phase, noise budget and self-noise of a design.",
+    ),
+    Command(
+        "simulate", "frontend", "Shape a recording (pressure or charge) as a front-end would."
+    ),
+    Command(
+        "equalize", "frontend", "Undo a front-end's low-frequency roll-off down to a lower corner."
+    ),
+    Command(
+        "impedance", "impedance", "impedance of an element: equivalent circuit, fs, fp, Qm, k_eff"
+    ),
+    Command(
+        "ringdown", "ringdown", "decaying modes of taps and ring-downs: frequency, damping, Q"
+    ),
+    Command(
+        "check",
+        "check",
+        "Capture diagnostics: clipping, headroom, DC, dropouts, hum, roll-off, noise floor. "
+        "Exit 1 when a channel fails.",
+    ),
+    Command(
+        "report",
+        "report",
+        "Write an HTML report (plots embedded, printable, offline) and its JSON per file.",
+    ),
+    Command(
+        "batch",
+        "batch",
+        "Judge every capture of a lot against a limit spec: verdicts, yield, "
+        "CSV/JSON/JUnit/HTML results.",
+    ),
+    Command("limits", "limits", "Limit specs for batch checks: derive limits from golden units."),
+    Command("demo", "demo", "Write the synthetic demo recordings and their profiles."),
 )
+
+#: The command modules, each once, in listing order.
+COMMAND_MODULES: tuple[str, ...] = tuple(dict.fromkeys(c.module for c in COMMANDS))
+
+_BY_NAME = {c.name: c for c in COMMANDS}
+
+#: Module -> the click commands its ``register(app)`` added, by name.
+_loaded: dict[str, dict[str, Any]] = {}
+
+
+def _module_present(module: str) -> bool:
+    return importlib.util.find_spec(f"piezo.cli.{module}") is not None
+
+
+def _plain_help(text: str | None) -> str | None:
+    """Help text as plain text for rich: markup escaped, paragraph lines joined.
+
+    A paragraph whose lines form a list or an indented block (or that starts with click's
+    ``\\b`` marker) keeps its line breaks.
+    """
+    if not text:
+        return text
+    from rich.markup import escape
+
+    paragraphs = []
+    for paragraph in inspect.cleandoc(text).split("\n\n"):
+        lines = paragraph.splitlines()
+        keep = paragraph.startswith("\b") or any(
+            re.match(r"\s|[-*•] |\d+[.)] ", line) for line in lines[1:]
+        )
+        paragraphs.append(escape(paragraph if keep else " ".join(ln.strip() for ln in lines)))
+    return "\n\n".join(paragraphs)
+
+
+def _plain_command(command: Any) -> None:
+    command.help = _plain_help(command.help)
+    command.short_help = _plain_help(command.short_help)
+    command.epilog = _plain_help(command.epilog)
+    for param in command.params:
+        # click options and typer's arguments carry a help text; click's arguments do not.
+        if getattr(param, "help", None):
+            param.help = _plain_help(param.help)
+    if isinstance(command, TyperGroup):
+        for sub in command.commands.values():
+            _plain_command(sub)
+
+
+def _load(module: str) -> dict[str, Any]:
+    """Import ``piezo.cli.<module>``, let it register its commands, return them by name."""
+    if module not in _loaded:
+        holder = typer.Typer(rich_markup_mode=app.rich_markup_mode, add_completion=False)
+        importlib.import_module(f"piezo.cli.{module}").register(holder)
+        # A callback makes typer build a group even for a single command, so every
+        # command keeps the name it was registered under.
+        holder.callback()(lambda: None)
+        group = typer.main.get_command(holder)
+        assert isinstance(group, TyperGroup)
+        for command in group.commands.values():
+            _plain_command(command)
+        _loaded[module] = dict(group.commands)
+    return _loaded[module]
+
+
+class _NoSuchCommand(click_errors.UsageError):
+    def __init__(self, name: str, possibilities: list[str], ctx: Any) -> None:
+        super().__init__(f"no such command {name!r}", ctx=ctx)
+        self.name = name
+        self.possibilities = possibilities
+
+
+class LazyGroup(TyperGroup):
+    """The top-level group: lists :data:`COMMANDS` without importing them; imports a
+    command's module only when that command is resolved."""
+
+    _listing = False
+
+    def list_commands(self, ctx: Any) -> list[str]:
+        present = {m: _module_present(m) for m in COMMAND_MODULES}
+        return [c.name for c in COMMANDS if present[c.module]]
+
+    def get_command(self, ctx: Any, cmd_name: str) -> Any:
+        entry = _BY_NAME.get(cmd_name)
+        if entry is None or not _module_present(entry.module):
+            return None
+        if self._listing:
+            # The listing needs only the name and the one line: no import.
+            return TyperCommand(
+                name=entry.name, callback=None, help=entry.help, short_help=entry.help
+            )
+        return _load(entry.module).get(cmd_name)
+
+    def resolve_command(self, ctx: Any, args: list[str]) -> tuple[str | None, Any, list[str]]:
+        if args and not args[0].startswith("-"):
+            names = self.list_commands(ctx)
+            if args[0] not in names:
+                raise _NoSuchCommand(args[0], difflib.get_close_matches(args[0], names), ctx)
+        return super().resolve_command(ctx, args)
+
+    def format_help(self, ctx: Any, formatter: Any) -> None:
+        self.help = _plain_help(self.help)
+        self._listing = True
+        try:
+            super().format_help(ctx, formatter)
+        finally:
+            self._listing = False
+
+    def format_commands(self, ctx: Any, formatter: Any) -> None:
+        rows = [(name, _BY_NAME[name].help) for name in self.list_commands(ctx)]
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
+
 
 app = typer.Typer(
     name="piezo",
-    help="Calibrated analysis of piezoelectric sensor recordings.",
+    cls=LazyGroup,
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
@@ -78,19 +293,83 @@ def _root(
     _state["debug"] = _state["debug"] or debug
 
 
-for _name in COMMAND_MODULES:
-    importlib.import_module(f"piezo.cli.{_name}").register(app)
+def usage_message(exc: Any) -> str:
+    """One line for a usage mistake: what is wrong and, where there is one, the likely fix.
+
+    Examples
+    --------
+    >>> from piezo.cli import click_errors
+    >>> usage_message(click_errors.NoSuchOption("--intervall", possibilities=["--interval"]))
+    'no such option --intervall (did you mean --interval?)'
+    >>> usage_message(click_errors.UsageError("Got unexpected extra argument (b.wav)"))
+    'got unexpected extra argument (b.wav)'
+    """
+    if isinstance(exc, click_errors.NoSuchOption):
+        text = f"no such option {exc.option_name}"
+        if exc.possibilities:
+            text += f" (did you mean {' or '.join(sorted(exc.possibilities))}?)"
+    elif isinstance(exc, _NoSuchCommand):
+        text = f"no such command {exc.name!r}"
+        if exc.possibilities:
+            text += f" (did you mean {' or '.join(exc.possibilities)}?)"
+    elif isinstance(exc, click_errors.MissingParameter) and exc.param is not None:
+        param = exc.param
+        if isinstance(param, TyperArgument):
+            text = f"missing argument {(param.name or '').upper()}"
+        else:
+            text = f"missing option {max(param.opts, key=len)}"
+    else:
+        text = " ".join(exc.format_message().split()).rstrip(".")
+        text = text[:1].lower() + text[1:]
+        # A sub-group's unknown command, in the wording of the top level's.
+        unknown = re.fullmatch(r"no such command ('[^']*')(?:\. Did you mean (.*)\?)?", text)
+        if unknown is not None:
+            text = f"no such command {unknown[1]}"
+            if unknown[2]:
+                text += f" (did you mean {unknown[2].replace(chr(39), '')}?)"
+    ctx = getattr(exc, "ctx", None)
+    if isinstance(exc, click_errors.MissingParameter) and ctx is not None:
+        text += f" (see {ctx.command_path} --help)"
+    return text
+
+
+def _run(args: Sequence[str]) -> int:
+    """Run the app on ``args``; return the exit code (usage mistakes as one line)."""
+    command = typer.main.get_command(app)
+    try:
+        with command.make_context("piezo", list(args)) as ctx:
+            command.invoke(ctx)
+    except typer.Exit as exc:
+        return int(exc.exit_code)
+    except click_errors.NoArgsIsHelpError as exc:
+        # The help was printed (rich) or is the message (plain click): exit 2 as before.
+        if exc.format_message():
+            typer.echo(exc.format_message())
+        return EXIT_USAGE
+    except click_errors.ClickException as exc:
+        sys.stderr.write(f"piezo: error: {usage_message(exc)}\n")
+        return exc.exit_code
+    except typer.Abort:
+        sys.stderr.write("piezo: interrupted\n")
+        return EXIT_INTERRUPTED
+    except OSError as exc:
+        if exc.errno != errno.EPIPE:
+            raise
+        # The reader of stdout went away (``piezo ... | head``): nothing more to say.
+        sys.stdout = PacifyFlushWrapper(sys.stdout)
+        sys.stderr = PacifyFlushWrapper(sys.stderr)
+        return EXIT_FAILED
+    return EXIT_OK
 
 
 def main(argv: list[str] | None = None) -> None:
     """Console-script entry point."""
     args = sys.argv[1:] if argv is None else argv
     # --debug is accepted anywhere on the line, not only before the command.
-    if "--debug" in args:
-        _state["debug"] = True
-        args = [a for a in args if a != "--debug"]
+    _state["debug"] = "--debug" in args
+    args = [a for a in args if a != "--debug"]
     try:
-        app(args=args, prog_name="piezo", standalone_mode=True)
+        code = _run(args)
     except PiezoError as exc:
         if _state["debug"]:
             raise
@@ -98,7 +377,7 @@ def main(argv: list[str] | None = None) -> None:
         sys.exit(EXIT_USAGE)
     except KeyboardInterrupt:
         sys.stderr.write("piezo: interrupted\n")
-        sys.exit(130)
+        sys.exit(EXIT_INTERRUPTED)
     except SystemExit:
         raise
     except Exception as exc:  # an unexpected failure is a bug, shown as one line
@@ -109,3 +388,4 @@ def main(argv: list[str] | None = None) -> None:
             "(run again with --debug for the traceback)\n"
         )
         sys.exit(EXIT_INTERNAL)
+    sys.exit(code)

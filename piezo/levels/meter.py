@@ -47,7 +47,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import signal
 
 from piezo._kernels import filters as kern
 from piezo.errors import InputError
@@ -58,6 +57,7 @@ from piezo.levels.weighting import (
     _check_rate,
     time_weighting_coefficient,
     weighting_chain_sos,
+    weighting_chain_zi,
 )
 
 __all__ = [
@@ -317,7 +317,7 @@ class LevelMeter:
         first_block = self._zi_c is None
         if first_block:
             # Steady state for a constant input equal to the first sample (no DC step).
-            zi = signal.sosfilt_zi(self._c_sos)  # (sections, 2)
+            zi = weighting_chain_zi(self.sample_rate_hz)  # (sections, 2)
             self._zi_c = zi[:, :, None] * x[0][None, None, :]
             # C blocks DC exactly (zeros at z = 1), so the A-only part starts at rest.
             self._zi_a = np.zeros((len(self._a_sos), 2, self.channels))

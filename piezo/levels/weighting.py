@@ -33,13 +33,15 @@ the one-pole recursion ``y[n] = a y[n-1] + (1 - a) x[n]`` with ``a = exp(-1/(tau
 from __future__ import annotations
 
 import functools
+import hashlib
 import math
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import optimize, signal
 
+from piezo._kernels.cache import cached_arrays
 from piezo._kernels.filters import sosfilt_inplace
 from piezo.errors import InputError
 
@@ -64,6 +66,7 @@ __all__ = [
     "filter_response_db",
     "time_weighting_coefficient",
     "weighting_chain_sos",
+    "weighting_chain_zi",
     "weighting_db",
     "weighting_sos",
 ]
@@ -201,6 +204,8 @@ def _check_rate(sample_rate_hz: float) -> float:
 
 def _bilinear_highpass(poles_hz: tuple[float, ...], zeros: int, fs: float) -> np.ndarray:
     """Bilinear transform of s^zeros / prod(s + 2 pi fk), as second-order sections."""
+    from scipy import signal
+
     z, p, k = signal.bilinear_zpk(
         np.zeros(zeros), -2.0 * np.pi * np.asarray(poles_hz, dtype=float), 1.0, fs
     )
@@ -210,6 +215,8 @@ def _bilinear_highpass(poles_hz: tuple[float, ...], zeros: int, fs: float) -> np
 def _sos_db(sos: np.ndarray, frequency_hz: np.ndarray, fs: float) -> np.ndarray:
     if len(sos) == 0:
         return np.zeros_like(frequency_hz)
+    from scipy import signal
+
     _, h = signal.sosfreqz(sos, worN=frequency_hz, fs=fs)
     with np.errstate(divide="ignore"):
         return 20.0 * np.log10(np.abs(h))
@@ -224,6 +231,8 @@ def _section(params: np.ndarray) -> np.ndarray:
 
 def _fit_section(base: np.ndarray, weighting: str, fs: float, *, start_at_f4: bool) -> np.ndarray:
     """Least-squares fit of one biquad so that ``base`` times it matches the analytic curve."""
+    from scipy import optimize
+
     f = np.geomspace(_FIT_LOW_HZ, _FIT_TOP_FRACTION * fs, _FIT_POINTS)
     target = weighting_db(f, weighting=weighting) - _sos_db(base, f, fs)
     weight = np.where(f <= min(_FIT_FULL_WEIGHT_HZ, 0.42 * fs), 1.0, 0.1)
@@ -261,7 +270,25 @@ def _normalise(sos: np.ndarray, fs: float) -> np.ndarray:
 
 @functools.lru_cache(maxsize=32)
 def _design(fs: float) -> tuple[np.ndarray, np.ndarray]:
-    """(C sections, A-only sections) for sample rate ``fs``; A = C followed by A-only."""
+    """(C sections, A-only sections) for sample rate ``fs``; A = C followed by A-only.
+
+    The fit runs once per sample rate and this module's code: later processes read it
+    from the per-user design cache (:func:`piezo._kernels.cache.cached_arrays`).
+    """
+    key = f"{fs!r} {_source_digest()}"
+    stored = cached_arrays("weighting", key, lambda: dict(zip("ca", _fit_design(fs), strict=True)))
+    c_sos, a_extra = np.array(stored["c"], dtype=float), np.array(stored["a"], dtype=float)
+    c_sos.flags.writeable = False
+    a_extra.flags.writeable = False
+    return c_sos, a_extra
+
+
+@functools.cache
+def _source_digest() -> str:
+    return hashlib.sha256(Path(__file__).read_bytes()).hexdigest()
+
+
+def _fit_design(fs: float) -> tuple[np.ndarray, np.ndarray]:
     hp1 = _bilinear_highpass((F1_HZ, F1_HZ), 2, fs)
     c_sos = _normalise(np.vstack([hp1, _fit_section(hp1, "C", fs, start_at_f4=True)]), fs)
     hp23 = _bilinear_highpass((F2_HZ, F3_HZ), 2, fs)
@@ -270,8 +297,6 @@ def _design(fs: float) -> tuple[np.ndarray, np.ndarray]:
     # Normalise the A-only part so that the whole A chain reads 0 dB at 1 kHz.
     gain_db = _sos_db(np.vstack([c_sos, a_extra]), np.array([_FR_HZ]), fs)[0]
     a_extra[0, :3] *= 10.0 ** (-gain_db / 20.0)
-    c_sos.flags.writeable = False
-    a_extra.flags.writeable = False
     return c_sos, a_extra
 
 
@@ -292,6 +317,45 @@ def weighting_chain_sos(sample_rate_hz: float) -> tuple[np.ndarray, np.ndarray]:
     """
     c_sos, a_extra = _design(_check_rate(sample_rate_hz))
     return c_sos.copy(), a_extra.copy()
+
+
+def weighting_chain_zi(sample_rate_hz: float) -> np.ndarray:
+    """Steady state of the C-weighting sections for a constant unit input.
+
+    What :func:`scipy.signal.sosfilt_zi` gives for the ``c_sos`` of
+    :func:`weighting_chain_sos`, kept in the design cache with it. Multiplied by a first
+    sample it starts a filter without a step.
+
+    Parameters
+    ----------
+    sample_rate_hz
+        Sample rate in Hz, at least 8 kHz.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (sections, 2).
+
+    Examples
+    --------
+    >>> from scipy import signal
+    >>> c_sos, _ = weighting_chain_sos(48000)
+    >>> bool(np.allclose(weighting_chain_zi(48000), signal.sosfilt_zi(c_sos)))
+    True
+    """
+    return _c_zi(_check_rate(sample_rate_hz)).copy()
+
+
+@functools.lru_cache(maxsize=32)
+def _c_zi(fs: float) -> np.ndarray:
+    def compute() -> dict[str, np.ndarray]:
+        from scipy import signal
+
+        return {"zi": signal.sosfilt_zi(_design(fs)[0])}
+
+    zi = np.array(cached_arrays("weighting-zi", f"{fs!r} {_source_digest()}", compute)["zi"])
+    zi.flags.writeable = False
+    return zi
 
 
 def weighting_sos(weighting: str, sample_rate_hz: float) -> np.ndarray:
@@ -435,6 +499,8 @@ class FrequencyWeighting:
         if len(self._sos) == 0 or x.shape[0] == 0:
             return x.copy()
         if self._zi is None:
+            from scipy import signal
+
             self._zi = signal.sosfilt_zi(self._sos)[:, :, None] * x[0][None, None, :]
         y = np.array(x, order="C")  # a fresh copy, filtered in place
         sosfilt_inplace(self._sos, y, self._zi)
@@ -496,6 +562,8 @@ class ExponentialAverager:
         q = _check_block(squared, self.channels)
         if q.shape[0] == 0:
             return q.copy()
+        from scipy import signal
+
         y, self._zi = signal.lfilter([1.0 - self.a], [1.0, -self.a], q, axis=0, zi=self._zi)
         return y
 

@@ -2,16 +2,69 @@
 
 from __future__ import annotations
 
+import importlib.util
+import itertools
+import os
+import signal
 import subprocess
 import sys
+import textwrap
+import time
 
 import numpy as np
 import pytest
 import soundfile as sf
 
 from piezo import __version__
-from piezo.cli import COMMAND_MODULES, app
+from piezo._kernels.cache import cache_folder
+from piezo.cli import COMMANDS, _load
 from piezo.tone.calibrator import calibrator_pressure_pa
+from tests.paths import REPO
+
+#: The analysis stack: none of it may load for ``--help`` or ``--version``.
+ANALYSIS_STACK = ("numpy", "scipy", "numba", "matplotlib", "soundfile", "jinja2")
+
+
+def present(command):
+    return importlib.util.find_spec(f"piezo.cli.{command.module}") is not None
+
+
+def run_piezo(*args, env=None, **kwargs):
+    """``python -m piezo ARGS`` in a fresh process (start-up included), from no folder of ours."""
+    return subprocess.run(
+        [sys.executable, "-m", "piezo", *map(str, args)],
+        capture_output=True,
+        text=True,
+        check=False,
+        cwd=REPO.parent,
+        env={**os.environ, "PYTHONPATH": str(REPO), **(env or {})},
+        **kwargs,
+    )
+
+
+def imported_top_levels(*args, env=None):
+    """Modules ``piezo ARGS`` has imported when it exits."""
+    probe = textwrap.dedent(
+        f"""
+        import runpy, sys
+        sys.argv = ["piezo", *{list(map(str, args))!r}]
+        try:
+            runpy.run_module("piezo", run_name="__main__")
+        except SystemExit:
+            pass
+        sys.stderr.write("MODULES " + " ".join(sorted(sys.modules)) + "\\n")
+        """
+    )
+    r = subprocess.run(
+        [sys.executable, "-c", probe],
+        capture_output=True,
+        text=True,
+        check=False,
+        cwd=REPO.parent,
+        env={**os.environ, "PYTHONPATH": str(REPO), "COLUMNS": "80", **(env or {})},
+    )
+    (line,) = [ln for ln in r.stderr.splitlines() if ln.startswith("MODULES ")]
+    return set(line.split()[1:])
 
 
 def test_version(cli):
@@ -23,10 +76,55 @@ def test_version(cli):
 def test_help_lists_every_command(cli):
     r = cli("--help")
     assert r.code == 0
-    names = {c.name for c in app.registered_commands} | {g.name for g in app.registered_groups}
-    for name in names:
-        assert name in r.out
-    assert len(names) >= len(COMMAND_MODULES)
+    listed = [c for c in COMMANDS if present(c)]
+    assert len(listed) >= 17
+    for command in listed:
+        assert f" {command.name} " in r.out
+
+
+@pytest.mark.parametrize("command", [c for c in COMMANDS if present(c)], ids=lambda c: c.name)
+def test_command_table_matches_what_the_module_registers(command):
+    # The listing comes from the table without importing anything: the table must name
+    # the module that really registers the command, with the help the command shows.
+    registered = _load(command.module)
+    assert command.name in registered, f"{command.module}.register() adds no {command.name!r}"
+    first_paragraph = (registered[command.name].help or "").split("\n\n")[0]
+    assert " ".join(first_paragraph.split()) == command.help, (
+        "update the one-line help in piezo.cli.COMMANDS"
+    )
+
+
+@pytest.mark.parametrize("args", [["--help"], ["--version"], []], ids=["help", "version", "bare"])
+def test_help_and_version_load_no_analysis_stack(args):
+    loaded = imported_top_levels(*args)
+    assert "piezo" in loaded  # the probe did run piezo
+    heavy = sorted(m for m in loaded if m.split(".")[0] in ANALYSIS_STACK)
+    assert heavy == []
+    # ... and no command module: they load when their command runs.
+    assert sorted(m for m in loaded if m.startswith("piezo.cli.")) == []
+
+
+def test_a_command_loads_only_its_own_module():
+    loaded = imported_top_levels("levels", "--help")
+    cli_modules = {m for m in loaded if m.startswith("piezo.cli.")}
+    assert "piezo.cli.levels" in cli_modules
+    assert not cli_modules & {"piezo.cli.batch", "piezo.cli.report", "piezo.cli.sweep"}
+
+
+def test_levels_loads_no_plotting_templates_or_filter_design(tmp_path):
+    path = tmp_path / "short.wav"
+    fs = 8000
+    sf.write(str(path), 0.1 * np.sin(2 * np.pi * 1000 * np.arange(fs) / fs), fs)
+    # A design cache of this test's own; the compiled kernels stay where they are.
+    env = {"PIEZO_CACHE_DIR": str(tmp_path / "cache"), "NUMBA_CACHE_DIR": str(cache_folder())}
+    first = imported_top_levels("levels", path, "--json", env=env)
+    assert "scipy.optimize" in first  # the weighting was designed for 8 kHz ...
+    assert list((tmp_path / "cache" / "designs").glob("weighting-*.npz"))
+    loaded = imported_top_levels("levels", path, "--json", env=env)
+    assert "piezo.levels.meter" in loaded  # it did measure
+    assert not {m.split(".")[0] for m in loaded} & {"matplotlib", "jinja2"}
+    # ... and is read back from the cache: no filter design code is loaded.
+    assert not {"scipy.optimize", "scipy.signal"} & loaded
 
 
 def test_python_dash_m_works(tmp_path):
@@ -250,3 +348,129 @@ def test_json_output_is_one_document_and_nothing_else(cli, full_scale_sine):
 
     json.loads(r.out)  # raises if anything else is on stdout
     assert r.err == ""
+
+
+# --- usage mistakes: one line on stderr, exit 2 --------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("args", "expected"),
+    [
+        (
+            ["levels", "{file}", "--intervall", "1s"],
+            "piezo: error: no such option --intervall (did you mean --interval?)",
+        ),
+        (["levls", "{file}"], "piezo: error: no such command 'levls' (did you mean levels?)"),
+        (["sweep", "mak"], "piezo: error: no such command 'mak' (did you mean make?)"),
+        (["levels"], "piezo: error: missing argument FILE (see piezo levels --help)"),
+        (
+            ["sweep", "analyze", "{file}"],
+            "piezo: error: missing option --stimulus (see piezo sweep analyze --help)",
+        ),
+        (["info", "{file}", "{file}"], "piezo: error: got unexpected extra argument"),
+        (["levels", "{file}", "--interval"], "piezo: error: option '--interval' requires"),
+    ],
+)
+def test_usage_mistakes_are_one_line(cli, full_scale_sine, args, expected):
+    r = cli(*[a.replace("{file}", str(full_scale_sine)) for a in args])
+    assert r.code == 2
+    lines = r.err.strip().splitlines()
+    assert len(lines) == 1, r.err
+    assert lines[0].startswith(expected)
+    assert r.out == ""
+
+
+def test_usage_mistake_is_one_line_from_a_terminal_width_process(full_scale_sine):
+    r = run_piezo("levels", full_scale_sine, "--intervall", "1s", env={"COLUMNS": "80"})
+    assert r.returncode == 2
+    assert r.stderr.splitlines() == [
+        "piezo: error: no such option --intervall (did you mean --interval?)"
+    ]
+
+
+# --- help text: plain text, reflowed --------------------------------------------------------
+
+
+def test_help_keeps_square_brackets(full_scale_sine):
+    r = run_piezo("check", "--help", env={"COLUMNS": "80"})
+    assert r.returncode == 0
+    assert "[thresholds]" in r.stdout
+
+
+def help_prose(text):
+    """The words of a help screen outside the option boxes, one paragraph per item."""
+    prose, paragraph = [], []
+    for line in text.splitlines():
+        body = line.strip()
+        if body.startswith(("╭", "│", "╰", "Usage:")) or not body:
+            if paragraph:
+                prose.append(paragraph)
+            paragraph = []
+        else:
+            paragraph.append(body)
+    return prose + ([paragraph] if paragraph else [])
+
+
+@pytest.mark.parametrize(
+    "args", [["sweep", "analyze"], ["check"], []], ids=["sweep", "check", "top"]
+)
+def test_help_paragraphs_reflow_at_80_columns(args):
+    r = run_piezo(*args, "--help", env={"COLUMNS": "80"})
+    assert r.returncode == 0
+    assert all(len(line) <= 80 for line in r.stdout.splitlines())
+    for paragraph in help_prose(r.stdout):
+        # A reflowed paragraph fills each line but its last: a line that ends short of
+        # the width while the next word would have fitted is a hard break in the source.
+        for line, following in itertools.pairwise(paragraph):
+            next_word = following.split()[0]
+            assert len(line) + 1 + len(next_word) > 78, (line, following)
+
+
+# --- Ctrl-C ---------------------------------------------------------------------------------
+
+
+def test_interrupt_prints_one_line_and_exits_130(tmp_path):
+    # A real `piezo levels` whose meter waits on each block, so the interrupt lands while
+    # the command is working; the marker file says the work has begun.
+    path = tmp_path / "long.wav"
+    fs = 8000
+    sf.write(str(path), 0.1 * np.ones(20 * fs), fs)
+    marker = tmp_path / "started"
+    probe = textwrap.dedent(
+        f"""
+        import pathlib, sys, time
+        import piezo.levels.meter as meter
+        from piezo.cli import main
+
+        update = meter.LevelMeter.update
+
+        def slow_update(self, block):
+            pathlib.Path({str(marker)!r}).touch()
+            time.sleep(0.2)
+            return update(self, block)
+
+        meter.LevelMeter.update = slow_update
+        main(["levels", {str(path)!r}])
+        """
+    )
+    proc = subprocess.Popen(
+        [sys.executable, "-c", probe],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        cwd=REPO.parent,
+        env={**os.environ, "PYTHONPATH": str(REPO)},
+    )
+    try:
+        deadline = time.monotonic() + 120  # start-up on a loaded machine, with compiling
+        while not marker.exists():
+            assert proc.poll() is None, proc.communicate()
+            assert time.monotonic() < deadline, "the command never started working"
+            time.sleep(0.05)
+        proc.send_signal(signal.SIGINT)
+        _out, err = proc.communicate(timeout=60)
+    finally:
+        proc.kill()
+    assert proc.returncode == 130
+    assert err.splitlines() == ["piezo: interrupted"]
+    assert "Traceback" not in err
