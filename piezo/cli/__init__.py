@@ -37,6 +37,8 @@ COMMAND_MODULES = (
     "tone",
     "sweep",
     "response",
+    "impedance",
+    "ringdown",
     "frontend",
     "check",
     "report",
