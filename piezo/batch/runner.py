@@ -14,6 +14,7 @@ import contextlib
 import functools
 import glob
 import hashlib
+import math
 import multiprocessing
 import os
 import re
@@ -122,6 +123,8 @@ class Capture:
     sample_rate_hz: float
     samples: np.ndarray
     clip_level_v: float
+    #: An impedance table (``stimulus.kind = "impedance"``): the sweep, no samples.
+    sweep: Any = None
 
 
 def path_is_csv(path: str) -> bool:
@@ -135,6 +138,11 @@ def load_capture(path: str, spec: Spec) -> Capture:
     """Read ``path`` whole with piezo's reader and calibrate it by the spec's chain."""
     from piezo.chain.measurement import CalibratedSource, Chain
     from piezo.io.reader import open_recording
+
+    if spec.stimulus.kind == "impedance":
+        from piezo.element.impedance import read_impedance_csv
+
+        return Capture(path, math.nan, np.zeros(0), math.nan, sweep=read_impedance_csv(path))
 
     recording = open_recording(path, rate_hz=spec.rate_hz if path_is_csv(path) else None)
     if spec.channel >= recording.channels:

@@ -292,7 +292,9 @@ def _initial(f: np.ndarray, z: np.ndarray, k: int) -> np.ndarray:
     ws = 2.0 * math.pi * fs
     r1 = 1.0 / peak
     c1 = 1.0 / (ws * q * r1)
-    c0 = float(y[k].imag) / ws
+    # At fs the motional branch is real, so B(fs) = ωs C0; a neighbouring mode's branch
+    # can lower it, which the median of B/ω over the band (mostly away from fs) catches.
+    c0 = max(float(y[k].imag) / ws, float(np.median(y.imag / (2 * np.pi * f))))
     if not c0 > 0:
         c0 = float(np.median(np.abs(y.imag) / (2 * np.pi * f)))
     return np.array([fs, math.log(q), math.log(c1), math.log(c0)])
@@ -345,7 +347,9 @@ def fit_mode(
             source=sweep.source,
         )
     y = 1.0 / z
-    k = int(np.argmax(np.abs(y)))
+    # The conductance peaks at the series resonance (|Y| may grow more with frequency
+    # through C0 than a weak mode raises it).
+    k = int(np.argmax(y.real))
     start = _initial(f, z, k)
     scale = np.abs(z)
 
