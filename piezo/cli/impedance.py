@@ -117,7 +117,8 @@ def impedance(
     (EN 50324-2). See docs/element.md.
     """
     from piezo.element.bvd import SHAPES, analyse_impedance
-    from piezo.element.impedance import measure_impedance, read_impedance_csv
+    from piezo.element.impedance import read_impedance_csv
+    from piezo.element.vi import measure_impedance
     from piezo.io.reader import CSV_SUFFIXES
 
     if dielectric_loss not in _LOSS:

@@ -7,7 +7,7 @@ import pytest
 import soundfile as sf
 
 from piezo.element.bvd import BvdCircuit
-from tests.element.test_impedance import _vi_capture
+from tests.element.test_vi import _vi_capture
 
 EXAMPLE = BvdCircuit(c0_f=2.2e-9, r1_ohm=35.0, l1_h=0.12, c1_f=0.25e-9)
 
