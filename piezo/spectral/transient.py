@@ -29,7 +29,7 @@ import numpy as np
 
 from piezo.errors import InputError
 from piezo.spectral.bands import BandAnalyzer
-from piezo.spectral.welch import WelchPSD
+from piezo.spectral.welch import WelchPSD, _as_block, _check_rate
 
 __all__ = [
     "STATIONARITY_SPREAD_DB",
@@ -49,20 +49,15 @@ __all__ = [
 STATIONARITY_SPREAD_DB = 10.0
 
 
-def _check_rate(sample_rate_hz: float) -> float:
-    if not (
-        isinstance(sample_rate_hz, int | float)
-        and math.isfinite(sample_rate_hz)
-        and sample_rate_hz > 0
-    ):
-        raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
-    return float(sample_rate_hz)
+def _rate(sample_rate_hz: float) -> float:
+    rate = _check_rate(sample_rate_hz)
+    if not math.isfinite(rate):
+        raise InputError(f"sample_rate_hz must be a finite number, got {sample_rate_hz!r}")
+    return rate
 
 
-def _as_block(block: np.ndarray, channels: int) -> np.ndarray:
-    arr = np.asarray(block, dtype=np.float64)
-    if arr.ndim != 2 or arr.shape[1] != channels:
-        raise InputError(f"block must have shape (frames, {channels}), got {np.shape(block)}")
+def _finite_block(block: np.ndarray, channels: int) -> np.ndarray:
+    arr = _as_block(block, channels)
     if not np.all(np.isfinite(arr)):
         raise InputError("block contains NaN or infinite samples")
     return arr
@@ -141,7 +136,7 @@ class EventDetector:
         keep_samples: bool = False,
         warmup_windows: int = 32,
     ) -> None:
-        self.sample_rate_hz = _check_rate(sample_rate_hz)
+        self.sample_rate_hz = _rate(sample_rate_hz)
         for name, value in (("threshold_db", threshold_db), ("end_db", end_db)):
             if not (math.isfinite(value) and value > 0):
                 raise InputError(f"{name} must be a positive number of dB, got {value!r}")
@@ -357,7 +352,7 @@ class StationarityCheck:
     """
 
     def __init__(self, sample_rate_hz: float, channels: int, *, frames: int, parts: int = 16):
-        self.sample_rate_hz = _check_rate(sample_rate_hz)
+        self.sample_rate_hz = _rate(sample_rate_hz)
         if frames < parts:
             raise InputError(f"frames ({frames!r}) must be at least parts ({parts!r})")
         self.channels = int(channels)
@@ -369,7 +364,7 @@ class StationarityCheck:
 
     def update(self, block: np.ndarray) -> None:
         """Add a block (frames, channels)."""
-        arr = _as_block(block, self.channels)
+        arr = _finite_block(block, self.channels)
         idx = np.minimum((self._frame + np.arange(arr.shape[0])) // self.part_frames,
                          self.parts - 1)  # fmt: skip
         np.add.at(self._sum, idx, arr * arr)
@@ -471,7 +466,7 @@ class TransientAnalyzer:
         high_hz: float | None = None,
         threshold_db: float = 20.0,
     ) -> None:
-        fs = _check_rate(sample_rate_hz)
+        fs = _rate(sample_rate_hz)
         self.sample_rate_hz = fs
         self.channels = int(channels)
         self.segment_frames = int(segment_frames)
@@ -494,7 +489,7 @@ class TransientAnalyzer:
 
     def update(self, block: np.ndarray) -> None:
         """Add a block (frames, channels)."""
-        arr = _as_block(block, self.channels)
+        arr = _finite_block(block, self.channels)
         if arr.shape[0] == 0:
             return
         self._psd.update(arr)
