@@ -210,7 +210,14 @@ upper = 1
 
 
 def element_lot_files() -> list[ElementFile]:
-    """Every file of the element lot, in writing order (deterministic)."""
+    """Every file of the element lot, in writing order (deterministic).
+
+    Examples
+    --------
+    >>> files = element_lot_files()
+    >>> len(files), files[2].name
+    (18, 'element-lot/impedance/EL-29101.csv')
+    """
     files = [
         ElementFile("element-impedance-spec.toml", "impedance limit spec of the PT29 lot",
                     impedance_spec_text().encode("utf-8")),

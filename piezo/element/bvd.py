@@ -435,6 +435,15 @@ def find_mode_bands(
     also with coherence of at least :data:`MIN_COHERENCE`. Each band runs from
     1.5 (fn − fm) below the |Z| minimum fm to 1.5 (fn − fm) above the following |Z|
     maximum fn, and stops half way (in log frequency) to a neighbouring resonance.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> c = BvdCircuit(c0_f=2.2e-9, r1_ohm=35.0, l1_h=0.12, c1_f=0.25e-9)
+    >>> f = np.linspace(20e3, 40e3, 2001)
+    >>> bands = find_mode_bands(ImpedanceSweep(f, c.impedance(f)))
+    >>> [(round(lo), round(hi)) for lo, hi in bands]  # fm 29.06, fn 30.66 kHz, ± 2.4 kHz
+    [(26660, 33060)]
     """
     f = sweep.frequency_hz
     ly = -20.0 * np.log10(sweep.magnitude_ohm)

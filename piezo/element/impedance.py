@@ -50,6 +50,14 @@ class ImpedanceSweep:
         What the source gave: ``"|Z|, phase"``, ``"R, X"``, ``"G, B"`` or ``"V/I"``.
     source
         The file, if any.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> f = np.array([1e3, 2e3])
+    >>> sweep = ImpedanceSweep(f, 1 / (2j * np.pi * f * 1e-8))   # 10 nF
+    >>> sweep.phase_deg.round(6).tolist(), int(sweep.magnitude_ohm[0])
+    ([-90.0, -90.0], 15915)
     """
 
     frequency_hz: np.ndarray

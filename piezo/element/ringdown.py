@@ -471,7 +471,17 @@ class RingdownAnalyzer:
 
 
 def ringdown(x: np.ndarray, sample_rate_hz: float, **options) -> list[RingdownResult]:
-    """Whole-array :class:`RingdownAnalyzer`: ``x`` of shape (frames,) or (frames, ch)."""
+    """Whole-array :class:`RingdownAnalyzer`: ``x`` of shape (frames,) or (frames, ch).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(4000) / 20000
+    >>> x = np.where(t > 0.02, np.exp(-(t - 0.02) * 40) * np.sin(2e4 * (t - 0.02)), 0.0)
+    >>> x += 1e-4 * np.random.default_rng(1).standard_normal(t.size)
+    >>> [round(m.frequency_hz, 1) for m in ringdown(x, 20000.0)[0].modes]
+    [3183.1]
+    """
     arr = np.asarray(x, dtype=np.float64)
     arr = arr[:, None] if arr.ndim == 1 else arr
     analyzer = RingdownAnalyzer(sample_rate_hz, arr.shape[1], **options)

@@ -192,6 +192,16 @@ def measure_impedance(
         A fixed segment length (one pass).
     max_passes
         Most passes over the recording.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(2)
+    >>> i = rng.standard_normal(96000)             # current through a 220 Ω resistor
+    >>> data = np.column_stack([220.0 * i, 47.0 * i])
+    >>> m = measure_impedance(lambda: [data], 48000.0, 2, data.shape[0], shunt_ohm=47.0)
+    >>> m.passes, bool(np.allclose(m.sweep.impedance_ohm, 220.0))
+    (1, True)
     """
     longest = int(2 ** math.floor(math.log2(max(8, 2 * frames / (MIN_SEGMENTS + 1)))))
     fixed = segment_frames is not None

@@ -529,7 +529,16 @@ class TransientAnalyzer:
 
 
 def transient_spectrum(x: np.ndarray, sample_rate_hz: float, **options) -> TransientResult:
-    """Whole-array :class:`TransientAnalyzer`: ``x`` of shape (frames,) or (frames, ch)."""
+    """Whole-array :class:`TransientAnalyzer`: ``x`` of shape (frames,) or (frames, ch).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = np.zeros(48000); x[4800:9600] = 1.0       # 0.1 s of 1 Pa
+    >>> r = transient_spectrum(x, 48000.0)
+    >>> round(float(r.exposure_level_db(20e-6)[0]), 2)     # 10 lg(0.1 / (20 µPa)²)
+    83.98
+    """
     arr = np.asarray(x, dtype=np.float64)
     arr = arr[:, None] if arr.ndim == 1 else arr
     analyzer = TransientAnalyzer(sample_rate_hz, arr.shape[1], **options)
