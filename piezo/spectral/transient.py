@@ -201,8 +201,21 @@ class EventDetector:
         floor = self._floor_db()
         with np.errstate(divide="ignore"):
             level = 10.0 * np.log10(ms)
-        for i in range(n_win):
+        loud = np.flatnonzero(level > floor + self.threshold_db)
+        i = 0
+        while i < n_win:
+            if self._state is None:
+                # Idle: jump to the next window above the threshold (vectorised search).
+                k = int(np.searchsorted(loud, i))
+                if k == loud.size:
+                    self._prev_db = float(level[-1])
+                    break
+                j = int(loud[k])
+                if j > i:
+                    self._prev_db = float(level[j - 1])
+                i = j
             self._step(i, level[i], floor, windows)
+            i += 1
         self._windows_seen += n_win
         keep_tail = np.concatenate([self._tail, data[:used]])[-max(self.pre, 1) :]
         self._tail = keep_tail
