@@ -9,6 +9,7 @@ chain of a production line) and takes the spec's channel in volts at the sensor.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -18,6 +19,7 @@ import numpy as np
 
 from piezo.batch.spec import Spec
 from piezo.chain.open import open_source
+from piezo.element.impedance import read_impedance_csv
 from piezo.errors import InputError, PiezoError
 from piezo.io.reader import CSV_SUFFIXES
 
@@ -44,6 +46,8 @@ class Capture:
     sample_rate_hz: float
     samples: np.ndarray
     clip_level_v: float
+    #: An impedance table (``stimulus.kind = "impedance"``): the sweep, no samples.
+    sweep: Any = None
 
 
 def path_is_csv(path: str) -> bool:
@@ -65,6 +69,8 @@ def load_capture(path: str, spec: Spec) -> Capture:
     PiezoError
         An unreadable or empty capture, or a spec channel the capture does not have.
     """
+    if spec.stimulus.kind == "impedance":
+        return Capture(path, math.nan, np.zeros(0), math.nan, sweep=read_impedance_csv(path))
     source = open_source(
         path,
         full_scale=spec.full_scale_v,

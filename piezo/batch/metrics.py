@@ -381,6 +381,105 @@ _THD: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "tone": _tone_thd,
 }
 
+# ---------------------------------------------------------------------------------------
+# Element tests: piezo.element.bvd (impedance tables), piezo.element.ringdown (taps).
+
+
+def _impedance(a: CaptureAnalysis) -> Any:
+    from piezo.element.bvd import analyse_impedance
+
+    def compute() -> Any:
+        if a.capture.sweep is None:
+            raise InputError("the capture is not an impedance table")
+        low = float(a.spec.stimulus.params.get("low_frequency_hz", 1000.0))
+        return analyse_impedance(a.capture.sweep, low_frequency_hz=low)
+
+    return a.cached("impedance", compute)
+
+
+def _in_band(m: MetricSpec, frequency_hz: float) -> bool:
+    band = m.params.get("band_hz")
+    return band is None or band[0] <= frequency_hz <= band[1]
+
+
+def _main_mode(a: CaptureAnalysis, m: MetricSpec) -> Any:
+    modes = [x for x in _impedance(a).modes if _in_band(m, x.fs_hz)]
+    if not modes:
+        raise InputError("no resonance found" + (" in band_hz" if "band_hz" in m.params else ""))
+    return max(modes, key=lambda x: x.c1_f)
+
+
+def _mode_value(
+    attr: str, scale: float = 1.0
+) -> Callable[[CaptureAnalysis, MetricSpec], MetricValue]:
+    def extract(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+        mode = _main_mode(a, m)
+        u = mode.u.get(attr)
+        detail = f"u = {u * scale:.3g}" if u is not None else ""
+        return MetricValue(float(getattr(mode, attr)) * scale, detail=detail)
+
+    return extract
+
+
+def _free_capacitance(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    r = _impedance(a)
+    if r.free_capacitance_f is None:
+        return MetricValue(None, reason=f"no capacitance at {r.low_frequency_hz:g} Hz")
+    return MetricValue(r.free_capacitance_f * 1e9, detail=str(r.capacitance_source))
+
+
+def _tan_delta(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    r = _impedance(a)
+    if r.tan_delta is None:
+        return MetricValue(None, reason=f"no loss tangent at {r.low_frequency_hz:g} Hz")
+    return MetricValue(r.tan_delta, detail=str(r.capacitance_source))
+
+
+def _ringdown(a: CaptureAnalysis) -> Any:
+    from piezo.element.ringdown import ringdown
+
+    def compute() -> Any:
+        cap = a.capture
+        threshold = float(a.spec.stimulus.params.get("threshold_db", 20.0))
+        return ringdown(cap.samples, cap.sample_rate_hz, threshold_db=threshold)[0]
+
+    return a.cached("ringdown", compute)
+
+
+def _tap_modes(a: CaptureAnalysis, m: MetricSpec) -> list[Any]:
+    r = _ringdown(a)
+    if not r.events:
+        raise InputError("no tap found in the capture")
+    return [x for x in r.modes if _in_band(m, x.frequency_hz)]
+
+
+def _strongest_tap_mode(a: CaptureAnalysis, m: MetricSpec) -> Any:
+    modes = _tap_modes(a, m)
+    if not modes:
+        raise InputError(
+            "no decaying mode found" + (" in band_hz" if "band_hz" in m.params else "")
+        )
+    return max(modes, key=lambda x: x.amplitude)
+
+
+def _mode_count(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    if a.spec.stimulus.kind == "impedance":
+        found = [x.fs_hz for x in _impedance(a).modes if _in_band(m, x.fs_hz)]
+    else:
+        found = [x.frequency_hz for x in _tap_modes(a, m)]
+    return MetricValue(float(len(found)), detail=", ".join(f"{f:.6g} Hz" for f in found))
+
+
+def _mode_frequency(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    mode = _strongest_tap_mode(a, m)
+    return MetricValue(mode.frequency_hz, detail=f"{mode.events} event(s)")
+
+
+def _mode_q(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
+    mode = _strongest_tap_mode(a, m)
+    return MetricValue(mode.q, detail=f"at {mode.frequency_hz:.6g} Hz")
+
+
 #: Metric kind -> extractor.
 EXTRACTORS: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "sensitivity": _sensitivity,
@@ -395,6 +494,16 @@ EXTRACTORS: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
     "thd_n": _thd_n,
     "tone_frequency": _tone_frequency,
     "band_mask": _band_mask,
+    "fs": _mode_value("fs_hz"),
+    "fp": _mode_value("fp_hz"),
+    "qm": _mode_value("qm"),
+    "k_eff": _mode_value("k_eff"),
+    "c0": _mode_value("c0_f", 1e9),
+    "free_capacitance": _free_capacitance,
+    "tan_delta": _tan_delta,
+    "mode_count": _mode_count,
+    "mode_frequency": _mode_frequency,
+    "mode_q": _mode_q,
 }
 
 

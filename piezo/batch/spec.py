@@ -68,6 +68,10 @@ STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
         "level_db": ("float", False, None),
         "silence_before_s": ("nonneg", False, 0.0),
     },
+    # Element tests (docs/element.md): captures are impedance tables (CSV exports) or tap
+    # and ring-down recordings.
+    "impedance": {"low_frequency_hz": ("pos", False, 1000.0)},
+    "tap": {"threshold_db": ("pos", False, 20.0)},
 }
 
 
@@ -174,6 +178,78 @@ METRIC_KINDS: dict[str, MetricKind] = {
             },
             ("sweep",),
             description="largest |deviation| from a golden response in band_hz",
+        ),
+        # Element metrics (piezo.element): the main mode is the one with the largest
+        # motional capacitance C1 (impedance) or amplitude (tap) inside band_hz.
+        MetricKind(
+            "fs",
+            "Hz",
+            {"band_hz": ("pair", False, None)},
+            ("impedance",),
+            description="series resonance of the main mode",
+        ),
+        MetricKind(
+            "fp",
+            "Hz",
+            {"band_hz": ("pair", False, None)},
+            ("impedance",),
+            description="parallel resonance of the main mode",
+        ),
+        MetricKind(
+            "qm",
+            "1",
+            {"band_hz": ("pair", False, None)},
+            ("impedance",),
+            description="mechanical quality factor of the main mode",
+        ),
+        MetricKind(
+            "k_eff",
+            "1",
+            {"band_hz": ("pair", False, None)},
+            ("impedance",),
+            description="effective coupling of the main mode",
+        ),
+        MetricKind(
+            "c0",
+            "nF",
+            {"band_hz": ("pair", False, None)},
+            ("impedance",),
+            description="clamped capacitance C0 of the main mode's circuit",
+        ),
+        MetricKind(
+            "free_capacitance",
+            "nF",
+            {},
+            ("impedance",),
+            description="capacitance at the stimulus's low_frequency_hz",
+        ),
+        MetricKind(
+            "tan_delta",
+            "1",
+            {},
+            ("impedance",),
+            description="loss tangent at the stimulus's low_frequency_hz",
+        ),
+        MetricKind(
+            "mode_count",
+            "modes",
+            {"band_hz": ("pair", False, None)},
+            ("impedance", "tap"),
+            description="resonances found in band_hz",
+        ),
+        MetricKind(
+            "mode_frequency",
+            "Hz",
+            {"band_hz": ("pair", False, None)},
+            ("tap",),
+            description="ringing frequency of the strongest mode (mean over events)",
+        ),
+        MetricKind(
+            "mode_q",
+            "1",
+            {"band_hz": ("pair", False, None)},
+            ("tap",),
+            description="Q of the strongest mode (mean over events)",
         ),
     )
 }

@@ -52,6 +52,7 @@ ACCEPTED_UNITS: dict[str, tuple[str, ...]] = {
     "Ohm": ("Ohm", "ohm", "Ω", "R", "ohms", "Ohms"),
     "V": ("V",),
     "A": ("A",),
+    "S": ("S",),
     "C": ("C",),
     "Hz": ("Hz", "hz"),
     "s": ("s",),

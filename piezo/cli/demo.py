@@ -10,8 +10,10 @@ import soundfile as sf
 import typer
 
 from piezo.cli.output import atomic_output, console, write_text_atomic
+from piezo.demo.element import element_lot_files
 from piezo.demo.lot import lot_files
 from piezo.demo.scenes import DemoFile, demo_files, demo_texts
+from piezo.io.atomic import write_bytes_atomic
 
 
 def register(app: typer.Typer) -> None:
@@ -40,6 +42,11 @@ def demo(
         with atomic_output(out / lot_item.name) as tmp:
             tmp.write_bytes(lot_item.payload())
     console.print(f"  {'pd27-*':<34} production lot: {len(lot)} files (captures, spec, golden)")
+    elements = element_lot_files()
+    for element_item in elements:
+        (out / element_item.name).parent.mkdir(parents=True, exist_ok=True)
+        write_bytes_atomic(out / element_item.name, element_item.data)
+    console.print(f"  {'element-*':<34} element lot: {len(elements)} files (sweeps, taps, specs)")
     console.print(
         f"wrote {len(files)} recordings, {len(texts)} text files and the {len(lot)}-file "
         f"production lot to {out}"

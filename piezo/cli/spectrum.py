@@ -23,6 +23,7 @@ from piezo.cli.output import (
 from piezo.errors import InputError
 from piezo.plots.spectrum import write_plot
 from piezo.spectral.summary import spectrum_of
+from piezo.spectral.transient import StationarityCheck
 from piezo.spectral.welch import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectrogram, WelchPSD
 
 #: Columns kept for the plotted spectrogram (time-decimated by averaging).
@@ -86,6 +87,14 @@ def spectrum(
         Path | None,
         typer.Option("--plot", metavar="OUT.png", help="Draw the PSD and a spectrogram as PNG."),
     ] = None,
+    transient: Annotated[
+        bool,
+        typer.Option(
+            "--transient",
+            help="Energy view for bursts and impacts: energy spectral density, exposure "
+            "levels per band and per event (instead of the Welch PSD).",
+        ),
+    ] = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -100,6 +109,10 @@ def spectrum(
     _choice(average, AVERAGES, "--average")
     _choice(scaling, SCALINGS, "--scaling")
     source = open_source(file, src)
+    if transient:
+        from piezo.cli.transient import transient_view
+
+        return transient_view(file, source, json_out=json_out)
     fs = source.sample_rate_hz
     nch = len(source.channel_indices)
     res_hz = parse_frequency(resolution, "--resolution") if resolution is not None else None
@@ -117,6 +130,9 @@ def spectrum(
             scaling=scaling,
             max_columns=PLOT_COLUMNS,
         )
+    stationarity = (
+        StationarityCheck(fs, nch, frames=source.frames) if source.frames >= 16 else None
+    )
     with progress(f"Spectrum of {file.name}", source.frames) as advance:
         measured = spectrum_of(
             source,
@@ -126,6 +142,7 @@ def spectrum(
             average=average,
             scaling=scaling,
             spectrogram=spectro,
+            also=[] if stationarity is None else [stationarity],
             advance=advance,
         )
     result = measured.result
@@ -141,6 +158,9 @@ def spectrum(
         emit_json(doc)
     else:
         _print(doc, result, source.unit, ref, source.chain.level_unit)
+    note = stationarity.result().note() if stationarity is not None else None
+    if note is not None:
+        err_console.print(f"note: {note}")
     for path, what in ((csv, "table"), (plot, "plot")):
         if path is not None:
             err_console.print(f"{what} written: {path}")

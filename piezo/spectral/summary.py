@@ -9,7 +9,7 @@ and their ``to_dict()`` is the command's ``--json`` document.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -120,6 +120,7 @@ def spectrum_of(
     average: str = "mean",
     scaling: str = "density",
     spectrogram: Spectrogram | None = None,
+    also: Sequence[Any] = (),
     advance: Callable[[int], object] | None = None,
 ) -> Spectrum:
     """Welch power spectral density of each channel of ``source``, in one pass.
@@ -133,6 +134,8 @@ def spectrum_of(
     spectrogram
         A :class:`~piezo.spectral.welch.Spectrogram` fed the same blocks (for a
         picture), so the file is read once.
+    also
+        Further streaming analyses fed the same blocks (e.g. a stationarity check).
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -171,7 +174,7 @@ def spectrum_of(
             "resolution",
             source=str(source.recording.path),
         )
-    source.feed(est, *([] if spectrogram is None else [spectrogram]), advance=advance)
+    source.feed(est, *([] if spectrogram is None else [spectrogram]), *also, advance=advance)
     result = est.result()
     return Spectrum(
         file=str(source.recording.path),
