@@ -20,8 +20,6 @@ Reference pressures are those of ISO 1683:2015: 20 µPa in gases, 1 µPa in liqu
 from __future__ import annotations
 
 import datetime as _dt
-import math
-import tomllib
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -38,6 +36,8 @@ from piezo.chain.units import (
 )
 from piezo.errors import InputError, SpecError, UnitError
 from piezo.io.reader import Recording
+from piezo.io.text import read_toml
+from piezo.validate import physical_value
 
 __all__ = [
     "REFERENCE_AIR_PA",
@@ -79,13 +79,10 @@ class Chain:
     reference_pa: float = REFERENCE_AIR_PA
 
     def __post_init__(self) -> None:
-        for name in ("full_scale_v", "gain", "reference_pa"):
+        for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_pa"):
             value = getattr(self, name)
-            if not (math.isfinite(value) and value > 0):
-                raise InputError(f"{name} must be positive, got {value!r}")
-        s = self.sensitivity_v_per_pa
-        if s is not None and not (math.isfinite(s) and s > 0):
-            raise InputError(f"sensitivity must be positive, got {s!r}")
+            if value is not None:
+                physical_value(value, what=name)
 
     @property
     def calibrated(self) -> bool:
@@ -170,16 +167,7 @@ def load_profile(path: str | Path) -> SensorProfile:
         names the file and the key.
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise SpecError("profile not found", source=str(p)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise SpecError(f"cannot read profile: {exc}", source=str(p)) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"invalid TOML: {exc}", source=str(p)) from None
+    data = read_toml(p, what="profile", error=SpecError)
     for section, value in data.items():
         if section not in _PROFILE_KEYS:
             raise SpecError(
@@ -242,9 +230,10 @@ def _text(value: Any) -> str | None:
 
 def _positive(text: Any, unit: str, what: str) -> float:
     value = parse_quantity(text, unit, what=what)
-    if value <= 0:
-        raise UnitError(f"{what} must be positive, got {text!r}")
-    return value
+    try:
+        return physical_value(value, what=what, unit=unit)
+    except InputError:
+        raise UnitError(f"{what} must be positive, got {text!r}") from None
 
 
 def sidecar_path(recording_path: str | Path) -> Path:
@@ -265,6 +254,13 @@ class ChainSettings:
     reference: str | None = None
     charge_gain: str | None = None
     profile: Path | None = None
+    #: How messages name each setting (``{"gain": "--gain"}`` on the command line); the
+    #: field's own name when absent.
+    labels: Mapping[str, str] = field(default_factory=dict)
+
+    def label(self, name: str) -> str:
+        """The name messages use for setting ``name``."""
+        return self.labels.get(name, name)
 
 
 @dataclass(frozen=True)
@@ -318,22 +314,28 @@ def resolve_chain(
                 values[key] = v
                 origin[key] = str(path)
 
+    name = settings.label
     charge_gain = (
-        parse_charge_gain(settings.charge_gain) if settings.charge_gain is not None else None
+        parse_charge_gain(settings.charge_gain, what=name("charge_gain"))
+        if settings.charge_gain is not None
+        else None
     )
     if settings.sensitivity is not None:
         values["sensitivity_v_per_pa"] = parse_sensitivity(
-            settings.sensitivity, charge_gain_v_per_c=charge_gain
+            settings.sensitivity,
+            charge_gain_v_per_c=charge_gain,
+            what=name("sensitivity"),
+            charge_gain_name=name("charge_gain"),
         )
         origin["sensitivity_v_per_pa"] = "option"
     if settings.gain is not None:
-        values["gain"] = parse_gain(settings.gain)
+        values["gain"] = parse_gain(settings.gain, what=name("gain"))
         origin["gain"] = "option"
     if settings.full_scale is not None:
-        values["full_scale_v"] = _positive(settings.full_scale, "V", "--full-scale")
+        values["full_scale_v"] = _positive(settings.full_scale, "V", name("full_scale"))
         origin["full_scale_v"] = "option"
     if settings.reference is not None:
-        values["reference_pa"] = _positive(settings.reference, "Pa", "--reference")
+        values["reference_pa"] = _positive(settings.reference, "Pa", name("reference"))
         origin["reference_pa"] = "option"
     chain = Chain(
         full_scale_v=float(values["full_scale_v"]),  # type: ignore[arg-type]

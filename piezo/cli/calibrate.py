@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import datetime as _dt
-import tomllib
 from pathlib import Path
 from typing import Annotated
 
@@ -14,6 +13,8 @@ from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError
+from piezo.io.text import parse_toml, read_text
+from piezo.io.toml import toml_value
 from piezo.tone.calibrator import ToneCalibrator, calibrator_pressure_pa
 
 
@@ -141,16 +142,11 @@ def calibrate(
 
 def _update_profile(path: Path, sensitivity_mv_per_pa: float) -> None:
     """Set ``[sensor] sensitivity`` and ``calibration_date`` in a profile, keeping the rest."""
-    lines = path.read_text(encoding="utf-8").splitlines() if path.exists() else []
-    if lines:
-        try:
-            tomllib.loads("\n".join(lines))
-        except tomllib.TOMLDecodeError as exc:
-            raise InputError(
-                f"cannot update profile: invalid TOML: {exc}", source=str(path)
-            ) from None
+    text = read_text(path, what="profile") if path.exists() or path.is_symlink() else ""
+    parse_toml(text, source=str(path))
+    lines = text.splitlines()
     values = {
-        "sensitivity": f'"{sensitivity_mv_per_pa:.5g} mV/Pa"',
+        "sensitivity": toml_value(f"{sensitivity_mv_per_pa:.5g} mV/Pa"),
         "calibration_date": _dt.date.today().isoformat(),
     }
     out: list[str] = []

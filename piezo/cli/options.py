@@ -57,6 +57,7 @@ class SourceOptions:
             reference=self.reference,
             charge_gain=self.charge_gain,
             profile=self.profile,
+            labels={k: "--" + k.replace("_", "-") for k in _OPTIONS},
         )
 
 

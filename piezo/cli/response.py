@@ -32,7 +32,7 @@ from piezo.response.fit import (
     ResponseTable,
     fit_response,
     format_response_csv,
-    parse_response_csv,
+    read_response_table,
 )
 from piezo.response.measure import H1Estimator, smooth_fractional_octave
 
@@ -468,13 +468,7 @@ def fit_frontend(
     1σ uncertainty from the fit's covariance.
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
-    try:
-        text = file.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("response file not found", source=str(file)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read the response file: {exc}", source=str(file)) from None
-    table = parse_response_csv(text, source=str(file))
+    table = read_response_table(file, what="response file")
     keep = np.isfinite(table.magnitude_db)
     if "coherence" in table.extra:
         keep &= table.extra["coherence"] >= min_coherence

@@ -39,14 +39,14 @@ from piezo.response.fit import (
     ResponseTable,
     deviation_from_golden,
     fit_response,
-    parse_response_csv,
+    read_response_table,
 )
 from piezo.response.measure import analyze_sweep
 from piezo.response.stimulus import (
     NoiseSpec,
     SweepSpec,
     noise_signal,
-    stimulus_from_toml,
+    read_stimulus,
     sweep_signal,
     sweep_spec,
 )
@@ -261,13 +261,7 @@ def load_sweep(path: Path) -> SweepSpec:
                 "by 'piezo sweep make' (the WAV alone does not say f1, f2 and T)",
                 source=str(path),
             )
-    try:
-        text = side.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("stimulus file not found", source=str(side)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read the stimulus file: {exc}", source=str(side)) from None
-    spec = stimulus_from_toml(text, source=str(side))
+    spec, _ = read_stimulus(side)
     if not isinstance(spec, SweepSpec):
         raise SpecError(
             f"describes {spec.color} noise; 'sweep analyze' needs a sweep (use 'piezo "
@@ -377,12 +371,7 @@ def analyze(
     golden_table: ResponseTable | None = None
     golden_doc = None
     if golden is not None:
-        try:
-            golden_table = parse_response_csv(
-                golden.read_text(encoding="utf-8"), source=str(golden)
-            )
-        except FileNotFoundError:
-            raise InputError("golden response not found", source=str(golden)) from None
+        golden_table = read_response_table(golden, what="golden response", finite=True)
         try:
             dev = deviation_from_golden(
                 table.frequency_hz,

@@ -34,7 +34,6 @@ from __future__ import annotations
 
 import math
 import re
-import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -45,6 +44,7 @@ from scipy import optimize
 
 from piezo.chain.units import parse_gain, parse_quantity, parse_sensitivity, ratio_to_db
 from piezo.errors import InputError, SpecError, UnitError
+from piezo.io.text import read_toml
 
 __all__ = [
     "BOLTZMANN_J_PER_K",
@@ -656,17 +656,7 @@ _CELSIUS_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*(?:°C|degC|C)\s*$")
 
 def read_design(path: str | Path) -> dict[str, Any]:
     """Read a design TOML file into a plain mapping (values still as text)."""
-    p = Path(path)
-    try:
-        with p.open("rb") as fh:
-            data = tomllib.load(fh)
-    except FileNotFoundError:
-        raise SpecError("design file not found", source=str(p)) from None
-    except OSError as exc:
-        raise SpecError(f"cannot read design file: {exc.strerror}", source=str(p)) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not valid TOML: {exc}", source=str(p)) from None
-    return data
+    return read_toml(path, what="design file", error=SpecError)
 
 
 def load_frontend(path: str | Path) -> Frontend:
