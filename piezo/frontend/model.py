@@ -42,6 +42,7 @@ from typing import Any, ClassVar, Literal
 import numpy as np
 from scipy import optimize
 
+from piezo import validate
 from piezo.chain.units import parse_gain, parse_quantity, parse_sensitivity, ratio_to_db
 from piezo.errors import InputError, SpecError, UnitError
 from piezo.io.text import read_toml
@@ -89,13 +90,11 @@ def _check_positive(value: float | None, what: str, *, optional: bool = False) -
         if optional:
             return
         raise InputError(f"{what} is required")
-    if not (isinstance(value, int | float) and math.isfinite(value) and value > 0):
-        raise InputError(f"{what} must be a positive finite number, got {value!r}")
+    validate.physical_value(value, what=what)
 
 
 def _check_non_negative(value: float, what: str) -> None:
-    if not (isinstance(value, int | float) and math.isfinite(value) and value >= 0):
-        raise InputError(f"{what} must be zero or positive, got {value!r}")
+    validate.physical_value(value, what=what, allow_zero=True)
 
 
 @dataclass(frozen=True)
