@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import io
 import math
 from pathlib import Path
 from typing import Annotated
@@ -22,6 +21,7 @@ from piezo.cli.output import (
     write_text_atomic,
 )
 from piezo.errors import InputError
+from piezo.io.tables import csv_text
 from piezo.spectral.welch import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectrogram, WelchPSD
 
 #: Columns kept for the plotted spectrogram (time-decimated by averaging).
@@ -191,20 +191,19 @@ def _level_unit(level_unit: str, scaling: str) -> str:
 
 def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, reference: float) -> str:
     """CSV text: frequency, then the PSD and its level in dB for each channel."""
-    buf = io.StringIO()
     header = ["frequency_hz"]
     for ch in channels:
         header += [f"ch{ch}_{unit}", f"ch{ch}_dB"]
-    buf.write(",".join(header) + "\n")
     with np.errstate(divide="ignore"):
         levels = 10 * np.log10(result.psd / reference**2)
+    rows = []
     for k, f in enumerate(result.frequency_hz):
         row = [f"{f:.6g}"]
         for i in range(len(channels)):
             lv = levels[k, i]
             row += [f"{result.psd[k, i]:.6e}", f"{lv:.3f}" if np.isfinite(lv) else ""]
-        buf.write(",".join(row) + "\n")
-    return buf.getvalue()
+        rows.append(row)
+    return csv_text(header, rows)
 
 
 def write_plot(

@@ -41,6 +41,7 @@ import numpy as np
 import scipy.optimize
 
 from piezo.errors import InputError
+from piezo.io.tables import csv_text
 from piezo.io.text import excerpt, read_text
 
 __all__ = [
@@ -127,13 +128,11 @@ def format_response_csv(table: ResponseTable) -> str:
     for name, values in table.extra.items():
         names.append(name)
         cols.append((values, ".6g"))
-    lines = ["# piezo response table"]
+    comments = ["piezo response table"]
     if table.magnitude_unit:
-        lines.append(f"# magnitude_db: {table.magnitude_unit}")
-    lines.append(",".join(names))
-    for i in range(len(table.frequency_hz)):
-        lines.append(",".join(_fmt(float(c[i]), spec) for c, spec in cols))
-    return "\n".join(lines) + "\n"
+        comments.append(f"magnitude_db: {table.magnitude_unit}")
+    rows = ([_fmt(float(c[i]), spec) for c, spec in cols] for i in range(len(table.frequency_hz)))
+    return csv_text(names, rows, comments=comments)
 
 
 _DELIMITED_RE = re.compile(r"[,;\t]")
