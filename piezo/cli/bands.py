@@ -12,7 +12,15 @@ from rich.table import Table
 
 from piezo.chain.units import parse_duration
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
+from piezo.cli.output import (
+    ForceOption,
+    console,
+    emit_json,
+    err_console,
+    progress,
+    refuse_existing,
+    write_text_atomic,
+)
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
 from piezo.io.tables import csv_text
@@ -60,6 +68,7 @@ def bands(
     csv: Annotated[
         Path | None, typer.Option("--csv", metavar="OUT.csv", help="Write band levels as CSV.")
     ] = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -69,6 +78,7 @@ def bands(
     follow the base-ten formula of the standard. Levels are in dB re the reference
     pressure (or re 1 V without a sensitivity).
     """
+    refuse_existing(csv, force=force)
     if fraction not in FRACTIONS:
         raise InputError(
             f"--fraction must be one of {', '.join(map(str, FRACTIONS))}; got {fraction}"

@@ -18,11 +18,13 @@ import typer
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
+    ForceOption,
     atomic_output,
     console,
     emit_json,
     err_console,
     progress,
+    refuse_existing,
     write_text_atomic,
 )
 from piezo.errors import InputError
@@ -329,6 +331,7 @@ def response(
     smooth: SmoothOption = 6,
     csv: CsvOption = None,
     plot: PlotOption = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -340,6 +343,7 @@ def response(
     is ignored), so H1 is in V/V. Numbers are fitted where the coherence is at least
     --min-coherence; the table and plot show every frequency.
     """
+    refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     measured = list(src.channel) if src.channel else None
     source = open_source(file, replace(src, channel=None))

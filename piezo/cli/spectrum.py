@@ -13,11 +13,13 @@ from rich.table import Table
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
+    ForceOption,
     atomic_output,
     console,
     emit_json,
     err_console,
     progress,
+    refuse_existing,
     write_text_atomic,
 )
 from piezo.errors import InputError
@@ -85,6 +87,7 @@ def spectrum(
         Path | None,
         typer.Option("--plot", metavar="OUT.png", help="Draw the PSD and a spectrogram as PNG."),
     ] = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -95,6 +98,7 @@ def spectrum(
     equivalent noise bandwidth, the number of averages and a 95 % chi-square confidence
     interval from the effective number of independent averages (Welch 1967).
     """
+    refuse_existing(csv, plot, force=force)
     _choice(window, WINDOWS, "--window")
     _choice(average, AVERAGES, "--average")
     _choice(scaling, SCALINGS, "--scaling")

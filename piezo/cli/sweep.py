@@ -18,7 +18,15 @@ import typer
 
 from piezo.chain.units import parse_duration, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import atomic_output, console, emit_json, err_console, write_text_atomic
+from piezo.cli.output import (
+    ForceOption,
+    atomic_output,
+    console,
+    emit_json,
+    err_console,
+    refuse_existing,
+    write_text_atomic,
+)
 from piezo.cli.response import (
     CsvOption,
     PlotOption,
@@ -163,6 +171,7 @@ def make(
         ),
     ] = None,
     subtype: SubtypeOption = "PCM_24",
+    force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
     """Write an exponential sine sweep (Farina 2000) and its parameter sidecar.
@@ -170,6 +179,7 @@ def make(
     The sweep runs from --from to --to in --duration with half-Hann fades, between
     silences; NAME.stimulus.toml beside NAME.wav records every parameter.
     """
+    refuse_existing(out, stimulus_sidecar(out), force=force)
 
     spec = sweep_spec(
         parse_frequency(start, "--from"),
@@ -218,11 +228,13 @@ def noise(
         str, typer.Option("--fade", metavar="TIME", help="Half-Hann fade at both ends.")
     ] = "10 ms",
     subtype: SubtypeOption = "PCM_24",
+    force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
     """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
     if kind not in ("pink", "white"):
         raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
+    refuse_existing(out, stimulus_sidecar(out), force=force)
     spec = NoiseSpec(
         kind,
         parse_duration(duration, what="--duration"),
@@ -321,6 +333,7 @@ def analyze(
     smooth: SmoothOption = 6,
     csv: CsvOption = None,
     plot: PlotOption = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -333,6 +346,7 @@ def analyze(
     magnitude is a sensitivity in dB re 1 V/Pa, otherwise it is relative to the
     stimulus (dB re 1 V per stimulus full scale).
     """
+    refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     thd_freqs = parse_frequency_list(thd_at, what="--thd-at")
     spec = load_sweep(stimulus)
