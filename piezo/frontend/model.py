@@ -773,8 +773,16 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
     """Build a :class:`Frontend` from a design mapping (as read from TOML).
 
     Values are text with units (``"1 nF"``, ``"1 GOhm"``, ``"12 pC/Pa"``) parsed by
-    :mod:`piezo.chain.units`, or plain numbers in SI units.
+    :mod:`piezo.chain.units`, or plain numbers in SI units. A value outside the range
+    of :func:`piezo.validate.physical_value` is refused naming ``source``.
     """
+    try:
+        return _frontend_from_mapping(data, source=source)
+    except InputError as exc:  # a value out of range in a model's constructor
+        raise exc if source is None else exc.with_source(source) from None
+
+
+def _frontend_from_mapping(data: Mapping[str, Any], *, source: str | None) -> Frontend:
     top_unknown = sorted(set(data) - set(DESIGN_KEYS[""]))
     if top_unknown:
         raise SpecError(

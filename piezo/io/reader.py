@@ -614,7 +614,11 @@ def _csv_chunks(p: Path, layout: CsvLayout, rows: int) -> Iterator[tuple[np.ndar
 def _first_bad_line(lines: list[str], layout: CsvLayout) -> int:
     for i, ln in enumerate(lines):
         fields = _split(ln.strip(), layout.delimiter)
-        if len(fields) != layout.n_columns or not all(_is_number(f) for f in fields):
+        if len(fields) != layout.n_columns:
+            return i
+        try:
+            [float(f) for f in fields]
+        except ValueError:
             return i
     return 0
 

@@ -11,8 +11,6 @@ May import: the standard library.
 
 from __future__ import annotations
 
-import csv
-import io
 import re
 from collections.abc import Iterable, Sequence
 from typing import Any
@@ -50,8 +48,8 @@ def csv_text(
 ) -> str:
     """CSV text: ``# comment`` lines, a header row, then the rows, every cell made safe.
 
-    Cells are quoted only when they hold the delimiter, a quote or a line break; lines
-    end with ``\\n``.
+    Cells are quoted (RFC 4180) only when they hold the delimiter, a quote, a line feed
+    or a carriage return; lines end with ``\\n``.
 
     Examples
     --------
@@ -60,12 +58,20 @@ def csv_text(
     '-x.wav,-3.5
     "a,b",1.0
     """
-    buf = io.StringIO()
-    for line in comments:
-        buf.write("# " + line.replace("\n", " ").replace("\r", " ") + "\n")
-    writer = csv.writer(buf, delimiter=delimiter, lineterminator="\n")
+    special = (delimiter, '"', "\n", "\r")
+
+    def quoted(cell: Any) -> str:
+        text = safe_cell(cell)
+        if any(c in text for c in special):
+            return '"' + text.replace('"', '""') + '"'
+        return text
+
+    def line(cells: Sequence[Any]) -> str:
+        text = delimiter.join(quoted(c) for c in cells)
+        return (text or '""') + "\n"  # one empty cell is a row, not a blank line
+
+    out = ["# " + c.replace("\n", " ").replace("\r", " ") + "\n" for c in comments]
     if header is not None:
-        writer.writerow([safe_cell(c) for c in header])
-    for row in rows:
-        writer.writerow([safe_cell(c) for c in row])
-    return buf.getvalue()
+        out.append(line(header))
+    out.extend(line(row) for row in rows)
+    return "".join(out)
