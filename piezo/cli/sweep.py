@@ -43,6 +43,7 @@ from piezo.cli.response import (
     write_plot,
 )
 from piezo.errors import InputError, SpecError, UnitError
+from piezo.io.reader import open_recording
 from piezo.response.fit import (
     ResponseTable,
     deviation_from_golden,
@@ -281,10 +282,10 @@ def load_sweep(path: Path) -> SweepSpec:
             source=str(side),
         )
     if side is not path and path.is_file():
-        info = sf.info(str(path))
-        if info.samplerate != spec.sample_rate_hz or info.frames != spec.frames:
+        info = open_recording(path)
+        if info.sample_rate_hz != spec.sample_rate_hz or info.frames != spec.frames:
             raise SpecError(
-                f"{path.name} ({info.frames} frames at {info.samplerate} Hz) does not match "
+                f"{path.name} ({info.frames} frames at {info.sample_rate_hz:g} Hz) does not match "
                 f"its sidecar ({spec.frames} frames at {spec.sample_rate_hz:g} Hz)",
                 source=str(side),
             )

@@ -29,7 +29,7 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import IO
 
-from piezo.errors import OutputError, PiezoError
+from piezo.errors import OutputError, PiezoError, os_reason
 
 __all__ = [
     "atomic_output",
@@ -49,20 +49,7 @@ def output_error(path: str | Path, exc: OSError) -> OutputError:
     >>> str(output_error("out/a.csv", IsADirectoryError(21, "Is a directory")))
     'out/a.csv: cannot write: is a directory'
     """
-    if isinstance(exc, IsADirectoryError):
-        reason = "is a directory"
-    elif isinstance(exc, NotADirectoryError | FileExistsError):
-        reason = "a parent of the path is not a directory"
-    elif exc.errno == errno.ELOOP:
-        reason = "is a symbolic link (piezo does not write through links it did not create)"
-    elif exc.errno == errno.EROFS:
-        reason = "read-only file system"
-    elif exc.errno == errno.ENOSPC:
-        reason = "no space left on the device"
-    elif isinstance(exc, PermissionError):
-        reason = "permission denied"
-    else:
-        reason = (exc.strerror or str(exc) or type(exc).__name__).lower()
+    reason = os_reason(exc)
     return OutputError(f"cannot write: {reason}", source=str(path))
 
 

@@ -24,7 +24,7 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
-from piezo.errors import InputError, PiezoError
+from piezo.errors import InputError, PiezoError, os_reason
 
 __all__ = [
     "MAX_TEXT_BYTES",
@@ -92,14 +92,7 @@ def cannot_read(
     >>> str(cannot_read("d", IsADirectoryError(21, "Is a directory")))
     'd: cannot read file: is a directory'
     """
-    if isinstance(exc, FileNotFoundError):
-        reason = "no such file"
-    elif isinstance(exc, IsADirectoryError):
-        reason = "is a directory"
-    elif isinstance(exc, PermissionError):
-        reason = "permission denied"
-    else:
-        reason = (exc.strerror or str(exc) or type(exc).__name__).lower()
+    reason = os_reason(exc)
     return error(f"cannot read {what}: {reason}", source=str(path))
 
 
