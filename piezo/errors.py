@@ -9,6 +9,8 @@ The command line turns a :class:`PiezoError` into one line on stderr and exit co
 
 from __future__ import annotations
 
+import errno
+
 
 class PiezoError(Exception):
     """Root of every error raised on purpose by piezo.
@@ -57,3 +59,30 @@ class SpecError(InputError):
 
 class OutputError(PiezoError, OSError):
     """An output path that cannot be written: a folder, read-only, full disk, a link."""
+
+
+def os_reason(exc: OSError) -> str:
+    """The words for an operating-system failure, the same for inputs and outputs.
+
+    Examples
+    --------
+    >>> os_reason(IsADirectoryError(21, "Is a directory"))
+    'is a directory'
+    >>> os_reason(OSError(errno.ENOSPC, "No space left on device"))
+    'no space left on the device'
+    """
+    if isinstance(exc, FileNotFoundError):
+        return "no such file"
+    if isinstance(exc, IsADirectoryError):
+        return "is a directory"
+    if isinstance(exc, NotADirectoryError | FileExistsError):
+        return "a parent of the path is not a directory"
+    if exc.errno == errno.ELOOP:
+        return "is a symbolic link (piezo does not write through links it did not create)"
+    if exc.errno == errno.EROFS:
+        return "read-only file system"
+    if exc.errno == errno.ENOSPC:
+        return "no space left on the device"
+    if isinstance(exc, PermissionError):
+        return "permission denied"
+    return (exc.strerror or str(exc) or type(exc).__name__).lower()

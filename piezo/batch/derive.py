@@ -13,7 +13,6 @@ gives a confidence interval for σ (NIST/SEMATECH e-Handbook of Statistical Meth
 
 from __future__ import annotations
 
-import json
 import math
 import os
 from collections.abc import Mapping, Sequence
@@ -26,6 +25,7 @@ from scipy import stats as sstats
 
 from piezo.batch.spec import METRIC_KINDS, MetricSpec, Spec
 from piezo.errors import InputError
+from piezo.io.toml import toml_value
 
 __all__ = [
     "SMALL_N",
@@ -190,24 +190,6 @@ def _plain(value: Any) -> Any:
 # Writing TOML.
 
 
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if not math.isfinite(value):
-            raise ValueError(f"cannot write {value!r} to TOML")
-        return repr(value)
-    if isinstance(value, str):
-        if "'" not in value and "\n" not in value:
-            return f"'{value}'"
-        return json.dumps(value, ensure_ascii=False)
-    if isinstance(value, list | tuple):
-        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
-    raise TypeError(f"cannot write {type(value).__name__} to TOML")
-
-
 def _fmt(value: Any) -> str:
     if isinstance(value, list):
         return "[" + ", ".join(f"{v:.4g}" for v in value) + "]"
@@ -237,25 +219,25 @@ def derived_spec_text(
     lines += [f"# NOTE: {note}" for note in notes]
     lines += ["", "[spec]"]
     if spec.name:
-        lines.append(f"name = {_toml_value(spec.name)}")
+        lines.append(f"name = {toml_value(spec.name)}")
     if spec.serial_pattern is not None:
-        lines.append(f"serial_pattern = {_toml_value(spec.serial_pattern)}")
-        lines.append(f"serial_required = {_toml_value(spec.serial_required)}")
+        lines.append(f"serial_pattern = {toml_value(spec.serial_pattern)}")
+        lines.append(f"serial_required = {toml_value(spec.serial_required)}")
     lines += ["", "[capture]", f"channel = {spec.channel}"]
-    lines.append(f"full_scale_v = {_toml_value(spec.full_scale_v)}")
-    lines.append(f"gain = {_toml_value(spec.gain)}")
+    lines.append(f"full_scale_v = {toml_value(spec.full_scale_v)}")
+    lines.append(f"gain = {toml_value(spec.gain)}")
     if spec.rate_hz is not None:
-        lines.append(f"rate_hz = {_toml_value(spec.rate_hz)}")
-    lines += ["", "[stimulus]", f"kind = {_toml_value(spec.stimulus.kind)}"]
+        lines.append(f"rate_hz = {toml_value(spec.rate_hz)}")
+    lines += ["", "[stimulus]", f"kind = {toml_value(spec.stimulus.kind)}"]
     stim = dict(spec.stimulus.params)
     if "file" in stim:  # parameters that came from the stimulus file stay there
         stim = {k: v for k, v in stim.items() if k in ("level_pa", "level_db")}
         stim["file"] = os.path.relpath(Path(spec.stimulus.params["file"]).resolve(), out_dir)
     for key, value in stim.items():
-        lines.append(f"{key} = {_toml_value(value)}")
+        lines.append(f"{key} = {toml_value(value)}")
     by_name = {d.name: d for d in derived}
     for metric in spec.metrics:
-        lines += ["", f"[metrics.{metric.name}]", f"kind = {_toml_value(metric.kind)}"]
+        lines += ["", f"[metrics.{metric.name}]", f"kind = {toml_value(metric.kind)}"]
         d = by_name[metric.name]
         params = dict(metric.params)
         params.pop("golden_data", None)
@@ -266,7 +248,7 @@ def derived_spec_text(
             params.pop("lower_db", None)
             params.pop("upper_db", None)
         for key, value in params.items():
-            lines.append(f"{key} = {_toml_value(value)}")
+            lines.append(f"{key} = {toml_value(value)}")
         if d.copied:
             lines.append("derive = false")
             lines += _limit_lines(metric)
@@ -277,11 +259,11 @@ def derived_spec_text(
             lines.append(f"# mean_db = {_fmt(d.mean)}")
             lines.append(f"# std_db = {_fmt(d.std)}")
             if d.lower is not None:
-                lines.append(f"lower_db = {_toml_value(d.lower)}")
+                lines.append(f"lower_db = {toml_value(d.lower)}")
             if d.upper is not None:
-                lines.append(f"upper_db = {_toml_value(d.upper)}")
+                lines.append(f"upper_db = {toml_value(d.upper)}")
             if severity != "fail":
-                lines.append(f"severity = {_toml_value(severity)}")
+                lines.append(f"severity = {toml_value(severity)}")
             continue
         limits = [(d.lower, d.upper, "fail")]
         if warn_k is not None:
@@ -289,23 +271,23 @@ def derived_spec_text(
         for lower, upper, severity in limits:
             lines.append(f"[[metrics.{metric.name}.limits]]")
             if lower is not None:
-                lines.append(f"lower = {_toml_value(lower)}")
+                lines.append(f"lower = {toml_value(lower)}")
             if upper is not None:
-                lines.append(f"upper = {_toml_value(upper)}")
-            lines.append(f"severity = {_toml_value(severity)}")
+                lines.append(f"upper = {toml_value(upper)}")
+            lines.append(f"severity = {toml_value(severity)}")
     return "\n".join(lines) + "\n"
 
 
 def _limit_lines(metric: MetricSpec) -> list[str]:
     if METRIC_KINDS[metric.kind].mask:
         severity = metric.limits[0].severity if metric.limits else "fail"
-        return [f"severity = {_toml_value(severity)}"]
+        return [f"severity = {toml_value(severity)}"]
     out: list[str] = []
     for lim in metric.limits:
         out.append(f"[[metrics.{metric.name}.limits]]")
         if lim.lower is not None:
-            out.append(f"lower = {_toml_value(lim.lower)}")
+            out.append(f"lower = {toml_value(lim.lower)}")
         if lim.upper is not None:
-            out.append(f"upper = {_toml_value(lim.upper)}")
-        out.append(f"severity = {_toml_value(lim.severity)}")
+            out.append(f"upper = {toml_value(lim.upper)}")
+        out.append(f"severity = {toml_value(lim.severity)}")
     return out

@@ -12,8 +12,6 @@ bytes, whatever order they were computed in.
 
 from __future__ import annotations
 
-import csv
-import io
 import json
 import math
 import os
@@ -35,7 +33,8 @@ from piezo.batch.stats import (
     yield_fraction,
 )
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, VERDICTS, WARN
-from piezo.io.atomic import write_bytes_atomic
+from piezo.io.atomic import output_folder, write_bytes_atomic
+from piezo.io.tables import csv_text
 from piezo.plots.batch import histogram_figure, response_figure
 from piezo.report.html import data_uri, render_page
 
@@ -168,41 +167,39 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     """One line per capture: file, serial, verdict, each metric, messages, hashes.
 
     Metric values have six significant digits (results.json keeps full precision);
-    message columns join several messages with " | ".
+    message columns join several messages with " | ". Written by
+    :func:`piezo.io.tables.csv_text`: a text cell a spreadsheet would evaluate (a file
+    name or serial starting with ``=``, ``+``, ``-``, ``@``) gets a leading apostrophe.
     """
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
     names = [m.name for m in spec.metrics]
-    writer.writerow(
+    header = [
+        "file",
+        "serial",
+        "verdict",
+        *names,
+        "failed_limits",
+        "warnings",
+        "not_evaluable",
+        "error",
+        "content_sha256",
+        "spec_sha256",
+    ]
+    table = (
         [
-            "file",
-            "serial",
-            "verdict",
-            *names,
-            "failed_limits",
-            "warnings",
-            "not_evaluable",
-            "error",
-            "content_sha256",
-            "spec_sha256",
+            r["file"],
+            r["serial"],
+            r["verdict"],
+            *(_csv_number(r["metrics"].get(n)) for n in names),
+            " | ".join(r["failed_limits"]),
+            " | ".join(r["warnings"]),
+            " | ".join(r["not_evaluable"]),
+            r["error"] or "",
+            r["content_sha256"],
+            r["spec_sha256"],
         ]
+        for r in rows
     )
-    for r in rows:
-        writer.writerow(
-            [
-                r["file"],
-                r["serial"],
-                r["verdict"],
-                *(_csv_number(r["metrics"].get(n)) for n in names),
-                " | ".join(r["failed_limits"]),
-                " | ".join(r["warnings"]),
-                " | ".join(r["not_evaluable"]),
-                r["error"] or "",
-                r["content_sha256"],
-                r["spec_sha256"],
-            ]
-        )
-    return buf.getvalue()
+    return csv_text(header, table)
 
 
 def results_json_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
@@ -395,7 +392,7 @@ def write_outputs(
     }
     written = []
     for name in RESULT_FILES:
-        write_bytes_atomic(out / name, texts[name].encode("utf-8"))
+        write_bytes_atomic(out / name, texts[name].encode("utf-8"), within=out)
         written.append(out / name)
     return written
 
@@ -407,10 +404,10 @@ def write_capture_report(
     data: Mapping[str, Any] | None = None,
 ) -> str:
     """Write ``out_dir/reports/<file>.html`` for one capture; return its relative link."""
-    folder = Path(out_dir) / "reports"
-    folder.mkdir(parents=True, exist_ok=True)
+    folder = output_folder(Path(out_dir) / "reports", within=out_dir)
     name = report_file_name(row["file"])
-    write_bytes_atomic(folder / name, capture_report_html(row, spec, data).encode("utf-8"))
+    page = capture_report_html(row, spec, data).encode("utf-8")
+    write_bytes_atomic(folder / name, page, within=out_dir)
     return f"reports/{name}"
 
 

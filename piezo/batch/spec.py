@@ -15,17 +15,15 @@ import itertools
 import json
 import math
 import re
-import tomllib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from piezo import __version__
 from piezo.chain.units import parse_gain
 from piezo.errors import SpecError, UnitError
+from piezo.io.text import parse_toml, read_text
 
 __all__ = [
     "METRIC_KINDS",
@@ -563,7 +561,6 @@ _CAPTURE_KEYS = ("channel", "full_scale_v", "gain", "rate_hz")
 _LIMIT_KEYS = ("lower", "upper", "lower_rel", "upper_rel", "severity")
 _METRIC_COMMON = ("kind", "derive", "limits", "severity", *_LIMIT_KEYS)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
-_TOML_LINE_RE = re.compile(r"\(at line (\d+), column (\d+)\)")
 
 
 def load_spec(path: str | Path, *, for_derive: bool = False) -> Spec:
@@ -579,10 +576,7 @@ def load_spec(path: str | Path, *, for_derive: bool = False) -> Spec:
         line and the key at fault.
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise SpecError(f"cannot read limit spec: {exc}", source=str(path)) from None
+    text = read_text(p, what="limit spec", error=SpecError)
     return parse_spec(text, source=str(path), base_dir=p.parent, for_derive=for_derive)
 
 
@@ -607,14 +601,7 @@ def parse_spec(
         Accept masks without lower_db/upper_db (a base spec for ``piezo limits derive``
         needs only the mask frequencies).
     """
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        m = _TOML_LINE_RE.search(msg)
-        where = f"line {m.group(1)}: " if m else ""
-        problem = _TOML_LINE_RE.sub("", msg).strip()
-        raise SpecError(f"{where}TOML syntax error: {problem}", source=source) from None
+    data = parse_toml(text, source=source, error=SpecError)
     check = _Checker(text, source)
     base = Path(base_dir) if base_dir is not None else None
     check.no_unknown(data, _TOP_KEYS, ())
@@ -883,7 +870,7 @@ _SWEEP_FILE_KEYS = (
 
 def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> dict[str, Any]:
     """Sweep parameters from a stimulus file written by ``piezo sweep make``."""
-    from piezo.response.stimulus import SweepSpec, stimulus_from_toml
+    from piezo.response.stimulus import SweepSpec, read_stimulus
 
     path = ("stimulus", "file")
     for key in _SWEEP_FILE_KEYS:
@@ -891,11 +878,7 @@ def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> 
             raise check.error(("stimulus", key), "comes from stimulus.file; do not repeat it")
     file = check.param("path", stim["file"], path, base)
     try:
-        text = Path(file).read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise check.error(path, f"cannot read stimulus file {file!r}: {exc}") from None
-    try:
-        sweep = stimulus_from_toml(text, source=file)
+        sweep, text = read_stimulus(file)
     except SpecError as exc:
         raise check.error(path, f"{file}: {exc.message}") from None
     if not isinstance(sweep, SweepSpec):
@@ -957,18 +940,12 @@ def _load_golden(check: _Checker, path: tuple[Any, ...], file: str) -> dict[str,
     """Read a golden response with :func:`piezo.response.fit.parse_response_csv` (frequency_hz,
     magnitude_db; the response CSV that ``piezo sweep analyze --csv`` writes)."""
     from piezo.errors import InputError
-    from piezo.response.fit import parse_response_csv
+    from piezo.response.fit import read_response_table
 
     try:
-        text = Path(file).read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise check.error(path, f"cannot read golden response {file!r}: {exc}") from None
-    try:
-        table = parse_response_csv(text, source=file)
+        table = read_response_table(file, what="golden response", finite=True)
     except InputError as exc:
-        raise check.error(path, f"golden response {exc}") from None
-    if not np.all(np.isfinite(table.magnitude_db)):
-        raise check.error(path, f"golden response {file!r}: magnitudes must be finite")
+        raise check.error(path, f"{exc.message} ({file})") from None
     return {
         "frequency_hz": [float(v) for v in table.frequency_hz],
         "magnitude_db": [float(v) for v in table.magnitude_db],

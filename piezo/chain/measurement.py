@@ -20,8 +20,6 @@ Reference pressures are those of ISO 1683:2015: 20 µPa in gases, 1 µPa in liqu
 from __future__ import annotations
 
 import datetime as _dt
-import math
-import tomllib
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -38,6 +36,9 @@ from piezo.chain.units import (
 )
 from piezo.errors import InputError, SpecError, UnitError
 from piezo.io.reader import Recording
+from piezo.io.text import parse_toml, read_toml
+from piezo.io.toml import toml_value
+from piezo.validate import physical_value
 
 __all__ = [
     "REFERENCE_AIR_PA",
@@ -80,13 +81,10 @@ class Chain:
     reference_pa: float = REFERENCE_AIR_PA
 
     def __post_init__(self) -> None:
-        for name in ("full_scale_v", "gain", "reference_pa"):
+        for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_pa"):
             value = getattr(self, name)
-            if not (math.isfinite(value) and value > 0):
-                raise InputError(f"{name} must be positive, got {value!r}")
-        s = self.sensitivity_v_per_pa
-        if s is not None and not (math.isfinite(s) and s > 0):
-            raise InputError(f"sensitivity must be positive, got {s!r}")
+            if value is not None:
+                physical_value(value, what=name)
 
     @property
     def calibrated(self) -> bool:
@@ -171,16 +169,7 @@ def load_profile(path: str | Path) -> SensorProfile:
         names the file and the key.
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise SpecError("profile not found", source=str(p)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise SpecError(f"cannot read profile: {exc}", source=str(p)) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"invalid TOML: {exc}", source=str(p)) from None
+    data = read_toml(p, what="profile", error=SpecError)
     for section, value in data.items():
         if section not in _PROFILE_KEYS:
             raise SpecError(
@@ -268,20 +257,16 @@ def profile_with_sensitivity(
     [chain]
     gain = "20 dB"
     <BLANKLINE>
+    >>> import tomllib
     >>> load = tomllib.loads(profile_with_sensitivity(None, 0.012, calibration_date="2026-12-01"))
     >>> load["sensor"]["sensitivity"]
     '12 mV/Pa'
     """
     lines = text.splitlines() if text else []
     if lines:
-        try:
-            tomllib.loads("\n".join(lines))
-        except tomllib.TOMLDecodeError as exc:
-            raise InputError(
-                f"cannot update profile: invalid TOML: {exc}", source=source
-            ) from None
+        parse_toml("\n".join(lines), source=source)
     values = {
-        "sensitivity": f'"{1e3 * sensitivity_v_per_pa:.5g} mV/Pa"',
+        "sensitivity": toml_value(f"{1e3 * sensitivity_v_per_pa:.5g} mV/Pa"),
         "calibration_date": calibration_date,
     }
     out: list[str] = []
@@ -322,9 +307,10 @@ def _text(value: Any) -> str | None:
 
 def _positive(text: Any, unit: str, what: str) -> float:
     value = parse_quantity(text, unit, what=what)
-    if value <= 0:
-        raise UnitError(f"{what} must be positive, got {text!r}")
-    return value
+    try:
+        return physical_value(value, what=what, unit=unit)
+    except InputError:
+        raise UnitError(f"{what} must be positive, got {text!r}") from None
 
 
 def sidecar_path(recording_path: str | Path) -> Path:

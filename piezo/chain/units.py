@@ -173,7 +173,7 @@ def db_to_ratio(level_db: float) -> float:
 _DB_RE = re.compile(r"^\s*(" + _NUMBER + r")\s*dB\s*(.*?)\s*$")
 
 
-def parse_gain(text: str | float | int, *, what: str = "--gain") -> float:
+def parse_gain(text: str | float | int, *, what: str = "gain") -> float:
     """Parse a voltage gain and return it as a linear ratio (V/V).
 
     Accepts ``"20 dB"``, ``"-6dB"``, ``"10"``, ``"10 V/V"``, ``"x10"``. A plain number is a
@@ -203,7 +203,7 @@ def parse_gain(text: str | float | int, *, what: str = "--gain") -> float:
     return ratio
 
 
-def parse_charge_gain(text: str | float, *, what: str = "--charge-gain") -> float:
+def parse_charge_gain(text: str | float, *, what: str = "charge_gain") -> float:
     """Parse a charge-amplifier gain (``"1 mV/pC"``) and return volts per coulomb."""
     if isinstance(text, int | float) and not isinstance(text, bool):
         value = float(text)
@@ -249,7 +249,8 @@ def parse_sensitivity(
     text: str | float,
     *,
     charge_gain_v_per_c: float | None = None,
-    what: str = "--sensitivity",
+    what: str = "sensitivity",
+    charge_gain_name: str = "charge_gain_v_per_c",
 ) -> float:
     """Parse a sensor sensitivity and return it in volts per pascal.
 
@@ -281,7 +282,7 @@ def parse_sensitivity(
             if charge_gain_v_per_c is None:
                 raise UnitError(
                     f"{what}: {text!r} is a charge sensitivity; give the charge amplifier's "
-                    "gain too (--charge-gain, e.g. '1 mV/pC')"
+                    f"gain too ({charge_gain_name}, e.g. '1 mV/pC')"
                 )
             value = charge * charge_gain_v_per_c
         else:
@@ -290,7 +291,7 @@ def parse_sensitivity(
             except UnitError:
                 raise UnitError(
                     f"{what}: cannot read sensitivity {text!r}; accepted forms: "
-                    "'20 mV/Pa', '-34 dBV/Pa', '12 pC/Pa' (with --charge-gain)"
+                    f"'20 mV/Pa', '-34 dBV/Pa', '12 pC/Pa' (with {charge_gain_name})"
                 ) from None
     if not math.isfinite(value) or value <= 0:
         raise UnitError(f"{what}: sensitivity must be positive, got {text!r}")

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import io
 import math
 from pathlib import Path
 from typing import Annotated
@@ -13,9 +12,18 @@ from rich.table import Table
 
 from piezo.chain.units import parse_duration
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
+from piezo.cli.output import (
+    ForceOption,
+    console,
+    emit_json,
+    err_console,
+    progress,
+    refuse_existing,
+    write_text_atomic,
+)
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
+from piezo.io.tables import csv_text
 from piezo.spectral.bands import FRACTIONS, BandResult
 from piezo.spectral.summary import bands_of
 
@@ -61,6 +69,7 @@ def bands(
     csv: Annotated[
         Path | None, typer.Option("--csv", metavar="OUT.csv", help="Write band levels as CSV.")
     ] = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -70,6 +79,7 @@ def bands(
     follow the base-ten formula of the standard. Levels are in dB re the reference
     pressure (or re 1 V without a sensitivity).
     """
+    refuse_existing(csv, force=force)
     if fraction not in FRACTIONS:
         raise InputError(
             f"--fraction must be one of {', '.join(map(str, FRACTIONS))}; got {fraction}"
@@ -108,22 +118,21 @@ def bands(
 
 def format_csv(result: BandResult, channels: tuple[int, ...], reference: float) -> str:
     """CSV text: one row per band (Leq), or per interval and band with ``--interval``."""
-    buf = io.StringIO()
     levels = result.level_db(reference)
-    cols = ",".join(f"ch{ch}_dB" for ch in channels)
+    cols = [f"ch{ch}_dB" for ch in channels]
     if result.interval_s is None:
-        buf.write(f"nominal_hz,exact_hz,{cols}\n")
-        for j, b in enumerate(result.bands):
-            vals = ",".join(_fmt(levels[j, i]) for i in range(len(channels)))
-            buf.write(f"{b.nominal_hz:g},{b.exact_hz:.4f},{vals}\n")
-        return buf.getvalue()
+        rows = (
+            [f"{b.nominal_hz:g}", f"{b.exact_hz:.4f}", *(_fmt(v) for v in levels[j])]
+            for j, b in enumerate(result.bands)
+        )
+        return csv_text(["nominal_hz", "exact_hz", *cols], rows)
     hist = result.history_db(reference)
-    buf.write(f"time_s,nominal_hz,exact_hz,{cols}\n")
-    for t, row in zip(result.history_time_s, hist, strict=True):
-        for j, b in enumerate(result.bands):
-            vals = ",".join(_fmt(row[j, i]) for i in range(len(channels)))
-            buf.write(f"{t:.6g},{b.nominal_hz:g},{b.exact_hz:.4f},{vals}\n")
-    return buf.getvalue()
+    timed = (
+        [f"{t:.6g}", f"{b.nominal_hz:g}", f"{b.exact_hz:.4f}", *(_fmt(v) for v in row[j])]
+        for t, row in zip(result.history_time_s, hist, strict=True)
+        for j, b in enumerate(result.bands)
+    )
+    return csv_text(["time_s", "nominal_hz", "exact_hz", *cols], timed)
 
 
 def _fmt(value: float) -> str:

@@ -13,6 +13,7 @@ from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError
+from piezo.io.text import read_text
 from piezo.tone.summary import calibration_of
 
 
@@ -110,12 +111,7 @@ def calibrate(
 
 def _update_profile(path: Path, sensitivity_mv_per_pa: float) -> None:
     """Set the measured sensitivity in the profile at ``path`` (created or updated)."""
-    old = None
-    if path.exists():
-        try:
-            old = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise InputError(f"cannot read profile: {exc}", source=str(path)) from None
+    old = read_text(path, what="profile") if path.exists() or path.is_symlink() else None
     text = profile_with_sensitivity(
         old,
         sensitivity_mv_per_pa * 1e-3,

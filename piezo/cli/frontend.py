@@ -19,7 +19,14 @@ from rich.table import Table
 
 from piezo.chain.units import format_quantity, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import atomic_output, console, emit_json, progress
+from piezo.cli.output import (
+    ForceOption,
+    atomic_output,
+    console,
+    emit_json,
+    progress,
+    refuse_existing,
+)
 from piezo.errors import InputError
 from piezo.frontend.filters import Equalizer, FrontendFilter
 from piezo.frontend.model import (
@@ -43,7 +50,6 @@ FrontendOption = Annotated[
 OutOption = Annotated[
     Path, typer.Option("--out", metavar="OUT", help="Output audio file (.wav, .w64, .rf64, .caf).")
 ]
-ForceOption = Annotated[bool, typer.Option("--force", help="Overwrite OUT if it exists.")]
 
 
 def register(app: typer.Typer) -> None:
@@ -105,6 +111,7 @@ def frontend(
             "e.g. feedback_resistance=100M:10G:5.",
         ),
     ] = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
     """Model a piezo front-end from its design file.
@@ -114,6 +121,7 @@ def frontend(
     level and phase at --at frequencies, the noise budget per source, the A-weighted
     self-noise (dB re 20 µPa, 20 Hz–20 kHz) and the dynamic range to the clip level.
     """
+    refuse_existing(plot, force=force)
     at_hz = tuple(parse_frequency_list(at, what="--at"))
     varied = _parse_vary(vary) if vary is not None else None
     study = study_frontend(design, at_hz=at_hz, vary=varied)
@@ -282,8 +290,7 @@ def _check_output(file: Path, out: Path, force: bool) -> str:
         )
     if out.exists() and out.resolve() == file.resolve():
         raise InputError(f"--out {out} is the input file; write to a new file")
-    if out.exists() and not force:
-        raise InputError(f"--out {out} exists; use --force to replace it")
+    refuse_existing(out, force=force)
     return fmt
 
 

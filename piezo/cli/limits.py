@@ -13,7 +13,15 @@ from piezo.batch.derive import derive_limits, derived_spec_text
 from piezo.batch.runner import evaluate_capture, expand_inputs, run_batch
 from piezo.batch.spec import load_spec, parse_spec
 from piezo.cli.options import JsonOption
-from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
+from piezo.cli.output import (
+    ForceOption,
+    console,
+    emit_json,
+    err_console,
+    progress,
+    refuse_existing,
+    write_text_atomic,
+)
 from piezo.errors import InputError
 
 limits_app = typer.Typer(
@@ -53,15 +61,14 @@ def derive(
         int | None,
         typer.Option("--workers", help="Local worker processes (default: all cores)."),
     ] = None,
-    force: Annotated[bool, typer.Option("--force", help="Overwrite --out if it exists.")] = False,
+    force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
     """Measure the base spec's metrics on golden captures and write a spec with limits
     at mean ± k·σ (σ: sample standard deviation), n, mean and σ stated in comments.
     """
     spec = load_spec(spec_path, for_derive=True)
-    if out.exists() and not force:
-        raise InputError(f"--out: {str(out)!r} exists; use --force to overwrite it")
+    refuse_existing(out, force=force)
     if workers is not None and workers < 1:
         raise InputError(f"--workers: must be at least 1, got {workers}")
     # Checked before measuring anything (derive_limits checks them again).

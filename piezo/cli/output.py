@@ -11,23 +11,50 @@ import contextlib
 import json
 import sys
 from collections.abc import Iterator
-from typing import Any
+from pathlib import Path
+from typing import Annotated, Any
 
+import typer
 from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
+from piezo.errors import OutputError
 from piezo.io.atomic import atomic_output, write_text_atomic
 from piezo.results import to_jsonable
 
 __all__ = [
+    "ForceOption",
     "atomic_output",
     "console",
     "emit_json",
     "err_console",
     "progress",
+    "refuse_existing",
     "to_jsonable",
     "write_text_atomic",
 ]
+
+#: The one overwrite policy: an output file named on the command line that exists is
+#: replaced only with ``--force`` (documented in the README, "Outputs").
+ForceOption = Annotated[
+    bool, typer.Option("--force", help="Replace output files that exist already.")
+]
+
+
+def refuse_existing(*paths: Path | None, force: bool) -> None:
+    """Refuse output files that exist, unless ``force``: the one overwrite policy.
+
+    A path that is an existing folder is refused even with ``force`` (nothing replaces
+    a folder). None entries (options not given) are skipped.
+    """
+    for path in paths:
+        if path is None:
+            continue
+        if path.is_dir() and not path.is_symlink():
+            raise OutputError("cannot write: is a directory", source=str(path))
+        if not force and (path.exists() or path.is_symlink()):
+            raise OutputError("exists; use --force to replace it", source=str(path))
+
 
 console = Console(highlight=False)
 err_console = Console(stderr=True, highlight=False)

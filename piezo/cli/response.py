@@ -18,10 +18,12 @@ import typer
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
+    ForceOption,
     console,
     emit_json,
     err_console,
     progress,
+    refuse_existing,
     write_text_atomic,
 )
 from piezo.errors import InputError
@@ -30,7 +32,7 @@ from piezo.response.fit import (
     ResponseTable,
     fit_response,
     format_response_csv,
-    parse_response_csv,
+    read_response_table,
 )
 from piezo.response.summary import fit_document, h1_response_of, table_subset
 
@@ -208,6 +210,7 @@ def response(
     smooth: SmoothOption = 6,
     csv: CsvOption = None,
     plot: PlotOption = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -219,6 +222,7 @@ def response(
     is ignored), so H1 is in V/V. Numbers are fitted where the coherence is at least
     --min-coherence; the table and plot show every frequency.
     """
+    refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     measured = list(src.channel) if src.channel else None
     source = open_source(file, replace(src, channel=None))
@@ -304,13 +308,7 @@ def fit_frontend(
     1σ uncertainty from the fit's covariance.
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
-    try:
-        text = file.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("response file not found", source=str(file)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read the response file: {exc}", source=str(file)) from None
-    table = parse_response_csv(text, source=str(file))
+    table = read_response_table(file, what="response file")
     keep = np.isfinite(table.magnitude_db)
     if "coherence" in table.extra:
         keep &= table.extra["coherence"] >= min_coherence

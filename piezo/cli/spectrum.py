@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import io
 import math
 from pathlib import Path
 from typing import Annotated
@@ -14,13 +13,16 @@ from rich.table import Table
 from piezo.chain.units import parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
+    ForceOption,
     console,
     emit_json,
     err_console,
     progress,
+    refuse_existing,
     write_text_atomic,
 )
 from piezo.errors import InputError
+from piezo.io.tables import csv_text
 from piezo.plots.spectrum import write_plot
 from piezo.spectral.summary import spectrum_of
 from piezo.spectral.transient import StationarityCheck
@@ -95,6 +97,7 @@ def spectrum(
             "levels per band and per event (instead of the Welch PSD).",
         ),
     ] = False,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -105,6 +108,7 @@ def spectrum(
     equivalent noise bandwidth, the number of averages and a 95 % chi-square confidence
     interval from the effective number of independent averages (Welch 1967).
     """
+    refuse_existing(csv, plot, force=force)
     _choice(window, WINDOWS, "--window")
     _choice(average, AVERAGES, "--average")
     _choice(scaling, SCALINGS, "--scaling")
@@ -168,20 +172,19 @@ def spectrum(
 
 def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, reference: float) -> str:
     """CSV text: frequency, then the PSD and its level in dB for each channel."""
-    buf = io.StringIO()
     header = ["frequency_hz"]
     for ch in channels:
         header += [f"ch{ch}_{unit}", f"ch{ch}_dB"]
-    buf.write(",".join(header) + "\n")
     with np.errstate(divide="ignore"):
         levels = 10 * np.log10(result.psd / reference**2)
+    rows = []
     for k, f in enumerate(result.frequency_hz):
         row = [f"{f:.6g}"]
         for i in range(len(channels)):
             lv = levels[k, i]
             row += [f"{result.psd[k, i]:.6e}", f"{lv:.3f}" if np.isfinite(lv) else ""]
-        buf.write(",".join(row) + "\n")
-    return buf.getvalue()
+        rows.append(row)
+    return csv_text(header, rows)
 
 
 def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit: str) -> None:

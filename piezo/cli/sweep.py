@@ -18,7 +18,15 @@ import typer
 
 from piezo.chain.units import parse_duration, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import atomic_output, console, emit_json, err_console, write_text_atomic
+from piezo.cli.output import (
+    ForceOption,
+    atomic_output,
+    console,
+    emit_json,
+    err_console,
+    refuse_existing,
+    write_text_atomic,
+)
 from piezo.cli.response import (
     CsvOption,
     PlotOption,
@@ -31,16 +39,17 @@ from piezo.cli.response import (
     write_csv,
 )
 from piezo.errors import InputError, SpecError, UnitError
+from piezo.io.reader import open_recording
 from piezo.plots.response import write_plot
 from piezo.response.fit import (
     ResponseTable,
-    parse_response_csv,
+    read_response_table,
 )
 from piezo.response.stimulus import (
     NoiseSpec,
     SweepSpec,
     noise_signal,
-    stimulus_from_toml,
+    read_stimulus,
     sweep_signal,
     sweep_spec,
 )
@@ -158,6 +167,7 @@ def make(
         ),
     ] = None,
     subtype: SubtypeOption = "PCM_24",
+    force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
     """Write an exponential sine sweep (Farina 2000) and its parameter sidecar.
@@ -165,6 +175,7 @@ def make(
     The sweep runs from --from to --to in --duration with half-Hann fades, between
     silences; NAME.stimulus.toml beside NAME.wav records every parameter.
     """
+    refuse_existing(out, stimulus_sidecar(out), force=force)
 
     spec = sweep_spec(
         parse_frequency(start, "--from"),
@@ -213,11 +224,13 @@ def noise(
         str, typer.Option("--fade", metavar="TIME", help="Half-Hann fade at both ends.")
     ] = "10 ms",
     subtype: SubtypeOption = "PCM_24",
+    force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
     """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
     if kind not in ("pink", "white"):
         raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
+    refuse_existing(out, stimulus_sidecar(out), force=force)
     spec = NoiseSpec(
         kind,
         parse_duration(duration, what="--duration"),
@@ -256,13 +269,7 @@ def load_sweep(path: Path) -> SweepSpec:
                 "by 'piezo sweep make' (the WAV alone does not say f1, f2 and T)",
                 source=str(path),
             )
-    try:
-        text = side.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("stimulus file not found", source=str(side)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read the stimulus file: {exc}", source=str(side)) from None
-    spec = stimulus_from_toml(text, source=str(side))
+    spec, _ = read_stimulus(side)
     if not isinstance(spec, SweepSpec):
         raise SpecError(
             f"describes {spec.color} noise; 'sweep analyze' needs a sweep (use 'piezo "
@@ -270,10 +277,10 @@ def load_sweep(path: Path) -> SweepSpec:
             source=str(side),
         )
     if side is not path and path.is_file():
-        info = sf.info(str(path))
-        if info.samplerate != spec.sample_rate_hz or info.frames != spec.frames:
+        info = open_recording(path)
+        if info.sample_rate_hz != spec.sample_rate_hz or info.frames != spec.frames:
             raise SpecError(
-                f"{path.name} ({info.frames} frames at {info.samplerate} Hz) does not match "
+                f"{path.name} ({info.frames} frames at {info.sample_rate_hz:g} Hz) does not match "
                 f"its sidecar ({spec.frames} frames at {spec.sample_rate_hz:g} Hz)",
                 source=str(side),
             )
@@ -322,6 +329,7 @@ def analyze(
     smooth: SmoothOption = 6,
     csv: CsvOption = None,
     plot: PlotOption = None,
+    force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -334,6 +342,7 @@ def analyze(
     magnitude is a sensitivity in dB re 1 V/Pa, otherwise it is relative to the
     stimulus (dB re 1 V per stimulus full scale).
     """
+    refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     thd_freqs = parse_frequency_list(thd_at, what="--thd-at")
     spec = load_sweep(stimulus)
@@ -346,12 +355,7 @@ def analyze(
         )
     golden_table: ResponseTable | None = None
     if golden is not None:
-        try:
-            golden_table = parse_response_csv(
-                golden.read_text(encoding="utf-8"), source=str(golden)
-            )
-        except FileNotFoundError:
-            raise InputError("golden response not found", source=str(golden)) from None
+        golden_table = read_response_table(golden, what="golden response", finite=True)
     analysis = sweep_response_of(
         source,
         spec,

@@ -33,6 +33,7 @@ from typing import Any
 
 import numpy as np
 
+from piezo import validate
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity
 from piezo.diagnostics.spectral import (
@@ -479,12 +480,8 @@ class CaptureChecker:
         channel_indices: Sequence[int] | None = None,
         expected_frames: int | None = None,
     ) -> None:
-        if not (isinstance(sample_rate_hz, int | float) and math.isfinite(sample_rate_hz)):
-            raise InputError(f"sample_rate_hz: expected a number, got {sample_rate_hz!r}")
-        if sample_rate_hz <= 0:
-            raise InputError(f"sample_rate_hz: must be positive, got {sample_rate_hz!r}")
-        if not isinstance(channels, int) or channels < 1:
-            raise InputError(f"channels: must be a whole number >= 1, got {channels!r}")
+        validate.sample_rate(sample_rate_hz)
+        validate.channel_count(channels)
         if full_scale is not None and not (math.isfinite(full_scale) and full_scale > 0):
             raise InputError(f"full_scale: must be positive or None, got {full_scale!r}")
         if not (math.isfinite(reference) and reference > 0):
@@ -570,21 +567,10 @@ class CaptureChecker:
     # ---------------------------------------------------------------- update
     def update(self, block: np.ndarray) -> None:
         """Feed the next block of samples, shape (frames, channels) (1-D for one channel)."""
-        x = np.asarray(block, dtype=np.float64)
-        if x.ndim == 1 and self.channels == 1:
-            x = x[:, None]
-        if x.ndim != 2 or x.shape[1] != self.channels:
-            raise InputError(
-                f"block: expected shape (frames, {self.channels}), got {np.shape(block)}"
-            )
+        x = validate.signal_block(block, self.channels, start_frame=self.frames)
         n = x.shape[0]
         if n == 0:
             return
-        if not np.all(np.isfinite(x)):
-            bad = int(np.argmax(~np.isfinite(x).all(axis=1)))
-            raise RecordingError(
-                f"sample {self.frames + bad} is not a finite number (NaN or infinity)"
-            )
         offset = self.frames
         # Whole-channel statistics.
         mb = x.mean(axis=0)

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import tomllib
 import types
 import typing
 from collections.abc import Iterable, Mapping
@@ -13,6 +12,7 @@ from pathlib import Path
 from typing import Any
 
 from piezo.errors import SpecError
+from piezo.io.text import read_toml
 
 __all__ = [
     "Severity",
@@ -324,13 +324,7 @@ def load_thresholds(path: str | Path, *, base: Thresholds | None = None) -> Thre
         When the file cannot be read or parsed, or holds an unknown key or a bad value.
     """
     p = Path(path)
-    try:
-        with p.open("rb") as fh:
-            data = tomllib.load(fh)
-    except OSError as exc:
-        raise SpecError(f"cannot read thresholds file: {exc.strerror}", source=str(p)) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not valid TOML: {exc}", source=str(p)) from None
+    data = read_toml(p, what="thresholds file", error=SpecError)
     table = data.get("thresholds", data)
     if not isinstance(table, dict):
         raise SpecError("[thresholds] must be a table", source=str(p))

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, signal
 
+from piezo import validate
 from piezo.errors import InputError
 from piezo.frontend.model import Frontend, InputKind, analog_zpk, corner_frequency_hz
 
@@ -301,20 +302,8 @@ def realise_zpk(
     return DigitalRealisation(sos, fs, (float(lo), float(hi)), err_db, phase_deg)
 
 
-def _check_rate(sample_rate_hz: float) -> float:
-    if not (
-        isinstance(sample_rate_hz, int | float)
-        and math.isfinite(sample_rate_hz)
-        and sample_rate_hz > 0
-    ):
-        raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
-    return float(sample_rate_hz)
-
-
-def _check_channels(channels: int) -> int:
-    if not (isinstance(channels, int) and channels >= 1):
-        raise InputError(f"channels must be a positive integer, got {channels!r}")
-    return channels
+_check_rate = validate.sample_rate
+_check_channels = validate.channel_count
 
 
 def _check_band(corner_hz: float, fs: float) -> tuple[float, float]:
@@ -322,12 +311,7 @@ def _check_band(corner_hz: float, fs: float) -> tuple[float, float]:
 
 
 def _as_block(block: np.ndarray, channels: int) -> np.ndarray:
-    x = np.asarray(block, dtype=np.float64)
-    if x.ndim == 1 and channels == 1:
-        x = x[:, None]
-    if x.ndim != 2 or x.shape[1] != channels:
-        raise InputError(f"block must have shape (frames, {channels}), got {np.shape(block)!r}")
-    return x
+    return validate.signal_block(block, channels)
 
 
 class _StreamingSOS:

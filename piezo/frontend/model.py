@@ -34,7 +34,6 @@ from __future__ import annotations
 
 import math
 import re
-import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -43,8 +42,10 @@ from typing import Any, ClassVar, Literal
 import numpy as np
 from scipy import optimize
 
+from piezo import validate
 from piezo.chain.units import parse_gain, parse_quantity, parse_sensitivity, ratio_to_db
 from piezo.errors import InputError, SpecError, UnitError
+from piezo.io.text import read_toml
 
 __all__ = [
     "BOLTZMANN_J_PER_K",
@@ -89,13 +90,11 @@ def _check_positive(value: float | None, what: str, *, optional: bool = False) -
         if optional:
             return
         raise InputError(f"{what} is required")
-    if not (isinstance(value, int | float) and math.isfinite(value) and value > 0):
-        raise InputError(f"{what} must be a positive finite number, got {value!r}")
+    validate.physical_value(value, what=what)
 
 
 def _check_non_negative(value: float, what: str) -> None:
-    if not (isinstance(value, int | float) and math.isfinite(value) and value >= 0):
-        raise InputError(f"{what} must be zero or positive, got {value!r}")
+    validate.physical_value(value, what=what, allow_zero=True)
 
 
 @dataclass(frozen=True)
@@ -656,17 +655,7 @@ _CELSIUS_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*(?:°C|degC|C)\s*$")
 
 def read_design(path: str | Path) -> dict[str, Any]:
     """Read a design TOML file into a plain mapping (values still as text)."""
-    p = Path(path)
-    try:
-        with p.open("rb") as fh:
-            data = tomllib.load(fh)
-    except FileNotFoundError:
-        raise SpecError("design file not found", source=str(p)) from None
-    except OSError as exc:
-        raise SpecError(f"cannot read design file: {exc.strerror}", source=str(p)) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not valid TOML: {exc}", source=str(p)) from None
-    return data
+    return read_toml(path, what="design file", error=SpecError)
 
 
 def load_frontend(path: str | Path) -> Frontend:
@@ -784,8 +773,16 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
     """Build a :class:`Frontend` from a design mapping (as read from TOML).
 
     Values are text with units (``"1 nF"``, ``"1 GOhm"``, ``"12 pC/Pa"``) parsed by
-    :mod:`piezo.chain.units`, or plain numbers in SI units.
+    :mod:`piezo.chain.units`, or plain numbers in SI units. A value outside the range
+    of :func:`piezo.validate.physical_value` is refused naming ``source``.
     """
+    try:
+        return _frontend_from_mapping(data, source=source)
+    except InputError as exc:  # a value out of range in a model's constructor
+        raise exc if source is None else exc.with_source(source) from None
+
+
+def _frontend_from_mapping(data: Mapping[str, Any], *, source: str | None) -> Frontend:
     top_unknown = sorted(set(data) - set(DESIGN_KEYS[""]))
     if top_unknown:
         raise SpecError(

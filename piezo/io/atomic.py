@@ -11,19 +11,34 @@ followed.
 Every operating-system failure (a folder where a file should be, a path below a plain
 file, a read-only file system, a full disk) becomes an :class:`~piezo.errors.OutputError`
 naming the path and the reason, which the command line reports as one line (exit 2).
+
+Links: inside an output folder piezo never follows a symbolic link it did not create.
+Files are created by rename (a link in the target's place is replaced, its target left
+alone); a folder below the output folder that is a link is refused
+(:func:`output_folder`, ``within=``); files that are appended to in place (a batch
+journal, a lock) are opened with :func:`open_nofollow`.
 """
 
 from __future__ import annotations
 
 import contextlib
+import errno
 import os
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
+from typing import IO
 
-from piezo.errors import OutputError
+from piezo.errors import OutputError, PiezoError, os_reason
 
-__all__ = ["atomic_output", "output_error", "write_bytes_atomic", "write_text_atomic"]
+__all__ = [
+    "atomic_output",
+    "open_nofollow",
+    "output_error",
+    "output_folder",
+    "write_bytes_atomic",
+    "write_text_atomic",
+]
 
 
 def output_error(path: str | Path, exc: OSError) -> OutputError:
@@ -32,10 +47,106 @@ def output_error(path: str | Path, exc: OSError) -> OutputError:
     Examples
     --------
     >>> str(output_error("out/a.csv", IsADirectoryError(21, "Is a directory")))
-    'out/a.csv: cannot write: Is a directory'
+    'out/a.csv: cannot write: is a directory'
     """
-    reason = exc.strerror or str(exc) or type(exc).__name__
+    reason = os_reason(exc)
     return OutputError(f"cannot write: {reason}", source=str(path))
+
+
+def _refuse_links(folder: Path, within: Path | None) -> None:
+    """Refuse ``folder`` if it, or a folder between ``within`` and it, is a link."""
+    if within is None:
+        return
+    try:
+        rel = folder.relative_to(within)
+    except ValueError:
+        return
+    current = within
+    for part in rel.parts:
+        current = current / part
+        if current.is_symlink():
+            raise output_error(current, OSError(errno.ELOOP, "symbolic link"))
+
+
+def output_folder(folder: str | Path, *, within: str | Path | None = None) -> Path:
+    """Create ``folder`` (and its parents) for outputs; return it.
+
+    Parameters
+    ----------
+    folder
+        The folder.
+    within
+        The output folder the user named: no folder from there down to ``folder`` may
+        be a symbolic link (a planted link would send the outputs elsewhere).
+
+    Raises
+    ------
+    OutputError
+        A plain file in the way, a link below ``within``, a read-only file system.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, os
+    >>> root = pathlib.Path(tempfile.mkdtemp())
+    >>> output_folder(root / "a" / "reports", within=root).is_dir()
+    True
+    >>> os.symlink(tempfile.mkdtemp(), root / "b")
+    >>> output_folder(root / "b", within=root)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.OutputError: ...b: cannot write: is a symbolic link (...)
+    """
+    target = Path(folder)
+    base = None if within is None else Path(within)
+    _refuse_links(target, base)
+    try:
+        target.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        if isinstance(exc, FileExistsError) and target.exists() and not target.is_dir():
+            raise OutputError(
+                "cannot write: exists and is not a directory", source=str(target)
+            ) from None
+        raise output_error(target, exc) from None
+    _refuse_links(target, base)
+    return target
+
+
+def open_nofollow(
+    path: str | Path, mode: str = "a", *, within: str | Path | None = None
+) -> IO[str]:
+    """Open a text file for writing (``"w"``) or appending (``"a"``), never through a link.
+
+    For files written in place (a journal, a lock): the open fails if ``path`` is a
+    symbolic link (``O_NOFOLLOW``) instead of truncating or appending to its target.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a link, a folder, or cannot be written.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, os
+    >>> root = pathlib.Path(tempfile.mkdtemp())
+    >>> with open_nofollow(root / "journal.jsonl", "w") as fh:
+    ...     _ = fh.write("{}\\n")
+    >>> os.symlink(root / "journal.jsonl", root / "link.jsonl")
+    >>> open_nofollow(root / "link.jsonl", "w")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.OutputError: ...link.jsonl: cannot write: is a symbolic link (...)
+    """
+    if mode not in ("a", "w"):
+        raise ValueError(f"mode must be 'a' or 'w', got {mode!r}")
+    target = Path(path)
+    _refuse_links(target.parent, None if within is None else Path(within))
+    flags = os.O_WRONLY | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0)
+    flags |= os.O_APPEND if mode == "a" else os.O_TRUNC
+    try:
+        fd = os.open(target, flags, 0o666)
+    except OSError as exc:
+        raise output_error(target, exc) from None
+    return open(fd, mode, encoding="utf-8")
 
 
 def _fsync_folder(folder: Path) -> None:
@@ -53,12 +164,13 @@ def _fsync_folder(folder: Path) -> None:
 
 
 @contextlib.contextmanager
-def atomic_output(path: str | Path) -> Iterator[Path]:
+def atomic_output(path: str | Path, *, within: str | Path | None = None) -> Iterator[Path]:
     """Yield a temporary path beside ``path``; it replaces ``path`` when the block ends.
 
     The temporary name keeps the file's suffix, so libraries that choose a format by the
     extension (soundfile, matplotlib) still work. If the block raises, the temporary file
-    is removed and ``path`` is left as it was.
+    is removed and ``path`` is left as it was. Missing parent folders are created with
+    :func:`output_folder` (``within`` as there).
 
     Examples
     --------
@@ -73,9 +185,14 @@ def atomic_output(path: str | Path) -> Iterator[Path]:
     """
     target = Path(path)
     if target.is_dir() and not target.is_symlink():
-        raise OutputError("cannot write: is a folder", source=str(target))
+        raise OutputError("cannot write: is a directory", source=str(target))
+    parent = target.parent
+    if parent.exists() and not parent.is_dir():
+        raise OutputError(
+            "cannot write: a parent of the path is not a directory", source=str(target)
+        )
+    output_folder(parent, within=within)
     try:
-        target.parent.mkdir(parents=True, exist_ok=True)
         fd, tmp_name = tempfile.mkstemp(
             prefix=f".{target.stem}.", suffix=f".partial{target.suffix}", dir=target.parent
         )
@@ -96,12 +213,12 @@ def atomic_output(path: str | Path) -> Iterator[Path]:
     except BaseException as exc:
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
-        if isinstance(exc, OSError) and not isinstance(exc, OutputError):
+        if isinstance(exc, OSError) and not isinstance(exc, PiezoError):
             raise output_error(target, exc) from None
         raise
 
 
-def write_bytes_atomic(path: str | Path, data: bytes) -> None:
+def write_bytes_atomic(path: str | Path, data: bytes, *, within: str | Path | None = None) -> None:
     """Write ``data`` to ``path`` atomically.
 
     Examples
@@ -112,11 +229,11 @@ def write_bytes_atomic(path: str | Path, data: bytes) -> None:
     >>> target.read_bytes()
     b'\\x00\\x01'
     """
-    with atomic_output(path) as tmp:
+    with atomic_output(path, within=within) as tmp:
         tmp.write_bytes(data)
 
 
-def write_text_atomic(path: str | Path, text: str) -> None:
+def write_text_atomic(path: str | Path, text: str, *, within: str | Path | None = None) -> None:
     """Write ``text`` to ``path`` atomically, UTF-8 encoded.
 
     Examples
@@ -127,5 +244,5 @@ def write_text_atomic(path: str | Path, text: str) -> None:
     >>> target.read_text(encoding="utf-8")
     'µPa'
     """
-    with atomic_output(path) as tmp:
+    with atomic_output(path, within=within) as tmp:
         tmp.write_text(text, encoding="utf-8")

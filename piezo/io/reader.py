@@ -11,10 +11,14 @@ parsed in chunks of rows after one validating pass.
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import io as _stdio
+import itertools
 import math
+import os
 import re
+import sys
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -22,7 +26,9 @@ from pathlib import Path
 import numpy as np
 import soundfile as sf
 
+from piezo import validate
 from piezo.errors import InputError, RecordingError
+from piezo.io.text import cannot_read, decode_error, excerpt, regular_file
 
 __all__ = ["CSV_SUFFIXES", "Recording", "open_recording"]
 
@@ -50,6 +56,9 @@ class CsvLayout:
     value_columns: tuple[int, ...]
     time_column: int | None
     n_columns: int
+    #: Bytes of the file when it was opened: a file that grows while it is read is
+    #: analysed exactly as far as it was validated.
+    size_bytes: int = 0
 
 
 @dataclass(frozen=True)
@@ -130,14 +139,14 @@ class Recording:
         selected = self._check_channels(channels)
         step = block_frames - overlap_frames
         if overlap_frames == 0:
-            for block in self._raw_blocks(block_frames):
+            for block in self._finite_blocks(block_frames, selected):
                 yield block if selected is None else block[:, selected]
             return
         # Re-chunk: every block holds block_frames frames (the last may be shorter) and
         # starts step frames after the previous one, as soundfile.blocks does.
         buf = np.empty((0, self.channels))
         fresh = 0  # frames in buf not yet yielded
-        for raw in self._raw_blocks(step):
+        for raw in self._finite_blocks(step, selected):
             buf = np.concatenate([buf, raw])
             fresh += raw.shape[0]
             while buf.shape[0] >= block_frames:
@@ -162,12 +171,28 @@ class Recording:
             out.append(int(c))
         return out
 
+    def _finite_blocks(self, step: int, selected: list[int] | None) -> Iterator[np.ndarray]:
+        """Raw blocks, refusing non-finite samples in the selected channels (the one
+        policy of :func:`piezo.validate.finite_samples`, for every format)."""
+        numbers = list(range(self.channels)) if selected is None else selected
+        start = 0
+        for raw in self._raw_blocks(step):
+            view = raw if selected is None else raw[:, selected]
+            try:
+                validate.finite_samples(view, start_frame=start, channel_numbers=numbers)
+            except InputError as exc:
+                raise exc.with_source(str(self.path)) from None
+            start += raw.shape[0]
+            yield raw
+
     def _raw_blocks(self, step: int) -> Iterator[np.ndarray]:
         if self.csv_layout is not None:
-            yield from _csv_blocks(self.path, self.csv_layout, step)
+            yield from _csv_blocks(self.path, self.csv_layout, step, self.frames)
             return
         try:
-            with sf.SoundFile(str(self.path)) as f:
+            with _quiet_stderr():
+                handle = sf.SoundFile(str(self.path))
+            with handle as f:
                 done = 0
                 while done < self.frames:
                     block = f.read(min(step, self.frames - done), dtype="float64", always_2d=True)
@@ -184,6 +209,35 @@ class Recording:
                 f"cannot decode audio data ({detail}); the file is truncated or corrupt",
                 source=str(self.path),
             ) from exc
+        except OSError as exc:
+            raise cannot_read(self.path, exc, what="recording", error=RecordingError) from None
+
+
+@contextlib.contextmanager
+def _quiet_stderr() -> Iterator[None]:
+    """Silence what the C libraries behind soundfile print on file descriptor 2.
+
+    libsndfile's MPEG decoder (libmpg123) writes warnings straight to the process's
+    stderr while it probes a file, before piezo can say anything; piezo reports the
+    problem itself, in one line. Python's own ``sys.stderr`` is flushed first and
+    restored after.
+    """
+    try:
+        sys.stderr.flush()
+        saved = os.dup(2)
+    except (OSError, ValueError):  # no usable fd 2 (embedded interpreters)
+        yield
+        return
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        try:
+            os.dup2(devnull, 2)
+        finally:
+            os.close(devnull)
+        yield
+    finally:
+        os.dup2(saved, 2)
+        os.close(saved)
 
 
 def open_recording(
@@ -224,26 +278,23 @@ def open_recording(
         Inconsistent options (rate for an audio file, unknown column, non-uniform time).
     """
     p = Path(path)
-    if not p.exists():
-        raise RecordingError("no such file", source=str(p))
-    if p.is_dir():
-        raise RecordingError("is a directory, expected a recording file", source=str(p))
-    try:
-        size = p.stat().st_size
-    except OSError as exc:  # pragma: no cover - permission races
-        raise RecordingError(f"cannot read: {exc.strerror}", source=str(p)) from exc
+    st = regular_file(p, what="recording", error=RecordingError)
+    size = st.st_size
     if size == 0:
         raise RecordingError("file is empty (0 bytes)", source=str(p))
     if p.suffix.lower() in CSV_SUFFIXES:
-        return _open_csv(p, rate_hz=rate_hz, columns=columns, allow_gaps=allow_time_gaps)
+        return _open_csv(
+            p, rate_hz=rate_hz, columns=columns, allow_gaps=allow_time_gaps, size_bytes=size
+        )
     if columns is not None:
-        raise InputError("--columns applies to CSV files only", source=str(p))
+        raise InputError("columns apply to CSV files only", source=str(p))
     return _open_audio(p, rate_hz=rate_hz)
 
 
 def _open_audio(p: Path, *, rate_hz: float | None) -> Recording:
     try:
-        info = sf.info(str(p))
+        with _quiet_stderr():
+            info = sf.info(str(p))
     except sf.LibsndfileError as exc:
         raise RecordingError(
             f"not a readable audio file ({exc.error_string.rstrip('.')})", source=str(p)
@@ -252,8 +303,8 @@ def _open_audio(p: Path, *, rate_hz: float | None) -> Recording:
         raise RecordingError(f"not a readable audio file ({exc})", source=str(p)) from exc
     if rate_hz is not None and not math.isclose(rate_hz, info.samplerate):
         raise InputError(
-            f"--rate {rate_hz:g} Hz contradicts the file header ({info.samplerate} Hz); "
-            "--rate is for CSV files",
+            f"rate_hz {rate_hz:g} Hz contradicts the file header ({info.samplerate} Hz); "
+            "a sample rate is given for CSV files only",
             source=str(p),
         )
     if info.frames <= 0:
@@ -267,8 +318,10 @@ def _open_audio(p: Path, *, rate_hz: float | None) -> Recording:
                 f"file holds {info.frames}",
                 source=str(p),
             )
-    if info.samplerate <= 0:
-        raise RecordingError(f"invalid sample rate {info.samplerate}", source=str(p))
+    try:
+        validate.sample_rate(info.samplerate, what="the header's sample rate")
+    except InputError as exc:
+        raise exc.with_source(str(p)) from None
     return Recording(
         path=p,
         sample_rate_hz=float(info.samplerate),
@@ -388,19 +441,40 @@ def _normalise_name(name: str) -> str:
     return re.sub(r"\s*[\(\[].*?[\)\]]\s*", "", name).strip().lower()
 
 
+def _text_lines(p: Path, size_bytes: int, skip: int = 0) -> Iterator[tuple[int, str]]:
+    """``(line_number, text)`` of the first ``size_bytes`` bytes of ``p``, after ``skip``
+    lines; a line that is not UTF-8 is refused with its number."""
+    try:
+        f = open(p, "rb")
+    except OSError as exc:
+        raise cannot_read(p, exc, what="recording", error=RecordingError) from None
+    with f:
+        left = size_bytes
+        line_no = 0
+        while left > 0:
+            raw = f.readline(left)
+            if not raw:
+                return
+            left -= len(raw)
+            line_no += 1
+            if line_no <= skip:
+                continue
+            try:
+                text = raw.decode("utf-8")
+            except UnicodeDecodeError as exc:
+                raise decode_error(p, raw, exc, first_line=line_no, error=RecordingError) from None
+            yield line_no, text.removeprefix("\ufeff") if line_no == 1 else text
+
+
 def _open_csv(
     p: Path,
     *,
     rate_hz: float | None,
     columns: Sequence[str | int] | None,
     allow_gaps: bool = False,
+    size_bytes: int,
 ) -> Recording:
-    try:
-        with open(p, encoding="utf-8-sig", errors="strict") as f:
-            head = [f.readline() for _ in range(200)]
-    except UnicodeDecodeError:
-        raise RecordingError("not a text file (cannot decode as UTF-8)", source=str(p)) from None
-    head = [ln for ln in head if ln != ""]
+    head = [text for _, text in itertools.islice(_text_lines(p, size_bytes), 200)]
     delimiter, start, header = _sniff_layout(p, head)
     first = _split(head[start], delimiter)
     n_columns = len(first)
@@ -439,27 +513,32 @@ def _open_csv(
         value_columns=tuple(value_cols),
         time_column=time_col,
         n_columns=n_columns,
+        size_bytes=size_bytes,
     )
     frames, rate_from_time, gaps, largest_gap = _validate_csv(p, layout, allow_gaps=allow_gaps)
     if frames == 0:
         raise RecordingError("recording has no samples (0 rows)", source=str(p))
     if time_col is None and rate_hz is None:
         raise InputError(
-            "a single-column CSV has no time column: give the sample rate with --rate",
+            "a single-column CSV has no time column: give the sample rate (rate_hz)",
             source=str(p),
         )
     if rate_from_time is not None:
         if rate_hz is not None and not math.isclose(rate_hz, rate_from_time, rel_tol=1e-3):
             raise InputError(
-                f"--rate {rate_hz:g} Hz contradicts the time column ({rate_from_time:.6g} Hz)",
+                f"rate_hz {rate_hz:g} Hz contradicts the time column ({rate_from_time:.6g} Hz)",
                 source=str(p),
             )
         rate = rate_from_time
     else:
         assert rate_hz is not None
         rate = float(rate_hz)
-    if not (math.isfinite(rate) and rate > 0):
-        raise InputError(f"sample rate must be positive, got {rate}", source=str(p))
+    try:
+        validate.sample_rate(
+            rate, what="rate_hz" if rate_from_time is None else "the time column's rate"
+        )
+    except InputError as exc:
+        raise exc.with_source(str(p)) from None
     return Recording(
         path=p,
         sample_rate_hz=rate,
@@ -493,40 +572,55 @@ def _column_index(p: Path, c: str | int, names: list[str]) -> int:
 
 
 def _csv_chunks(p: Path, layout: CsvLayout, rows: int) -> Iterator[tuple[np.ndarray, int]]:
-    """Yield ``(table, first_line_number)`` chunks of all numeric columns."""
-    with open(p, encoding="utf-8-sig") as f:
-        for _ in range(layout.skip_lines):
-            f.readline()
-        line_no = layout.skip_lines + 1
-        while True:
-            lines = []
-            for _ in range(rows):
-                ln = f.readline()
-                if ln == "":
+    """Yield ``(table, first_line_number)`` chunks of all numeric columns, reading no
+    further than the file's length when it was opened."""
+    lines_in = _text_lines(p, layout.size_bytes, skip=layout.skip_lines)
+    line_no = layout.skip_lines + 1
+    while True:
+        lines: list[str] = []
+        numbers: list[int] = []
+        for number, ln in lines_in:
+            if ln.strip() and not ln.lstrip().startswith("#"):
+                lines.append(ln)
+                numbers.append(number)
+                if len(lines) == rows:
                     break
-                if ln.strip() and not ln.lstrip().startswith("#"):
-                    lines.append(ln)
-            if not lines:
-                return
-            try:
-                table = np.loadtxt(
-                    _stdio.StringIO("".join(lines)),
-                    delimiter=layout.delimiter,
-                    ndmin=2,
-                    dtype=np.float64,
-                )
-            except ValueError as exc:
-                raise RecordingError(
-                    f"unreadable row near line {line_no}: {exc}", source=str(p)
-                ) from None
-            if table.shape[1] != layout.n_columns:
-                raise RecordingError(
-                    f"rows near line {line_no} have {table.shape[1]} columns, "
-                    f"expected {layout.n_columns}",
-                    source=str(p),
-                )
-            yield table, line_no
-            line_no += len(lines)
+        if not lines:
+            return
+        line_no = numbers[0]
+        try:
+            table = np.loadtxt(
+                _stdio.StringIO("".join(lines)),
+                delimiter=layout.delimiter,
+                ndmin=2,
+                dtype=np.float64,
+            )
+        except ValueError:
+            i = _first_bad_line(lines, layout)
+            raise RecordingError(
+                f"line {numbers[i]}: {excerpt(lines[i].strip())} is not a row of "
+                f"{layout.n_columns} numbers",
+                source=str(p),
+            ) from None
+        if table.shape[1] != layout.n_columns:
+            raise RecordingError(
+                f"rows near line {line_no} have {table.shape[1]} columns, "
+                f"expected {layout.n_columns}",
+                source=str(p),
+            )
+        yield table, line_no
+
+
+def _first_bad_line(lines: list[str], layout: CsvLayout) -> int:
+    for i, ln in enumerate(lines):
+        fields = _split(ln.strip(), layout.delimiter)
+        if len(fields) != layout.n_columns:
+            return i
+        try:
+            [float(f) for f in fields]
+        except ValueError:
+            return i
+    return 0
 
 
 def _validate_csv(
@@ -546,22 +640,23 @@ def _validate_csv(
     steps_n = 0
     gaps = 0
     largest_gap = 0.0
-    needed = list(layout.value_columns) + (
-        [layout.time_column] if layout.time_column is not None else []
-    )
+    names = [layout.column_names[i] for i in layout.value_columns]
     for table, _line_no in _csv_chunks(p, layout, _CSV_CHUNK_ROWS):
-        sub = table[:, needed]
-        bad = ~np.isfinite(sub)
-        if bad.any():
-            row, col = np.argwhere(bad)[0]
-            name = layout.column_names[needed[col]]
-            raise RecordingError(
-                f"non-finite value ({sub[row, col]}) in column {name!r} at data row "
-                f"{frames + row + 1}",
-                source=str(p),
+        try:
+            validate.finite_samples(
+                table[:, list(layout.value_columns)], start_frame=frames, channel_names=names
             )
+        except InputError as exc:
+            raise exc.with_source(str(p)) from None
         if layout.time_column is not None:
             t = table[:, layout.time_column]
+            if not np.all(np.isfinite(t)):
+                row = int(np.flatnonzero(~np.isfinite(t))[0])
+                raise InputError(
+                    f"non-finite value (NaN or infinite) in the time column at sample "
+                    f"{frames + row}",
+                    source=str(p),
+                )
             if t_first is None:
                 t_first = float(t[0])
             if t_prev is not None:
@@ -586,13 +681,14 @@ def _validate_csv(
         return frames, None, None, None
     if frames < 2:
         raise InputError(
-            "a time column with a single row cannot give a sample rate; give --rate",
+            "a time column with a single row cannot give a sample rate; give one (rate_hz)",
             source=str(p),
         )
     spacing = steps_sum / steps_n if steps_n else 0.0
     if not spacing > 0 or not (t_prev is not None and t_first is not None and t_prev > t_first):
         raise InputError(
-            "time column does not increase; give --rate if the first column is data",
+            "time column does not increase; give the sample rate (rate_hz) if the first "
+            "column is data",
             source=str(p),
         )
     worst = max(abs(steps_min - spacing), abs(steps_max - spacing)) / spacing
@@ -600,9 +696,9 @@ def _validate_csv(
         raise InputError(
             f"time column is not uniformly spaced (steps from {steps_min:.6g} to "
             f"{steps_max:.6g} s, {100 * worst:.2g} % off the mean step; the limit is "
-            f"{100 * TIME_SPACING_TOLERANCE:g} %); resample it or give --rate and "
-            "--columns"
-            + ("" if allow_gaps else " ('piezo check' reports gaps instead of refusing)"),
+            f"{100 * TIME_SPACING_TOLERANCE:g} %); resample it, or give the sample rate "
+            "(rate_hz) and the value columns"
+            + ("" if allow_gaps else "; allow_time_gaps reports gaps instead of refusing"),
             source=str(p),
         )
     if allow_gaps:
@@ -610,11 +706,17 @@ def _validate_csv(
     return frames, 1.0 / spacing, None, None
 
 
-def _csv_blocks(p: Path, layout: CsvLayout, step: int) -> Iterator[np.ndarray]:
+def _csv_blocks(p: Path, layout: CsvLayout, step: int, frames: int) -> Iterator[np.ndarray]:
+    """Value columns in blocks of ``step`` rows: exactly the ``frames`` rows validated."""
     cols = list(layout.value_columns)
     pending: list[np.ndarray] = []
     have = 0
+    left = frames
     for table, _ in _csv_chunks(p, layout, max(step, 4096)):
+        if left <= 0:
+            break
+        table = table[:left]
+        left -= table.shape[0]
         pending.append(table[:, cols])
         have += table.shape[0]
         while have >= step:
@@ -625,3 +727,9 @@ def _csv_blocks(p: Path, layout: CsvLayout, step: int) -> Iterator[np.ndarray]:
             have = rest.shape[0]
     if have:
         yield np.ascontiguousarray(np.concatenate(pending))
+    if left > 0:
+        raise RecordingError(
+            f"data ends after {frames - left} of {frames} rows (was the file shortened "
+            "while it was read?)",
+            source=str(p),
+        )

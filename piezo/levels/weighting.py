@@ -41,6 +41,7 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import ArrayLike
 
+from piezo import validate
 from piezo._kernels.cache import cached_arrays
 from piezo._kernels.filters import sosfilt_inplace
 from piezo.errors import InputError
@@ -193,13 +194,11 @@ _FIT_FULL_WEIGHT_HZ = 20000.0  # full weight up to min(20 kHz, 0.42 f_s), 0.1 ab
 
 
 def _check_rate(sample_rate_hz: float) -> float:
-    fs = float(sample_rate_hz)
-    if not math.isfinite(fs) or fs < MIN_SAMPLE_RATE_HZ:
-        raise InputError(
-            f"sample_rate_hz must be at least {MIN_SAMPLE_RATE_HZ:g} Hz for the "
-            f"IEC 61672-1 weighting filters, got {sample_rate_hz!r}"
-        )
-    return fs
+    return validate.sample_rate(
+        sample_rate_hz,
+        minimum_hz=MIN_SAMPLE_RATE_HZ,
+        purpose="for the IEC 61672-1 weighting filters",
+    )
 
 
 def _bilinear_highpass(poles_hz: tuple[float, ...], zeros: int, fs: float) -> np.ndarray:
@@ -569,18 +568,8 @@ class ExponentialAverager:
 
 
 def _check_channels(channels: int) -> int:
-    if isinstance(channels, bool) or not isinstance(channels, int | np.integer) or channels < 1:
-        raise InputError(f"channels must be a positive integer, got {channels!r}")
-    return int(channels)
+    return validate.channel_count(channels)
 
 
 def _check_block(block: ArrayLike, channels: int) -> np.ndarray:
-    x = np.asarray(block, dtype=float)
-    if x.ndim == 1 and channels == 1:
-        x = x[:, None]
-    if x.ndim != 2 or x.shape[1] != channels:
-        raise InputError(
-            f"block must have shape (frames, {channels}) (time on the first axis), "
-            f"got shape {x.shape}"
-        )
-    return x
+    return validate.signal_block(block, channels)

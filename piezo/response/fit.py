@@ -35,11 +35,14 @@ import math
 import re
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import scipy.optimize
 
 from piezo.errors import InputError
+from piezo.io.tables import csv_text
+from piezo.io.text import excerpt, read_text
 from piezo.response.model import highpass_db, resonance_db
 
 __all__ = [
@@ -55,6 +58,7 @@ __all__ = [
     "format_response_csv",
     "highpass_magnitude_db",
     "parse_response_csv",
+    "read_response_table",
     "resonance_magnitude_db",
     "sensitivity_at",
 ]
@@ -125,13 +129,11 @@ def format_response_csv(table: ResponseTable) -> str:
     for name, values in table.extra.items():
         names.append(name)
         cols.append((values, ".6g"))
-    lines = ["# piezo response table"]
+    comments = ["piezo response table"]
     if table.magnitude_unit:
-        lines.append(f"# magnitude_db: {table.magnitude_unit}")
-    lines.append(",".join(names))
-    for i in range(len(table.frequency_hz)):
-        lines.append(",".join(_fmt(float(c[i]), spec) for c, spec in cols))
-    return "\n".join(lines) + "\n"
+        comments.append(f"magnitude_db: {table.magnitude_unit}")
+    rows = ([_fmt(float(c[i]), spec) for c, spec in cols] for i in range(len(table.frequency_hz)))
+    return csv_text(names, rows, comments=comments)
 
 
 _DELIMITED_RE = re.compile(r"[,;\t]")
@@ -183,7 +185,7 @@ def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable
             rows.append([float(c) for c in cells])
         except ValueError:
             raise InputError(
-                f"line {lineno}: {line!r} is not a row of numbers", source=source
+                f"line {lineno}: {excerpt(line)} is not a row of numbers", source=source
             ) from None
         row_lines.append(lineno)
     if len(rows) < 3:
@@ -229,6 +231,59 @@ def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable
                 continue
             extra[name] = np.array([r[i] if i < len(r) else math.nan for r in rows])
     return ResponseTable(freq, mag, phase, unit, extra)
+
+
+def read_response_table(
+    path: str | Path, *, what: str = "response table", finite: bool = False
+) -> ResponseTable:
+    """Read a response or golden table file: the one reader of such files.
+
+    The file is read with :func:`piezo.io.text.read_text` (bounded size, UTF-8, errors
+    naming the file) and parsed with :func:`parse_response_csv`.
+
+    Parameters
+    ----------
+    path
+        The table (as ``piezo sweep analyze --csv`` writes it).
+    what
+        What the table is, for messages (``"golden response"``).
+    finite
+        Also require every magnitude to be finite (a golden table to compare against).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "g.csv"
+    >>> _ = p.write_text("frequency_hz,magnitude_db\\n100,-40\\n1000,-38\\n10000,nan\\n")
+    >>> read_response_table(p).magnitude_db[:2]
+    array([-40., -38.])
+    >>> read_response_table(p, what="golden response", finite=True)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: ...g.csv: line 4: golden response magnitudes must be finite
+    """
+    text = read_text(path, what=what)
+    table = parse_response_csv(text, source=str(path))
+    if finite and not np.all(np.isfinite(table.magnitude_db)):
+        first = int(np.flatnonzero(~np.isfinite(table.magnitude_db))[0])
+        line = _data_line_numbers(text)[first]
+        raise InputError(f"line {line}: {what} magnitudes must be finite", source=str(path))
+    return table
+
+
+def _data_line_numbers(text: str) -> list[int]:
+    """Line numbers of the numeric rows of a table parsed by :func:`parse_response_csv`."""
+    out = []
+    for lineno, raw in enumerate(text.splitlines(), start=1):
+        line = raw.strip()
+        if line and not line.startswith("#"):
+            out.append(lineno)
+    if out:
+        cells = _cells(text.splitlines()[out[0] - 1])
+        named = any(re.search(r"[a-df-zA-DF-Z_]", c) for c in cells)
+        if named and not any(c.lower() in ("nan", "inf", "-inf") for c in cells):
+            out = out[1:]
+    return out
 
 
 # --------------------------------------------------------------------------------------

@@ -29,6 +29,7 @@ import numpy as np
 import scipy.fft
 import scipy.signal
 
+from piezo import validate
 from piezo.errors import InputError
 from piezo.response.fit import ResponseTable
 from piezo.response.stimulus import (
@@ -81,19 +82,11 @@ def _as_signal(x: np.ndarray, what: str) -> np.ndarray:
         )
     if arr.size == 0:
         raise InputError(f"{what} is empty")
-    if not np.all(np.isfinite(arr)):
-        raise InputError(f"{what} contains NaN or infinite samples")
+    validate.finite_samples(arr[:, None], what=what)
     return arr
 
 
-def _check_rate(sample_rate_hz: float) -> float:
-    if not (
-        isinstance(sample_rate_hz, int | float)
-        and math.isfinite(sample_rate_hz)
-        and sample_rate_hz > 0
-    ):
-        raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
-    return float(sample_rate_hz)
+_check_rate = validate.sample_rate
 
 
 def log_frequency_grid(start_hz: float, stop_hz: float, points_per_octave: int) -> np.ndarray:
@@ -714,15 +707,9 @@ class H1Estimator:
 
     def update(self, block: np.ndarray) -> None:
         """Add a block of shape (frames, channels); any frame count, including 0."""
-        arr = np.asarray(block, dtype=np.float64)
-        if arr.ndim != 2 or arr.shape[1] != self.channels:
-            raise InputError(
-                f"block must have shape (frames, {self.channels}), got {np.shape(block)}"
-            )
+        arr = validate.signal_block(block, self.channels)
         if arr.shape[0] == 0:
             return
-        if not np.all(np.isfinite(arr)):
-            raise InputError("block contains NaN or infinite samples")
         self._spectra.update(arr[:, self._columns])
 
     def result(self) -> TransferEstimate:

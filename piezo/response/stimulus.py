@@ -24,14 +24,16 @@ exactly); writing files is left to the command line.
 from __future__ import annotations
 
 import math
-import tomllib
 from dataclasses import dataclass, fields
+from pathlib import Path
 from typing import Any, ClassVar
 
 import numpy as np
 import scipy.fft
 
 from piezo.errors import InputError, SpecError
+from piezo.io.text import parse_toml, read_text
+from piezo.io.toml import toml_value
 
 __all__ = [
     "NoiseSpec",
@@ -39,6 +41,7 @@ __all__ = [
     "harmonic_offsets_s",
     "inverse_filter",
     "noise_signal",
+    "read_stimulus",
     "stimulus_from_toml",
     "sweep_signal",
     "sweep_spec",
@@ -74,31 +77,17 @@ def _level(value: float, what: str) -> float:
     return float(value)
 
 
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        # repr() round-trips a float exactly and is valid TOML for finite values.
-        return repr(value)
-    if isinstance(value, str):
-        escaped = value.replace("\\", "\\\\").replace('"', '\\"')
-        return f'"{escaped}"'
-    raise TypeError(f"cannot render {value!r} as TOML")
-
-
 def _render_table(table: str, kind: str, values: dict[str, Any]) -> str:
     lines = [
         "# Stimulus written by piezo; analysis rebuilds the signal from these values.",
         f"format_version = {_FORMAT_VERSION}",
         "",
         f"[{table}]",
-        f"kind = {_toml_value(kind)}",
+        f"kind = {toml_value(kind)}",
     ]
     for key, value in values.items():
         if value is not None:
-            lines.append(f"{key} = {_toml_value(value)}")
+            lines.append(f"{key} = {toml_value(value)}")
     return "\n".join(lines) + "\n"
 
 
@@ -310,10 +299,7 @@ def stimulus_from_toml(text: str, *, source: str | None = None) -> SweepSpec | N
         If the text is not TOML, has no ``[stimulus]`` table, names an unknown kind or
         carries an unknown or non-numeric key.
     """
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"not a valid TOML stimulus file: {exc}", source=source) from None
+    doc = parse_toml(text, source=source, error=SpecError)
     table = doc.get("stimulus")
     if not isinstance(table, dict):
         raise SpecError("no [stimulus] table in the stimulus file", source=source)
@@ -333,6 +319,30 @@ def stimulus_from_toml(text: str, *, source: str | None = None) -> SweepSpec | N
         "'pink-noise'",
         source=source,
     )
+
+
+def read_stimulus(path: str | Path) -> tuple[SweepSpec | NoiseSpec, str]:
+    """Read a stimulus sidecar file: the one reader of such files.
+
+    The file is read with :func:`piezo.io.text.read_text` (bounded size, UTF-8) and
+    parsed with :func:`stimulus_from_toml`. Returns the stimulus and the file's text
+    (kept by callers that record exactly what they analysed).
+
+    Raises
+    ------
+    SpecError
+        Missing, unreadable or invalid files, naming the file.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "s.stimulus.toml"
+    >>> _ = p.write_text(sweep_spec(20.0, 20000.0, 1.0, 48000.0).to_toml())
+    >>> read_stimulus(p)[0].stop_hz
+    20000.0
+    """
+    text = read_text(path, what="stimulus file", error=SpecError)
+    return stimulus_from_toml(text, source=str(path)), text
 
 
 def sweep_spec(

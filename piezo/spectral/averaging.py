@@ -44,6 +44,7 @@ import numpy as np
 import scipy.fft
 from scipy import signal
 
+from piezo import validate
 from piezo.errors import InputError
 
 __all__ = [
@@ -209,26 +210,13 @@ def segment_frames_for(sample_rate_hz: float, resolution_hz: float) -> int:
     return int(scipy.fft.next_fast_len(max(n, 2), real=True))
 
 
-def _check_rate(sample_rate_hz: float) -> float:
-    if not (isinstance(sample_rate_hz, int | float) and sample_rate_hz > 0):
-        raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
-    return float(sample_rate_hz)
-
-
-def _check_channels(channels: int) -> int:
-    if not (isinstance(channels, int | np.integer) and channels >= 1):
-        raise InputError(f"channels must be a positive integer, got {channels!r}")
-    return int(channels)
+_check_rate = validate.sample_rate
+_check_channels = validate.channel_count
 
 
 def _as_block(block: np.ndarray, channels: int) -> np.ndarray:
     """Validate a ``(frames, channels)`` block (1-D accepted for one channel)."""
-    x = np.asarray(block, dtype=np.float64)
-    if x.ndim == 1 and channels == 1:
-        x = x[:, None]
-    if x.ndim != 2 or x.shape[1] != channels:
-        raise InputError(f"block must have shape (frames, {channels}); got {np.shape(block)}")
-    return x
+    return validate.signal_block(block, channels)
 
 
 class Segmenter:

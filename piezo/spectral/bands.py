@@ -35,6 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal
 
+from piezo import validate
 from piezo._kernels.filters import SOSBank
 from piezo.errors import InputError
 from piezo.levels.weighting import FrequencyWeighting
@@ -403,10 +404,8 @@ class BandAnalyzer:
         interval_s: float | None = None,
         weighting: str = "Z",
     ) -> None:
-        if not (isinstance(sample_rate_hz, int | float) and sample_rate_hz > 0):
-            raise InputError(f"sample_rate_hz must be a positive number, got {sample_rate_hz!r}")
-        if not (isinstance(channels, int | np.integer) and channels >= 1):
-            raise InputError(f"channels must be a positive integer, got {channels!r}")
+        sample_rate_hz = validate.sample_rate(sample_rate_hz)
+        validate.channel_count(channels)
         self.fraction = _check_fraction(fraction)
         self.channels = int(channels)
         bands = fractional_octave_bands(
@@ -443,13 +442,7 @@ class BandAnalyzer:
 
     def update(self, block: np.ndarray) -> None:
         """Feed calibrated samples, shape ``(frames, channels)`` (1-D for one channel)."""
-        x = np.asarray(block, dtype=np.float64)
-        if x.ndim == 1 and self.channels == 1:
-            x = x[:, None]
-        if x.ndim != 2 or x.shape[1] != self.channels:
-            raise InputError(
-                f"block must have shape (frames, {self.channels}); got {np.shape(block)}"
-            )
+        x = validate.signal_block(block, self.channels)
         if x.shape[0] == 0:
             return
         # Long blocks are filtered in pieces, so the intermediate arrays of the stages

@@ -27,9 +27,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from piezo import validate
 from piezo.errors import InputError
 from piezo.spectral.bands import BandAnalyzer
-from piezo.spectral.welch import WelchPSD, _as_block, _check_rate
+from piezo.spectral.welch import WelchPSD
 
 __all__ = [
     "STATIONARITY_SPREAD_DB",
@@ -50,14 +51,14 @@ STATIONARITY_SPREAD_DB = 10.0
 
 
 def _rate(sample_rate_hz: float) -> float:
-    rate = _check_rate(sample_rate_hz)
+    rate = validate.sample_rate(sample_rate_hz)
     if not math.isfinite(rate):
         raise InputError(f"sample_rate_hz must be a finite number, got {sample_rate_hz!r}")
     return rate
 
 
 def _finite_block(block: np.ndarray, channels: int) -> np.ndarray:
-    arr = _as_block(block, channels)
+    arr = validate.signal_block(block, channels)
     if not np.all(np.isfinite(arr)):
         raise InputError("block contains NaN or infinite samples")
     return arr

@@ -74,7 +74,7 @@ def test_profile_with_charge_sensitivity(tmp_path):
 @pytest.mark.parametrize(
     ("text", "message"),
     [
-        ("[sensor\n", "invalid TOML"),
+        ("[sensor\n", "TOML syntax error"),
         ("[sense]\nx = 1\n", r"unknown section \[sense\]"),
         ('[sensor]\nsensitivty = "1 mV/Pa"\n', "unknown key sensor.sensitivty"),
         ('[sensor]\nsensitivity = "12 mV"\n', "sensor.sensitivity"),

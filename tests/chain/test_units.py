@@ -78,8 +78,12 @@ def test_parse_sensitivity(text, expected_v_per_pa):
 
 
 def test_charge_sensitivity_needs_charge_gain():
-    with pytest.raises(UnitError, match="charge-gain"):
+    # The library names its own argument, never a command-line option.
+    with pytest.raises(UnitError, match=r"^sensitivity: .*charge_gain_v_per_c") as info:
         parse_sensitivity("12 pC/Pa")
+    assert "--" not in str(info.value)
+    with pytest.raises(UnitError, match=r"^--sens: .*\(--charge-gain, "):
+        parse_sensitivity("12 pC/Pa", what="--sens", charge_gain_name="--charge-gain")
     # 12 pC/Pa through 1 mV/pC is 12 mV/Pa (charge amplifier textbook relation V = Q/Cf).
     gain = parse_charge_gain("1 mV/pC")
     assert gain == pytest.approx(1e9)
@@ -153,3 +157,17 @@ def test_parser_never_crashes_unexpectedly(text):
     except UnitError:
         return
     assert math.isfinite(value)
+
+
+@pytest.mark.parametrize(
+    ("parse", "text"),
+    [
+        (lambda t: parse_gain(t), "3 furlongs"),
+        (lambda t: parse_charge_gain(t), "1 mV"),
+        (lambda t: parse_sensitivity(t), "12 mV"),
+    ],
+)
+def test_default_names_are_arguments_not_options(parse, text):
+    with pytest.raises(UnitError) as info:
+        parse(text)
+    assert "--" not in str(info.value)

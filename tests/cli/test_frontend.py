@@ -115,7 +115,7 @@ def test_bad_design_gives_one_line_and_exit_2(cli, tmp_path):
     )
     assert r.out == ""
     r = cli("frontend", tmp_path / "none.toml")
-    assert r.code == 2 and "design file not found" in r.err
+    assert r.code == 2 and "cannot read design file: no such file" in r.err
 
 
 def test_simulate_writes_volts(cli, design, tone, tmp_path):

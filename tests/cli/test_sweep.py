@@ -221,7 +221,7 @@ def test_response_h1_command(cli, tmp_path):
 
 def test_fit_frontend_errors(cli, tmp_path):
     r = cli("fit-frontend", tmp_path / "missing.csv")
-    assert r.code == 2 and "not found" in r.err
+    assert r.code == 2 and "no such file" in r.err
     bad = tmp_path / "bad.csv"
     bad.write_text("100,1\n200,oops\n300,2\n")
     r = cli("fit-frontend", bad)

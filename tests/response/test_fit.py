@@ -279,6 +279,7 @@ def test_public_api_is_pinned():
         "format_response_csv",
         "highpass_magnitude_db",
         "parse_response_csv",
+        "read_response_table",
         "resonance_magnitude_db",
         "sensitivity_at",
     }

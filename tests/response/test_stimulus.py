@@ -163,7 +163,7 @@ def test_noise_sidecar_round_trip():
 @pytest.mark.parametrize(
     ("text", "match"),
     [
-        ("not toml [", "not a valid TOML"),
+        ("not toml [", "TOML syntax error"),
         ("[other]\nkind = 1\n", r"no \[stimulus\] table"),
         ('[stimulus]\nkind = "square"\n', "unknown stimulus kind 'square'"),
         ('[stimulus]\nkind = "exponential-sine-sweep"\nstart_hz = 20\n', "incomplete"),
