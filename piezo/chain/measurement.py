@@ -404,7 +404,10 @@ def resolve_chain(
     )
     if settings.sensitivity is not None:
         values["sensitivity_v_per_pa"] = parse_sensitivity(
-            settings.sensitivity, charge_gain_v_per_c=charge_gain, what="sensitivity"
+            settings.sensitivity,
+            charge_gain_v_per_c=charge_gain,
+            what="sensitivity",
+            charge_gain_name="charge_gain",
         )
         origin["sensitivity_v_per_pa"] = "option"
     if settings.gain is not None:

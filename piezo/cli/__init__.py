@@ -119,10 +119,16 @@ COMMANDS: tuple[Command, ...] = (
         "equalize", "frontend", "Undo a front-end's low-frequency roll-off down to a lower corner."
     ),
     Command(
-        "impedance", "impedance", "impedance of an element: equivalent circuit, fs, fp, Qm, k_eff"
+        "impedance",
+        "impedance",
+        "Impedance sweep of an element (CSV table, or a V/I capture with --shunt): fs, fp, "
+        "Qm, k_eff, C0 and the Butterworth–Van Dyke circuit per mode.",
     ),
     Command(
-        "ringdown", "ringdown", "decaying modes of taps and ring-downs: frequency, damping, Q"
+        "ringdown",
+        "ringdown",
+        "Tap and ring-down tests: events, modes (frequency, damping ratio, Q, decay rate) by "
+        "the matrix pencil method, averaged over repeated events.",
     ),
     Command(
         "check",

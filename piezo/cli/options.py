@@ -201,7 +201,12 @@ def option_message(message: str) -> str:
     "--full-scale: unknown unit in '2 A'"
     >>> option_message("rate must be positive, got '-1'")
     "--rate must be positive, got '-1'"
+    >>> option_message("sensitivity: give the gain too (charge_gain, e.g. '1 mV/pC')")
+    "--sensitivity: give the gain too (--charge-gain, e.g. '1 mV/pC')"
     """
+    for name, option in _OPTION_NAMES.items():
+        # A parameter named in parentheses, as a hint, is respelt too.
+        message = message.replace(f"({name},", f"({option},").replace(f"({name})", f"({option})")
     for name, option in _OPTION_NAMES.items():
         for sep in (":", " "):
             if message.startswith(name + sep):

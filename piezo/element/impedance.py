@@ -291,6 +291,8 @@ def read_impedance_csv(path: str | Path) -> ImpedanceSweep:
         value_columns=(),
         time_column=None,
         n_columns=n_columns,
+        # Read exactly what is there now (a file that grows is read as it was opened).
+        size_bytes=p.stat().st_size,
     )
     cols = [roles["frequency"][0], roles[a][0], roles[b][0]]
     parts: list[np.ndarray] = []

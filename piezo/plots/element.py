@@ -7,11 +7,10 @@ the fitted circuits' impedance on the plotted frequencies.
 from __future__ import annotations
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 
 from piezo.element.bvd import ImpedanceAnalysis
-from piezo.plots.style import plot_style, png_bytes, trace
+from piezo.plots import style
+from piezo.plots.style import axis_label, panels, plot_style, png_bytes, trace
 
 __all__ = ["impedance_figure"]
 
@@ -33,10 +32,7 @@ def impedance_figure(analysis: ImpedanceAnalysis, title: str) -> bytes:
     sweep = analysis.sweep
     f = sweep.frequency_hz
     with plot_style():
-        fig = Figure(figsize=(6.6, 4.6))
-        FigureCanvasAgg(fig)
-        fig.subplots_adjust(left=0.11, right=0.97, top=0.93, bottom=0.1, hspace=0.12)
-        ax_m, ax_p = fig.subplots(2, 1, sharex=True)
+        fig, (ax_m, ax_p) = panels(2, 6.6, 2.3, sharex=True)
         ax_m.loglog(f, sweep.magnitude_ohm, label="measured", **trace(0))
         ax_p.semilogx(f, sweep.phase_deg, **trace(0))
         for i, mode in enumerate(analysis.modes):
@@ -46,11 +42,11 @@ def impedance_figure(analysis: ImpedanceAnalysis, title: str) -> bytes:
             label = "fitted circuit" if i == 0 else None
             ax_m.loglog(g, np.abs(z), label=label, **trace(1))
             ax_p.semilogx(g, np.degrees(np.angle(z)), **trace(1))
-            ax_m.axvline(mode.fs_hz, color="0.6", linewidth=0.6)
-            ax_m.axvline(mode.fp_hz, color="0.6", linewidth=0.6, linestyle=":")
-        ax_m.set_ylabel("|Z| / Ω")
-        ax_p.set_ylabel("phase / °")
-        ax_p.set_xlabel("frequency / Hz")
+            ax_m.axvline(mode.fs_hz, color=style.RULE, linewidth=0.8)
+            ax_m.axvline(mode.fp_hz, color=style.RULE, linewidth=0.8, linestyle=":")
+        ax_m.set_ylabel(axis_label("|Z|", "Ω"))
+        ax_p.set_ylabel(axis_label("phase", "°"))
+        ax_p.set_xlabel(axis_label("frequency", "Hz"))
         ax_p.set_ylim(-95, 95)
         ax_m.set_title(f"{title}: impedance, fitted Butterworth–Van Dyke circuit")
         ax_m.legend(loc="best")

@@ -27,7 +27,7 @@ FS = 48000
 
 #: Modules of piezo/plots that hold figures (style is the style; element is drawn by the
 #: element's engineer and tested with it).
-FIGURE_MODULES = ("figures", "spectrum", "response", "frontend", "batch")
+FIGURE_MODULES = ("figures", "spectrum", "response", "frontend", "batch", "element")
 
 
 # ---------------------------------------------------------------------------------------
@@ -146,10 +146,21 @@ def _batch_cases():
     }
 
 
+def _element_cases():
+    from piezo.element.bvd import BvdCircuit, analyse_impedance
+    from piezo.element.impedance import ImpedanceSweep
+    from piezo.plots import element
+
+    c = BvdCircuit(2.2e-9, 35.0, 0.12, 0.25e-9)
+    f = np.linspace(27e3, 33e3, 601)
+    analysis = analyse_impedance(ImpedanceSweep(f, c.impedance(f)))
+    return {("element", "impedance_figure"): lambda: element.impedance_figure(analysis, "disc")}
+
+
 @pytest.fixture(scope="module")
 def cases(run, tmp_path_factory):
     tmp = tmp_path_factory.mktemp("figures")
-    return {**_report_cases(run), **_cli_cases(tmp), **_batch_cases()}
+    return {**_report_cases(run), **_cli_cases(tmp), **_batch_cases(), **_element_cases()}
 
 
 @pytest.fixture(scope="module")
