@@ -260,13 +260,13 @@ class Segmenter:
     Ten samples, segments of four with half overlap: starts 0, 2, 4, 6; the last two
     samples wait for the next block.
 
-    >>> seg = Segmenter(8.0, 1, segment_frames=4, window="rectangular", detrend=None)
+    >>> seg = Segmenter(80.0, 1, segment_frames=4, window="rectangular", detrend=None)
     >>> [(first, k) for first, k, _ in seg.feed(np.ones(10))]
     [(0, 4)]
     >>> [(first, k) for first, k, _ in seg.feed(np.ones(2))]
     [(4, 1)]
     >>> seg.segments, seg.frequency_hz().tolist()
-    (5, [0.0, 2.0, 4.0])
+    (5, [0.0, 20.0, 40.0])
     """
 
     def __init__(
