@@ -85,6 +85,11 @@ for _name in COMMAND_MODULES:
     importlib.import_module(f"piezo.cli.{_name}").register(app)
 
 
+def _interrupted() -> None:
+    sys.stderr.write("piezo: interrupted\n")
+    sys.exit(130)
+
+
 def main(argv: list[str] | None = None) -> None:
     """Console-script entry point."""
     args = sys.argv[1:] if argv is None else argv
@@ -100,9 +105,10 @@ def main(argv: list[str] | None = None) -> None:
         sys.stderr.write(f"piezo: error: {exc}\n")
         sys.exit(EXIT_USAGE)
     except KeyboardInterrupt:
-        sys.stderr.write("piezo: interrupted\n")
-        sys.exit(130)
-    except SystemExit:
+        _interrupted()
+    except SystemExit as exc:
+        if exc.code == 130:  # typer turns Ctrl-C inside a command into a silent exit 130
+            _interrupted()
         raise
     except Exception as exc:  # an unexpected failure is a bug, shown as one line
         if _state["debug"]:
