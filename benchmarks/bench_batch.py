@@ -179,7 +179,7 @@ class TreeMemory:
                     largest = max(largest, rss)
             self.peak_mb = max(self.peak_mb, total)
             self.largest_mb = max(self.largest_mb, largest)
-            self._stop.wait(0.05)
+            self._stop.wait(0.2)
 
     def stop(self) -> None:
         self._stop.set()

@@ -301,7 +301,7 @@ def evaluate_capture(
     for metric in spec.metrics:
         values[metric.name] = _extract(extractors, analysis, metric)
     verdict = judge(spec.metrics, values)
-    row = {
+    row: dict[str, Any] = {
         "file": display,
         "serial": serial or "",
         "verdict": verdict.verdict,
