@@ -186,6 +186,31 @@ class TreeMemory:
         self._thread.join()
 
 
+def _children_cpu_s() -> float:
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return kids.ru_utime + kids.ru_stime
+
+
+def tree_cpu_s(pids: list[int]) -> float:
+    """CPU seconds used so far by processes ``pids`` and their children."""
+    import psutil
+
+    total = 0.0
+    for pid in pids:
+        try:
+            root = psutil.Process(pid)
+            procs = [root, *root.children(recursive=True)]
+        except psutil.Error:
+            continue
+        for proc in procs:
+            try:
+                t = proc.cpu_times()
+            except psutil.Error:
+                continue
+            total += t.user + t.system
+    return total
+
+
 def cli_run(lot: Path, spec: Path, out: Path, option: list[str], watch: list[int]) -> dict:
     """``piezo batch`` as a fresh process; wall time and peak memory (with ``watch``)."""
     import shutil
@@ -194,12 +219,16 @@ def cli_run(lot: Path, spec: Path, out: Path, option: list[str], watch: list[int
     cmd = [sys.executable, "-m", "piezo", "batch", str(lot), "--spec", str(spec)]
     cmd += ["--out", str(out), "--json", *option]
     env = {**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parent.parent)}
+    watched_cpu0 = tree_cpu_s(watch)
+    cpu0 = _children_cpu_s()
     t0 = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
     memory = TreeMemory([proc.pid, *watch])
     stdout, stderr = proc.communicate()
     wall = time.perf_counter() - t0
     memory.stop()
+    # The command and its pool workers (reaped by it), plus the watched processes.
+    cpu = _children_cpu_s() - cpu0 + tree_cpu_s(watch) - watched_cpu0
     if proc.returncode not in (0, 1):
         raise RuntimeError(f"piezo batch failed ({proc.returncode}): {stderr.decode()}")
     doc = json.loads(stdout)
@@ -207,6 +236,7 @@ def cli_run(lot: Path, spec: Path, out: Path, option: list[str], watch: list[int
         "captures": doc["captures"],
         "counts": doc["counts"],
         "wall_s": wall,
+        "cpu_s": cpu,
         "peak_mb": memory.peak_mb,
         "largest_mb": memory.largest_mb,
     }
@@ -249,7 +279,8 @@ def side_by_side(root: Path, files: list[Path], spec: Path, rounds: int, corrupt
                 runs[name].append(r)
                 print(
                     f"round {k + 1}, {name}: {r['captures']} files in {r['wall_s']:.1f} s = "
-                    f"{r['captures'] / r['wall_s']:.1f} captures/s; peak memory "
+                    f"{r['captures'] / r['wall_s']:.3g} captures/s, CPU "
+                    f"{1e3 * r['cpu_s'] / r['captures']:.0f} ms per capture; peak memory "
                     f"{r['peak_mb']:.0f} MB in all, largest process {r['largest_mb']:.0f} MB; "
                     f"{r['counts']}"
                 )
@@ -259,10 +290,16 @@ def side_by_side(root: Path, files: list[Path], spec: Path, rounds: int, corrupt
     print("best rounds (other jobs on a shared machine only slow a run down):")
     for name in configs:
         print(
-            f"  {name:16s} {rate[name]:6.1f} captures/s, peak {best[name]['peak_mb']:.0f} MB "
+            f"  {name:16s} {rate[name]:6.3g} captures/s, peak {best[name]['peak_mb']:.0f} MB "
             f"in all (largest process {best[name]['largest_mb']:.0f} MB)"
         )
+    cpu = {name: r["cpu_s"] / r["captures"] for name, r in best.items()}
     print(f"  2 local workers / 1 worker = {two / one:.2f}x")
+    print(
+        f"  CPU per capture, Dask / 2 local workers = "
+        f"{cpu['Dask, 2 workers'] / cpu['2 local workers']:.2f} (load-independent view of "
+        "the cost; the in-process scheduler's CPU is not counted)"
+    )
     print(
         f"  Dask cost over the local pool of the same size = "
         f"{100 * (two / dask - 1):+.1f} % of its time (target <= 15 %)"
