@@ -689,6 +689,17 @@ def cluster_client(
     ------
     InputError
         If the scheduler cannot be reached, or no worker joined in time.
+
+    Examples
+    --------
+    An address that names no scheduler is refused before anything is judged (a
+    scheduler without workers is tested in ``tests/batch/test_runner.py``):
+
+    >>> with cluster_client("nothing://host:8786") as client:  # doctest: +ELLIPSIS
+    ...     pass
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --cluster: cannot connect to 'nothing://host:8786': unknown ...
     """
     client_class = _distributed().Client
     try:
