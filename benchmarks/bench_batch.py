@@ -15,6 +15,16 @@ Prints, all measured in this one run:
   increasing size: it must stay flat with the number of captures.
 
 Run: ``python benchmarks/bench_batch.py [--captures 2000] [--unique 200] [--rounds 2]``.
+
+With ``--side-by-side`` it measures instead, in one run, the whole ``piezo batch``
+command (process start, pool or cluster work, result files) on the lot plus
+``--corrupt`` (default 5 %) corrupt files (FLAC cut off half way): 1 and 2 local
+workers and a Dask cluster of 2 single-thread worker processes on this machine, with
+throughput ratios, peak resident memory of all processes involved, and a check that the
+three give byte-identical result files. The cluster is started before the timed runs
+(as a real one would be) and restarted before each of them, so its workers start cold
+like the pool's: ``python benchmarks/bench_batch.py --side-by-side --captures 300
+--unique 60 --rounds 2``.
 The machine may be shared: runs at 1 and 2 workers alternate and the best of each counts;
 CPU time per capture is printed beside wall time, as it does not depend on other jobs.
 Unique captures are hard-linked to make up the lot, so the disk holds ``--unique``
@@ -121,6 +131,185 @@ def make_lot(folder: Path, captures: int, unique: int) -> list[Path]:
             os.link(sources[i % unique], target)
         files.append(target)
     return files
+
+
+def add_corrupt(lot: Path, sources: list[Path], fraction: float) -> list[Path]:
+    """Add ``fraction`` x lot size corrupt captures: FLAC files cut off half way."""
+    count = round(fraction * len(list(lot.iterdir())))
+    files = []
+    for i in range(count):
+        data = sources[i % len(sources)].read_bytes()
+        target = lot / f"PD27-{90000 + i}.flac"
+        target.write_bytes(data[: len(data) // 2])
+        files.append(target)
+    return files
+
+
+class TreeMemory:
+    """Peak of the summed resident memory of some processes and all their children."""
+
+    def __init__(self, pids: list[int]) -> None:
+        import threading
+
+        import psutil
+
+        self._roots = [psutil.Process(p) for p in pids]
+        self.peak_mb = 0.0
+        self.largest_mb = 0.0
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._sample, daemon=True)
+        self._thread.start()
+
+    def _sample(self) -> None:
+        import psutil
+
+        while not self._stop.is_set():
+            total, largest = 0.0, 0.0
+            for root in self._roots:
+                try:
+                    procs = [root, *root.children(recursive=True)]
+                except psutil.Error:
+                    continue
+                for proc in procs:
+                    try:
+                        rss = proc.memory_info().rss / 2**20
+                    except psutil.Error:
+                        continue
+                    total += rss
+                    largest = max(largest, rss)
+            self.peak_mb = max(self.peak_mb, total)
+            self.largest_mb = max(self.largest_mb, largest)
+            self._stop.wait(0.2)
+
+    def stop(self) -> None:
+        self._stop.set()
+        self._thread.join()
+
+
+def _children_cpu_s() -> float:
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return kids.ru_utime + kids.ru_stime
+
+
+def tree_cpu_s(pids: list[int]) -> float:
+    """CPU seconds used so far by processes ``pids`` and their children."""
+    import psutil
+
+    total = 0.0
+    for pid in pids:
+        try:
+            root = psutil.Process(pid)
+            procs = [root, *root.children(recursive=True)]
+        except psutil.Error:
+            continue
+        for proc in procs:
+            try:
+                t = proc.cpu_times()
+            except psutil.Error:
+                continue
+            total += t.user + t.system
+    return total
+
+
+def cli_run(lot: Path, spec: Path, out: Path, option: list[str], watch: list[int]) -> dict:
+    """``piezo batch`` as a fresh process; wall time and peak memory (with ``watch``)."""
+    import shutil
+
+    shutil.rmtree(out, ignore_errors=True)
+    cmd = [sys.executable, "-m", "piezo", "batch", str(lot), "--spec", str(spec)]
+    cmd += ["--out", str(out), "--json", *option]
+    env = {**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parent.parent)}
+    watched_cpu0 = tree_cpu_s(watch)
+    cpu0 = _children_cpu_s()
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
+    memory = TreeMemory([proc.pid, *watch])
+    stdout, stderr = proc.communicate()
+    wall = time.perf_counter() - t0
+    memory.stop()
+    # The command and its pool workers (reaped by it), plus the watched processes.
+    cpu = _children_cpu_s() - cpu0 + tree_cpu_s(watch) - watched_cpu0
+    if proc.returncode not in (0, 1):
+        raise RuntimeError(f"piezo batch failed ({proc.returncode}): {stderr.decode()}")
+    doc = json.loads(stdout)
+    return {
+        "captures": doc["captures"],
+        "counts": doc["counts"],
+        "wall_s": wall,
+        "cpu_s": cpu,
+        "peak_mb": memory.peak_mb,
+        "largest_mb": memory.largest_mb,
+    }
+
+
+def side_by_side(root: Path, files: list[Path], spec: Path, rounds: int, corrupt: float) -> None:
+    """1 and 2 local workers and Dask with 2 workers, whole command, in one run."""
+    import distributed
+    import psutil
+
+    bad = add_corrupt(root / "lot", sorted(root.glob("src-*.flac")), corrupt)
+    n = len(files) + len(bad)
+    print(f"side by side: {len(files)} captures + {len(bad)} corrupt = {n} files")
+    with (
+        distributed.LocalCluster(
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            dashboard_address=None,
+            host="127.0.0.1",
+        ) as cluster,
+        distributed.Client(cluster) as client,
+    ):
+        configs = {
+            "1 local worker": ["--workers", "1"],
+            "2 local workers": ["--workers", "2"],
+            "Dask, 2 workers": ["--cluster", cluster.scheduler_address],
+        }
+        runs: dict[str, list[dict]] = {name: [] for name in configs}
+        for k in range(rounds):
+            for name, option in configs.items():
+                watch: list[int] = []
+                if option[0] == "--cluster":
+                    client.restart()  # cold workers, like a fresh pool
+                    # The nannies (with their workers) are this process's children; the
+                    # scheduler runs in this process and is not counted.
+                    watch = [c.pid for c in psutil.Process().children()]
+                out = root / f"side-{name.split(',')[0].replace(' ', '-')}"
+                r = cli_run(root / "lot", spec, out, option, watch)
+                runs[name].append(r)
+                print(
+                    f"round {k + 1}, {name}: {r['captures']} files in {r['wall_s']:.1f} s = "
+                    f"{r['captures'] / r['wall_s']:.3g} captures/s, CPU "
+                    f"{1e3 * r['cpu_s'] / r['captures']:.0f} ms per capture; peak memory "
+                    f"{r['peak_mb']:.0f} MB in all, largest process {r['largest_mb']:.0f} MB; "
+                    f"{r['counts']}"
+                )
+    best = {name: min(rs, key=lambda r: r["wall_s"]) for name, rs in runs.items()}
+    rate = {name: r["captures"] / r["wall_s"] for name, r in best.items()}
+    one, two, dask = (rate[name] for name in configs)
+    print("best rounds (other jobs on a shared machine only slow a run down):")
+    for name in configs:
+        print(
+            f"  {name:16s} {rate[name]:6.3g} captures/s, peak {best[name]['peak_mb']:.0f} MB "
+            f"in all (largest process {best[name]['largest_mb']:.0f} MB)"
+        )
+    cpu = {name: r["cpu_s"] / r["captures"] for name, r in best.items()}
+    print(f"  2 local workers / 1 worker = {two / one:.2f}x")
+    print(
+        f"  CPU per capture, Dask / 2 local workers = "
+        f"{cpu['Dask, 2 workers'] / cpu['2 local workers']:.2f} (load-independent view of "
+        "the cost; the in-process scheduler's CPU is not counted)"
+    )
+    print(
+        f"  Dask cost over the local pool of the same size = "
+        f"{100 * (two / dask - 1):+.1f} % of its time (target <= 15 %)"
+    )
+    names = ("results.csv", "results.json", "junit.xml")
+    outs = [root / f"side-{name.split(',')[0].replace(' ', '-')}" for name in configs]
+    same = all(
+        (outs[0] / f).read_bytes() == (other / f).read_bytes() for other in outs[1:] for f in names
+    )
+    print(f"results.csv, results.json, junit.xml byte-identical across the three: {same}")
 
 
 def null_job(path: str, *, display: str) -> dict:
@@ -236,6 +425,12 @@ def main() -> None:
     parser.add_argument("--unique", type=int, default=200)
     parser.add_argument("--rounds", type=int, default=2, help="runs at 1 and at 2 workers")
     parser.add_argument("--dir", type=Path, default=None, help="work folder (default: temp)")
+    parser.add_argument(
+        "--side-by-side",
+        action="store_true",
+        help="only the whole-command comparison of 1, 2 local workers and Dask with 2",
+    )
+    parser.add_argument("--corrupt", type=float, default=0.05, help="corrupt share (side by side)")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory(prefix="piezo-bench-batch-") as tmp:
         root = args.dir or Path(tmp)
@@ -247,6 +442,9 @@ def main() -> None:
             f"lot: {len(files)} captures of 2 s at 48 kHz ({args.unique} unique), "
             f"generated in {time.perf_counter() - t0:.0f} s; {os.cpu_count()} cores"
         )
+        if args.side_by_side:
+            side_by_side(root, files, spec, args.rounds, args.corrupt)
+            return
 
         split = analysis_split(files, spec, sample=40)
         overhead = split["job_s"] - split["analysis_s"]

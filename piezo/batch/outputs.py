@@ -12,10 +12,17 @@ bytes, whatever order they were computed in.
 
 from __future__ import annotations
 
+import contextlib
+import datetime
 import json
 import math
 import os
 import re
+import socket
+import stat
+import sys
+import time
+import urllib.parse
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
@@ -33,19 +40,24 @@ from piezo.batch.stats import (
     yield_fraction,
 )
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, VERDICTS, WARN
-from piezo.io.atomic import output_folder, write_bytes_atomic
+from piezo.errors import OutputError
+from piezo.io.atomic import open_no_follow, output_folder, refuse_link, write_bytes_atomic
 from piezo.io.tables import csv_text
 from piezo.plots.batch import histogram_figure, response_figure
 from piezo.report.html import data_uri, render_page
 
 __all__ = [
     "JOURNAL_NAME",
+    "LOCK_NAME",
     "RESULT_FILES",
     "Journal",
+    "OutputLock",
     "capture_report_html",
     "junit_xml_text",
+    "pid_alive",
     "read_previous_rows",
-    "report_file_name",
+    "report_link",
+    "report_page_names",
     "results_csv_text",
     "results_json_text",
     "summarize",
@@ -60,11 +72,30 @@ JOURNAL_NAME = ".piezo-batch-journal.jsonl"
 
 
 class Journal:
-    """Append-only record of finished rows, one JSON document per line."""
+    """Append-only record of finished rows, one JSON document per line.
+
+    The journal is opened without following links: a symbolic link (or a second hard
+    link) planted at its name in the output folder is refused with
+    :class:`~piezo.errors.OutputError`, and what it points to is left untouched. A new
+    journal (``keep=False``) replaces the name, never truncating a file in place.
+    """
 
     def __init__(self, out_dir: str | Path, *, keep: bool) -> None:
         self.path = Path(out_dir) / JOURNAL_NAME
-        self._fh = open(self.path, "a" if keep else "w", encoding="utf-8")
+        flags = os.O_WRONLY | os.O_CREAT | os.O_APPEND
+        if not keep:
+            refuse_link(self.path)
+            with contextlib.suppress(FileNotFoundError):
+                self.path.unlink()
+            flags |= os.O_EXCL
+        try:
+            fd = open_no_follow(self.path, flags)
+        except FileExistsError:  # created by someone else since the unlink
+            raise OutputError(
+                "appeared while starting; refusing to use it", source=str(self.path)
+            ) from None
+        _refuse_shared(fd, self.path)
+        self._fh = os.fdopen(fd, "a", encoding="utf-8")
 
     def add(self, row: Mapping[str, Any]) -> None:
         self._fh.write(json.dumps(row, sort_keys=True, separators=(",", ":")) + "\n")
@@ -76,29 +107,176 @@ class Journal:
             self.path.unlink(missing_ok=True)
 
 
+def _refuse_shared(fd: int, path: Path) -> None:
+    """Close ``fd`` and refuse ``path`` unless it is a plain file with one name."""
+    info = os.fstat(fd)
+    if not stat.S_ISREG(info.st_mode) or info.st_nlink > 1:
+        os.close(fd)
+        what = "is not a plain file" if not stat.S_ISREG(info.st_mode) else "has other hard links"
+        raise OutputError(f"{what}; refusing to write to it", source=str(path))
+
+
+def _read_no_follow(path: Path, limit: int | None = None) -> str | None:
+    """Text of ``path`` (UTF-8, bad bytes replaced), None if missing; links refused."""
+    try:
+        fd = open_no_follow(path, os.O_RDONLY)
+    except OutputError:
+        if path.is_symlink():
+            raise
+        return None
+    with os.fdopen(fd, "rb") as fh:
+        data = fh.read() if limit is None else fh.read(limit)
+    return data.decode("utf-8", errors="replace")
+
+
+#: Marks an output folder as used by a running batch (pid, host, start time; JSON).
+LOCK_NAME = ".piezo-batch.lock"
+
+#: A lock file that cannot be parsed is taken as a run's start being written at this
+#: moment, unless it is older than this (a run killed between creating and filling it).
+_LOCK_UNREADABLE_STALE_S = 10.0
+
+
+class OutputLock:
+    """One batch run at a time in an output folder.
+
+    :meth:`acquire` creates ``LOCK_NAME`` exclusively (never through a link) holding
+    the process id, host name and start time. A lock left by a run that was killed (its
+    host is this host and its process no longer runs) is recognised as stale and taken
+    over; any other lock refuses the run with :class:`~piezo.errors.OutputError`.
+    A lock from another host is never taken over: this host cannot tell whether that
+    run still lives; the message says which host and process to check.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> folder = tempfile.mkdtemp()
+    >>> lock = OutputLock(folder)
+    >>> lock.acquire()
+    >>> OutputLock(folder).acquire()  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    piezo.errors.OutputError: ...: in use by another batch run (process ... on ..., since ...)...
+    >>> lock.release()
+    >>> OutputLock(folder).acquire()
+    """
+
+    def __init__(self, out_dir: str | Path) -> None:
+        self.folder = Path(out_dir)
+        self.path = self.folder / LOCK_NAME
+        self._text: str | None = None
+
+    def acquire(self) -> None:
+        """Take the folder, or raise :class:`OutputError` if another run uses it."""
+        text = json.dumps(
+            {
+                "pid": os.getpid(),
+                "host": socket.gethostname(),
+                "started": datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+            },
+            sort_keys=True,
+        )
+        for attempt in range(2):
+            try:
+                fd = open_no_follow(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
+            except FileExistsError:
+                holder = self._holder()
+                if attempt == 0 and holder is None:
+                    with contextlib.suppress(FileNotFoundError):
+                        self.path.unlink()  # stale: removes the name only, never a target
+                    continue
+                raise OutputError(
+                    f"in use by another batch run ({holder}); if that run has ended, "
+                    f"remove {LOCK_NAME} from the folder",
+                    source=str(self.folder),
+                ) from None
+            with os.fdopen(fd, "w", encoding="utf-8") as fh:
+                fh.write(text + "\n")
+                fh.flush()
+                os.fsync(fh.fileno())
+            self._text = text + "\n"
+            return
+
+    def _holder(self) -> str | None:
+        """Who holds the lock, or None if the lock is stale."""
+        raw = _read_no_follow(self.path, 4096)
+        if raw is None:
+            return None  # removed meanwhile
+        try:
+            info = json.loads(raw)
+            pid, host, started = int(info["pid"]), str(info["host"]), str(info["started"])
+        except (ValueError, KeyError, TypeError):
+            with contextlib.suppress(OSError):
+                age = time.time() - self.path.lstat().st_mtime
+                if age > _LOCK_UNREADABLE_STALE_S:
+                    return None
+            return "a run that is starting"
+        if host == socket.gethostname() and pid != os.getpid() and not pid_alive(pid):
+            return None
+        return f"process {pid} on {host}, since {started}"
+
+    def release(self) -> None:
+        """Remove the lock if it is still the one this run wrote."""
+        if self._text is None:
+            return
+        with contextlib.suppress(OSError):
+            if _read_no_follow(self.path, 4096) == self._text:
+                self.path.unlink()
+        self._text = None
+
+
+def pid_alive(pid: int) -> bool:
+    """True if a process with id ``pid`` runs on this host.
+
+    Examples
+    --------
+    >>> pid_alive(os.getpid())
+    True
+    """
+    if pid <= 0:
+        return False
+    if sys.platform == "win32":
+        import ctypes
+
+        kernel32 = ctypes.windll.kernel32  # type: ignore[attr-defined]
+        handle = kernel32.OpenProcess(0x00100000 | 0x1000, False, pid)  # SYNCHRONIZE | QUERY
+        if not handle:
+            return False
+        try:
+            return bool(kernel32.WaitForSingleObject(handle, 0) == 0x102)  # WAIT_TIMEOUT
+        finally:
+            kernel32.CloseHandle(handle)
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # runs, as another user
+        return True
+    return True
+
+
 def read_previous_rows(out_dir: str | Path) -> list[dict[str, Any]]:
     """Rows of an earlier run in ``out_dir``: results.json and an interrupted run's journal.
 
-    A journal line cut off by the interruption is ignored. Missing files give no rows.
+    A journal line cut off by the interruption is ignored. Missing files give no rows;
+    either file being a symbolic link is refused (:class:`OutputError`).
     """
     rows: list[dict[str, Any]] = []
-    results = Path(out_dir) / "results.json"
-    if results.is_file():
+    text = _read_no_follow(Path(out_dir) / "results.json")
+    if text is not None:
         try:
-            data = json.loads(results.read_text(encoding="utf-8"))
+            data = json.loads(text)
             rows.extend(r for r in data.get("results", []) if isinstance(r, dict))
-        except (OSError, ValueError, AttributeError):
+        except (ValueError, AttributeError):
             pass
-    journal = Path(out_dir) / JOURNAL_NAME
-    if journal.is_file():
-        with open(journal, encoding="utf-8", errors="replace") as fh:
-            for line in fh:
-                try:
-                    row = json.loads(line)
-                except ValueError:
-                    continue
-                if isinstance(row, dict):
-                    rows.append(row)
+    text = _read_no_follow(Path(out_dir) / JOURNAL_NAME)
+    for line in (text or "").splitlines():
+        try:
+            row = json.loads(line)
+        except ValueError:
+            continue
+        if isinstance(row, dict):
+            rows.append(row)
     return rows
 
 
@@ -315,10 +493,32 @@ def summary_html_text(
     )
 
 
-def report_file_name(file: str) -> str:
-    """A flat, safe file name for a capture's report (unique per capture path)."""
-    stem = re.sub(r"[^A-Za-z0-9._-]+", "_", file.replace(os.sep, "__").replace("/", "__"))
-    return stem.strip("._") + ".html"
+def report_page_names(files: Iterable[str]) -> dict[str, str]:
+    """File name of each capture's report page (``reports/<name>``), unique in the run.
+
+    The capture's path with its folders joined by ``__`` (``lot/b/SN1.wav`` ->
+    ``lot__b__SN1.wav.html``), made safe and unique by the naming rule of
+    :mod:`piezo.report.names` that ``piezo report`` uses too. Names are handed out in
+    sorted path order, so they do not depend on the order captures finish in.
+
+    Examples
+    --------
+    >>> report_page_names(["lot/PD27-32001 x.flac", "lot/PD27-32001_x.flac", "Ölpumpe.wav"])
+    ... # doctest: +NORMALIZE_WHITESPACE
+    {'lot/PD27-32001 x.flac': 'lot__PD27-32001 x.flac.html',
+     'lot/PD27-32001_x.flac': 'lot__PD27-32001_x.flac.html',
+     'Ölpumpe.wav': 'Ölpumpe.wav.html'}
+    >>> report_page_names(["a/b.wav", "a__b.wav"])
+    {'a/b.wav': 'a__b.wav.html', 'a__b.wav': 'a__b.wav-2.html'}
+    """
+    from piezo.report.names import UniqueNames
+
+    names = UniqueNames()
+    pages = {}
+    for file in sorted(set(files)):
+        flat = file.replace(os.sep, "__").replace("/", "__").lstrip("_")
+        pages[file] = names.claim(flat, ending=".html")
+    return {file: pages[file] for file in files}
 
 
 def capture_report_html(
@@ -402,17 +602,40 @@ def write_capture_report(
     row: Mapping[str, Any],
     spec: Spec,
     data: Mapping[str, Any] | None = None,
+    *,
+    name: str | None = None,
 ) -> str:
-    """Write ``out_dir/reports/<file>.html`` for one capture; return its relative link."""
+    """Write ``out_dir/reports/<name>`` for one capture; return its relative link.
+
+    ``name`` defaults to the capture's own name from :func:`report_page_names` (give
+    the run's names to keep colliding captures apart). A ``reports`` folder that is a
+    symbolic link is refused (:class:`OutputError`).
+    """
     folder = output_folder(Path(out_dir) / "reports", within=out_dir)
-    name = report_file_name(row["file"])
+    name = report_page_names([row["file"]])[row["file"]] if name is None else name
     page = capture_report_html(row, spec, data).encode("utf-8")
     write_bytes_atomic(folder / name, page, within=out_dir)
-    return f"reports/{name}"
+    return report_link(name)
+
+
+def report_link(name: str) -> str:
+    """Relative link from summary.html to the report page ``name`` (percent-encoded).
+
+    Examples
+    --------
+    >>> report_link("lot__PD27 x.flac.html")
+    'reports/lot__PD27%20x.flac.html'
+    """
+    return "reports/" + urllib.parse.quote(name)
 
 
 def write_capture_reports(
     out_dir: str | Path, rows: Iterable[Mapping[str, Any]], spec: Spec
 ) -> dict[str, str]:
     """Write one report (without curves) per capture; return file -> link."""
-    return {row["file"]: write_capture_report(out_dir, row, spec) for row in rows}
+    rows = list(rows)
+    names = report_page_names([row["file"] for row in rows])
+    return {
+        row["file"]: write_capture_report(out_dir, row, spec, name=names[row["file"]])
+        for row in rows
+    }

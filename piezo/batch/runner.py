@@ -17,6 +17,9 @@ import hashlib
 import multiprocessing
 import os
 import re
+import sys
+import threading
+import time
 import traceback
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from concurrent.futures.process import BrokenProcessPool
@@ -31,8 +34,10 @@ from piezo.errors import InputError, PiezoError
 
 __all__ = [
     "CAPTURE_SUFFIXES",
+    "WORKER_WAIT_S",
     "Capture",
     "CaptureAnalysis",
+    "cluster_client",
     "content_sha256",
     "error_row",
     "evaluate_capture",
@@ -48,6 +53,15 @@ _GLOB_CHARS = re.compile(r"[*?\[]")
 
 #: Seconds to wait for a Dask scheduler before giving up on ``--cluster``.
 CLUSTER_CONNECT_TIMEOUT_S = 20
+
+#: Seconds to wait, by default, for a first worker to join a reachable Dask scheduler.
+WORKER_WAIT_S = 60.0
+
+#: How often a local worker process checks that the process that started it still runs.
+PARENT_CHECK_S = 0.5
+
+#: Largest number of captures sent to a Dask worker as one task (see :func:`_run_dask`).
+CLUSTER_CHUNK_MAX = 16
 
 
 def expand_inputs(inputs: Iterable[str]) -> list[str]:
@@ -295,6 +309,7 @@ def run_batch(
     previous: Mapping[tuple[str, str], Mapping[str, Any]] | None = None,
     on_row: RowCallback | None = None,
     job: Job | None = None,
+    worker_wait_s: float = WORKER_WAIT_S,
 ) -> list[dict[str, Any]]:
     """Judge every capture of ``paths`` and return the rows sorted by file.
 
@@ -320,6 +335,13 @@ def run_batch(
     job
         ``job(path, display=...) -> row``; default :func:`evaluate_capture` bound to
         ``spec``. Must be picklable for process pools and clusters.
+    worker_wait_s
+        With ``cluster``: seconds to wait for a first worker to join the scheduler
+        before giving up with :class:`InputError` (see :func:`cluster_client`).
+
+    Local worker processes end when this process ends, even when it is killed (each
+    watches its parent); an interruption (``KeyboardInterrupt``) stops them at once
+    and is raised again, with the rows finished so far already passed to ``on_row``.
     """
     job = functools.partial(evaluate_capture, spec=spec) if job is None else job
     callback = on_row if on_row is not None else (lambda row, reused: None)
@@ -347,7 +369,11 @@ def run_batch(
         callback(row, False)
 
     if cluster is not None:
-        _run_dask(todo, job, cluster, finished, spec)
+        if hasattr(cluster, "submit"):
+            _run_dask(todo, job, cluster, finished, spec, worker_wait_s)
+        else:
+            with cluster_client(cluster, worker_wait_s=worker_wait_s) as client:
+                _run_dask(todo, job, client, finished, spec, worker_wait_s)
     else:
         n = (os.cpu_count() or 1) if workers is None else workers
         if n < 1:
@@ -417,7 +443,7 @@ def _pool_loop(
     while queue or suspects:
         isolate = bool(suspects)
         pending = suspects if isolate else queue
-        with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+        with _worker_pool(workers, context) as pool:
             inflight: dict[cf.Future[dict[str, Any]], str] = {}
             broken = False
             while pending or inflight:
@@ -456,49 +482,245 @@ def _pool_loop(
                 suspects.clear()
 
 
-def _run_dask(
-    paths: Sequence[str],
-    job: Job,
-    cluster: Any,
-    finished: Callable[[dict[str, Any]], None],
-    spec: Spec,
-) -> None:
-    """Run on a Dask distributed cluster, bounded number of tasks in flight."""
+@contextlib.contextmanager
+def _worker_pool(workers: int, context: Any) -> Iterator[cf.ProcessPoolExecutor]:
+    """A process pool whose workers die with this process; stopped at once on an error.
+
+    Leaving the block normally waits for the workers to finish; leaving it by an
+    exception (an interruption) cancels what is queued and terminates the workers
+    instead of waiting for the captures in flight.
+    """
+    pool = cf.ProcessPoolExecutor(
+        max_workers=workers,
+        mp_context=context,
+        initializer=_watch_parent,
+        initargs=(os.getpid(),),
+    )
     try:
-        from distributed import Client, as_completed
+        yield pool
+    except BaseException:
+        _stop_pool(pool)
+        raise
+    pool.shutdown(wait=True)
+
+
+def _stop_pool(pool: cf.ProcessPoolExecutor) -> None:
+    # The executor has no public way to end running workers; its process table does.
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for process in processes:
+        with contextlib.suppress(Exception):
+            process.terminate()
+    for process in processes:
+        with contextlib.suppress(Exception):
+            process.join(timeout=5)
+
+
+def _watch_parent(parent_pid: int) -> None:
+    """Initializer of a local worker process: end it when its parent process ends.
+
+    A worker left behind by a killed batch (``kill -9``) would hold its memory and the
+    multiprocessing resource tracker for minutes. Three guards, each sufficient:
+
+    - on Linux, the kernel sends the worker SIGKILL when its parent dies
+      (``prctl(PR_SET_PDEATHSIG)``);
+    - a daemon thread waits on the pipe the parent holds open for its child
+      (``multiprocessing.parent_process().sentinel``), which ends at the parent's death
+      on every platform;
+    - the same thread checks every :data:`PARENT_CHECK_S` seconds that the parent's
+      process id is still this process's parent (a POSIX orphan is re-parented).
+
+    Ctrl-C on a terminal signals the whole process group; the workers ignore it, and
+    the main process stops them (see :func:`_worker_pool`).
+    """
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _kill_with_parent_on_linux()
+    if _parent_gone(parent_pid):
+        os._exit(1)
+    parent = multiprocessing.parent_process()
+    sentinel = parent.sentinel if parent is not None else None
+    threading.Thread(
+        target=_parent_watch_loop, args=(parent_pid, sentinel), name="piezo-parent", daemon=True
+    ).start()
+
+
+def _parent_gone(parent_pid: int) -> bool:
+    return sys.platform != "win32" and os.getppid() != parent_pid
+
+
+def _parent_watch_loop(parent_pid: int, sentinel: Any) -> None:
+    from multiprocessing.connection import wait
+
+    while True:
+        if sentinel is not None:
+            if wait([sentinel], timeout=PARENT_CHECK_S):
+                os._exit(1)
+        else:
+            time.sleep(PARENT_CHECK_S)
+        if _parent_gone(parent_pid):
+            os._exit(1)
+
+
+def _kill_with_parent_on_linux() -> None:
+    if not sys.platform.startswith("linux"):
+        return
+    import ctypes
+    import signal
+
+    pr_set_pdeathsig = 1  # from <linux/prctl.h>
+    with contextlib.suppress(OSError, AttributeError):
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(pr_set_pdeathsig, int(signal.SIGKILL), 0, 0, 0)
+
+
+# ---------------------------------------------------------------------------------------
+# Dask distributed.
+
+
+def _distributed() -> Any:
+    try:
+        import distributed
     except ImportError:
         raise InputError(
             "--cluster needs the optional package 'distributed' (pip install 'piezo[cluster]')"
         ) from None
-    own = not hasattr(cluster, "submit")
+    return distributed
+
+
+@contextlib.contextmanager
+def cluster_client(
+    address: str,
+    *,
+    worker_wait_s: float = WORKER_WAIT_S,
+    on_wait: Callable[[float], None] | None = None,
+) -> Iterator[Any]:
+    """A ``distributed.Client`` of the scheduler at ``address`` with at least one worker.
+
+    Connecting gives up after :data:`CLUSTER_CONNECT_TIMEOUT_S` seconds; a reachable
+    scheduler without workers is waited for at most ``worker_wait_s`` seconds, calling
+    ``on_wait(waited_s)`` about four times a second meanwhile (for a progress display).
+
+    Raises
+    ------
+    InputError
+        If the scheduler cannot be reached, or no worker joined in time.
+
+    Examples
+    --------
+    An address that names no scheduler is refused before anything is judged (a
+    scheduler without workers is tested in ``tests/batch/test_runner.py``):
+
+    >>> with cluster_client("nothing://host:8786") as client:  # doctest: +ELLIPSIS
+    ...     pass
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --cluster: cannot connect to 'nothing://host:8786': unknown ...
+    """
+    client_class = _distributed().Client
     try:
-        client = Client(cluster, timeout=f"{CLUSTER_CONNECT_TIMEOUT_S}s") if own else cluster
+        client = client_class(address, timeout=f"{CLUSTER_CONNECT_TIMEOUT_S}s")
     except (OSError, TimeoutError, ValueError) as exc:
-        raise InputError(f"--cluster: cannot connect to {cluster!r}: {exc}") from None
+        raise InputError(f"--cluster: cannot connect to {address!r}: {exc}") from None
     try:
-        workers = max(1, sum(client.nthreads().values()))
-        window = workers * 4
-        queue = list(reversed(paths))
-        names: dict[Any, str] = {}
-        seq = as_completed()
+        _wait_for_workers(client, address, worker_wait_s, on_wait)
+        yield client
+    finally:
+        client.close()
 
-        def submit() -> None:
-            path = queue.pop()
-            fut = client.submit(job, str(Path(path).resolve()), display=path, pure=False)
-            names[fut] = path
-            seq.add(fut)
 
-        while queue and len(names) < window:
+def _wait_for_workers(
+    client: Any, address: Any, wait_s: float, on_wait: Callable[[float], None] | None
+) -> int:
+    """Threads of the cluster's workers, once there is at least one; bounded wait."""
+    start = time.monotonic()
+    while True:
+        threads = sum(client.nthreads().values())
+        if threads:
+            return int(threads)
+        waited = time.monotonic() - start
+        if waited >= wait_s:
+            where = address if isinstance(address, str) else getattr(client, "scheduler", "")
+            where = getattr(where, "address", where)
+            raise InputError(
+                f"--cluster: no workers joined the scheduler at {where!r} within {wait_s:g} s"
+            )
+        if on_wait is not None:
+            on_wait(waited)
+        time.sleep(min(0.25, wait_s - waited))
+
+
+def _run_chunk(job: Job, items: Sequence[tuple[str, str]]) -> list[tuple[bool, Any]]:
+    """Cluster task: run ``job`` on several captures; ``(True, row)`` or
+    ``(False, message)`` for each, in order."""
+    out: list[tuple[bool, Any]] = []
+    for path, display in items:
+        try:
+            out.append((True, job(path, display=display)))
+        except Exception as exc:  # reported as that capture's error row
+            out.append((False, f"cluster task failed: {_describe(exc)}"))
+    return out
+
+
+def _run_dask(
+    paths: Sequence[str],
+    job: Job,
+    client: Any,
+    finished: Callable[[dict[str, Any]], None],
+    spec: Spec,
+    worker_wait_s: float,
+) -> None:
+    """Run on a Dask distributed cluster, several captures per task.
+
+    The job (with its spec, golden tables and masks) is sent to the workers once and
+    stays there; each task then carries only file names, and returns its rows in one
+    message. Task sizes shrink as the queue empties (guided self-scheduling), so the
+    workers still finish together: ``remaining / (4 x threads)`` captures, at most
+    :data:`CLUSTER_CHUNK_MAX`, at least 1. Twice as many tasks as worker threads are in
+    flight. A task that fails as a whole (a lost worker) is tried again one capture per
+    task; a capture that fails alone becomes an error row.
+    """
+    as_completed = _distributed().as_completed
+    threads = _wait_for_workers(client, client, worker_wait_s, None)
+    queue = [(str(Path(p).resolve()), p) for p in reversed(paths)]
+    retry: list[tuple[str, str]] = []
+    resident = client.scatter(job, broadcast=True, hash=False) if queue else None
+    names: dict[Any, list[tuple[str, str]]] = {}
+    seq = as_completed()
+
+    def submit() -> None:
+        if retry:
+            chunk = [retry.pop()]
+        else:
+            size = max(1, min(CLUSTER_CHUNK_MAX, len(queue) // (4 * threads)))
+            chunk = [queue.pop() for _ in range(min(size, len(queue)))]
+        fut = client.submit(_run_chunk, resident, chunk, pure=False)
+        names[fut] = chunk
+        seq.add(fut)
+
+    try:
+        while (queue or retry) and len(names) < 2 * threads:
             submit()
         for fut in seq:
-            path = names.pop(fut)
+            chunk = names.pop(fut)
             try:
-                finished(fut.result())
+                results = fut.result()
             except Exception as exc:  # a lost worker, a pickling problem
-                finished(error_row(path, spec, f"cluster task failed: {_describe(exc)}"))
+                if len(chunk) > 1:
+                    retry.extend(reversed(chunk))
+                else:
+                    path = chunk[0][1]
+                    finished(error_row(path, spec, f"cluster task failed: {_describe(exc)}"))
+                results = []
+            for (_, display), (ok, value) in zip(chunk, results, strict=False):
+                finished(value if ok else error_row(display, spec, value))
             fut.release()
-            if queue:
+            while (queue or retry) and len(names) < 2 * threads:
                 submit()
+    except BaseException:
+        client.cancel(list(names))
+        raise
     finally:
-        if own:
-            client.close()
+        if resident is not None:
+            resident.release()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import functools
 from pathlib import Path
 from typing import Annotated, Any
@@ -12,18 +13,29 @@ from rich.table import Table
 from piezo.batch.lot import LotVerdicts
 from piezo.batch.outputs import (
     Journal,
+    OutputLock,
     read_previous_rows,
-    report_file_name,
+    report_link,
+    report_page_names,
     summarize,
     write_capture_report,
     write_outputs,
 )
-from piezo.batch.runner import evaluate_capture, expand_inputs, previous_index, run_batch
+from piezo.batch.runner import (
+    WORKER_WAIT_S,
+    cluster_client,
+    evaluate_capture,
+    expand_inputs,
+    previous_index,
+    run_batch,
+)
 from piezo.batch.spec import load_spec
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, VERDICTS, WARN
+from piezo.chain.units import parse_duration
 from piezo.cli.options import JsonOption
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
+from piezo.io.atomic import refuse_link
 
 #: Failing units listed in the terminal summary (all of them are in the output files).
 SHOWN_FAILURES = 15
@@ -65,6 +77,15 @@ def batch(
             "(needs the piezo\\[cluster] extra; captures must be on shared storage).",
         ),
     ] = None,
+    worker_wait: Annotated[
+        str,
+        typer.Option(
+            "--worker-wait",
+            metavar="DURATION",
+            help="With --cluster: how long to wait for a first worker to join the "
+            "scheduler before giving up (exit 2), e.g. 60s, 5 min.",
+        ),
+    ] = f"{WORKER_WAIT_S:g} s",
     resume: Annotated[
         bool,
         typer.Option(
@@ -82,7 +103,9 @@ def batch(
     junit.xml and summary.html into --out.
 
     Exit code 0 when every capture passes (warnings allowed), 1 when any capture fails or
-    is not evaluable, 2 for a bad spec or unusable arguments (nothing is judged then).
+    is not evaluable, 2 for a bad spec or unusable arguments, an --out that another run
+    is using, or a cluster that no worker joined within --worker-wait (nothing is judged
+    then); 130 when interrupted (the journal is kept for --resume).
     """
     spec = load_spec(spec_path)  # a bad spec stops here, before any capture is read
     if workers is not None and cluster is not None:
@@ -91,15 +114,55 @@ def batch(
         )
     if workers is not None and workers < 1:
         raise InputError(f"--workers: must be at least 1, got {workers}")
+    worker_wait_s = parse_duration(worker_wait, what="--worker-wait")
     if out.exists() and not out.is_dir():
         raise InputError(f"--out: {str(out)!r} exists and is not a folder")
     files = expand_inputs(inputs)
     out.mkdir(parents=True, exist_ok=True)
+    lock = OutputLock(out)
+    lock.acquire()  # a second run into the same --out stops here
+    try:
+        with contextlib.ExitStack() as stack:
+            # Connected (and a worker joined) before the journal is touched.
+            client = _connect(stack, cluster, worker_wait_s) if cluster is not None else None
+            rows, reused = _judge(
+                files, spec, out, workers, client, worker_wait_s, resume=resume, reports=reports
+            )
+    finally:
+        lock.release()
+    summary = summarize(rows, spec)
+    bad = summary["counts"][FAIL] + summary["counts"][NOT_EVALUABLE]
+    if json_out:
+        emit_json(LotVerdicts(tuple(rows), spec, str(out), reused).to_dict())
+    else:
+        _print_summary(rows, summary, out, reused)
+    if bad:
+        raise typer.Exit(1)
+
+
+def _judge(
+    files: list[str],
+    spec: Any,
+    out: Path,
+    workers: int | None,
+    cluster: Any,
+    worker_wait_s: float,
+    *,
+    resume: bool,
+    reports: bool,
+) -> tuple[list[dict[str, Any]], int]:
+    """Run the lot with its journal; write the result files; return (rows, reused).
+
+    An interruption keeps the journal (for ``--resume``) and is raised again.
+    """
+    if reports:
+        refuse_link(out / "reports")
     previous = previous_index(read_previous_rows(out)) if resume else None
     journal = Journal(out, keep=resume)
     reused = 0
     done = False
     links: dict[str, str] = {}
+    pages = report_page_names(files) if reports else {}
     job = functools.partial(evaluate_capture, spec=spec, with_report=reports)
     try:
         with progress(f"Judging {len(files)} captures", len(files)) as advance:
@@ -109,11 +172,11 @@ def batch(
                 reused += was_reused
                 data = row.pop("_report", None)
                 if reports:
-                    name = out / "reports" / report_file_name(row["file"])
-                    if data is not None or not name.exists():
-                        links[row["file"]] = write_capture_report(out, row, spec, data)
+                    name = pages[row["file"]]
+                    if data is not None or not (out / "reports" / name).exists():
+                        links[row["file"]] = write_capture_report(out, row, spec, data, name=name)
                     else:  # reused row: keep the report written with its curves
-                        links[row["file"]] = f"reports/{name.name}"
+                        links[row["file"]] = report_link(name)
                 if not was_reused:
                     journal.add(row)
                 advance(1)
@@ -126,6 +189,7 @@ def batch(
                 previous=previous,
                 on_row=on_row,
                 job=job,
+                worker_wait_s=worker_wait_s,
             )
         write_outputs(out, rows, spec, reports=links if reports else None)
         done = True
@@ -133,14 +197,25 @@ def batch(
         # The journal survives an interruption (for --resume) and goes once the results
         # are written.
         journal.close(remove=done)
-    summary = summarize(rows, spec)
-    bad = summary["counts"][FAIL] + summary["counts"][NOT_EVALUABLE]
-    if json_out:
-        emit_json(LotVerdicts(tuple(rows), spec, str(out), reused).to_dict())
-    else:
-        _print_summary(rows, summary, out, reused)
-    if bad:
-        raise typer.Exit(1)
+    return rows, reused
+
+
+def _connect(stack: contextlib.ExitStack, address: str, worker_wait_s: float) -> Any:
+    """The cluster's client (closed with ``stack``), once a worker has joined; the wait
+    shows a progress bar on a terminal."""
+    shown = 0.0
+    with progress(
+        f"Waiting for cluster workers (up to {worker_wait_s:g} s)", worker_wait_s
+    ) as bar:
+
+        def waited(seconds: float) -> None:
+            nonlocal shown
+            bar(seconds - shown)
+            shown = seconds
+
+        return stack.enter_context(
+            cluster_client(address, worker_wait_s=worker_wait_s, on_wait=waited)
+        )
 
 
 def _why(row: dict[str, Any]) -> str:

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 from typing import Annotated
 
@@ -14,6 +13,7 @@ from piezo.cli.options import JsonOption, SourceOptions, open_source, source_opt
 from piezo.cli.output import console, emit_json, err_console, progress
 from piezo.errors import InputError, PiezoError
 from piezo.report import ReportSettings, analyse, write_report
+from piezo.report.names import UniqueNames
 
 __all__ = ["register", "report"]
 
@@ -24,17 +24,6 @@ def register(app: typer.Typer) -> None:
         "report",
         help="Write an HTML report (plots embedded, printable, offline) and its JSON per file.",
     )(report)
-
-
-def _stem(path: Path, used: set[str]) -> str:
-    base = re.sub(r"[^A-Za-z0-9._-]+", "_", path.stem) + ".report"
-    stem = base
-    n = 2
-    while stem in used:
-        stem = f"{base}-{n}"
-        n += 1
-    used.add(stem)
-    return stem
 
 
 @source_options
@@ -80,7 +69,7 @@ def report(
     settings = ReportSettings(thresholds=thresholds, frontend_design=frontend)
     if out.exists() and not out.is_dir():
         raise InputError(f"--out: {str(out)!r} exists and is not a directory")
-    used: set[str] = set()
+    names = UniqueNames()
     written = []
     failed = []
     for file in files:
@@ -88,7 +77,7 @@ def report(
             source = open_source(file, src)
             with progress(f"Analysing {file.name}", source.frames) as advance:
                 run = analyse(source, settings, advance=advance)
-            html_path, json_path = write_report(run, out, _stem(file, used))
+            html_path, json_path = write_report(run, out, names.claim(file.stem, ending=".report"))
         except PiezoError as exc:
             failed.append({"file": str(file), "error": str(exc.with_source(str(file)))})
             err_console.print(f"piezo: error: {escape(str(exc))}", highlight=False, soft_wrap=True)

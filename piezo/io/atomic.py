@@ -24,6 +24,7 @@ from __future__ import annotations
 import contextlib
 import errno
 import os
+import stat
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
@@ -33,9 +34,11 @@ from piezo.errors import OutputError, PiezoError, os_reason
 
 __all__ = [
     "atomic_output",
+    "open_no_follow",
     "open_nofollow",
     "output_error",
     "output_folder",
+    "refuse_link",
     "write_bytes_atomic",
     "write_text_atomic",
 ]
@@ -134,19 +137,15 @@ def open_nofollow(
     >>> open_nofollow(root / "link.jsonl", "w")
     Traceback (most recent call last):
     ...
-    piezo.errors.OutputError: ...link.jsonl: cannot write: is a symbolic link (...)
+    piezo.errors.OutputError: ...link.jsonl: is a symbolic link; refusing to follow it
     """
     if mode not in ("a", "w"):
         raise ValueError(f"mode must be 'a' or 'w', got {mode!r}")
     target = Path(path)
     _refuse_links(target.parent, None if within is None else Path(within))
-    flags = os.O_WRONLY | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0)
+    flags = os.O_WRONLY | os.O_CREAT | getattr(os, "O_CLOEXEC", 0)
     flags |= os.O_APPEND if mode == "a" else os.O_TRUNC
-    try:
-        fd = os.open(target, flags, 0o666)
-    except OSError as exc:
-        raise output_error(target, exc) from None
-    return open(fd, mode, encoding="utf-8")
+    return open(open_no_follow(target, flags), mode, encoding="utf-8")
 
 
 def _fsync_folder(folder: Path) -> None:
@@ -246,3 +245,68 @@ def write_text_atomic(path: str | Path, text: str, *, within: str | Path | None 
     """
     with atomic_output(path, within=within) as tmp:
         tmp.write_text(text, encoding="utf-8")
+
+
+# --- files opened in place, never through a link ---------------------------------
+
+_NOFOLLOW = getattr(os, "O_NOFOLLOW", 0)
+_BINARY = getattr(os, "O_BINARY", 0)
+
+
+def refuse_link(path: str | Path) -> None:
+    """Raise :class:`OutputError` if ``path`` is a symbolic link (dangling or not).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> refuse_link(folder / "missing")  # nothing there: fine
+    >>> (folder / "link").symlink_to(folder / "elsewhere")
+    >>> refuse_link(folder / "link")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.OutputError: .../link: is a symbolic link; refusing to follow it
+    """
+    try:
+        mode = os.lstat(path).st_mode
+    except FileNotFoundError:
+        return
+    except OSError as exc:
+        raise OutputError(f"cannot use: {exc.strerror or exc}", source=str(path)) from None
+    if stat.S_ISLNK(mode):
+        raise OutputError("is a symbolic link; refusing to follow it", source=str(path))
+
+
+def open_no_follow(path: str | Path, flags: int, mode: int = 0o666) -> int:
+    """``os.open(path, flags | O_NOFOLLOW)``; a symbolic link is refused, never followed.
+
+    Returns the file descriptor. Operating-system failures become
+    :class:`OutputError` naming the path.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> fd = open_no_follow(folder / "j.txt", os.O_WRONLY | os.O_CREAT | os.O_EXCL)
+    >>> os.write(fd, b"ok"), os.close(fd)
+    (2, None)
+    >>> (folder / "l.txt").symlink_to(folder / "j.txt")
+    >>> open_no_follow(folder / "l.txt", os.O_WRONLY | os.O_TRUNC)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.OutputError: .../l.txt: is a symbolic link; refusing to follow it
+    >>> (folder / "j.txt").read_text()
+    'ok'
+    """
+    if not _NOFOLLOW:
+        refuse_link(path)
+    try:
+        return os.open(path, flags | _NOFOLLOW | _BINARY, mode)
+    except OSError as exc:
+        if _NOFOLLOW and os.path.islink(path):  # ELOOP (Linux) or EMLINK (BSD)
+            raise OutputError(
+                "is a symbolic link; refusing to follow it", source=str(path)
+            ) from None
+        if isinstance(exc, FileExistsError):
+            raise
+        raise OutputError(f"cannot open: {exc.strerror or exc}", source=str(path)) from None

@@ -8,6 +8,7 @@ import io
 import json
 import os
 import re
+import urllib.parse
 import xml.etree.ElementTree as ET
 
 import html5lib
@@ -131,7 +132,8 @@ def test_capture_reports_written_and_linked(rows, tmp_path):
     links = write_capture_reports(tmp_path, rows, SPEC)
     assert len(links) == len(rows)
     for row in rows:
-        page = (tmp_path / links[row["file"]]).read_text(encoding="utf-8")
+        # Links are URLs (percent-encoded); the page is at the decoded name.
+        page = (tmp_path / urllib.parse.unquote(links[row["file"]])).read_text(encoding="utf-8")
         html5lib.HTMLParser(strict=True).parse(page)
         assert row["verdict"] in page
 

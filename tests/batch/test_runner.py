@@ -9,6 +9,7 @@ from __future__ import annotations
 import functools
 import math
 import re
+import time
 from pathlib import Path
 
 import pytest
@@ -195,3 +196,146 @@ def test_resume_reuses_rows_with_same_content_and_spec(lot):
 def test_workers_must_be_positive(lot):
     with pytest.raises(InputError, match="--workers: must be at least 1, got 0"):
         run_batch([str(lot / "SN0000.wav")], SPEC, workers=0, job=_job())
+
+
+# ---------------------------------------------------------------------------------------
+# Worker processes that do not outlive the batch; clusters without workers.
+
+REPO = Path(__file__).resolve().parents[2]
+
+
+def sleeping_job(path: str, *, display: str, marks: str) -> dict:
+    """Leaves a file named by its process id in ``marks``, then sleeps a minute."""
+    import os
+    import time
+
+    Path(marks, str(os.getpid())).touch()
+    time.sleep(60)
+    return {"file": display}
+
+
+def watch_without_prctl(parent_pid: int) -> None:
+    """Worker initializer: the runner's parent watch, without the Linux-only guard."""
+    from piezo.batch import runner
+
+    runner._kill_with_parent_on_linux = lambda: None
+    runner._watch_parent(parent_pid)
+
+
+def hold_workers(lot: str, marks: str, mode: str) -> None:
+    """Child process of the tests below: two busy workers, until killed."""
+    import concurrent.futures as cf
+    import multiprocessing
+    import os
+
+    files = expand_inputs([lot])
+    job = functools.partial(sleeping_job, marks=marks)
+    if mode == "run_batch":
+        run_batch(files, SPEC, workers=2, job=job)
+    else:
+        pool = cf.ProcessPoolExecutor(
+            2,
+            mp_context=multiprocessing.get_context("spawn"),
+            initializer=watch_without_prctl,
+            initargs=(os.getpid(),),
+        )
+        list(pool.map(functools.partial(job, display="x"), files))
+
+
+def _start_holder(lot: Path, marks: Path, mode: str):
+    import os
+    import subprocess
+    import sys
+
+    marks.mkdir()
+    code = (
+        "import sys; from tests.batch.test_runner import hold_workers; "
+        "hold_workers(sys.argv[1], sys.argv[2], sys.argv[3])"
+    )
+    proc = subprocess.Popen(
+        [sys.executable, "-c", code, str(lot), str(marks), mode],
+        cwd=REPO,
+        env={**os.environ, "PYTHONPATH": str(REPO)},
+    )
+    deadline = time.monotonic() + 120
+    while len(list(marks.iterdir())) < 2:
+        assert proc.poll() is None and time.monotonic() < deadline
+        time.sleep(0.05)
+    return proc
+
+
+@pytest.mark.parametrize("mode", ["run_batch", "watch_thread_only"])
+def test_workers_end_when_the_main_process_is_killed(lot, tmp_path, mode):
+    psutil = pytest.importorskip("psutil")
+    import signal
+
+    proc = _start_holder(lot, tmp_path / "marks", mode)
+    children = psutil.Process(proc.pid).children(recursive=True)
+    workers = {int(p.name) for p in (tmp_path / "marks").iterdir()}
+    assert workers <= {c.pid for c in children}
+    assert len(children) >= 3  # two workers and multiprocessing's resource tracker
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    # Bound: the parent watch looks every PARENT_CHECK_S = 0.5 s, the tracker ends when
+    # the last worker has closed its pipe; 15 s leaves room for a loaded machine and is
+    # far below the minutes an orphan would sleep here (the job sleeps 60 s).
+    _gone, alive = psutil.wait_procs(children, timeout=15)
+    assert alive == []
+
+
+def test_interrupt_stops_the_workers_at_once(lot, tmp_path):
+    psutil = pytest.importorskip("psutil")
+    import signal
+
+    proc = _start_holder(lot, tmp_path / "marks", "run_batch")
+    children = psutil.Process(proc.pid).children(recursive=True)
+    t0 = time.monotonic()
+    proc.send_signal(signal.SIGINT)
+    proc.wait(timeout=30)  # not the 60 s the jobs in flight would take
+    assert time.monotonic() - t0 < 30
+    assert proc.returncode != 0  # KeyboardInterrupt raised again
+    _gone, alive = psutil.wait_procs(children, timeout=15)
+    assert alive == []
+
+
+def test_dask_chunks_give_the_local_results(lot):
+    distributed = pytest.importorskip("distributed")
+    for i in range(40):  # enough captures for tasks of several captures each
+        fakes.write_capture(lot / f"SN2{i:03d}.wav", 0.40 + 0.002 * i)
+    files = expand_inputs([str(lot)])
+    local = run_batch(files, SPEC, workers=1, job=_job())
+    with (
+        distributed.LocalCluster(
+            n_workers=1, threads_per_worker=2, processes=False, dashboard_address=None
+        ) as cluster,
+        distributed.Client(cluster) as client,
+    ):
+        submitted: list[int] = []
+        submit = client.submit
+
+        def counting_submit(fn, *args, **kwargs):
+            submitted.append(len(args[-1]))  # the captures of this task
+            return submit(fn, *args, **kwargs)
+
+        client.submit = counting_submit
+        remote = run_batch(files, SPEC, cluster=client, job=_job())
+    assert sum(submitted) == len(files)
+    # Guided sizes: 48 captures // (4 x 2 threads) = 6 in the first task, 1 in the last.
+    assert submitted[0] == 6 and submitted[-1] == 1 and len(submitted) < len(files)
+    assert results_csv_text(remote, SPEC) == results_csv_text(local, SPEC)
+    assert results_json_text(remote, SPEC) == results_json_text(local, SPEC)
+
+
+def test_cluster_without_workers_gives_up_after_the_wait(lot):
+    distributed = pytest.importorskip("distributed")
+    files = expand_inputs([str(lot)])
+    with (
+        distributed.LocalCluster(n_workers=0, processes=False, dashboard_address=None) as cluster,
+        distributed.Client(cluster) as client,
+    ):
+        t0 = time.monotonic()
+        with pytest.raises(
+            InputError, match=r"no workers joined the scheduler at .* within 0.5 s"
+        ):
+            run_batch(files, SPEC, cluster=client, job=_job(), worker_wait_s=0.5)
+        assert time.monotonic() - t0 >= 0.5

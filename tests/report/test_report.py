@@ -60,8 +60,8 @@ def _pages(out):
 def test_one_html_and_one_json_per_file(reports):
     names = sorted(p.name for p in reports.iterdir())
     assert names == [
-        "clipped_b_.report.html",
-        "clipped_b_.report.json",
+        "clipped _b_.report.html",
+        "clipped _b_.report.json",
         "pump-bench.report.html",
         "pump-bench.report.json",
         "tap-test.report.html",
@@ -83,7 +83,7 @@ def test_strict_parser_does_catch_broken_html():
 
 
 def test_page_is_self_contained_and_escaped(reports):
-    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    page = (reports / "clipped _b_.report.html").read_text(encoding="utf-8")
     assert "clipped &lt;b&gt;.wav" in page
     assert "clipped <b>" not in page
     # No network: nothing is loaded from elsewhere, no scripts at all.
@@ -121,7 +121,7 @@ def test_level_rows_in_the_order_of_the_levels_command(reports):
 def test_badges_read_the_same_on_every_page(reports):
     from piezo.report.html import render_page
 
-    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    page = (reports / "clipped _b_.report.html").read_text(encoding="utf-8")
     badges = set(re.findall(r'<span class="sev sev-([a-z-]+)">([^<]*)</span>', page))
     assert {"ok", "fail"} <= {cls for cls, _ in badges}
     # One form: symbol, space, the JSON word in lower case; the style sheet sets every
@@ -167,8 +167,8 @@ def test_json_validates_against_the_shipped_schema(reports):
 
 
 def test_json_and_page_carry_the_same_numbers(reports):
-    doc = json.loads((reports / "clipped_b_.report.json").read_text(encoding="utf-8"))
-    page = (reports / "clipped_b_.report.html").read_text(encoding="utf-8")
+    doc = json.loads((reports / "clipped _b_.report.json").read_text(encoding="utf-8"))
+    page = (reports / "clipped _b_.report.html").read_text(encoding="utf-8")
     ch0 = doc["diagnostics"]["channels"][0]
     assert ch0["verdict"] == "fail"
     clip = next(c for c in ch0["checks"] if c["name"] == "clipping")
@@ -247,7 +247,7 @@ def test_frontend_design_adds_its_response(cli, tmp_path):
 
 
 def test_spectrum_sections_agree_with_the_levels(reports):
-    doc = json.loads((reports / "clipped_b_.report.json").read_text(encoding="utf-8"))
+    doc = json.loads((reports / "clipped _b_.report.json").read_text(encoding="utf-8"))
     spec = doc["spectrum"]
     df = spec["resolution_hz"]
     for c, levels in enumerate(doc["levels"]["channels"]):
