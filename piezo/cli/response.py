@@ -145,6 +145,9 @@ def fit_document(fit: ResponseFit) -> dict[str, Any]:
         "resonance_q": None if res is None else res.q,
         "resonance_q_std": None if res is None else res.q_std,
         "resonance_peak_db": None if res is None else res.peak_db,
+        "resonance_peak_hz": None if res is None else res.peak_hz,
+        "resonance_fit_residual_db": None if res is None else res.residual_rms_db,
+        "resonance_fit_poor": None if res is None else res.poor_fit,
         "band_1db_hz": [fit.band_1db.low_hz, fit.band_1db.high_hz],
         "band_1db_limited": [fit.band_1db.low_limited, fit.band_1db.high_limited],
         "band_3db_hz": [fit.band_3db.low_hz, fit.band_3db.high_hz],
@@ -201,11 +204,19 @@ def print_fit(doc: dict[str, Any]) -> None:
         )
     if doc["resonance_hz"] is None:
         console.print("  resonance     none inside the band")
+    elif doc["resonance_fit_poor"]:
+        console.print(
+            f"  resonance     peak [bold]{doc['resonance_peak_hz']:.5g} Hz[/bold], "
+            f"{doc['resonance_peak_db']:+.2f} dB; not single-mode shaped (single-mode fit "
+            f"{doc['resonance_hz']:.4g} Hz, Q {doc['resonance_q']:.2g}, residual "
+            f"{doc['resonance_fit_residual_db']:.2f} dB RMS: no uncertainty quoted)"
+        )
     else:
         console.print(
             f"  resonance     [bold]{doc['resonance_hz']:.5g} Hz[/bold] ± "
             f"{doc['resonance_std_hz']:.2g} Hz, Q {doc['resonance_q']:.3g} ± "
-            f"{doc['resonance_q_std']:.2g}, peak {doc['resonance_peak_db']:+.2f} dB"
+            f"{doc['resonance_q_std']:.2g}, peak {doc['resonance_peak_db']:+.2f} dB "
+            f"at {doc['resonance_peak_hz']:.5g} Hz"
         )
     b1, l1 = doc["band_1db_hz"], doc["band_1db_limited"]
     b3, l3 = doc["band_3db_hz"], doc["band_3db_limited"]
