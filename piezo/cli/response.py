@@ -15,7 +15,7 @@ from typing import Annotated, Any
 import numpy as np
 import typer
 
-from piezo.chain.units import parse_quantity
+from piezo.chain.units import format_uncertain, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     atomic_output,
@@ -198,10 +198,8 @@ def print_fit(doc: dict[str, Any]) -> None:
     else:
         q = f", Q {doc['corner_q']:.3g}" if doc["corner_q"] is not None else ""
         where = "" if doc["corner_in_band"] else " (extrapolated)"
-        console.print(
-            f"  low corner    [bold]{doc['corner_hz']:.4g} Hz[/bold] ± "
-            f"{doc['corner_std_hz']:.2g} Hz, order {doc['corner_order']}{q}{where}"
-        )
+        corner = format_uncertain(doc["corner_hz"], doc["corner_std_hz"], "Hz")
+        console.print(f"  low corner    {corner}, order {doc['corner_order']}{q}{where}")
     if doc["resonance_hz"] is None:
         console.print("  resonance     none inside the band")
     elif doc["resonance_fit_poor"]:
@@ -212,11 +210,12 @@ def print_fit(doc: dict[str, Any]) -> None:
             f"{doc['resonance_fit_residual_db']:.2f} dB RMS: no uncertainty quoted)"
         )
     else:
+        fr = format_uncertain(doc["resonance_hz"], doc["resonance_std_hz"], "Hz")
+        qr = format_uncertain(doc["resonance_q"], doc["resonance_q_std"])
+        console.print(f"  resonance     {fr}, Q {qr}")
         console.print(
-            f"  resonance     [bold]{doc['resonance_hz']:.5g} Hz[/bold] ± "
-            f"{doc['resonance_std_hz']:.2g} Hz, Q {doc['resonance_q']:.3g} ± "
-            f"{doc['resonance_q_std']:.2g}, peak {doc['resonance_peak_db']:+.2f} dB "
-            f"at {doc['resonance_peak_hz']:.5g} Hz"
+            f"  peak          {doc['resonance_peak_db']:+.2f} dB at "
+            f"{doc['resonance_peak_hz']:.5g} Hz (measured)"
         )
     b1, l1 = doc["band_1db_hz"], doc["band_1db_limited"]
     b3, l3 = doc["band_3db_hz"], doc["band_3db_limited"]
@@ -475,8 +474,9 @@ def fit_frontend(
     """Fit sensitivity, low corner (first or second order) and resonance to a response.
 
     Reads the CSV written by ``piezo sweep analyze --csv`` or ``piezo response --csv``
-    (or any table of frequency and magnitude in dB). Each fitted value comes with a
-    1σ uncertainty from the fit's covariance.
+    (or any table of frequency and magnitude in dB). Each fitted value comes with an
+    uncertainty from the fit's covariance: printed expanded (k = 2), standard (1σ) in
+    the JSON's ``*_std*`` keys.
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     try:

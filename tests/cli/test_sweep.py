@@ -257,3 +257,25 @@ def test_analyze_demo_reports_measured_peak_beside_fitted_resonance(cli):
     assert doc["resonance_peak_hz"] == pytest.approx(14000 * math.sqrt(1 - 1 / 128), rel=5e-3)
     assert doc["resonance_fit_poor"] is False
     assert 0 <= doc["resonance_fit_residual_db"] < 0.25
+
+
+def test_analyze_prints_uncertainties_with_coverage_rounded_together(cli):
+    # Issue 12 §3.11: every printed uncertainty states its coverage (k = 2) and the value
+    # is rounded to the decimal place of its two-digit uncertainty (GUM, JCGM 100:2008,
+    # 7.2.6): never "Q 8 ± 0.0029".
+    import re
+
+    from tests.paths import RECORDINGS
+
+    r = cli(
+        "sweep", "analyze", RECORDINGS / "valve-pickup-nominal.flac",
+        "--stimulus", RECORDINGS / "valve-pickup-sweep.stimulus.toml",
+    )  # fmt: skip
+    assert r.code == 0, r.err
+    pairs = re.findall(r"(-?\d+(?:\.(\d+))?)(?: Hz)? ± (\d+(?:\.(\d+))?)(?: Hz)? \(k = 2\)", r.out)
+    assert len(pairs) == 3  # corner, resonance, Q
+    for _value, value_decimals, u, u_decimals in pairs:
+        assert len(value_decimals) == len(u_decimals)
+        assert 1 <= len(u.replace(".", "").lstrip("0")) <= 2
+    # Every "±" of an uncertainty carries its coverage (the ±1/±3 dB bands are names).
+    assert len(re.findall(r"± (?![13] dB)", r.out)) == r.out.count("(k = 2)")
