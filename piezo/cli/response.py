@@ -124,8 +124,17 @@ def parse_acoustic_level(text: str | None) -> float | None:
     return value
 
 
-def fit_document(fit: ResponseFit) -> dict[str, Any]:
-    """The fitted numbers as a JSON-ready mapping (keys shared by all response commands)."""
+def fit_document(fit: ResponseFit | None) -> dict[str, Any]:
+    """The fitted numbers as a JSON-ready mapping (keys shared by all response commands).
+
+    ``None`` (no fit made) gives the same keys, each ``null``.
+    """
+    if fit is None:
+        # The keys of any fit (a flat response's), every value null.
+        flat = fit_response(np.geomspace(100.0, 10000.0, 8), np.zeros(8))
+        return {
+            k: [None, None] if isinstance(v, list) else None for k, v in fit_document(flat).items()
+        }
     hp, res = fit.highpass, fit.resonance
     sens_v = fit.sensitivity_v_per_pa
     return {
@@ -348,7 +357,8 @@ def response(
     the device on another. Any broadband stimulus works: noise, music, sweeps. Both
     channels are taken in volts at the sensor (full scale and gain undone; a sensitivity
     is ignored), so H1 is in V/V. Numbers are fitted where the coherence is at least
-    --min-coherence; the table and plot show every frequency.
+    --min-coherence (the fit is skipped, and says why, when fewer than 6 points are);
+    the table and plot show every frequency.
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     measured = list(src.channel) if src.channel else None
@@ -380,23 +390,34 @@ def response(
     for i, ch in enumerate(result.measured_channels):
         table = result.to_table(channel=i, points_per_octave=points_per_octave)
         keep = table.extra["coherence"] >= min_coherence
+        fit = None
+        skipped = None
         if np.count_nonzero(keep) < 6:
-            raise InputError(
-                f"channel {ch}: only {np.count_nonzero(keep)} points have coherence ≥ "
-                f"{min_coherence:g}; lower --min-coherence or record longer / louder",
-                source=str(file),
+            # The table stands on its own; only the fit needs coherent points.
+            skipped = (
+                f"only {np.count_nonzero(keep)} points have coherence ≥ {min_coherence:g} "
+                "(--min-coherence)"
             )
-        good = _table_subset(table, keep)
-        try:
-            fit = fit_response(
-                good.frequency_hz,
-                good.magnitude_db,
-                reference_hz=ref_hz,
-                magnitude_unit=result.magnitude_unit,
-            )
-        except InputError as exc:
-            raise exc.with_source(str(file)) from None
-        entry = {"channel": ch, **fit_document(fit), "fitted_points": int(keep.sum())}
+            keep[:] = False
+        else:
+            good = _table_subset(table, keep)
+            try:
+                fit = fit_response(
+                    good.frequency_hz,
+                    good.magnitude_db,
+                    reference_hz=ref_hz,
+                    magnitude_unit=result.magnitude_unit,
+                )
+            except InputError as exc:
+                raise exc.with_source(str(file)) from None
+        entry = {
+            "channel": ch,
+            **fit_document(fit),
+            "magnitude_unit": result.magnitude_unit,
+            "reference_hz": ref_hz,
+            "fitted_points": int(keep.sum()),
+            "fit_skipped_reason": skipped,
+        }
         entry.update(table_document(table))
         channels.append(entry)
         tables.append(table)
@@ -432,10 +453,32 @@ def response(
                 f" channel {entry['channel']} over reference channel {reference_channel} "
                 f"({entry['fitted_points']} points with coherence ≥ {min_coherence:g})"
             )
-            print_fit(entry)
+            if entry["fit_skipped_reason"] is None:
+                print_fit(entry)
+            else:
+                _print_h1_only(entry)
     for path, what in ((csv, "table"), (plot, "plot")):
         if path is not None:
             err_console.print(f"{what} written: {path}")
+
+
+def _print_h1_only(entry: dict[str, Any]) -> None:
+    """Terminal summary of an H1 table that was not fitted: magnitude and coherence."""
+    f = np.asarray(entry["frequency_hz"])
+    mag = np.asarray(entry["magnitude_db"])
+    coh = np.asarray(entry["coherence"])
+    unit = entry["magnitude_unit"] or "dB (relative)"
+    ref = float(entry["reference_hz"])
+    if f[0] <= ref <= f[-1]:
+        lf = np.log(f)
+        at = np.interp(math.log(ref), lf, mag)
+        c = np.interp(math.log(ref), lf, coh)
+        console.print(f"  H1            {at:.2f} {unit} at {ref:g} Hz (coherence {c:.3f})")
+    console.print(
+        f"  coherence     median {np.median(coh):.3f}, {np.min(coh):.3f} – {np.max(coh):.3f} "
+        f"over {f[0]:.4g} Hz – {f[-1]:.4g} Hz"
+    )
+    console.print(f"  fit skipped   {entry['fit_skipped_reason']}")
 
 
 # --------------------------------------------------------------------------------------

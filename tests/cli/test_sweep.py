@@ -279,3 +279,36 @@ def test_analyze_prints_uncertainties_with_coverage_rounded_together(cli):
         assert 1 <= len(u.replace(".", "").lstrip("0")) <= 2
     # Every "±" of an uncertainty carries its coverage (the ±1/±3 dB bands are names).
     assert len(re.findall(r"± (?![13] dB)", r.out)) == r.out.count("(k = 2)")
+
+
+def test_response_with_noisy_reference_gives_the_h1_table_and_skips_the_fit(cli, tmp_path):
+    # Issue 12 §3.14: a 20 dB-SNR reference (independent white noise 20 dB below the
+    # signal on both channels) has γ² = 1/(1 + 0.01)² = 0.980 (Bendat & Piersol, Random
+    # Data, 4th ed., §9.1.3: γ² = 1/((1 + Nxx/Sxx)(1 + Nyy/Syy))), below the default
+    # --min-coherence 0.99. The H1 table and its coherence come out; only the fit, which
+    # needs coherent points, is skipped and says why.
+    rng = np.random.default_rng(14)
+    n = FS * 6
+    s = 0.1 * rng.standard_normal(n)
+    x = s + 0.01 * rng.standard_normal(n)
+    y = 0.5 * s + 0.005 * rng.standard_normal(n)
+    path = tmp_path / "noisy.wav"
+    sf.write(str(path), np.column_stack([x, y]), FS, subtype="FLOAT")
+    r = cli("response", path, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    coh = np.array(doc["coherence"])
+    # 69 segments of 8192 (50 % overlap): the coherence scatters by a few 0.001 per bin.
+    assert np.median(coh) == pytest.approx(1 / 1.01**2, abs=0.003)
+    # H1 = Gxy/Gxx is biased low by the reference's noise: 0.5/(1 + 0.01) → −6.107 dB.
+    # Mean over the 80 table points of 1–10 kHz: 0.087 dB scatter per point, so a
+    # standard error of 0.01 dB; 0.04 dB is four of them (measured −6.097 dB).
+    f = np.array(doc["frequency_hz"])
+    mag = np.array(doc["magnitude_db"])[(f >= 1000) & (f <= 10000)]
+    assert np.mean(mag) == pytest.approx(20 * math.log10(0.5 / 1.01), abs=0.04)
+    assert doc["fitted_points"] == 0
+    assert doc["corner_hz"] is None and doc["resonance_hz"] is None
+    assert "coherence" in doc["fit_skipped_reason"]
+    r = cli("response", path)
+    assert r.code == 0, r.err
+    assert "fit skipped" in r.out
