@@ -154,7 +154,7 @@ def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     lo, hi = doc["bandwidth_hz"]
     console.print(
-        f"  bandwidth {lo:g} Hz to {hi:g} Hz, {doc['resolution_hz']:g} Hz bins, "
+        f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz, {doc['resolution_hz']:g} Hz bins, "
         f"{doc['segments']} averages"
     )
     table = Table(box=None, pad_edge=False, header_style="bold")

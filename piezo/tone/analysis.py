@@ -5,8 +5,10 @@ Definitions (paraphrased from AES17-2015 and IEC 60268-3:2018; the wording is ou
 * **Fundamental** - the strongest spectral component within the analysis bandwidth (or
   near the expected frequency, when one is given).
 * **THD** (total harmonic distortion, IEC 60268-3) - the RMS sum of the harmonics of
-  orders 2 to ``harmonics`` (10 by default, fewer when they would pass the Nyquist
-  frequency) divided by the RMS of the fundamental: ``sqrt(Σ V_n²) / V_1``.
+  orders 2 to ``harmonics`` (10 by default, fewer when they would pass the upper end of
+  the bandwidth, which is at most the Nyquist frequency) divided by the RMS of the
+  fundamental: ``sqrt(Σ V_n²) / V_1``. THD and THD+N see the same band, so THD never
+  exceeds THD+N (re the fundamental).
 * **THD+N** (AES17) - the RMS of everything left in the stated bandwidth once the
   fundamental is notched out (harmonics, noise, hum, spurious tones), divided by the RMS
   of the whole signal in that bandwidth.
@@ -272,7 +274,8 @@ class ToneAnalyzer:
         orders, harm_ms = [], []
         for n in range(2, self.harmonics + 1):
             center = int(round(n * f0 / df))
-            if center + k >= nbins - 1:
+            # THD counts the harmonics inside the bandwidth, the band of THD+N too.
+            if center + k >= nbins - 1 or n * f0 > hi:
                 break
             power, floor, _, _ = line(center)
             orders.append(n)
