@@ -159,7 +159,9 @@ def spectrum(
         "enbw_bins": result.enbw_bins,
         "averages": result.averages,
         "effective_averages": result.effective_averages,
-        "confidence": {
+        "confidence": None
+        if result.ci_lower_db is None
+        else {
             "level": result.confidence_level,
             "lower_db": result.ci_lower_db,
             "upper_db": result.ci_upper_db,
@@ -266,7 +268,7 @@ def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit
     ci = doc["confidence"]
     ci_text = (
         f", 95 % interval {ci['lower_db']:+.2f}/{ci['upper_db']:+.2f} dB"
-        if ci["lower_db"] is not None
+        if ci is not None
         else ""
     )
     console.print(
