@@ -28,6 +28,7 @@ __all__ = [
     "parse_quantity",
     "parse_sensitivity",
     "ratio_to_db",
+    "resolution_decimals",
 ]
 
 #: SI prefix symbol -> power of ten. ``u`` stands for micro where µ is hard to type.
@@ -405,7 +406,7 @@ def format_uncertain(
     shown = coverage_factor * u
     if shown <= 1e-9 * abs(value) or shown == 0:
         return f"{_fixed(value, 8 - _exponent(value))}{space} (uncertainty below 1 ppb)"
-    decimals = 1 - _exponent(shown)
+    decimals = resolution_decimals(shown)
     shown_text = _fixed(shown, decimals)
     if float(shown_text) >= 10.0 ** (2 - decimals):
         decimals -= 1  # rounding carried into a third digit (e.g. 99.7 → 100)
@@ -414,6 +415,22 @@ def format_uncertain(
     if coverage_factor == 1:
         return f"{value_text}{space} (u = {shown_text}{space})"
     return f"{value_text}{space} ± {shown_text}{space} (k = {coverage_factor:g})"
+
+
+def resolution_decimals(uncertainty: float, digits: int = 2) -> int:
+    """Decimal places that keep ``digits`` significant digits of ``uncertainty``.
+
+    The place to which a value known to ± ``uncertainty`` is rounded (GUM, JCGM
+    100:2008, 7.2.6); negative means tens, hundreds ….
+
+    Examples
+    --------
+    >>> resolution_decimals(0.0123), resolution_decimals(1.7), resolution_decimals(311.0)
+    (3, 1, -1)
+    """
+    if not (math.isfinite(uncertainty) and uncertainty > 0):
+        raise UnitError(f"uncertainty must be a positive number, got {uncertainty!r}")
+    return digits - 1 - _exponent(uncertainty)
 
 
 def _exponent(x: float) -> int:
