@@ -48,6 +48,9 @@ STABILITY_DB = 0.2
 FREQUENCY_STABILITY = 0.005
 #: The found tone must lie within this ratio of the expected frequency (either side).
 FREQUENCY_SEARCH_RATIO = 1.12
+#: Components below this frequency are not taken for a louder tone than the calibrator's
+#: (IEC 60942:2017 calibrators work at 250 Hz or 1 kHz; multi-frequency ones from 31.5 Hz).
+INFRASOUND_HZ = 20.0
 #: Minimum length of a usable capture, seconds.
 MIN_DURATION_S = SETTLE_S + 2 * SEGMENT_S
 
@@ -194,13 +197,16 @@ class ToneCalibrator:
         if not band.any() or spec[band].max() <= 0:
             raise InputError(f"no tone found between {lo:.0f} and {hi:.0f} Hz")
         k = int(np.flatnonzero(band)[np.argmax(spec[band])])
-        # The strongest component overall must be the tone, not a louder disturbance.
-        if spec[k] < 0.5 * spec[1:].max():
-            k_all = 1 + int(np.argmax(spec[1:]))
+        # The strongest component overall must be the tone, not a louder disturbance
+        # (a calibrator of another frequency). Infrasound is not counted: seating a
+        # calibrator on a piezo element squeezes it, a swing far below any tone.
+        audible = freqs >= INFRASOUND_HZ
+        if spec[k] < 0.5 * spec[audible].max():
+            k_all = int(np.flatnonzero(audible)[np.argmax(spec[audible])])
             raise InputError(
                 f"the strongest component is at {freqs[k_all]:.1f} Hz, not near the "
-                f"expected {self.expected_hz:g} Hz; give the calibrator frequency with "
-                "--frequency"
+                f"expected {self.expected_hz:g} Hz; set expected_hz to the calibrator's "
+                "nominal frequency"
             )
         # Parabolic interpolation on log magnitude (Hann) for the coarse frequency.
         if 0 < k < spec.size - 1:
