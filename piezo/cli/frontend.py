@@ -17,11 +17,13 @@ import soundfile as sf
 import typer
 from rich.table import Table
 
+from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource, sidecar_path
 from piezo.chain.units import format_quantity, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import atomic_output, console, emit_json, progress
 from piezo.errors import InputError
 from piezo.frontend.filters import Equalizer, FrontendFilter
+from piezo.io.atomic import write_text_atomic
 from piezo.frontend.model import (
     Frontend,
     design_key_unit,
@@ -545,6 +547,28 @@ def simulate(
     console.print(f"[yellow]{CAUTION}[/yellow]")
 
 
+def _write_equalized_sidecar(file: Path, out: Path, source: CalibratedSource) -> Path:
+    """The output's sidecar profile: the input's chain for the output's float samples.
+
+    The samples keep the input's scale; a float file is not scaled by a full-scale
+    voltage, so the sidecar's gain takes it in (gain / full scale for a PCM input).
+    """
+    chain = source.chain
+    gain = chain.gain / (chain.full_scale_v if source.recording.is_pcm else 1.0)
+    lines = [
+        f"# Sidecar of {out.name}, written by piezo equalize from {file.name}: the samples",
+        "# keep the input's scale, so this chain reads them in the input's units.",
+    ]
+    if chain.sensitivity_v_per_pa is not None:
+        lines += ["[sensor]", f'sensitivity = "{1e3 * chain.sensitivity_v_per_pa:.10g} mV/Pa"']
+    lines += ["[chain]", f'gain = "{gain:.12g}"']
+    if chain.reference_pa != REFERENCE_AIR_PA:
+        lines.append(f'reference = "{chain.reference_pa:.10g} Pa"')
+    path = sidecar_path(out)
+    write_text_atomic(path, "\n".join(lines) + "\n")
+    return path
+
+
 @source_options
 def equalize(
     file: Annotated[Path, typer.Argument(help="Recording made through the front-end.")],
@@ -593,7 +617,8 @@ def equalize(
                     sink.write(eq.update(block) / source.scale)
                     advance(block.shape[0])
     result = eq.result()
-    probe = np.geomspace(target_hz / 10, result.measured_corner_hz * 10, 5)
+    profile = _write_equalized_sidecar(file, out, source)
+    probe = np.geomspace(target_hz / 10, result.model_corner_hz * 10, 5)
     doc = {
         "file": str(file),
         "frontend": str(frontend_path),
@@ -601,15 +626,16 @@ def equalize(
         "sample_rate_hz": source.sample_rate_hz,
         "frames": result.frames,
         "channels": list(source.channel_indices),
-        "measured_corner_hz": result.measured_corner_hz,
+        "model_corner_hz": result.model_corner_hz,
         "target_corner_hz": result.target_corner_hz,
         "boost_db": result.boost_db,
         "boost_at": [
             {"frequency_hz": float(f), "boost_db": float(b)}
             for f, b in zip(probe, eq.boost_at_db(probe), strict=True)
         ],
-        "unit": source.unit,
-        "peak": [p / source.scale for p in result.peak],
+        "output_peak_fs": [p / source.scale for p in result.peak],
+        f"output_peak_{source.unit.lower()}": list(result.peak),
+        "profile_written": str(profile),
         "max_error_db": result.max_error_db,
         "max_phase_error_deg": eq.realisation.max_phase_error_deg,
         "check_band_hz": list(result.check_band_hz),
@@ -619,12 +645,12 @@ def equalize(
         return
     console.print(
         f"wrote {out}: {result.frames} frames × {channels} channel(s), 32-bit float, same "
-        "sample scale as the input (use the same chain options or profile)"
+        f"sample scale as the input; its chain in {doc['profile_written']}"
     )
     console.print(
-        f"  corner {_q(result.measured_corner_hz, 'Hz')} → {_q(result.target_corner_hz, 'Hz')}; "
+        f"  corner {_q(result.model_corner_hz, 'Hz')} → {_q(result.target_corner_hz, 'Hz')}; "
         f"low-frequency boost up to {result.boost_db:.1f} dB: noise, drift and offsets below "
-        f"{_q(result.measured_corner_hz, 'Hz')} are amplified by as much"
+        f"{_q(result.model_corner_hz, 'Hz')} are amplified by as much"
     )
     table = Table(box=None, header_style="bold")
     table.add_column("frequency", justify="right")

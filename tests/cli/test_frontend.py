@@ -196,3 +196,32 @@ def test_equalize_reports_boost_and_keeps_the_scale(cli, design, tone, tmp_path)
         "equalize", tone, "--frontend", design, "--corner", "20 mHz", "--out", tmp_path / "t.wav"
     )
     assert r.code == 0 and "low-frequency boost up to 18.0 dB" in r.out
+
+
+def test_equalize_json_names_what_it_reports_and_keeps_the_file_calibrated(cli, design, tmp_path):
+    # Issue 12 §3.3: the peaks are the written file's sample peaks (fractions of full
+    # scale, not "Pa"), the corner is the design's modelled one, and a sidecar profile
+    # beside the output keeps it calibrated: levels of the equalized file equal the
+    # input's (the shelf leaves a 1 kHz tone unchanged to 1e-7 dB, as above).
+    t = np.arange(FS) / FS
+    x = 0.5 * np.sin(2 * np.pi * 1000 * t)
+    src = tmp_path / "pcm.wav"
+    sf.write(str(src), x, FS, subtype="PCM_24")
+    src.with_suffix(".toml").write_text(
+        '[sensor]\nsensitivity = "12.5 mV/Pa"\n[chain]\ngain = "20 dB"\nfull_scale = "2 V"\n',
+        encoding="utf-8",
+    )
+    out = tmp_path / "eq.wav"
+    r = cli("equalize", src, "--frontend", design, "--corner", "0.05Hz", "--out", out, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert "measured_corner_hz" not in doc and "peak" not in doc and "unit" not in doc
+    assert doc["model_corner_hz"] == pytest.approx(1 / (2 * math.pi), rel=1e-6)
+    assert doc["output_peak_fs"][0] == pytest.approx(0.5, rel=6e-3)
+    # 0.5 FS × 2 V / 10 (20 dB) / 12.5 mV/Pa = 8 Pa.
+    assert doc["output_peak_pa"][0] == pytest.approx(8.0, rel=6e-3)
+    assert doc["profile_written"] == str(out.with_suffix(".toml"))
+    before = cli("levels", src, "--json").json()
+    after = cli("levels", out, "--json").json()
+    assert after["unit"] == "Pa"
+    assert after["channels"][0]["LZeq"] == pytest.approx(before["channels"][0]["LZeq"], abs=0.01)
