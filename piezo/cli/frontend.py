@@ -23,7 +23,6 @@ from piezo.cli.options import JsonOption, SourceOptions, open_source, source_opt
 from piezo.cli.output import atomic_output, console, emit_json, progress
 from piezo.errors import InputError
 from piezo.frontend.filters import Equalizer, FrontendFilter
-from piezo.io.atomic import write_text_atomic
 from piezo.frontend.model import (
     Frontend,
     design_key_unit,
@@ -37,6 +36,7 @@ from piezo.frontend.model import (
     summarise_response,
 )
 from piezo.frontend.noise import noise_budget, noise_gain_midband, self_noise
+from piezo.io.atomic import write_text_atomic
 
 CAUTION = (
     "Caution: piezo elements can produce high voltages under shock or temperature change; "
