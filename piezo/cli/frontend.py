@@ -619,7 +619,7 @@ def equalize(
     result = eq.result()
     profile = _write_equalized_sidecar(file, out, source)
     probe = np.geomspace(target_hz / 10, result.model_corner_hz * 10, 5)
-    doc = {
+    doc: dict[str, Any] = {
         "file": str(file),
         "frontend": str(frontend_path),
         "out": str(out),
