@@ -14,7 +14,7 @@ from piezo.cli.output import console, emit_json, progress
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
 from piezo.spectral.welch import WelchPSD
-from piezo.tone.analysis import ToneAnalyzer, band_mean_square
+from piezo.tone.analysis import ToneAnalyzer, band_mean_square, default_bandwidth_hz
 
 #: Bin spacing of the tone analysis, hertz (1 s segments).
 RESOLUTION_HZ = 1.0
@@ -50,9 +50,14 @@ def tone(
         ),
     ] = None,
     bandwidth: Annotated[
-        str,
-        typer.Option("--bandwidth", metavar="LOW:HIGH", help="Measurement bandwidth."),
-    ] = "20Hz:20kHz",
+        str | None,
+        typer.Option(
+            "--bandwidth",
+            metavar="LOW:HIGH",
+            help="Measurement bandwidth; default 20Hz:20kHz up to 48 kHz sampling, else "
+            "20 Hz to 0.45 × the sample rate.",
+        ),
+    ] = None,
     expected: Annotated[
         str | None,
         typer.Option("--expected", metavar="FREQ", help="Nominal tone frequency (search ±12 %)."),
@@ -70,10 +75,11 @@ def tone(
     The whole recording is averaged into a 1 Hz Blackman-Harris Welch spectrum; a
     recording shorter than 1 s is analysed as one segment.
     """
-    lo, hi = parse_bandwidth(bandwidth)
+    given = parse_bandwidth(bandwidth) if bandwidth is not None else None
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
     fs = source.sample_rate_hz
+    lo, hi = given if given is not None else default_bandwidth_hz(fs)
     nch = len(source.channel_indices)
     seg = None if source.frames >= fs / RESOLUTION_HZ else source.frames
     if source.frames < 2:
@@ -120,6 +126,7 @@ def tone(
         "unit": source.unit,
         "level_unit": source.chain.level_unit,
         "bandwidth_hz": list(analyzer.bandwidth_hz),
+        "bandwidth_source": "option" if given is not None else "sample rate",
         "resolution_hz": results[0].resolution_hz,
         "segments": results[0].segments,
         "noise_file": None if noise is None else str(noise),
@@ -154,7 +161,9 @@ def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     lo, hi = doc["bandwidth_hz"]
     console.print(
-        f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz, {doc['resolution_hz']:g} Hz bins, "
+        f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz"
+        + (" (default for the sample rate)" if doc["bandwidth_source"] == "sample rate" else "")
+        + f", {doc['resolution_hz']:g} Hz bins, "
         f"{doc['segments']} averages"
     )
     table = Table(box=None, pad_edge=False, header_style="bold")

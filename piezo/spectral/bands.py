@@ -155,6 +155,30 @@ class Band:
         return f"{f:g}"
 
 
+#: Highest sample rate treated as an audio rate, Hz: up to it the bands stop at 20 kHz
+#: by default (the top of the audio band); above it, at what the sample rate allows.
+AUDIO_RATE_MAX_HZ = 48000.0
+
+
+def default_high_hz(sample_rate_hz: float) -> float:
+    """Default upper end of the band range for a sample rate, Hz.
+
+    20 kHz at audio rates (up to :data:`AUDIO_RATE_MAX_HZ`); above them the highest band
+    the rate allows (upper edge up to :data:`MAX_EDGE_RATIO` of it), so a 1 MS/s capture
+    is not cut at 20 kHz.
+
+    Examples
+    --------
+    >>> default_high_hz(48000.0), default_high_hz(1e6)
+    (20000.0, 475000.0)
+    """
+    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise InputError(f"sample_rate_hz must be positive, got {sample_rate_hz!r}")
+    if sample_rate_hz <= AUDIO_RATE_MAX_HZ:
+        return 20000.0
+    return MAX_EDGE_RATIO * sample_rate_hz
+
+
 def fractional_octave_bands(
     fraction: int = 3,
     *,

@@ -43,6 +43,7 @@ __all__ = [
     "ToneAnalyzer",
     "ToneResult",
     "band_mean_square",
+    "default_bandwidth_hz",
     "measure_tone",
     "noise_mean_square",
 ]
@@ -122,6 +123,32 @@ class ToneResult:
     def level_db(self, reference: float) -> float:
         """Level of the fundamental in dB re ``reference`` (20 µPa, 1 µPa or 1 V)."""
         return 20.0 * math.log10(self.tone_rms / reference) if self.tone_rms > 0 else -math.inf
+
+
+#: Highest sample rate treated as an audio rate, Hz (see :func:`default_bandwidth_hz`).
+AUDIO_RATE_MAX_HZ = 48000.0
+#: Above audio rates the default bandwidth reaches this fraction of the sample rate,
+#: where converters' anti-alias filters are still flat (common practice, no source).
+HIGH_RATE_BAND_RATIO = 0.45
+
+
+def default_bandwidth_hz(sample_rate_hz: float) -> tuple[float, float]:
+    """Default measurement bandwidth for a sample rate, Hz.
+
+    The AES17 20 Hz–20 kHz band at audio rates (up to :data:`AUDIO_RATE_MAX_HZ`); above
+    them 20 Hz to :data:`HIGH_RATE_BAND_RATIO` of the rate, so harmonics of an ultrasonic
+    or high-rate capture are not hidden.
+
+    Examples
+    --------
+    >>> default_bandwidth_hz(48000.0), default_bandwidth_hz(1e6)
+    ((20.0, 20000.0), (20.0, 450000.0))
+    """
+    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise InputError(f"sample_rate_hz must be positive, got {sample_rate_hz!r}")
+    if sample_rate_hz <= AUDIO_RATE_MAX_HZ:
+        return DEFAULT_BANDWIDTH_HZ
+    return (DEFAULT_BANDWIDTH_HZ[0], HIGH_RATE_BAND_RATIO * sample_rate_hz)
 
 
 def _bandwidth(bandwidth_hz: tuple[float, float], sample_rate_hz: float) -> tuple[float, float]:

@@ -153,7 +153,7 @@ def test_public_api_is_pinned():
 
     assert set(piezo.tone.analysis.__all__) == {
         "LINE_HALF_WIDTH_BINS", "ToneAnalyzer", "ToneResult", "band_mean_square",
-        "measure_tone", "noise_mean_square",
+        "default_bandwidth_hz", "measure_tone", "noise_mean_square",
     }  # fmt: skip
     assert all(hasattr(piezo.tone.analysis, name) for name in piezo.tone.analysis.__all__)
 
