@@ -138,6 +138,7 @@ def bands(
             hist = result.history_db(ref)[:, :, i]
             entry["history"] = {
                 "time_s": result.history_time_s,
+                "interval_duration_s": result.history_duration_s,
                 "level_db": [[_finite(v) for v in row] for row in hist],
             }
         doc["channels"].append(entry)

@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import copy
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import signal
@@ -334,6 +334,9 @@ class BandResult:
         Mean square per interval, shape ``(intervals, bands, channels)``. Each band's
         output is counted in the interval its (decimated) sample falls in; the filters'
         delay (a few periods of the band's mid-band frequency) is not compensated.
+    history_duration_s
+        Length of each interval, shape ``(intervals,)``: ``interval_s`` (rounded to whole
+        samples) except the last, which holds what is left of the recording.
     """
 
     fraction: int
@@ -343,6 +346,7 @@ class BandResult:
     history_time_s: np.ndarray
     history_mean_square: np.ndarray
     weighting: str = "Z"
+    history_duration_s: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def exact_hz(self) -> np.ndarray:
@@ -557,6 +561,7 @@ class BandAnalyzer:
         ms[done._n == 0] = np.nan
         if self.interval_s is None:
             times = np.zeros(0)
+            durations = np.zeros(0)
             hist = np.zeros((0, len(self.bands), self.channels))
         else:
             intervals = -(-self._frames // self._interval_frames)
@@ -564,7 +569,10 @@ class BandAnalyzer:
             with np.errstate(invalid="ignore", divide="ignore"):
                 hist = done._hist_sum[:intervals] / counts[:, :, None]
             hist[counts == 0] = np.nan
-            times = np.arange(intervals) * self._interval_frames / self.bank.sample_rate_hz
+            fs = self.bank.sample_rate_hz
+            starts = np.arange(intervals) * self._interval_frames
+            times = starts / fs
+            durations = (np.minimum(starts + self._interval_frames, self._frames) - starts) / fs
         return BandResult(
             fraction=self.fraction,
             bands=self.bands,
@@ -573,6 +581,7 @@ class BandAnalyzer:
             history_time_s=times,
             history_mean_square=hist,
             weighting=self.weighting,
+            history_duration_s=durations,
         )
 
 

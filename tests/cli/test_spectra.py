@@ -231,3 +231,14 @@ def test_bands_and_tone_default_their_upper_limit_from_the_sample_rate(cli, tmp_
     assert abs(doc["channels"][0]["thd_percent"] - 1.0) <= 0.01
     r = cli("bands", path, "--fraction", "1")
     assert "default for 1e+06 Hz sampling" in r.out
+
+
+def test_bands_history_states_interval_durations(cli, tone_wav):
+    # Issue 12 §3.17: a 2 s recording in 0.75 s intervals has a last interval of 0.5 s;
+    # the history says so beside each start time.
+    r = cli("bands", tone_wav, *SENS, "--json", "--fraction", "1", "--low", "500Hz",
+            "--high", "2kHz", "--interval", "0.75s")  # fmt: skip
+    assert r.code == 0, r.err
+    hist = r.json()["channels"][0]["history"]
+    assert hist["time_s"] == [0.0, 0.75, 1.5]
+    assert hist["interval_duration_s"] == pytest.approx([0.75, 0.75, 0.5])
