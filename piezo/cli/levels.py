@@ -63,6 +63,14 @@ def levels(
             "for a capture that starts on the event.",
         ),
     ] = None,
+    percentiles: Annotated[
+        str | None,
+        typer.Option(
+            "--percentiles",
+            metavar="P,P,...",
+            help="Further LAF percentiles, e.g. '1,10,50,90,99' for LAF1 ... LAF99.",
+        ),
+    ] = None,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -83,6 +91,8 @@ def levels(
         if settle_s < 0:
             raise InputError(f"--settle must be 0 or more, got {settle!r}")
         options["filter_settle_s"] = settle_s
+    if percentiles is not None:
+        options["percentiles"] = _parse_percentiles(percentiles)
     meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
     with progress(f"Levels {file.name}", source.frames) as advance:
         for block in source.blocks():
@@ -96,11 +106,25 @@ def levels(
     _print(doc)
 
 
+def _parse_percentiles(text: str) -> list[float]:
+    """``"1,10,50"`` → [1.0, 10.0, 50.0]; each strictly between 0 and 100."""
+    try:
+        values = [float(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        raise InputError(
+            f"--percentiles must be numbers separated by commas, got {text!r}"
+        ) from None
+    if not values or any(not 0 < v < 100 for v in values):
+        raise InputError(f"--percentiles must lie between 0 and 100, got {text!r}")
+    return values
+
+
 def _document(file: Path, source: Any, result: LevelResult) -> dict[str, Any]:
     channels = []
     for index, ch in zip(source.channel_indices, result.channels, strict=True):
         entry: dict[str, Any] = {"channel": index}
         entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
+        entry.update(ch.percentile_levels)
         entry.update(
             duration_s=result.duration_s,
             crest_factor=ch.crest_factor,
@@ -158,7 +182,8 @@ def _print(doc: dict[str, Any]) -> None:
     table.add_column("level")
     for ch in doc["channels"]:
         table.add_column(f"ch {ch['channel']}", justify="right")
-    for key in LEVEL_KEYS:
+    extra = [k for k in doc["channels"][0] if k.startswith("LAF") and k not in LEVEL_KEYS]
+    for key in (*LEVEL_KEYS, *extra):
         table.add_row(key, *(_fmt(ch[key]) for ch in doc["channels"]))
     table.add_row("crest factor (dB)", *(_fmt(ch["crest_factor_db"]) for ch in doc["channels"]))
     console.print(table)

@@ -43,6 +43,7 @@ This is a signal analysis of a recording, not a certified sound level meter meas
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -115,6 +116,8 @@ class ChannelLevels:
     crest_factor: float | None
     crest_factor_db: float | None
     notes: tuple[str, ...] = ()
+    #: The chosen LAF percentiles (``LevelMeter(percentiles=...)``) by name, e.g. "LAF1".
+    percentile_levels: dict[str, float | None] = field(default_factory=dict)
 
     def levels(self) -> dict[str, float | None]:
         """The levels by their standard names (LZeq ... LAF95)."""
@@ -224,6 +227,10 @@ class LevelMeter:
         Settling time of the frequency-weighting filters, excluded from LCpeak, LAFmax,
         LASmax (and, plus 5 time constants, from LAFmin, LAF percentiles, LASmin).
         Default 0.1 s.
+    percentiles
+        Further LAF percentiles to report, in per cent (0 < p < 100), e.g. (1, 99) gives
+        LAF1 and LAF99 in :attr:`ChannelLevels.percentile_levels`; LAF5 … LAF95 are
+        always given.
 
     Notes
     -----
@@ -241,8 +248,13 @@ class LevelMeter:
         trace_interval_s: float = 0.1,
         percentile_interval_s: float = 0.01,
         filter_settle_s: float = FILTER_SETTLE_S,
+        percentiles: Sequence[float] = (),
     ) -> None:
         fs = _check_rate(sample_rate_hz)
+        self.percentiles = tuple(float(p) for p in percentiles)
+        for p in self.percentiles:
+            if not (0.0 < p < 100.0):
+                raise InputError(f"percentiles must lie between 0 and 100, got {p!r}")
         self.sample_rate_hz = fs
         self.channels = _check_channels(channels)
         if not (reference > 0 and math.isfinite(reference)):
@@ -442,6 +454,10 @@ class LevelMeter:
                 f"{self._hist_other[1, c]} F level samples outside "
                 f"{HISTOGRAM_LOW_DB:g}..{HISTOGRAM_HIGH_DB:g} dB were clamped for percentiles"
             )
+        chosen = self._percentile_levels(c, self.percentiles) if self.percentiles else {}
+        percentile_levels = {
+            f"LAF{p:g}": None if chosen is None else chosen[p] for p in self.percentiles
+        }
         crest = None
         crest_db = None
         if ms[0] > 0:
@@ -453,22 +469,25 @@ class LevelMeter:
             crest_factor=crest,
             crest_factor_db=crest_db,
             notes=tuple(notes),
+            percentile_levels=percentile_levels,
         )
 
-    def _percentile_levels(self, c: int) -> dict[int, float | None] | None:
+    def _percentile_levels(
+        self, c: int, percentiles: Sequence[float] = PERCENTILES
+    ) -> dict[float, float | None] | None:
         hist = self._hist[c]
         zero = int(self._hist_other[0, c])
         clipped_count = int(self._hist_other[1, c])
         total = int(hist.sum()) + zero
         if total == 0:
             return None
-        out: dict[int, float | None] = {}
+        out: dict[float, float | None] = {}
         # Counts from the loudest bin down; LAFn is the level exceeded n % of the time,
         # interpolated linearly within its bin (levels spread evenly over a bin: the
         # grouped-data quantile of descriptive statistics), not the bin's centre.
         from_top = np.cumsum(hist[::-1])
         n_bins = hist.size
-        for p in PERCENTILES:
+        for p in percentiles:
             k = max(1, math.ceil(p / 100.0 * total))
             if k > from_top[-1]:
                 out[p] = None  # falls on F levels of exactly zero
