@@ -45,6 +45,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -392,13 +393,19 @@ class LevelMeter:
         fs = self.sample_rate_hz
         ref = self.reference
         notes: list[str] = []
+        undefined: dict[str, Any] = {
+            **dict.fromkeys(_LEVEL_NAMES),
+            "crest_factor": None,
+            "crest_factor_db": None,
+            "percentile_levels": dict.fromkeys(f"LAF{p:g}" for p in self.percentiles),
+        }
         if n == 0:
-            return ChannelLevels(c, *([None] * (len(_LEVEL_NAMES) + 2)), notes=("no samples",))
+            return ChannelLevels(c, **undefined, notes=("no samples",))
         st = self._state[:, c]
         if st[kern.ST_SUM_Z] == 0.0:
             return ChannelLevels(
                 c,
-                *([None] * (len(_LEVEL_NAMES) + 2)),
+                **undefined,
                 notes=("channel is all zeros (digital silence): levels are undefined",),
             )
         ms = st[[kern.ST_SUM_Z, kern.ST_SUM_C, kern.ST_SUM_A]] / n
