@@ -80,6 +80,35 @@ def _band(band: tuple[float | None, float | None] | None) -> list[float | None] 
     return None if band is None else [band[0], band[1]]
 
 
+#: Frequencies of the noise density table when --at is not given, Hz.
+NOISE_TABLE_HZ = (1.0, 10.0, 100.0, 1000.0, 10000.0)
+
+
+def _density_table(fe: Frontend, at_hz: tuple[float, ...]) -> dict[str, Any]:
+    """Noise density per source and in total at ``at_hz``, at the output and the input."""
+    budget = noise_budget(fe, np.asarray(at_hz, dtype=float))
+    return {
+        "frequency_hz": list(budget.frequency_hz),
+        "sources": [
+            {
+                "source": key,
+                "label": label,
+                "output_v_per_sqrt_hz": list(np.sqrt(out)),
+                "input_pa_per_sqrt_hz": list(np.sqrt(inp)),
+            }
+            for key, label, out, inp in zip(
+                budget.keys,
+                budget.labels,
+                budget.output_psd_v2_per_hz,
+                budget.input_psd_pa2_per_hz,
+                strict=True,
+            )
+        ],
+        "total_output_v_per_sqrt_hz": list(np.sqrt(budget.total_output_psd_v2_per_hz)),
+        "total_input_pa_per_sqrt_hz": list(np.sqrt(budget.total_input_psd_pa2_per_hz)),
+    }
+
+
 def design_document(fe: Frontend, *, at_hz: tuple[float, ...] = ()) -> dict[str, Any]:
     """Every figure of ``frontend`` as plain JSON values (the ``--json`` contract)."""
     summary = summarise_response(fe, at_hz=at_hz)
@@ -120,6 +149,7 @@ def design_document(fe: Frontend, *, at_hz: tuple[float, ...] = ()) -> dict[str,
             for s in noise.sources
         ],
         "noise_reference_hz": noise.reference_hz,
+        "noise_density": _density_table(fe, at_hz or NOISE_TABLE_HZ),
         "clip_level_v": amp.clip_level_v,
         "max_spl_db": noise.max_spl_db,
         "dynamic_range_db": noise.dynamic_range_db,

@@ -225,3 +225,22 @@ def test_equalize_json_names_what_it_reports_and_keeps_the_file_calibrated(cli, 
     after = cli("levels", out, "--json").json()
     assert after["unit"] == "Pa"
     assert after["channels"][0]["LZeq"] == pytest.approx(before["channels"][0]["LZeq"], abs=0.01)
+
+
+def test_noise_density_table_at_chosen_frequencies(cli, design):
+    # Issue 12 §3.17: the noise budget at chosen frequencies (--at), as a density table in
+    # the JSON. The feedback resistor's Johnson current noise √(4kT/Rf) (Johnson 1928,
+    # Nyquist 1928) flows through the feedback impedance Rf ∥ Cf, so its output density is
+    # √(4kT/Rf)·Rf/|1 + j2πf·Rf·Cf| (1 GΩ, 1 nF here); k = 1.380649e-23 J/K (SI 2019).
+    r = cli("frontend", design, "--json", "--at", "1Hz,100Hz,10kHz")
+    assert r.code == 0, r.err
+    doc = r.json()
+    table = doc["noise_density"]
+    assert table["frequency_hz"] == [1.0, 100.0, 10000.0]
+    rf = next(s for s in table["sources"] if s["source"] == "feedback_resistance")
+    f = np.array(table["frequency_hz"])
+    kt4 = 4 * 1.380649e-23 * doc["temperature_k"]
+    expected = math.sqrt(kt4 / 1e9) * 1e9 / np.abs(1 + 2j * np.pi * f * 1e9 * 1e-9)
+    np.testing.assert_allclose(rf["output_v_per_sqrt_hz"], expected, rtol=1e-9)
+    total = np.sqrt(sum(np.square(s["output_v_per_sqrt_hz"]) for s in table["sources"]))
+    np.testing.assert_allclose(table["total_output_v_per_sqrt_hz"], total, rtol=1e-12)
