@@ -109,10 +109,15 @@ def _density_table(fe: Frontend, at_hz: tuple[float, ...]) -> dict[str, Any]:
     }
 
 
-def design_document(fe: Frontend, *, at_hz: tuple[float, ...] = ()) -> dict[str, Any]:
+def design_document(
+    fe: Frontend,
+    *,
+    at_hz: tuple[float, ...] = (),
+    noise_band_hz: tuple[float, float] = (20.0, 20000.0),
+) -> dict[str, Any]:
     """Every figure of ``frontend`` as plain JSON values (the ``--json`` contract)."""
     summary = summarise_response(fe, at_hz=at_hz)
-    noise = self_noise(fe)
+    noise = self_noise(fe, band_hz=noise_band_hz)
     amp = fe.amplifier
     return {
         "name": fe.name,
@@ -206,6 +211,15 @@ def frontend(
             "e.g. feedback_resistance=100M:10G:5.",
         ),
     ] = None,
+    noise_band: Annotated[
+        str,
+        typer.Option(
+            "--noise-band",
+            metavar="LOW:HIGH",
+            help="Band of the self-noise, e.g. '10Hz:100kHz' for a hydrophone or "
+            "'1Hz:10kHz' for vibration.",
+        ),
+    ] = "20Hz:20kHz",
     json_out: JsonOption = False,
 ) -> None:
     """Model a piezo front-end from its design file.
@@ -218,8 +232,17 @@ def frontend(
     data = read_design(design)
     fe = frontend_from_mapping(data, source=str(design))
     at_hz = tuple(parse_frequency_list(at, what="--at"))
+    band = parse_frequency_list(noise_band.replace(":", ","), what="--noise-band")
+    if len(band) != 2 or not 0 < band[0] < band[1]:
+        raise InputError(
+            f"--noise-band must look like '20Hz:20kHz' (low < high), got {noise_band!r}"
+        )
+    noise_band_hz = (band[0], band[1])
     try:
-        doc = {"design": str(design), **design_document(fe, at_hz=at_hz)}
+        doc = {
+            "design": str(design),
+            **design_document(fe, at_hz=at_hz, noise_band_hz=noise_band_hz),
+        }
     except InputError as exc:
         raise exc.with_source(str(design)) from None
     rows = None
@@ -301,7 +324,8 @@ def _print_design(doc: dict[str, Any]) -> None:
         (
             "self-noise",
             f"{doc['self_noise_dba']:.1f} dB(A) re 20 µPa; unweighted "
-            f"{doc['self_noise_unweighted_db']:.1f} dB over 20 Hz–20 kHz",
+            f"{doc['self_noise_unweighted_db']:.1f} dB over "
+            f"{_q(doc['noise_band_hz'][0], 'Hz')}–{_q(doc['noise_band_hz'][1], 'Hz')}",
         ),
     ]
     if doc["clip_level_v"] is not None:
@@ -333,7 +357,8 @@ def _print_design(doc: dict[str, Any]) -> None:
 
     ref = _q(doc["noise_reference_hz"], "Hz")
     table = Table(
-        title=f"Noise budget (densities at {ref}, A-weighted over 20 Hz–20 kHz)",
+        title=f"Noise budget (densities at {ref}, A-weighted over "
+        f"{_q(doc['noise_band_hz'][0], 'Hz')}–{_q(doc['noise_band_hz'][1], 'Hz')})",
         box=None,
         header_style="bold",
         title_justify="left",

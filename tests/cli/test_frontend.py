@@ -244,3 +244,18 @@ def test_noise_density_table_at_chosen_frequencies(cli, design):
     np.testing.assert_allclose(rf["output_v_per_sqrt_hz"], expected, rtol=1e-9)
     total = np.sqrt(sum(np.square(s["output_v_per_sqrt_hz"]) for s in table["sources"]))
     np.testing.assert_allclose(table["total_output_v_per_sqrt_hz"], total, rtol=1e-12)
+
+
+def test_self_noise_band_is_an_option(cli, design):
+    # Issue 12 §3.17: hydrophone and vibration bands differ from 20 Hz–20 kHz. The
+    # unweighted self-noise is the input PSD integrated over the band, so a wider band
+    # holds at least as much noise, and the band is stated.
+    narrow = cli("frontend", design, "--json").json()
+    wide = cli("frontend", design, "--json", "--noise-band", "1Hz:100kHz").json()
+    assert narrow["noise_band_hz"] == [20.0, 20000.0]
+    assert wide["noise_band_hz"] == [1.0, 100000.0]
+    assert wide["self_noise_unweighted_db"] > narrow["self_noise_unweighted_db"]
+    r = cli("frontend", design, "--noise-band", "1Hz:100kHz")
+    assert "over 1 Hz–100 kHz" in r.out
+    r = cli("frontend", design, "--noise-band", "10kHz:1kHz")
+    assert r.code == 2 and "--noise-band" in r.err
