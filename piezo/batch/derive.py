@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -24,7 +25,9 @@ import numpy as np
 from scipy import stats as sstats
 
 from piezo.batch.spec import METRIC_KINDS, MetricSpec, Spec
+from piezo.chain.units import resolution_decimals
 from piezo.errors import InputError
+from piezo.io.text import parse_toml
 from piezo.io.toml import toml_value
 
 __all__ = [
@@ -190,6 +193,58 @@ def _plain(value: Any) -> Any:
 # Writing TOML.
 
 
+def _rounded(value: Any, std: Any) -> Any:
+    """Limits rounded to two significant digits of σ: the resolution the golden data
+    support (σ from n units is itself uncertain by tens of per cent, see
+    :func:`sigma_interval`). With zero spread the value is kept as it is."""
+    if isinstance(value, list):
+        return [_rounded(v, s) for v, s in zip(value, std, strict=True)]
+    if value is None or not (isinstance(std, float) and math.isfinite(std) and std > 0):
+        return value
+    return round(float(value), resolution_decimals(std)) + 0.0  # no "-0.0"
+
+
+_HEADER = re.compile(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?\s*(#.*)?$")
+
+
+def _base_comments(text: str) -> tuple[dict[str, list[str]], dict[str, list[str]]]:
+    """Comment lines of the base spec, so the derived spec keeps them: (before, inside),
+    by table name; ``before[""]`` is the file's opening block. A comment block directly
+    above a table header goes with that table; one inside a table stays inside it."""
+    before: dict[str, list[str]] = {"": []}
+    inside: dict[str, list[str]] = {}
+    current = ""
+    pending: list[str] = []
+    for line in text.splitlines():
+        stripped = line.strip()
+        header = _HEADER.match(line)
+        if header:
+            current = header.group(1).replace(" ", "")
+            before.setdefault(current, []).extend(pending)
+            inside.setdefault(current, [])
+            pending = []
+        elif stripped.startswith("#"):
+            pending.append(stripped)
+        elif not stripped and pending:
+            # A blank line ends a block: it belongs where it stands, not to the next table.
+            (before[""] if current == "" else inside[current]).extend(pending)
+            pending = []
+        elif pending and current:
+            inside[current].extend(pending)
+            pending = []
+    if pending:
+        (before[""] if current == "" else inside[current]).extend(pending)
+    return before, inside
+
+
+def _raw_tables(spec: Spec) -> dict[str, Any]:
+    """The base spec's TOML as written (unit forms such as "20 dB" intact)."""
+    try:
+        return parse_toml(spec.text) if spec.text else {}
+    except InputError:
+        return {}
+
+
 def _fmt(value: Any) -> str:
     if isinstance(value, list):
         return "[" + ", ".join(f"{v:.4g}" for v in value) + "]"
@@ -209,6 +264,15 @@ def derived_spec_text(
 ) -> str:
     """The new spec file: the base spec with derived limits, n/mean/σ in comments."""
     out_dir = Path(out_path).resolve().parent
+    comments, inner = _base_comments(spec.text)
+    raw = _raw_tables(spec)
+    raw_capture = raw.get("capture", {})
+    raw_stimulus = raw.get("stimulus", {})
+    raw_metrics = raw.get("metrics", {})
+
+    def table(name: str) -> list[str]:
+        return ["", *comments.get(name, []), f"[{name}]", *inner.get(name, [])]
+
     lines = [
         f"# Limit spec derived by `piezo limits derive` from golden captures in {golden_source}",
         f"# base spec: {base_source}; fail limits at mean ± {k:g}·σ"
@@ -217,28 +281,38 @@ def derived_spec_text(
         "# σ is the sample standard deviation (n − 1) of the golden units.",
     ]
     lines += [f"# NOTE: {note}" for note in notes]
-    lines += ["", "[spec]"]
+    if comments[""]:
+        lines += ["#", "# From the base spec:", *comments[""]]
+    lines += table("spec")
     if spec.name:
         lines.append(f"name = {toml_value(spec.name)}")
     if spec.serial_pattern is not None:
         lines.append(f"serial_pattern = {toml_value(spec.serial_pattern)}")
         lines.append(f"serial_required = {toml_value(spec.serial_required)}")
-    lines += ["", "[capture]", f"channel = {spec.channel}"]
-    lines.append(f"full_scale_v = {toml_value(spec.full_scale_v)}")
-    lines.append(f"gain = {toml_value(spec.gain)}")
+    lines += table("capture")
+    lines.append(f"channel = {spec.channel}")
+    # Values as the base spec wrote them ("20 dB" stays "20 dB"), else the parsed ones.
+    full_scale = raw_capture.get("full_scale_v", spec.full_scale_v)
+    lines.append(f"full_scale_v = {toml_value(full_scale)}")
+    lines.append(f"gain = {toml_value(raw_capture.get('gain', spec.gain))}")
     if spec.rate_hz is not None:
-        lines.append(f"rate_hz = {toml_value(spec.rate_hz)}")
-    lines += ["", "[stimulus]", f"kind = {toml_value(spec.stimulus.kind)}"]
+        lines.append(f"rate_hz = {toml_value(raw_capture.get('rate_hz', spec.rate_hz))}")
+    lines += table("stimulus")
+    lines.append(f"kind = {toml_value(spec.stimulus.kind)}")
     stim = dict(spec.stimulus.params)
     if "file" in stim:  # parameters that came from the stimulus file stay there
         stim = {k: v for k, v in stim.items() if k in ("level_pa", "level_db")}
         stim["file"] = os.path.relpath(Path(spec.stimulus.params["file"]).resolve(), out_dir)
     for key, value in stim.items():
+        if key != "file" and key in raw_stimulus:
+            value = raw_stimulus[key]
         lines.append(f"{key} = {toml_value(value)}")
     by_name = {d.name: d for d in derived}
     for metric in spec.metrics:
-        lines += ["", f"[metrics.{metric.name}]", f"kind = {toml_value(metric.kind)}"]
+        lines += table(f"metrics.{metric.name}")
+        lines.append(f"kind = {toml_value(metric.kind)}")
         d = by_name[metric.name]
+        raw_params = raw_metrics.get(metric.name, {})
         params = dict(metric.params)
         params.pop("golden_data", None)
         if "golden" in params:
@@ -248,6 +322,8 @@ def derived_spec_text(
             params.pop("lower_db", None)
             params.pop("upper_db", None)
         for key, value in params.items():
+            if key != "golden" and key in raw_params and not isinstance(raw_params[key], dict):
+                value = raw_params[key]
             lines.append(f"{key} = {toml_value(value)}")
         if d.copied:
             lines.append("derive = false")
@@ -259,23 +335,49 @@ def derived_spec_text(
             lines.append(f"# mean_db = {_fmt(d.mean)}")
             lines.append(f"# std_db = {_fmt(d.std)}")
             if d.lower is not None:
-                lines.append(f"lower_db = {toml_value(d.lower)}")
+                lines.append(f"lower_db = {toml_value(_rounded(d.lower, d.std))}")
             if d.upper is not None:
-                lines.append(f"upper_db = {toml_value(d.upper)}")
+                lines.append(f"upper_db = {toml_value(_rounded(d.upper, d.std))}")
             if severity != "fail":
                 lines.append(f"severity = {toml_value(severity)}")
             continue
-        limits = [(d.lower, d.upper, "fail")]
-        if warn_k is not None:
-            limits.append((d.warn_lower, d.warn_upper, "warn"))
-        for lower, upper, severity in limits:
+        for lower, upper, severity in _derived_limits(metric, d, warn_k):
             lines.append(f"[[metrics.{metric.name}.limits]]")
             if lower is not None:
-                lines.append(f"lower = {toml_value(lower)}")
+                lines.append(f"lower = {toml_value(_rounded(lower, d.std))}")
             if upper is not None:
-                lines.append(f"upper = {toml_value(upper)}")
+                lines.append(f"upper = {toml_value(_rounded(upper, d.std))}")
             lines.append(f"severity = {toml_value(severity)}")
     return "\n".join(lines) + "\n"
+
+
+def _derived_limits(
+    metric: MetricSpec, d: DerivedMetric, warn_k: float | None
+) -> list[tuple[Any, Any, str]]:
+    """(lower, upper, severity) of the derived limits, keeping the base's severities.
+
+    Each base limit keeps its severity and its sides; a "fail" limit moves to mean ± k·σ,
+    a "warn" limit to mean ± warn_k·σ (± k·σ without ``warn_k``). A base with no
+    limits gets a fail limit on both sides; ``warn_k`` adds a warning band where the
+    base has no warn limit.
+    """
+    fail = (d.lower, d.upper)
+    warn = (d.warn_lower, d.warn_upper) if warn_k is not None else fail
+    out: list[tuple[Any, Any, str]] = []
+    for lim in metric.limits or ():
+        lo, hi = warn if lim.severity == "warn" else fail
+        out.append(
+            (
+                lo if lim.lower is not None else None,
+                hi if lim.upper is not None else None,
+                lim.severity,
+            )
+        )
+    if not out:
+        out.append((*fail, "fail"))
+    if warn_k is not None and not any(sev == "warn" for *_, sev in out):
+        out.append((d.warn_lower, d.warn_upper, "warn"))
+    return out
 
 
 def _limit_lines(metric: MetricSpec) -> list[str]:

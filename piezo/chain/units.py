@@ -20,6 +20,7 @@ __all__ = [
     "ACCEPTED_UNITS",
     "db_to_ratio",
     "format_quantity",
+    "format_uncertain",
     "parse_charge_gain",
     "parse_duration",
     "parse_frequency_list",
@@ -27,6 +28,7 @@ __all__ = [
     "parse_quantity",
     "parse_sensitivity",
     "ratio_to_db",
+    "resolution_decimals",
 ]
 
 #: SI prefix symbol -> power of ten. ``u`` stands for micro where µ is hard to type.
@@ -352,6 +354,98 @@ def format_quantity(value: float, unit: str, *, digits: int = 4) -> str:
     mantissa, symbol = _engineering(value)
     text = f"{mantissa:.{digits}g}"
     return f"{text} {symbol}{unit}"
+
+
+def format_uncertain(
+    value: float,
+    standard_uncertainty: float | None,
+    unit: str = "",
+    *,
+    coverage_factor: float = 2.0,
+) -> str:
+    """A value with its uncertainty, rounded together, with the coverage stated.
+
+    Follows the GUM (JCGM 100:2008): the uncertainty is given to two significant digits
+    and the value rounded to the same decimal place (7.2.6); an expanded uncertainty
+    U = k·u is written ``value ± U`` with k stated (7.2.4), a standard uncertainty
+    (``coverage_factor=1``) as ``value (u = …)``, never with ``±``, which readers take
+    for an interval of high coverage (7.2.2). Every printed uncertainty goes through
+    this function.
+
+    Parameters
+    ----------
+    value
+        The estimate.
+    standard_uncertainty
+        Its standard uncertainty u (1σ), in the unit of ``value``; None or NaN when not
+        determined (the value is then printed to 5 significant digits and says so).
+    unit
+        Unit symbol appended to value and uncertainty ("" for a pure number).
+    coverage_factor
+        k of the printed expanded uncertainty; 1 prints the standard uncertainty.
+
+    Examples
+    --------
+    >>> format_uncertain(234.1, 0.0033, "Hz")
+    '234.1000 Hz ± 0.0066 Hz (k = 2)'
+    >>> format_uncertain(7904.0, 155.5, "Hz")
+    '7900 Hz ± 310 Hz (k = 2)'
+    >>> format_uncertain(7.99799, 0.0029, coverage_factor=1)
+    '7.9980 (u = 0.0029)'
+    >>> format_uncertain(6200.0, None, "Hz")
+    '6200 Hz (uncertainty not determined)'
+    >>> format_uncertain(6200.0, 1e-13, "Hz")
+    '6200.00000 Hz (uncertainty below 1 ppb)'
+    """
+    if not (isinstance(coverage_factor, (int, float)) and coverage_factor >= 1):
+        raise UnitError(f"coverage_factor must be at least 1, got {coverage_factor!r}")
+    space = f" {unit}" if unit else ""
+    if not math.isfinite(value):
+        return f"{value}{space}"
+    u = None if standard_uncertainty is None else float(standard_uncertainty)
+    if u is None or not math.isfinite(u) or u < 0:
+        return f"{value:.5g}{space} (uncertainty not determined)"
+    shown = coverage_factor * u
+    if shown <= 1e-9 * abs(value) or shown == 0:
+        return f"{_fixed(value, 8 - _exponent(value))}{space} (uncertainty below 1 ppb)"
+    decimals = resolution_decimals(shown)
+    shown_text = _fixed(shown, decimals)
+    if float(shown_text) >= 10.0 ** (2 - decimals):
+        decimals -= 1  # rounding carried into a third digit (e.g. 99.7 → 100)
+        shown_text = _fixed(shown, decimals)
+    value_text = _fixed(value, decimals)
+    if coverage_factor == 1:
+        return f"{value_text}{space} (u = {shown_text}{space})"
+    return f"{value_text}{space} ± {shown_text}{space} (k = {coverage_factor:g})"
+
+
+def resolution_decimals(uncertainty: float, digits: int = 2) -> int:
+    """Decimal places that keep ``digits`` significant digits of ``uncertainty``.
+
+    The place to which a value known to ± ``uncertainty`` is rounded (GUM, JCGM
+    100:2008, 7.2.6); negative means tens, hundreds ….
+
+    Examples
+    --------
+    >>> resolution_decimals(0.0123), resolution_decimals(1.7), resolution_decimals(311.0)
+    (3, 1, -1)
+    """
+    if not (math.isfinite(uncertainty) and uncertainty > 0):
+        raise UnitError(f"uncertainty must be a positive number, got {uncertainty!r}")
+    return digits - 1 - _exponent(uncertainty)
+
+
+def _exponent(x: float) -> int:
+    """Decimal exponent of |x| (0 for 0)."""
+    return int(math.floor(math.log10(abs(x)))) if x else 0
+
+
+def _fixed(x: float, decimals: int) -> str:
+    """``x`` rounded to ``decimals`` places (negative: to tens, hundreds …)."""
+    if decimals >= 0:
+        return f"{x:.{decimals}f}"
+    step = 10.0**-decimals
+    return f"{round(x / step) * step:.0f}"
 
 
 def parse_many(items: Iterable[str], unit: str, *, what: str = "value") -> list[float]:

@@ -51,9 +51,14 @@ def bands(
         str, typer.Option("--low", metavar="FREQ", help="Lowest nominal band.")
     ] = "20Hz",
     high: Annotated[
-        str,
-        typer.Option("--high", metavar="FREQ", help="Highest nominal band (limited by Nyquist)."),
-    ] = "20kHz",
+        str | None,
+        typer.Option(
+            "--high",
+            metavar="FREQ",
+            help="Highest nominal band; default 20kHz up to 48 kHz sampling, else the "
+            "highest band the sample rate allows.",
+        ),
+    ] = None,
     interval: Annotated[
         str | None,
         typer.Option(
@@ -88,7 +93,7 @@ def bands(
     if weighting not in ("A", "C", "Z"):
         raise InputError(f"--weighting must be A, C or Z; got {weighting!r}")
     low_hz = parse_frequency(low, "--low")
-    high_hz = parse_frequency(high, "--high")
+    high_given = parse_frequency(high, "--high") if high is not None else None
     interval_s = parse_duration(interval, what="--interval") if interval is not None else None
     if interval_s is not None and not interval_s > 0:
         raise InputError(f"--interval must be positive, got {interval!r}")
@@ -98,7 +103,7 @@ def bands(
             source,
             fraction=fraction,
             low_hz=low_hz,
-            high_hz=high_hz,
+            high_hz=high_given,
             interval_s=interval_s,
             weighting=weighting,
             advance=advance,
@@ -146,6 +151,11 @@ def _print(doc: dict) -> None:
         f"{doc['level_unit']}, "
         "IEC 61260-1:2014 class 1 filters"
     )
+    if doc["high_source"] == "sample rate":
+        console.print(
+            f"  bands up to {doc['high_hz']:g} Hz: the default for "
+            f"{doc['sample_rate_hz']:g} Hz sampling (--high to change)"
+        )
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("band Hz", justify="right")
     for entry in doc["channels"]:

@@ -96,8 +96,9 @@ def check(
     """Check a capture before trusting numbers from it.
 
     Every check gives a severity (ok, warn, fail), the evidence and the threshold used.
-    A channel's verdict is its worst severity. Exit code 0 when no channel fails, 1 when
-    any fails, 2 when the input cannot be used.
+    A channel's verdict is the worst severity of its own checks; the file's verdict adds
+    the file-level (metadata) checks. Exit code 0 when nothing fails, 1 when a channel or
+    a file-level check fails, 2 when the input cannot be used.
     """
     thresholds = resolve_thresholds(thresholds_file, threshold, expected_corner)
     source = open_source(file, src, allow_time_gaps=True)
@@ -150,11 +151,10 @@ def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> 
             table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
         console.print(table)
     console.print()
-    bad = []
+    bad = [f"file ({c.name})" for c in result.metadata_checks if c.severity is not Severity.OK]
     for ch in result.channels:
         if ch.verdict is not Severity.OK:
-            found = ch.checks + result.metadata_checks
-            names = [c.name for c in found if c.severity is ch.verdict]
+            names = [c.name for c in ch.checks if c.severity is ch.verdict]
             bad.append(f"channel {ch.channel} ({', '.join(names)})")
     verdict = result.verdict
     console.print(

@@ -17,6 +17,7 @@ import soundfile as sf
 import typer
 from rich.table import Table
 
+from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource, sidecar_path
 from piezo.chain.units import format_quantity, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
@@ -36,6 +37,8 @@ from piezo.frontend.model import (
     summarise_response,
 )
 from piezo.frontend.study import CAUTION, study_frontend, vary_values
+from piezo.io.atomic import write_text_atomic
+from piezo.io.toml import toml_value
 from piezo.plots.frontend import write_plot as _plot
 
 #: Output formats that hold 32-bit float samples (values beyond ±1 survive).
@@ -112,6 +115,15 @@ def frontend(
         ),
     ] = None,
     force: ForceOption = False,
+    noise_band: Annotated[
+        str,
+        typer.Option(
+            "--noise-band",
+            metavar="LOW:HIGH",
+            help="Band of the self-noise, e.g. '10Hz:100kHz' for a hydrophone or "
+            "'1Hz:10kHz' for vibration.",
+        ),
+    ] = "20Hz:20kHz",
     json_out: JsonOption = False,
 ) -> None:
     """Model a piezo front-end from its design file.
@@ -123,8 +135,14 @@ def frontend(
     """
     refuse_existing(plot, force=force)
     at_hz = tuple(parse_frequency_list(at, what="--at"))
+    band = parse_frequency_list(noise_band.replace(":", ","), what="--noise-band")
+    if len(band) != 2 or not 0 < band[0] < band[1]:
+        raise InputError(
+            f"--noise-band must look like '20Hz:20kHz' (low < high), got {noise_band!r}"
+        )
+    noise_band_hz = (band[0], band[1])
     varied = _parse_vary(vary) if vary is not None else None
-    study = study_frontend(design, at_hz=at_hz, vary=varied)
+    study = study_frontend(design, at_hz=at_hz, vary=varied, noise_band_hz=noise_band_hz)
     fe = study.frontend
     doc = study.to_dict()
     rows = doc["vary"]["rows"] if varied is not None else None
@@ -187,7 +205,8 @@ def _print_design(doc: dict[str, Any]) -> None:
         (
             "self-noise",
             f"{doc['self_noise_dba']:.1f} dB(A) re 20 µPa; unweighted "
-            f"{doc['self_noise_unweighted_db']:.1f} dB over 20 Hz–20 kHz",
+            f"{doc['self_noise_unweighted_db']:.1f} dB over "
+            f"{_q(doc['noise_band_hz'][0], 'Hz')}–{_q(doc['noise_band_hz'][1], 'Hz')}",
         ),
     ]
     if doc["clip_level_v"] is not None:
@@ -219,7 +238,8 @@ def _print_design(doc: dict[str, Any]) -> None:
 
     ref = _q(doc["noise_reference_hz"], "Hz")
     table = Table(
-        title=f"Noise budget (densities at {ref}, A-weighted over 20 Hz–20 kHz)",
+        title=f"Noise budget (densities at {ref}, A-weighted over "
+        f"{_q(doc['noise_band_hz'][0], 'Hz')}–{_q(doc['noise_band_hz'][1], 'Hz')})",
         box=None,
         header_style="bold",
         title_justify="left",
@@ -431,6 +451,29 @@ def simulate(
     console.print(f"[yellow]{CAUTION}[/yellow]")
 
 
+def _write_equalized_sidecar(file: Path, out: Path, source: CalibratedSource) -> Path:
+    """The output's sidecar profile: the input's chain for the output's float samples.
+
+    The samples keep the input's scale; a float file is not scaled by a full-scale
+    voltage, so the sidecar's gain takes it in (gain / full scale for a PCM input).
+    """
+    chain = source.chain
+    gain = chain.gain / (chain.full_scale_v if source.recording.is_pcm else 1.0)
+    lines = [
+        f"# Sidecar of {out.name}, written by piezo equalize from {file.name}: the samples",
+        "# keep the input's scale, so this chain reads them in the input's units.",
+    ]
+    if chain.sensitivity_v_per_pa is not None:
+        sensitivity = toml_value(f"{1e3 * chain.sensitivity_v_per_pa:.10g} mV/Pa")
+        lines += ["[sensor]", f"sensitivity = {sensitivity}"]
+    lines += ["[chain]", f"gain = {toml_value(f'{gain:.12g}')}"]
+    if chain.reference_pa != REFERENCE_AIR_PA:
+        lines.append(f"reference = {toml_value(f'{chain.reference_pa:.10g} Pa')}")
+    path = sidecar_path(out)
+    write_text_atomic(path, "\n".join(lines) + "\n")
+    return path
+
+
 @source_options
 def equalize(
     file: Annotated[Path, typer.Argument(help="Recording made through the front-end.")],
@@ -479,7 +522,8 @@ def equalize(
                     sink.write(eq.update(block) / source.scale)
                     advance(block.shape[0])
     result = eq.result()
-    probe = np.geomspace(target_hz / 10, result.measured_corner_hz * 10, 5)
+    profile = _write_equalized_sidecar(file, out, source)
+    probe = np.geomspace(target_hz / 10, result.model_corner_hz * 10, 5)
     doc: dict[str, Any] = {
         "file": str(file),
         "frontend": str(frontend_path),
@@ -487,15 +531,16 @@ def equalize(
         "sample_rate_hz": source.sample_rate_hz,
         "frames": result.frames,
         "channels": list(source.channel_indices),
-        "measured_corner_hz": result.measured_corner_hz,
+        "model_corner_hz": result.model_corner_hz,
         "target_corner_hz": result.target_corner_hz,
         "boost_db": result.boost_db,
         "boost_at": [
             {"frequency_hz": float(f), "boost_db": float(b)}
             for f, b in zip(probe, eq.boost_at_db(probe), strict=True)
         ],
-        "unit": source.unit,
-        "peak": [p / source.scale for p in result.peak],
+        "output_peak_fs": [p / source.scale for p in result.peak],
+        f"output_peak_{source.unit.lower()}": list(result.peak),
+        "profile_written": str(profile),
         "max_error_db": result.max_error_db,
         "max_phase_error_deg": eq.realisation.max_phase_error_deg,
         "check_band_hz": list(result.check_band_hz),
@@ -505,12 +550,12 @@ def equalize(
         return
     console.print(
         f"wrote {out}: {result.frames} frames × {channels} channel(s), 32-bit float, same "
-        "sample scale as the input (use the same chain options or profile)"
+        f"sample scale as the input; its chain in {doc['profile_written']}"
     )
     console.print(
-        f"  corner {_q(result.measured_corner_hz, 'Hz')} → {_q(result.target_corner_hz, 'Hz')}; "
+        f"  corner {_q(result.model_corner_hz, 'Hz')} → {_q(result.target_corner_hz, 'Hz')}; "
         f"low-frequency boost up to {result.boost_db:.1f} dB: noise, drift and offsets below "
-        f"{_q(result.measured_corner_hz, 'Hz')} are amplified by as much"
+        f"{_q(result.model_corner_hz, 'Hz')} are amplified by as much"
     )
     table = Table(box=None, header_style="bold")
     table.add_column("frequency", justify="right")

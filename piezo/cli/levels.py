@@ -50,6 +50,14 @@ def levels(
             "for a capture that starts on the event.",
         ),
     ] = None,
+    percentiles: Annotated[
+        str | None,
+        typer.Option(
+            "--percentiles",
+            metavar="P,P,...",
+            help="Further LAF percentiles, e.g. '1,10,50,90,99' for LAF1 ... LAF99.",
+        ),
+    ] = None,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -69,13 +77,30 @@ def levels(
             raise InputError(f"--settle must be 0 or more, got {settle!r}")
     with progress(f"Levels {file.name}", source.frames) as advance:
         measured = levels_of(
-            source, interval_s=interval_s, filter_settle_s=settle_s, advance=advance
+            source,
+            interval_s=interval_s,
+            filter_settle_s=settle_s,
+            percentiles=None if percentiles is None else _parse_percentiles(percentiles),
+            advance=advance,
         )
     doc = measured.to_dict()
     if json_out:
         emit_json(doc)
         return
     _print(doc)
+
+
+def _parse_percentiles(text: str) -> list[float]:
+    """``"1,10,50"`` → [1.0, 10.0, 50.0]; each strictly between 0 and 100."""
+    try:
+        values = [float(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        raise InputError(
+            f"--percentiles must be numbers separated by commas, got {text!r}"
+        ) from None
+    if not values or any(not 0 < v < 100 for v in values):
+        raise InputError(f"--percentiles must lie between 0 and 100, got {text!r}")
+    return values
 
 
 def _fmt(value: float | None) -> str:
@@ -92,7 +117,8 @@ def _print(doc: dict[str, Any]) -> None:
     table.add_column("level")
     for ch in doc["channels"]:
         table.add_column(f"ch {ch['channel']}", justify="right")
-    for key in LEVEL_KEYS:
+    extra = [k for k in doc["channels"][0] if k.startswith("LAF") and k not in LEVEL_KEYS]
+    for key in (*LEVEL_KEYS, *extra):
         table.add_row(key, *(_fmt(ch[key]) for ch in doc["channels"]))
     table.add_row("crest factor (dB)", *(_fmt(ch["crest_factor_db"]) for ch in doc["channels"]))
     console.print(table)

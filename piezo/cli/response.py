@@ -15,7 +15,7 @@ from typing import Annotated, Any
 import numpy as np
 import typer
 
-from piezo.chain.units import parse_quantity
+from piezo.chain.units import format_uncertain, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     ForceOption,
@@ -142,17 +142,24 @@ def print_fit(doc: dict[str, Any]) -> None:
     else:
         q = f", Q {doc['corner_q']:.3g}" if doc["corner_q"] is not None else ""
         where = "" if doc["corner_in_band"] else " (extrapolated)"
-        console.print(
-            f"  low corner    [bold]{doc['corner_hz']:.4g} Hz[/bold] ± "
-            f"{doc['corner_std_hz']:.2g} Hz, order {doc['corner_order']}{q}{where}"
-        )
+        corner = format_uncertain(doc["corner_hz"], doc["corner_std_hz"], "Hz")
+        console.print(f"  low corner    {corner}, order {doc['corner_order']}{q}{where}")
     if doc["resonance_hz"] is None:
         console.print("  resonance     none inside the band")
-    else:
+    elif doc["resonance_fit_poor"]:
         console.print(
-            f"  resonance     [bold]{doc['resonance_hz']:.5g} Hz[/bold] ± "
-            f"{doc['resonance_std_hz']:.2g} Hz, Q {doc['resonance_q']:.3g} ± "
-            f"{doc['resonance_q_std']:.2g}, peak {doc['resonance_peak_db']:+.2f} dB"
+            f"  resonance     peak [bold]{doc['resonance_peak_hz']:.5g} Hz[/bold], "
+            f"{doc['resonance_peak_db']:+.2f} dB; not single-mode shaped (single-mode fit "
+            f"{doc['resonance_hz']:.4g} Hz, Q {doc['resonance_q']:.2g}, residual "
+            f"{doc['resonance_fit_residual_db']:.2f} dB RMS: no uncertainty quoted)"
+        )
+    else:
+        fr = format_uncertain(doc["resonance_hz"], doc["resonance_std_hz"], "Hz")
+        qr = format_uncertain(doc["resonance_q"], doc["resonance_q_std"])
+        console.print(f"  resonance     {fr}, Q {qr}")
+        console.print(
+            f"  peak          {doc['resonance_peak_db']:+.2f} dB at "
+            f"{doc['resonance_peak_hz']:.5g} Hz (measured)"
         )
     b1, l1 = doc["band_1db_hz"], doc["band_1db_limited"]
     b3, l3 = doc["band_3db_hz"], doc["band_3db_limited"]
@@ -220,7 +227,8 @@ def response(
     the device on another. Any broadband stimulus works: noise, music, sweeps. Both
     channels are taken in volts at the sensor (full scale and gain undone; a sensitivity
     is ignored), so H1 is in V/V. Numbers are fitted where the coherence is at least
-    --min-coherence; the table and plot show every frequency.
+    --min-coherence (the fit is skipped, and says why, when fewer than 6 points are);
+    the table and plot show every frequency.
     """
     refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
@@ -262,10 +270,32 @@ def response(
                 f" channel {entry['channel']} over reference channel {reference_channel} "
                 f"({entry['fitted_points']} points with coherence ≥ {min_coherence:g})"
             )
-            print_fit(entry)
+            if entry["fit_skipped_reason"] is None:
+                print_fit(entry)
+            else:
+                _print_h1_only(entry)
     for path, what in ((csv, "table"), (plot, "plot")):
         if path is not None:
             err_console.print(f"{what} written: {path}")
+
+
+def _print_h1_only(entry: dict[str, Any]) -> None:
+    """Terminal summary of an H1 table that was not fitted: magnitude and coherence."""
+    f = np.asarray(entry["frequency_hz"])
+    mag = np.asarray(entry["magnitude_db"])
+    coh = np.asarray(entry["coherence"])
+    unit = entry["magnitude_unit"] or "dB (relative)"
+    ref = float(entry["reference_hz"])
+    if f[0] <= ref <= f[-1]:
+        lf = np.log(f)
+        at = np.interp(math.log(ref), lf, mag)
+        c = np.interp(math.log(ref), lf, coh)
+        console.print(f"  H1            {at:.2f} {unit} at {ref:g} Hz (coherence {c:.3f})")
+    console.print(
+        f"  coherence     median {np.median(coh):.3f}, {np.min(coh):.3f} – {np.max(coh):.3f} "
+        f"over {f[0]:.4g} Hz – {f[-1]:.4g} Hz"
+    )
+    console.print(f"  fit skipped   {entry['fit_skipped_reason']}")
 
 
 # --------------------------------------------------------------------------------------
@@ -304,8 +334,9 @@ def fit_frontend(
     """Fit sensitivity, low corner (first or second order) and resonance to a response.
 
     Reads the CSV written by ``piezo sweep analyze --csv`` or ``piezo response --csv``
-    (or any table of frequency and magnitude in dB). Each fitted value comes with a
-    1σ uncertainty from the fit's covariance.
+    (or any table of frequency and magnitude in dB). Each fitted value comes with an
+    uncertainty from the fit's covariance: printed expanded (k = 2), standard (1σ) in
+    the JSON's ``*_std*`` keys.
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     table = read_response_table(file, what="response file")

@@ -46,9 +46,14 @@ def tone(
         ),
     ] = None,
     bandwidth: Annotated[
-        str,
-        typer.Option("--bandwidth", metavar="LOW:HIGH", help="Measurement bandwidth."),
-    ] = "20Hz:20kHz",
+        str | None,
+        typer.Option(
+            "--bandwidth",
+            metavar="LOW:HIGH",
+            help="Measurement bandwidth; default 20Hz:20kHz up to 48 kHz sampling, else "
+            "20 Hz to 0.45 × the sample rate.",
+        ),
+    ] = None,
     expected: Annotated[
         str | None,
         typer.Option("--expected", metavar="FREQ", help="Nominal tone frequency (search ±12 %)."),
@@ -66,7 +71,7 @@ def tone(
     The whole recording is averaged into a 1 Hz Blackman-Harris Welch spectrum; a
     recording shorter than 1 s is analysed as one segment.
     """
-    lo, hi = parse_bandwidth(bandwidth)
+    given = parse_bandwidth(bandwidth) if bandwidth is not None else None
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
     noise_source = open_source(noise, src) if noise is not None else None
@@ -74,7 +79,7 @@ def tone(
         measured = tone_of(
             source,
             expected_hz=expected_hz,
-            bandwidth_hz=(lo, hi),
+            bandwidth_hz=given,
             harmonics=harmonics,
             noise=noise_source,
             advance=advance,
@@ -90,7 +95,9 @@ def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     lo, hi = doc["bandwidth_hz"]
     console.print(
-        f"  bandwidth {lo:g} Hz to {hi:g} Hz, {doc['resolution_hz']:g} Hz bins, "
+        f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz"
+        + (" (default for the sample rate)" if doc["bandwidth_source"] == "sample rate" else "")
+        + f", {doc['resolution_hz']:g} Hz bins, "
         f"{doc['segments']} averages"
     )
     table = Table(box=None, pad_edge=False, header_style="bold")

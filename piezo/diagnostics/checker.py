@@ -18,7 +18,9 @@ and the threshold used:
   ratio when a signal stands out of the floor;
 - metadata: sample rate in the file against the sidecar, sensitivity missing.
 
-The channel verdict is the worst severity of its checks and of the metadata checks.
+A channel's verdict is the worst severity of its own checks; the file's verdict is the
+worst of the channel verdicts and the metadata checks (a file-level warning, such as no
+sensitivity given, does not make a sound channel warn).
 Thresholds live in :class:`Thresholds`; :func:`load_thresholds` reads them from TOML.
 
 This module is pure analysis: it neither prints nor writes files.
@@ -727,7 +729,8 @@ class CaptureChecker:
                 rolloff_check,
                 noise_check,
             )
-            verdict = worst_severity([k.severity for k in checks + meta_checks])
+            # File-level (metadata) checks make the file's verdict, not the channel's.
+            verdict = worst_severity([k.severity for k in checks])
             channels.append(
                 ChannelDiagnostics(
                     channel=self.channel_indices[c],

@@ -47,8 +47,8 @@ class Check:
 
     @property
     def failed(self) -> bool:
-        """True when any channel fails (``piezo check`` exits 1)."""
-        return any(ch.verdict is Severity.FAIL for ch in self.diagnostics.channels)
+        """True when a channel or a file-level check fails (``piezo check`` exits 1)."""
+        return self.diagnostics.verdict is Severity.FAIL
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo check --json`` document: file, chain and provenance, diagnostics."""

@@ -460,10 +460,15 @@ def equalizer_zpk(
 
 @dataclass(frozen=True)
 class EqualizerResult:
-    """Summary of an equalizer run (see :class:`Equalizer`)."""
+    """Summary of an equalizer run (see :class:`Equalizer`).
+
+    ``model_corner_hz`` is the −3 dB corner of the front-end design's model (not a
+    measurement of the recording); ``peak`` the output's sample peaks per channel, in
+    the unit of the samples fed (Pa or V).
+    """
 
     frames: int
-    measured_corner_hz: float
+    model_corner_hz: float
     target_corner_hz: float
     boost_db: float
     peak: tuple[float, ...]
@@ -520,12 +525,12 @@ class Equalizer:
             )
         if not (math.isfinite(max_boost_db) and max_boost_db > 0):
             raise InputError(f"max_boost_db must be positive, got {max_boost_db!r}")
-        self.measured_corner_hz = corner_frequency_hz(frontend)
+        self.model_corner_hz = corner_frequency_hz(frontend)
         pole_hz = _high_pass_pole_hz(frontend)
-        if target_corner_hz >= self.measured_corner_hz:
+        if target_corner_hz >= self.model_corner_hz:
             raise InputError(
                 f"target corner {target_corner_hz:.4g} Hz is not below the front-end's "
-                f"corner {self.measured_corner_hz:.4g} Hz; the equalizer only lowers a corner"
+                f"corner {self.model_corner_hz:.4g} Hz; the equalizer only lowers a corner"
             )
         self.boost_db = 20.0 * math.log10(pole_hz / target_corner_hz)
         if self.boost_db > max_boost_db:
@@ -574,7 +579,7 @@ class Equalizer:
         """Corners, boost, output peak per channel and realisation accuracy."""
         return EqualizerResult(
             frames=self._filter.frames,
-            measured_corner_hz=self.measured_corner_hz,
+            model_corner_hz=self.model_corner_hz,
             target_corner_hz=self.target_corner_hz,
             boost_db=self.boost_db,
             peak=tuple(float(v) for v in self._peak),

@@ -26,7 +26,7 @@ from piezo.frontend.model import (
     set_design_value,
     summarise_response,
 )
-from piezo.frontend.noise import noise_gain_midband, self_noise
+from piezo.frontend.noise import noise_budget, noise_gain_midband, self_noise
 from piezo.results import to_jsonable
 
 __all__ = [
@@ -67,8 +67,46 @@ def _band(band: tuple[float | None, float | None] | None) -> list[float | None] 
     return None if band is None else [band[0], band[1]]
 
 
-def design_document(fe: Frontend, *, at_hz: Sequence[float] = ()) -> dict[str, Any]:
+#: Frequencies of the noise density table when no ``at_hz`` is given, Hz.
+NOISE_TABLE_HZ = (1.0, 10.0, 100.0, 1000.0, 10000.0)
+
+
+def _density_table(fe: Frontend, at_hz: Sequence[float]) -> dict[str, Any]:
+    """Noise density per source and in total at ``at_hz``, at the output and the input."""
+    budget = noise_budget(fe, np.asarray(at_hz, dtype=float))
+    return {
+        "frequency_hz": list(budget.frequency_hz),
+        "sources": [
+            {
+                "source": key,
+                "label": label,
+                "output_v_per_sqrt_hz": list(np.sqrt(out)),
+                "input_pa_per_sqrt_hz": list(np.sqrt(inp)),
+            }
+            for key, label, out, inp in zip(
+                budget.keys,
+                budget.labels,
+                budget.output_psd_v2_per_hz,
+                budget.input_psd_pa2_per_hz,
+                strict=True,
+            )
+        ],
+        "total_output_v_per_sqrt_hz": list(np.sqrt(budget.total_output_psd_v2_per_hz)),
+        "total_input_pa_per_sqrt_hz": list(np.sqrt(budget.total_input_psd_pa2_per_hz)),
+    }
+
+
+def design_document(
+    fe: Frontend,
+    *,
+    at_hz: Sequence[float] = (),
+    noise_band_hz: tuple[float, float] = (20.0, 20000.0),
+) -> dict[str, Any]:
     """Every figure of a design as plain JSON values (keys of ``piezo frontend --json``).
+
+    ``noise_band_hz`` is the band of the self-noise (a hydrophone's or a vibration
+    sensor's band differs from the audio band); the noise density table is given at
+    ``at_hz`` (or :data:`NOISE_TABLE_HZ`).
 
     Examples
     --------
@@ -84,7 +122,7 @@ def design_document(fe: Frontend, *, at_hz: Sequence[float] = ()) -> dict[str, A
     1.0...
     """
     summary = summarise_response(fe, at_hz=tuple(at_hz))
-    noise = self_noise(fe)
+    noise = self_noise(fe, band_hz=noise_band_hz)
     amp = fe.amplifier
     doc = {
         "name": fe.name,
@@ -121,6 +159,7 @@ def design_document(fe: Frontend, *, at_hz: Sequence[float] = ()) -> dict[str, A
             for s in noise.sources
         ],
         "noise_reference_hz": noise.reference_hz,
+        "noise_density": _density_table(fe, tuple(at_hz) or NOISE_TABLE_HZ),
         "clip_level_v": amp.clip_level_v,
         "max_spl_db": noise.max_spl_db,
         "dynamic_range_db": noise.dynamic_range_db,
@@ -201,6 +240,7 @@ def study_frontend(
     *,
     at_hz: Sequence[float] = DEFAULT_AT_HZ,
     vary: tuple[str, Sequence[float] | np.ndarray] | None = None,
+    noise_band_hz: tuple[float, float] = (20.0, 20000.0),
 ) -> FrontendStudy:
     """Model a front-end design file; with ``vary``, a trade-off table over one value.
 
@@ -213,6 +253,8 @@ def study_frontend(
     vary
         ``(key, values)``: the design is rebuilt with each value of ``key`` (SI units,
         see :func:`vary_values`) and the figures of :data:`VARY_KEYS` tabulated.
+    noise_band_hz
+        Band of the self-noise, Hz.
 
     Examples
     --------
@@ -229,7 +271,7 @@ def study_frontend(
     source = str(design)
     fe = frontend_from_mapping(data, source=source)
     try:
-        figures = design_document(fe, at_hz=at_hz)
+        figures = design_document(fe, at_hz=at_hz, noise_band_hz=noise_band_hz)
     except InputError as exc:
         raise exc.with_source(source) from None
     if vary is None:

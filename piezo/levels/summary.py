@@ -7,7 +7,7 @@ was measured on, and :meth:`Levels.to_dict` is the command's ``--json`` document
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -81,6 +81,7 @@ class Levels:
         for index, ch in zip(self.channel_indices, result.channels, strict=True):
             entry: dict[str, Any] = {"channel": index}
             entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
+            entry.update(ch.percentile_levels)
             entry.update(
                 duration_s=result.duration_s,
                 crest_factor=ch.crest_factor,
@@ -129,6 +130,7 @@ def levels_of(
     *,
     interval_s: float | None = None,
     filter_settle_s: float | None = None,
+    percentiles: Sequence[float] | None = None,
     advance: Callable[[int], object] | None = None,
 ) -> Levels:
     """Equivalent, maximum, minimum, peak, exposure and percentile levels of ``source``.
@@ -145,6 +147,9 @@ def levels_of(
     filter_settle_s
         Filter settling time excluded from the maxima, minima and percentiles; None
         keeps the meter's default.
+    percentiles
+        Further LAF percentiles (each strictly between 0 and 100), e.g. ``[1, 99]``
+        for LAF1 and LAF99.
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -166,6 +171,8 @@ def levels_of(
         options["interval_s"] = interval_s
     if filter_settle_s is not None:
         options["filter_settle_s"] = filter_settle_s
+    if percentiles is not None:
+        options["percentiles"] = list(percentiles)
     meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
     source.feed(meter, advance=advance)
     return Levels(

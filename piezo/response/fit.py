@@ -77,6 +77,11 @@ CORNER_MIN_DROP_DB = 1.0
 #: model's RMS residual (our rule: a true first-order roll-off is fitted almost as well by
 #: a degenerate second-order model, so a plain "smaller residual" would always pick 2).
 ORDER_RESIDUAL_RATIO = 0.5
+#: The single-mode resonance model counts as not describing the peak when its RMS
+#: residual over the points it was fitted to (reference frequency up to
+#: ``RESONANCE_FIT_SPAN`` × the peak) exceeds this (our rule: a measured single mode fits
+#: to a few hundredths of a dB; a peak of another shape leaves tenths of a dB or more).
+RESONANCE_POOR_FIT_DB = 0.25
 
 
 # --------------------------------------------------------------------------------------
@@ -483,10 +488,19 @@ class ResonanceFit:
         Fitted natural frequency and its 1σ uncertainty.
     q, q_std
         Fitted quality factor and its uncertainty.
+        Both uncertainties are standard uncertainties (1σ, from the fit's covariance);
+        NaN when the fit is poor, as a covariance then understates the error.
     peak_hz
-        Frequency of the largest measured point of the peak.
+        Measured frequency of the peak: the largest point, refined by a parabola through
+        it and its two neighbours in (ln f, dB). A single mode peaks at
+        f_r·√(1 − 1/(2Q²)), just below its natural frequency.
     peak_db
         Height of the measured peak above the reference sensitivity, dB.
+    residual_rms_db
+        RMS residual of the resonance model over the points it was fitted to, dB.
+    poor_fit
+        True when ``residual_rms_db`` exceeds ``RESONANCE_POOR_FIT_DB``: the peak is not
+        single-mode shaped and ``frequency_hz``, ``q`` are only the nearest model's.
     """
 
     frequency_hz: float
@@ -495,6 +509,8 @@ class ResonanceFit:
     q_std: float
     peak_hz: float
     peak_db: float
+    residual_rms_db: float = math.nan
+    poor_fit: bool = False
 
 
 @dataclass(frozen=True)
@@ -604,6 +620,18 @@ def _find_peak(f: np.ndarray, m: np.ndarray, sens: float, reference_hz: float) -
     if np.min(m[p:]) > m[p] - RESONANCE_MIN_PEAK_DB:
         return None
     return p
+
+
+def _peak_frequency(f: np.ndarray, m: np.ndarray, p: int) -> float:
+    """Vertex of the parabola through points p − 1, p, p + 1 in (ln f, dB)."""
+    if p <= 0 or p >= f.size - 1:
+        return float(f[p])
+    x = np.log(f[p - 1 : p + 2])
+    y = m[p - 1 : p + 2]
+    a, b, _ = np.polyfit(x, y, 2)
+    if not a < 0:
+        return float(f[p])
+    return float(math.exp(min(max(-b / (2.0 * a), x[0]), x[2])))
 
 
 def _initial_corner(f: np.ndarray, m: np.ndarray, sens: float, reference_hz: float) -> float:
@@ -775,13 +803,16 @@ def fit_response(
     if with_res and res_fit is not None:
         assert peak is not None
         fr, qr = math.exp(res_fit.params[1]), math.exp(res_fit.params[2])
+        poor = bool(res_fit.rms_db > RESONANCE_POOR_FIT_DB)
         resonance = ResonanceFit(
             frequency_hz=fr,
-            frequency_std_hz=fr * math.sqrt(max(res_fit.cov[1, 1], 0.0)),
+            frequency_std_hz=math.nan if poor else fr * math.sqrt(max(res_fit.cov[1, 1], 0.0)),
             q=qr,
-            q_std=qr * math.sqrt(max(res_fit.cov[2, 2], 0.0)),
-            peak_hz=float(f[peak]),
+            q_std=math.nan if poor else qr * math.sqrt(max(res_fit.cov[2, 2], 0.0)),
+            peak_hz=_peak_frequency(f, m, peak),
             peak_db=float(m[peak] - sens),
+            residual_rms_db=res_fit.rms_db,
+            poor_fit=poor,
         )
     return ResponseFit(
         reference_hz=float(reference_hz),

@@ -193,7 +193,10 @@ class SweepResponse:
         ``"dB re 1 V/Pa"`` (calibrated: capture in volts and the stimulus's acoustic level
         known) or ``"dB re 1 <unit>/FS"`` (relative: capture unit per stimulus full scale).
     latency_frames, latency_s
-        Delay of the capture against the stimulus (peak of the linear impulse response).
+        Delay of the capture against the stimulus: the pure delay before the device's
+        impulse response (the slope of the excess phase over a minimum-phase model of the
+        measured magnitude), not the response's peak, which a minimum-phase device puts
+        after its onset.
     harmonic_percent
         Order N → distortion of that order vs excitation frequency, percent of the
         fundamental output, NaN where not measurable: N·f in or above the sweep's
@@ -325,6 +328,51 @@ def _cut(signal: np.ndarray, centre: int, pre: int, post: int) -> np.ndarray:
     return out
 
 
+def _excess_delay_frames(
+    freq: np.ndarray,
+    h_spec: np.ndarray,
+    d_spec: np.ndarray,
+    sel: slice,
+    spec: SweepSpec,
+    *,
+    max_shift: int,
+) -> int:
+    """Whole samples from the linear window's centre to the response's pure delay.
+
+    The phase of a minimum-phase device follows from its log-magnitude (Hilbert
+    transform, computed as the folded real cepstrum: A. V. Oppenheim and R. W. Schafer,
+    *Discrete-Time Signal Processing*, 3rd ed., 2010, §13.8); what the measured phase
+    has beyond it is the excess phase, whose slope −dφ/dω is the pure delay. The
+    magnitude outside the sweep band is held at its band-edge values, and the slope is
+    fitted by least squares from 4 f1 to f2 / 2, away from the edges where that
+    extension errs.
+    """
+    n_fft = 2 * (freq.size - 1)
+    lo, hi = sel.start, sel.stop
+    mag = np.abs(h_spec[sel] / d_spec[sel])
+    floor = np.max(mag) * 1e-6
+    log_mag = np.log(np.maximum(mag, floor))
+    full = np.empty(freq.size)
+    full[:lo] = log_mag[0]
+    full[lo:hi] = log_mag
+    full[hi:] = log_mag[-1]
+    cepstrum = scipy.fft.irfft(full, n_fft)
+    fold = np.zeros(n_fft)
+    fold[0] = 1.0
+    fold[1 : n_fft // 2] = 2.0
+    fold[n_fft // 2] = 1.0
+    min_phase = np.imag(scipy.fft.rfft(cepstrum * fold))[sel]
+    f = freq[sel]
+    excess = np.unwrap(np.angle(h_spec[sel] / d_spec[sel])) - min_phase
+    fit = (f >= 4.0 * spec.start_hz) & (f <= spec.stop_hz / 2.0)
+    if np.count_nonzero(fit) < 8:
+        return 0
+    omega = 2.0 * np.pi * f[fit]
+    slope, _ = np.polyfit(omega, excess[fit], 1)
+    shift = round(-slope * spec.sample_rate_hz)
+    return int(np.clip(shift, -max_shift, max_shift))
+
+
 def analyze_sweep(
     capture: np.ndarray,
     spec: SweepSpec,
@@ -337,15 +385,19 @@ def analyze_sweep(
 ) -> SweepResponse:
     """Linear response and harmonic distortion from a swept-sine capture (Farina 2000).
 
-    Steps: convolve with the inverse filter (:func:`deconvolve`); take the latency as
-    the peak of |output|; cut the linear impulse response with a window from
+    Steps: convolve with the inverse filter (:func:`deconvolve`); locate the linear
+    impulse response by the peak of |output|; cut the linear impulse response with a window from
     ``SPLIT_FRACTION``·Δt_2 before the peak to ``linear_window_s`` after it, and the
     N-th harmonic impulse response around Δt_N before the peak with a window reaching
     ``SPLIT_FRACTION`` of the way to each neighbour; Fourier-transform each window and
     divide by the same window applied to the deconvolved stimulus itself (sweep *
     inverse), so that the inverse filter's band-edge ripple and the truncation of its
     ringing cancel (reference deconvolution). The N-th harmonic spectrum at N·f is
-    mapped back to the excitation frequency f.
+    mapped back to the excitation frequency f. The latency, to which the phase is
+    referred, is the pure delay: the peak plus the whole samples fitted to the slope of
+    the excess phase (measured phase minus the minimum phase of the measured magnitude).
+    A device sampled through a brick-wall band limit with no delay of its own (ideal,
+    acausal) reads up to a sample later, as its pre-ringing is excess phase.
 
     Parameters
     ----------
@@ -438,11 +490,17 @@ def analyze_sweep(
     sel = slice(lo_i, hi_i + 1)
     f = freq[sel]
     h = h_spec[sel] / d_spec[sel]
+    # The peak of a minimum-phase device's impulse response lies after its onset: refer
+    # the phase to the pure delay instead (the excess phase's slope), not to the peak.
+    shift = _excess_delay_frames(freq, h_spec, d_spec, sel, spec, max_shift=pre1 // 2)
+    if shift:
+        h = h * np.exp(2j * np.pi * f * shift / fs)
+        latency += shift
 
     unwrapped = np.unwrap(np.angle(h))
     group_delay = -np.gradient(unwrapped, 2.0 * np.pi * f)
 
-    linear_ir = ImpulseResponse(1, h_lin, -pre1, fs)
+    linear_ir = ImpulseResponse(1, h_lin, -pre1 - shift, fs)
     harmonic_irs: dict[int, ImpulseResponse] = {}
     harmonic_percent: dict[int, np.ndarray] = {}
     fade_top_hz = spec.start_hz * math.exp(spec.rate_constant * spec.fade_in_s / spec.duration_s)
@@ -474,7 +532,7 @@ def analyze_sweep(
         with np.errstate(divide="ignore", invalid="ignore"):
             pct = np.where(valid, 100.0 * at_harmonic / np.abs(h), np.nan)
         harmonic_percent[n] = pct
-        harmonic_irs[n] = ImpulseResponse(n, h_n, -round(offsets[n] * fs) - pre_n, fs)
+        harmonic_irs[n] = ImpulseResponse(n, h_n, -round(offsets[n] * fs) - pre_n - shift, fs)
     if harmonic_percent:
         stack = np.array(list(harmonic_percent.values()))
         measured = np.any(np.isfinite(stack), axis=0)

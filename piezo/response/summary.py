@@ -43,8 +43,10 @@ __all__ = [
 ]
 
 
-def fit_document(fit: ResponseFit) -> dict[str, Any]:
+def fit_document(fit: ResponseFit | None) -> dict[str, Any]:
     """The fitted numbers as a JSON-ready mapping (keys shared by all response commands).
+
+    ``None`` (no fit made) gives the same keys, each ``null``.
 
     Examples
     --------
@@ -56,7 +58,15 @@ def fit_document(fit: ResponseFit) -> dict[str, Any]:
     >>> doc = fit_document(fit_response(f, m, orders=(1,)))
     >>> round(doc["corner_hz"], 3), doc["corner_order"], round(doc["sensitivity_db"], 2)
     (20.0, 1, -40.0)
+    >>> fit_document(None)["corner_hz"], fit_document(None)["band_1db_hz"]
+    (None, [None, None])
     """
+    if fit is None:
+        # The keys of any fit (a flat response's), every value null.
+        flat = fit_response(np.geomspace(100.0, 10000.0, 8), np.zeros(8))
+        return {
+            k: [None, None] if isinstance(v, list) else None for k, v in fit_document(flat).items()
+        }
     hp, res = fit.highpass, fit.resonance
     sens_v = fit.sensitivity_v_per_pa
     return {
@@ -76,6 +86,9 @@ def fit_document(fit: ResponseFit) -> dict[str, Any]:
         "resonance_q": None if res is None else res.q,
         "resonance_q_std": None if res is None else res.q_std,
         "resonance_peak_db": None if res is None else res.peak_db,
+        "resonance_peak_hz": None if res is None else res.peak_hz,
+        "resonance_fit_residual_db": None if res is None else res.residual_rms_db,
+        "resonance_fit_poor": None if res is None else res.poor_fit,
         "band_1db_hz": [fit.band_1db.low_hz, fit.band_1db.high_hz],
         "band_1db_limited": [fit.band_1db.low_limited, fit.band_1db.high_limited],
         "band_3db_hz": [fit.band_3db.low_hz, fit.band_3db.high_hz],
@@ -357,13 +370,22 @@ class H1Channel:
 
     channel: int
     table: ResponseTable
-    fit: ResponseFit
+    fit: ResponseFit | None
     fitted_points: int
+    #: Why no fit was made (too few coherent points), or None.
+    fit_skipped_reason: str | None = None
+    magnitude_unit: str | None = None
+    reference_hz: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The channel's entry in the ``piezo response --json`` document."""
         entry = {"channel": self.channel, **fit_document(self.fit)}
+        if self.fit is None:
+            # The table stands on its own: say what it is in, and why there is no fit.
+            entry["magnitude_unit"] = self.magnitude_unit
+            entry["reference_hz"] = self.reference_hz
         entry["fitted_points"] = self.fitted_points
+        entry["fit_skipped_reason"] = self.fit_skipped_reason
         entry.update(table_document(self.table))
         return to_jsonable(entry)
 
@@ -484,11 +506,15 @@ def h1_response_of(
         table = estimate.to_table(channel=i, points_per_octave=points_per_octave)
         keep = table.extra["coherence"] >= min_coherence
         if np.count_nonzero(keep) < 6:
-            raise InputError(
-                f"channel {ch}: only {np.count_nonzero(keep)} points have coherence ≥ "
-                f"{min_coherence:g}; lower the minimum coherence or record longer / louder",
-                source=file,
+            # The H1 table stands on its own; only the fit needs coherent points.
+            reason = (
+                f"only {np.count_nonzero(keep)} points have coherence ≥ {min_coherence:g} "
+                "(the minimum coherence)"
             )
+            channels.append(
+                H1Channel(int(ch), table, None, 0, reason, estimate.magnitude_unit, reference_hz)
+            )
+            continue
         good = table_subset(table, keep)
         try:
             fit = fit_response(

@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import copy
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import signal
@@ -154,6 +154,30 @@ class Band:
         if f >= 1000:
             return f"{f / 1000:g}k"
         return f"{f:g}"
+
+
+#: Highest sample rate treated as an audio rate, Hz: up to it the bands stop at 20 kHz
+#: by default (the top of the audio band); above it, at what the sample rate allows.
+AUDIO_RATE_MAX_HZ = 48000.0
+
+
+def default_high_hz(sample_rate_hz: float) -> float:
+    """Default upper end of the band range for a sample rate, Hz.
+
+    20 kHz at audio rates (up to :data:`AUDIO_RATE_MAX_HZ`); above them the highest band
+    the rate allows (upper edge up to :data:`MAX_EDGE_RATIO` of it), so a 1 MS/s capture
+    is not cut at 20 kHz.
+
+    Examples
+    --------
+    >>> default_high_hz(48000.0), default_high_hz(1e6)
+    (20000.0, 475000.0)
+    """
+    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise InputError(f"sample_rate_hz must be positive, got {sample_rate_hz!r}")
+    if sample_rate_hz <= AUDIO_RATE_MAX_HZ:
+        return 20000.0
+    return MAX_EDGE_RATIO * sample_rate_hz
 
 
 def fractional_octave_bands(
@@ -311,6 +335,9 @@ class BandResult:
         Mean square per interval, shape ``(intervals, bands, channels)``. Each band's
         output is counted in the interval its (decimated) sample falls in; the filters'
         delay (a few periods of the band's mid-band frequency) is not compensated.
+    history_duration_s
+        Length of each interval, shape ``(intervals,)``: ``interval_s`` (rounded to whole
+        samples) except the last, which holds what is left of the recording.
     """
 
     fraction: int
@@ -320,6 +347,7 @@ class BandResult:
     history_time_s: np.ndarray
     history_mean_square: np.ndarray
     weighting: str = "Z"
+    history_duration_s: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def exact_hz(self) -> np.ndarray:
@@ -526,6 +554,7 @@ class BandAnalyzer:
         ms[done._n == 0] = np.nan
         if self.interval_s is None:
             times = np.zeros(0)
+            durations = np.zeros(0)
             hist = np.zeros((0, len(self.bands), self.channels))
         else:
             intervals = -(-self._frames // self._interval_frames)
@@ -533,7 +562,10 @@ class BandAnalyzer:
             with np.errstate(invalid="ignore", divide="ignore"):
                 hist = done._hist_sum[:intervals] / counts[:, :, None]
             hist[counts == 0] = np.nan
-            times = np.arange(intervals) * self._interval_frames / self.bank.sample_rate_hz
+            fs = self.bank.sample_rate_hz
+            starts = np.arange(intervals) * self._interval_frames
+            times = starts / fs
+            durations = (np.minimum(starts + self._interval_frames, self._frames) - starts) / fs
         return BandResult(
             fraction=self.fraction,
             bands=self.bands,
@@ -542,6 +574,7 @@ class BandAnalyzer:
             history_time_s=times,
             history_mean_square=hist,
             weighting=self.weighting,
+            history_duration_s=durations,
         )
 
 

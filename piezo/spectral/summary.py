@@ -18,7 +18,7 @@ import numpy as np
 from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
 from piezo.results import to_jsonable
-from piezo.spectral.bands import BandAnalyzer, BandResult
+from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
 from piezo.spectral.welch import PSDResult, Spectrogram, WelchPSD
 
 __all__ = ["Bands", "Spectrum", "bands_of", "psd_level_unit", "spectrum_of"]
@@ -93,7 +93,10 @@ class Spectrum:
             "enbw_bins": r.enbw_bins,
             "averages": r.averages,
             "effective_averages": r.effective_averages,
-            "confidence": {
+            # No interval for the median average (its distribution has no simple form).
+            "confidence": None
+            if r.ci_lower_db is None
+            else {
                 "level": r.confidence_level,
                 "lower_db": r.ci_lower_db,
                 "upper_db": r.ci_upper_db,
@@ -232,6 +235,10 @@ class Bands:
     sample_rate_hz: float
     channel_indices: tuple[int, ...]
     result: BandResult
+    #: Highest nominal band asked for, Hz, and where it came from ("option" or
+    #: "sample rate").
+    high_hz: float = 20000.0
+    high_source: str = "option"
 
     def level_db(self) -> np.ndarray:
         """Band Leq in dB re the reference, shape ``(bands, channels)``."""
@@ -249,6 +256,8 @@ class Bands:
             "weighting": result.weighting,
             "sample_rate_hz": self.sample_rate_hz,
             "interval_s": result.interval_s,
+            "high_hz": self.high_hz,
+            "high_source": self.high_source,
             "channels": [],
         }
         for i, ch in enumerate(self.channel_indices):
@@ -269,6 +278,7 @@ class Bands:
                 hist = result.history_db(self.reference)[:, :, i]
                 entry["history"] = {
                     "time_s": result.history_time_s,
+                    "interval_duration_s": result.history_duration_s,
                     "level_db": [[_finite(v) for v in row] for row in hist],
                 }
             doc["channels"].append(entry)
@@ -280,7 +290,7 @@ def bands_of(
     *,
     fraction: int = 3,
     low_hz: float = 20.0,
-    high_hz: float = 20000.0,
+    high_hz: float | None = None,
     interval_s: float | None = None,
     weighting: str = "Z",
     advance: Callable[[int], object] | None = None,
@@ -289,7 +299,9 @@ def bands_of(
 
     The options are those of :class:`~piezo.spectral.bands.BandAnalyzer` (1/``fraction``
     octave bands from ``low_hz`` to ``high_hz`` nominal, limited by Nyquist, after an
-    IEC 61672-1 ``weighting``).
+    IEC 61672-1 ``weighting``). Without ``high_hz`` the highest band follows from the
+    sample rate (:func:`~piezo.spectral.bands.default_high_hz`: 20 kHz up to 48 kHz
+    sampling), and the document says so (``high_source``).
 
     Examples
     --------
@@ -304,6 +316,9 @@ def bands_of(
     >>> round(float(b.level_db()[2, 0]), 1)  # the 1 kHz band holds the tone: 20 lg(0.5/√2)
     -9.0
     """
+    given = high_hz is not None
+    if high_hz is None:
+        high_hz = default_high_hz(source.sample_rate_hz)
     try:
         analyzer = BandAnalyzer(
             source.sample_rate_hz,
@@ -325,4 +340,6 @@ def bands_of(
         sample_rate_hz=source.sample_rate_hz,
         channel_indices=source.channel_indices,
         result=analyzer.result(),
+        high_hz=float(high_hz),
+        high_source="option" if given else "sample rate",
     )

@@ -5,8 +5,10 @@ Definitions (paraphrased from AES17-2015 and IEC 60268-3:2018; the wording is ou
 * **Fundamental** - the strongest spectral component within the analysis bandwidth (or
   near the expected frequency, when one is given).
 * **THD** (total harmonic distortion, IEC 60268-3) - the RMS sum of the harmonics of
-  orders 2 to ``harmonics`` (10 by default, fewer when they would pass the Nyquist
-  frequency) divided by the RMS of the fundamental: ``sqrt(Σ V_n²) / V_1``.
+  orders 2 to ``harmonics`` (10 by default, fewer when they would pass the upper end of
+  the bandwidth, which is at most the Nyquist frequency) divided by the RMS of the
+  fundamental: ``sqrt(Σ V_n²) / V_1``. THD and THD+N see the same band, so THD never
+  exceeds THD+N (re the fundamental).
 * **THD+N** (AES17) - the RMS of everything left in the stated bandwidth once the
   fundamental is notched out (harmonics, noise, hum, spurious tones), divided by the RMS
   of the whole signal in that bandwidth.
@@ -43,6 +45,7 @@ __all__ = [
     "ToneAnalyzer",
     "ToneResult",
     "band_mean_square",
+    "default_bandwidth_hz",
     "measure_tone",
     "noise_mean_square",
 ]
@@ -122,6 +125,32 @@ class ToneResult:
     def level_db(self, reference: float) -> float:
         """Level of the fundamental in dB re ``reference`` (20 µPa, 1 µPa or 1 V)."""
         return 20.0 * math.log10(self.tone_rms / reference) if self.tone_rms > 0 else -math.inf
+
+
+#: Highest sample rate treated as an audio rate, Hz (see :func:`default_bandwidth_hz`).
+AUDIO_RATE_MAX_HZ = 48000.0
+#: Above audio rates the default bandwidth reaches this fraction of the sample rate,
+#: where converters' anti-alias filters are still flat (common practice, no source).
+HIGH_RATE_BAND_RATIO = 0.45
+
+
+def default_bandwidth_hz(sample_rate_hz: float) -> tuple[float, float]:
+    """Default measurement bandwidth for a sample rate, Hz.
+
+    The AES17 20 Hz–20 kHz band at audio rates (up to :data:`AUDIO_RATE_MAX_HZ`); above
+    them 20 Hz to :data:`HIGH_RATE_BAND_RATIO` of the rate, so harmonics of an ultrasonic
+    or high-rate capture are not hidden.
+
+    Examples
+    --------
+    >>> default_bandwidth_hz(48000.0), default_bandwidth_hz(1e6)
+    ((20.0, 20000.0), (20.0, 450000.0))
+    """
+    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise InputError(f"sample_rate_hz must be positive, got {sample_rate_hz!r}")
+    if sample_rate_hz <= AUDIO_RATE_MAX_HZ:
+        return DEFAULT_BANDWIDTH_HZ
+    return (DEFAULT_BANDWIDTH_HZ[0], HIGH_RATE_BAND_RATIO * sample_rate_hz)
 
 
 def _bandwidth(bandwidth_hz: tuple[float, float], sample_rate_hz: float) -> tuple[float, float]:
@@ -273,7 +302,8 @@ class ToneAnalyzer:
         orders, harm_ms = [], []
         for n in range(2, self.harmonics + 1):
             center = int(round(n * f0 / df))
-            if center + k >= nbins - 1:
+            # THD counts the harmonics inside the bandwidth, the band of THD+N too.
+            if center + k >= nbins - 1 or n * f0 > hi:
                 break
             orders.append(n)
             harm_ms.append(max(line(center).mean_square, 0.0))

@@ -51,6 +51,9 @@ STABILITY_DB = 0.2
 FREQUENCY_STABILITY = 0.005
 #: The found tone must lie within this ratio of the expected frequency (either side).
 FREQUENCY_SEARCH_RATIO = 1.12
+#: Components below this frequency are not taken for a louder tone than the calibrator's
+#: (IEC 60942:2017 calibrators work at 250 Hz or 1 kHz; multi-frequency ones from 31.5 Hz).
+INFRASOUND_HZ = 20.0
 #: Minimum length of a usable capture, seconds.
 MIN_DURATION_S = SETTLE_S + 2 * SEGMENT_S
 
@@ -200,13 +203,16 @@ class ToneCalibrator:
             raise InputError(f"no tone found between {lo:.0f} and {hi:.0f} Hz")
         k = int(np.flatnonzero(band)[np.argmax(spec[band])])
         # The strongest component overall must be the tone, not a louder disturbance
-        # (half its amplitude: a quarter of its power).
-        if spec[k] < 0.25 * spec[1:].max():
-            k_all = 1 + int(np.argmax(spec[1:]))
+        # (half its amplitude: a quarter of its power), a calibrator of another
+        # frequency. Infrasound is not counted: seating a calibrator on a piezo element
+        # squeezes it, a swing far below any tone.
+        audible = freqs >= INFRASOUND_HZ
+        if spec[k] < 0.25 * spec[audible].max():
+            k_all = int(np.flatnonzero(audible)[np.argmax(spec[audible])])
             raise InputError(
                 f"the strongest component is at {freqs[k_all]:.1f} Hz, not near the "
-                f"expected {self.expected_hz:g} Hz; give the calibrator frequency with "
-                "--frequency"
+                f"expected {self.expected_hz:g} Hz; set expected_hz to the calibrator's "
+                "nominal frequency"
             )
         # The coarse frequency: the one tone-line estimator over the Hann main lobe.
         f0 = spectral_line(freqs, spec, k, half_width_bins=2).frequency_hz

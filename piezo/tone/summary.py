@@ -17,7 +17,12 @@ from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
 from piezo.results import to_jsonable
 from piezo.spectral.welch import WelchPSD
-from piezo.tone.analysis import ToneAnalyzer, ToneResult, band_mean_square
+from piezo.tone.analysis import (
+    ToneAnalyzer,
+    ToneResult,
+    band_mean_square,
+    default_bandwidth_hz,
+)
 from piezo.tone.calibrator import CalibrationResult, ToneCalibrator, calibrator_pressure_pa
 
 __all__ = ["RESOLUTION_HZ", "Calibration", "Tone", "calibration_of", "tone_of"]
@@ -40,6 +45,9 @@ class Tone:
         Reference of the tone level (Pa, or 1 V).
     bandwidth_hz
         Measurement bandwidth actually used (limited by Nyquist).
+    bandwidth_source
+        ``"option"`` when the bandwidth was given, ``"sample rate"`` when it is the
+        default for the sample rate (20 Hz to 20 kHz up to 48 kHz sampling).
     channel_indices
         The recording's channels, in the order of ``results``.
     results
@@ -64,6 +72,7 @@ class Tone:
     bandwidth_hz: tuple[float, float]
     channel_indices: tuple[int, ...]
     results: tuple[ToneResult, ...]
+    bandwidth_source: str = "option"
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo tone --json`` document (plain JSON values)."""
@@ -73,6 +82,7 @@ class Tone:
             "unit": self.unit,
             "level_unit": self.level_unit,
             "bandwidth_hz": list(self.bandwidth_hz),
+            "bandwidth_source": self.bandwidth_source,
             "resolution_hz": first.resolution_hz,
             "segments": first.segments,
             "noise_file": self.noise_file,
@@ -108,7 +118,7 @@ def tone_of(
     source: CalibratedSource,
     *,
     expected_hz: float | None = None,
-    bandwidth_hz: tuple[float, float] = (20.0, 20000.0),
+    bandwidth_hz: tuple[float, float] | None = None,
     harmonics: int = 10,
     noise: CalibratedSource | None = None,
     advance: Callable[[int], object] | None = None,
@@ -124,6 +134,9 @@ def tone_of(
     ----------
     expected_hz
         Nominal tone frequency (searched within ±12 %); the strongest line when None.
+    bandwidth_hz
+        Band of THD and THD+N; None for the default of the sample rate
+        (:func:`~piezo.tone.analysis.default_bandwidth_hz`).
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -152,6 +165,9 @@ def tone_of(
     if source.frames < 2:
         raise InputError("the recording is too short for a tone analysis", source=file)
     seg = None if source.frames >= fs / RESOLUTION_HZ else source.frames
+    given = bandwidth_hz is not None
+    if bandwidth_hz is None:
+        bandwidth_hz = default_bandwidth_hz(fs)
     try:
         analyzer = ToneAnalyzer(
             fs,
@@ -195,6 +211,7 @@ def tone_of(
         bandwidth_hz=(float(low), float(high)),
         channel_indices=source.channel_indices,
         results=tuple(results),
+        bandwidth_source="option" if given else "sample rate",
     )
 
 

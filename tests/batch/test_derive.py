@@ -107,14 +107,23 @@ def test_k_sigma_limits_equal_numpy_mean_and_std(tmp_path):
     assert f"# n = 12, mean = {mean:.6g}, σ = {std:.6g} (dB re 1 V/Pa)" in text
     new = parse_spec(text)
     s = next(m for m in new.metrics if m.name == "sensitivity")
-    # Written with repr(): the limits read back exactly.
-    assert [(lim.lower, lim.upper, lim.severity) for lim in s.limits] == [
+    # Written rounded to two significant digits of σ (issue 12 §3.5: the resolution the
+    # data support), so they read back within half that step.
+    step = 10.0 ** (np.floor(np.log10(std)) - 1)
+    got = [(lim.lower, lim.upper, lim.severity) for lim in s.limits]
+    want = [
         (by["sensitivity"].lower, by["sensitivity"].upper, "fail"),
         (by["sensitivity"].warn_lower, by["sensitivity"].warn_upper, "warn"),
     ]
+    assert [g[2] for g in got] == [w[2] for w in want]
+    assert_allclose([g[:2] for g in got], [w[:2] for w in want], rtol=0, atol=step / 2)
     fixed = next(m for m in new.metrics if m.name == "fixed")
     assert [(lim.lower, lim.upper) for lim in fixed.limits] == [(990.0, 1010.0)]
-    assert new.metrics[3].params["lower_db"] == by["mask"].lower
+    mask_step = 10.0 ** (np.floor(np.log10(by["mask"].std)) - 1)
+    assert np.all(
+        np.abs(np.subtract(new.metrics[3].params["lower_db"], by["mask"].lower))
+        <= mask_step / 2 + 1e-12
+    )
     # The golden units pass their own derived limits (they define them).
     again = run_batch(
         expand_inputs([str(tmp_path / "golden")]),
@@ -144,3 +153,78 @@ def test_bad_k_and_too_few_units(tmp_path):
         derive_limits(rows, spec, k=3.0, warn_k=4.0)
     with pytest.raises(InputError, match=r"metric 'sensitivity': 1 golden capture"):
         derive_limits(rows[:1], spec, k=3.0)
+
+
+DERIVE_TEXT = """\
+# Lot PD27 limits (base)
+[spec]
+name = "rounding lot"
+
+[capture]
+# preamp at 20 dB into a 2 V converter
+full_scale_v = 2.0
+gain = "20 dB"
+
+[stimulus]
+kind = "tone"
+frequency_hz = 1000
+level_pa = 1.0
+silence_before_s = 0.05
+
+[metrics.sensitivity]
+# the design's nominal sensitivity
+nominal = -10.0
+lower_rel = -3.0
+upper_rel = 3.0
+
+[metrics.noise_floor]
+upper = -60.0
+severity = "warn"
+"""
+
+
+def _fake_rows(n=12):
+    rng = np.random.default_rng(5)
+    return [
+        {
+            "file": f"SN{i:04d}.wav",
+            "metrics": {"sensitivity": -10.0 + 0.0123 * z, "noise_floor": -75.0 + 1.7 * w},
+        }
+        for i, (z, w) in enumerate(rng.standard_normal((n, 2)))
+    ]
+
+
+def test_derive_keeps_severities_unit_forms_comments_and_rounds_to_the_data(tmp_path):
+    # Issue 12 §3.5. A warn-only base limit stays warn; "20 dB" is written as in the base
+    # spec, with its comments; limits are rounded to two significant digits
+    # of σ (the resolution the golden data support: with n = 12, σ itself is known only
+    # to about ±40 %, NIST/SEMATECH 7.2.3.1, so further digits are noise), never at full
+    # float precision.
+    spec = parse_spec(DERIVE_TEXT, for_derive=True)
+    rows = _fake_rows()
+    derived, notes = derive_limits(rows, spec, k=3.0)
+    text = derived_spec_text(
+        spec, derived, notes, k=3.0, warn_k=None, golden_source="golden/",
+        base_source="base.toml", out_path=tmp_path / "spec.toml",
+    )  # fmt: skip
+    assert 'gain = "20 dB"' in text or "gain = '20 dB'" in text
+    for comment in (
+        "# Lot PD27 limits (base)",
+        "# preamp at 20 dB into a 2 V converter",
+        "# the design's nominal sensitivity",
+    ):
+        assert comment in text
+    new = parse_spec(text)
+    assert new.gain == pytest.approx(10.0) and new.full_scale_v == pytest.approx(2.0)
+    by = {m.name: m for m in new.metrics}
+    assert [lim.severity for lim in by["noise_floor"].limits] == ["warn"]
+    assert [lim.severity for lim in by["sensitivity"].limits] == ["fail"]
+    sens = np.array([r["metrics"]["sensitivity"] for r in rows])
+    mean, std = np.mean(sens), np.std(sens, ddof=1)
+    step = 10.0 ** (np.floor(np.log10(std)) - 1)  # two significant digits of σ
+    lim = by["sensitivity"].limits[0]
+    for value, exact in ((lim.lower, mean - 3 * std), (lim.upper, mean + 3 * std)):
+        assert abs(value - exact) <= step / 2 + 1e-12
+        assert value == pytest.approx(round(value / step) * step, abs=1e-12)
+    lines = [ln for ln in text.splitlines() if ln.startswith(("lower =", "upper ="))]
+    assert all(len(ln.split("=")[1].strip()) <= 8 for ln in lines), lines

@@ -12,6 +12,7 @@ from piezo.chain.units import (
     ACCEPTED_UNITS,
     db_to_ratio,
     format_quantity,
+    format_uncertain,
     parse_charge_gain,
     parse_duration,
     parse_frequency_list,
@@ -171,3 +172,51 @@ def test_default_names_are_arguments_not_options(parse, text):
     with pytest.raises(UnitError) as info:
         parse(text)
     assert "--" not in str(info.value)
+
+
+@pytest.mark.parametrize(
+    ("value", "u", "unit", "k", "expected"),
+    [
+        # Issue 12 §3.11: the two prints the issue quotes, with coverage stated and value
+        # and uncertainty rounded together (GUM, JCGM 100:2008, 7.2.6: two significant
+        # digits of the uncertainty, the value to the same decimal place).
+        (234.1, 0.0033, "Hz", 2, "234.1000 Hz ± 0.0066 Hz (k = 2)"),
+        (7.997988, 0.0029024, "", 2, "7.9980 ± 0.0058 (k = 2)"),
+        # GUM 7.2.2: a standard uncertainty is not written with "±".
+        (100.02147, 0.00035, "g", 1, "100.02147 g (u = 0.00035 g)"),
+        # Uncertainty rounding to the tens: the value too (GUM 7.2.6).
+        (7904.3, 155.5, "Hz", 2, "7900 Hz ± 310 Hz (k = 2)"),
+        # Rounding carries into a third digit: 99.7 → "100", the value follows.
+        (1234.5678, 49.85, "Hz", 2, "1230 Hz ± 100 Hz (k = 2)"),
+        (-45.58269, 0.000114806, "dB", 2, "-45.58269 dB ± 0.00023 dB (k = 2)"),
+    ],
+)
+def test_format_uncertain_rounds_value_and_uncertainty_together(value, u, unit, k, expected):
+    assert format_uncertain(value, u, unit, coverage_factor=k) == expected
+
+
+def test_format_uncertain_undetermined_and_negligible():
+    assert format_uncertain(6200.0, math.nan, "Hz") == "6200 Hz (uncertainty not determined)"
+    assert format_uncertain(6200.0, None, "Hz") == "6200 Hz (uncertainty not determined)"
+    assert format_uncertain(6200.0, 2.7e-13, "Hz") == "6200.00000 Hz (uncertainty below 1 ppb)"
+    with pytest.raises(UnitError, match="coverage_factor"):
+        format_uncertain(1.0, 0.1, coverage_factor=0.5)
+
+
+@given(
+    st.floats(-1e6, 1e6, allow_nan=False),
+    st.floats(1e-6, 1e5, allow_nan=False),
+)
+def test_format_uncertain_keeps_two_digits_and_the_same_decimal_place(value, u):
+    # Property (GUM 7.2.6): the printed U has two significant digits (or is a round
+    # power of ten after carrying), and the value has exactly as many decimals as U.
+    text = format_uncertain(value, u, "V")
+    if "ppb" in text:
+        return
+    v_text, rest = text.split(" V ± ")
+    u_text = rest.split(" V")[0]
+    assert len(v_text.partition(".")[2]) == len(u_text.partition(".")[2])
+    digits = u_text.replace(".", "").lstrip("0")
+    assert 1 <= len(digits.rstrip("0") or "1") <= 2
+    assert float(u_text) == pytest.approx(2 * u, rel=0.06)
+    assert abs(float(v_text) - value) <= float(u_text) / 10 + 1e-9 * abs(value) + 1e-12

@@ -196,3 +196,66 @@ def test_equalize_reports_boost_and_keeps_the_scale(cli, design, tone, tmp_path)
         "equalize", tone, "--frontend", design, "--corner", "20 mHz", "--out", tmp_path / "t.wav"
     )
     assert r.code == 0 and "low-frequency boost up to 18.0 dB" in r.out
+
+
+def test_equalize_json_names_what_it_reports_and_keeps_the_file_calibrated(cli, design, tmp_path):
+    # Issue 12 §3.3: the peaks are the written file's sample peaks (fractions of full
+    # scale, not "Pa"), the corner is the design's modelled one, and a sidecar profile
+    # beside the output keeps it calibrated: levels of the equalized file equal the
+    # input's (the shelf leaves a 1 kHz tone unchanged to 1e-7 dB, as above).
+    t = np.arange(FS) / FS
+    x = 0.5 * np.sin(2 * np.pi * 1000 * t)
+    src = tmp_path / "pcm.wav"
+    sf.write(str(src), x, FS, subtype="PCM_24")
+    src.with_suffix(".toml").write_text(
+        '[sensor]\nsensitivity = "12.5 mV/Pa"\n[chain]\ngain = "20 dB"\nfull_scale = "2 V"\n',
+        encoding="utf-8",
+    )
+    out = tmp_path / "eq.wav"
+    r = cli("equalize", src, "--frontend", design, "--corner", "0.05Hz", "--out", out, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert "measured_corner_hz" not in doc and "peak" not in doc and "unit" not in doc
+    assert doc["model_corner_hz"] == pytest.approx(1 / (2 * math.pi), rel=1e-6)
+    assert doc["output_peak_fs"][0] == pytest.approx(0.5, rel=6e-3)
+    # 0.5 FS × 2 V / 10 (20 dB) / 12.5 mV/Pa = 8 Pa.
+    assert doc["output_peak_pa"][0] == pytest.approx(8.0, rel=6e-3)
+    assert doc["profile_written"] == str(out.with_suffix(".toml"))
+    before = cli("levels", src, "--json").json()
+    after = cli("levels", out, "--json").json()
+    assert after["unit"] == "Pa"
+    assert after["channels"][0]["LZeq"] == pytest.approx(before["channels"][0]["LZeq"], abs=0.01)
+
+
+def test_noise_density_table_at_chosen_frequencies(cli, design):
+    # Issue 12 §3.17: the noise budget at chosen frequencies (--at), as a density table in
+    # the JSON. The feedback resistor's Johnson current noise √(4kT/Rf) (Johnson 1928,
+    # Nyquist 1928) flows through the feedback impedance Rf ∥ Cf, so its output density is
+    # √(4kT/Rf)·Rf/|1 + j2πf·Rf·Cf| (1 GΩ, 1 nF here); k = 1.380649e-23 J/K (SI 2019).
+    r = cli("frontend", design, "--json", "--at", "1Hz,100Hz,10kHz")
+    assert r.code == 0, r.err
+    doc = r.json()
+    table = doc["noise_density"]
+    assert table["frequency_hz"] == [1.0, 100.0, 10000.0]
+    rf = next(s for s in table["sources"] if s["source"] == "feedback_resistance")
+    f = np.array(table["frequency_hz"])
+    kt4 = 4 * 1.380649e-23 * doc["temperature_k"]
+    expected = math.sqrt(kt4 / 1e9) * 1e9 / np.abs(1 + 2j * np.pi * f * 1e9 * 1e-9)
+    np.testing.assert_allclose(rf["output_v_per_sqrt_hz"], expected, rtol=1e-9)
+    total = np.sqrt(sum(np.square(s["output_v_per_sqrt_hz"]) for s in table["sources"]))
+    np.testing.assert_allclose(table["total_output_v_per_sqrt_hz"], total, rtol=1e-12)
+
+
+def test_self_noise_band_is_an_option(cli, design):
+    # Issue 12 §3.17: hydrophone and vibration bands differ from 20 Hz–20 kHz. The
+    # unweighted self-noise is the input PSD integrated over the band, so a wider band
+    # holds at least as much noise, and the band is stated.
+    narrow = cli("frontend", design, "--json").json()
+    wide = cli("frontend", design, "--json", "--noise-band", "1Hz:100kHz").json()
+    assert narrow["noise_band_hz"] == [20.0, 20000.0]
+    assert wide["noise_band_hz"] == [1.0, 100000.0]
+    assert wide["self_noise_unweighted_db"] > narrow["self_noise_unweighted_db"]
+    r = cli("frontend", design, "--noise-band", "1Hz:100kHz")
+    assert "over 1 Hz–100 kHz" in r.out
+    r = cli("frontend", design, "--noise-band", "10kHz:1kHz")
+    assert r.code == 2 and "--noise-band" in r.err

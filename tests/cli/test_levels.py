@@ -136,3 +136,27 @@ def test_levels_on_demo_recordings(cli, name, unit, channels):
     for ch in doc["channels"]:
         # An RMS never exceeds the peak of the same signal.
         assert ch["LZeq"] is not None and ch["LZeq"] <= ch["LZpeak"]
+
+
+def test_chosen_percentiles(cli, tmp_path):
+    # Issue 12 §3.17: --percentiles 1,10,50,90,99 gives LAF1 ... LAF99. White noise that
+    # steps by 20 dB every 2 s: LAF1 reads the loud parts, LAF99 the quiet ones, 20 dB
+    # apart within 1 dB (the F level of broadband noise scatters by σ ≈ 4.34/√(B·2τ) dB,
+    # about 0.06 dB for B of some kHz and τ = 125 ms, Bendat & Piersol §8.2; the 1 dB
+    # leaves room for the F averager's 125 ms transitions, about 2 % of the time).
+    import soundfile as sf
+
+    fs = 48000
+    rng = np.random.default_rng(17)
+    x = rng.standard_normal(8 * fs) * np.repeat([0.02, 0.2, 0.02, 0.2], 2 * fs)
+    path = tmp_path / "steps.wav"
+    sf.write(str(path), x / 4, fs, subtype="FLOAT")
+    r = cli("levels", path, "--sensitivity", "250 mV/Pa", "--percentiles", "1,10,50,90,99",
+            "--json")  # fmt: skip
+    assert r.code == 0, r.err
+    ch = r.json()["channels"][0]
+    assert {"LAF1", "LAF10", "LAF50", "LAF90", "LAF99"} <= set(ch)
+    assert ch["LAF1"] >= ch["LAF10"] >= ch["LAF50"] >= ch["LAF90"] >= ch["LAF99"]
+    assert ch["LAF1"] - ch["LAF99"] == pytest.approx(20.0, abs=1.0)
+    r = cli("levels", path, "--percentiles", "0,50")
+    assert r.code == 2 and "--percentiles" in r.err

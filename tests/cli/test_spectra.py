@@ -65,7 +65,9 @@ def test_spectrum_uncalibrated_and_options(cli, tone_wav):
     doc = r.json()
     assert doc["unit"] == "V^2"
     assert [c["channel"] for c in doc["channels"]] == [1]
-    assert doc["confidence"]["lower_db"] is None  # no chi-square interval for a median
+    # Issue 12 §3.13: no chi-square interval for a median, so no confidence object with
+    # null bounds either: the key is null.
+    assert doc["confidence"] is None
 
 
 def test_spectrum_text_output(cli, tone_wav):
@@ -200,3 +202,43 @@ def test_bands_a_weighting(cli, tone_wav):
     assert k["level_db"] == pytest.approx(ONE_PA_DB, abs=0.05)
     r = cli("bands", tone_wav, "--weighting", "B")
     assert r.code == 2 and "--weighting must be A, C or Z" in r.err
+
+
+def test_bands_and_tone_default_their_upper_limit_from_the_sample_rate(cli, tmp_path):
+    # Issue 12 §3.16: at 1 MS/s the defaults no longer stop at 20 kHz. A 40 kHz tone with
+    # its 3rd harmonic (120 kHz, 1 %) at 1 MS/s: bands reach the 40 kHz band and beyond
+    # (up to 0.475 fs, the bank's edge limit), tone counts H3 (in 20 Hz–450 kHz), and both
+    # say that the limit came from the sample rate.
+    import soundfile as sf
+
+    fs = 1_000_000
+    t = np.arange(fs // 2) / fs
+    x = 0.5 * np.sin(2 * np.pi * 40000 * t) + 0.005 * np.sin(2 * np.pi * 120000 * t)
+    path = tmp_path / "ultra.wav"
+    sf.write(str(path), x, fs, subtype="FLOAT")
+    r = cli("bands", path, "--fraction", "1", "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["high_source"] == "sample rate" and doc["high_hz"] == pytest.approx(475000.0)
+    nominal = [b["nominal_hz"] for b in doc["channels"][0]["bands"]]
+    assert 31500 in nominal and 125000 in nominal and max(nominal) <= 250000
+    r = cli("tone", path, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["bandwidth_source"] == "sample rate"
+    assert doc["bandwidth_hz"] == [20.0, 450000.0]
+    # THD = 0.005/0.5 = 1 % (IEC 60268-3 definition), within 0.01 percentage points.
+    assert abs(doc["channels"][0]["thd_percent"] - 1.0) <= 0.01
+    r = cli("bands", path, "--fraction", "1")
+    assert "default for 1e+06 Hz sampling" in r.out
+
+
+def test_bands_history_states_interval_durations(cli, tone_wav):
+    # Issue 12 §3.17: a 2 s recording in 0.75 s intervals has a last interval of 0.5 s;
+    # the history says so beside each start time.
+    r = cli("bands", tone_wav, *SENS, "--json", "--fraction", "1", "--low", "500Hz",
+            "--high", "2kHz", "--interval", "0.75s")  # fmt: skip
+    assert r.code == 0, r.err
+    hist = r.json()["channels"][0]["history"]
+    assert hist["time_s"] == [0.0, 0.75, 1.5]
+    assert hist["interval_duration_s"] == pytest.approx([0.75, 0.75, 0.5])

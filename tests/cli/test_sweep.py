@@ -240,3 +240,75 @@ def test_fit_frontend_matches_library(cli, tmp_path):
     lib = fit_response(f, m)
     assert r.json()["corner_hz"] == pytest.approx(lib.highpass.corner_hz, rel=1e-9)
     assert "caution" in r.json()
+
+
+def test_analyze_demo_reports_measured_peak_beside_fitted_resonance(cli):
+    # Issue 12 §3.2 on the demo's nominal pickup (a single mode at 14 kHz, Q 8): the
+    # measured peak lies at f_r √(1 − 1/(2Q²)) = 13945 Hz (SDOF amplitude peak); the
+    # three-point parabola on the 24-per-octave grid finds it within 0.5 %.
+    from tests.paths import RECORDINGS
+
+    r = cli(
+        "sweep", "analyze", RECORDINGS / "valve-pickup-nominal.flac",
+        "--stimulus", RECORDINGS / "valve-pickup-sweep.stimulus.toml", "--json",
+    )  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["resonance_peak_hz"] == pytest.approx(14000 * math.sqrt(1 - 1 / 128), rel=5e-3)
+    assert doc["resonance_fit_poor"] is False
+    assert 0 <= doc["resonance_fit_residual_db"] < 0.25
+
+
+def test_analyze_prints_uncertainties_with_coverage_rounded_together(cli):
+    # Issue 12 §3.11: every printed uncertainty states its coverage (k = 2) and the value
+    # is rounded to the decimal place of its two-digit uncertainty (GUM, JCGM 100:2008,
+    # 7.2.6): never "Q 8 ± 0.0029".
+    import re
+
+    from tests.paths import RECORDINGS
+
+    r = cli(
+        "sweep", "analyze", RECORDINGS / "valve-pickup-nominal.flac",
+        "--stimulus", RECORDINGS / "valve-pickup-sweep.stimulus.toml",
+    )  # fmt: skip
+    assert r.code == 0, r.err
+    pairs = re.findall(r"(-?\d+(?:\.(\d+))?)(?: Hz)? ± (\d+(?:\.(\d+))?)(?: Hz)? \(k = 2\)", r.out)
+    assert len(pairs) == 3  # corner, resonance, Q
+    for _value, value_decimals, u, u_decimals in pairs:
+        assert len(value_decimals) == len(u_decimals)
+        assert 1 <= len(u.replace(".", "").lstrip("0")) <= 2
+    # Every "±" of an uncertainty carries its coverage (the ±1/±3 dB bands are names).
+    assert len(re.findall(r"± (?![13] dB)", r.out)) == r.out.count("(k = 2)")
+
+
+def test_response_with_noisy_reference_gives_the_h1_table_and_skips_the_fit(cli, tmp_path):
+    # Issue 12 §3.14: a 20 dB-SNR reference (independent white noise 20 dB below the
+    # signal on both channels) has γ² = 1/(1 + 0.01)² = 0.980 (Bendat & Piersol, Random
+    # Data, 4th ed., §9.1.3: γ² = 1/((1 + Nxx/Sxx)(1 + Nyy/Syy))), below the default
+    # --min-coherence 0.99. The H1 table and its coherence come out; only the fit, which
+    # needs coherent points, is skipped and says why.
+    rng = np.random.default_rng(14)
+    n = FS * 6
+    s = 0.1 * rng.standard_normal(n)
+    x = s + 0.01 * rng.standard_normal(n)
+    y = 0.5 * s + 0.005 * rng.standard_normal(n)
+    path = tmp_path / "noisy.wav"
+    sf.write(str(path), np.column_stack([x, y]), FS, subtype="FLOAT")
+    r = cli("response", path, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    coh = np.array(doc["coherence"])
+    # 69 segments of 8192 (50 % overlap): the coherence scatters by a few 0.001 per bin.
+    assert np.median(coh) == pytest.approx(1 / 1.01**2, abs=0.003)
+    # H1 = Gxy/Gxx is biased low by the reference's noise: 0.5/(1 + 0.01) → −6.107 dB.
+    # Mean over the 80 table points of 1–10 kHz: 0.087 dB scatter per point, so a
+    # standard error of 0.01 dB; 0.04 dB is four of them (measured −6.097 dB).
+    f = np.array(doc["frequency_hz"])
+    mag = np.array(doc["magnitude_db"])[(f >= 1000) & (f <= 10000)]
+    assert np.mean(mag) == pytest.approx(20 * math.log10(0.5 / 1.01), abs=0.04)
+    assert doc["fitted_points"] == 0
+    assert doc["corner_hz"] is None and doc["resonance_hz"] is None
+    assert "coherence" in doc["fit_skipped_reason"]
+    r = cli("response", path)
+    assert r.code == 0, r.err
+    assert "fit skipped" in r.out

@@ -409,7 +409,10 @@ def test_metadata_rate_mismatch_fails_and_missing_sensitivity_warns():
     result = check_capture(x, FS, metadata=meta)
     names = {c.name: c.severity for c in result.metadata_checks}
     assert names == {"sample_rate": Severity.FAIL, "sensitivity": Severity.WARN}
-    assert result.channels[0].verdict is Severity.FAIL
+    # File-level checks make the file's verdict, not the channel's (issue 12 §3.4).
+    assert result.verdict is Severity.FAIL
+    ch = result.channels[0]
+    assert ch.verdict is worst_severity([c.severity for c in ch.checks])
     ok = check_capture(x, FS, metadata=CaptureMetadata(48000, 48000, True))
     assert ok.verdict is Severity.OK
 
@@ -594,3 +597,15 @@ def test_every_threshold_is_documented_with_its_default():
             assert [float(v) for v in rows[name].split(",")] == list(default), name
         else:
             assert float(rows[name]) == default, name
+
+
+def test_file_level_metadata_warning_does_not_make_an_ok_channel_warn():
+    # Issue 12 §3.4: no sensitivity given is a warning about the file; a channel whose
+    # own checks are all ok stays ok, and the file's verdict carries the warning.
+    x = sine(997.0, 0.5, 1.0)
+    result = check_capture(x, FS, metadata=CaptureMetadata(sensitivity_known=False))
+    ch = result.channels[0]
+    assert all(c.severity is Severity.OK for c in ch.checks), ch.checks
+    assert ch.verdict is Severity.OK
+    assert result.verdict is Severity.WARN
+    assert result.as_dict()["channels"][0]["verdict"] == "ok"

@@ -353,3 +353,20 @@ def test_bad_input_is_rejected_with_the_argument_named():
         LevelMeter(48000, 1, reference=0)
     with pytest.raises(InputError, match="interval_s must be positive, got -1"):
         LevelMeter(48000, 1, interval_s=-1)
+
+
+def test_percentiles_of_a_steady_level_interpolate_within_the_bin():
+    # Issue 12 §3.13: a steady 1 kHz tone at 80.000 dB (0.2 Pa RMS; A(1 kHz) = 0 dB by
+    # IEC 61672-1:2013 table 3) read LAF10 79.995, a histogram bin centre. The F level of
+    # a steady 1 kHz sine ripples by ±10 lg(1 + 1/(2π·2 kHz·0.125 s)) = ±0.003 dB (the
+    # 2f ripple of an RC averager), so every percentile lies within 0.004 dB of 80.000.
+    # 10 s: the F averager, reset at the start, is within 0.003 dB of its reading after
+    # 0.9 s (e^(−t/τ) < 7e-4), under 2 % of the counted samples, less than LAF95's 5 %.
+    fs = 48000.0
+    x = sine(1000, 0.2, 10.0, fs)
+    ch = sound_levels(x, fs).channels[0]
+    a_1k = float(weighting_db(np.array([1000.0]), weighting="A")[0])
+    for p in PERCENTILES:
+        value = getattr(ch, f"LAF{p}")
+        assert abs(value - (80.0 + a_1k)) < 0.004, (p, value)
+    assert f"{ch.LAF10:.2f}" == "80.00"

@@ -56,7 +56,8 @@ def test_thd_known_harmonics(f0):
     thd = math.hypot(0.01, 0.005)
     assert_allclose(r.thd_n_ratio, thd / math.sqrt(1 + thd**2), rtol=1e-4)
     assert_allclose(r.sinad_db, -20 * math.log10(r.thd_n_ratio), rtol=1e-12)
-    assert r.harmonic_orders == tuple(n for n in range(2, 11) if n * f0 < FS / 2 - 10)
+    # Orders up to the bandwidth's upper end (20 kHz by default), the band of THD+N.
+    assert r.harmonic_orders == tuple(n for n in range(2, 11) if n * f0 <= 20000)
     assert_allclose(r.harmonic_rms[:2], [0.01, 0.005], rtol=1e-4)
 
 
@@ -153,6 +154,25 @@ def test_public_api_is_pinned():
 
     assert set(piezo.tone.analysis.__all__) == {
         "LINE_HALF_WIDTH_BINS", "ToneAnalyzer", "ToneResult", "band_mean_square",
-        "measure_tone", "noise_mean_square",
+        "default_bandwidth_hz", "measure_tone", "noise_mean_square",
     }  # fmt: skip
     assert all(hasattr(piezo.tone.analysis, name) for name in piezo.tone.analysis.__all__)
+
+
+def test_thd_and_thd_n_share_one_band():
+    # Issue 12 §3.15: 7 kHz at 48 kHz with H3 at −40 dB (1 %, at 21 kHz): outside the
+    # default 20 Hz–20 kHz band, so neither THD nor THD+N counts it (THD was 1.0 % beside
+    # a THD+N of 0.0 %). H2 at 14 kHz, inside, counts in both.
+    x = _tone(7000.0, harmonics=[(3, 0.01)])
+    r = measure_tone(x, FS)
+    assert r.harmonic_orders == (2,)
+    assert r.thd_percent < 1e-3 and r.thd_n_percent < 1e-3
+    # Widened to 23 kHz the band holds H3: both see it (THD 1 %; THD+N the distortion
+    # factor 0.01/√(1 + 0.01²), as in test_thd_known_harmonics).
+    wide = measure_tone(x, FS, bandwidth_hz=(20, 23000))
+    assert wide.harmonic_orders == (2, 3)
+    assert abs(wide.thd_percent - 1.0) <= 0.01
+    assert_allclose(wide.thd_n_ratio, 0.01 / math.sqrt(1 + 0.01**2), rtol=1e-4)
+    # THD never exceeds THD+N re the fundamental: THD+N·total ≥ THD·fundamental.
+    for res in (r, wide):
+        assert res.thd_ratio * res.tone_rms <= res.thd_n_ratio * res.total_rms * (1 + 1e-9)
