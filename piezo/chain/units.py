@@ -362,6 +362,7 @@ def format_uncertain(
     unit: str = "",
     *,
     coverage_factor: float = 2.0,
+    si_prefix: bool = False,
 ) -> str:
     """A value with its uncertainty, rounded together, with the coverage stated.
 
@@ -383,6 +384,9 @@ def format_uncertain(
         Unit symbol appended to value and uncertainty ("" for a pure number).
     coverage_factor
         k of the printed expanded uncertainty; 1 prints the standard uncertainty.
+    si_prefix
+        Scale value and uncertainty by the SI prefix that suits the value
+        (``2.15e-9 F`` is printed in nF).
 
     Examples
     --------
@@ -396,9 +400,17 @@ def format_uncertain(
     '6200 Hz (uncertainty not determined)'
     >>> format_uncertain(6200.0, 1e-13, "Hz")
     '6200.00000 Hz (uncertainty below 1 ppb)'
+    >>> format_uncertain(2.1516e-9, 4.05e-14, "F", si_prefix=True)
+    '2.15160 nF ± 0.00008 nF (k = 2)'
     """
     if not (isinstance(coverage_factor, (int, float)) and coverage_factor >= 1):
         raise UnitError(f"coverage_factor must be at least 1, got {coverage_factor!r}")
+    if si_prefix and unit and math.isfinite(value) and value != 0:
+        scaled, symbol = _engineering(value)
+        factor = value / scaled
+        if standard_uncertainty is not None:
+            standard_uncertainty = float(standard_uncertainty) / factor
+        value, unit = scaled, symbol + unit
     space = f" {unit}" if unit else ""
     if not math.isfinite(value):
         return f"{value}{space}"

@@ -9,7 +9,7 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import format_quantity, parse_quantity
+from piezo.chain.units import format_quantity, format_uncertain, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress
 from piezo.errors import InputError
@@ -245,10 +245,10 @@ def document(file: Path, analysis: Any, measurement: dict[str, Any] | None) -> d
 def _q(value: float | None, unit: str, u: float | None = None, digits: int = 5) -> str:
     if value is None or not math.isfinite(value):
         return "—"
-    text = format_quantity(value, unit, digits=digits) if unit else f"{value:.{digits}g}"
     if u is not None and math.isfinite(u):
-        text += f" ± {format_quantity(u, unit, digits=2) if unit else f'{u:.2g}'}"
-    return text
+        # Printed expanded (k = 2), value and uncertainty rounded together (GUM 7.2.6).
+        return format_uncertain(value, u, unit, si_prefix=True)
+    return format_quantity(value, unit, digits=digits) if unit else f"{value:.{digits}g}"
 
 
 def _print(doc: dict[str, Any]) -> None:
@@ -305,5 +305,7 @@ def _print(doc: dict[str, Any]) -> None:
             f"  material coupling {mat['symbol']} = {_q(mat['value'], '', mat['uncertainty'], 4)}"
             f" ({mat['shape']} mode; {mat['relation']})"
         )
-    console.print("  uncertainties: standard (k = 1), from the fit's covariance")
+    console.print(
+        "  uncertainties: expanded (k = 2) from the fit's covariance; standard (k = 1) in --json"
+    )
     console.print(f"[dim]{doc['caution']}[/dim]")

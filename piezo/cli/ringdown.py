@@ -8,7 +8,7 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_quantity
+from piezo.chain.units import format_uncertain, parse_quantity
 from piezo.cli.impedance import CAUTION, parse_band
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
@@ -151,10 +151,13 @@ def _print(doc: dict[str, Any]) -> None:
         if n <= 10:
             for e in ch["events"]:
                 modes = ", ".join(
-                    f"{m.frequency_hz:.6g} Hz Q {m.q:.4g}"
-                    + (f" ± {m.u_q:.2g}" if m.u_q is not None else "")
+                    f"{m.frequency_hz:.6g} Hz Q "
+                    + (format_uncertain(m.q, m.u_q) if m.u_q is not None else f"{m.q:.4g}")
                     for m in e["modes"]
                 )
                 console.print(f"    event at {e['start_s']:.4f} s: {modes or 'no mode'}")
-    console.print("  uncertainties: standard (k = 1); spreads over events (sample std)")
+    console.print(
+        "  uncertainties: expanded (k = 2), standard (k = 1) in --json; "
+        "spreads over events (sample std)"
+    )
     console.print(f"[dim]{doc['caution']}[/dim]")
