@@ -883,7 +883,7 @@ def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> 
         raise check.error(path, f"{file}: {exc.message}") from None
     if not isinstance(sweep, SweepSpec):
         raise check.error(path, f"{file} describes {sweep.kind!r}, not a sweep")
-    values = {key: float(getattr(sweep, key)) for key in _SWEEP_FILE_KEYS}
+    values: dict[str, float | str] = {key: float(getattr(sweep, key)) for key in _SWEEP_FILE_KEYS}
     values["file"] = file
     values["file_data"] = text
     if sweep.acoustic_level_pa is not None and "level_pa" not in stim and "level_db" not in stim:

@@ -527,16 +527,16 @@ class CaptureChecker:
         ]
         self._flat = [RunTracker(self._flat_tol) for _ in range(channels)]
         # Digital clipping per side: [runs tracker, [samples, events, times]].
-        self._digital = [
+        self._digital: list[dict[str, tuple[MaskRuns, list[Any]]]] = [
             {side: (MaskRuns(), [0, 0, []]) for side in ("positive", "negative")}
             for _ in range(channels)
         ]
         # Dropouts.
         self._dropout_min = max(th.dropout_min_samples, round(th.dropout_min_duration_s * fs))
         self._exact = [RunTracker(0.0) for _ in range(channels)]
-        self._zero_acc = [[0, 0, []] for _ in range(channels)]
+        self._zero_acc: list[list[Any]] = [[0, 0, []] for _ in range(channels)]
         self._repeat_acc: list[dict[float, list[Any]]] = [{} for _ in range(channels)]
-        self._repeat_other = [[0, 0, []] for _ in range(channels)]
+        self._repeat_other: list[list[Any]] = [[0, 0, []] for _ in range(channels)]
         self._leading = [0] * channels  # frames of the constant run the recording opens with
         # DC drift.
         self._drift_len = max(1, round(th.drift_interval_s * fs))
@@ -893,6 +893,7 @@ class CaptureChecker:
             )
         if peak_dbfs is None:
             return result, Check("headroom", Severity.WARN, "peak is zero: no signal", threshold)
+        headroom = -peak_dbfs
         evidence = f"peak {peak_dbfs:.2f} dBFS, headroom {headroom:.2f} dB{crest_text}"
         if headroom < th.headroom_warn_db:
             sev = Severity.WARN
@@ -964,7 +965,7 @@ class CaptureChecker:
             )
             if t_stat is None:
                 evidence += " (too few intervals to judge)"
-            elif drifting:
+            elif drifting and change is not None:
                 evidence += f": drift of {self._fmt(change)} over the recording (t = {t_stat:.3g})"
             else:
                 evidence += f" (no steady drift, t = {t_stat:.2g})"
@@ -1125,6 +1126,7 @@ class CaptureChecker:
             else "no expected corner given"
         ) + f"; fit misfit <= {th.rolloff_max_residual_db:g} dB"
         if r.status == "estimated":
+            assert r.corner_hz is not None  # an estimate always has its corner
             evidence = f"corner {r.corner_hz:.3g} Hz ({r.reason})"
             sev = Severity.OK
             if exp is not None and abs(r.corner_hz / exp - 1.0) > th.rolloff_tolerance:
@@ -1132,6 +1134,7 @@ class CaptureChecker:
                 evidence += f"; expected {exp:g} Hz"
             return Check("rolloff", sev, evidence, threshold)
         if r.status == "below range":
+            assert r.upper_bound_hz is not None  # "below range" always has its bound
             evidence = f"corner below {r.upper_bound_hz:.3g} Hz ({r.reason})"
             sev = Severity.OK
             if exp is not None and exp > r.upper_bound_hz * (1 + th.rolloff_tolerance):

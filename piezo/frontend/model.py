@@ -819,6 +819,7 @@ def _frontend_from_mapping(data: Mapping[str, Any], *, source: str | None) -> Fr
         )
     if voltage is not None:
         charge = voltage * capacitance
+    assert charge is not None  # exactly one of the two was given
     sensor = Sensor(
         charge,
         capacitance,

@@ -528,7 +528,7 @@ class LevelMeter:
         t -= 1.0
         t /= fs
         return LevelHistory(
-            interval_s=float(self.interval_s),
+            interval_s=q / fs,
             interval_start_s=starts,
             interval_duration_s=lengths / fs,
             LZeq=_db_array(ms[:, 0, :], ref),

@@ -31,6 +31,7 @@ uncertainty and are best read as a measure of how well the data pin each paramet
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from collections.abc import Callable
@@ -573,6 +574,10 @@ def _highpass_part(f: np.ndarray, order: int, p: np.ndarray) -> np.ndarray:
     return highpass_magnitude_db(f, order=2, natural_hz=math.exp(p[0]), q=math.exp(p[1]))
 
 
+def _highpass_part_of_order(order: int, f: np.ndarray, p: np.ndarray) -> np.ndarray:
+    return _highpass_part(f, order, p)
+
+
 def _resonance_part(f: np.ndarray, p: np.ndarray) -> np.ndarray:
     return resonance_magnitude_db(f, resonance_hz=math.exp(p[0]), q=math.exp(p[1]))
 
@@ -732,7 +737,7 @@ def fit_response(
                     f[lower],
                     m[lower] - offset,
                     w[lower],
-                    lambda ff, pp, o=o: _highpass_part(ff, o, pp),
+                    functools.partial(_highpass_part_of_order, o),
                     hp_x[o],
                 )
                 hp_x[o] = hp_fits[o].params

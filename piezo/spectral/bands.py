@@ -204,7 +204,7 @@ def fractional_octave_bands(
     x_hi = math.floor(b * math.log(high_hz * quarter / REFERENCE_HZ, OCTAVE_RATIO) - offset)
     bands = []
     for x in range(x_lo, x_hi + 1):
-        fm = exact_midband_hz(x, b)
+        fm = float(exact_midband_hz(x, b))
         if sample_rate_hz is not None and fm * half > MAX_EDGE_RATIO * sample_rate_hz:
             continue
         bands.append(Band(x, fm, fm / half, fm * half, nominal_midband_hz(fm, b)))
@@ -519,6 +519,7 @@ class BandAnalyzer:
                 self._hist_n[first : first + starts.size, bands] += counts[:, None]
         stage.count += n
         if not stage.last:
+            assert y is not None  # every stage but the last passes its output on
             # Keep samples at even stage index: input sample numbers divisible by 2^(k+1).
             self._run(k + 1, y[start % 2 :: 2], flush=flush)
 
