@@ -19,6 +19,8 @@ Scenarios
   column and two voltage columns (disc output, and a reference accelerometer channel).
 - ``valve-pickup-*``: contact pickups on a valve test rig measured with a swept sine
   (see :mod:`piezo.demo.response`).
+- ``accel-bench.flac``: a back-to-back accelerometer comparison on a shaker, with the
+  reference's calibration chart (see :mod:`piezo.demo.bench`).
 """
 
 from __future__ import annotations
@@ -28,6 +30,7 @@ from collections.abc import Callable
 import numpy as np
 from scipy import signal
 
+from piezo.demo.bench import bench_demo_files, bench_demo_texts
 from piezo.demo.files import DemoFile
 from piezo.demo.frontend import frontend_demo_texts
 from piezo.demo.response import response_demo_files, response_demo_texts
@@ -211,9 +214,9 @@ SCENARIOS: tuple[Callable[[], DemoFile], ...] = (_calibrator, _pump_bench, _hydr
 
 def demo_files() -> list[DemoFile]:
     """Generate every demo recording (deterministic), all scenarios."""
-    return [make() for make in SCENARIOS] + response_demo_files()
+    return [make() for make in SCENARIOS] + response_demo_files() + bench_demo_files()
 
 
 def demo_texts() -> dict[str, str]:
     """Text files that go with the demo recordings (stimulus descriptions, golden data)."""
-    return {**response_demo_texts(), **frontend_demo_texts()}
+    return {**response_demo_texts(), **frontend_demo_texts(), **bench_demo_texts()}
