@@ -205,6 +205,38 @@ def parse_gain(text: str | float | int, *, what: str = "gain") -> float:
     return ratio
 
 
+def parse_decibels(
+    text: str | float | int, *, what: str = "level difference", positive: bool = False
+) -> float:
+    """Parse a level difference in decibels (``"0.25 dB"``, ``"20dB"`` or a plain number).
+
+    Not negative; with ``positive`` it must exceed zero.
+
+    Examples
+    --------
+    >>> parse_decibels("0.25 dB"), parse_decibels("20dB"), parse_decibels(3)
+    (0.25, 20.0, 3.0)
+    """
+    if isinstance(text, int | float) and not isinstance(text, bool):
+        value = float(text)
+    elif isinstance(text, str):
+        m = _DB_RE.match(text)
+        number = m.group(1) if m and m.group(2) == "" else text.strip()
+        try:
+            value = float(number)
+        except ValueError:
+            raise UnitError(
+                f"{what}: expected a level difference in dB such as '0.25 dB', got {text!r}"
+            ) from None
+    else:
+        raise UnitError(f"{what}: expected a level difference in dB, got {text!r}")
+    if not math.isfinite(value) or value < 0 or (positive and value == 0):
+        raise UnitError(
+            f"{what}: must be {'positive' if positive else 'not negative'}, got {text!r}"
+        )
+    return value
+
+
 def parse_charge_gain(text: str | float, *, what: str = "charge_gain") -> float:
     """Parse a charge-amplifier gain (``"1 mV/pC"``) and return volts per coulomb."""
     if isinstance(text, int | float) and not isinstance(text, bool):
