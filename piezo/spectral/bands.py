@@ -29,16 +29,20 @@ recording and optionally per interval. Filter state is carried between blocks.
 from __future__ import annotations
 
 import copy
+import functools
+import hashlib
 import math
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
-from scipy import signal
 
 from piezo import validate
+from piezo._kernels.cache import cached_arrays
 from piezo._kernels.filters import SOSBank
 from piezo.errors import InputError
 from piezo.levels.weighting import FrequencyWeighting
+from piezo.sos import sos_response
 
 __all__ = [
     "ANTI_ALIAS_STOP_DB",
@@ -220,6 +224,8 @@ def _anti_alias_sos() -> np.ndarray:
     Passband 0.002 dB up to ``STAGE_EDGE_RATIO/2`` (the highest band edge filtered at
     the next rate), at least :data:`ANTI_ALIAS_STOP_DB` from 0.25 (the next Nyquist).
     """
+    from scipy import signal
+
     wp = STAGE_EDGE_RATIO  # = (STAGE_EDGE_RATIO / 2) / 0.5
     order, _ = signal.ellipord(wp, 0.5, ANTI_ALIAS_RIPPLE_DB, ANTI_ALIAS_STOP_DB)
     sos = signal.ellip(
@@ -232,12 +238,18 @@ def _anti_alias_sos() -> np.ndarray:
 
 
 def _band_sos(band: Band, rate_hz: float) -> np.ndarray:
+    from scipy import signal
+
     sos = signal.butter(
         BAND_ORDER, [band.lower_hz, band.upper_hz], btype="bandpass", fs=rate_hz, output="sos"
     )
-    _, h = signal.sosfreqz(sos, worN=[band.exact_hz], fs=rate_hz)
-    sos[0, :3] /= abs(h[0])
+    sos[0, :3] /= abs(sos_response(sos, np.array([band.exact_hz]), rate_hz)[0])
     return sos
+
+
+@functools.cache
+def _source_digest() -> str:
+    return hashlib.sha256(Path(__file__).read_bytes()).hexdigest()
 
 
 class FilterBank:
@@ -270,6 +282,21 @@ class FilterBank:
                 k += 1
             self.stage_of_band.append(k)
         self.stages = max(self.stage_of_band) + 1
+        # The design runs once per sample rate, band set and this module's code; later
+        # processes read it from the per-user design cache, without scipy.signal.
+        key = repr(
+            (
+                self.sample_rate_hz,
+                [(b.index, b.exact_hz, b.lower_hz, b.upper_hz) for b in self.bands],
+                self.stage_of_band,
+                _source_digest(),
+            )
+        )
+        stored = cached_arrays("bands", key, self._design)
+        self.anti_alias_sos = np.array(stored["anti_alias"], dtype=np.float64)
+        self.band_sos = [np.array(s, dtype=np.float64) for s in stored["bands"]]
+
+    def _design(self) -> dict[str, np.ndarray]:
         self.anti_alias_sos = _anti_alias_sos()
         self.band_sos = [
             _band_sos(b, self.sample_rate_hz / 2**k)
@@ -280,6 +307,7 @@ class FilterBank:
         at_mid = self.response_db(np.array([b.exact_hz for b in self.bands]))
         for j, sos in enumerate(self.band_sos):
             sos[0, :3] *= 10.0 ** (-at_mid[j, j] / 20.0)
+        return {"anti_alias": self.anti_alias_sos, "bands": np.stack(self.band_sos)}
 
     def stage_rate_hz(self, stage: int) -> float:
         """Sample rate of decimation stage ``stage``, hertz."""
@@ -301,14 +329,14 @@ class FilterBank:
         for k in range(self.stages):
             rate = self.stage_rate_hz(k)
             at_stage.append((f, gain_db))
-            _, h = signal.sosfreqz(self.anti_alias_sos, worN=f / rate, fs=1.0)
+            h = sos_response(self.anti_alias_sos, f / rate, 1.0)
             gain_db = gain_db + 20.0 * np.log10(np.maximum(np.abs(h), 1e-300))
             next_rate = rate / 2
             f = np.where(f <= next_rate / 2, f, next_rate - f)
         out = np.empty((f.size, len(self.bands)))
         for j, (sos, k) in enumerate(zip(self.band_sos, self.stage_of_band, strict=True)):
             fk, g = at_stage[k]
-            _, h = signal.sosfreqz(sos, worN=fk, fs=self.stage_rate_hz(k))
+            h = sos_response(sos, fk, self.stage_rate_hz(k))
             out[:, j] = g + 20.0 * np.log10(np.maximum(np.abs(h), 1e-300))
         return out
 
