@@ -38,6 +38,14 @@ import numpy as np
 from piezo import validate
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity
+from piezo.diagnostics._stream import (
+    EMPTY_F,
+    ExtremeSide,
+    IntervalLevels,
+    IntervalStats,
+    MaskRuns,
+    RunTracker,
+)
 from piezo.diagnostics.spectral import (
     HumLine,
     HumResult,
@@ -45,14 +53,6 @@ from piezo.diagnostics.spectral import (
     estimate_rolloff,
     measure_hum,
     psd_floor,
-)
-from piezo.diagnostics.stream import (
-    EMPTY_F,
-    ExtremeSide,
-    IntervalLevels,
-    IntervalStats,
-    MaskRuns,
-    RunTracker,
 )
 from piezo.diagnostics.thresholds import (
     Severity,
