@@ -57,6 +57,7 @@ __all__ = [
     "Segmenter",
     "effective_averages",
     "equivalent_noise_bandwidth_bins",
+    "main_lobe_half_width_bins",
     "median_bias",
     "overlap_correlation",
     "segment_frames_for",
@@ -119,6 +120,26 @@ def window_coefficients(name: str, frames: int) -> np.ndarray:
     coefficients = {"hann": _HANN, "blackmanharris": _BLACKMAN_HARRIS}.get(name, _HFT95)
     z = 2.0 * np.pi * np.arange(frames) / frames
     return np.asarray(sum(c * np.cos(k * z) for k, c in enumerate(coefficients)))
+
+
+#: Half the main-lobe width (null to null) of each window, bins. A cosine-sum window of
+#: ``K`` terms (``w = Σ_{k<K} a_k cos(2πkn/N)``) has the first zeros of its transform
+#: ``K`` bins from the centre (Harris 1978, section V; Heinzel et al. 2002, appendix C):
+#: rectangular 1, Hann 2, 4-term Blackman-Harris 4, HFT95 (5 terms) 5.
+_MAIN_LOBE_HALF_WIDTH_BINS = {"rectangular": 1, "hann": 2, "blackmanharris": 4, "flattop": 5}
+
+
+def main_lobe_half_width_bins(name: str) -> int:
+    """Half the main-lobe width (first zero to first zero) of window ``name``, in bins.
+
+    Examples
+    --------
+    >>> main_lobe_half_width_bins("hann"), main_lobe_half_width_bins("flattop")
+    (2, 5)
+    """
+    if name not in _MAIN_LOBE_HALF_WIDTH_BINS:
+        raise InputError(f"window must be one of {', '.join(WINDOWS)}; got {name!r}")
+    return _MAIN_LOBE_HALF_WIDTH_BINS[name]
 
 
 def equivalent_noise_bandwidth_bins(window: np.ndarray) -> float:
