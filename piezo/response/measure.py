@@ -892,8 +892,8 @@ def response_h1(
     Examples
     --------
     Noise added at the output leaves H1 unbiased (here 2) and lowers the coherence to
-    ``S_xx/(S_xx + S_nn)``, 0.5 at equal powers (Bendat & Piersol, *Random Data*,
-    chapter 6; from 92 segments the estimate reads slightly high, 0.51):
+    ``S_xx/(S_xx + S_nn)``, 0.5 at equal powers (Bendat & Piersol, *Random Data*, 4th ed.,
+    chapter 6, from memory; from 92 segments the estimate reads slightly high, 0.51):
 
     >>> rng = np.random.default_rng(4)
     >>> x, noise = rng.standard_normal(48000), rng.standard_normal(48000)
