@@ -161,7 +161,7 @@ def spectrum(
     if json_out:
         emit_json(doc)
     else:
-        _print(doc, result, source.unit, ref, source.chain.level_unit)
+        _print(doc, result, source.unit, ref, source.level_unit)
     note = stationarity.result().note() if stationarity is not None else None
     if note is not None:
         err_console.print(f"note: {note}")
@@ -226,3 +226,5 @@ def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit
         table.add_row(str(entry["channel"]), f"{rms:.4g}", total, text)
     console.print(table)
     console.print(f"  PSD levels in {doc['level_unit']}; totals by Parseval over all bins.")
+    for note in doc["response_curve_notes"]:
+        console.print(f"  {note}")

@@ -78,7 +78,7 @@ class BenchAccelerometer:
         """
         f = np.asarray(frequency_hz, dtype=float)
         r = f / self.resonance_hz
-        h = 1.0 / (1.0 - r**2 + 1j * r / self.q)
+        h: np.ndarray = 1.0 / (1.0 - r**2 + 1j * r / self.q)
         if self.highpass_hz > 0:
             h = h * (1j * f / (self.highpass_hz + 1j * f))
         return h
