@@ -33,6 +33,7 @@ from typing import Any
 import numpy as np
 
 from piezo.chain.curve import CurveCorrection, ResponseCurve, parse_response_curve
+from piezo.chain.integrate import Integrator, integrated_quantity
 from piezo.chain.quantity import (
     QUANTITIES,
     Quantity,
@@ -103,6 +104,9 @@ class Chain:
         scale stay here). Compared by ``response_curve_file``.
     response_curve_file
         Where the curve was read from.
+    integrations
+        0, 1 or 2: the values are integrated that many times after calibration
+        (acceleration to velocity to displacement, :mod:`piezo.chain.integrate`).
 
     Examples
     --------
@@ -120,6 +124,7 @@ class Chain:
     quantity: str = "pressure"
     response_curve: ResponseCurve | None = field(default=None, compare=False, repr=False)
     response_curve_file: str | None = None
+    integrations: int = 0
 
     def __post_init__(self) -> None:
         for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_unit"):
@@ -134,6 +139,13 @@ class Chain:
             raise InputError(
                 "a channel that measures voltage takes no sensitivity (its values are volts)"
             )
+        if self.integrations:
+            if not self.calibrated:
+                raise InputError(
+                    "integrate: a channel without a sensitivity is in volts; give the "
+                    "acceleration or velocity sensitivity"
+                )
+            integrated_quantity(self.quantity, self.integrations)
 
     @property
     def calibrated(self) -> bool:
@@ -142,8 +154,11 @@ class Chain:
 
     @property
     def measured(self) -> Quantity:
-        """The quantity of the values: ``quantity`` when calibrated, else voltage."""
-        return QUANTITIES[self.quantity] if self.calibrated else QUANTITIES["voltage"]
+        """The quantity of the values: ``quantity`` (integrated ``integrations`` times) when
+        calibrated, else voltage."""
+        if not self.calibrated:
+            return QUANTITIES["voltage"]
+        return QUANTITIES[integrated_quantity(self.quantity, self.integrations)]
 
     @property
     def sensitivity_v_per_pa(self) -> float | None:
@@ -1064,10 +1079,40 @@ class CalibratedSource:
             return self
 
         def bare(chain: Chain) -> Chain:
-            return replace(chain, sensitivity_v_per_unit=None, quantity="voltage")
+            return replace(chain, sensitivity_v_per_unit=None, quantity="voltage", integrations=0)
 
         own = {k: (bare(c), p) for k, (c, p) in self.channel_chains.items()}
         return replace(self, file_chain=bare(self.file_chain), channel_chains=own)
+
+    def integrated(self, times: int) -> CalibratedSource:
+        """The same source with its analysed channels integrated ``times`` times.
+
+        Acceleration becomes velocity (1) or displacement (2), velocity displacement
+        (1), each step through :class:`~piezo.chain.integrate.Integrator` in
+        :meth:`blocks`; other quantities are refused.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("ch0",), True)
+        >>> acc = Chain(sensitivity_v_per_unit=1e-3, quantity="acceleration")
+        >>> src = CalibratedSource.of(rec, acc).integrated(2)
+        >>> src.unit, src.level_unit
+        ('m', 'dB re 1 pm')
+        """
+        if not times:
+            return self
+        own = dict(self.channel_chains)
+        for index in self.channel_indices:
+            try:
+                chain = replace(self.chain_of(index), integrations=times)
+            except InputError as exc:
+                raise InputError(
+                    f"channel {index}: {exc.message}", source=str(self.recording.path)
+                ) from None
+            own[index] = (chain, self.provenance_of(index))
+        return replace(self, channel_chains=own)
 
     def with_channels(self, channels: Sequence[int] | None) -> CalibratedSource:
         """The same source restricted to ``channels`` (0-based; all when None).
@@ -1182,9 +1227,28 @@ class CalibratedSource:
                 block_frames, overlap_frames=overlap_frames, channels=self.channel_indices
             )
         )
+        integrators = [
+            Integrator(self.sample_rate_hz, 1, c.integrations) if c.integrations else None
+            for c in self.chains
+        ]
         if corrections is None:
-            yield from raw
+            stream: Iterator[np.ndarray] = raw
+        else:
+            stream = self._corrected(raw, corrections)
+        if all(i is None for i in integrators):
+            yield from stream
             return
+        for block in stream:
+            out = block.copy()
+            for j, integ in enumerate(integrators):
+                if integ is not None:
+                    out[:, [j]] = integ.process(block[:, [j]])
+            yield out
+
+    @staticmethod
+    def _corrected(
+        raw: Iterator[np.ndarray], corrections: list[CurveCorrection]
+    ) -> Iterator[np.ndarray]:
         for block in raw:
             out = np.hstack([c.process(block[:, [j]]) for j, c in enumerate(corrections)])
             if out.shape[0]:

@@ -39,6 +39,7 @@ def open_source(
     profile: str | Path | None = None,
     quantity: str | None = None,
     response_curve: str | Path | None = None,
+    integrate: int = 0,
     channels: Sequence[int] | None = None,
     rate: ChainValue = None,
     columns: Sequence[str | int] | str | None = None,
@@ -73,6 +74,10 @@ def open_source(
     response_curve
         A response curve (CSV, :mod:`piezo.chain.curve`) for every channel, over the
         profiles' ``response_curve``; undone in the calibrated blocks.
+    integrate
+        Integrate the analysed channels once (acceleration to velocity, velocity to
+        displacement) or twice (acceleration to displacement), streamed, with the
+        DC-blocking high-pass of :mod:`piezo.chain.integrate` (1 Hz).
     channels
         0-based channels to analyse, in order; all when None.
     rate
@@ -148,6 +153,6 @@ def open_source(
                 own[number] = resolve_chain(path, settings, profiles=profiles, channel=number)
         return CalibratedSource.of(
             recording, chain, channels or None, provenance, channel_chains=own
-        )
+        ).integrated(integrate)
     except InputError as exc:
         raise exc.with_source(str(path)) from None

@@ -59,6 +59,7 @@ class SourceOptions:
     profile: Path | None = None
     quantity: str | None = None
     response_curve: Path | None = None
+    integrate: int = 0
     channel: list[int] | None = None
     rate: str | None = None
     columns: str | None = None
@@ -133,6 +134,16 @@ _OPTIONS: dict[str, tuple[Any, Any]] = {
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
+    "integrate": (
+        int,
+        typer.Option(
+            "--integrate",
+            metavar="1|2",
+            help="Integrate acceleration to velocity (1) or displacement (2), velocity to "
+            "displacement (1); each step with a 1 Hz high-pass so drift stays bounded.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
     "profile": (
         Path | None,
         typer.Option(
@@ -179,7 +190,7 @@ _OPTIONS: dict[str, tuple[Any, Any]] = {
     ),
 }
 
-_DEFAULTS = {"no_sidecar": False}
+_DEFAULTS: dict[str, Any] = {"no_sidecar": False, "integrate": 0}
 
 
 def source_options(func: Callable[..., Any]) -> Callable[..., Any]:
@@ -226,6 +237,7 @@ _OPTION_NAMES = {
     "reference": "--reference",
     "gain": "--gain",
     "quantity": "--quantity",
+    "integrate": "--integrate",
     "rate_hz": "--rate",
     "rate": "--rate",
     "columns": "--columns",
@@ -273,6 +285,7 @@ def open_source(
             profile=src.profile,
             quantity=src.quantity,
             response_curve=src.response_curve,
+            integrate=src.integrate,
             channels=src.channel or None,
             rate=src.rate,
             columns=src.columns,
