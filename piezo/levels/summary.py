@@ -15,7 +15,7 @@ from piezo.chain.measurement import CalibratedSource
 from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
 from piezo.results import to_jsonable
 
-__all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of"]
+__all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of", "reference_key"]
 
 #: Shown with every result (terminal and JSON).
 CAUTION = (
@@ -93,7 +93,7 @@ class Levels:
             "file": self.file,
             "unit": self.unit,
             "level_unit": self.level_unit,
-            "reference": result.reference,
+            reference_key(self.unit): result.reference,
             "sample_rate_hz": result.sample_rate_hz,
             "duration_s": result.duration_s,
             "percentile_interval_s": result.percentile_interval_s,
@@ -123,6 +123,19 @@ class Levels:
                 ],
             }
         return to_jsonable(doc)
+
+
+def reference_key(unit: str) -> str:
+    """The JSON key of the levels' reference, named by its unit (docs/glossary.md).
+
+    The reference of the levels is a pressure with a sensitivity and 1 V without one.
+
+    Examples
+    --------
+    >>> reference_key("Pa"), reference_key("V")
+    ('reference_pa', 'reference_v')
+    """
+    return f"reference_{unit.lower()}"
 
 
 def levels_of(

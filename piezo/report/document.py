@@ -17,6 +17,7 @@ from piezo import __version__
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity, ratio_to_db
 from piezo.levels.meter import LevelResult
+from piezo.levels.summary import reference_key
 from piezo.levels.weighting import ConformanceReport
 from piezo.spectral.bands import BandResult
 from piezo.spectral.welch import PSDResult, SpectrogramResult
@@ -159,7 +160,6 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
     return {
         "unit": chain.unit,
         "level_unit": chain.level_unit,
-        "reference": chain.reference,
         "calibrated": chain.calibrated,
         "full_scale_v": chain.full_scale_v,
         "gain": chain.gain,
@@ -211,7 +211,7 @@ def _columns(matrix: np.ndarray, digits: int = 2) -> list[list[float | None]]:
     return [_series(m[:, c], digits) for c in range(m.shape[1])]
 
 
-def levels_section(levels: LevelResult, level_unit: str) -> dict[str, Any]:
+def levels_section(levels: LevelResult, level_unit: str, unit: str) -> dict[str, Any]:
     """The level set per channel and the level history (levels in dB re the reference)."""
     channels = []
     for ch in levels.channels:
@@ -236,7 +236,7 @@ def levels_section(levels: LevelResult, level_unit: str) -> dict[str, Any]:
             "LAS": _columns(h.LAS),
         }
     return {
-        "reference": levels.reference,
+        reference_key(unit): levels.reference,
         "level_unit": level_unit,
         "names": list(LEVEL_NAMES),
         "percentile_interval_s": levels.percentile_interval_s,
