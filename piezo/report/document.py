@@ -17,7 +17,7 @@ from piezo import __version__
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity, ratio_to_db
 from piezo.levels.meter import LevelResult
-from piezo.levels.summary import reference_key
+from piezo.levels.summary import LEVEL_KEYS, reference_key
 from piezo.levels.weighting import ConformanceReport
 from piezo.spectral.bands import BandResult
 from piezo.spectral.welch import PSDResult, SpectrogramResult
@@ -182,23 +182,8 @@ def finite(value: float | None, digits: int | None = None) -> float | None:
 
 
 #: Levels shown in the report's table, in this order (the order of ``piezo levels``).
-LEVEL_NAMES = (
-    "LZeq",
-    "LAeq",
-    "LCeq",
-    "LAFmax",
-    "LASmax",
-    "LAFmin",
-    "LASmin",
-    "LCpeak",
-    "LZpeak",
-    "LAE",
-    "LAF5",
-    "LAF10",
-    "LAF50",
-    "LAF90",
-    "LAF95",
-)
+#: The level rows, in the order of ``piezo levels`` (one list for terminal, JSON and HTML).
+LEVEL_NAMES = LEVEL_KEYS
 
 
 def _series(values: np.ndarray, digits: int = 2) -> list[float | None]:
