@@ -9,7 +9,13 @@ import typer
 from rich.table import Table
 
 from piezo.chain.units import parse_duration, parse_quantity
-from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.cli.options import (
+    JsonOption,
+    SourceOptions,
+    WeightAnyQuantityOption,
+    open_source,
+    source_options,
+)
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
 from piezo.levels.summary import LEVEL_KEYS, levels_of
@@ -61,6 +67,7 @@ def levels(
             "LAS1 ... LAS99.",
         ),
     ] = None,
+    weight_any_quantity: WeightAnyQuantityOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -84,6 +91,7 @@ def levels(
             interval_s=interval_s,
             filter_settle_s=settle_s,
             percentiles=None if percentiles is None else _parse_percentiles(percentiles),
+            weight_any_quantity=weight_any_quantity,
             advance=advance,
         )
     doc = measured.to_dict()
@@ -134,6 +142,8 @@ def _print(doc: dict[str, Any]) -> None:
     for ch in doc["channels"]:
         for note in ch["notes"]:
             console.print(f"  ch {ch['channel']}: {note}")
+    for note in doc["response_curve_notes"]:
+        console.print(f"  {note}")
     history = doc.get("history")
     if history is not None:
         rows = len(history["interval_start_s"])

@@ -172,7 +172,7 @@ def spectrum(
     if json_out:
         emit_json(doc)
     else:
-        _print(doc, result, source.unit, ref, source.chain.level_unit)
+        _print(doc, result, source.unit, ref, source.level_unit)
     note = stationarity.result().note() if stationarity is not None else None
     if note is not None:
         err_console.print(f"note: {note}")
@@ -235,3 +235,5 @@ def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit
         "octave), apart by valleys deeper than the scatter; "
         f"the {PRINTED_PEAKS} strongest shown."
     )
+    for note in doc["response_curve_notes"]:
+        console.print(f"  {note}")

@@ -80,6 +80,13 @@ class SpectralPeak:
         PSD at the bin (unit²/Hz, or unit² with spectrum scaling).
     floor_density
         The local floor under it, same unit.
+
+    Examples
+    --------
+    Four times the floor's density is 6.02 dB above it:
+
+    >>> round(SpectralPeak(10, 117.1875, 4e-6, 1e-6).above_floor_db, 2)
+    6.02
     """
 
     bin: int
@@ -108,6 +115,18 @@ class PeakRule:
         (:func:`ripple_range_db` may ask more).
     degrees_of_freedom
         ``ν`` of each bin's estimate used for the scatter.
+
+    Examples
+    --------
+    For one periodogram (ν = 2) a noise bin over its mean is exponential, so the
+    quantile it exceeds with probability ``FALSE_ALARM/bins`` is ``ln(bins/FALSE_ALARM)``
+    and the floor margin is ``6 + 10·lg ln(1025/0.01)`` = 16.62 dB:
+
+    >>> rule = peak_rule(1025, main_lobe_half_width_bins=2, degrees_of_freedom=2.0)
+    >>> rule.separation_bins, rule.margin_db, round(rule.floor_margin_db, 2)
+    (4, 6.0, 16.62)
+    >>> round(MARGIN_DB + 10 * math.log10(math.log(1025 / FALSE_ALARM)), 2)
+    16.62
     """
 
     separation_bins: int
