@@ -130,8 +130,9 @@ class ChannelLevels:
     {'LZeq': 93.98, 'LAeq': 93.98, 'LCeq': 93.98, 'LZpeak': 96.99}
     >>> round(ch.crest_factor_db, 2), ch.LASmin  # 1 s is too short for LASmin
     (3.01, None)
-    >>> ch.notes
-    ('LASmin: recording shorter than the 5.1 s start-up time excluded from it',)
+    >>> ch.notes  # doctest: +NORMALIZE_WHITESPACE
+    ('LASmin, LCSmin, LZSmin, LAS percentiles: recording not longer than the 5.1 s
+      start-up time excluded from them',)
     """
 
     channel: int
