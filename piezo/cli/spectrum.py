@@ -158,7 +158,16 @@ def spectrum(
     if csv is not None:
         write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref))
     if plot is not None and spectro is not None:
-        write_plot(plot, result, spectro, source.channel_indices, file.name, level_unit, ref)
+        write_plot(
+            plot,
+            result,
+            spectro,
+            source.channel_indices,
+            file.name,
+            level_unit,
+            ref,
+            start_time_s=source.recording.start_time_s,
+        )
     doc = measured.to_dict()
     if json_out:
         emit_json(doc)

@@ -100,6 +100,10 @@ class Recording:
         CSV opened with ``allow_time_gaps``: how many steps of the time column are gaps
         (at least :data:`GAP_STEP_RATIO` nominal steps) and the longest gap's missing
         time in seconds. None otherwise.
+    start_time_s
+        Time of the first sample, s: the first value of a CSV's time column (a scope's
+        pre-trigger makes it negative, e.g. -100 µs), else 0. Sample ``n`` lies at
+        ``start_time_s + n / sample_rate_hz``.
 
     Examples
     --------
@@ -123,6 +127,7 @@ class Recording:
     csv_layout: CsvLayout | None = field(default=None, repr=False)
     time_gaps: int | None = None
     largest_time_gap_s: float | None = None
+    start_time_s: float = 0.0
 
     @property
     def duration_s(self) -> float:
@@ -553,7 +558,9 @@ def _open_csv(
         n_columns=n_columns,
         size_bytes=size_bytes,
     )
-    frames, rate_from_time, gaps, largest_gap = _validate_csv(p, layout, allow_gaps=allow_gaps)
+    frames, rate_from_time, gaps, largest_gap, start_s = _validate_csv(
+        p, layout, allow_gaps=allow_gaps
+    )
     if frames == 0:
         raise RecordingError("recording has no samples (0 rows)", source=str(p))
     if time_col is None and rate_hz is None:
@@ -589,6 +596,7 @@ def _open_csv(
         csv_layout=layout,
         time_gaps=gaps,
         largest_time_gap_s=largest_gap,
+        start_time_s=start_s,
     )
 
 
@@ -663,11 +671,12 @@ def _first_bad_line(lines: list[str], layout: CsvLayout) -> int:
 
 def _validate_csv(
     p: Path, layout: CsvLayout, *, allow_gaps: bool = False
-) -> tuple[int, float | None, int | None, float | None]:
+) -> tuple[int, float | None, int | None, float | None, float]:
     """One streaming pass: count rows, reject NaN/inf, derive the rate from time.
 
-    Returns ``(frames, rate_hz, gaps, largest_gap_s)``; the last two are None unless
-    ``allow_gaps``. The nominal step is the median step of the first chunk of rows.
+    Returns ``(frames, rate_hz, gaps, largest_gap_s, start_time_s)``; gaps and the
+    largest gap are None unless ``allow_gaps``; the start time is the time column's first
+    value (0 without one). The nominal step is the median step of the first chunk of rows.
     """
     frames = 0
     t_first = t_prev = None
@@ -716,7 +725,7 @@ def _validate_csv(
             t_prev = float(t[-1])
         frames += table.shape[0]
     if layout.time_column is None:
-        return frames, None, None, None
+        return frames, None, None, None, 0.0
     if frames < 2:
         raise InputError(
             "a time column with a single row cannot give a sample rate; give one (rate_hz)",
@@ -740,8 +749,8 @@ def _validate_csv(
             source=str(p),
         )
     if allow_gaps:
-        return frames, 1.0 / spacing, gaps, (largest_gap if gaps else 0.0)
-    return frames, 1.0 / spacing, None, None
+        return frames, 1.0 / spacing, gaps, (largest_gap if gaps else 0.0), t_first
+    return frames, 1.0 / spacing, None, None, t_first
 
 
 def _csv_blocks(p: Path, layout: CsvLayout, step: int, frames: int) -> Iterator[np.ndarray]:

@@ -26,8 +26,10 @@ CAUTION = (
 
 #: Key order of each channel in the JSON document (the names are a public contract).
 LEVEL_KEYS = (
-    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin", "LCpeak", "LZpeak",
-    "LAE", *(f"LAF{p}" for p in PERCENTILES),
+    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin",
+    "LCFmax", "LCSmax", "LCFmin", "LCSmin", "LZFmax", "LZSmax", "LZFmin", "LZSmin",
+    "LCpeak", "LZpeak", "LAE", *(f"LAF{p}" for p in PERCENTILES),
+    *(f"LAS{p}" for p in PERCENTILES),
 )  # fmt: skip
 
 
@@ -152,6 +154,8 @@ class Levels:
                         "LZeq": h.LZeq[:, i],
                         "LAeq": h.LAeq[:, i] if weighted[i] else None,
                         "LCeq": h.LCeq[:, i] if weighted[i] else None,
+                        "LAFmax": h.LAFmax[:, i] if weighted[i] else None,
+                        "LCpeak": h.LCpeak[:, i] if weighted[i] else None,
                         "LAF": h.LAF[:, i] if weighted[i] else None,
                         "LAS": h.LAS[:, i] if weighted[i] else None,
                     }
@@ -211,13 +215,14 @@ def levels_of(
     source
         The calibrated recording (:func:`piezo.open`).
     interval_s
-        Also give a level history: Leq per interval, LAF/LAS every 0.1 s.
+        Also give a level history: Leq, LAFmax and LCpeak per interval, LAF/LAS every
+        0.1 s.
     filter_settle_s
         Filter settling time excluded from the maxima, minima and percentiles; None
         keeps the meter's default.
     percentiles
-        Further LAF percentiles (each strictly between 0 and 100), e.g. ``[1, 99]``
-        for LAF1 and LAF99.
+        Further percentiles (each strictly between 0 and 100), e.g. ``[1, 99]`` for
+        LAF1, LAF99, LAS1 and LAS99.
     weight_any_quantity
         Give A- and C-weighted levels for every channel, also for quantities other than
         sound pressure (IEC 61672-1 defines them for sound pressure only; by default such

@@ -76,6 +76,10 @@ def recording_section(source: CalibratedSource) -> dict[str, Any]:
         "sample_rate_hz": rec.sample_rate_hz,
         "frames": rec.frames,
         "duration_s": rec.duration_s,
+        # Time of the first sample (a CSV time column's first value, e.g. a scope's
+        # pre-trigger): the document's times count from the first sample, the figures'
+        # time axes start at this time.
+        "start_time_s": rec.start_time_s,
         "channels_in_file": rec.channels,
         "channels": list(source.channel_indices),
         "channel_names": [rec.channel_names[c] for c in source.channel_indices],

@@ -307,3 +307,29 @@ def test_spectrum_json_peaks(cli, peak_wav):
     levels = [p["level_db"] for p in peaks]
     assert levels == sorted(levels, reverse=True)
     assert all(p["above_floor_db"] >= doc["peak_margin_db"] for p in peaks)
+
+
+def test_spectrum_plot_keeps_a_csv_time_offset(cli, tmp_path):
+    """Issue 12 §3.16: the spectrogram of ``spectrum --plot`` runs on the recording's
+    time, which starts at the CSV time column's first value (a -100 µs pre-trigger)."""
+    from numpy.testing import assert_allclose
+
+    from piezo.plots import style
+
+    fs, start = 50000.0, -1e-4
+    x = 0.1 * np.random.default_rng(2).standard_normal(25000)
+    path = tmp_path / "scope.csv"
+    rows = [f"{start + i / fs:.7f},{v:.6f}" for i, v in enumerate(x)]
+    path.write_text("Time (s),Disc (V)\n" + "\n".join(rows) + "\n", encoding="utf-8")
+    wav = tmp_path / "same.wav"
+    sf.write(str(wav), x, int(fs), subtype="FLOAT")  # the same samples, from time 0
+    edges = []
+    for src, out in ((path, "csv.png"), (wav, "wav.png")):
+        with style.capture_figures() as figs:
+            r = cli("spectrum", src, "--plot", tmp_path / out)
+        assert r.code == 0, r.err
+        (fig,) = figs
+        mesh = fig.axes[1].collections[0]  # the spectrogram's cells
+        edges.append(mesh.get_coordinates()[0, :, 0])
+    # The same cells, shifted by the offset: rounding of the time column only.
+    assert_allclose(edges[0], edges[1] + start, rtol=0, atol=1e-9)
