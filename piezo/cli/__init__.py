@@ -83,7 +83,7 @@ COMMANDS: tuple[Command, ...] = (
     Command(
         "calibrate",
         "calibrate",
-        "Sensitivity (mV/Pa, dBV/Pa) from a 94 or 114 dB calibrator capture.",
+        "Sensitivity (mV/Pa, dB re 1 V/Pa) from a 94 or 114 dB calibrator capture.",
     ),
     Command(
         "levels",

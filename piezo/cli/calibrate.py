@@ -20,7 +20,8 @@ from piezo.tone.summary import calibration_of
 def register(app: typer.Typer) -> None:
     """Add the ``calibrate`` command to ``app``."""
     app.command(
-        "calibrate", help="Sensitivity (mV/Pa, dBV/Pa) from a 94 or 114 dB calibrator capture."
+        "calibrate",
+        help="Sensitivity (mV/Pa, dB re 1 V/Pa) from a 94 or 114 dB calibrator capture.",
     )(calibrate)
 
 
@@ -122,7 +123,7 @@ def calibrate(
     console.print(f"  tone          {result.tone_hz:.2f} Hz, {result.tone_rms_v * 1e3:.5g} mV RMS")
     console.print(
         f"  sensitivity   [bold]{result.sensitivity_mv_per_pa:.4f} mV/Pa[/bold]  "
-        f"({result.sensitivity_dbv_per_pa:.2f} dBV/Pa)"
+        f"({result.sensitivity_dbv_per_pa:.2f} dB re 1 V/Pa)"
     )
     budget = calibration.budget
     console.print(

@@ -187,7 +187,7 @@ def _print_design(doc: dict[str, Any]) -> None:
         (
             "sensitivity",
             f"{doc['sensitivity_mv_per_pa']:.4g} mV/Pa "
-            f"({doc['sensitivity_dbv_per_pa']:.2f} dBV/Pa)",
+            f"({doc['sensitivity_dbv_per_pa']:.2f} dB re 1 V/Pa)",
         ),
         ("charge gain", f"{doc['charge_gain_mv_per_pc']:.4g} mV/pC"),
     ]

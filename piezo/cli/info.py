@@ -14,6 +14,7 @@ from piezo.chain.measurement import Chain, Provenance
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.levels.stats import SignalStats
+from piezo.results import reference_key
 
 
 def register(app: typer.Typer) -> None:
@@ -112,8 +113,8 @@ def chain_document(chain: Chain, provenance: Provenance | None) -> dict[str, Any
         "sensitivity_v_per_unit": chain.sensitivity_v_per_unit,
         "sensitivity": chain.sensitivity_text,
         "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
-        "reference": chain.reference,
         "reference_pa": chain.reference_pa,
+        **({} if chain.unit == "Pa" else {reference_key(chain.unit): chain.reference}),
         "level_unit": chain.level_unit,
         "response_curve": chain.response_curve_file,
         "provenance": provenance.as_dict() if provenance else None,

@@ -17,7 +17,7 @@ from piezo.diagnostics.checker import CaptureDiagnostics, Severity, checker_for_
 from piezo.diagnostics.thresholds import Thresholds
 from piezo.results import to_jsonable
 
-__all__ = ["Check", "check_of"]
+__all__ = ["Check", "check_of", "diagnostics_document"]
 
 
 @dataclass(frozen=True)
@@ -71,8 +71,24 @@ class Check:
                 "provenance": provenance.as_dict() if provenance else None,
             },
         }
-        doc.update(self.diagnostics.as_dict())
+        doc.update(diagnostics_document(self.diagnostics))
         return to_jsonable(doc)
+
+
+def diagnostics_document(diagnostics: CaptureDiagnostics) -> dict[str, Any]:
+    """The diagnostics as ``check --json`` and the report name them (docs/glossary.md).
+
+    The checker's full scale is in the capture's unit; it is given as ``full_scale_pa``
+    (``None`` without a sensitivity, when the unit is volts). The level reference is the
+    chain's (``chain.reference_pa``, or 1 V as ``level_unit`` says), so it is not repeated.
+    """
+    doc: dict[str, Any] = {}
+    for key, value in diagnostics.as_dict().items():
+        if key == "full_scale":
+            doc["full_scale_pa"] = value if diagnostics.unit == "Pa" else None
+        elif key != "reference":
+            doc[key] = value
+    return doc
 
 
 def check_of(

@@ -13,9 +13,9 @@ from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
-from piezo.results import to_jsonable
+from piezo.results import reference_key, to_jsonable
 
-__all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of"]
+__all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of", "reference_key"]
 
 #: Shown with every result (terminal and JSON).
 CAUTION = (
@@ -104,8 +104,8 @@ class Levels:
                     quantity=self.quantities[i],
                     unit=self.units[i],
                     level_unit=self.level_units[i],
-                    reference=self.references[i],
                 )
+                entry[reference_key(self.units[i])] = self.references[i]
             entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
             entry.update(ch.percentile_levels)
             notes = list(ch.notes)
@@ -126,9 +126,11 @@ class Levels:
             "file": self.file,
             "unit": self.unit,
             "level_unit": self.level_unit,
-            "reference": (refs.pop() if len(refs) == 1 else None)
-            if self.references
-            else result.reference,
+            **(
+                {reference_key(self.unit): refs.pop() if len(refs) == 1 else result.reference}
+                if len(refs) <= 1
+                else {}
+            ),
             "sample_rate_hz": result.sample_rate_hz,
             "duration_s": result.duration_s,
             "percentile_interval_s": result.percentile_interval_s,

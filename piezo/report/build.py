@@ -10,6 +10,7 @@ import json
 from pathlib import Path
 from typing import Any
 
+from piezo.diagnostics.summary import diagnostics_document
 from piezo.io.atomic import atomic_output
 from piezo.plots import figures as plots
 from piezo.report.document import (
@@ -39,7 +40,7 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
     ref = source.reference
     unit = source.unit
     channels = list(source.channel_indices)
-    diagnostics = run.diagnostics.as_dict()
+    diagnostics = diagnostics_document(run.diagnostics)
     doc: dict[str, Any] = {
         "report": {
             "schema": REPORT_SCHEMA,
@@ -53,7 +54,9 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
         "chain": chain_section(source),
         "settings": run.settings.as_dict(),
         "diagnostics": diagnostics,
-        "levels": (levels_section(run.levels, source.chain.level_unit) if run.levels else None),
+        "levels": (
+            levels_section(run.levels, source.chain.level_unit, unit) if run.levels else None
+        ),
         "spectrum": psd_section(run.psd, ref, unit) if run.psd else None,
         "bands": bands_section(run.bands, ref) if run.bands else None,
         "spectrogram": spectrogram_section(run.spectrogram, ref) if run.spectrogram else None,

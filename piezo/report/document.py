@@ -17,7 +17,9 @@ from piezo import __version__
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity, ratio_to_db
 from piezo.levels.meter import LevelResult
+from piezo.levels.summary import LEVEL_KEYS
 from piezo.levels.weighting import ConformanceReport
+from piezo.results import reference_key
 from piezo.spectral.bands import BandResult
 from piezo.spectral.welch import PSDResult, SpectrogramResult
 from piezo.tone.analysis import ToneResult
@@ -163,7 +165,6 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
     return {
         "unit": chain.unit,
         "level_unit": chain.level_unit,
-        "reference": chain.reference,
         "calibrated": chain.calibrated,
         "full_scale_v": chain.full_scale_v,
         "gain": chain.gain,
@@ -186,23 +187,8 @@ def finite(value: float | None, digits: int | None = None) -> float | None:
 
 
 #: Levels shown in the report's table, in this order (the order of ``piezo levels``).
-LEVEL_NAMES = (
-    "LZeq",
-    "LAeq",
-    "LCeq",
-    "LAFmax",
-    "LASmax",
-    "LAFmin",
-    "LASmin",
-    "LCpeak",
-    "LZpeak",
-    "LAE",
-    "LAF5",
-    "LAF10",
-    "LAF50",
-    "LAF90",
-    "LAF95",
-)
+#: The level rows, in the order of ``piezo levels`` (one list for terminal, JSON and HTML).
+LEVEL_NAMES = LEVEL_KEYS
 
 
 def _series(values: np.ndarray, digits: int = 2) -> list[float | None]:
@@ -215,7 +201,7 @@ def _columns(matrix: np.ndarray, digits: int = 2) -> list[list[float | None]]:
     return [_series(m[:, c], digits) for c in range(m.shape[1])]
 
 
-def levels_section(levels: LevelResult, level_unit: str) -> dict[str, Any]:
+def levels_section(levels: LevelResult, level_unit: str, unit: str) -> dict[str, Any]:
     """The level set per channel and the level history (levels in dB re the reference)."""
     channels = []
     for ch in levels.channels:
@@ -240,7 +226,7 @@ def levels_section(levels: LevelResult, level_unit: str) -> dict[str, Any]:
             "LAS": _columns(h.LAS),
         }
     return {
-        "reference": levels.reference,
+        reference_key(unit): levels.reference,
         "level_unit": level_unit,
         "names": list(LEVEL_NAMES),
         "percentile_interval_s": levels.percentile_interval_s,

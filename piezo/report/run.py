@@ -29,6 +29,7 @@ from piezo.frontend.model import (
 )
 from piezo.levels.meter import LevelMeter, LevelResult
 from piezo.levels.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
+from piezo.spectral.averaging import DEFAULT_SEGMENT_FRAMES
 from piezo.spectral.bands import BandAnalyzer, BandResult
 from piezo.spectral.selftest import BandConformance, band_conformance
 from piezo.spectral.welch import PSDResult, Spectrogram, SpectrogramResult, WelchPSD
@@ -49,8 +50,9 @@ class ReportSettings:
         Interval of the level history (LAeq per interval); None: chosen from the length
         of the recording (about 100 intervals, a round number of seconds, at least 0.1 s).
     psd_segment_frames
-        Segment length of the Welch PSD; None: 8192 samples, fewer (a power of two) when
-        the recording is shorter than four segments.
+        Segment length of the Welch PSD; None: 4096 samples, as ``piezo spectrum``
+        (:data:`~piezo.spectral.averaging.DEFAULT_SEGMENT_FRAMES`), fewer (a power of two)
+        when the recording is shorter than four segments.
     band_fraction
         Bandwidth designator of the band levels (3: one-third octaves).
     spectrogram_segment_frames, spectrogram_columns
@@ -169,7 +171,9 @@ def analyse(
     frames = source.frames
     channels = len(source.channel_indices)
     notes: list[str] = []
-    psd_segment = settings.psd_segment_frames or min(8192, _power_of_two_at_most(frames // 4))
+    psd_segment = settings.psd_segment_frames or min(
+        DEFAULT_SEGMENT_FRAMES, _power_of_two_at_most(frames // 4)
+    )
     sg_segment = settings.spectrogram_segment_frames or min(
         _power_of_two_at_most(int(fs / 46.875)), _power_of_two_at_most(frames // 8)
     )

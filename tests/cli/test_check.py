@@ -181,7 +181,7 @@ def test_demo_recordings(cli):
     assert ro["corner_hz"] == pytest.approx(1 / (2 * np.pi * 1e6 * 2.06e-9), rel=0.10)
     r = cli("check", RECORDINGS / "tap-test.csv", "--json")
     assert r.code == 0
-    assert r.json()["full_scale"] is None
+    assert r.json()["full_scale_pa"] is None
 
 
 def test_json_validates_against_the_shipped_schema(cli, clean, clipped):

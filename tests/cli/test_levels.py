@@ -39,7 +39,7 @@ def test_levels_json_contract(cli, tone_and_silence):
     res = cli("levels", tone_and_silence, "--sensitivity", "1 V/Pa", "--json")
     assert res.code == 0, res.err
     doc = res.json()
-    assert doc["unit"] == "Pa" and doc["reference"] == pytest.approx(20e-6)
+    assert doc["unit"] == "Pa" and doc["reference_pa"] == pytest.approx(20e-6)
     tone, silent = doc["channels"]
     assert CONTRACT_KEYS <= set(tone) and CONTRACT_KEYS <= set(silent)
     # 1 V full scale, 1 V/Pa: 0.5 Pa RMS = 20 lg(0.5 / 20e-6) = 87.96 dB (computed); the
@@ -56,7 +56,7 @@ def test_levels_uncalibrated_is_db_re_1_volt(cli, tone_and_silence):
     res = cli("levels", tone_and_silence, "--channel", "0", "--json")
     assert res.code == 0, res.err
     doc = res.json()
-    assert doc["unit"] == "V" and doc["reference"] == 1.0
+    assert doc["unit"] == "V" and doc["reference_v"] == 1.0
     assert [c["channel"] for c in doc["channels"]] == [0]
     assert abs(doc["channels"][0]["LZeq"] - 20 * math.log10(0.5)) <= 0.02
 
