@@ -30,8 +30,8 @@ def register(app: typer.Typer) -> None:
     """Add the ``levels`` command to ``app``."""
     app.command(
         "levels",
-        help="Sound levels per channel: LAeq, LCeq, LZeq, F and S maxima and minima "
-        "(A, C, Z), LCpeak, LZpeak, LAE, LAF5..LAF95, LAS5..LAS95 (IEC 61672-1).",
+        help="Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "
+        "LZpeak, LAE, LAF5..LAF95 (IEC 61672-1).",
     )(levels)
 
 
