@@ -65,6 +65,7 @@ __all__ = [
     "load_profile",
     "load_response_curve",
     "parse_chain_sensitivity",
+    "profile_for_sensor",
     "profile_paths",
     "profile_with_sensitivity",
     "resolve_chain",
@@ -610,6 +611,60 @@ def profile_with_sensitivity(
     return "\n".join(out).rstrip("\n") + "\n"
 
 
+def profile_for_sensor(
+    sensitivity: Sensitivity,
+    *,
+    calibration_date: str,
+    reference_frequency_hz: float,
+    response_curve: str | None = None,
+    name: str | None = None,
+    serial: str | None = None,
+) -> str:
+    """A new profile's text for a sensor measured by comparison: quantity, sensitivity at
+    ``reference_frequency_hz`` in its trade form, the chart it is relative to.
+
+    ``response_curve`` is written as given (a path relative to the profile, so the pair
+    can move together). The caller writes the result.
+
+    Examples
+    --------
+    >>> from piezo.chain.quantity import parse_sensitivity_of
+    >>> s = parse_sensitivity_of("9.62 mV/g")
+    >>> text = profile_for_sensor(s, calibration_date="2026-12-02", reference_frequency_hz=160,
+    ...                           response_curve="unit-chart.csv", serial="PA12-2291")
+    >>> print(text)
+    # measured by back-to-back comparison; sensitivity at 160 Hz, chart relative to it
+    [sensor]
+    serial = "PA12-2291"
+    quantity = "acceleration"
+    sensitivity = "0.980967 mV/(m/s²)"
+    calibration_date = 2026-12-02
+    response_curve = "unit-chart.csv"
+    <BLANKLINE>
+    >>> import tomllib
+    >>> parse_sensitivity_of(tomllib.loads(text)["sensor"]["sensitivity"]).value * 9.80665
+    0.00962000...
+    """
+    lines = [
+        f"# measured by back-to-back comparison; sensitivity at {reference_frequency_hz:g} Hz,"
+        " chart relative to it",
+        "[sensor]",
+    ]
+    if name is not None:
+        lines.append(f"name = {toml_value(name)}")
+    if serial is not None:
+        lines.append(f"serial = {toml_value(serial)}")
+    sens_text = format_sensitivity(sensitivity, digits=6).split(" (")[0]
+    lines += [
+        f"quantity = {toml_value(sensitivity.quantity.name)}",
+        f"sensitivity = {toml_value(sens_text)}",
+        f"calibration_date = {calibration_date}",
+    ]
+    if response_curve is not None:
+        lines.append(f"response_curve = {toml_value(response_curve)}")
+    return "\n".join(lines) + "\n"
+
+
 def _text(value: Any) -> str | None:
     return None if value is None else str(value)
 
@@ -1057,9 +1112,10 @@ class CalibratedSource:
     def volts_at_sensor(self) -> CalibratedSource:
         """The same recording and channels in volts at the sensor's output.
 
-        Full scale and gain are undone, a sensitivity is not applied: what a calibration,
-        a response measurement or a production check measures is the sensor's voltage.
-        An uncalibrated source is returned as it is.
+        Full scale and gain are undone, a sensitivity, a response curve and an
+        integration are not applied: what a calibration, a response measurement or a
+        production check measures is the sensor's voltage. An uncalibrated source is
+        returned as it is.
 
         Examples
         --------
@@ -1075,11 +1131,19 @@ class CalibratedSource:
         >>> volts.unit, round(volts.scale, 12)
         ('V', 0.2)
         """
-        if not any(c.calibrated for c in (self.file_chain, *self.chains)):
+        chains = (self.file_chain, *(c for c, _ in self.channel_chains.values()))
+        if not any(c.calibrated or c.response_curve is not None for c in chains):
             return self
 
         def bare(chain: Chain) -> Chain:
-            return replace(chain, sensitivity_v_per_unit=None, quantity="voltage", integrations=0)
+            return replace(
+                chain,
+                sensitivity_v_per_unit=None,
+                quantity="voltage",
+                integrations=0,
+                response_curve=None,
+                response_curve_file=None,
+            )
 
         own = {k: (bare(c), p) for k, (c, p) in self.channel_chains.items()}
         return replace(self, file_chain=bare(self.file_chain), channel_chains=own)
