@@ -341,20 +341,23 @@ def derived_spec_text(
             if severity != "fail":
                 lines.append(f"severity = {toml_value(severity)}")
             continue
-        for lower, upper, severity in _derived_limits(metric, d, warn_k):
+        for lower, upper, severity, decision in _derived_limits(metric, d, warn_k):
             lines.append(f"[[metrics.{metric.name}.limits]]")
             if lower is not None:
                 lines.append(f"lower = {toml_value(_rounded(lower, d.std))}")
             if upper is not None:
                 lines.append(f"upper = {toml_value(_rounded(upper, d.std))}")
             lines.append(f"severity = {toml_value(severity)}")
+            if decision != "simple":
+                lines.append(f"decision = {toml_value(decision)}")
     return "\n".join(lines) + "\n"
 
 
 def _derived_limits(
     metric: MetricSpec, d: DerivedMetric, warn_k: float | None
-) -> list[tuple[Any, Any, str]]:
-    """(lower, upper, severity) of the derived limits, keeping the base's severities.
+) -> list[tuple[Any, Any, str, str]]:
+    """(lower, upper, severity, decision) of the derived limits, keeping the base's
+    severities and decision rules.
 
     Each base limit keeps its severity and its sides; a "fail" limit moves to mean ± k·σ,
     a "warn" limit to mean ± warn_k·σ (± k·σ without ``warn_k``). A base with no
@@ -363,7 +366,7 @@ def _derived_limits(
     """
     fail = (d.lower, d.upper)
     warn = (d.warn_lower, d.warn_upper) if warn_k is not None else fail
-    out: list[tuple[Any, Any, str]] = []
+    out: list[tuple[Any, Any, str, str]] = []
     for lim in metric.limits or ():
         lo, hi = warn if lim.severity == "warn" else fail
         out.append(
@@ -371,12 +374,13 @@ def _derived_limits(
                 lo if lim.lower is not None else None,
                 hi if lim.upper is not None else None,
                 lim.severity,
+                lim.decision,
             )
         )
     if not out:
-        out.append((*fail, "fail"))
-    if warn_k is not None and not any(sev == "warn" for *_, sev in out):
-        out.append((d.warn_lower, d.warn_upper, "warn"))
+        out.append((*fail, "fail", "simple"))
+    if warn_k is not None and not any(sev == "warn" for _, _, sev, _ in out):
+        out.append((d.warn_lower, d.warn_upper, "warn", "simple"))
     return out
 
 
@@ -392,4 +396,6 @@ def _limit_lines(metric: MetricSpec) -> list[str]:
         if lim.upper is not None:
             out.append(f"upper = {toml_value(lim.upper)}")
         out.append(f"severity = {toml_value(lim.severity)}")
+        if lim.decision != "simple":
+            out.append(f"decision = {toml_value(lim.decision)}")
     return out

@@ -131,7 +131,11 @@ def _corner(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
             reason=f"corner {fit.highpass.corner_hz:.3g} Hz is outside the measured band "
             f"({low:.3g}-{float(r.frequency_hz[-1]):.3g} Hz): an extrapolation",
         )
-    return MetricValue(fit.highpass.corner_hz, detail=f"order {fit.highpass.order}")
+    return MetricValue(
+        fit.highpass.corner_hz,
+        detail=f"order {fit.highpass.order}",
+        uncertainty=_finite(fit.highpass.corner_std_hz),
+    )
 
 
 def _resonance(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
@@ -139,7 +143,12 @@ def _resonance(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
     if fit.resonance is None:
         return MetricValue(None, reason="no resonance peak inside the measured band")
     res = fit.resonance
-    return MetricValue(res.frequency_hz, detail=f"Q {res.q:.3g}, peak +{res.peak_db:.3g} dB")
+    return MetricValue(
+        res.frequency_hz,
+        detail=f"Q {res.q:.3g}, peak +{res.peak_db:.3g} dB",
+        # A poor fit's covariance understates the error: no uncertainty is claimed.
+        uncertainty=None if res.poor_fit else _finite(res.frequency_std_hz),
+    )
 
 
 def _sweep_thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
@@ -416,7 +425,11 @@ def _mode_value(
         mode = _main_mode(a, m)
         u = mode.u.get(attr)
         detail = f"u = {u * scale:.3g}" if u is not None else ""
-        return MetricValue(float(getattr(mode, attr)) * scale, detail=detail)
+        return MetricValue(
+            float(getattr(mode, attr)) * scale,
+            detail=detail,
+            uncertainty=None if u is None else _finite(u * scale),
+        )
 
     return extract
 
@@ -472,12 +485,34 @@ def _mode_count(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 
 def _mode_frequency(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
     mode = _strongest_tap_mode(a, m)
-    return MetricValue(mode.frequency_hz, detail=f"{mode.events} event(s)")
+    return MetricValue(
+        mode.frequency_hz,
+        detail=f"{mode.events} event(s)",
+        uncertainty=_mean_uncertainty(mode.frequency_std_hz, mode.events),
+    )
 
 
 def _mode_q(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
     mode = _strongest_tap_mode(a, m)
-    return MetricValue(mode.q, detail=f"at {mode.frequency_hz:.6g} Hz")
+    return MetricValue(
+        mode.q,
+        detail=f"at {mode.frequency_hz:.6g} Hz",
+        uncertainty=_mean_uncertainty(mode.q_std, mode.events),
+    )
+
+
+def _finite(u: float | None) -> float | None:
+    return float(u) if u is not None and math.isfinite(u) and u >= 0 else None
+
+
+def _mean_uncertainty(std: float | None, events: int) -> float | None:
+    """Type A standard uncertainty of a mean of ``events`` repeats: s / √n (GUM 4.2.3).
+
+    One event gives no spread, hence no uncertainty from repeats.
+    """
+    if std is None or events < 2:
+        return None
+    return _finite(std / math.sqrt(events))
 
 
 #: Metric kind -> extractor.

@@ -139,6 +139,7 @@ def error_row(display: str, spec: Spec, message: str, content: str = "") -> dict
         "serial": _serial(spec, display) or "",
         "verdict": verdict.verdict,
         "metrics": {m.name: None for m in spec.metrics},
+        "uncertainties": {m.name: None for m in spec.metrics},
         "failed_limits": [],
         "warnings": [],
         "not_evaluable": list(verdict.not_evaluable),
@@ -227,6 +228,10 @@ def evaluate_capture(
         "metrics": {
             name: (float(v.value) if v.evaluable else None)  # type: ignore[arg-type]
             for name, v in values.items()
+        },
+        # Standard uncertainty of each value, where the analysis gives one.
+        "uncertainties": {
+            name: (v.uncertainty if v.evaluable else None) for name, v in values.items()
         },
         "failed_limits": list(verdict.failed),
         "warnings": list(verdict.warnings),

@@ -26,6 +26,7 @@ from piezo.errors import SpecError, UnitError
 from piezo.io.text import parse_toml, read_text
 
 __all__ = [
+    "DECISION_RULES",
     "METRIC_KINDS",
     "SEVERITIES",
     "STIMULUS_KINDS",
@@ -39,6 +40,10 @@ __all__ = [
 ]
 
 SEVERITIES = ("fail", "warn")
+#: Decision rules a limit may ask for (JCGM 106:2012, clause 8): "simple" accepts inside
+#: the limits; "guarded" accepts only inside the limits narrowed by the expanded
+#: uncertainty U (k = 2) of the measured value.
+DECISION_RULES = ("simple", "guarded")
 
 #: Stimulus kind -> {parameter: (type, required, default)}. Types: "pos" positive float,
 #: "nonneg" non-negative float, "float" any finite float.
@@ -257,15 +262,22 @@ METRIC_KINDS: dict[str, MetricKind] = {
 class Limit:
     """One limit on one metric: ``lower <= value <= upper`` or the severity applies.
 
-    ``lower`` or ``upper`` may be None (one-sided limit), never both.
+    ``lower`` or ``upper`` may be None (one-sided limit), never both. ``decision`` is the
+    rule of :data:`DECISION_RULES`: with ``"guarded"`` a value is accepted only when its
+    expanded uncertainty interval lies inside the limits.
     """
 
     lower: float | None
     upper: float | None
     severity: str = "fail"
+    decision: str = "simple"
 
     def to_json(self) -> dict[str, Any]:
-        return {"lower": self.lower, "upper": self.upper, "severity": self.severity}
+        out: dict[str, Any] = {"lower": self.lower, "upper": self.upper}
+        out["severity"] = self.severity
+        if self.decision != "simple":
+            out["decision"] = self.decision
+        return out
 
 
 @dataclass(frozen=True)
@@ -558,7 +570,7 @@ def _show(value: Any) -> str:
 _TOP_KEYS = ("spec", "capture", "stimulus", "metrics")
 _SPEC_KEYS = ("name", "serial_pattern", "serial_required")
 _CAPTURE_KEYS = ("channel", "full_scale_v", "gain", "rate_hz")
-_LIMIT_KEYS = ("lower", "upper", "lower_rel", "upper_rel", "severity")
+_LIMIT_KEYS = ("lower", "upper", "lower_rel", "upper_rel", "severity", "decision")
 _METRIC_COMMON = ("kind", "derive", "limits", "severity", *_LIMIT_KEYS)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 
@@ -741,6 +753,10 @@ def _parse_metric(
     if kind.mask:
         if any(k in table for k in ("limits", *_LIMIT_KEYS[:4])):
             raise check.error(path, "a mask has no lower/upper limits: its margin must be >= 0 dB")
+        if "decision" in table:
+            raise check.error(
+                (*path, "decision"), "a mask's margin carries no uncertainty: no decision rule"
+            )
         _check_mask(check, path, params, for_derive)
         severity = _severity(check, table.get("severity", "fail"), (*path, "severity"))
         limits: tuple[Limit, ...] = (Limit(0.0, None, severity),)
@@ -802,7 +818,12 @@ def _parse_limit(
             path, f"upper limit {bounds['upper']} must exceed lower {bounds['lower']}"
         )
     severity = _severity(check, entry.get("severity", "fail"), (*path, "severity"))
-    return Limit(bounds.get("lower"), bounds.get("upper"), severity)
+    decision = entry.get("decision", "simple")
+    if decision not in DECISION_RULES:
+        raise check.error(
+            (*path, "decision"), f'expected "simple" or "guarded", got {_show(decision)}'
+        )
+    return Limit(bounds.get("lower"), bounds.get("upper"), severity, str(decision))
 
 
 def _check_stimulus_fit(

@@ -2,7 +2,11 @@
 
 Rules
 -----
-- A limit is met when ``lower <= value <= upper`` (limits are inclusive).
+- A limit is met when ``lower <= value <= upper`` (limits are inclusive). A limit with
+  ``decision = "guarded"`` is met only when ``lower + U <= value <= upper - U``, with
+  ``U = 2u`` the expanded uncertainty (k = 2) of the value: the guarded acceptance of
+  JCGM 106:2012, 8.3.2 (ISO 14253-1:2017). A guarded limit on a value that carries no
+  uncertainty cannot be judged: the metric is not evaluable.
 - A metric whose value is missing or not finite is *not evaluable*, with the reason the
   extractor gave (missing stimulus, undeterminable corner ...). It is never a pass.
 - Verdict of the capture, in order of precedence:
@@ -22,6 +26,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from piezo.batch.spec import MetricSpec
+from piezo.chain.units import format_uncertain
+from piezo.response.uncertainty import decide
 
 __all__ = [
     "FAIL",
@@ -57,12 +63,16 @@ class MetricValue:
     curve
         For masks: the measured values at the mask's frequencies (dB), used when limits
         are derived from golden units.
+    uncertainty
+        Standard uncertainty of ``value`` in the same unit, where the analysis gives one
+        (a fit's covariance, the spread of repeated events); None otherwise.
     """
 
     value: float | None
     reason: str | None = None
     detail: str | None = None
     curve: tuple[float, ...] | None = None
+    uncertainty: float | None = None
 
     @property
     def evaluable(self) -> bool:
@@ -119,7 +129,17 @@ def judge(
             continue
         value = float(mv.value)  # type: ignore[arg-type]
         for lim in metric.limits:
-            message = _violation(metric, lim.lower, lim.upper, value, mv.detail)
+            if lim.decision == "guarded":
+                u = mv.uncertainty
+                if u is None or not math.isfinite(u):
+                    missing.append(
+                        f"{metric.name}: not evaluable (a guarded limit needs the value's "
+                        "uncertainty, and this measurement gives none)"
+                    )
+                    continue
+                message = _guarded_violation(metric, lim.lower, lim.upper, value, u)
+            else:
+                message = _violation(metric, lim.lower, lim.upper, value, mv.detail)
             if message is None:
                 continue
             (failed if lim.severity == "fail" else warnings).append(f"{message} [{lim.severity}]")
@@ -130,6 +150,28 @@ def judge(
     if warnings:
         return Verdict(WARN, (), tuple(warnings), ())
     return Verdict(PASS)
+
+
+def _guarded_violation(
+    metric: MetricSpec, lower: float | None, upper: float | None, value: float, u: float
+) -> str | None:
+    d = decide(value, low=lower, high=upper, expanded_uncertainty=2.0 * u, rule="guarded")
+    if d.accepted:
+        return None
+    unit = "" if metric.unit == "1" else metric.unit
+    space = f" {unit}" if unit else ""
+    if d.acceptance_low > d.acceptance_high:
+        zone = "empty: U exceeds half the tolerance"
+    elif lower is None:
+        zone = f"at most {_fmt(d.acceptance_high)}{space}"
+    elif upper is None:
+        zone = f"at least {_fmt(d.acceptance_low)}{space}"
+    else:
+        zone = f"{_fmt(d.acceptance_low)} to {_fmt(d.acceptance_high)}{space}"
+    return (
+        f"{metric.name} = {format_uncertain(value, u, unit)} outside the guarded "
+        f"acceptance zone ({zone})"
+    )
 
 
 def _violation(

@@ -9,7 +9,7 @@ from typing import Annotated
 import typer
 
 from piezo.chain.measurement import profile_with_sensitivity, sidecar_path
-from piezo.chain.units import parse_quantity
+from piezo.chain.units import parse_decibels, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError
@@ -42,6 +42,23 @@ def calibrate(
             "Use --write-profile with the recording's sidecar name to update it.",
         ),
     ] = None,
+    calibrator_tolerance: Annotated[
+        str,
+        typer.Option(
+            "--calibrator-tolerance",
+            help="Level tolerance of the calibrator (rectangular, e.g. '0.25 dB', the "
+            "class 1 tolerance of IEC 60942:2017), used in the uncertainty budget.",
+        ),
+    ] = "0.25 dB",
+    calibrator_uncertainty: Annotated[
+        str | None,
+        typer.Option(
+            "--calibrator-uncertainty",
+            help="Expanded uncertainty (k = 2) of the calibrator's level from its "
+            "certificate, e.g. '0.1 dB'; replaces --calibrator-tolerance. Give the "
+            "certificate's level with --level.",
+        ),
+    ] = None,
     accept_unstable: Annotated[
         bool,
         typer.Option("--accept-unstable", help="Report an unstable tone instead of refusing."),
@@ -57,6 +74,12 @@ def calibrate(
     refused (the calibrator was moved, or is failing).
     """
     expected_hz = parse_quantity(frequency, "Hz", what="--frequency")
+    tolerance_db = parse_decibels(calibrator_tolerance, what="--calibrator-tolerance")
+    certificate_db = (
+        None
+        if calibrator_uncertainty is None
+        else parse_decibels(calibrator_uncertainty, what="--calibrator-uncertainty")
+    )
     if not 60.0 <= level <= 160.0:
         raise InputError(f"--level {level:g} dB is not a calibrator level (60 to 160 dB)")
     source = open_source(file, src)
@@ -69,7 +92,12 @@ def calibrate(
         )
     with progress(f"Measuring {file.name}", source.frames) as advance:
         calibration = calibration_of(
-            source, level_db=level, expected_hz=expected_hz, advance=advance
+            source,
+            level_db=level,
+            expected_hz=expected_hz,
+            calibrator_tolerance_db=tolerance_db,
+            calibrator_expanded_db=certificate_db,
+            advance=advance,
         )
     result = calibration.result
     if not result.stable and not accept_unstable:
@@ -96,6 +124,19 @@ def calibrate(
         f"  sensitivity   [bold]{result.sensitivity_mv_per_pa:.4f} mV/Pa[/bold]  "
         f"({result.sensitivity_dbv_per_pa:.2f} dBV/Pa)"
     )
+    budget = calibration.budget
+    console.print(
+        f"  uncertainty   ± {budget.expanded_uncertainty:.2g} dB "
+        f"(k = {budget.coverage_factor:.2f}, about 95 %) on the sensitivity level"
+    )
+    for component in budget.components:
+        console.print(
+            f"    u = {component.standard_uncertainty:<8.2g} dB  {component.name} "
+            f"({component.distribution})",
+            markup=False,
+        )
+    console.print("    not included: the chain's gain and ADC scale,", markup=False)
+    console.print("    the calibrator's static-pressure and load-volume corrections", markup=False)
     console.print(f"  residual      {result.residual_db:.1f} dB re tone (noise + distortion)")
     console.print(
         f"  stability     {result.level_spread_db:.3f} dB, "

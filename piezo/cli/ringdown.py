@@ -8,7 +8,7 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import format_uncertain, parse_quantity
+from piezo.chain.units import format_uncertain, parse_decibels, parse_quantity
 from piezo.cli.impedance import CAUTION, parse_band
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
@@ -25,14 +25,7 @@ def register(app: typer.Typer) -> None:
 
 
 def _db(text: str, what: str) -> float:
-    t = text.strip().removesuffix("dB").strip()
-    try:
-        value = float(t)
-    except ValueError:
-        raise InputError(f"{what}: expected a level in dB such as '20dB', got {text!r}") from None
-    if not value > 0:
-        raise InputError(f"{what}: must be positive, got {text!r}")
-    return value
+    return parse_decibels(text, what=what, positive=True)
 
 
 @source_options

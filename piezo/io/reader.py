@@ -48,7 +48,19 @@ _CSV_CHUNK_ROWS = 65536
 
 @dataclass(frozen=True)
 class CsvLayout:
-    """Where the numbers are in a CSV file, found once when it is opened."""
+    """Where the numbers are in a CSV file, found once when it is opened.
+
+    Examples
+    --------
+    The layout of the bundled tap-test export: a header line, a time column and two
+    value columns.
+
+    >>> layout = open_recording("recordings/tap-test.csv").csv_layout
+    >>> layout.delimiter, layout.skip_lines, layout.time_column, layout.value_columns
+    (',', 1, 0, (1, 2))
+    >>> layout.column_names
+    ('Time (s)', 'Disc (V)', 'Reference (V)')
+    """
 
     delimiter: str | None
     skip_lines: int
@@ -88,6 +100,16 @@ class Recording:
         CSV opened with ``allow_time_gaps``: how many steps of the time column are gaps
         (at least :data:`GAP_STEP_RATIO` nominal steps) and the longest gap's missing
         time in seconds. None otherwise.
+
+    Examples
+    --------
+    The bundled calibrator recording: 4 s of 24-bit PCM at 48 kHz, read in blocks.
+
+    >>> rec = open_recording("recordings/calibrator-94dB.wav")
+    >>> rec.format, rec.subtype, rec.sample_rate_hz, rec.channels, rec.duration_s
+    ('WAV', 'PCM_24', 48000.0, 1, 4.0)
+    >>> [block.shape for block in rec.blocks(block_frames=80000)]
+    [(80000, 1), (80000, 1), (32000, 1)]
     """
 
     path: Path
@@ -276,6 +298,22 @@ def open_recording(
         Missing, empty, unreadable or zero-length recordings.
     InputError
         Inconsistent options (rate for an audio file, unknown column, non-uniform time).
+
+    Examples
+    --------
+    A CSV export with a time column: the sample rate comes from its spacing (1 ms here).
+
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "scope.csv"
+    ...     _ = path.write_text("time,ch_a,ch_b\\n0,0.1,1\\n0.001,0.2,2\\n0.002,0.3,3\\n")
+    ...     rec = open_recording(path, columns=["ch_b"])
+    ...     samples = next(rec.blocks())
+    >>> rec.sample_rate_hz, rec.frames, rec.channel_names, rec.is_pcm
+    (1000.0, 3, ('ch_b',), False)
+    >>> samples[:, 0].tolist()
+    [1.0, 2.0, 3.0]
     """
     p = Path(path)
     st = regular_file(p, what="recording", error=RecordingError)

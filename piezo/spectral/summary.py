@@ -18,7 +18,9 @@ import numpy as np
 from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
 from piezo.results import to_jsonable
+from piezo.spectral.averaging import main_lobe_half_width_bins
 from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
+from piezo.spectral.peaks import PeakRule, SpectralPeak, distinct_peaks, scatter_dof
 from piezo.spectral.welch import PSDResult, Spectrogram, WelchPSD
 
 __all__ = ["Bands", "Spectrum", "bands_of", "psd_level_unit", "spectrum_of"]
@@ -79,9 +81,24 @@ class Spectrum:
     #: Where a channel's response curve does not cover the spectrum (end values held).
     response_curve_notes: tuple[str, ...] = ()
 
+    def peaks(self, column: int) -> tuple[list[SpectralPeak], PeakRule]:
+        """The distinct peaks of the PSD's ``column`` (strongest first) and the rule
+        applied: :func:`piezo.spectral.peaks.distinct_peaks` with the window's main lobe
+        and the scatter of the chosen average."""
+        r = self.result
+        return distinct_peaks(
+            r.frequency_hz,
+            r.psd[:, column],
+            main_lobe_half_width_bins=main_lobe_half_width_bins(r.window),
+            degrees_of_freedom=scatter_dof(r.average, r.effective_averages),
+        )
+
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo spectrum --json`` document (plain JSON values)."""
         r = self.result
+        found = [self.peaks(i) for i in range(len(self.channel_indices))]
+        rule = found[0][1]
+        ref2 = self.reference**2
         doc = {
             "file": self.file,
             "quantity": self.quantity,
@@ -107,10 +124,22 @@ class Spectrum:
                 "lower_db": r.ci_lower_db,
                 "upper_db": r.ci_upper_db,
             },
+            # Distinct peaks: at least one main lobe apart, standing the margin above
+            # the local floor, separated by valleys deeper than the scatter.
+            "peak_separation_hz": rule.separation_bins * r.resolution_hz,
+            "peak_margin_db": rule.floor_margin_db,
             "channels": [
                 {
                     "channel": ch,
                     "mean_square": float(r.mean_square()[i]),
+                    "peaks": [
+                        {
+                            "frequency_hz": pk.frequency_hz,
+                            "level_db": 10.0 * np.log10(pk.density / ref2),
+                            "above_floor_db": pk.above_floor_db,
+                        }
+                        for pk in found[i][0]
+                    ],
                     "frequency_hz": r.frequency_hz,
                     "psd": r.psd[:, i],
                 }

@@ -15,6 +15,7 @@ from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
+from piezo.response.uncertainty import Budget
 from piezo.results import to_jsonable
 from piezo.spectral.welch import WelchPSD
 from piezo.tone.analysis import (
@@ -23,7 +24,13 @@ from piezo.tone.analysis import (
     band_mean_square,
     default_bandwidth_hz,
 )
-from piezo.tone.calibrator import CalibrationResult, ToneCalibrator, calibrator_pressure_pa
+from piezo.tone.calibrator import (
+    CLASS1_LEVEL_TOLERANCE_DB,
+    CalibrationResult,
+    ToneCalibrator,
+    calibration_budget,
+    calibrator_pressure_pa,
+)
 
 __all__ = ["RESOLUTION_HZ", "Calibration", "Tone", "calibration_of", "tone_of"]
 
@@ -233,6 +240,9 @@ class Calibration:
         The chain the capture was taken through (its sensitivity, if any, is ignored).
     result
         The calibrator measurement (tone, RMS volts, sensitivity, stability).
+    budget
+        GUM uncertainty budget of the sensitivity level, dB
+        (:func:`~piezo.tone.calibrator.calibration_budget`).
 
     Examples
     --------
@@ -252,6 +262,7 @@ class Calibration:
     gain: float
     full_scale_v: float
     result: CalibrationResult
+    budget: Budget
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo calibrate --json`` document (without ``profile_written``)."""
@@ -274,6 +285,11 @@ class Calibration:
             "stable": r.stable,
             "gain": self.gain,
             "full_scale_v": self.full_scale_v,
+            "uncertainty": {
+                "expanded_uncertainty_db": self.budget.expanded_uncertainty,
+                "coverage_factor": self.budget.coverage_factor,
+                "budget": self.budget.to_dict(),
+            },
         }
         return to_jsonable(doc)
 
@@ -283,6 +299,8 @@ def calibration_of(
     *,
     level_db: float = 94.0,
     expected_hz: float = 1000.0,
+    calibrator_tolerance_db: float = CLASS1_LEVEL_TOLERANCE_DB,
+    calibrator_expanded_db: float | None = None,
     advance: Callable[[int], object] | None = None,
 ) -> Calibration:
     """Sensitivity of the sensor on one channel of ``source`` from a calibrator tone.
@@ -292,6 +310,8 @@ def calibration_of(
     band-limited RMS voltage over the calibrator's RMS pressure is the sensitivity
     (:class:`~piezo.tone.calibrator.ToneCalibrator`). ``result.stable`` says whether the
     tone's level and frequency held still; the caller decides whether to accept it.
+    ``calibrator_tolerance_db`` (class 1 of IEC 60942:2017 by default) or a
+    certificate's ``calibrator_expanded_db`` (k = 2) enter the uncertainty budget.
 
     Raises
     ------
@@ -335,4 +355,9 @@ def calibration_of(
         gain=source.chain.gain,
         full_scale_v=source.chain.full_scale_v,
         result=result,
+        budget=calibration_budget(
+            result,
+            calibrator_tolerance_db=calibrator_tolerance_db,
+            calibrator_expanded_db=calibrator_expanded_db,
+        ),
     )

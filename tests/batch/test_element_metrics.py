@@ -61,3 +61,20 @@ def test_element_metric_needs_its_stimulus():
         )
     with pytest.raises(SpecError, match="band_hz"):
         parse_spec('[stimulus]\nkind = "tap"\n[metrics.mode_q]\nband_hz = [5, 1]\n')
+
+
+def test_guarded_limit_uses_the_fit_uncertainty(tmp_path, rng):
+    # The BVD fit gives u(fs) from its covariance; a limit placed one u above the measured
+    # fs is met under the simple rule and missed under the guarded rule, whose acceptance
+    # zone ends 2u below the limit (JCGM 106:2012, 8.3.2).
+    path = _sweep(tmp_path, "u.csv", BvdCircuit(2.2e-9, 35.0, 0.12, 0.25e-9), rng)
+    first = evaluate_capture(path, parse_spec(SPEC))
+    fs, u = first["metrics"]["fs"], first["uncertainties"]["fs"]
+    assert u is not None and 0 < u < 1.0  # Hz: a clean sweep resolves fs far better than 1 Hz
+    head = '[stimulus]\nkind = "impedance"\n[metrics.fs]\n'
+    upper = f"upper = {fs + u!r}\n"
+    simple = evaluate_capture(path, parse_spec(head + upper))
+    guarded = evaluate_capture(path, parse_spec(head + upper + 'decision = "guarded"\n'))
+    assert simple["verdict"] == "pass"
+    assert guarded["verdict"] == "fail"
+    assert "guarded acceptance zone" in guarded["failed_limits"][0]

@@ -96,3 +96,69 @@ def test_unusable_capture_is_not_evaluable():
     v = judge(SPEC.metrics, _values(), error="unreadable capture: not a WAV file")
     assert v.verdict == NOT_EVALUABLE
     assert v.not_evaluable == ("unreadable capture: not a WAV file",)
+
+
+# Guarded acceptance (JCGM 106:2012, 8.3.2; ISO 14253-1:2017): the acceptance zone is the
+# tolerance interval narrowed on each side by U = 2u.
+GUARDED = parse_spec(
+    """
+[stimulus]
+kind = "impedance"
+[metrics.fs]
+lower = 28000.0
+upper = 30000.0
+decision = "guarded"
+[metrics.qm]
+lower = 500.0
+"""
+)
+
+
+@pytest.mark.parametrize(
+    ("value", "u", "verdict"),
+    [
+        (29000.0, 10.0, PASS),  # far inside: accepted under either rule
+        (29990.0, 10.0, FAIL),  # inside the limit, but 29990 + 2*10 > 30000
+        (29979.0, 10.0, PASS),  # 29979 + 20 = 29999 <= 30000: inside the guarded zone
+        (27990.0, 1.0, FAIL),  # outside the limit itself
+    ],
+)
+def test_guarded_limit_narrows_acceptance_by_the_expanded_uncertainty(value, u, verdict):
+    got = judge(GUARDED.metrics, {"fs": MetricValue(value, uncertainty=u), "qm": MetricValue(600)})
+    assert got.verdict == verdict
+    if verdict == FAIL:
+        assert "guarded acceptance zone" in got.failed[0]
+        assert "k = 2" in got.failed[0]
+
+
+def test_simple_rule_accepts_what_the_guarded_rule_rejects():
+    # The same value and limits with the default rule: shared risk, accepted.
+    simple = parse_spec(
+        '[stimulus]\nkind = "impedance"\n[metrics.fs]\nlower = 28000.0\nupper = 30000.0\n'
+    )
+    got = judge(simple.metrics, {"fs": MetricValue(29990.0, uncertainty=10.0)})
+    assert got.verdict == PASS
+
+
+def test_guarded_limit_without_uncertainty_is_not_evaluable():
+    got = judge(GUARDED.metrics, {"fs": MetricValue(29000.0), "qm": MetricValue(600)})
+    assert got.verdict == NOT_EVALUABLE
+    assert "needs the value's uncertainty" in got.not_evaluable[0]
+
+
+def test_guarded_zone_can_be_empty():
+    # U larger than half the tolerance (2000 Hz wide): nothing can be accepted.
+    got = judge(
+        GUARDED.metrics, {"fs": MetricValue(29000.0, uncertainty=600.0), "qm": MetricValue(600)}
+    )
+    assert got.verdict == FAIL
+    assert "empty" in got.failed[0]
+
+
+def test_decision_rule_is_validated_and_kept_in_the_spec_json():
+    assert GUARDED.metrics[0].limits[0].to_json()["decision"] == "guarded"
+    assert "decision" not in GUARDED.metrics[1].limits[0].to_json()
+    with pytest.raises(ValueError, match='expected "simple" or "guarded"'):
+        parse_spec(
+            '[stimulus]\nkind = "impedance"\n[metrics.fs]\nlower = 1.0\ndecision = "lenient"\n'
+        )

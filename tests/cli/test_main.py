@@ -213,6 +213,33 @@ def test_calibrate_json_contract(cli, tmp_path):
     assert doc["tone_hz"] == pytest.approx(1000.0, rel=1e-5)
 
 
+def test_calibrate_states_its_uncertainty_budget(cli, tmp_path):
+    path = calibrator_file(tmp_path)
+    doc = cli("calibrate", path, "--gain", "20 dB", "--full-scale", "2 V", "--json").json()
+    u = doc["uncertainty"]
+    # A clean 24-bit tone leaves the class 1 calibrator tolerance (IEC 60942:2017,
+    # ±0.25 dB, rectangular: u = 0.25/√3, GUM 4.3.7) alone: U = 2·0.1443 dB.
+    assert u["expanded_uncertainty_db"] == pytest.approx(2 * 0.25 / np.sqrt(3), rel=1e-3)
+    names = [c["name"] for c in u["budget"]["components"]]
+    assert names[0].startswith("calibrator level") and len(names) == 3
+    cert = cli(
+        "calibrate",
+        path,
+        "--full-scale",
+        "2 V",
+        "--gain",
+        "20 dB",
+        "--json",
+        "--calibrator-uncertainty",
+        "0.1 dB",
+    ).json()
+    assert cert["uncertainty"]["expanded_uncertainty_db"] == pytest.approx(0.1, rel=1e-3)
+    text = cli("calibrate", path, "--gain", "20 dB", "--full-scale", "2 V")
+    assert "± 0.29 dB (k = 2.00" in text.out
+    bad = cli("calibrate", path, "--calibrator-tolerance", "-1 dB")
+    assert bad.code == 2 and "--calibrator-tolerance" in bad.err
+
+
 def test_calibrate_114_db(cli, tmp_path):
     path = calibrator_file(tmp_path, level=114.0, gain_db=0.0)
     r = cli("calibrate", path, "--level", "114", "--full-scale", "2 V", "--json")

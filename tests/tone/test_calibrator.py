@@ -2,13 +2,21 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from piezo.errors import InputError
-from piezo.tone.calibrator import ToneCalibrator, calibrate_tone, calibrator_pressure_pa
+from piezo.tone.calibrator import (
+    CalibrationResult,
+    ToneCalibrator,
+    calibrate_tone,
+    calibration_budget,
+    calibrator_pressure_pa,
+)
 
 FS = 48000
 
@@ -117,3 +125,50 @@ def test_refusal_names_the_argument_not_an_option():
     with pytest.raises(InputError, match="expected_hz") as info:
         calibrate_tone(capture(2.0, f0=250.0), FS)
     assert "--" not in str(info.value)
+
+
+# --- the uncertainty budget (JCGM 100:2008) --------------------------------------------
+
+
+def _calibrator_capture(rng, *, level_error_db, noise_rel, fs=8000.0, seconds=1.75):
+    n = int(fs * seconds)
+    t = np.arange(n) / fs
+    p_rms = 20e-6 * 10 ** ((94.0 + level_error_db) / 20)  # the calibrator's actual level
+    tone = p_rms * np.sqrt(2) * np.sin(2 * np.pi * 1000.3 * t + rng.uniform(0, 2 * np.pi))
+    sensitivity_v_per_pa = 8.5e-3
+    x = sensitivity_v_per_pa * (tone + noise_rel * p_rms * rng.standard_normal(n))
+    return x, sensitivity_v_per_pa
+
+
+def test_budget_components_follow_the_gum_rules():
+    r = CalibrationResult(8.5e-3, 1000.0, 8.5e-3, -40.0, 0.02, 0.0, 9, 94.0, 2e-5, True, 0.006)
+    b = calibration_budget(r)
+    level, repeat, noise = b.components
+    # GUM 4.3.7: rectangular half-width a gives a/√3; IEC 60942:2017 class 1: a = 0.25 dB.
+    assert level.standard_uncertainty == pytest.approx(0.25 / math.sqrt(3))
+    # GUM 4.2.3: the mean of n repeats has s/√n with n − 1 degrees of freedom.
+    assert repeat.standard_uncertainty == pytest.approx(0.006 / 3)
+    assert repeat.degrees_of_freedom == 8
+    # In-band noise at most the whole residual: 10·lg(1 + 10^(−40/10)) dB of power.
+    assert noise.standard_uncertainty == pytest.approx(10 * math.log10(1 + 1e-4) / math.sqrt(3))
+    certificate = calibration_budget(r, calibrator_expanded_db=0.12)
+    assert certificate.components[0].standard_uncertainty == pytest.approx(0.06)  # GUM 4.3.6
+    with pytest.raises(ValueError, match="not negative"):
+        calibration_budget(r, calibrator_tolerance_db=-0.1)
+
+
+def test_expanded_uncertainty_covers_the_truth_at_about_95_percent(rng):
+    # A calibrator whose actual level departs from its certificate value by a normal error
+    # with the certificate's U (k = 2): the sensitivity's U must cover the true
+    # sensitivity in about 95.45 % of captures (JCGM 100:2008, 6.3.3). With 200 captures
+    # the count has a binomial sd of 2.9; 180 is 3.7 sd below the expected 191.
+    u_cert = 0.10
+    trials, hits = 200, 0
+    for _ in range(trials):
+        x, true = _calibrator_capture(
+            rng, level_error_db=rng.normal(0, u_cert / 2), noise_rel=0.01
+        )
+        r = calibrate_tone(x, 8000.0, level_db=94.0)
+        b = calibration_budget(r, calibrator_expanded_db=u_cert)
+        hits += abs(20 * math.log10(r.sensitivity_v_per_pa / true)) <= b.expanded_uncertainty
+    assert 180 <= hits <= 200
