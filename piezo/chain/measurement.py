@@ -678,7 +678,13 @@ def _positive(text: Any, unit: str, what: str) -> float:
 
 
 def sidecar_path(recording_path: str | Path) -> Path:
-    """The sidecar profile that belongs to a recording: ``NAME.toml`` beside ``NAME.wav``."""
+    """The sidecar profile that belongs to a recording: ``NAME.toml`` beside ``NAME.wav``.
+
+    Examples
+    --------
+    >>> sidecar_path("bench/accel-bench.flac").as_posix()
+    'bench/accel-bench.toml'
+    """
     return Path(recording_path).with_suffix(".toml")
 
 
@@ -1003,7 +1009,20 @@ class CalibratedSource:
         *,
         channel_chains: Mapping[int, tuple[Chain, Provenance | None]] | None = None,
     ) -> CalibratedSource:
-        """All channels of ``recording`` when ``channels`` is None."""
+        """All channels of ``recording`` when ``channels`` is None.
+
+        ``channel_chains`` gives chains of their own to some channels (by the
+        recording's channel number); the others use ``chain``.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("a", "b"), True)
+        >>> src = CalibratedSource.of(rec, Chain(), [1])
+        >>> src.channel_indices, src.unit
+        ((1,), 'V')
+        """
         idx = tuple(range(recording.channels)) if channels is None else tuple(channels)
         own = {k: v for k, v in (channel_chains or {}).items() if k < recording.channels}
         return cls(recording, chain, idx, provenance, own)
@@ -1021,7 +1040,18 @@ class CalibratedSource:
         return self.file_chain if own is None else own[0]
 
     def provenance_of(self, index: int) -> Provenance | None:
-        """Where the chain values of the recording's channel ``index`` came from."""
+        """Where the chain values of the recording's channel ``index`` came from.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("a", "b"), True)
+        >>> chain, prov = resolve_chain(None, ChainSettings(sensitivity="10 mV/g"))
+        >>> src = CalibratedSource.of(rec, Chain(), channel_chains={1: (chain, prov)})
+        >>> src.provenance_of(0), src.provenance_of(1).sensitivity
+        (None, 'option')
+        """
         own = self.channel_chains.get(index)
         return self.provenance if own is None else own[1]
 
@@ -1231,6 +1261,20 @@ class CalibratedSource:
         The correction holds a chart's end values beyond its range
         (:meth:`~piezo.chain.curve.ResponseCurve.coverage_note`); results in
         ``[low_hz, high_hz]`` say where they rely on that.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> from piezo.chain.curve import parse_response_curve
+        >>> curve = parse_response_curve("frequency_hz,relative_db\\n100,0\\n5000,1")
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("a",), True)
+        >>> chain = Chain(response_curve=curve, response_curve_file="chart.csv")
+        >>> print(*CalibratedSource.of(rec, chain).curve_notes(20.0, 20000.0))
+        ch 0: response curve chart.csv: chart covers 100 Hz to 5 kHz; end values held below
+        and above
+        >>> CalibratedSource.of(rec, chain).curve_notes(200.0, 4000.0)
+        []
         """
         notes = []
         for index, chain in zip(self.channel_indices, self.chains, strict=True):
@@ -1247,6 +1291,20 @@ class CalibratedSource:
         length (the longest a chart asks for), so their delay compensation holds the
         same frames back; a channel without a curve gets a flat one (a pure delay,
         compensated: its samples pass unchanged).
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> from piezo.chain.curve import parse_response_curve
+        >>> curve = parse_response_curve("frequency_hz,relative_db\\n100,0\\n5000,1")
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("a", "b"), True)
+        >>> own = {0: (Chain(response_curve=curve), None)}
+        >>> src = CalibratedSource.of(rec, Chain(), channel_chains=own)
+        >>> [c.taps for c in src.correction()]      # one length: 10 Hz resolution at 48 kHz
+        [8193, 8193]
+        >>> CalibratedSource.of(rec, Chain()).correction() is None
+        True
         """
         curves = [c.response_curve for c in self.chains]
         if all(c is None for c in curves):
