@@ -65,6 +65,7 @@ __all__ = [
     "load_profile",
     "load_response_curve",
     "parse_chain_sensitivity",
+    "profile_for_sensor",
     "profile_paths",
     "profile_with_sensitivity",
     "resolve_chain",
@@ -610,6 +611,60 @@ def profile_with_sensitivity(
     return "\n".join(out).rstrip("\n") + "\n"
 
 
+def profile_for_sensor(
+    sensitivity: Sensitivity,
+    *,
+    calibration_date: str,
+    reference_frequency_hz: float,
+    response_curve: str | None = None,
+    name: str | None = None,
+    serial: str | None = None,
+) -> str:
+    """A new profile's text for a sensor measured by comparison: quantity, sensitivity at
+    ``reference_frequency_hz`` in its trade form, the chart it is relative to.
+
+    ``response_curve`` is written as given (a path relative to the profile, so the pair
+    can move together). The caller writes the result.
+
+    Examples
+    --------
+    >>> from piezo.chain.quantity import parse_sensitivity_of
+    >>> s = parse_sensitivity_of("9.62 mV/g")
+    >>> text = profile_for_sensor(s, calibration_date="2026-12-02", reference_frequency_hz=160,
+    ...                           response_curve="unit-chart.csv", serial="PA12-2291")
+    >>> print(text)
+    # measured by back-to-back comparison; sensitivity at 160 Hz, chart relative to it
+    [sensor]
+    serial = "PA12-2291"
+    quantity = "acceleration"
+    sensitivity = "0.980967 mV/(m/s²)"
+    calibration_date = 2026-12-02
+    response_curve = "unit-chart.csv"
+    <BLANKLINE>
+    >>> import tomllib
+    >>> parse_sensitivity_of(tomllib.loads(text)["sensor"]["sensitivity"]).value * 9.80665
+    0.00962000...
+    """
+    lines = [
+        f"# measured by back-to-back comparison; sensitivity at {reference_frequency_hz:g} Hz,"
+        " chart relative to it",
+        "[sensor]",
+    ]
+    if name is not None:
+        lines.append(f"name = {toml_value(name)}")
+    if serial is not None:
+        lines.append(f"serial = {toml_value(serial)}")
+    sens_text = format_sensitivity(sensitivity, digits=6).split(" (")[0]
+    lines += [
+        f"quantity = {toml_value(sensitivity.quantity.name)}",
+        f"sensitivity = {toml_value(sens_text)}",
+        f"calibration_date = {calibration_date}",
+    ]
+    if response_curve is not None:
+        lines.append(f"response_curve = {toml_value(response_curve)}")
+    return "\n".join(lines) + "\n"
+
+
 def _text(value: Any) -> str | None:
     return None if value is None else str(value)
 
@@ -623,7 +678,13 @@ def _positive(text: Any, unit: str, what: str) -> float:
 
 
 def sidecar_path(recording_path: str | Path) -> Path:
-    """The sidecar profile that belongs to a recording: ``NAME.toml`` beside ``NAME.wav``."""
+    """The sidecar profile that belongs to a recording: ``NAME.toml`` beside ``NAME.wav``.
+
+    Examples
+    --------
+    >>> sidecar_path("bench/accel-bench.flac").as_posix()
+    'bench/accel-bench.toml'
+    """
     return Path(recording_path).with_suffix(".toml")
 
 
@@ -948,7 +1009,20 @@ class CalibratedSource:
         *,
         channel_chains: Mapping[int, tuple[Chain, Provenance | None]] | None = None,
     ) -> CalibratedSource:
-        """All channels of ``recording`` when ``channels`` is None."""
+        """All channels of ``recording`` when ``channels`` is None.
+
+        ``channel_chains`` gives chains of their own to some channels (by the
+        recording's channel number); the others use ``chain``.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("a", "b"), True)
+        >>> src = CalibratedSource.of(rec, Chain(), [1])
+        >>> src.channel_indices, src.unit
+        ((1,), 'V')
+        """
         idx = tuple(range(recording.channels)) if channels is None else tuple(channels)
         own = {k: v for k, v in (channel_chains or {}).items() if k < recording.channels}
         return cls(recording, chain, idx, provenance, own)
@@ -966,7 +1040,18 @@ class CalibratedSource:
         return self.file_chain if own is None else own[0]
 
     def provenance_of(self, index: int) -> Provenance | None:
-        """Where the chain values of the recording's channel ``index`` came from."""
+        """Where the chain values of the recording's channel ``index`` came from.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("a", "b"), True)
+        >>> chain, prov = resolve_chain(None, ChainSettings(sensitivity="10 mV/g"))
+        >>> src = CalibratedSource.of(rec, Chain(), channel_chains={1: (chain, prov)})
+        >>> src.provenance_of(0), src.provenance_of(1).sensitivity
+        (None, 'option')
+        """
         own = self.channel_chains.get(index)
         return self.provenance if own is None else own[1]
 
@@ -1057,9 +1142,10 @@ class CalibratedSource:
     def volts_at_sensor(self) -> CalibratedSource:
         """The same recording and channels in volts at the sensor's output.
 
-        Full scale and gain are undone, a sensitivity is not applied: what a calibration,
-        a response measurement or a production check measures is the sensor's voltage.
-        An uncalibrated source is returned as it is.
+        Full scale and gain are undone, a sensitivity, a response curve and an
+        integration are not applied: what a calibration, a response measurement or a
+        production check measures is the sensor's voltage. An uncalibrated source is
+        returned as it is.
 
         Examples
         --------
@@ -1075,11 +1161,19 @@ class CalibratedSource:
         >>> volts.unit, round(volts.scale, 12)
         ('V', 0.2)
         """
-        if not any(c.calibrated for c in (self.file_chain, *self.chains)):
+        chains = (self.file_chain, *(c for c, _ in self.channel_chains.values()))
+        if not any(c.calibrated or c.response_curve is not None for c in chains):
             return self
 
         def bare(chain: Chain) -> Chain:
-            return replace(chain, sensitivity_v_per_unit=None, quantity="voltage", integrations=0)
+            return replace(
+                chain,
+                sensitivity_v_per_unit=None,
+                quantity="voltage",
+                integrations=0,
+                response_curve=None,
+                response_curve_file=None,
+            )
 
         own = {k: (bare(c), p) for k, (c, p) in self.channel_chains.items()}
         return replace(self, file_chain=bare(self.file_chain), channel_chains=own)
@@ -1167,6 +1261,20 @@ class CalibratedSource:
         The correction holds a chart's end values beyond its range
         (:meth:`~piezo.chain.curve.ResponseCurve.coverage_note`); results in
         ``[low_hz, high_hz]`` say where they rely on that.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> from piezo.chain.curve import parse_response_curve
+        >>> curve = parse_response_curve("frequency_hz,relative_db\\n100,0\\n5000,1")
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("a",), True)
+        >>> chain = Chain(response_curve=curve, response_curve_file="chart.csv")
+        >>> print(*CalibratedSource.of(rec, chain).curve_notes(20.0, 20000.0))
+        ch 0: response curve chart.csv: chart covers 100 Hz to 5 kHz; end values held below
+        and above
+        >>> CalibratedSource.of(rec, chain).curve_notes(200.0, 4000.0)
+        []
         """
         notes = []
         for index, chain in zip(self.channel_indices, self.chains, strict=True):
@@ -1183,6 +1291,20 @@ class CalibratedSource:
         length (the longest a chart asks for), so their delay compensation holds the
         same frames back; a channel without a curve gets a flat one (a pure delay,
         compensated: its samples pass unchanged).
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> from piezo.chain.curve import parse_response_curve
+        >>> curve = parse_response_curve("frequency_hz,relative_db\\n100,0\\n5000,1")
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("a", "b"), True)
+        >>> own = {0: (Chain(response_curve=curve), None)}
+        >>> src = CalibratedSource.of(rec, Chain(), channel_chains=own)
+        >>> [c.taps for c in src.correction()]      # one length: 10 Hz resolution at 48 kHz
+        [8193, 8193]
+        >>> CalibratedSource.of(rec, Chain()).correction() is None
+        True
         """
         curves = [c.response_curve for c in self.chains]
         if all(c is None for c in curves):

@@ -117,7 +117,7 @@ def bands(
             advance=advance,
         )
     result = measured.result
-    ref = measured.reference
+    ref = measured.level_reference
     doc = measured.to_dict()
     if csv is not None:
         write_text_atomic(csv, format_csv(result, source.channel_indices, ref))
@@ -129,7 +129,9 @@ def bands(
         err_console.print(f"table written: {csv}")
 
 
-def format_csv(result: BandResult, channels: tuple[int, ...], reference: float) -> str:
+def format_csv(
+    result: BandResult, channels: tuple[int, ...], reference: float | np.ndarray
+) -> str:
     """CSV text: one row per band (Leq), or per interval and band with ``--interval``."""
     levels = result.level_db(reference)
     cols = [f"ch{ch}_dB" for ch in channels]

@@ -6,7 +6,9 @@ and the response plot. The JSON documents come from :mod:`piezo.response.summary
 
 from __future__ import annotations
 
+import datetime
 import math
+import os
 import re
 from dataclasses import replace
 from pathlib import Path
@@ -14,7 +16,9 @@ from typing import Annotated, Any
 
 import numpy as np
 import typer
+from rich.table import Table
 
+from piezo.chain.measurement import CalibratedSource, profile_for_sensor
 from piezo.chain.units import format_uncertain, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
@@ -34,7 +38,13 @@ from piezo.response.fit import (
     format_response_csv,
     read_response_table,
 )
-from piezo.response.summary import fit_document, h1_response_of, table_subset
+from piezo.response.summary import (
+    Comparison,
+    comparison_of,
+    fit_document,
+    h1_response_of,
+    table_subset,
+)
 
 FRONTEND_CAUTION = (
     "Fitted values are an engineering estimate of the sensor and front-end; confirm them "
@@ -217,6 +227,33 @@ def response(
     smooth: SmoothOption = 6,
     csv: CsvOption = None,
     plot: PlotOption = None,
+    reference_uncertainty: Annotated[
+        str | None,
+        typer.Option(
+            "--reference-uncertainty",
+            metavar="DB",
+            help="Comparison: the reference sensor's expanded uncertainty (k = 2), e.g. "
+            "'0.2 dB', when its chart has no expanded_uncertainty_db column.",
+        ),
+    ] = None,
+    write_curve: Annotated[
+        Path | None,
+        typer.Option(
+            "--write-curve",
+            metavar="OUT.csv",
+            help="Comparison: write the (first) unit's response curve, relative to its "
+            "sensitivity at --reference-frequency, in the response-curve format.",
+        ),
+    ] = None,
+    write_profile: Annotated[
+        Path | None,
+        typer.Option(
+            "--write-profile",
+            metavar="OUT.toml",
+            help="Comparison: write a profile for the (first) unit: quantity, sensitivity "
+            "at --reference-frequency, the curve of --write-curve.",
+        ),
+    ] = None,
     force: ForceOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
@@ -229,8 +266,27 @@ def response(
     is ignored), so H1 is in V/V. Numbers are fitted where the coherence is at least
     --min-coherence (the fit is skipped, and says why, when fewer than 6 points are);
     the table and plot show every frequency.
+
+    When the reference channel has a sensitivity (its chain: a profile's [channel.N]
+    section with its response curve), the measured channels are calibrated against it by
+    the back-to-back comparison method (ISO 16063-21; IEC 60565 and IEC 61094-5 in
+    pressure): each unit's sensitivity against frequency in its quantity's unit, with an
+    expanded uncertainty and its GUM budget (docs/uncertainty.md).
     """
-    refuse_existing(csv, plot, force=force)
+    refuse_existing(csv, plot, write_curve, write_profile, force=force)
+    ref_expanded_db = (
+        None
+        if reference_uncertainty is None
+        else parse_quantity(
+            reference_uncertainty.replace("dB", ""), "", what="--reference-uncertainty"
+        )
+    )
+    if ref_expanded_db is not None and not (
+        math.isfinite(ref_expanded_db) and ref_expanded_db > 0
+    ):
+        raise InputError(
+            f"--reference-uncertainty must be positive, got {reference_uncertainty!r}"
+        )
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     measured = list(src.channel) if src.channel else None
     source = open_source(file, replace(src, channel=None))
@@ -251,6 +307,36 @@ def response(
     tables = [ch.table for ch in analysis.channels]
     first = channels[0]
     result = analysis.estimate
+    comparison, skipped = None, None
+    if source.chain_of(reference_channel).calibrated:
+        try:
+            comparison = comparison_of(
+                source,
+                result,
+                reference_hz=ref_hz,
+                reference_expanded_db=ref_expanded_db,
+                min_coherence=min_coherence,
+            )
+        except InputError as exc:
+            if write_curve is not None or write_profile is not None:
+                raise
+            skipped = exc.message
+    elif write_curve is not None or write_profile is not None:
+        raise InputError(
+            f"--write-curve and --write-profile need a comparison: give the reference "
+            f"channel {reference_channel} its sensitivity (a profile's [channel.N] section)",
+            source=str(file),
+        )
+    if comparison is not None:
+        doc["comparison"] = comparison.to_dict()
+    if skipped is not None:
+        doc["comparison_skipped_reason"] = skipped
+    if comparison is not None and write_curve is not None:
+        write_text_atomic(write_curve, comparison.channels[0].chart_text())
+    if comparison is not None and write_profile is not None:
+        write_text_atomic(
+            write_profile, _unit_profile(source, comparison, write_curve, write_profile)
+        )
     if csv is not None:
         write_csv(csv, tables[0])
     if plot is not None:
@@ -274,9 +360,85 @@ def response(
                 print_fit(entry)
             else:
                 _print_h1_only(entry)
-    for path, what in ((csv, "table"), (plot, "plot")):
+        if comparison is not None:
+            _print_comparison(comparison.to_dict())
+        elif skipped is not None:
+            console.print(f" comparison skipped: {skipped}")
+    for path, what in (
+        (csv, "table"),
+        (plot, "plot"),
+        (write_curve if comparison else None, "response curve"),
+        (write_profile if comparison else None, "profile"),
+    ):
         if path is not None:
             err_console.print(f"{what} written: {path}")
+
+
+def _unit_profile(
+    source: CalibratedSource, comparison: Comparison, curve: Path | None, profile: Path
+) -> str:
+    """The first unit's profile text, its chart named relative to the profile."""
+    unit = comparison.channels[0]
+    name = serial = None
+    prov = source.provenance_of(unit.channel)
+    for prof in prov.profiles if prov is not None else ():
+        for part in (prof, prof.channels.get(unit.channel)):
+            if part is not None:
+                name = part.name or name
+                serial = part.serial or serial
+    chart = None
+    if curve is not None:
+        chart = os.path.relpath(curve.resolve(), profile.resolve().parent)
+    r = unit.result
+    index = int(np.argmin(np.abs(r.frequency_hz - r.reference_frequency_hz)))
+    return profile_for_sensor(
+        unit.sensitivity,
+        calibration_date=datetime.date.today().isoformat(),
+        reference_frequency_hz=float(r.frequency_hz[index]),
+        response_curve=chart,
+        name=name,
+        serial=serial,
+    )
+
+
+def _print_comparison(doc: dict[str, Any]) -> None:
+    """Terminal summary of a comparison: sensitivity, U and the GUM budget per unit."""
+    console.print(
+        f" comparison against channel {doc['reference_channel']} "
+        f"({doc['reference_sensitivity']}"
+        + (f", chart {doc['reference_response_curve']}" if doc["reference_response_curve"] else "")
+        + ")"
+    )
+    for ch in doc["channels"]:
+        # Uncertainties to two significant digits (GUM 7.2.6), k stated (7.2.4).
+        console.print(
+            f"  channel {ch['channel']} ({ch['quantity']}): [bold]{ch['sensitivity']}[/bold] at "
+            f"{ch['reference_frequency_hz']:.4g} Hz, U = {ch['expanded_uncertainty_db']:#.2g} dB "
+            f"(k = {ch['coverage_factor']:.2f}, about 95 %)"
+        )
+        budget = ch["budget"]
+        table = Table(box=None, pad_edge=False, header_style="bold")
+        for name in ("component", "distribution", "u (dB)", "ν"):
+            table.add_column(name, justify="left" if name == "component" else "right")
+        for c in budget["components"]:
+            nu = c["degrees_of_freedom"]
+            table.add_row(
+                c["name"], c["distribution"], f"{c['contribution']:#.2g}",
+                "∞" if nu is None else f"{nu:.0f}",
+            )  # fmt: skip
+        nu_eff = budget["effective_degrees_of_freedom"]
+        table.add_row(
+            "combined", "", f"{budget['combined_standard_uncertainty']:#.2g}",
+            "∞" if nu_eff is None else f"{nu_eff:.3g}",
+        )  # fmt: skip
+        console.print(table)
+        chart = ch["chart"]
+        if chart["frequency_hz"]:
+            console.print(
+                f"  chart: {len(chart['frequency_hz'])} frequencies "
+                f"{chart['frequency_hz'][0]:.4g} – {chart['frequency_hz'][-1]:.4g} Hz, "
+                f"relative {min(chart['relative_db']):+.2f} to {max(chart['relative_db']):+.2f} dB"
+            )
 
 
 def _print_h1_only(entry: dict[str, Any]) -> None:

@@ -130,8 +130,10 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
             "quantity": "sensor sensitivity",
             "value": (
                 "none: results in volts"
-                if sens is None
+                if not chain.calibrated
                 else f"{format_quantity(sens, 'V/Pa')} ({ratio_to_db(sens):.2f} dB re 1 V/Pa)"
+                if sens is not None
+                else f"{chain.sensitivity_text} ({chain.quantity})"
             ),
             "source": origin.get("sensitivity_v_per_pa", "default"),
         }

@@ -18,7 +18,9 @@ from typing import Any
 import numpy as np
 
 from piezo.chain.measurement import CalibratedSource
+from piezo.chain.quantity import QUANTITIES, Sensitivity, format_sensitivity
 from piezo.errors import InputError
+from piezo.response.comparison import ComparisonResult, compare_back_to_back
 from piezo.response.fit import (
     GoldenDeviation,
     ResponseFit,
@@ -31,9 +33,12 @@ from piezo.response.stimulus import SweepSpec
 from piezo.results import to_jsonable
 
 __all__ = [
+    "Comparison",
+    "ComparisonChannel",
     "H1Analysis",
     "H1Channel",
     "SweepAnalysis",
+    "comparison_of",
     "fit_document",
     "golden_document",
     "h1_response_of",
@@ -527,3 +532,203 @@ def h1_response_of(
             raise exc.with_source(file) from None
         channels.append(H1Channel(int(ch), table, fit, int(keep.sum())))
     return H1Analysis(file, estimate, min_coherence, tuple(channels))
+
+
+@dataclass(frozen=True)
+class ComparisonChannel:
+    """One unit under test calibrated against the reference channel.
+
+    Attributes
+    ----------
+    channel
+        The unit's channel (0-based).
+    result
+        The comparison (:func:`~piezo.response.comparison.compare_back_to_back`).
+    stated
+        The unit's sensitivity as its chain states it (V per SI unit), or None.
+    min_coherence
+        Frequencies below this coherence are left out of the chart.
+    band_hz
+        The band written to a chart: the reference's chart range within the estimate's.
+    """
+
+    channel: int
+    result: ComparisonResult
+    stated: float | None
+    min_coherence: float
+    band_hz: tuple[float, float]
+
+    @property
+    def sensitivity(self) -> Sensitivity:
+        """The unit's measured sensitivity at the reference frequency."""
+        return Sensitivity(self.result.sensitivity_at_reference, "V", self.result.quantity)
+
+    def chart_text(self) -> str:
+        """The unit's response curve (relative to :attr:`sensitivity`) as CSV text."""
+        return self.result.chart_text(
+            low_hz=self.band_hz[0], high_hz=self.band_hz[1], min_coherence=self.min_coherence
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """The channel's entry of the ``comparison`` part of ``piezo response --json``."""
+        r = self.result
+        index = int(np.argmin(np.abs(r.frequency_hz - r.reference_frequency_hz)))
+        keep = (
+            (r.frequency_hz >= self.band_hz[0])
+            & (r.frequency_hz <= self.band_hz[1])
+            & (r.coherence >= self.min_coherence)
+        )
+        return to_jsonable(
+            {
+                "channel": self.channel,
+                "quantity": r.quantity.name,
+                "reference_frequency_hz": float(r.frequency_hz[index]),
+                "sensitivity_v_per_unit": r.sensitivity_at_reference,
+                "sensitivity": format_sensitivity(self.sensitivity),
+                "stated_sensitivity_v_per_unit": self.stated,
+                "expanded_uncertainty_db": float(r.expanded_uncertainty_db[index]),
+                "coverage_factor": float(r.coverage_factor[index]),
+                "independent_averages": r.independent_averages,
+                "budget": r.reference_budget.to_dict(),
+                "band_hz": list(self.band_hz),
+                "chart": {
+                    "frequency_hz": r.frequency_hz[keep],
+                    "relative_db": r.relative_db[keep],
+                    "phase_deg": r.phase_deg[keep],
+                    "expanded_uncertainty_db": r.expanded_uncertainty_db[keep],
+                    "coherence": r.coherence[keep],
+                },
+            }
+        )
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """A back-to-back comparison calibration of every measured channel.
+
+    Attributes
+    ----------
+    reference_channel
+        The reference sensor's channel.
+    reference
+        Its stated sensitivity (from its chain).
+    reference_curve_file
+        Its response curve (chart), or None.
+    channels
+        One :class:`ComparisonChannel` per unit under test.
+    """
+
+    reference_channel: int
+    reference: Sensitivity
+    reference_curve_file: str | None
+    channels: tuple[ComparisonChannel, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``comparison`` part of the ``piezo response --json`` document."""
+        return to_jsonable(
+            {
+                "method": "back-to-back comparison (ISO 16063-21; IEC 60565, IEC 61094-5)",
+                "reference_channel": self.reference_channel,
+                "reference_sensitivity": format_sensitivity(self.reference),
+                "reference_sensitivity_v_per_unit": self.reference.value,
+                "reference_response_curve": self.reference_curve_file,
+                "coverage": "expanded uncertainty U = k·u_c, k from Student's t, about 95 %",
+                "channels": [c.to_dict() for c in self.channels],
+            }
+        )
+
+
+def comparison_of(
+    source: CalibratedSource,
+    estimate: TransferEstimate,
+    *,
+    reference_hz: float = 1000.0,
+    reference_expanded_db: float | None = None,
+    min_coherence: float = 0.99,
+) -> Comparison:
+    """The units' sensitivities against frequency from a calibrated reference channel.
+
+    ``estimate`` is the H1 of the units' volts over the reference's volts (as
+    :func:`h1_response_of` gives it); the reference's sensitivity and response curve come
+    from its chain in ``source`` (its profile's ``[channel.N]`` section, or options).
+    Each unit must measure the reference's quantity. The procedure is the back-to-back
+    comparison of ISO 16063-21 (IEC 60565, IEC 61094-5 in pressure).
+
+    Parameters
+    ----------
+    reference_hz
+        Frequency of each unit's stated sensitivity; its chart is relative to it.
+    reference_expanded_db
+        The reference's expanded uncertainty (k = 2), dB, when its chart has no
+        ``expanded_uncertainty_db`` column.
+    min_coherence
+        Frequencies below this coherence are left out of the written chart.
+
+    Raises
+    ------
+    InputError
+        The reference channel has no sensitivity, a unit measures another quantity, or
+        the reference's uncertainty is unknown.
+
+    Examples
+    --------
+    >>> import numpy as np, soundfile as sf, tempfile, pathlib, piezo
+    >>> x = np.random.default_rng(3).standard_normal(48000 * 4) * 0.1
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> sf.write(folder / "b2b.wav", np.column_stack([x, 0.5 * x]), 48000, subtype="FLOAT")
+    >>> _ = (folder / "b2b.toml").write_text('[channel.0]\\nsensitivity = "10 mV/g"\\n'
+    ...                                      '[channel.1]\\nquantity = "acceleration"\\n')
+    >>> src = piezo.open(folder / "b2b.wav")
+    >>> h1 = h1_response_of(src)
+    >>> cmp = comparison_of(src, h1.estimate, reference_expanded_db=0.2)
+    >>> cmp.channels[0].to_dict()["sensitivity"]      # half the reference's output
+    '0.5099 mV/(m/s²) (5.000 mV/g)'
+    """
+    file = str(source.recording.path)
+    ref_index = estimate.reference_channel
+    ref_chain = source.chain_of(ref_index)
+    if not ref_chain.calibrated or not ref_chain.measured.mechanical:
+        raise InputError(
+            f"a comparison needs the reference channel's sensitivity (channel {ref_index} "
+            "has none: give it in the profile's [channel.N] section)",
+            source=file,
+        )
+    reference = Sensitivity(
+        float(ref_chain.sensitivity_v_per_unit),  # type: ignore[arg-type]
+        "V",
+        QUANTITIES[ref_chain.quantity],
+    )
+    curve = ref_chain.response_curve
+    f = np.asarray(estimate.frequency_hz, dtype=float)
+    band = (float(f[1]), float(f[-1]))
+    if curve is not None:
+        band = (
+            max(band[0], float(curve.frequency_hz[0])),
+            min(band[1], float(curve.frequency_hz[-1])),
+        )
+    channels = []
+    for i, ch in enumerate(estimate.measured_channels):
+        unit_chain = source.chain_of(int(ch))
+        if unit_chain.quantity != ref_chain.quantity:
+            raise InputError(
+                f"channel {ch} measures {unit_chain.quantity}, the reference channel "
+                f"{ref_index} {ref_chain.quantity}: a comparison needs one quantity",
+                source=file,
+            )
+        try:
+            result = compare_back_to_back(
+                estimate,
+                reference=reference,
+                reference_curve=curve,
+                reference_expanded_db=reference_expanded_db,
+                reference_frequency_hz=reference_hz,
+                measured=i,
+            )
+        except InputError as exc:
+            raise exc.with_source(file) from None
+        channels.append(
+            ComparisonChannel(
+                int(ch), result, unit_chain.sensitivity_v_per_unit, min_coherence, band
+            )
+        )
+    return Comparison(ref_index, reference, ref_chain.response_curve_file, tuple(channels))

@@ -458,13 +458,15 @@ class BandResult:
         """Nominal mid-band frequencies, hertz."""
         return np.array([b.nominal_hz for b in self.bands])
 
-    def level_db(self, reference: float) -> np.ndarray:
-        """Band Leq in dB re ``reference`` (20 µPa, 1 µPa, or 1 V), ``(bands, channels)``."""
+    def level_db(self, reference: float | np.ndarray) -> np.ndarray:
+        """Band Leq in dB re ``reference`` (20 µPa, 1 µPa, or 1 V; or one per channel),
+        ``(bands, channels)``."""
         with np.errstate(divide="ignore"):
             return 10.0 * np.log10(self.mean_square / reference**2)
 
-    def history_db(self, reference: float) -> np.ndarray:
-        """Per-interval band levels in dB re ``reference``, ``(intervals, bands, channels)``."""
+    def history_db(self, reference: float | np.ndarray) -> np.ndarray:
+        """Per-interval band levels in dB re ``reference`` (one value, or one per channel),
+        ``(intervals, bands, channels)``."""
         with np.errstate(divide="ignore"):
             return 10.0 * np.log10(self.history_mean_square / reference**2)
 

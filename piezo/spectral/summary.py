@@ -9,6 +9,7 @@ and their ``to_dict()`` is the command's ``--json`` document.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -280,10 +281,22 @@ class Bands:
     quantity: str = "voltage"
     #: Where a channel's response curve does not cover the bands (end values held).
     response_curve_notes: tuple[str, ...] = ()
+    #: Each channel's quantity, unit, level unit and level reference (ISO 1683).
+    quantities: tuple[str, ...] = ()
+    units: tuple[str, ...] = ()
+    level_units: tuple[str, ...] = ()
+    references: tuple[float, ...] = ()
+
+    @property
+    def level_reference(self) -> float | np.ndarray:
+        """The reference of each channel's levels: one value, or one per channel."""
+        if self.references and len(set(self.references)) > 1:
+            return np.array(self.references)
+        return self.reference
 
     def level_db(self) -> np.ndarray:
-        """Band Leq in dB re the reference, shape ``(bands, channels)``."""
-        return self.result.level_db(self.reference)
+        """Band Leq in dB re each channel's reference, shape ``(bands, channels)``."""
+        return self.result.level_db(self.level_reference)
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo bands --json`` document (plain JSON values)."""
@@ -304,21 +317,30 @@ class Bands:
             "channels": [],
         }
         for i, ch in enumerate(self.channel_indices):
-            entry: dict[str, Any] = {
-                "channel": ch,
-                "bands": [
-                    {
-                        "nominal_hz": _nominal(b.nominal_hz),
-                        "exact_hz": b.exact_hz,
-                        "lower_hz": b.lower_hz,
-                        "upper_hz": b.upper_hz,
-                        "level_db": _finite(levels[j, i]),
-                    }
-                    for j, b in enumerate(result.bands)
-                ],
-            }
+            entry: dict[str, Any] = {"channel": ch}
+            if self.quantities:
+                entry.update(
+                    quantity=self.quantities[i],
+                    unit=self.units[i],
+                    level_unit=self.level_units[i],
+                    reference=self.references[i],
+                )
+            entry.update(
+                {
+                    "bands": [
+                        {
+                            "nominal_hz": _nominal(b.nominal_hz),
+                            "exact_hz": b.exact_hz,
+                            "lower_hz": b.lower_hz,
+                            "upper_hz": b.upper_hz,
+                            "level_db": _finite(levels[j, i]),
+                        }
+                        for j, b in enumerate(result.bands)
+                    ],
+                }
+            )
             if result.interval_s is not None:
-                hist = result.history_db(self.reference)[:, :, i]
+                hist = result.history_db(self.level_reference)[:, :, i]
                 entry["history"] = {
                     "time_s": result.history_time_s,
                     "interval_duration_s": result.history_duration_s,
@@ -389,16 +411,24 @@ def bands_of(
     source.feed(analyzer, advance=advance)
     result = analyzer.result()
     edges = (result.bands[0].lower_hz, result.bands[-1].upper_hz) if result.bands else None
+    chains = source.chains
+    units = source.units
+    level_units = tuple(c.level_unit for c in chains)
+    same = len(set(units)) == 1 and len(set(level_units)) == 1
     return Bands(
         file=str(source.recording.path),
-        unit=source.unit,
-        level_unit=source.level_unit,
-        reference=source.reference,
+        unit=units[0] if same else "per channel",
+        level_unit=level_units[0] if same else "per channel",
+        reference=float(source.references[0]) if same else math.nan,
         sample_rate_hz=source.sample_rate_hz,
         channel_indices=source.channel_indices,
         result=result,
         high_hz=float(high_hz),
         high_source="option" if given else "sample rate",
-        quantity=source.quantity.name,
+        quantity=chains[0].measured.name if same else "per channel",
         response_curve_notes=tuple(source.curve_notes(*edges)) if edges else (),
+        quantities=tuple(c.measured.name for c in chains),
+        units=units,
+        level_units=level_units,
+        references=tuple(float(r) for r in source.references),
     )

@@ -9,6 +9,7 @@ switched off through a Welch spectrum); :class:`Tone` holds the results and
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
@@ -82,6 +83,11 @@ class Tone:
     bandwidth_source: str = "option"
     #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
     quantity: str = "voltage"
+    #: Each channel's quantity, unit, level unit and level reference (ISO 1683).
+    quantities: tuple[str, ...] = ()
+    units: tuple[str, ...] = ()
+    level_units: tuple[str, ...] = ()
+    references: tuple[float, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo tone --json`` document (plain JSON values)."""
@@ -99,8 +105,11 @@ class Tone:
             "channels": [
                 {
                     "channel": ch,
+                    **self._channel_units(i),
                     "frequency_hz": r.frequency_hz,
-                    "level_db": r.level_db(self.reference),
+                    "level_db": r.level_db(
+                        self.references[i] if self.references else self.reference
+                    ),
                     "tone_rms": r.tone_rms,
                     "thd_percent": r.thd_percent,
                     "thd_n_percent": r.thd_n_percent,
@@ -118,10 +127,20 @@ class Tone:
                         for n, v in zip(r.harmonic_orders, r.harmonic_rms, strict=True)
                     ],
                 }
-                for ch, r in zip(self.channel_indices, self.results, strict=True)
+                for i, (ch, r) in enumerate(zip(self.channel_indices, self.results, strict=True))
             ],
         }
         return to_jsonable(doc)
+
+    def _channel_units(self, i: int) -> dict[str, Any]:
+        if not self.quantities:
+            return {}
+        return {
+            "quantity": self.quantities[i],
+            "unit": self.units[i],
+            "level_unit": self.level_units[i],
+            "reference": self.references[i],
+        }
 
 
 def tone_of(
@@ -212,17 +231,25 @@ def tone_of(
     except InputError as exc:
         raise exc.with_source(file) from None
     low, high = analyzer.bandwidth_hz
+    chains = source.chains
+    units = source.units
+    level_units = tuple(c.level_unit for c in chains)
+    same = len(set(units)) == 1 and len(set(level_units)) == 1
     return Tone(
         file=file,
         noise_file=None if noise is None else str(noise.recording.path),
-        unit=source.unit,
-        level_unit=source.level_unit,
-        reference=source.reference,
+        unit=units[0] if same else "per channel",
+        level_unit=level_units[0] if same else "per channel",
+        reference=float(source.references[0]) if same else math.nan,
         bandwidth_hz=(float(low), float(high)),
         channel_indices=source.channel_indices,
         results=tuple(results),
         bandwidth_source="option" if given else "sample rate",
-        quantity=source.quantity.name,
+        quantity=chains[0].measured.name if same else "per channel",
+        quantities=tuple(c.measured.name for c in chains),
+        units=units,
+        level_units=level_units,
+        references=tuple(float(r) for r in source.references),
     )
 
 

@@ -177,6 +177,18 @@ def test_channels_of_different_quantities_have_their_own_levels(cli, sine_wav):
     assert a["LZeq"] == pytest.approx(20 * math.log10(25 * G / math.sqrt(2) / 1e-6), abs=0.01)
     assert p["LZeq"] == pytest.approx(20 * math.log10(50 / math.sqrt(2) / 20e-6), abs=0.01)
     assert p["LAeq"] is not None and a["LAeq"] is None
+    # Bands and tone: each channel's level re its own reference (the 1 kHz octave band and
+    # the tone hold the whole sine: the same values as LZeq).
+    bands = cli("bands", sine_wav, "--fraction", "1", "--low", "1kHz", "--high", "1kHz",
+                "--json").json()  # fmt: skip
+    assert bands["level_unit"] == "per channel"
+    bp, ba = (ch["bands"][0]["level_db"] for ch in bands["channels"])
+    assert (bp, ba) == pytest.approx((p["LZeq"], a["LZeq"]), abs=0.05)  # class 1 ripple
+    assert [ch["unit"] for ch in bands["channels"]] == ["Pa", "m/s²"]
+    tone = cli("tone", sine_wav, "--json").json()
+    tp, ta = (ch["level_db"] for ch in tone["channels"])
+    assert (tp, ta) == pytest.approx((p["LZeq"], a["LZeq"]), abs=0.01)
+    assert [ch["level_unit"] for ch in tone["channels"]] == ["dB re 20 µPa", "dB re 1 µm/s²"]
     r = cli("spectrum", sine_wav, "--json")
     assert r.code == 2 and "differ in unit" in r.err
 

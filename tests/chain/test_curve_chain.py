@@ -145,3 +145,9 @@ def test_the_worked_example_of_the_profile_docs(cli, tmp_path):
     # 0.02 dB: the FIR's ripple at 8 kHz is far smaller; the file's edges (a half-length of
     # 0.68 s seen against silence) cost less than that over 4 s.
     assert fixed == pytest.approx(expected, abs=0.02)
+
+
+def test_volts_at_the_sensor_leave_the_curve_out(bench):
+    src = piezo.open(bench / "sensed.wav", response_curve=bench / "chart.csv")
+    volts = np.concatenate(list(src.volts_at_sensor().blocks()))
+    np.testing.assert_array_equal(volts[:, 0], sf.read(bench / "sensed.wav")[0])
