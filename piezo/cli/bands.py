@@ -112,7 +112,9 @@ def bands(
     ref = measured.reference
     doc = measured.to_dict()
     if csv is not None:
-        write_text_atomic(csv, format_csv(result, source.channel_indices, ref))
+        write_text_atomic(
+            csv, format_csv(result, source.channel_indices, ref, measured.level_unit)
+        )
     if json_out:
         emit_json(doc)
     else:
@@ -121,23 +123,30 @@ def bands(
         err_console.print(f"table written: {csv}")
 
 
-def format_csv(result: BandResult, channels: tuple[int, ...], reference: float) -> str:
-    """CSV text: one row per band (Leq), or per interval and band with ``--interval``."""
+def format_csv(
+    result: BandResult, channels: tuple[int, ...], reference: float, level_unit: str
+) -> str:
+    """CSV text: one row per band (Leq), or per interval and band with ``--interval``.
+
+    Band levels are in columns ``ch<N>_level_db``; a ``# column: unit`` comment line above
+    the header names their reference (``level_unit``, docs/glossary.md).
+    """
     levels = result.level_db(reference)
-    cols = [f"ch{ch}_dB" for ch in channels]
+    cols = [f"ch{ch}_level_db" for ch in channels]
+    comments = ["piezo band table", *(f"{c}: {level_unit}" for c in cols)]
     if result.interval_s is None:
         rows = (
             [f"{b.nominal_hz:g}", f"{b.exact_hz:.4f}", *(_fmt(v) for v in levels[j])]
             for j, b in enumerate(result.bands)
         )
-        return csv_text(["nominal_hz", "exact_hz", *cols], rows)
+        return csv_text(["nominal_hz", "exact_hz", *cols], rows, comments=comments)
     hist = result.history_db(reference)
     timed = (
         [f"{t:.6g}", f"{b.nominal_hz:g}", f"{b.exact_hz:.4f}", *(_fmt(v) for v in row[j])]
         for t, row in zip(result.history_time_s, hist, strict=True)
         for j, b in enumerate(result.bands)
     )
-    return csv_text(["time_s", "nominal_hz", "exact_hz", *cols], timed)
+    return csv_text(["time_s", "nominal_hz", "exact_hz", *cols], timed, comments=comments)
 
 
 def _fmt(value: float) -> str:
