@@ -203,7 +203,10 @@ def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit
     console.print(f"[bold]{doc['file']}[/bold]")
     ci = doc["confidence"]
     ci_text = (
-        f", 95 % interval {ci['lower_db']:+.2f}/{ci['upper_db']:+.2f} dB" if ci is not None else ""
+        f", {100 * ci['coverage_probability']:g} % interval "
+        f"{ci['lower_db']:+.2f}/{ci['upper_db']:+.2f} dB"
+        if ci is not None
+        else ""
     )
     console.print(
         f"  {doc['window']} window, {result.segment_frames} samples "
