@@ -24,6 +24,7 @@ from piezo.cli.output import (
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
 from piezo.io.tables import csv_text
+from piezo.plots.style import axis_label
 from piezo.spectral.bands import FRACTIONS, BandResult
 from piezo.spectral.summary import bands_of
 
@@ -166,7 +167,7 @@ def _print(doc: dict) -> None:
             f"{doc['sample_rate_hz']:g} Hz sampling (--high to change)"
         )
     table = Table(box=None, pad_edge=False, header_style="bold")
-    table.add_column("band Hz", justify="right")
+    table.add_column(axis_label("band", "Hz"), justify="right")
     for entry in doc["channels"]:
         table.add_column(f"ch {entry['channel']}", justify="right")
     nb = len(doc["channels"][0]["bands"])

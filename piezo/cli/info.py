@@ -13,6 +13,7 @@ from rich.table import Table
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.levels.stats import SignalStats
+from piezo.plots.style import axis_label
 
 
 def register(app: typer.Typer) -> None:
@@ -113,16 +114,16 @@ def _print(doc: dict, *, calibrated: bool) -> None:
     )
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("ch", justify="right")
-    table.add_column("peak dBFS", justify="right")
-    table.add_column("RMS dBFS", justify="right")
+    table.add_column(axis_label("peak", "dBFS"), justify="right")
+    table.add_column(axis_label("RMS", "dBFS"), justify="right")
     if calibrated:
-        table.add_column("peak Pa", justify="right")
-        table.add_column("RMS Pa", justify="right")
-        table.add_column(f"RMS {doc['level_unit']}", justify="right")
+        table.add_column(axis_label("peak", "Pa"), justify="right")
+        table.add_column(axis_label("RMS", "Pa"), justify="right")
+        table.add_column(axis_label("RMS", doc["level_unit"]), justify="right")
     else:
-        table.add_column("peak V", justify="right")
-        table.add_column("RMS V", justify="right")
-        table.add_column("RMS dB re 1 V", justify="right")
+        table.add_column(axis_label("peak", "V"), justify="right")
+        table.add_column(axis_label("RMS", "V"), justify="right")
+        table.add_column(axis_label("RMS", "dB re 1 V"), justify="right")
     for ch in doc["channels"]:
         row = [str(ch["channel"]), _fmt(ch["peak_dbfs"]), _fmt(ch["rms_dbfs"])]
         if calibrated:
