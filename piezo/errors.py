@@ -22,6 +22,14 @@ class PiezoError(Exception):
     source
         The file (or other input) the problem belongs to, if any. The command line
         prints it in front of the message.
+
+    Examples
+    --------
+    >>> err = PiezoError("sample rate must be positive")
+    >>> str(err.with_source("run-07.wav"))
+    'run-07.wav: sample rate must be positive'
+    >>> str(err.with_source("other.wav"))  # keeps the first source
+    'run-07.wav: sample rate must be positive'
     """
 
     def __init__(self, message: str, *, source: str | None = None) -> None:
@@ -42,23 +50,67 @@ class PiezoError(Exception):
 
 
 class InputError(PiezoError, ValueError):
-    """A value, option or file content that cannot be used as given."""
+    """A value, option or file content that cannot be used as given.
+
+    Examples
+    --------
+    >>> issubclass(InputError, PiezoError), issubclass(InputError, ValueError)
+    (True, True)
+    >>> try:
+    ...     raise InputError("channel 3 does not exist (the file has 2)")
+    ... except ValueError as exc:
+    ...     print(exc)
+    channel 3 does not exist (the file has 2)
+    """
 
 
 class UnitError(InputError):
-    """A quantity whose text cannot be parsed or has the wrong unit."""
+    """A quantity whose text cannot be parsed or has the wrong unit.
+
+    Examples
+    --------
+    >>> from piezo.chain.units import parse_quantity
+    >>> try:
+    ...     parse_quantity("47 nH", "F", what="capacitance")
+    ... except UnitError as exc:
+    ...     print(exc)
+    capacitance: unknown unit in '47 nH'; expected a number ... and unit F
+    """
 
 
 class RecordingError(PiezoError, OSError):
-    """A recording that is missing, unreadable, empty or corrupt."""
+    """A recording that is missing, unreadable, empty or corrupt.
+
+    Examples
+    --------
+    Also an :class:`OSError`, so code that handles file failures catches it:
+
+    >>> isinstance(RecordingError("no audio frames", source="empty.wav"), OSError)
+    True
+    >>> str(RecordingError("no audio frames", source="empty.wav"))
+    'empty.wav: no audio frames'
+    """
 
 
 class SpecError(InputError):
-    """A limit specification, profile or design file that is invalid."""
+    """A limit specification, profile or design file that is invalid.
+
+    Examples
+    --------
+    >>> issubclass(SpecError, InputError), issubclass(SpecError, ValueError)
+    (True, True)
+    """
 
 
 class OutputError(PiezoError, OSError):
-    """An output path that cannot be written: a folder, read-only, full disk, a link."""
+    """An output path that cannot be written: a folder, read-only, full disk, a link.
+
+    Examples
+    --------
+    >>> err = OutputError(os_reason(IsADirectoryError(21, "Is a directory")), source="out")
+    >>> isinstance(err, OSError), str(err)
+    (True, 'out: is a directory')
+    """
 
 
 def os_reason(exc: OSError) -> str:

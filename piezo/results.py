@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["to_jsonable"]
+__all__ = ["reference_key", "to_jsonable"]
 
 
 def to_jsonable(obj: Any) -> Any:
@@ -41,3 +41,18 @@ def to_jsonable(obj: Any) -> Any:
     if isinstance(obj, Path):
         return str(obj)
     return obj
+
+
+def reference_key(unit: str) -> str:
+    """The JSON key of a level reference, named by its unit (docs/glossary.md).
+
+    Pa gives ``reference_pa``, 1 V ``reference_v``; the mechanical units are spelt out
+    (``m/s²`` gives ``reference_m_per_s2``).
+
+    Examples
+    --------
+    >>> reference_key("Pa"), reference_key("V"), reference_key("m/s²")
+    ('reference_pa', 'reference_v', 'reference_m_per_s2')
+    """
+    slug = unit.replace("²", "2").replace("/", "_per_").lower()
+    return f"reference_{slug}"

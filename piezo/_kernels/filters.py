@@ -11,8 +11,9 @@ Three kernels live here:
 :func:`level_meter_block`
     One pass over a block that does everything :class:`piezo.levels.meter.LevelMeter` needs
     per sample: the C and A weighting cascades, sums of squares, Z and C peaks, the F
-    and S exponential averagers with their maxima and minima, the F level samples for
-    the percentile histogram, and the level history (interval sums, F/S traces).
+    and S exponential averagers of the A-, C- and Z-weighted squares with their maxima
+    and minima, the A-F and A-S level samples for the percentile histograms, and the
+    level history (interval sums, A-F maxima and C peaks, F/S traces).
 
 The band-bank kernels (:class:`SOSBank`)
     Many filters driven by one input (a stage of the fractional-octave filter bank of
@@ -58,12 +59,21 @@ from piezo._kernels.cache import compile_cached
 
 __all__ = [
     "BANK_SECTIONS",
+    "INTERVAL_ROWS",
     "N_STATE",
+    "ST_CF",
+    "ST_CF_MAX",
+    "ST_CF_MIN",
+    "ST_CS",
+    "ST_CS_MAX",
+    "ST_CS_MIN",
     "ST_F",
     "ST_F_MAX",
     "ST_F_MIN",
     "ST_INT_A",
     "ST_INT_C",
+    "ST_INT_F_MAX",
+    "ST_INT_PEAK_C",
     "ST_INT_Z",
     "ST_PEAK_C",
     "ST_PEAK_Z_AFTER",
@@ -74,6 +84,12 @@ __all__ = [
     "ST_SUM_Z",
     "ST_S_MAX",
     "ST_S_MIN",
+    "ST_ZF",
+    "ST_ZF_MAX",
+    "ST_ZF_MIN",
+    "ST_ZS",
+    "ST_ZS_MAX",
+    "ST_ZS_MIN",
     "SOSBank",
     "bank_kernel_source",
     "level_meter_block",
@@ -200,15 +216,54 @@ ST_S_MIN = 11
 ST_INT_Z = 12  # sums of the history interval in progress
 ST_INT_C = 13
 ST_INT_A = 14
-N_STATE = 15
+# F and S averagers of the C- and Z-weighted squares, and their extremes.
+ST_CF = 15
+ST_CS = 16
+ST_ZF = 17
+ST_ZS = 18
+ST_CF_MAX = 19
+ST_CF_MIN = 20
+ST_CS_MAX = 21
+ST_CS_MIN = 22
+ST_ZF_MAX = 23
+ST_ZF_MIN = 24
+ST_ZS_MAX = 25
+ST_ZS_MIN = 26
+ST_INT_F_MAX = 27  # largest A-F value of the history interval in progress (after settling)
+ST_INT_PEAK_C = 28  # largest |yC| of the interval in progress (after settling)
+N_STATE = 29
+#: Rows of the extremes that start open: maxima at -inf, minima at +inf.
+_MAX_ROWS = (ST_F_MAX, ST_S_MAX, ST_CF_MAX, ST_CS_MAX, ST_ZF_MAX, ST_ZS_MAX)
+_MIN_ROWS = (ST_F_MIN, ST_S_MIN, ST_CF_MIN, ST_CS_MIN, ST_ZF_MIN, ST_ZS_MIN)
+#: Rows of each history interval in ``interval_out``: Z, C, A sums, A-F max, C peak.
+INTERVAL_ROWS = 5
 
 
 def new_level_state(channels: int) -> np.ndarray:
     """Fresh state (N_STATE, channels) for :func:`level_meter_block`: all zero, extremes open."""
     state = np.zeros((N_STATE, channels))
-    state[[ST_F_MAX, ST_S_MAX]] = -np.inf
-    state[[ST_F_MIN, ST_S_MIN]] = np.inf
+    state[list(_MAX_ROWS)] = -np.inf
+    state[list(_MIN_ROWS)] = np.inf
+    state[[ST_INT_F_MAX, ST_INT_PEAK_C]] = -np.inf
     return state
+
+
+@numba.njit(inline="always", **_OPTIONS)
+def _count_level(hist, c, value, ref_sq, low_db, step_db):
+    """Count ``value`` (a mean square) in the level histogram ``hist[c]``.
+
+    Returns (zero, clipped): 1 where the value is exactly zero (not counted in a bin)
+    or its level lies outside the histogram (counted in the end bin), else 0.
+    """
+    if value <= 0.0:
+        return 1, 0
+    n_bins = hist.shape[1]
+    fbin = math.floor((10.0 * math.log10(value / ref_sq) - low_db) / step_db)
+    if fbin >= 0.0 and fbin < n_bins:
+        hist[c, int(fbin)] += 1
+        return 0, 0
+    hist[c, n_bins - 1 if fbin >= 0.0 else 0] += 1  # out of range, or not a number
+    return 0, 1
 
 
 @_jit
@@ -221,6 +276,8 @@ def level_meter_block(
     state,
     hist,
     hist_other,
+    hist_s,
+    hist_s_other,
     frame0,
     starts,
     periods,
@@ -246,27 +303,33 @@ def level_meter_block(
     state
         (N_STATE, channels) float64 accumulators (rows ``ST_*``), updated.
     hist, hist_other
-        int64 (channels, bins) histogram of the F level in bins of ``hist_step_db`` from
-        ``hist_low_db``, and (2, channels) counts of F values exactly zero (row 0) and
-        of levels outside the histogram (row 1, counted in the end bins too). Updated.
+        int64 (channels, bins) histogram of the A-F level in bins of ``hist_step_db``
+        from ``hist_low_db``, and (2, channels) counts of F values exactly zero (row 0)
+        and of levels outside the histogram (row 1, counted in the end bins too). Updated.
+    hist_s, hist_s_other
+        The same for the A-S level.
     frame0
         Index of the block's first frame in the recording.
     starts
-        int64 [settle, f_min, percentiles, s_min]: first frame counted for LCpeak,
-        LAFmax and LASmax; LAFmin; the percentile samples; LASmin.
+        int64 [settle, f_min, percentiles, s_min]: first frame counted for the peaks and
+        the F and S maxima (every weighting) and the per-interval maxima; the F minima;
+        the F percentile samples; the S minima and the S percentile samples.
     periods
-        int64 [percentile, trace, interval] in frames. The F level is sampled at every
-        frame n with (n + 1) % period == 0. ``interval`` 0: no history (``trace`` and
-        ``interval`` unused, output buffers untouched).
+        int64 [percentile, trace, interval] in frames. The F and S levels are sampled at
+        every frame n with (n + 1) % period == 0. ``interval`` 0: no history (``trace``
+        and ``interval`` unused, output buffers untouched).
     a_f, a_s
-        Poles of the F and S averagers, ``y = a y + (1 - a) yA^2``.
+        Poles of the F and S averagers, ``y = a y + (1 - a) q`` for the squares ``q``
+        of the A-, C- and Z-weighted signal.
     ref_sq
         Square of the reference value (levels in dB re it).
     trace_out
-        float64 (2, channels, >= frames // trace + 1): F and S values at trace instants.
+        float64 (2, channels, >= frames // trace + 1): A-F and A-S values at trace
+        instants.
     interval_out
-        float64 (>= frames // interval + 1, 3, channels): Z, C, A sums of the history
-        intervals completed in this block.
+        float64 (>= frames // interval + 1, INTERVAL_ROWS, channels): Z, C, A sums, the
+        largest A-F value and the largest |yC| of the history intervals completed in
+        this block (the maxima count from the settling frame on; -inf before it).
 
     Returns
     -------
@@ -301,7 +364,6 @@ def level_meter_block(
         sum_z[c] = total
     b_f = 1.0 - a_f
     b_s = 1.0 - a_s
-    n_bins = hist.shape[1]
     pct_every, trace_every, interval_every = periods[0], periods[1], periods[2]
     history = interval_every > 0
     # Local indices from which each statistic counts in this block.
@@ -319,11 +381,18 @@ def level_meter_block(
         zc00, zc01, zc10, zc11 = zi_c[0, 0, c], zi_c[0, 1, c], zi_c[1, 0, c], zi_c[1, 1, c]
         za00, za01, za10, za11 = zi_a[0, 0, c], zi_a[0, 1, c], zi_a[1, 0, c], zi_a[1, 1, c]
         yf, ys = state[ST_F, c], state[ST_S, c]
+        cf, cs = state[ST_CF, c], state[ST_CS, c]
+        zf, zs = state[ST_ZF, c], state[ST_ZS, c]
         f_max, f_min = state[ST_F_MAX, c], state[ST_F_MIN, c]
         s_max, s_min = state[ST_S_MAX, c], state[ST_S_MIN, c]
+        cf_max, cf_min = state[ST_CF_MAX, c], state[ST_CF_MIN, c]
+        cs_max, cs_min = state[ST_CS_MAX, c], state[ST_CS_MIN, c]
+        zf_max, zf_min = state[ST_ZF_MAX, c], state[ST_ZF_MIN, c]
+        zs_max, zs_min = state[ST_ZS_MAX, c], state[ST_ZS_MIN, c]
         pz_head, pz_after = state[ST_PEAK_Z_HEAD, c], state[ST_PEAK_Z_AFTER, c]
         pc = state[ST_PEAK_C, c]
         int_z, int_c, int_a = state[ST_INT_Z, c], state[ST_INT_C, c], state[ST_INT_A, c]
+        int_f_max, int_pc = state[ST_INT_F_MAX, c], state[ST_INT_PEAK_C, c]
         sum_c = 0.0
         sum_a = 0.0
         # Frames until the next sampling instant / interval end, counting the current
@@ -333,8 +402,7 @@ def level_meter_block(
         to_interval = interval_every - frame0 % interval_every if history else frames
         m_trace = 0
         m_interval = 0
-        zero = 0
-        clipped = 0
+        zero = clipped = zero_s = clipped_s = 0
         i = 0
         while i < frames:
             # A segment ends at the next event (sampling instant, interval end) or where
@@ -351,8 +419,8 @@ def level_meter_block(
             seg_z = 0.0
             seg_c = 0.0
             seg_a = 0.0
-            seg_f_max = seg_s_max = -math.inf
-            seg_f_min = seg_s_min = math.inf
+            seg_f_max = seg_s_max = seg_cf_max = seg_cs_max = seg_zf_max = seg_zs_max = -math.inf
+            seg_f_min = seg_s_min = seg_cf_min = seg_cs_min = seg_zf_min = seg_zs_min = math.inf
             for j in range(i, end):
                 v = x[j, c]
                 yc, zc00, zc01 = _biquad(v, cb00, cb01, cb02, ca01, ca02, zc00, zc01)
@@ -360,17 +428,31 @@ def level_meter_block(
                 ya, za00, za01 = _biquad(yc, ab00, ab01, ab02, aa01, aa02, za00, za01)
                 ya, za10, za11 = _biquad(ya, ab10, ab11, ab12, aa11, aa12, za10, za11)
                 qa = ya * ya
-                seg_z += v * v
-                seg_c += yc * yc
+                qc = yc * yc
+                qz = v * v
+                seg_z += qz
+                seg_c += qc
                 seg_a += qa
                 seg_pz = max(seg_pz, abs(v))
                 seg_pc = max(seg_pc, abs(yc))
                 yf = a_f * yf + b_f * qa
                 ys = a_s * ys + b_s * qa
+                cf = a_f * cf + b_f * qc
+                cs = a_s * cs + b_s * qc
+                zf = a_f * zf + b_f * qz
+                zs = a_s * zs + b_s * qz
                 seg_f_max = max(seg_f_max, yf)
                 seg_f_min = min(seg_f_min, yf)
                 seg_s_max = max(seg_s_max, ys)
                 seg_s_min = min(seg_s_min, ys)
+                seg_cf_max = max(seg_cf_max, cf)
+                seg_cf_min = min(seg_cf_min, cf)
+                seg_cs_max = max(seg_cs_max, cs)
+                seg_cs_min = min(seg_cs_min, cs)
+                seg_zf_max = max(seg_zf_max, zf)
+                seg_zf_min = min(seg_zf_min, zf)
+                seg_zs_max = max(seg_zs_max, zs)
+                seg_zs_min = min(seg_zs_min, zs)
             sum_c += seg_c
             sum_a += seg_a
             if i >= i_settle:
@@ -378,28 +460,35 @@ def level_meter_block(
                 pc = max(pc, seg_pc)
                 f_max = max(f_max, seg_f_max)
                 s_max = max(s_max, seg_s_max)
+                cf_max = max(cf_max, seg_cf_max)
+                cs_max = max(cs_max, seg_cs_max)
+                zf_max = max(zf_max, seg_zf_max)
+                zs_max = max(zs_max, seg_zs_max)
+                int_f_max = max(int_f_max, seg_f_max)
+                int_pc = max(int_pc, seg_pc)
             else:
                 pz_head = max(pz_head, seg_pz)
             if i >= i_fmin:
                 f_min = min(f_min, seg_f_min)
+                cf_min = min(cf_min, seg_cf_min)
+                zf_min = min(zf_min, seg_zf_min)
             if i >= i_smin:
                 s_min = min(s_min, seg_s_min)
+                cs_min = min(cs_min, seg_cs_min)
+                zs_min = min(zs_min, seg_zs_min)
             count = end - i
             i = end
             to_pct -= count
             if to_pct == 0:  # frame end - 1 is a percentile sampling instant
                 to_pct = pct_every
                 if end - 1 >= i_pct:
-                    if yf <= 0.0:
-                        zero += 1
-                    else:
-                        level = 10.0 * math.log10(yf / ref_sq)
-                        fbin = math.floor((level - hist_low_db) / hist_step_db)
-                        if fbin >= 0.0 and fbin < n_bins:
-                            hist[c, int(fbin)] += 1
-                        else:  # out of range (or not a number): counted in an end bin
-                            clipped += 1
-                            hist[c, n_bins - 1 if fbin >= 0.0 else 0] += 1
+                    dz, dc = _count_level(hist, c, yf, ref_sq, hist_low_db, hist_step_db)
+                    zero += dz
+                    clipped += dc
+                if end - 1 >= i_smin:
+                    dz, dc = _count_level(hist_s, c, ys, ref_sq, hist_low_db, hist_step_db)
+                    zero_s += dz
+                    clipped_s += dc
             if history:
                 int_z += seg_z
                 int_c += seg_c
@@ -416,7 +505,10 @@ def level_meter_block(
                     interval_out[m_interval, 0, c] = int_z
                     interval_out[m_interval, 1, c] = int_c
                     interval_out[m_interval, 2, c] = int_a
+                    interval_out[m_interval, 3, c] = int_f_max
+                    interval_out[m_interval, 4, c] = int_pc
                     int_z = int_c = int_a = 0.0
+                    int_f_max = int_pc = -math.inf
                     m_interval += 1
         zi_c[0, 0, c], zi_c[0, 1, c], zi_c[1, 0, c], zi_c[1, 1, c] = zc00, zc01, zc10, zc11
         zi_a[0, 0, c], zi_a[0, 1, c], zi_a[1, 0, c], zi_a[1, 1, c] = za00, za01, za10, za11
@@ -424,13 +516,22 @@ def level_meter_block(
         state[ST_SUM_C, c] += sum_c
         state[ST_SUM_A, c] += sum_a
         state[ST_F, c], state[ST_S, c] = yf, ys
+        state[ST_CF, c], state[ST_CS, c] = cf, cs
+        state[ST_ZF, c], state[ST_ZS, c] = zf, zs
         state[ST_F_MAX, c], state[ST_F_MIN, c] = f_max, f_min
         state[ST_S_MAX, c], state[ST_S_MIN, c] = s_max, s_min
+        state[ST_CF_MAX, c], state[ST_CF_MIN, c] = cf_max, cf_min
+        state[ST_CS_MAX, c], state[ST_CS_MIN, c] = cs_max, cs_min
+        state[ST_ZF_MAX, c], state[ST_ZF_MIN, c] = zf_max, zf_min
+        state[ST_ZS_MAX, c], state[ST_ZS_MIN, c] = zs_max, zs_min
         state[ST_PEAK_Z_HEAD, c], state[ST_PEAK_Z_AFTER, c] = pz_head, pz_after
         state[ST_PEAK_C, c] = pc
         state[ST_INT_Z, c], state[ST_INT_C, c], state[ST_INT_A, c] = int_z, int_c, int_a
+        state[ST_INT_F_MAX, c], state[ST_INT_PEAK_C, c] = int_f_max, int_pc
         hist_other[0, c] += zero
         hist_other[1, c] += clipped
+        hist_s_other[0, c] += zero_s
+        hist_s_other[1, c] += clipped_s
         n_trace = m_trace
         n_interval = m_interval
     return n_trace, n_interval

@@ -6,5 +6,10 @@
 samples to physical units; ``open`` holds :func:`~piezo.chain.open.open_source`
 (``piezo.open``), which opens a file through its chain.
 
-May import: :mod:`piezo.errors`, :mod:`piezo.validate`, :mod:`piezo.io`, numpy.
+``quantity`` holds the measured quantities and trade-form sensitivities, ``curve`` the
+response curves and their correction, ``integrate`` the streamed integration of
+acceleration.
+
+May import: :mod:`piezo.errors`, :mod:`piezo.validate`, :mod:`piezo.io`,
+:mod:`piezo._kernels`, numpy, scipy.
 """

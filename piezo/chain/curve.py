@@ -208,8 +208,7 @@ class CurveCorrection:
         taps: int | None = None,
     ) -> None:
         if taps is None:
-            resolution_hz = max(float(curve.frequency_hz[0]) / 10.0, 0.5)
-            taps = int(2 ** math.ceil(math.log2(sample_rate_hz / resolution_hz))) + 1
+            taps = self.default_taps(curve, sample_rate_hz)
         if taps < 3 or taps % 2 == 0:
             raise InputError(f"taps must be an odd number of at least 3, got {taps}")
         self.sample_rate_hz = float(sample_rate_hz)
@@ -220,6 +219,19 @@ class CurveCorrection:
         self._skip = self.delay_frames
         self._frames_in = 0
         self._frames_out = 0
+
+    @staticmethod
+    def default_taps(curve: ResponseCurve, sample_rate_hz: float) -> int:
+        """The default FIR length: resolves a tenth of the chart's lowest frequency.
+
+        Examples
+        --------
+        >>> curve = parse_response_curve("frequency_hz,relative_db\\n100,0\\n10000,1")
+        >>> CurveCorrection.default_taps(curve, 48000.0)   # 10 Hz: 2^13 + 1
+        8193
+        """
+        resolution_hz = max(float(curve.frequency_hz[0]) / 10.0, 0.5)
+        return int(2 ** math.ceil(math.log2(sample_rate_hz / resolution_hz))) + 1
 
     def _design(self, curve: ResponseCurve) -> np.ndarray:
         n = self.taps

@@ -1,25 +1,30 @@
-"""The measurement chain: from raw samples to volts and pascals.
+"""The measurement chain: from raw samples to volts and physical units.
 
-A recording's samples pass, in the real world, through the sensor (sensitivity, V/Pa),
-an amplifier (gain, V/V) and an ADC (full scale, volts at digital full scale). Undoing the
-chain gives, per sample::
+A recording's samples pass, in the real world, through the sensor (sensitivity, V per unit
+of the measured quantity), an amplifier (gain, V/V) and an ADC (full scale, volts at
+digital full scale). Undoing the chain gives, per sample::
 
     volts_at_sensor = raw * full_scale_v / gain          (PCM files: raw is a fraction of FS)
     volts_at_sensor = raw / gain                         (CSV: raw is volts at the ADC)
-    pressure_pa     = volts_at_sensor / sensitivity_v_per_pa
+    value           = volts_at_sensor / sensitivity_v_per_unit
 
+The measured quantity (:mod:`piezo.chain.quantity`: pressure in Pa, acceleration in m/s²,
+velocity, displacement, force, charge) follows from the profile's ``quantity`` key or the
+sensitivity's unit (``"10 mV/g"`` is an acceleration sensitivity); the two must agree.
 Without a sensitivity the chain stops at volts, and levels are in dB re 1 V.
 
 Settings come, lowest priority first, from the defaults, a sidecar profile ``NAME.toml``
 next to ``NAME.wav``, a profile file given explicitly, and explicit values. Each value
 remembers where it came from (:class:`Provenance`), for reports.
 
-Reference pressures are those of ISO 1683:2015: 20 µPa in gases, 1 µPa in liquids.
+Level references are those of ISO 1683:2015: 20 µPa in gases, 1 µPa in liquids,
+1 µm/s², 1 nm/s, 1 pm, 1 µN.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -27,6 +32,16 @@ from typing import Any
 
 import numpy as np
 
+from piezo.chain.curve import CurveCorrection, ResponseCurve, parse_response_curve
+from piezo.chain.integrate import Integrator, integrated_quantity
+from piezo.chain.quantity import (
+    QUANTITIES,
+    Quantity,
+    Sensitivity,
+    format_sensitivity,
+    parse_sensitivity_of,
+    quantity_named,
+)
 from piezo.chain.units import (
     parse_charge_gain,
     parse_gain,
@@ -36,7 +51,7 @@ from piezo.chain.units import (
 )
 from piezo.errors import InputError, SpecError, UnitError
 from piezo.io.reader import Recording
-from piezo.io.text import parse_toml, read_toml
+from piezo.io.text import parse_toml, read_text, read_toml
 from piezo.io.toml import toml_value
 from piezo.validate import physical_value
 
@@ -48,6 +63,9 @@ __all__ = [
     "ChainSettings",
     "SensorProfile",
     "load_profile",
+    "load_response_curve",
+    "parse_chain_sensitivity",
+    "profile_paths",
     "profile_with_sensitivity",
     "resolve_chain",
     "sidecar_path",
@@ -69,104 +87,323 @@ class Chain:
         Volts at digital full scale of the ADC (PCM files only).
     gain
         Voltage gain between sensor and ADC, V/V.
-    sensitivity_v_per_pa
-        Sensor sensitivity in V/Pa, or None for an uncalibrated (volts) chain.
+    sensitivity_v_per_unit
+        Sensor sensitivity in V per SI unit of ``quantity`` (V/Pa, V/(m/s²), V/N ...; for
+        ``"charge"`` the charge amplifier's gain in V/C), or None for an uncalibrated
+        (volts) chain.
     reference_pa
-        Reference pressure for levels in dB when calibrated.
+        Reference pressure for levels of sound pressure (20 µPa in air, 1 µPa in water).
+        Other quantities use their ISO 1683 reference.
+    quantity
+        What the sensor measures: ``"pressure"``, ``"acceleration"``, ``"velocity"``,
+        ``"displacement"``, ``"force"``, ``"voltage"`` or ``"charge"``.
+    response_curve
+        The sensor's frequency-dependent sensitivity relative to
+        ``sensitivity_v_per_unit`` (:mod:`piezo.chain.curve`), undone in
+        :meth:`CalibratedSource.blocks`; it describes the sensor only (gain and full
+        scale stay here). Compared by ``response_curve_file``.
+    response_curve_file
+        Where the curve was read from.
+    integrations
+        0, 1 or 2: the values are integrated that many times after calibration
+        (acceleration to velocity to displacement, :mod:`piezo.chain.integrate`).
+
+    Examples
+    --------
+    >>> c = Chain(gain=10.0, sensitivity_v_per_unit=10e-3 / 9.80665, quantity="acceleration")
+    >>> c.unit, c.level_unit, c.sensitivity_text
+    ('m/s²', 'dB re 1 µm/s²', '1.020 mV/(m/s²) (10.00 mV/g)')
+    >>> Chain().unit, Chain().level_unit    # no sensitivity: volts
+    ('V', 'dB re 1 V')
     """
 
     full_scale_v: float = 1.0
     gain: float = 1.0
-    sensitivity_v_per_pa: float | None = None
+    sensitivity_v_per_unit: float | None = None
     reference_pa: float = REFERENCE_AIR_PA
+    quantity: str = "pressure"
+    response_curve: ResponseCurve | None = field(default=None, compare=False, repr=False)
+    response_curve_file: str | None = None
+    integrations: int = 0
 
     def __post_init__(self) -> None:
-        for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_pa"):
+        for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_unit"):
             value = getattr(self, name)
             if value is not None:
                 physical_value(value, what=name)
+        try:
+            quantity_named(self.quantity)
+        except UnitError as exc:
+            raise InputError(exc.message) from None
+        if self.quantity == "voltage" and self.sensitivity_v_per_unit is not None:
+            raise InputError(
+                "a channel that measures voltage takes no sensitivity (its values are volts)"
+            )
+        if self.integrations:
+            if not self.calibrated:
+                raise InputError(
+                    "integrate: a channel without a sensitivity is in volts; give the "
+                    "acceleration or velocity sensitivity"
+                )
+            integrated_quantity(self.quantity, self.integrations)
 
     @property
     def calibrated(self) -> bool:
-        """True when samples are converted to pascals."""
-        return self.sensitivity_v_per_pa is not None
+        """True when samples are converted to the quantity's unit (not volts)."""
+        return self.sensitivity_v_per_unit is not None
+
+    @property
+    def measured(self) -> Quantity:
+        """The quantity of the values: ``quantity`` (integrated ``integrations`` times) when
+        calibrated, else voltage."""
+        if not self.calibrated:
+            return QUANTITIES["voltage"]
+        return QUANTITIES[integrated_quantity(self.quantity, self.integrations)]
+
+    @property
+    def sensitivity_v_per_pa(self) -> float | None:
+        """The sensitivity in V/Pa for a sound-pressure chain, else None."""
+        return self.sensitivity_v_per_unit if self.quantity == "pressure" else None
 
     @property
     def unit(self) -> str:
-        """``"Pa"`` when calibrated, else ``"V"``."""
-        return "Pa" if self.calibrated else "V"
+        """Unit of the values: ``"Pa"``, ``"m/s²"``, ``"N"`` ... or ``"V"`` uncalibrated."""
+        return self.measured.unit
 
     @property
     def reference(self) -> float:
-        """Reference value for levels in dB: the reference pressure, or 1 V."""
-        return self.reference_pa if self.calibrated else 1.0
+        """Reference value for levels in dB, in :attr:`unit` (ISO 1683; 1 V uncalibrated)."""
+        measured = self.measured
+        return self.reference_pa if measured.name == "pressure" else measured.reference
 
     @property
     def level_unit(self) -> str:
-        """How levels are labelled, e.g. ``"dB re 20 µPa"`` or ``"dB re 1 V"``."""
-        if not self.calibrated:
-            return "dB re 1 V"
+        """How levels are labelled, e.g. ``"dB re 20 µPa"``, ``"dB re 1 µm/s²"``."""
+        measured = self.measured
+        if measured.name != "pressure":
+            return measured.level_label()
         micro = self.reference_pa / 1e-6
         return f"dB re {micro:g} µPa"
 
+    @property
+    def weightable(self) -> bool:
+        """True when the A and C frequency weightings apply: sound pressure, or plain volts.
+
+        IEC 61672-1 defines the weightings for sound pressure; an uncalibrated (volts)
+        chain is taken as a microphone's voltage, as before quantities were known.
+        """
+        return self.quantity == "pressure" or not self.calibrated or self.quantity == "voltage"
+
     def scale(self, *, is_pcm: bool) -> float:
-        """Factor from raw samples to calibrated units (Pa, or V at the sensor)."""
+        """Factor from raw samples to calibrated units (the quantity's, or V at the sensor).
+
+        Examples
+        --------
+        >>> Chain(full_scale_v=2.0, gain=10.0, sensitivity_v_per_unit=0.02).scale(is_pcm=True)
+        10.0
+        """
         factor = (self.full_scale_v if is_pcm else 1.0) / self.gain
-        if self.sensitivity_v_per_pa is not None:
-            factor /= self.sensitivity_v_per_pa
+        if self.sensitivity_v_per_unit is not None:
+            factor /= self.sensitivity_v_per_unit
         return factor
 
     @property
     def sensitivity_dbv_per_pa(self) -> float | None:
-        """Sensitivity as a level, dB re 1 V/Pa."""
+        """Sensitivity as a level, dB re 1 V/Pa (sound-pressure chains only)."""
         s = self.sensitivity_v_per_pa
         return None if s is None else ratio_to_db(s)
+
+    @property
+    def sensitivity_text(self) -> str | None:
+        """The sensitivity in its trade form (``"10.00 mV/Pa"``, ``"1.020 mV/(m/s²) ..."``).
+
+        Examples
+        --------
+        >>> Chain(sensitivity_v_per_unit=1e9, quantity="charge").sensitivity_text
+        '1 mV/pC'
+        """
+        s = self.sensitivity_v_per_unit
+        if s is None:
+            return None
+        if self.quantity == "charge":
+            return f"{s * 1e-9:.4g} mV/pC"
+        return format_sensitivity(Sensitivity(s, "V", QUANTITIES[self.quantity]))
 
 
 @dataclass(frozen=True)
 class SensorProfile:
-    """What a profile file says about a sensor and its chain (all optional)."""
+    """What a profile file says about a sensor and its chain (all optional).
+
+    Attributes
+    ----------
+    sensitivity_v_per_unit
+        The sensitivity in V per SI unit of its quantity (a charge sensitivity already
+        multiplied by ``[chain] charge_gain``).
+    sensitivity_quantity
+        The quantity the sensitivity's unit names (``"10 mV/g"``: acceleration).
+    quantity
+        The ``quantity`` key, when given.
+    channels
+        ``[channel.N]`` sections: sensor keys of channel N (0-based) that override the
+        file-wide ``[sensor]`` for that channel, each as a profile of its own (chain
+        fields None).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "bench.toml"
+    >>> _ = path.write_text('[sensor]\\nquantity = "acceleration"\\n'
+    ...                     '[channel.1]\\nsensitivity = "10 mV/g"\\n', encoding="utf-8")
+    >>> prof = load_profile(path)
+    >>> prof.quantity, prof.sensitivity_v_per_unit, sorted(prof.channels)
+    ('acceleration', None, [1])
+    >>> round(prof.channels[1].sensitivity_v_per_unit * 1e3, 4)   # mV/(m/s²)
+    1.0197
+    """
 
     path: Path
     name: str | None = None
     serial: str | None = None
-    sensitivity_v_per_pa: float | None = None
+    sensitivity_v_per_unit: float | None = None
+    sensitivity_quantity: str | None = None
+    quantity: str | None = None
     capacitance_f: float | None = None
     calibration_date: str | None = None
     gain: float | None = None
     full_scale_v: float | None = None
     reference_pa: float | None = None
     sample_rate_hz: float | None = None
+    charge_gain_v_per_c: float | None = None
+    response_curve: Path | None = None
+    channels: Mapping[int, SensorProfile] = field(default_factory=dict, repr=False)
     raw: Mapping[str, Any] = field(default_factory=dict, repr=False)
 
+    @property
+    def sensitivity_v_per_pa(self) -> float | None:
+        """The sensitivity in V/Pa when it is a sound-pressure sensitivity, else None."""
+        if self.sensitivity_quantity in (None, "pressure"):
+            return self.sensitivity_v_per_unit
+        return None
+
+
+#: Keys of a sensor: in [sensor] and in each [channel.N].
+_SENSOR_KEYS = {
+    "name",
+    "serial",
+    "sensitivity",
+    "capacitance",
+    "calibration_date",
+    "model",
+    "notes",
+    "charge_sensitivity",
+    "quantity",
+    "response_curve",
+}
 
 _PROFILE_KEYS = {
-    "sensor": {
-        "name",
-        "serial",
-        "sensitivity",
-        "capacitance",
-        "calibration_date",
-        "model",
-        "notes",
-        "charge_sensitivity",
-    },
+    "sensor": _SENSOR_KEYS,
     "chain": {"gain", "full_scale", "reference", "charge_gain", "sample_rate", "notes"},
+    "channel": set(),  # [channel.N] sections, checked by _channel_sections
 }
+
+
+def parse_chain_sensitivity(
+    text: str | float,
+    *,
+    quantity: str | None = None,
+    charge_gain_v_per_c: float | None = None,
+    what: str = "sensitivity",
+    charge_gain_name: str = "charge_gain",
+) -> tuple[float, str | None]:
+    """A sensitivity in V per SI unit, and the quantity its unit names.
+
+    Text in any trade form of :func:`~piezo.chain.quantity.parse_sensitivity_of`
+    (``"12 mV/Pa"``, ``"-196 dB re 1 V/µPa"``, ``"10 mV/g"``, ``"4 pC/N"`` ...); a charge
+    sensitivity is multiplied by the charge amplifier's gain. A plain number is in V per
+    SI unit of ``quantity`` (V/Pa when none is given) and names no quantity (None).
+
+    Raises
+    ------
+    UnitError
+        Text that does not read, a unit that does not fit ``quantity``, or a charge
+        sensitivity without a charge gain.
+
+    Examples
+    --------
+    >>> value, q = parse_chain_sensitivity("10 mV/g")
+    >>> round(value, 9), q
+    (0.001019716, 'acceleration')
+    >>> parse_chain_sensitivity("4 pC/N", charge_gain_v_per_c=1e9)   # 1 mV/pC
+    (0.004, 'force')
+    >>> parse_chain_sensitivity(0.02)
+    (0.02, None)
+    >>> parse_chain_sensitivity("12 mV/Pa", quantity="acceleration")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: sensitivity: '12 mV/Pa' is a pressure sensitivity, but the \
+channel measures acceleration
+    """
+    if isinstance(text, int | float) and not isinstance(text, bool):
+        value = float(text)
+        if not (math.isfinite(value) and value > 0):
+            raise UnitError(f"{what}: sensitivity must be positive, got {text!r}")
+        return value, None
+    try:
+        s = parse_sensitivity_of(str(text), what=what)
+    except UnitError as first:
+        if "positive" in first.message:
+            raise
+        # The pressure forms of piezo.chain.units (its own wording for pressure text).
+        try:
+            return parse_sensitivity(
+                text,
+                charge_gain_v_per_c=charge_gain_v_per_c,
+                what=what,
+                charge_gain_name=charge_gain_name,
+            ), "pressure"
+        except UnitError:
+            raise UnitError(
+                f"{what}: cannot read sensitivity {text!r}; accepted forms: '12 mV/Pa', "
+                "'-38 dB re 1 V/Pa', '-196 dB re 1 V/µPa', '10 mV/g', '1 mV/(m/s²)', "
+                f"'4.9 pC/g', '4 pC/N', '2 mV/N'; charge forms need a charge gain "
+                f"({charge_gain_name})"
+            ) from None
+    if quantity is not None and s.quantity.name != quantity:
+        raise UnitError(
+            f"{what}: {text!r} is a {s.quantity.name} sensitivity, but the channel measures "
+            f"{quantity}"
+        )
+    if s.electrical == "C" and charge_gain_v_per_c is None:
+        raise UnitError(
+            f"{what}: {text!r} is a charge sensitivity; give the charge amplifier's gain too "
+            f"({charge_gain_name}, e.g. '1 mV/pC')"
+        )
+    return s.volts_per_unit(charge_gain_v_per_c), s.quantity.name
 
 
 def load_profile(path: str | Path) -> SensorProfile:
     """Read a sensor profile (TOML).
 
     The format is documented in ``docs/profiles.md``. Values with units are text, parsed
-    here with :mod:`piezo.chain.units`; a charge sensitivity (``"12 pC/Pa"``) needs
-    ``[chain] charge_gain``.
+    here with :mod:`piezo.chain.units` and :mod:`piezo.chain.quantity`; a charge
+    sensitivity (``"12 pC/Pa"``, ``"4 pC/N"``) needs ``[chain] charge_gain``. A
+    ``quantity`` key and the sensitivity's unit must agree. ``[channel.N]`` sections
+    (N = 0, 1, ...) hold sensor keys of one channel.
 
     Raises
     ------
     SpecError
         Unreadable TOML, unknown sections or keys, or values that do not parse. The message
         names the file and the key.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "mic.toml"
+    >>> _ = path.write_text('[sensor]\\nsensitivity = "-38 dB re 1 V/Pa"\\n', encoding="utf-8")
+    >>> prof = load_profile(path)
+    >>> round(prof.sensitivity_v_per_unit * 1e3, 3), prof.sensitivity_quantity
+    (12.589, 'pressure')
     """
     p = Path(path)
     data = read_toml(p, what="profile", error=SpecError)
@@ -178,6 +415,8 @@ def load_profile(path: str | Path) -> SensorProfile:
             )
         if not isinstance(value, dict):
             raise SpecError(f"{section!r} must be a [section]", source=str(p))
+        if section == "channel":
+            continue
         for key in value:
             if key not in _PROFILE_KEYS[section]:
                 raise SpecError(
@@ -185,11 +424,9 @@ def load_profile(path: str | Path) -> SensorProfile:
                     f"{', '.join(sorted(_PROFILE_KEYS[section]))}",
                     source=str(p),
                 )
-    sensor = data.get("sensor", {})
     chain = data.get("chain", {})
 
-    def parse(section: str, key: str, fn):
-        table = sensor if section == "sensor" else chain
+    def parse(table: Mapping[str, Any], section: str, key: str, fn):
         if key not in table:
             return None
         try:
@@ -197,32 +434,104 @@ def load_profile(path: str | Path) -> SensorProfile:
         except UnitError as exc:
             raise SpecError(exc.message, source=str(p)) from None
 
-    charge_gain = parse("chain", "charge_gain", lambda v, w: parse_charge_gain(v, what=w))
-    sens_text = sensor.get("sensitivity", sensor.get("charge_sensitivity"))
-    sensitivity = None
-    if sens_text is not None:
-        key = "sensitivity" if "sensitivity" in sensor else "charge_sensitivity"
+    charge_gain = parse(chain, "chain", "charge_gain", lambda v, w: parse_charge_gain(v, what=w))
+    sensor = _sensor_part(p, data.get("sensor", {}), "sensor", charge_gain)
+    channels = {
+        number: _sensor_part(p, table, f"channel.{number}", charge_gain)
+        for number, table in _channel_sections(p, data.get("channel", {})).items()
+    }
+    return replace(
+        sensor,
+        gain=parse(chain, "chain", "gain", lambda v, w: parse_gain(v, what=w)),
+        full_scale_v=parse(chain, "chain", "full_scale", lambda v, w: _positive(v, "V", w)),
+        reference_pa=parse(chain, "chain", "reference", lambda v, w: _positive(v, "Pa", w)),
+        sample_rate_hz=parse(chain, "chain", "sample_rate", lambda v, w: _positive(v, "Hz", w)),
+        charge_gain_v_per_c=charge_gain,
+        channels=channels,
+        raw=data,
+    )
+
+
+def _channel_sections(path: Path, tables: Mapping[str, Any]) -> dict[int, Mapping[str, Any]]:
+    """``[channel.N]`` tables by channel number; keys checked."""
+    out: dict[int, Mapping[str, Any]] = {}
+    for name, table in tables.items():
+        if not (name.isdigit() and isinstance(table, dict)):
+            raise SpecError(
+                f"[channel.{name}]: channel sections are [channel.N] with N = 0, 1, ... "
+                "(0-based channel numbers)",
+                source=str(path),
+            )
+        for key in table:
+            if key not in _SENSOR_KEYS:
+                raise SpecError(
+                    f"unknown key channel.{name}.{key}; expected one of "
+                    f"{', '.join(sorted(_SENSOR_KEYS))}",
+                    source=str(path),
+                )
+        out[int(name)] = table
+    return out
+
+
+def _sensor_part(
+    path: Path, sensor: Mapping[str, Any], section: str, charge_gain: float | None
+) -> SensorProfile:
+    """The sensor keys of one section (``[sensor]`` or ``[channel.N]``), parsed."""
+
+    def fail(exc: UnitError) -> SpecError:
+        return SpecError(exc.message, source=str(path))
+
+    quantity = None
+    if "quantity" in sensor:
         try:
-            sensitivity = parse_sensitivity(
-                sens_text, charge_gain_v_per_c=charge_gain, what=f"sensor.{key}"
+            quantity = quantity_named(sensor["quantity"], what=f"{section}.quantity").name
+        except UnitError as exc:
+            raise fail(exc) from None
+    sensitivity = sens_quantity = None
+    if "sensitivity" in sensor and "charge_sensitivity" in sensor:
+        raise SpecError(
+            f"{section}: give sensitivity or charge_sensitivity, not both", source=str(path)
+        )
+    key = "sensitivity" if "sensitivity" in sensor else "charge_sensitivity"
+    if key in sensor:
+        try:
+            sensitivity, sens_quantity = parse_chain_sensitivity(
+                sensor[key],
+                quantity=quantity,
+                charge_gain_v_per_c=charge_gain,
+                what=f"{section}.{key}",
+                charge_gain_name="chain.charge_gain",
             )
         except UnitError as exc:
-            raise SpecError(exc.message, source=str(p)) from None
+            raise fail(exc) from None
+    capacitance = None
+    if "capacitance" in sensor:
+        try:
+            capacitance = parse_quantity(sensor["capacitance"], "F", what=f"{section}.capacitance")
+        except UnitError as exc:
+            raise fail(exc) from None
+    curve = None
+    if "response_curve" in sensor:
+        text = sensor["response_curve"]
+        if not isinstance(text, str) or not text.strip():
+            raise SpecError(
+                f"{section}.response_curve must be a file name (CSV), got {text!r}",
+                source=str(path),
+            )
+        curve = path.parent / text  # relative to the profile; absolute paths stay
     date = sensor.get("calibration_date")
     if isinstance(date, _dt.date | _dt.datetime):
         date = date.isoformat()
     return SensorProfile(
-        path=p,
+        path=path,
         name=_text(sensor.get("name")),
         serial=_text(sensor.get("serial")),
-        sensitivity_v_per_pa=sensitivity,
-        capacitance_f=parse("sensor", "capacitance", lambda v, w: parse_quantity(v, "F", what=w)),
+        sensitivity_v_per_unit=sensitivity,
+        sensitivity_quantity=sens_quantity,
+        quantity=quantity,
+        capacitance_f=capacitance,
         calibration_date=_text(date),
-        gain=parse("chain", "gain", lambda v, w: parse_gain(v, what=w)),
-        full_scale_v=parse("chain", "full_scale", lambda v, w: _positive(v, "V", w)),
-        reference_pa=parse("chain", "reference", lambda v, w: _positive(v, "Pa", w)),
-        sample_rate_hz=parse("chain", "sample_rate", lambda v, w: _positive(v, "Hz", w)),
-        raw=data,
+        response_curve=curve,
     )
 
 
@@ -327,13 +636,17 @@ class ChainSettings:
     """Chain values as given, before parsing: numbers in SI units or unit text.
 
     None means "not given": the profile or default applies. Error messages name the
-    field (``sensitivity``, ``full_scale`` ...).
+    field (``sensitivity``, ``full_scale`` ...). A numeric ``sensitivity`` is in V per SI
+    unit of ``quantity`` (V/Pa for sound pressure).
 
     Examples
     --------
     >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="20 mV/Pa", gain="20 dB"))
     >>> round(chain.sensitivity_v_per_pa, 6), round(chain.gain, 6)
     (0.02, 10.0)
+    >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="10 mV/g"))
+    >>> chain.quantity, chain.unit
+    ('acceleration', 'm/s²')
     """
 
     sensitivity: ChainValue = None
@@ -342,17 +655,57 @@ class ChainSettings:
     reference: ChainValue = None
     charge_gain: ChainValue = None
     profile: str | Path | None = None
+    quantity: str | None = None
+    response_curve: str | Path | None = None
+
+
+def load_response_curve(path: str | Path) -> ResponseCurve:
+    """Read a response curve file (CSV, :mod:`piezo.chain.curve`), bounded.
+
+    Raises
+    ------
+    InputError
+        Unreadable, or not a valid curve; the message names the file and the line.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> chart = pathlib.Path(tempfile.mkdtemp()) / "chart.csv"
+    >>> _ = chart.write_text("frequency_hz,relative_db\\n10,0\\n10000,1.5\\n", encoding="utf-8")
+    >>> load_response_curve(chart).relative_db.tolist()
+    [0.0, 1.5]
+    """
+    p = Path(path)
+    return parse_response_curve(read_text(p, what="response curve"), source=str(p))
 
 
 @dataclass(frozen=True)
 class Provenance:
-    """Where each chain value came from: ``"default"``, ``"option"`` or a profile path."""
+    """Where each chain value came from: ``"default"``, ``"option"`` or a profile path.
+
+    A value from a ``[channel.N]`` section is marked ``"PATH [channel.N]"``; a quantity
+    that follows from the sensitivity's unit is marked ``"sensitivity unit"``.
+
+    Examples
+    --------
+    >>> _, prov = resolve_chain(None, ChainSettings(gain="6 dB"))
+    >>> prov.as_dict()["gain"], prov.as_dict()["quantity"]
+    ('option', 'default')
+    """
 
     full_scale_v: str
     gain: str
     sensitivity_v_per_pa: str
     reference_pa: str
     profiles: tuple[SensorProfile, ...] = ()
+    quantity: str = "default"
+    channel: int | None = None
+    response_curve: str = "default"
+
+    @property
+    def sensitivity(self) -> str:
+        """Where the sensitivity came from (whatever its quantity)."""
+        return self.sensitivity_v_per_pa
 
     def as_dict(self) -> dict[str, str]:
         """Plain mapping for JSON reports."""
@@ -361,26 +714,21 @@ class Provenance:
             "gain": self.gain,
             "sensitivity_v_per_pa": self.sensitivity_v_per_pa,
             "reference_pa": self.reference_pa,
+            "quantity": self.quantity,
+            "response_curve": self.response_curve,
         }
 
 
-def resolve_chain(
+def profile_paths(
     recording_path: str | Path | None, settings: ChainSettings, *, use_sidecar: bool = True
-) -> tuple[Chain, Provenance]:
-    """Combine defaults, sidecar profile, profile file and given values into a :class:`Chain`.
+) -> list[Path]:
+    """The profiles that apply to a recording, lowest priority first: sidecar, then given.
 
-    Later sources override earlier ones: defaults, the sidecar ``NAME.toml`` (when
-    ``use_sidecar``), ``settings.profile``, then the values of ``settings``. Text is
-    parsed here, once, by :mod:`piezo.chain.units`.
+    Examples
+    --------
+    >>> profile_paths("no/such/take.wav", ChainSettings(profile="bench.toml"))
+    [PosixPath('bench.toml')]
     """
-    values: dict[str, float | None] = {
-        "full_scale_v": 1.0,
-        "gain": 1.0,
-        "sensitivity_v_per_pa": None,
-        "reference_pa": REFERENCE_AIR_PA,
-    }
-    origin = dict.fromkeys(values, "default")
-    profiles: list[SensorProfile] = []
     candidates: list[Path] = []
     if use_sidecar and recording_path is not None:
         side = sidecar_path(recording_path)
@@ -388,64 +736,204 @@ def resolve_chain(
             candidates.append(side)
     if settings.profile is not None:
         candidates.append(Path(settings.profile))
-    for path in candidates:
-        prof = load_profile(path)
-        profiles.append(prof)
-        for key in values:
-            v = getattr(prof, key)
+    return candidates
+
+
+def resolve_chain(
+    recording_path: str | Path | None,
+    settings: ChainSettings,
+    *,
+    use_sidecar: bool = True,
+    channel: int | None = None,
+    profiles: Sequence[SensorProfile] | None = None,
+) -> tuple[Chain, Provenance]:
+    """Combine defaults, sidecar profile, profile file and given values into a :class:`Chain`.
+
+    Later sources override earlier ones, value by value: defaults, the sidecar
+    ``NAME.toml`` (when ``use_sidecar``), ``settings.profile``, then the values of
+    ``settings``. Within a profile, a ``[channel.N]`` section overrides ``[sensor]`` for
+    ``channel`` N. Text is parsed here, once, by :mod:`piezo.chain.units` and
+    :mod:`piezo.chain.quantity`. The quantity is the ``quantity`` given (profile key or
+    option), else the one the sensitivity's unit names, else sound pressure; a
+    sensitivity whose unit names another quantity is refused.
+
+    ``profiles`` are the profiles already read (:func:`profile_paths`,
+    :func:`load_profile`), so that a file is read once for all channels.
+
+    Raises
+    ------
+    InputError
+        A value that does not parse or does not fit the quantity (the message names the
+        channel when ``channel`` is given).
+
+    Examples
+    --------
+    >>> chain, prov = resolve_chain(None, ChainSettings(sensitivity=0.01, quantity="force"))
+    >>> chain.unit, chain.level_unit, prov.quantity
+    ('N', 'dB re 1 µN', 'option')
+    """
+    if profiles is None:
+        profiles = [
+            load_profile(p)
+            for p in profile_paths(recording_path, settings, use_sidecar=use_sidecar)
+        ]
+    prefix = "" if channel is None else f"channel {channel}: "
+    values: dict[str, Any] = {
+        "full_scale_v": 1.0,
+        "gain": 1.0,
+        "sensitivity_v_per_pa": None,
+        "reference_pa": REFERENCE_AIR_PA,
+        "quantity": None,
+        "response_curve": None,
+    }
+    origin = dict.fromkeys(values, "default")
+    sens_quantity: str | None = None
+    charge_gain: float | None = None
+    for prof in profiles:
+        for key, attr in (
+            ("full_scale_v", "full_scale_v"),
+            ("gain", "gain"),
+            ("reference_pa", "reference_pa"),
+        ):
+            v = getattr(prof, attr)
             if v is not None:
                 values[key] = v
-                origin[key] = str(path)
+                origin[key] = str(prof.path)
+        if prof.charge_gain_v_per_c is not None:
+            charge_gain = prof.charge_gain_v_per_c
+        layers = [(prof, str(prof.path))]
+        if channel is not None and channel in prof.channels:
+            layers.append((prof.channels[channel], f"{prof.path} [channel.{channel}]"))
+        for layer, where in layers:
+            if layer.sensitivity_v_per_unit is not None:
+                values["sensitivity_v_per_pa"] = layer.sensitivity_v_per_unit
+                origin["sensitivity_v_per_pa"] = where
+                sens_quantity = layer.sensitivity_quantity
+            if layer.quantity is not None:
+                values["quantity"] = layer.quantity
+                origin["quantity"] = where
+            if layer.response_curve is not None:
+                values["response_curve"] = layer.response_curve
+                origin["response_curve"] = where
 
-    charge_gain = (
-        parse_charge_gain(settings.charge_gain, what="charge_gain")
-        if settings.charge_gain is not None
-        else None
-    )
-    if settings.sensitivity is not None:
-        values["sensitivity_v_per_pa"] = parse_sensitivity(
-            settings.sensitivity,
-            charge_gain_v_per_c=charge_gain,
-            what="sensitivity",
-            charge_gain_name="charge_gain",
+    try:
+        if settings.quantity is not None:
+            values["quantity"] = quantity_named(settings.quantity, what="quantity").name
+            origin["quantity"] = "option"
+        if settings.charge_gain is not None:
+            charge_gain = parse_charge_gain(settings.charge_gain, what="charge_gain")
+        if settings.sensitivity is not None:
+            values["sensitivity_v_per_pa"], sens_quantity = parse_chain_sensitivity(
+                settings.sensitivity,
+                quantity=values["quantity"] if origin["quantity"] == "option" else None,
+                charge_gain_v_per_c=charge_gain,
+                what="sensitivity",
+                charge_gain_name="charge_gain",
+            )
+            origin["sensitivity_v_per_pa"] = "option"
+        if settings.gain is not None:
+            values["gain"] = parse_gain(settings.gain, what="gain")
+            origin["gain"] = "option"
+        if settings.full_scale is not None:
+            values["full_scale_v"] = _positive(settings.full_scale, "V", "full_scale")
+            origin["full_scale_v"] = "option"
+        if settings.reference is not None:
+            values["reference_pa"] = _positive(settings.reference, "Pa", "reference")
+            origin["reference_pa"] = "option"
+        if settings.response_curve is not None:
+            values["response_curve"] = Path(settings.response_curve)
+            origin["response_curve"] = "option"
+    except UnitError as exc:
+        raise UnitError(prefix + exc.message) from None
+
+    quantity = values["quantity"]
+    if quantity is None:
+        quantity = sens_quantity or "pressure"
+        if sens_quantity is not None:
+            origin["quantity"] = "sensitivity unit"
+    elif sens_quantity is not None and sens_quantity != quantity:
+        raise InputError(
+            f"{prefix}the sensitivity ({_where(origin['sensitivity_v_per_pa'])}) is a "
+            f"{sens_quantity} sensitivity, but the quantity is {quantity} "
+            f"({_where(origin['quantity'])})"
         )
-        origin["sensitivity_v_per_pa"] = "option"
-    if settings.gain is not None:
-        values["gain"] = parse_gain(settings.gain, what="gain")
-        origin["gain"] = "option"
-    if settings.full_scale is not None:
-        values["full_scale_v"] = _positive(settings.full_scale, "V", "full_scale")
-        origin["full_scale_v"] = "option"
-    if settings.reference is not None:
-        values["reference_pa"] = _positive(settings.reference, "Pa", "reference")
-        origin["reference_pa"] = "option"
+    if quantity == "charge":
+        if values["sensitivity_v_per_pa"] is not None:
+            raise InputError(
+                f"{prefix}a channel that measures charge takes the charge amplifier's gain "
+                "(charge_gain), not a sensitivity"
+            )
+        if charge_gain is not None:
+            values["sensitivity_v_per_pa"] = charge_gain
+            origin["sensitivity_v_per_pa"] = "charge gain"
+    if quantity != "pressure" and origin["reference_pa"] == "option":
+        q = QUANTITIES[quantity]
+        raise InputError(
+            f"{prefix}reference: a reference pressure applies to sound pressure only; "
+            f"levels of {quantity} are in {q.level_label()} (ISO 1683)"
+        )
+    curve_path = values["response_curve"]
+    curve = None if curve_path is None else load_response_curve(curve_path)
     chain = Chain(
-        full_scale_v=float(values["full_scale_v"]),  # type: ignore[arg-type]
-        gain=float(values["gain"]),  # type: ignore[arg-type]
-        sensitivity_v_per_pa=values["sensitivity_v_per_pa"],
-        reference_pa=float(values["reference_pa"]),  # type: ignore[arg-type]
+        full_scale_v=float(values["full_scale_v"]),
+        gain=float(values["gain"]),
+        sensitivity_v_per_unit=values["sensitivity_v_per_pa"],
+        reference_pa=float(values["reference_pa"]),
+        quantity=quantity,
+        response_curve=curve,
+        response_curve_file=None if curve_path is None else str(curve_path),
     )
-    return chain, Provenance(**origin, profiles=tuple(profiles))
+    return chain, Provenance(**origin, profiles=tuple(profiles), channel=channel)
+
+
+def _describe(chain: Chain) -> str:
+    """A chain in a few words, for messages."""
+    if not chain.calibrated:
+        return f"{chain.quantity}, uncalibrated (V)"
+    return f"{chain.quantity}, {chain.sensitivity_text}"
+
+
+def _where(origin: str) -> str:
+    return {"option": "option", "default": "default"}.get(origin, f"from {origin}")
 
 
 @dataclass(frozen=True)
 class CalibratedSource:
-    """A recording seen through a chain: calibrated blocks of the chosen channels.
+    """A recording seen through its chains: calibrated blocks of the chosen channels.
+
+    Every channel has its own chain (a profile's ``[channel.N]`` sections); most files
+    have one chain for all. The values of each channel are in its own unit.
 
     Attributes
     ----------
     recording
         The opened recording.
-    chain
-        The measurement chain applied to every sample.
+    file_chain
+        The chain of every channel without one of its own.
     channel_indices
         The recording's channels analysed, 0-based, in order.
+    provenance
+        Where the values of ``file_chain`` came from.
+    channel_chains
+        Chains (and their provenance) of channels that have their own, by the
+        recording's channel number.
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from piezo.io.reader import Recording
+    >>> rec = Recording(Path("x.wav"), 48000.0, 4, 2, "WAV", "PCM_24", ("ch0", "ch1"), True)
+    >>> accel = Chain(sensitivity_v_per_unit=1e-3, quantity="acceleration")
+    >>> src = CalibratedSource.of(rec, accel, channel_chains={1: (Chain(), None)})
+    >>> src.units, src.with_channels([0]).unit
+    (('m/s²', 'V'), 'm/s²')
     """
 
     recording: Recording
-    chain: Chain
+    file_chain: Chain
     channel_indices: tuple[int, ...]
     provenance: Provenance | None = None
+    channel_chains: Mapping[int, tuple[Chain, Provenance | None]] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         self.recording._check_channels(self.channel_indices)
@@ -457,10 +945,104 @@ class CalibratedSource:
         chain: Chain,
         channels: Sequence[int] | None = None,
         provenance: Provenance | None = None,
+        *,
+        channel_chains: Mapping[int, tuple[Chain, Provenance | None]] | None = None,
     ) -> CalibratedSource:
         """All channels of ``recording`` when ``channels`` is None."""
         idx = tuple(range(recording.channels)) if channels is None else tuple(channels)
-        return cls(recording, chain, idx, provenance)
+        own = {k: v for k, v in (channel_chains or {}).items() if k < recording.channels}
+        return cls(recording, chain, idx, provenance, own)
+
+    # --- per channel -------------------------------------------------------------------
+
+    def chain_of(self, index: int) -> Chain:
+        """The chain of the recording's channel ``index`` (0-based).
+
+        Examples
+        --------
+        See :class:`CalibratedSource`.
+        """
+        own = self.channel_chains.get(index)
+        return self.file_chain if own is None else own[0]
+
+    def provenance_of(self, index: int) -> Provenance | None:
+        """Where the chain values of the recording's channel ``index`` came from."""
+        own = self.channel_chains.get(index)
+        return self.provenance if own is None else own[1]
+
+    @property
+    def chains(self) -> tuple[Chain, ...]:
+        """The chain of each analysed channel, in the order of ``channel_indices``."""
+        return tuple(self.chain_of(i) for i in self.channel_indices)
+
+    @property
+    def units(self) -> tuple[str, ...]:
+        """Unit of each analysed channel's values."""
+        return tuple(c.unit for c in self.chains)
+
+    @property
+    def references(self) -> np.ndarray:
+        """Reference for levels of each analysed channel, in its unit."""
+        return np.array([c.reference for c in self.chains], dtype=float)
+
+    @property
+    def scales(self) -> np.ndarray:
+        """Factor from raw samples to calibrated values, per analysed channel."""
+        pcm = self.recording.is_pcm
+        return np.array([c.scale(is_pcm=pcm) for c in self.chains], dtype=float)
+
+    # --- one chain for all ------------------------------------------------------------
+
+    def _common(self, what: str, key: Callable[[Chain], Any]) -> Any:
+        chains = self.chains
+        values = [key(c) for c in chains]
+        for i, v in enumerate(values[1:], start=1):
+            if v != values[0]:
+                a, b = self.channel_indices[0], self.channel_indices[i]
+                raise InputError(
+                    f"channels {a} and {b} differ in {what} ({_describe(chains[0])}; "
+                    f"{_describe(chains[i])}); this needs one {what} for all channels: "
+                    "analyse them one at a time (--channel N)",
+                    source=str(self.recording.path),
+                )
+        return values[0] if values else key(self.file_chain)
+
+    @property
+    def chain(self) -> Chain:
+        """The one chain of all analysed channels (refused when they differ)."""
+        return self._common("chain", lambda c: c)
+
+    @property
+    def unit(self) -> str:
+        """Unit of the values (``"Pa"``, ``"m/s²"`` ... or ``"V"``), shared by the channels."""
+        return self._common("unit", lambda c: c.unit)
+
+    @property
+    def reference(self) -> float:
+        """Reference for dB, shared by the channels: 20 µPa, 1 µm/s² ... or 1 V."""
+        return self._common("level reference", lambda c: c.reference)
+
+    @property
+    def level_unit(self) -> str:
+        """How levels are labelled (``"dB re 20 µPa"``), shared by the channels."""
+        return self._common("level reference", lambda c: c.level_unit)
+
+    @property
+    def quantity(self) -> Quantity:
+        """The quantity of the values, shared by the channels."""
+        return self._common("quantity", lambda c: c.measured)
+
+    @property
+    def scale(self) -> float:
+        """Factor from raw samples to calibrated units, shared by the channels."""
+        scales = self.scales
+        if scales.size and not np.all(scales == scales[0]):
+            self._common("chain", lambda c: c)
+        return (
+            float(scales[0])
+            if scales.size
+            else self.file_chain.scale(is_pcm=self.recording.is_pcm)
+        )
 
     @property
     def sample_rate_hz(self) -> float:
@@ -471,21 +1053,6 @@ class CalibratedSource:
     def frames(self) -> int:
         """Samples per channel."""
         return self.recording.frames
-
-    @property
-    def unit(self) -> str:
-        """``"Pa"`` or ``"V"``."""
-        return self.chain.unit
-
-    @property
-    def reference(self) -> float:
-        """Reference for dB: pascals when calibrated, 1 V otherwise."""
-        return self.chain.reference
-
-    @property
-    def scale(self) -> float:
-        """Factor from raw samples to calibrated units."""
-        return self.chain.scale(is_pcm=self.recording.is_pcm)
 
     def volts_at_sensor(self) -> CalibratedSource:
         """The same recording and channels in volts at the sensor's output.
@@ -501,17 +1068,51 @@ class CalibratedSource:
         >>> from piezo.io.reader import Recording
         >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("ch0",), True)
         >>> src = CalibratedSource.of(rec, Chain(full_scale_v=2.0, gain=10.0,
-        ...                                      sensitivity_v_per_pa=0.02))
+        ...                                      sensitivity_v_per_unit=0.02))
         >>> src.unit, round(src.scale, 12)
         ('Pa', 10.0)
         >>> volts = src.volts_at_sensor()
         >>> volts.unit, round(volts.scale, 12)
         ('V', 0.2)
         """
-        if not self.chain.calibrated:
+        if not any(c.calibrated for c in (self.file_chain, *self.chains)):
             return self
-        chain = replace(self.chain, sensitivity_v_per_pa=None)
-        return replace(self, chain=chain)
+
+        def bare(chain: Chain) -> Chain:
+            return replace(chain, sensitivity_v_per_unit=None, quantity="voltage", integrations=0)
+
+        own = {k: (bare(c), p) for k, (c, p) in self.channel_chains.items()}
+        return replace(self, file_chain=bare(self.file_chain), channel_chains=own)
+
+    def integrated(self, times: int) -> CalibratedSource:
+        """The same source with its analysed channels integrated ``times`` times.
+
+        Acceleration becomes velocity (1) or displacement (2), velocity displacement
+        (1), each step through :class:`~piezo.chain.integrate.Integrator` in
+        :meth:`blocks`; other quantities are refused.
+
+        Examples
+        --------
+        >>> from pathlib import Path
+        >>> from piezo.io.reader import Recording
+        >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("ch0",), True)
+        >>> acc = Chain(sensitivity_v_per_unit=1e-3, quantity="acceleration")
+        >>> src = CalibratedSource.of(rec, acc).integrated(2)
+        >>> src.unit, src.level_unit
+        ('m', 'dB re 1 pm')
+        """
+        if not times:
+            return self
+        own = dict(self.channel_chains)
+        for index in self.channel_indices:
+            try:
+                chain = replace(self.chain_of(index), integrations=times)
+            except InputError as exc:
+                raise InputError(
+                    f"channel {index}: {exc.message}", source=str(self.recording.path)
+                ) from None
+            own[index] = (chain, self.provenance_of(index))
+        return replace(self, channel_chains=own)
 
     def with_channels(self, channels: Sequence[int] | None) -> CalibratedSource:
         """The same source restricted to ``channels`` (0-based; all when None).
@@ -560,12 +1161,98 @@ class CalibratedSource:
             if advance is not None:
                 advance(block.shape[0])
 
+    def curve_notes(self, low_hz: float, high_hz: float) -> list[str]:
+        """One line per analysed channel whose response curve leaves part of a band out.
+
+        The correction holds a chart's end values beyond its range
+        (:meth:`~piezo.chain.curve.ResponseCurve.coverage_note`); results in
+        ``[low_hz, high_hz]`` say where they rely on that.
+        """
+        notes = []
+        for index, chain in zip(self.channel_indices, self.chains, strict=True):
+            if chain.response_curve is not None:
+                note = chain.response_curve.coverage_note(low_hz, high_hz)
+                if note is not None:
+                    notes.append(f"ch {index}: response curve {chain.response_curve_file}: {note}")
+        return notes
+
+    def correction(self) -> list[CurveCorrection] | None:
+        """The response-curve corrections of the analysed channels, or None without curves.
+
+        One :class:`~piezo.chain.curve.CurveCorrection` per analysed channel, all of one
+        length (the longest a chart asks for), so their delay compensation holds the
+        same frames back; a channel without a curve gets a flat one (a pure delay,
+        compensated: its samples pass unchanged).
+        """
+        curves = [c.response_curve for c in self.chains]
+        if all(c is None for c in curves):
+            return None
+        fs = self.sample_rate_hz
+        taps = max(CurveCorrection.default_taps(c, fs) for c in curves if c is not None)
+        flat = ResponseCurve(np.array([1.0, fs / 2]), np.zeros(2))
+        return [CurveCorrection(c or flat, fs, 1, taps=taps) for c in curves]
+
     def blocks(
         self, block_frames: int = 65536, *, overlap_frames: int = 0
     ) -> Iterator[np.ndarray]:
-        """Yield calibrated float64 blocks ``(frames, channels)`` in Pa or V."""
-        factor = self.scale
-        for block in self.recording.blocks(
-            block_frames, overlap_frames=overlap_frames, channels=self.channel_indices
-        ):
-            yield block * factor
+        """Yield calibrated float64 blocks ``(frames, channels)``, each channel in its unit.
+
+        A channel with a response curve is divided by it here, once, for every analysis
+        (:meth:`correction`: a linear-phase FIR whose delay is compensated, so the
+        values stay aligned with the file sample for sample; blocks may then differ in
+        length from ``block_frames``, the total does not).
+
+        Examples
+        --------
+        >>> import numpy as np, soundfile as sf, tempfile, pathlib
+        >>> from piezo.io.reader import open_recording
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "two.wav"
+        >>> sf.write(path, np.full((10, 2), 0.5), 8000, subtype="FLOAT")
+        >>> src = CalibratedSource.of(open_recording(path), Chain(sensitivity_v_per_unit=0.1),
+        ...                           channel_chains={1: (Chain(), None)})
+        >>> next(src.blocks())[0].tolist()      # 5 Pa, 0.5 V
+        [5.0, 0.5]
+        """
+        factor = self.scales
+        corrections = self.correction()
+        if corrections is not None and overlap_frames:
+            raise InputError(
+                "overlapping blocks of a source with a response curve are not available; "
+                "read it without overlap",
+                source=str(self.recording.path),
+            )
+        raw = (
+            block * factor
+            for block in self.recording.blocks(
+                block_frames, overlap_frames=overlap_frames, channels=self.channel_indices
+            )
+        )
+        integrators = [
+            Integrator(self.sample_rate_hz, 1, c.integrations) if c.integrations else None
+            for c in self.chains
+        ]
+        if corrections is None:
+            stream: Iterator[np.ndarray] = raw
+        else:
+            stream = self._corrected(raw, corrections)
+        if all(i is None for i in integrators):
+            yield from stream
+            return
+        for block in stream:
+            out = block.copy()
+            for j, integ in enumerate(integrators):
+                if integ is not None:
+                    out[:, [j]] = integ.process(block[:, [j]])
+            yield out
+
+    @staticmethod
+    def _corrected(
+        raw: Iterator[np.ndarray], corrections: list[CurveCorrection]
+    ) -> Iterator[np.ndarray]:
+        for block in raw:
+            out = np.hstack([c.process(block[:, [j]]) for j, c in enumerate(corrections)])
+            if out.shape[0]:
+                yield out
+        tail = np.hstack([c.finish() for c in corrections])
+        if tail.shape[0]:
+            yield tail

@@ -1,7 +1,8 @@
 """The one calibrated open: a file and its chain, ready for every analysis.
 
 :func:`open_source` (``piezo.open``) reads a recording's header, resolves its
-measurement chain (defaults < sidecar ``NAME.toml`` < profile < given values) and returns
+measurement chain (defaults < sidecar ``NAME.toml`` < profile < given values), and the
+chain of each channel that a profile's ``[channel.N]`` section describes, and returns
 the :class:`~piezo.chain.measurement.CalibratedSource` that every command, the report and
 the batch runner analyse. Values may be numbers in SI units or unit text such as
 ``"12 mV/Pa"``; text is parsed here, once, by :mod:`piezo.chain.units`.
@@ -12,7 +13,14 @@ from __future__ import annotations
 from collections.abc import Sequence
 from pathlib import Path
 
-from piezo.chain.measurement import CalibratedSource, ChainSettings, ChainValue, resolve_chain
+from piezo.chain.measurement import (
+    CalibratedSource,
+    ChainSettings,
+    ChainValue,
+    load_profile,
+    profile_paths,
+    resolve_chain,
+)
 from piezo.chain.units import parse_quantity
 from piezo.errors import InputError
 from piezo.io.reader import open_recording
@@ -29,6 +37,9 @@ def open_source(
     reference: ChainValue = None,
     charge_gain: ChainValue = None,
     profile: str | Path | None = None,
+    quantity: str | None = None,
+    response_curve: str | Path | None = None,
+    integrate: int = 0,
     channels: Sequence[int] | None = None,
     rate: ChainValue = None,
     columns: Sequence[str | int] | str | None = None,
@@ -42,8 +53,10 @@ def open_source(
     path
         A WAV/FLAC/RF64/W64/... file or a CSV/TSV export (values taken as volts).
     sensitivity
-        Sensor sensitivity: V/Pa as a number, or text (``"20 mV/Pa"``, ``"-34 dBV/Pa"``,
-        ``"12 pC/Pa"`` with ``charge_gain``).
+        Sensor sensitivity: a number in V per SI unit of the quantity (V/Pa by default),
+        or text in a trade form (``"20 mV/Pa"``, ``"-34 dBV/Pa"``, ``"-196 dB re 1 V/µPa"``,
+        ``"10 mV/g"``, ``"2 mV/N"``; ``"12 pC/Pa"``, ``"4.9 pC/g"`` with ``charge_gain``).
+        Applies to every channel, over the profiles' values.
     gain
         Amplifier gain between sensor and ADC: V/V as a number, or ``"20 dB"``.
     full_scale
@@ -54,6 +67,17 @@ def open_source(
         Charge amplifier gain for a charge sensitivity (V/C, or ``"1 mV/pC"``).
     profile
         A sensor profile (TOML, ``docs/profiles.md``), applied after the sidecar.
+    quantity
+        What the sensors measure: ``"pressure"``, ``"acceleration"``, ``"velocity"``,
+        ``"displacement"``, ``"force"``, ``"voltage"`` or ``"charge"``; by default the
+        profile's ``quantity``, else the one the sensitivity's unit names, else pressure.
+    response_curve
+        A response curve (CSV, :mod:`piezo.chain.curve`) for every channel, over the
+        profiles' ``response_curve``; undone in the calibrated blocks.
+    integrate
+        Integrate the analysed channels once (acceleration to velocity, velocity to
+        displacement) or twice (acceleration to displacement), streamed, with the
+        DC-blocking high-pass of :mod:`piezo.chain.integrate` (1 Hz).
     channels
         0-based channels to analyse, in order; all when None.
     rate
@@ -69,7 +93,8 @@ def open_source(
     Returns
     -------
     CalibratedSource
-        Blocks in Pa with a sensitivity, else in V at the sensor.
+        Blocks in the quantity's unit (Pa, m/s², N ...) with a sensitivity, else in V at
+        the sensor; each channel through its own chain.
 
     Raises
     ------
@@ -88,6 +113,9 @@ def open_source(
     ('Pa', 48000.0, 4800)
     >>> float(next(src.blocks())[0, 0])  # 0.5 FS * 2 V / 0.05 V/Pa
     20.0
+    >>> acc = open_source(folder / "tone.wav", sensitivity="10 mV/g")
+    >>> acc.unit, acc.level_unit, round(float(next(acc.blocks())[0, 0]), 3)  # 50 g in m/s²
+    ('m/s²', 'dB re 1 µm/s²', 490.332)
     """
     rate_hz = None
     if rate is not None:
@@ -103,12 +131,28 @@ def open_source(
         reference=reference,
         charge_gain=charge_gain,
         profile=profile,
+        quantity=quantity,
+        response_curve=response_curve,
     )
     try:
         recording = open_recording(
             path, rate_hz=rate_hz, columns=columns, allow_time_gaps=allow_time_gaps
         )
-        chain, provenance = resolve_chain(path, settings, use_sidecar=use_sidecar)
-        return CalibratedSource.of(recording, chain, channels or None, provenance)
+        profiles = [
+            load_profile(p) for p in profile_paths(path, settings, use_sidecar=use_sidecar)
+        ]
+        chain, provenance = resolve_chain(path, settings, profiles=profiles)
+        own = {}
+        for prof in profiles:
+            for number in prof.channels:
+                if number >= recording.channels:
+                    raise InputError(
+                        f"{prof.path}: [channel.{number}] describes channel {number}, but "
+                        f"the recording has {recording.channels} channel(s) (0-based)"
+                    )
+                own[number] = resolve_chain(path, settings, profiles=profiles, channel=number)
+        return CalibratedSource.of(
+            recording, chain, channels or None, provenance, channel_chains=own
+        ).integrated(integrate)
     except InputError as exc:
         raise exc.with_source(str(path)) from None

@@ -163,12 +163,30 @@ def parse_quantity(text: str | float | int, unit: str, *, what: str = "value") -
 
 
 def ratio_to_db(ratio: float) -> float:
-    """Amplitude ratio to decibels, 20 lg(ratio) (IEC 60027-3 field quantity)."""
+    """Amplitude ratio to decibels, 20 lg(ratio) (IEC 60027-3 field quantity).
+
+    Examples
+    --------
+    A tenfold amplitude is 20 dB; doubling is about 6.02 dB.
+
+    >>> ratio_to_db(10.0)
+    20.0
+    >>> round(ratio_to_db(2.0), 2)
+    6.02
+    """
     return 20.0 * math.log10(ratio)
 
 
 def db_to_ratio(level_db: float) -> float:
-    """Decibels to amplitude ratio, 10^(dB/20)."""
+    """Decibels to amplitude ratio, 10^(dB/20).
+
+    Examples
+    --------
+    >>> db_to_ratio(20.0)
+    10.0
+    >>> round(db_to_ratio(-6.0), 4)
+    0.5012
+    """
     return 10.0 ** (level_db / 20.0)
 
 
@@ -180,6 +198,13 @@ def parse_gain(text: str | float | int, *, what: str = "gain") -> float:
 
     Accepts ``"20 dB"``, ``"-6dB"``, ``"10"``, ``"10 V/V"``, ``"x10"``. A plain number is a
     linear ratio. The gain must be positive and finite.
+
+    Examples
+    --------
+    >>> parse_gain("20 dB"), parse_gain("x10"), parse_gain(10)
+    (10.0, 10.0, 10.0)
+    >>> round(parse_gain("-6dB"), 4)
+    0.5012
     """
     if isinstance(text, int | float) and not isinstance(text, bool):
         ratio = float(text)
@@ -238,7 +263,15 @@ def parse_decibels(
 
 
 def parse_charge_gain(text: str | float, *, what: str = "charge_gain") -> float:
-    """Parse a charge-amplifier gain (``"1 mV/pC"``) and return volts per coulomb."""
+    """Parse a charge-amplifier gain (``"1 mV/pC"``) and return volts per coulomb.
+
+    Examples
+    --------
+    1 mV/pC is 1e-3 V per 1e-12 C:
+
+    >>> parse_charge_gain("1 mV/pC")
+    1000000000.0
+    """
     if isinstance(text, int | float) and not isinstance(text, bool):
         value = float(text)
     else:
@@ -297,6 +330,19 @@ def parse_sensitivity(
       amplifier's gain, e.g. 1 mV/pC = 1e9 V/C) to become a voltage.
 
     A plain number is taken as V/Pa. The result must be positive.
+
+    Examples
+    --------
+    >>> parse_sensitivity("20 mV/Pa")
+    0.02
+    >>> round(parse_sensitivity("-34 dBV/Pa") * 1e3, 2)  # mV/Pa
+    19.95
+    >>> parse_sensitivity("12 pC/Pa", charge_gain_v_per_c=1e9)  # with 1 mV/pC
+    0.012
+    >>> parse_sensitivity("12 pC/Pa")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: sensitivity: '12 pC/Pa' is a charge sensitivity; ...
     """
     if isinstance(text, int | float) and not isinstance(text, bool):
         value = float(text)
@@ -336,7 +382,13 @@ _MINUTES_HOURS_RE = re.compile(r"^\s*(" + _NUMBER + r")\s*(min|h)\s*$")
 
 
 def parse_duration(text: str | float, *, what: str = "duration") -> float:
-    """Parse a duration (``"1s"``, ``"125 ms"``, ``"2 min"``, ``"1 h"``) in seconds."""
+    """Parse a duration (``"1s"``, ``"125 ms"``, ``"2 min"``, ``"1 h"``) in seconds.
+
+    Examples
+    --------
+    >>> parse_duration("125 ms"), parse_duration("2 min"), parse_duration("1 h")
+    (0.125, 120.0, 3600.0)
+    """
     m = _MINUTES_HOURS_RE.match(text) if isinstance(text, str) else None
     if m:
         value = float(m.group(1)) * (60.0 if m.group(2) == "min" else 3600.0)
@@ -348,7 +400,13 @@ def parse_duration(text: str | float, *, what: str = "duration") -> float:
 
 
 def parse_frequency_list(text: str, *, what: str = "frequencies") -> list[float]:
-    """Parse a comma-separated list of frequencies (``"10Hz,100 Hz,1k"``) in hertz."""
+    """Parse a comma-separated list of frequencies (``"10Hz,100 Hz,1k"``) in hertz.
+
+    Examples
+    --------
+    >>> parse_frequency_list("10Hz,100 Hz,1k")
+    [10.0, 100.0, 1000.0]
+    """
     parts = [p for p in (s.strip() for s in str(text).split(",")) if p]
     if not parts:
         raise UnitError(f"{what}: expected a comma-separated list of frequencies")
@@ -380,6 +438,15 @@ def format_quantity(value: float, unit: str, *, digits: int = 4) -> str:
 
     ``format_quantity(4.7e-8, "F")`` gives ``"47 nF"``; the result parses back with
     :func:`parse_quantity` to the value rounded to ``digits`` significant digits.
+
+    Examples
+    --------
+    >>> format_quantity(4.7e-8, "F")
+    '47 nF'
+    >>> format_quantity(0.0123456, "V", digits=3)
+    '12.3 mV'
+    >>> parse_quantity(format_quantity(1e9, "Ohm"), "Ohm")
+    1000000000.0
     """
     if value != 0 and math.isfinite(value):
         value = float(f"{value:.{digits}g}")
@@ -493,5 +560,11 @@ def _fixed(x: float, decimals: int) -> str:
 
 
 def parse_many(items: Iterable[str], unit: str, *, what: str = "value") -> list[float]:
-    """Parse each text of ``items`` with :func:`parse_quantity`."""
+    """Parse each text of ``items`` with :func:`parse_quantity`.
+
+    Examples
+    --------
+    >>> [f"{c:.3g}" for c in parse_many(["47n", "1 uF"], "F")]
+    ['4.7e-08', '1e-06']
+    """
     return [parse_quantity(t, unit, what=what) for t in items]

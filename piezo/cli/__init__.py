@@ -88,8 +88,8 @@ COMMANDS: tuple[Command, ...] = (
     Command(
         "levels",
         "levels",
-        "Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "
-        "LZpeak, LAE, LAF5..LAF95 (IEC 61672-1).",
+        "Sound levels per channel: LAeq, LCeq, LZeq, F and S maxima and minima (A, C, Z), "
+        "LCpeak, LZpeak, LAE, LAF5..LAF95, LAS5..LAS95 (IEC 61672-1).",
     ),
     Command(
         "spectrum", "spectrum", "Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG."

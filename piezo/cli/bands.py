@@ -11,7 +11,13 @@ import typer
 from rich.table import Table
 
 from piezo.chain.units import parse_duration
-from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.cli.options import (
+    JsonOption,
+    SourceOptions,
+    WeightAnyQuantityOption,
+    open_source,
+    source_options,
+)
 from piezo.cli.output import (
     ForceOption,
     console,
@@ -76,6 +82,7 @@ def bands(
         Path | None, typer.Option("--csv", metavar="OUT.csv", help="Write band levels as CSV.")
     ] = None,
     force: ForceOption = False,
+    weight_any_quantity: WeightAnyQuantityOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -107,6 +114,7 @@ def bands(
             high_hz=high_given,
             interval_s=interval_s,
             weighting=weighting,
+            weight_any_quantity=weight_any_quantity,
             advance=advance,
         )
     result = measured.result
@@ -166,6 +174,8 @@ def _print(doc: dict) -> None:
             f"  bands up to {doc['high_hz']:g} Hz: the default for "
             f"{doc['sample_rate_hz']:g} Hz sampling (--high to change)"
         )
+    for note in doc["response_curve_notes"]:
+        console.print(f"  {note}")
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column(axis_label("band", "Hz"), justify="right")
     for entry in doc["channels"]:

@@ -127,8 +127,7 @@ def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> 
         f"  {rec.format} {rec.subtype}, {rec.sample_rate_hz:g} Hz, {rec.frames} frames "
         f"({rec.duration_s:.3f} s); values in {source.unit}, levels in {chain.level_unit}"
     )
-    sens = chain.sensitivity_v_per_pa
-    sens_text = "none (volts)" if sens is None else format_quantity(sens, "V/Pa")
+    sens_text = chain.sensitivity_text or "none (volts)"
     fs_text = (
         "unknown (CSV)"
         if result.full_scale is None

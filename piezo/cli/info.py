@@ -4,16 +4,18 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any
 
 import numpy as np
 import typer
 from rich.table import Table
 
+from piezo.chain.measurement import Chain, Provenance
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.levels.stats import SignalStats
 from piezo.plots.style import axis_label
+from piezo.results import reference_key
 
 
 def register(app: typer.Typer) -> None:
@@ -33,8 +35,9 @@ def info(
     """Describe a recording: format, sample rate, duration, and peak and RMS per channel.
 
     Levels in dBFS follow AES17: the RMS of a full-scale sine reads 0 dBFS. With a
-    sensitivity (option, sidecar or profile) peak and RMS are also given in pascals and
-    in dB re the reference pressure.
+    sensitivity (option, sidecar or profile) peak and RMS are also given in the
+    quantity's unit (Pa, m/s², N ...) and in dB re its ISO 1683 reference. Each channel
+    is shown through its own chain (a profile's [channel.N] sections).
     """
     source = open_source(file, src)
     rec = source.recording
@@ -43,28 +46,36 @@ def info(
         for block in source.blocks():
             stats.update(block)
             advance(block.shape[0])
-    # Full scale in calibrated units: a raw sample of 1.0 (PCM) or full_scale_v volts (CSV).
-    fs_units = source.scale * (1.0 if rec.is_pcm else source.chain.full_scale_v)
     channels = []
     for i, ch in enumerate(source.channel_indices):
+        chain = source.chain_of(ch)
+        # Full scale in calibrated units: a raw sample of 1.0 (PCM) or full_scale_v volts (CSV).
+        fs_units = chain.scale(is_pcm=rec.is_pcm) * (1.0 if rec.is_pcm else chain.full_scale_v)
         peak, rms, mean = stats.peak[i], stats.rms[i], stats.mean[i]
         entry = {
             "channel": ch,
             "name": rec.channel_names[ch],
+            "quantity": chain.measured.name,
+            "unit": chain.unit,
+            "level_unit": chain.level_unit,
             "peak_dbfs": _db(peak / fs_units),
             "rms_dbfs": _db(rms * math.sqrt(2) / fs_units),
             "dc_offset_dbfs": _db(abs(mean) / fs_units),
         }
-        if source.chain.calibrated:
+        if chain.calibrated:
+            entry.update(peak=peak, rms=rms)
+            if chain.unit == "Pa":
+                entry.update(peak_pa=peak, rms_pa=rms)
             entry.update(
-                peak_pa=peak,
-                rms_pa=rms,
-                peak_db=_db(peak / source.reference),
-                rms_db=_db(rms / source.reference),
+                peak_db=_db(peak / chain.reference),
+                rms_db=_db(rms / chain.reference),
             )
         else:
             entry.update(peak_v=peak, rms_v=rms, rms_dbv=_db(rms))
+        entry["chain"] = chain_document(chain, source.provenance_of(ch))
         channels.append(entry)
+    units = {c["unit"] for c in channels}
+    level_units = {c["level_unit"] for c in channels}
     doc = {
         "file": str(file),
         "format": rec.format,
@@ -73,21 +84,42 @@ def info(
         "frames": rec.frames,
         "duration_s": rec.duration_s,
         "channels_in_file": rec.channels,
-        "unit": source.unit,
-        "level_unit": source.chain.level_unit,
-        "chain": {
-            "full_scale_v": source.chain.full_scale_v,
-            "gain": source.chain.gain,
-            "sensitivity_v_per_pa": source.chain.sensitivity_v_per_pa,
-            "reference_pa": source.chain.reference_pa,
-            "provenance": source.provenance.as_dict() if source.provenance else None,
-        },
+        # Shared by the analysed channels, else None (each channel states its own).
+        "unit": units.pop() if len(units) == 1 else None,
+        "level_unit": level_units.pop() if len(level_units) == 1 else None,
+        "chain": chain_document(source.file_chain, source.provenance),
         "channels": channels,
     }
     if json_out:
         emit_json(doc)
         return
-    _print(doc, calibrated=source.chain.calibrated)
+    _print(doc)
+
+
+def chain_document(chain: Chain, provenance: Provenance | None) -> dict[str, Any]:
+    """A chain as JSON values, with where each value came from.
+
+    Examples
+    --------
+    >>> from piezo.chain.measurement import Chain
+    >>> doc = chain_document(Chain(sensitivity_v_per_unit=0.004, quantity="force"), None)
+    >>> doc["quantity"], doc["unit"], doc["sensitivity"], doc["level_unit"]
+    ('force', 'N', '4.000 mV/N', 'dB re 1 µN')
+    """
+    return {
+        "quantity": chain.quantity,
+        "unit": chain.unit,
+        "full_scale_v": chain.full_scale_v,
+        "gain": chain.gain,
+        "sensitivity_v_per_unit": chain.sensitivity_v_per_unit,
+        "sensitivity": chain.sensitivity_text,
+        "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
+        "reference_pa": chain.reference_pa,
+        **({} if chain.unit == "Pa" else {reference_key(chain.unit): chain.reference}),
+        "level_unit": chain.level_unit,
+        "response_curve": chain.response_curve_file,
+        "provenance": provenance.as_dict() if provenance else None,
+    }
 
 
 def _db(ratio: float) -> float | None:
@@ -98,37 +130,50 @@ def _fmt(value: float | None, spec: str = ".2f") -> str:
     return "—" if value is None or not np.isfinite(value) else format(value, spec)
 
 
-def _print(doc: dict, *, calibrated: bool) -> None:
+def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     console.print(
         f"  {doc['format']} {doc['subtype']}, {doc['sample_rate_hz']:g} Hz, "
         f"{doc['frames']} frames ({doc['duration_s']:.3f} s), "
         f"{doc['channels_in_file']} channel(s)"
     )
-    chain = doc["chain"]
-    sens = chain["sensitivity_v_per_pa"]
-    sens_text = "none (results in volts)" if sens is None else f"{1e3 * sens:.4g} mV/Pa"
-    console.print(
-        f"  chain: full scale {chain['full_scale_v']:g} V, gain {chain['gain']:g} V/V, "
-        f"sensitivity {sens_text}"
-    )
+    chains = {_chain_text(ch["chain"]) for ch in doc["channels"]}
+    if len(chains) == 1:
+        console.print(f"  chain: {chains.pop()}")
+    else:
+        for ch in doc["channels"]:
+            console.print(f"  chain of ch {ch['channel']}: {_chain_text(ch['chain'])}")
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("ch", justify="right")
+    table.add_column("quantity")
     table.add_column(axis_label("peak", "dBFS"), justify="right")
     table.add_column(axis_label("RMS", "dBFS"), justify="right")
-    if calibrated:
-        table.add_column(axis_label("peak", "Pa"), justify="right")
-        table.add_column(axis_label("RMS", "Pa"), justify="right")
-        table.add_column(axis_label("RMS", doc["level_unit"]), justify="right")
-    else:
-        table.add_column(axis_label("peak", "V"), justify="right")
-        table.add_column(axis_label("RMS", "V"), justify="right")
-        table.add_column(axis_label("RMS", "dB re 1 V"), justify="right")
+    table.add_column("peak", justify="right")
+    table.add_column("RMS", justify="right")
+    table.add_column("RMS level", justify="right")
     for ch in doc["channels"]:
-        row = [str(ch["channel"]), _fmt(ch["peak_dbfs"]), _fmt(ch["rms_dbfs"])]
-        if calibrated:
-            row += [_fmt(ch["peak_pa"], ".4g"), _fmt(ch["rms_pa"], ".4g"), _fmt(ch["rms_db"])]
+        unit = ch["unit"]
+        if "peak" in ch:
+            values = [ch["peak"], ch["rms"], ch["rms_db"]]
         else:
-            row += [_fmt(ch["peak_v"], ".4g"), _fmt(ch["rms_v"], ".4g"), _fmt(ch["rms_dbv"])]
-        table.add_row(*row)
+            values = [ch["peak_v"], ch["rms_v"], ch["rms_dbv"]]
+        table.add_row(
+            str(ch["channel"]),
+            ch["quantity"],
+            _fmt(ch["peak_dbfs"]),
+            _fmt(ch["rms_dbfs"]),
+            f"{_fmt(values[0], '.4g')} {unit}",
+            f"{_fmt(values[1], '.4g')} {unit}",
+            f"{_fmt(values[2])} {ch['level_unit']}",
+        )
     console.print(table)
+
+
+def _chain_text(chain: dict) -> str:
+    sens = chain["sensitivity"]
+    sens_text = "none (results in volts)" if sens is None else sens
+    curve = f", response curve {chain['response_curve']}" if chain["response_curve"] else ""
+    return (
+        f"{chain['quantity']}, full scale {chain['full_scale_v']:g} V, gain "
+        f"{chain['gain']:g} V/V, sensitivity {sens_text}{curve}"
+    )

@@ -9,7 +9,13 @@ import typer
 from rich.table import Table
 
 from piezo.chain.units import parse_duration, parse_quantity
-from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.cli.options import (
+    JsonOption,
+    SourceOptions,
+    WeightAnyQuantityOption,
+    open_source,
+    source_options,
+)
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
 from piezo.levels.summary import LEVEL_KEYS, levels_of
@@ -17,14 +23,16 @@ from piezo.plots.style import axis_label
 
 #: Terminal history tables longer than this are left to --json.
 MAX_HISTORY_ROWS = 60
+#: Per-interval levels of the terminal history table.
+HISTORY_KEYS = ("LZeq", "LAeq", "LCeq", "LAFmax", "LCpeak")
 
 
 def register(app: typer.Typer) -> None:
     """Add the ``levels`` command to ``app``."""
     app.command(
         "levels",
-        help="Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "
-        "LZpeak, LAE, LAF5..LAF95 (IEC 61672-1).",
+        help="Sound levels per channel: LAeq, LCeq, LZeq, F and S maxima and minima "
+        "(A, C, Z), LCpeak, LZpeak, LAE, LAF5..LAF95, LAS5..LAS95 (IEC 61672-1).",
     )(levels)
 
 
@@ -37,8 +45,8 @@ def levels(
         typer.Option(
             "--interval",
             metavar="T",
-            help="Also give a level history: Leq per interval of T (e.g. '1s', '100 ms'), "
-            "and LAF/LAS sampled every 0.1 s.",
+            help="Also give a level history: Leq, LAFmax and LCpeak per interval of T "
+            "(e.g. '1s', '100 ms'), and LAF/LAS sampled every 0.1 s.",
         ),
     ] = None,
     settle: Annotated[
@@ -46,9 +54,9 @@ def levels(
         typer.Option(
             "--settle",
             metavar="T",
-            help="Filter settling time excluded from LCpeak, LAFmax, LASmax (and, plus 5 "
-            "time constants, from LAFmin, LASmin, LAF percentiles). Default 0.1 s; use 0 "
-            "for a capture that starts on the event.",
+            help="Filter settling time excluded from LCpeak and the F and S maxima (and, "
+            "plus 5 time constants, from the minima and the percentiles). Default 0.1 s; "
+            "use 0 for a capture that starts on the event.",
         ),
     ] = None,
     percentiles: Annotated[
@@ -56,9 +64,11 @@ def levels(
         typer.Option(
             "--percentiles",
             metavar="P,P,...",
-            help="Further LAF percentiles, e.g. '1,10,50,90,99' for LAF1 ... LAF99.",
+            help="Further percentiles, e.g. '1,10,50,90,99' for LAF1 ... LAF99 and "
+            "LAS1 ... LAS99.",
         ),
     ] = None,
+    weight_any_quantity: WeightAnyQuantityOption = False,
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -82,6 +92,7 @@ def levels(
             interval_s=interval_s,
             filter_settle_s=settle_s,
             percentiles=None if percentiles is None else _parse_percentiles(percentiles),
+            weight_any_quantity=weight_any_quantity,
             advance=advance,
         )
     doc = measured.to_dict()
@@ -118,7 +129,7 @@ def _print(doc: dict[str, Any]) -> None:
     table.add_column("level")
     for ch in doc["channels"]:
         table.add_column(f"ch {ch['channel']}", justify="right")
-    extra = [k for k in doc["channels"][0] if k.startswith("LAF") and k not in LEVEL_KEYS]
+    extra = [k for k in doc["channels"][0] if k.startswith(("LAF", "LAS")) and k not in LEVEL_KEYS]
     for key in (*LEVEL_KEYS, *extra):
         table.add_row(key, *(_fmt(ch[key]) for ch in doc["channels"]))
     table.add_row(
@@ -127,13 +138,15 @@ def _print(doc: dict[str, Any]) -> None:
     console.print(table)
     excluded = doc["start_up_excluded_s"]
     console.print(
-        f"  start-up excluded: {excluded['LAFmax']:g} s from LCpeak/LAFmax/LASmax, "
-        f"{excluded['LAFmin']:g} s from LAFmin and LAF percentiles, "
-        f"{excluded['LASmin']:g} s from LASmin"
+        f"  start-up excluded: {excluded['LAFmax']:g} s from LCpeak and the F and S "
+        f"maxima, {excluded['LAFmin']:g} s from the F minima and LAF percentiles, "
+        f"{excluded['LASmin']:g} s from the S minima and LAS percentiles"
     )
     for ch in doc["channels"]:
         for note in ch["notes"]:
             console.print(f"  ch {ch['channel']}: {note}")
+    for note in doc["response_curve_notes"]:
+        console.print(f"  {note}")
     history = doc.get("history")
     if history is not None:
         rows = len(history["interval_start_s"])
@@ -143,12 +156,12 @@ def _print(doc: dict[str, Any]) -> None:
             hist = Table(box=None, pad_edge=False, header_style="bold")
             hist.add_column("start s", justify="right")
             for ch in history["channels"]:
-                for name in ("LZeq", "LAeq", "LCeq"):
+                for name in HISTORY_KEYS:
                     hist.add_column(f"{name} ch {ch['channel']}", justify="right")
             for i in range(rows):
                 cells = [f"{history['interval_start_s'][i]:g}"]
                 for ch in history["channels"]:
-                    cells += [_fmt(_finite(ch[name][i])) for name in ("LZeq", "LAeq", "LCeq")]
+                    cells += [_fmt(_finite(ch[name][i])) for name in HISTORY_KEYS]
                 hist.add_row(*cells)
             console.print(hist)
     console.print(f"[dim]{doc['caution']}[/dim]")

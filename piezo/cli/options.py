@@ -22,13 +22,28 @@ from piezo.chain.measurement import CalibratedSource
 from piezo.chain.open import open_source as open_calibrated
 from piezo.errors import InputError
 
-__all__ = ["JsonOption", "SourceOptions", "open_source", "source_options"]
+__all__ = [
+    "JsonOption",
+    "SourceOptions",
+    "WeightAnyQuantityOption",
+    "open_source",
+    "source_options",
+]
 
 CHAIN_PANEL = "Measurement chain"
 INPUT_PANEL = "Input"
 
 JsonOption = Annotated[
     bool, typer.Option("--json", help="Print one JSON document on stdout instead of tables.")
+]
+
+WeightAnyQuantityOption = Annotated[
+    bool,
+    typer.Option(
+        "--weight-any-quantity",
+        help="Apply the A and C weightings to quantities other than sound pressure too "
+        "(IEC 61672-1 defines them for sound pressure only).",
+    ),
 ]
 
 
@@ -42,6 +57,9 @@ class SourceOptions:
     reference: str | None = None
     charge_gain: str | None = None
     profile: Path | None = None
+    quantity: str | None = None
+    response_curve: Path | None = None
+    integrate: int = 0
     channel: list[int] | None = None
     rate: str | None = None
     columns: str | None = None
@@ -54,7 +72,8 @@ _OPTIONS: dict[str, tuple[Any, Any]] = {
         typer.Option(
             "--sensitivity",
             metavar="SENS",
-            help="Sensor sensitivity: '20 mV/Pa', '-34 dBV/Pa', '12 pC/Pa' (with --charge-gain).",
+            help="Sensor sensitivity: '20 mV/Pa', '-34 dBV/Pa', '-196 dB re 1 V/uPa', "
+            "'10 mV/g', '2 mV/N', '12 pC/Pa' or '4 pC/N' (with --charge-gain).",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
@@ -81,7 +100,8 @@ _OPTIONS: dict[str, tuple[Any, Any]] = {
         typer.Option(
             "--reference",
             metavar="PRESSURE",
-            help="Reference pressure for dB: '20 uPa' (air, default) or '1 uPa' (water).",
+            help="Reference pressure for dB: '20 uPa' (air, default) or '1 uPa' (water). "
+            "Other quantities use ISO 1683 references (1 um/s², 1 nm/s, 1 pm, 1 uN).",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
@@ -91,6 +111,36 @@ _OPTIONS: dict[str, tuple[Any, Any]] = {
             "--charge-gain",
             metavar="V/C",
             help="Charge amplifier gain for pC/Pa sensitivities, e.g. '1 mV/pC'.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "quantity": (
+        str | None,
+        typer.Option(
+            "--quantity",
+            metavar="QUANTITY",
+            help="What the sensor measures: pressure, acceleration, velocity, displacement, "
+            "force, voltage or charge. Default: the profile's, else the sensitivity's unit.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "response_curve": (
+        Path | None,
+        typer.Option(
+            "--response-curve",
+            metavar="CSV",
+            help="Sensor response curve (frequency_hz, relative_db[, phase_deg]) undone in "
+            "every result; for all channels, over the profile's.",
+            rich_help_panel=CHAIN_PANEL,
+        ),
+    ),
+    "integrate": (
+        int,
+        typer.Option(
+            "--integrate",
+            metavar="1|2",
+            help="Integrate acceleration to velocity (1) or displacement (2), velocity to "
+            "displacement (1); each step with a 1 Hz high-pass so drift stays bounded.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
@@ -140,7 +190,7 @@ _OPTIONS: dict[str, tuple[Any, Any]] = {
     ),
 }
 
-_DEFAULTS = {"no_sidecar": False}
+_DEFAULTS: dict[str, Any] = {"no_sidecar": False, "integrate": 0}
 
 
 def source_options(func: Callable[..., Any]) -> Callable[..., Any]:
@@ -186,6 +236,8 @@ _OPTION_NAMES = {
     "charge_gain": "--charge-gain",
     "reference": "--reference",
     "gain": "--gain",
+    "quantity": "--quantity",
+    "integrate": "--integrate",
     "rate_hz": "--rate",
     "rate": "--rate",
     "columns": "--columns",
@@ -231,6 +283,9 @@ def open_source(
             reference=src.reference,
             charge_gain=src.charge_gain,
             profile=src.profile,
+            quantity=src.quantity,
+            response_curve=src.response_curve,
+            integrate=src.integrate,
             channels=src.channel or None,
             rate=src.rate,
             columns=src.columns,

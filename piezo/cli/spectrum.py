@@ -30,6 +30,8 @@ from piezo.spectral.welch import AVERAGES, SCALINGS, WINDOWS, PSDResult, Spectro
 
 #: Columns kept for the plotted spectrogram (time-decimated by averaging).
 PLOT_COLUMNS = 600
+#: Distinct peaks printed per channel (the JSON has up to MAX_PEAKS).
+PRINTED_PEAKS = 5
 
 
 def register(app: typer.Typer) -> None:
@@ -156,12 +158,21 @@ def spectrum(
     if csv is not None:
         write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref, level_unit))
     if plot is not None and spectro is not None:
-        write_plot(plot, result, spectro, source.channel_indices, file.name, level_unit, ref)
+        write_plot(
+            plot,
+            result,
+            spectro,
+            source.channel_indices,
+            file.name,
+            level_unit,
+            ref,
+            start_time_s=source.recording.start_time_s,
+        )
     doc = measured.to_dict()
     if json_out:
         emit_json(doc)
     else:
-        _print(doc, result, source.unit, ref, source.chain.level_unit)
+        _print(doc, result, source.unit, ref, source.level_unit)
     note = stationarity.result().note() if stationarity is not None else None
     if note is not None:
         err_console.print(f"note: {note}")
@@ -218,26 +229,26 @@ def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit
     table.add_column("ch", justify="right")
     table.add_column(f"RMS {unit}", justify="right")
     table.add_column(f"total {level_unit}", justify="right")
-    table.add_column("strongest lines (Hz: level)", justify="left")
-    f = result.frequency_hz
-    for i, entry in enumerate(doc["channels"]):
+    table.add_column("distinct peaks: Hz, PSD level, above floor", justify="right")
+    # One fixed-point format: frequencies to the bin spacing, levels to 0.1 dB.
+    decimals = max(0, math.ceil(-math.log10(doc["resolution_hz"])))
+    for entry in doc["channels"]:
         ms = entry["mean_square"]
         rms = math.sqrt(ms) if ms > 0 else 0.0
         total = f"{20 * math.log10(rms / reference):.2f}" if rms > 0 else "—"
-        p = result.psd[:, i]
-        peaks = [k for k in range(1, p.size - 1) if p[k] >= p[k - 1] and p[k] > p[k + 1]]
-        chosen: list[int] = []
-        for k in sorted(peaks, key=lambda k: -p[k]):
-            # Skip maxima within a few bins of a stronger one (ripple on the same line).
-            if all(abs(k - c) > 4 * result.enbw_bins for c in chosen):
-                chosen.append(k)
-            if len(chosen) == 4:
-                break
-        peaks = chosen
-        with np.errstate(divide="ignore"):
-            text = ", ".join(
-                f"{f[k]:.5g}: {10 * math.log10(p[k] / reference**2):.1f}" for k in peaks
-            )
-        table.add_row(str(entry["channel"]), f"{rms:.4g}", total, text)
+        text = "\n".join(
+            f"{pk['frequency_hz']:.{decimals}f} Hz  {pk['level_db']:.1f} dB  "
+            f"{pk['above_floor_db']:+.1f} dB"
+            for pk in entry["peaks"][:PRINTED_PEAKS]
+        )
+        table.add_row(str(entry["channel"]), f"{rms:.4g}", total, text or "none")
     console.print(table)
-    console.print(f"  PSD levels in {doc['level_unit']}; totals by Parseval over all bins.")
+    console.print(
+        f"  PSD levels in {doc['level_unit']}; totals by Parseval over all bins. Peaks: "
+        f"at least {doc['peak_separation_hz']:.{decimals}f} Hz (one main lobe) apart, "
+        f"{doc['peak_margin_db']:.1f} dB above the local floor (running median over an "
+        "octave), apart by valleys deeper than the scatter; "
+        f"the {PRINTED_PEAKS} strongest shown."
+    )
+    for note in doc["response_curve_notes"]:
+        console.print(f"  {note}")

@@ -45,7 +45,25 @@ TAN_DELTA = 0.004
 
 @dataclass(frozen=True)
 class ElementFile:
-    """One file of the element lot: its name (relative to the output folder) and bytes."""
+    """One file of the element lot: its name (relative to the output folder) and bytes.
+
+    Examples
+    --------
+    Each element has an impedance CSV and a 40 ms tap at 192 kHz (7680 samples):
+
+    >>> import pathlib, tempfile
+    >>> import soundfile as sf
+    >>> files = element_lot_files()
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     for item in files[2:4]:
+    ...         path = pathlib.Path(tmp) / item.name
+    ...         path.parent.mkdir(parents=True, exist_ok=True)
+    ...         _ = path.write_bytes(item.data)
+    ...     info = sf.info(str(pathlib.Path(tmp) / "element-lot/tap/EL-29101.flac"))
+    ...     header = (pathlib.Path(tmp) / files[2].name).read_text().splitlines()[1]
+    >>> info.samplerate, info.frames, header
+    (192000, 7680, 'Frequency (Hz),|Z| (Ohm),Phase (deg)')
+    """
 
     name: str
     description: str
@@ -130,7 +148,22 @@ def _tap_flac(el: _Element, rng: np.random.Generator) -> bytes:
 
 
 def impedance_spec_text() -> str:
-    """Limit spec of the impedance inspection (limits invented for the demo)."""
+    """Limit spec of the impedance inspection (limits invented for the demo).
+
+    Examples
+    --------
+    A valid spec whose series-resonance window holds the design's
+    ``fs = 1/(2π·√(L1·C1))`` = 29.06 kHz (L1 = 0.12 H, C1 = 0.25 nF):
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec(impedance_spec_text())
+    >>> limits = {m.name: m.fail_limits() for m in spec.metrics}
+    >>> limits["fs"], spec.serial_from_name("EL-29104.csv")
+    ((28500.0, 29600.0), '29104')
+    >>> lo, hi = limits["fs"]
+    >>> lo < 1 / (2 * math.pi * math.sqrt(0.12 * 0.25e-9)) < hi
+    True
+    """
     return """\
 # PT29 incoming inspection: impedance sweep limits (demo; limits invented for the scenario).
 [spec]
@@ -177,7 +210,22 @@ upper = 1
 
 
 def tap_spec_text() -> str:
-    """Limit spec of the tap test (limits invented for the demo)."""
+    """Limit spec of the tap test (limits invented for the demo).
+
+    Examples
+    --------
+    Open circuit, the element rings at its antiresonance ``fp = fs·√(1 + C1/C0)``
+    = 30.66 kHz for the design, inside the ring-frequency limits:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec(tap_spec_text())
+    >>> spec.stimulus.kind, [m.name for m in spec.metrics]
+    ('tap', ['ring_frequency', 'ring_q', 'ring_modes'])
+    >>> lo, hi = spec.metrics[0].fail_limits()
+    >>> fp = 1 / (2 * math.pi * math.sqrt(0.12 * 0.25e-9)) * math.sqrt(1 + 0.25 / 2.2)
+    >>> lo < fp < hi, round(fp)
+    (True, 30664)
+    """
     return """\
 # PT29 incoming inspection: tap test limits (demo; limits invented for the scenario).
 [spec]

@@ -70,7 +70,22 @@ clip_level = "2 V"
 
 
 def frontend_demo_texts() -> dict[str, str]:
-    """The demo design files by path relative to the demo folder."""
+    """The demo design files by path relative to the demo folder.
+
+    Examples
+    --------
+    The charge-amplifier design reads ``12 mV/Pa × 18 nF / 10 nF × 10`` (charge
+    sensitivity over the feedback capacitance, then 20 dB) = 0.216 V/Pa in mid band:
+
+    >>> import tomllib
+    >>> from piezo.frontend.model import frontend_from_mapping, midband_sensitivity_v_per_pa
+    >>> texts = frontend_demo_texts()
+    >>> sorted(texts)
+    ['designs/film-buffer-voltage.toml', 'designs/pump-disc-charge.toml']
+    >>> design = frontend_from_mapping(tomllib.loads(texts["designs/pump-disc-charge.toml"]))
+    >>> round(midband_sensitivity_v_per_pa(design), 6)
+    0.216
+    """
     return {
         "designs/pump-disc-charge.toml": PUMP_DISC_CHARGE,
         "designs/film-buffer-voltage.toml": FILM_BUFFER_VOLTAGE,

@@ -83,7 +83,15 @@ NOISE_V = 4e-6
 
 @dataclass(frozen=True)
 class UnitModel:
-    """One unit's true parameters (what the analysis should find)."""
+    """One unit's true parameters (what the analysis should find).
+
+    Examples
+    --------
+    >>> DESIGN.sensitivity_db, DESIGN.corner_hz, DESIGN.resonance_hz, DESIGN.q
+    (-42.0, 55.0, 4300.0, 3.0)
+    >>> FAULTS["24122"]
+    ('high corner', {'corner_hz': 190.0})
+    """
 
     serial: str
     sensitivity_db: float  # dB re 1 V/Pa at mid band (model passband gain)
@@ -116,6 +124,14 @@ class LotFile:
 
     ``samples`` (fractions of full scale, 16-bit FLAC) for captures; ``text`` for the
     spec and the golden response; ``data`` for the deliberately corrupt capture.
+
+    Examples
+    --------
+    >>> files = lot_files()
+    >>> files[0].name, files[0].payload()[:14]
+    ('pd27-spec.toml', b'# Limit spec o')
+    >>> files[2].name, files[2].payload()[:4], files[2].unit.serial
+    ('pd27-lot/PD27-24101.flac', b'fLaC', '24101')
     """
 
     name: str
@@ -137,7 +153,18 @@ class LotFile:
 
 
 def flac_bytes(samples: np.ndarray, sample_rate_hz: float) -> bytes:
-    """16-bit FLAC of ``samples`` (fractions of full scale), encoded in memory."""
+    """16-bit FLAC of ``samples`` (fractions of full scale), encoded in memory.
+
+    Examples
+    --------
+    Samples already on the 16-bit grid come back unchanged (FLAC is lossless):
+
+    >>> x = np.round(0.5 * np.sin(np.arange(1600) / 5.0) * 32768) / 32768
+    >>> data = flac_bytes(x, 16000.0)
+    >>> y, rate = sf.read(io.BytesIO(data))
+    >>> data[:4], rate, bool(np.array_equal(x, y))
+    (b'fLaC', 16000, True)
+    """
     buf = io.BytesIO()
     sf.write(buf, samples, int(sample_rate_hz), format="FLAC", subtype="PCM_16")
     return buf.getvalue()
@@ -160,7 +187,17 @@ def _level_pa() -> float:
 
 
 def unit_response(unit: UnitModel, frequency_hz: np.ndarray) -> np.ndarray:
-    """Complex response of the model, V/Pa (delay excluded)."""
+    """Complex response of the model, V/Pa (delay excluded).
+
+    Examples
+    --------
+    The design's -42 dB passband reads -41.56 dB re 1 V/Pa at 1 kHz (the resonance's
+    rise); at the resonance the gain is Q = 3 higher, less the high-pass's small loss:
+
+    >>> level_db = 20 * np.log10(np.abs(unit_response(DESIGN, np.array([1000.0, 4300.0]))))
+    >>> level_db.round(2).tolist(), round(-42.0 + 20 * math.log10(3.0), 2)
+    ([-41.56, -32.46], -32.46)
+    """
     f = np.asarray(frequency_hz, dtype=float)
     jf = 1j * f
     highpass = jf / (jf + unit.corner_hz)
@@ -179,6 +216,14 @@ def simulate_capture(
     """The unit's capture of the sweep, fractions of full scale in 16-bit steps, (frames,).
 
     ``sweep`` (keys as :data:`SWEEP`) and ``sample_rate_hz`` default to the demo lot's.
+
+    Examples
+    --------
+    0.2 s + 0.6 s + 0.2 s at 16 kHz, on the 16-bit grid:
+
+    >>> x = simulate_capture(DESIGN, np.random.default_rng(0))
+    >>> x.shape, bool(np.all(x * 32768 == np.round(x * 32768)))
+    ((16000,), True)
     """
     spec = _sweep_spec(sweep, sample_rate_hz)
     stimulus = sweep_signal(spec)
@@ -196,7 +241,14 @@ def simulate_capture(
 
 
 def draw_unit(serial: str, rng: np.random.Generator) -> UnitModel:
-    """A good unit drawn from the design's spread (table in the module docstring)."""
+    """A good unit drawn from the design's spread (table in the module docstring).
+
+    Examples
+    --------
+    >>> unit = draw_unit("24101", np.random.default_rng(2427))
+    >>> unit.serial, round(unit.sensitivity_db, 2), round(unit.corner_hz, 1), unit.fault
+    ('24101', -41.59, 61.1, None)
+    """
     return UnitModel(
         serial=serial,
         sensitivity_db=float(rng.normal(DESIGN.sensitivity_db, 0.5)),
@@ -210,7 +262,17 @@ def draw_unit(serial: str, rng: np.random.Generator) -> UnitModel:
 
 def golden_response_csv() -> str:
     """The design's nominal response (the model, no noise) on a 1/12-octave grid, as a
-    response CSV (frequency_hz, magnitude_db)."""
+    response CSV (frequency_hz, magnitude_db).
+
+    Examples
+    --------
+    >>> from piezo.response.fit import parse_response_csv, sensitivity_at
+    >>> golden = parse_response_csv(golden_response_csv())
+    >>> golden.frequency_hz[:2].round(3).tolist(), golden.magnitude_unit
+    ([20.0, 21.189], 'dB re 1 V/Pa')
+    >>> round(sensitivity_at(golden.frequency_hz, golden.magnitude_db), 2)
+    -41.56
+    """
     f = 20.0 * 2.0 ** (np.arange(0, int(12 * math.log2(7000 / 20)) + 1) / 12.0)
     mag = 20.0 * np.log10(np.abs(unit_response(DESIGN, f)))
     lines = [
@@ -223,7 +285,24 @@ def golden_response_csv() -> str:
 
 
 def spec_text() -> str:
-    """The lot's limit spec (engineering limits around the design; invented for the demo)."""
+    """The lot's limit spec (engineering limits around the design; invented for the demo).
+
+    Examples
+    --------
+    The spec names its golden response, so it is read from a folder that holds both;
+    94 dB SPL is 1.00237 Pa:
+
+    >>> import pathlib, tempfile
+    >>> from piezo.batch.spec import load_spec
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     _ = (pathlib.Path(tmp) / "pd27-spec.toml").write_text(spec_text())
+    ...     _ = (pathlib.Path(tmp) / "pd27-golden.csv").write_text(golden_response_csv())
+    ...     spec = load_spec(pathlib.Path(tmp) / "pd27-spec.toml")
+    >>> [m.name for m in spec.metrics][:4], round(spec.stimulus.level_pa, 5)
+    (['sensitivity', 'corner', 'resonance', 'thd_1k'], 1.00237)
+    >>> spec.metrics[0].fail_limits(), spec.serial_from_name("PD27-24107.flac")
+    ((-44.5, -38.5), '24107')
+    """
     return f"""\
 # Limit spec of the PD27 end-of-line test (demo; limits invented for the scenario).
 [spec]
@@ -287,7 +366,18 @@ upper = 1.5
 
 
 def lot_files() -> list[LotFile]:
-    """Every file of the demo lot, in writing order (deterministic)."""
+    """Every file of the demo lot, in writing order (deterministic).
+
+    Examples
+    --------
+    Spec, golden response, 40 lot captures and 10 golden units; the seeded faults:
+
+    >>> files = lot_files()
+    >>> len(files), sum(f.name.startswith("pd27-lot/") for f in files)
+    (52, 40)
+    >>> [f.unit.serial for f in files if f.unit is not None and f.unit.fault]
+    ['24107', '24115', '24118', '24122', '24131', '24136']
+    """
     files = [
         LotFile("pd27-spec.toml", "limit spec of the PD27 end-of-line test", text=spec_text()),
         LotFile(

@@ -73,6 +73,20 @@ class PickupModel:
         resistor (Ω).
     resonance_hz, resonance_q
         Mounted resonance.
+
+    Examples
+    --------
+    The nominal pickup: 6 mV/Pa × 1.8 nF / 2.06 nF = 5.24 mV/Pa at the buffer, corner
+    1/(2π · 1 MΩ · 2.06 nF) = 77.3 Hz; the 330 kΩ resistor moves it to 234 Hz:
+
+    >>> nominal, high_corner = PICKUPS[0], PICKUPS[1]
+    >>> round(nominal.sensitivity_v_per_pa * 1e3, 3), round(nominal.corner_hz, 1)
+    (5.243, 77.3)
+    >>> round(high_corner.corner_hz, 1)
+    234.1
+    >>> round(float(nominal.magnitude_db(np.array([nominal.corner_hz]))[0])
+    ...       - 20 * math.log10(nominal.sensitivity_v_per_pa), 2)
+    -3.01
     """
 
     name: str
@@ -167,6 +181,12 @@ class DemoCapture:
         The simulated unit (its true values).
     samples
         Raw samples, fractions of the ADC's full scale, shape (frames,).
+
+    Examples
+    --------
+    >>> demo = response_demo()
+    >>> [(c.pickup.name, c.samples.shape) for c in demo.captures]
+    [('nominal', (240000,)), ('high-corner', (240000,)), ('low-resonance', (240000,))]
     """
 
     pickup: PickupModel
@@ -195,6 +215,21 @@ class ResponseDemo:
         (frames, 2) raw samples: channel 0 the drive signal, channel 1 the nominal pickup.
     gain_db, full_scale_v
         The chain: buffer gain and ADC full scale.
+
+    Examples
+    --------
+    The analysis finds the nominal pickup's true corner, resonance and Q in its capture
+    (converted to volts at the pickup through the chain):
+
+    >>> from piezo.response.fit import fit_response
+    >>> from piezo.response.measure import analyze_sweep
+    >>> demo = response_demo()
+    >>> volts = demo.captures[0].samples * demo.full_scale_v / 10 ** (demo.gain_db / 20)
+    >>> r = analyze_sweep(volts, demo.sweep, demo.sample_rate_hz, unit="V")
+    >>> fit = fit_response(r.frequency_hz, r.magnitude_db, magnitude_unit=r.magnitude_unit)
+    >>> res = fit.resonance
+    >>> round(fit.highpass.corner_hz, 1), round(res.frequency_hz), round(res.q, 2)
+    (77.3, 14000, 8.0)
     """
 
     sample_rate_hz: float
@@ -226,7 +261,19 @@ def _through_pickup(
 
 
 def response_demo() -> ResponseDemo:
-    """Build the demo (deterministic: fixed seeds)."""
+    """Build the demo (deterministic: fixed seeds).
+
+    Examples
+    --------
+    A 4 s sweep with 0.25 s of silence before and 0.75 s after, at 48 kHz; 3 s of
+    two-channel pink noise:
+
+    >>> demo = response_demo()
+    >>> demo.stimulus.shape, demo.two_channel.shape, round(demo.sweep.acoustic_level_pa, 4)
+    ((240000,), (144000, 2), 1.0024)
+    >>> bool(np.array_equal(demo.captures[1].samples, response_demo().captures[1].samples))
+    True
+    """
     fs = SAMPLE_RATE_HZ
     spec = sweep_spec(
         20.0,
@@ -289,6 +336,14 @@ def response_demo_files(demo: ResponseDemo | None = None) -> list[DemoFile]:
     profile); about 1.5 MB in all. The
     stimulus's sidecar and the golden response are text files: see
     :func:`response_demo_texts`.
+
+    Examples
+    --------
+    >>> files = response_demo_files()
+    >>> [(f.name, f.subtype, f.sidecar is not None) for f in files[:2]]
+    [('valve-pickup-sweep.flac', 'PCM_24', False), ('valve-pickup-nominal.flac', 'PCM_24', True)]
+    >>> files[-1].name, files[-1].samples.shape
+    ('valve-pickup-noise-2ch.flac', (144000, 2))
     """
     d = response_demo() if demo is None else demo
     fs = d.sample_rate_hz
@@ -343,6 +398,18 @@ def response_demo_texts(demo: ResponseDemo | None = None) -> dict[str, str]:
     acoustic level at the pickup), from which ``piezo sweep analyze`` rebuilds the
     inverse filter; ``valve-pickup-golden.csv`` is the design's response (frequency_hz,
     magnitude_db, dB re 1 V/Pa) for ``--golden``.
+
+    Examples
+    --------
+    The sidecar rebuilds the very sweep that was played:
+
+    >>> from piezo.response.stimulus import SweepSpec
+    >>> demo = response_demo()
+    >>> texts = response_demo_texts(demo)
+    >>> sorted(texts)
+    ['valve-pickup-golden.csv', 'valve-pickup-sweep.stimulus.toml']
+    >>> SweepSpec.from_toml(texts["valve-pickup-sweep.stimulus.toml"]) == demo.sweep
+    True
     """
     d = response_demo() if demo is None else demo
     return {

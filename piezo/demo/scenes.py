@@ -213,10 +213,34 @@ SCENARIOS: tuple[Callable[[], DemoFile], ...] = (_calibrator, _pump_bench, _hydr
 
 
 def demo_files() -> list[DemoFile]:
-    """Generate every demo recording (deterministic), all scenarios."""
+    """Generate every demo recording (deterministic), all scenarios.
+
+    Examples
+    --------
+    The calibrator capture is 94 dB SPL (1.0024 Pa RMS) on an 8.5 mV/Pa element with
+    20 dB gain into 2 V full scale: ``1.0024 × 0.0085 × 10 / 2`` = 0.0426 of full scale
+    RMS (plus a little room noise):
+
+    >>> files = demo_files()
+    >>> [f.name for f in files][:4]
+    ['calibrator-94dB.wav', 'pump-bench.flac', 'tank-hydrophone.flac', 'tap-test.csv']
+    >>> x = files[0].samples[:, 0]
+    >>> files[0].sample_rate_hz, round(float(np.sqrt(np.mean(x**2))), 4)
+    (48000, 0.0426)
+    >>> files[3].header
+    ('Time (s)', 'Disc (V)', 'Reference (V)')
+    """
     return [make() for make in SCENARIOS] + response_demo_files() + bench_demo_files()
 
 
 def demo_texts() -> dict[str, str]:
-    """Text files that go with the demo recordings (stimulus descriptions, golden data)."""
+    """Text files that go with the demo recordings (stimulus descriptions, golden data).
+
+    Examples
+    --------
+    >>> sorted(demo_texts())
+    ['accel-bench-reference-chart.csv', 'designs/film-buffer-voltage.toml',
+     'designs/pump-disc-charge.toml', 'valve-pickup-golden.csv',
+     'valve-pickup-sweep.stimulus.toml']
+    """
     return {**response_demo_texts(), **frontend_demo_texts(), **bench_demo_texts()}

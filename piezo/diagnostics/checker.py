@@ -38,6 +38,14 @@ import numpy as np
 from piezo import validate
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity
+from piezo.diagnostics._stream import (
+    EMPTY_F,
+    ExtremeSide,
+    IntervalLevels,
+    IntervalStats,
+    MaskRuns,
+    RunTracker,
+)
 from piezo.diagnostics.spectral import (
     HumLine,
     HumResult,
@@ -45,14 +53,6 @@ from piezo.diagnostics.spectral import (
     estimate_rolloff,
     measure_hum,
     psd_floor,
-)
-from piezo.diagnostics.stream import (
-    EMPTY_F,
-    ExtremeSide,
-    IntervalLevels,
-    IntervalStats,
-    MaskRuns,
-    RunTracker,
 )
 from piezo.diagnostics.thresholds import (
     Severity,
@@ -109,6 +109,17 @@ class CaptureMetadata:
         Number of gaps the CSV reader found in the time column (None when not CSV).
     largest_time_gap_s
         The longest such gap in seconds.
+
+    Examples
+    --------
+    A sidecar whose sample rate disagrees with the file header fails the capture:
+
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> meta = CaptureMetadata(file_rate_hz=48000.0, sidecar_rate_hz=44100.0)
+    >>> diag = check_capture(x, 48000.0, metadata=meta)
+    >>> [(c.name, c.severity.value) for c in diag.metadata_checks], diag.verdict.value
+    ([('sample_rate', 'fail')], 'fail')
     """
 
     file_rate_hz: float | None = None
@@ -125,7 +136,18 @@ class CaptureMetadata:
 
 @dataclass(frozen=True)
 class Check:
-    """One finding: which check, how bad, the evidence and the threshold applied."""
+    """One finding: which check, how bad, the evidence and the threshold applied.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> c = check_capture(x, 48000.0).channels[0].check("headroom")
+    >>> c.severity.value, c.evidence
+    ('ok', 'peak -6.02 dBFS, headroom 6.02 dB, crest factor 3.01 dB')
+    >>> sorted(c.as_dict())
+    ['evidence', 'name', 'severity', 'threshold']
+    """
 
     name: str
     severity: Severity
@@ -143,7 +165,21 @@ class Check:
 
 @dataclass(frozen=True)
 class ClipLevel:
-    """A clip found on one side of the signal."""
+    """A clip found on one side of the signal.
+
+    Examples
+    --------
+    A 100 Hz sine limited at 0.7 of full scale by an analog stage (flat tops below the
+    converter's extremes), one clip per period on each side over 1 s:
+
+    >>> import numpy as np
+    >>> t = np.arange(48000) / 48000
+    >>> x = np.clip(0.9 * np.sin(2 * np.pi * 100 * t), -0.7, 0.7)
+    >>> for lv in check_capture(x, 48000.0).channels[0].clipping.levels:
+    ...     print(lv.side, lv.kind, lv.level, f"{lv.level_dbfs:.2f}", lv.events)
+    positive analog 0.7 -3.10 100
+    negative analog -0.7 -3.10 100
+    """
 
     side: str  # "positive" or "negative"
     kind: str  # "digital" or "analog"
@@ -156,6 +192,22 @@ class ClipLevel:
 
 @dataclass(frozen=True)
 class ClippingResult:
+    """Clipping of one channel: clipped samples, events and the clip levels found.
+
+    Examples
+    --------
+    A 100 Hz sine at 1.5 × full scale, clipped by the converter: |1.5 sin| reaches 1
+    for a fraction 1 − (2/π)·arcsin(2/3) = 0.535 of the time (first principles), in two
+    events per period:
+
+    >>> import numpy as np
+    >>> t = np.arange(48000) / 48000
+    >>> x = np.clip(1.5 * np.sin(2 * np.pi * 100 * t), -1.0, 1.0)
+    >>> clip = check_capture(x, 48000.0).channels[0].clipping
+    >>> clip.events, round(clip.clipped_fraction, 2), [lv.kind for lv in clip.levels]
+    (200, 0.54, ['digital', 'digital'])
+    """
+
     clipped_samples: int
     clipped_fraction: float
     events: int
@@ -167,6 +219,20 @@ class ClippingResult:
 
 @dataclass(frozen=True)
 class HeadroomResult:
+    """Peak, headroom to full scale, RMS and crest factor of one channel.
+
+    Examples
+    --------
+    A sine at half of full scale peaks at 20·lg 0.5 = -6.02 dBFS; a sine's crest
+    factor is √2, 3.01 dB:
+
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> h = check_capture(x, 48000.0).channels[0].headroom
+    >>> round(h.peak_dbfs, 2), round(h.headroom_db, 2), round(h.crest_factor_db, 2)
+    (-6.02, 6.02, 3.01)
+    """
+
     peak: float
     peak_dbfs: float | None
     headroom_db: float | None  # full scale over peak in dB (positive = room left)
@@ -176,6 +242,22 @@ class HeadroomResult:
 
 @dataclass(frozen=True)
 class DcResult:
+    """DC offset and slow drift of one channel.
+
+    Examples
+    --------
+    A 0.05 offset under a sine of amplitude 0.5 (AC RMS 0.5/√2): 5 % of full scale,
+    0.14 × the AC RMS, which warns (from 1 % of full scale by default):
+
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000) + 0.05
+    >>> ch = check_capture(x, 48000.0).channels[0]
+    >>> round(ch.dc.dc_fraction_of_fs, 4), round(ch.dc.dc_re_rms, 3)
+    (0.05, 0.141)
+    >>> ch.check("dc").severity.value
+    'warn'
+    """
+
     dc_offset: float  # in the unit of the samples
     dc_offset_v: float  # in volts (at the sensor output)
     dc_fraction_of_fs: float | None
@@ -191,6 +273,20 @@ class DcResult:
 
 @dataclass(frozen=True)
 class DropoutResult:
+    """Runs of zeros or of one repeated value, time-column gaps, silent edges.
+
+    Examples
+    --------
+    5 ms of zeros (240 samples at 48 kHz) in the middle of a 1 s sine:
+
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> x[24000:24240] = 0.0
+    >>> d = check_capture(x, 48000.0).channels[0].dropouts
+    >>> d.zero_runs, d.zero_samples, d.dropout_fraction, d.event_times_s
+    (1, 240, 0.005, (0.5,))
+    """
+
     zero_runs: int
     zero_samples: int
     repeat_runs: int
@@ -208,6 +304,22 @@ class DropoutResult:
 
 @dataclass(frozen=True)
 class NoiseFloorResult:
+    """Noise floor (quietest intervals), signal level, SNR and PSD floor of one channel.
+
+    Examples
+    --------
+    White noise of RMS 1e-3 (-60 dB re 1 V) throughout and, in the first half second, a
+    sine of amplitude 0.1 (RMS 0.1/√2, -23.0 dB re 1 V):
+
+    >>> import numpy as np
+    >>> t = np.arange(48000) / 48000
+    >>> x = 1e-3 * np.random.default_rng(1).standard_normal(48000)
+    >>> x[:24000] += 0.1 * np.sin(2 * np.pi * 1000 * t[:24000])
+    >>> n = check_capture(x, 48000.0).channels[0].noise
+    >>> round(n.noise_floor_db), round(n.signal_level_db, 1), round(n.snr_db)
+    (-60, -23.0, 37)
+    """
+
     noise_floor_db: float | None  # quietest intervals, dB re reference
     noise_floor_a_db: float | None  # the same A-weighted (IEC 61672-1); None below 8 kHz
     signal_level_db: float | None
@@ -220,7 +332,18 @@ class NoiseFloorResult:
 
 @dataclass(frozen=True)
 class ChannelDiagnostics:
-    """All checks of one channel."""
+    """All checks of one channel.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> ch = check_capture(x, 48000.0).channels[0]
+    >>> ch.verdict.value, [c.name for c in ch.checks]
+    ('ok', ['clipping', 'headroom', 'dc', 'dropouts', 'hum', 'rolloff', 'noise'])
+    >>> ch.check("dropouts").evidence
+    'no dropouts found'
+    """
 
     channel: int
     verdict: Severity
@@ -361,7 +484,20 @@ class ChannelDiagnostics:
 
 @dataclass(frozen=True)
 class CaptureDiagnostics:
-    """The result of :class:`CaptureChecker`: metadata checks and one entry per channel."""
+    """The result of :class:`CaptureChecker`: metadata checks and one entry per channel.
+
+    Examples
+    --------
+    The file's verdict is the worst channel's: a clean channel beside a clipped one.
+
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> diag = check_capture(np.column_stack([x, np.clip(3 * x, -1, 1)]), 48000.0)
+    >>> diag.duration_s, [c.verdict.value for c in diag.channels], diag.verdict.value
+    (1.0, ['ok', 'fail'], 'fail')
+    >>> diag.as_dict()["channels"][1]["clipping"]["levels"][0]["kind"]
+    'digital'
+    """
 
     sample_rate_hz: float
     frames: int
@@ -466,6 +602,25 @@ class CaptureChecker:
     -----
     Memory is bounded: one PSD segment per channel, fixed histograms and small
     dictionaries near the extremes; nothing grows with the length of the recording.
+
+    Examples
+    --------
+    Fed in uneven blocks, the checker finds what :func:`check_capture` finds on the
+    whole array:
+
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> checker = CaptureChecker(48000.0, 1, expected_frames=48000)
+    >>> for block in np.array_split(x[:, None], 7):
+    ...     checker.update(block)
+    >>> streamed = checker.result().channels[0]
+    >>> whole = check_capture(x, 48000.0).channels[0]
+    >>> [c.severity for c in streamed.checks] == [c.severity for c in whole.checks]
+    True
+    >>> streamed.headroom.peak == whole.headroom.peak
+    True
+    >>> abs(streamed.headroom.rms - whole.headroom.rms) < 1e-12  # summation order only
+    True
     """
 
     def __init__(
@@ -1248,6 +1403,17 @@ def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> Capt
     The full scale is known for audio files (a raw sample of 1.0); for CSV files only when
     a full scale was given by option or profile (otherwise the instrument range is
     unknown and digital clipping and headroom are not determinable).
+
+    Examples
+    --------
+    The bundled calibrator recording has a full scale of 2 V behind a 20 dB gain (its
+    sidecar), so full scale at the sensor is 2 V / 10 = 0.2 V; no sensitivity is given:
+
+    >>> import piezo
+    >>> source = piezo.open("recordings/calibrator-94dB.wav")
+    >>> checker = checker_for_source(source, Thresholds())
+    >>> round(checker.full_scale, 6), checker.unit, checker.metadata.sensitivity_known
+    (0.2, 'V', False)
     """
     rec = source.recording
     chain = source.chain
@@ -1301,6 +1467,14 @@ def check_capture(
     """Diagnose a whole capture held in memory (thin wrapper over :class:`CaptureChecker`).
 
     ``samples`` has shape (frames, channels) or (frames,) for one channel.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = 0.5 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)
+    >>> diag = check_capture(x, 48000.0)
+    >>> diag.verdict.value, diag.frames, diag.channels[0].check("clipping").evidence
+    ('ok', 48000, 'no clipping found')
     """
     x = np.asarray(samples, dtype=np.float64)
     if x.ndim == 1:

@@ -29,6 +29,28 @@ __all__ = [
 
 @dataclass(frozen=True)
 class HumLine:
+    """One examined mains line (a harmonic of 50 or 60 Hz) and whether it is hum.
+
+    Examples
+    --------
+    A 50 Hz tone in weak noise: the fundamental stands out, its second harmonic not.
+
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import welch_psd
+    >>> t = np.arange(32000) / 8000
+    >>> x = 0.1 * np.sin(2 * np.pi * 50 * t)
+    >>> x += 1e-3 * np.random.default_rng(0).standard_normal(t.size)
+    >>> r = welch_psd(x, 8000.0, segment_frames=8000)
+    >>> hum = measure_hum(r.frequency_hz, r.psd[:, 0], total_power=float(np.var(x)),
+    ...                   degrees_of_freedom=r.degrees_of_freedom)
+    >>> [(ln.harmonic, ln.nominal_hz, ln.detected) for ln in hum.lines[:2]]
+    [(1, 50.0, True), (2, 100.0, False)]
+    >>> round(hum.lines[0].frequency_hz, 2)
+    50.0
+    >>> hum.lines[0].re_total_db > -0.01  # the tone is nearly all the channel's power
+    True
+    """
+
     mains_hz: float
     harmonic: int
     nominal_hz: float
@@ -41,6 +63,24 @@ class HumLine:
 
 @dataclass(frozen=True)
 class HumResult:
+    """Mains hum of one channel: status, the stronger mains family and its lines.
+
+    Examples
+    --------
+    White noise holds no hum; a spectrum with bins wider than 1 Hz cannot tell:
+
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import welch_psd
+    >>> x = np.random.default_rng(0).standard_normal(32000)
+    >>> fine = welch_psd(x, 8000.0, segment_frames=8000)
+    >>> measure_hum(fine.frequency_hz, fine.psd[:, 0], total_power=1.0,
+    ...             degrees_of_freedom=fine.degrees_of_freedom).status
+    'none'
+    >>> coarse = welch_psd(x, 8000.0, segment_frames=1024)
+    >>> measure_hum(coarse.frequency_hz, coarse.psd[:, 0], total_power=1.0).status
+    'not determinable'
+    """
+
     status: str  # "detected", "none", "not determinable"
     mains_hz: float | None
     level_db: float | None  # all detected lines of the chosen mains family together
@@ -51,6 +91,24 @@ class HumResult:
 
 @dataclass(frozen=True)
 class RolloffResult:
+    """Low-frequency corner of a capture, or why it cannot be given (see
+    :func:`estimate_rolloff`).
+
+    Examples
+    --------
+    White noise is flat down to the lowest analysed frequency: the corner lies below
+    it, and the result says so instead of guessing.
+
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import welch_psd
+    >>> x = np.random.default_rng(0).standard_normal(160000)
+    >>> r = welch_psd(x, 16000.0, segment_frames=4096)
+    >>> ro = estimate_rolloff(r.frequency_hz, r.psd[:, 0],
+    ...                       degrees_of_freedom=r.degrees_of_freedom)
+    >>> ro.status, ro.corner_hz, round(ro.upper_bound_hz, 1)  # 4 bins of 16000/4096 Hz
+    ('below range', None, 15.6)
+    """
+
     status: str  # "estimated", "below range", "not determinable"
     corner_hz: float | None
     order: int | None
@@ -118,6 +176,22 @@ def measure_hum(
         Reference value of the unit for the dB levels (1.0 = dB re 1 unit).
     thresholds
         Limits (:class:`Thresholds`).
+
+    Examples
+    --------
+    A 50 Hz tone of amplitude 0.1 has the mean square 0.1²/2, -23.01 dB re 1; the three
+    central Hann bins hold all of it for a tone on a bin centre:
+
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import welch_psd
+    >>> t = np.arange(32000) / 8000
+    >>> x = 0.1 * np.sin(2 * np.pi * 50 * t)
+    >>> x += 1e-3 * np.random.default_rng(0).standard_normal(t.size)
+    >>> r = welch_psd(x, 8000.0, segment_frames=8000)  # 1 Hz bins
+    >>> hum = measure_hum(r.frequency_hz, r.psd[:, 0], total_power=float(np.var(x)),
+    ...                   degrees_of_freedom=r.degrees_of_freedom)
+    >>> hum.status, hum.mains_hz, round(hum.level_db, 2)
+    ('detected', 50.0, -23.01)
     """
     th = thresholds or Thresholds()
     df = float(frequencies_hz[1] - frequencies_hz[0])
@@ -231,6 +305,19 @@ def psd_floor(
     group values is the floor. For white noise of variance s² it reads the one-sided
     density 2 s²/fs (Heinzel, Rüdiger, Schilling 2002) within the small scatter of the
     group estimates. Returns None when fewer than 32 bins are available.
+
+    Examples
+    --------
+    Unit-variance white noise at 8 kHz: the floor reads 2/8000 = 2.5e-4 per hertz to
+    within a few per cent:
+
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import welch_psd
+    >>> x = np.random.default_rng(0).standard_normal(80000)
+    >>> r = welch_psd(x, 8000.0, segment_frames=1024)
+    >>> floor = psd_floor(r.frequency_hz, r.psd[:, 0], degrees_of_freedom=r.degrees_of_freedom)
+    >>> round(floor / (2 / 8000), 1)
+    1.0
     """
     df = float(frequencies_hz[1] - frequencies_hz[0])
     band = (frequencies_hz >= max(low_hz, 4 * df)) & (frequencies_hz <= 0.8 * frequencies_hz[-1])
@@ -292,6 +379,22 @@ def estimate_rolloff(
         Reference of the band levels in the evidence (dB re reference²/Hz).
     thresholds
         Limits (:class:`Thresholds`).
+
+    Examples
+    --------
+    White noise through a first-order Butterworth high-pass at 100 Hz; with 10 s of
+    noise the estimate scatters by about ±5 % from seed to seed:
+
+    >>> import numpy as np
+    >>> from scipy import signal
+    >>> from piezo.spectral.welch import welch_psd
+    >>> sos = signal.butter(1, 100.0, "highpass", fs=16000.0, output="sos")
+    >>> x = signal.sosfilt(sos, np.random.default_rng(0).standard_normal(160000))
+    >>> r = welch_psd(x, 16000.0, segment_frames=4096)
+    >>> ro = estimate_rolloff(r.frequency_hz, r.psd[:, 0],
+    ...                       degrees_of_freedom=r.degrees_of_freedom)
+    >>> ro.status, ro.order, round(ro.corner_hz, -1)
+    ('estimated', 1, 100.0)
     """
     th = thresholds or Thresholds()
     expected = th.rolloff_expected_hz

@@ -59,10 +59,13 @@ class Check:
             "file": str(rec.path),
             "format": rec.format,
             "subtype": rec.subtype,
+            "quantity": chain.measured.name,
             "level_unit": chain.level_unit,
             "chain": {
+                "quantity": chain.quantity,
                 "full_scale_v": chain.full_scale_v,
                 "gain": chain.gain,
+                "sensitivity_v_per_unit": chain.sensitivity_v_per_unit,
                 "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
                 "reference_pa": chain.reference_pa,
                 "provenance": provenance.as_dict() if provenance else None,

@@ -24,7 +24,15 @@ __all__ = [
 
 
 class Severity(StrEnum):
-    """How bad a finding is: ``ok`` < ``warn`` < ``fail``."""
+    """How bad a finding is: ``ok`` < ``warn`` < ``fail``.
+
+    Examples
+    --------
+    >>> Severity("warn").rank, Severity.FAIL.rank
+    (1, 2)
+    >>> Severity.FAIL == "fail"  # a str enum: compares and serialises as its text
+    True
+    """
 
     OK = "ok"
     WARN = "warn"
@@ -40,7 +48,15 @@ _RANK = {"ok": 0, "warn": 1, "fail": 2}
 
 
 def worst_severity(severities: Iterable[Severity]) -> Severity:
-    """Return the worst of ``severities`` (``ok`` when there are none)."""
+    """Return the worst of ``severities`` (``ok`` when there are none).
+
+    Examples
+    --------
+    >>> worst_severity([Severity.OK, Severity.FAIL, Severity.WARN]).value
+    'fail'
+    >>> worst_severity([]).value
+    'ok'
+    """
     worst = Severity.OK
     for s in severities:
         if s.rank > worst.rank:
@@ -59,6 +75,18 @@ class Thresholds:
     All defaults are common practice of the trade unless a source is named; none comes
     from a standard. Fractions are of full scale unless stated. Load from TOML with
     :func:`load_thresholds`; change single values with :meth:`updated`.
+
+    Examples
+    --------
+    >>> th = Thresholds()
+    >>> th.clip_min_run, th.hum_mains_hz
+    (3, (50.0, 60.0))
+    >>> th.updated({"hum_mains_hz": "50", "clip_min_run": 5}).as_dict()["hum_mains_hz"]
+    [50.0]
+    >>> Thresholds(dc_warn_fraction=0.2)  # fails below warns: refused
+    Traceback (most recent call last):
+    ...
+    piezo.errors.SpecError: threshold dc_fail_fraction: must not be below dc_warn_fraction
     """
 
     # Clipping
@@ -322,6 +350,16 @@ def load_thresholds(path: str | Path, *, base: Thresholds | None = None) -> Thre
     ------
     SpecError
         When the file cannot be read or parsed, or holds an unknown key or a bad value.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     path = pathlib.Path(tmp) / "limits.toml"
+    ...     _ = path.write_text("[thresholds]\\nhum_mains_hz = [60]\\nsnr_warn_db = 30\\n")
+    ...     th = load_thresholds(path)
+    >>> th.hum_mains_hz, th.snr_warn_db, th.clip_min_run  # the rest keeps its default
+    ((60.0,), 30.0, 3)
     """
     p = Path(path)
     data = read_toml(p, what="thresholds file", error=SpecError)
@@ -344,6 +382,17 @@ def parse_threshold_assignment(text: str) -> tuple[str, Any]:
     ------
     SpecError
         When ``text`` has no ``=``, names an unknown threshold or has a bad value.
+
+    Examples
+    --------
+    >>> parse_threshold_assignment("clip_min_run=5")
+    ('clip_min_run', 5)
+    >>> parse_threshold_assignment("hum_mains_hz = 50, 60")
+    ('hum_mains_hz', (50.0, 60.0))
+    >>> parse_threshold_assignment("clip_min_run=2.5")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.SpecError: --threshold: ...: cannot use '2.5'; expected a whole number
     """
     if "=" not in text:
         raise SpecError(f"--threshold: expected NAME=VALUE, got {text!r}")

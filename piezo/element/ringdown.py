@@ -99,6 +99,19 @@ class DecayMode:
         σ (1/s) and 20σ/ln 10 (dB/s).
     amplitude
         Amplitude A at the start of the fit (unit of the samples).
+
+    Examples
+    --------
+    A free decay at f_d = 1 kHz with σ = 100/s: Q = ω_n / (2σ) = 31.42, the decay is
+    20σ / ln 10 = 868.6 dB/s and the decrement σ / f_d = 0.1.
+
+    >>> import numpy as np
+    >>> t = np.arange(800) / 8000
+    >>> (mode,), _ = identify_modes(np.exp(-100 * t) * np.cos(2 * np.pi * 1000 * t), 8000.0)
+    >>> round(mode.frequency_hz, 3), round(mode.q, 2), round(mode.decay_db_per_s, 1)
+    (1000.0, 31.42, 868.6)
+    >>> round(logarithmic_decrement(mode.damping_ratio), 6), round(mode.amplitude, 6)
+    (0.1, 1.0)
     """
 
     frequency_hz: float
@@ -277,6 +290,22 @@ class EventModes:
         Strongest first.
     noise_rms, residual_rms
         Noise floor of the channel, and RMS residual of the fit.
+
+    Examples
+    --------
+    Two taps, 1 kHz modes of amplitude 1 and 0.5, in noise of 0.1 mV RMS:
+
+    >>> import numpy as np
+    >>> t = np.arange(2000) / 8000
+    >>> x = 1e-4 * np.random.default_rng(0).standard_normal(t.size)
+    >>> for start_s, amplitude in ((0.02, 1.0), (0.12, 0.5)):
+    ...     tau = np.clip(t - start_s, 0, None)
+    ...     x += (t >= start_s) * amplitude * np.exp(-100 * tau) * np.sin(2 * np.pi * 1000 * tau)
+    >>> events = ringdown(x, 8000.0)[0].events
+    >>> [(round(e.start_s, 3), round(e.peak, 1), len(e.modes)) for e in events]
+    [(0.02, 1.0, 1), (0.12, 0.5, 1)]
+    >>> [round(e.modes[0].frequency_hz, 1) for e in events]
+    [1000.0, 1000.0]
     """
 
     start_s: float
@@ -291,7 +320,22 @@ class EventModes:
 
 @dataclass(frozen=True)
 class ModeSummary:
-    """One mode over the events where it was found: mean and sample standard deviation."""
+    """One mode over the events where it was found: mean and sample standard deviation.
+
+    Examples
+    --------
+    The same 1 kHz mode (Q = 31.4) rung twice is one mode found in two events:
+
+    >>> import numpy as np
+    >>> t = np.arange(2000) / 8000
+    >>> x = 1e-4 * np.random.default_rng(0).standard_normal(t.size)
+    >>> for start_s, amplitude in ((0.02, 1.0), (0.12, 0.5)):
+    ...     tau = np.clip(t - start_s, 0, None)
+    ...     x += (t >= start_s) * amplitude * np.exp(-100 * tau) * np.sin(2 * np.pi * 1000 * tau)
+    >>> (mode,) = ringdown(x, 8000.0)[0].modes
+    >>> mode.events, round(mode.frequency_hz, 1), round(mode.q, 1), mode.frequency_std_hz < 0.01
+    (2, 1000.0, 31.4, True)
+    """
 
     events: int
     frequency_hz: float
@@ -305,7 +349,22 @@ class ModeSummary:
 
 @dataclass(frozen=True)
 class RingdownResult:
-    """Events and modes of one channel."""
+    """Events and modes of one channel.
+
+    Examples
+    --------
+    One result per channel; a silent channel has no events:
+
+    >>> import numpy as np
+    >>> t = np.arange(2000) / 8000
+    >>> tap = (t >= 0.02) * np.exp(-100 * (t - 0.02)) * np.sin(2 * np.pi * 1000 * (t - 0.02))
+    >>> noise = 1e-4 * np.random.default_rng(0).standard_normal((t.size, 2))
+    >>> results = ringdown(np.column_stack([tap, 0 * tap]) + noise, 8000.0)
+    >>> [(r.channel, r.sample_rate_hz, len(r.events)) for r in results]
+    [(0, 8000.0, 1), (1, 8000.0, 0)]
+    >>> round(results[0].modes[0].frequency_hz, 1)
+    1000.0
+    """
 
     channel: int
     sample_rate_hz: float

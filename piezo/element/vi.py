@@ -135,6 +135,20 @@ class ViMeasurement:
         Bins inside that bandwidth with the final segment length.
     notes
         Cautions (resolution limited by the recording's length).
+
+    Examples
+    --------
+    A plain 100 Ω resistor has no resonance, so one pass at the first resolution
+    (1024 samples, 46.9 Hz bins at 48 kHz) is the measurement:
+
+    >>> import numpy as np
+    >>> i = np.random.default_rng(3).standard_normal(48000)
+    >>> data = np.column_stack([100.0 * i, 10.0 * i])  # element, 10 Ω shunt
+    >>> m = measure_impedance(lambda: [data], 48000.0, 2, data.shape[0], shunt_ohm=10.0)
+    >>> m.segment_frames, m.passes, m.narrowest_bandwidth_hz, m.bins_per_bandwidth, m.notes
+    (1024, 1, None, None, ())
+    >>> bool(np.allclose(m.sweep.impedance_ohm, 100.0)), round(float(m.sweep.coherence.min()), 6)
+    (True, 1.0)
     """
 
     sweep: ImpedanceSweep

@@ -77,6 +77,24 @@ class DigitalRealisation:
         Largest magnitude difference over the check band, dB.
     max_phase_error_deg
         Largest phase difference over the check band, degrees (information only).
+
+    Examples
+    --------
+    The digital filter follows the analog response over its check band, from twice the
+    corner (2 × 1.59 Hz) to 0.4 × fs:
+
+    >>> import numpy as np
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor, frequency_response
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> r = realise_frontend(fe, 48000.0)
+    >>> [round(f, 2) for f in r.check_band_hz], r.max_error_db < 0.01
+    ([3.18, 19200.0], True)
+    >>> ratio = r.response(np.array([1000.0])) / frequency_response(fe, np.array([1000.0]))
+    >>> round(float(abs(ratio[0])), 4)
+    1.0
     """
 
     sos: np.ndarray
@@ -260,6 +278,21 @@ def realise_zpk(
         Sample rate, Hz.
     check_band_hz
         Band over which the error is measured and minimised, Hz.
+
+    Examples
+    --------
+    An analog first-order high-pass s/(s + 2π·100 Hz), realised at 48 kHz and compared
+    with scipy's analog response:
+
+    >>> import math
+    >>> import numpy as np
+    >>> from scipy import signal
+    >>> z, p, k = np.array([0.0]), np.array([-2 * math.pi * 100.0]), 1.0
+    >>> r = realise_zpk(z, p, k, 48000.0, check_band_hz=(200.0, 19200.0))
+    >>> f = np.array([100.0, 1000.0])
+    >>> _, ha = signal.freqs_zpk(z, p, k, worN=2 * math.pi * f)
+    >>> (np.abs(r.response(f)) / np.abs(ha)).round(4).tolist(), r.max_error_db < 0.01
+    ([1.0, 1.0], True)
     """
     fs = _check_rate(sample_rate_hz)
     zeros = np.asarray(zeros, dtype=complex)
@@ -332,7 +365,23 @@ class _StreamingSOS:
 
 @dataclass(frozen=True)
 class SimulationResult:
-    """Summary of a simulated front-end run (see :class:`FrontendFilter`)."""
+    """Summary of a simulated front-end run (see :class:`FrontendFilter`).
+
+    Examples
+    --------
+    A 20 Pa sine at 0.1 V/Pa would swing 2 V peak into a 1 V clip level: |2 sin| > 1 for
+    1 − (2/π)·arcsin(1/2) = 2/3 of the time (first principles):
+
+    >>> import numpy as np
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9,
+    ...                       clip_level_v=1.0)
+    >>> sim = FrontendFilter(48000.0, 1, frontend=Frontend(Sensor(10e-12, 1e-9), amp))
+    >>> _ = sim.update(20.0 * np.sin(2 * np.pi * 1000 * np.arange(4800) / 48000)[:, None])
+    >>> res = sim.result()
+    >>> res.peak_v, round(res.clipped_samples[0] / res.frames, 2)
+    ((1.0,), 0.67)
+    """
 
     frames: int
     peak_v: tuple[float, ...]
@@ -349,6 +398,17 @@ def realise_frontend(
     """Digital realisation of ``frontend`` at ``sample_rate_hz`` (input Pa or C, output V).
 
     Cached: a design realised once at a rate is not fitted again.
+
+    Examples
+    --------
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> r = realise_frontend(fe, 48000.0)
+    >>> r.sample_rate_hz, r is realise_frontend(fe, 48000.0)  # fitted once, then cached
+    (48000.0, True)
     """
     fs = _check_rate(sample_rate_hz)
     zeros, poles, gain = analog_zpk(frontend, input=input)
@@ -376,6 +436,24 @@ class FrontendFilter:
         as the amplifier would, and clipped samples are counted.
 
     ``update(block)`` returns the output block in volts, same shape.
+
+    Examples
+    --------
+    Streaming in blocks gives the whole-array result:
+
+    >>> import numpy as np
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> x = np.sin(2 * np.pi * 1000 * np.arange(4800) / 48000)[:, None]  # 1 Pa at 1 kHz
+    >>> sim = FrontendFilter(48000.0, 1, frontend=fe)
+    >>> y = np.concatenate([sim.update(x[:1000]), sim.update(x[1000:])])
+    >>> bool(np.allclose(y[:, 0], simulate_frontend(x[:, 0], 48000.0, frontend=fe)))
+    True
+    >>> sim.result().frames
+    4800
     """
 
     def __init__(
@@ -427,7 +505,23 @@ def simulate_frontend(
     input: InputKind = "pressure",
     clip: bool = True,
 ) -> np.ndarray:
-    """Whole-array wrapper of :class:`FrontendFilter`; 1-D or (frames, channels) input."""
+    """Whole-array wrapper of :class:`FrontendFilter`; 1-D or (frames, channels) input.
+
+    Examples
+    --------
+    1 Pa at 1 kHz into Sq/Cf = 10 pC/Pa / 100 pF gives 0.1 V peak, inverted:
+
+    >>> import numpy as np
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> x = np.sin(2 * np.pi * 1000 * np.arange(4800) / 48000)
+    >>> y = simulate_frontend(x, 48000.0, frontend=fe)
+    >>> round(float(np.max(np.abs(y[2400:]))), 3), bool(np.dot(x[2400:], y[2400:]) < 0)
+    (0.1, True)
+    """
     x = np.asarray(signal_in, dtype=np.float64)
     flat = x.ndim == 1
     x2 = x[:, None] if flat else x
@@ -452,6 +546,18 @@ def equalizer_zpk(
     """Analog shelf E(s) = (s + ωc)/(s + ωt) as zeros, poles (rad/s) and gain (E(∞) = 1).
 
     ωc is the front-end's high-pass pole, ωt = 2π·target_corner_hz.
+
+    Examples
+    --------
+    >>> import math
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> zeros, poles, gain = equalizer_zpk(fe, 1 / (2 * math.pi))  # 1 rad/s
+    >>> zeros.real.round(6).tolist(), poles.real.round(6).tolist(), gain  # 1/(Rf·Cf) = 10 rad/s
+    ([-10.0], [-1.0], 1.0)
     """
     wc = 2.0 * math.pi * _high_pass_pole_hz(frontend)
     wt = 2.0 * math.pi * target_corner_hz
@@ -465,6 +571,22 @@ class EqualizerResult:
     ``model_corner_hz`` is the −3 dB corner of the front-end design's model (not a
     measurement of the recording); ``peak`` the output's sample peaks per channel, in
     the unit of the samples fed (Pa or V).
+
+    Examples
+    --------
+    Lowering the corner tenfold raises the gain towards DC by 20·lg 10 = 20 dB:
+
+    >>> import numpy as np
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor, corner_frequency_hz
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> eq = Equalizer(1000.0, 1, frontend=fe, target_corner_hz=corner_frequency_hz(fe) / 10)
+    >>> _ = eq.update(np.zeros((100, 1)))
+    >>> res = eq.result()
+    >>> res.frames, round(res.boost_db, 3), round(res.model_corner_hz / res.target_corner_hz, 6)
+    (100, 20.0, 10.0)
     """
 
     frames: int
@@ -501,6 +623,20 @@ class Equalizer:
     InputError
         For a target that is not positive, not below the front-end's corner, too close
         to DC for the sample rate, or boosting more than ``max_boost_db``.
+
+    Examples
+    --------
+    The shelf rises from 0 dB at high frequencies to ``boost_db`` towards DC:
+
+    >>> import math
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> eq = Equalizer(1000.0, 1, frontend=fe, target_corner_hz=1 / (2 * math.pi))
+    >>> round(eq.boost_db, 3), eq.boost_at_db([1e-4, 100.0]).round(2).tolist()
+    (20.0, [20.0, 0.0])
     """
 
     def __init__(
@@ -596,7 +732,26 @@ def equalize(
     target_corner_hz: float,
     max_boost_db: float = 40.0,
 ) -> np.ndarray:
-    """Whole-array wrapper of :class:`Equalizer`; 1-D or (frames, channels) input."""
+    """Whole-array wrapper of :class:`Equalizer`; 1-D or (frames, channels) input.
+
+    Examples
+    --------
+    A 1 Hz tone read through a 1.59 Hz high-pass keeps 1/√(1 + 1.59²) = 0.532 of its
+    amplitude; equalized to a 0.159 Hz corner, 1/√(1 + 0.159²) = 0.988 (first-order
+    high-pass, first principles):
+
+    >>> import numpy as np
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor, corner_frequency_hz
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> x = np.sin(2 * np.pi * np.arange(20000) / 1000)  # 20 s at 1 kHz, 1 Pa
+    >>> y = simulate_frontend(x, 1000.0, frontend=fe) / 0.1  # back to Pa at midband
+    >>> z = equalize(y, 1000.0, frontend=fe, target_corner_hz=corner_frequency_hz(fe) / 10)
+    >>> round(float(np.max(np.abs(y[-5000:]))), 3), round(float(np.max(np.abs(z[-5000:]))), 3)
+    (0.532, 0.988)
+    """
     x = np.asarray(signal_in, dtype=np.float64)
     flat = x.ndim == 1
     x2 = x[:, None] if flat else x

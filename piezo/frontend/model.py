@@ -112,6 +112,16 @@ class Sensor:
     resonance_hz, q
         Mounted resonance frequency and quality factor of a second-order
         (single degree of freedom) resonance; both or neither.
+
+    Examples
+    --------
+    Open-circuit voltage sensitivity Sv = Sq/Cs: 10 pC/Pa on 1 nF give 10 mV/Pa.
+
+    >>> s = Sensor(10e-12, 1e-9)
+    >>> round(s.voltage_sensitivity_v_per_pa, 12)
+    0.01
+    >>> round(Sensor.from_voltage_sensitivity(0.01, 1e-9).charge_sensitivity_c_per_pa * 1e12, 9)
+    10.0
     """
 
     charge_sensitivity_c_per_pa: float
@@ -160,6 +170,12 @@ class Cable:
         Total cable capacitance Cc, farads.
     length_m, capacitance_per_m_f
         Kept for reporting when the capacitance came from length × capacitance per metre.
+
+    Examples
+    --------
+    >>> cable = Cable.from_length(3.0, 100e-12)  # 3 m at 100 pF/m
+    >>> round(cable.capacitance_f * 1e12, 9), cable.length_m
+    (300.0, 3.0)
     """
 
     capacitance_f: float = 0.0
@@ -223,6 +239,16 @@ class ChargeAmplifier(_OpAmpNoise):
         Noiseless post gain after the charge stage, V/V.
     clip_level_v
         Output clip level, volts peak (after the post gain).
+
+    Examples
+    --------
+    Midband, the charge amplifier's output is -q/Cf (textbook charge-amplifier relation):
+
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9)
+    >>> fe = Frontend(Sensor(10e-12, 1e-9), amp)
+    >>> h = frequency_response(fe, 1000.0, input="charge")  # V/C
+    >>> amp.kind, round(float(h.real) * 100e-12, 3)  # H·Cf = -1
+    ('charge', -1.0)
     """
 
     feedback_capacitance_f: float
@@ -249,6 +275,19 @@ class VoltageAmplifier(_OpAmpNoise):
     gain
         Non-inverting gain G, V/V; it is also the noise gain for the voltage noise.
     (other fields as :class:`ChargeAmplifier`)
+
+    Examples
+    --------
+    Voltage mode: the sensor charge divides over Cs + Cc, and Rin with Cs + Cc sets the
+    corner 1/(2π·Rin·(Cs + Cc)) (textbook voltage-mode relations):
+
+    >>> import math
+    >>> amp = VoltageAmplifier(input_resistance_ohm=100e6)
+    >>> fe = Frontend(Sensor(10e-12, 1e-9), amp, Cable(1e-9))
+    >>> round(midband_sensitivity_v_per_pa(fe), 12)  # 10 pC/Pa / 2 nF
+    0.005
+    >>> round(corner_frequency_hz(fe) * 2 * math.pi * 100e6 * 2e-9, 9)
+    1.0
     """
 
     input_resistance_ohm: float
@@ -265,7 +304,19 @@ Amplifier = ChargeAmplifier | VoltageAmplifier
 
 @dataclass(frozen=True)
 class Frontend:
-    """Sensor + cable + amplifier, at a temperature (for resistor thermal noise)."""
+    """Sensor + cable + amplifier, at a temperature (for resistor thermal noise).
+
+    Examples
+    --------
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9,
+    ...                     input_capacitance_f=20e-12),
+    ...     Cable.from_length(2.0, 100e-12),
+    ... )
+    >>> round(fe.shunt_capacitance_f * 1e12, 6), fe.inverting  # 1000 + 200 + 20 pF
+    (1220.0, True)
+    """
 
     sensor: Sensor
     amplifier: ChargeAmplifier | VoltageAmplifier
@@ -331,6 +382,19 @@ def transimpedance(frontend: Frontend, frequency_hz: np.ndarray) -> np.ndarray:
 
     Every current entering the sensor node (the signal current jωq, the thermal noise
     of Rf, Rin or Rs, the op-amp's current noise) reaches the output through this.
+
+    Examples
+    --------
+    Well above its corner a charge amplifier's transimpedance is 1/(ωCf) in magnitude:
+
+    >>> import math
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> z = transimpedance(fe, 1000.0)
+    >>> round(float(abs(z)) * 2 * math.pi * 1000.0 * 100e-12, 4)
+    1.0
     """
     s = 2j * math.pi * np.asarray(frequency_hz, dtype=float)
     amp = frontend.amplifier
@@ -364,6 +428,22 @@ def frequency_response(
     -------
     numpy.ndarray
         Complex response, V/Pa or V/C, same shape as ``frequency_hz``.
+
+    Examples
+    --------
+    Charge amplifier, ideal op-amp: -Sq/Cf midband, and at the corner 1/(2π·Rf·Cf) the
+    level is 1/√2 of it (textbook charge-amplifier relations):
+
+    >>> import math
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> round(float(frequency_response(fe, 1000.0).real), 4)  # 10 pC/Pa / 100 pF
+    -0.1
+    >>> fc = 1 / (2 * math.pi * 1e9 * 100e-12)
+    >>> round(float(abs(frequency_response(fe, fc))) * math.sqrt(2) / 0.1, 6)
+    1.0
     """
     _check_input(input)
     f = np.asarray(frequency_hz, dtype=float)
@@ -381,12 +461,32 @@ def midband_sensitivity_v_per_pa(frontend: Frontend) -> float:
 
     The flat value the exact response approaches between the high-pass corner and the
     resonance: G·Sq/Cf for the charge amplifier, G·Sq/(Cs + Cc + Cin) in voltage mode.
+
+    Examples
+    --------
+    G·Sq/Cf for the charge amplifier: 20 dB (10×) of post gain, 10 pC/Pa, Cf = 100 pF.
+
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9,
+    ...                     gain=10.0),
+    ... )
+    >>> round(midband_sensitivity_v_per_pa(fe), 9)
+    1.0
     """
     return frontend.sensor.charge_sensitivity_c_per_pa * midband_charge_gain_v_per_c(frontend)
 
 
 def midband_charge_gain_v_per_c(frontend: Frontend) -> float:
-    """Nominal midband charge gain, V/C: G/Cf or G/(Cs + Cc + Cin)."""
+    """Nominal midband charge gain, V/C: G/Cf or G/(Cs + Cc + Cin).
+
+    Examples
+    --------
+    >>> amp = VoltageAmplifier(input_resistance_ohm=1e8)
+    >>> fe = Frontend(Sensor(10e-12, 1e-9), amp, Cable(1e-9))
+    >>> round(midband_charge_gain_v_per_c(fe) * 2e-9, 9)  # 1/(Cs + Cc)
+    1.0
+    """
     amp = frontend.amplifier
     if isinstance(amp, ChargeAmplifier):
         return amp.gain / amp.feedback_capacitance_f
@@ -410,6 +510,18 @@ def analog_zpk(
     """Zeros, poles (rad/s) and gain of the exact response H(s) = k·Π(s−z)/Π(s−p).
 
     The same circuit as :func:`frequency_response`, factored, for digital realisation.
+
+    Examples
+    --------
+    Ideal charge amplifier: H(s) = -(Sq/Cf)·s/(s + 1/(Rf·Cf)), a zero at DC and one pole.
+
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> zeros, poles, gain = analog_zpk(fe)
+    >>> zeros.tolist(), poles.real.round(6).tolist(), round(gain, 9)
+    ([0.0], [-10.0], -0.1)
     """
     _check_input(input)
     amp = frontend.amplifier
@@ -452,6 +564,15 @@ def time_constant_s(frontend: Frontend) -> float:
 
     RfCf for the charge amplifier and (Rin ∥ Rs)(Cs + Cc + Cin) in voltage mode when
     the op-amp is ideal.
+
+    Examples
+    --------
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> round(time_constant_s(fe), 9)  # Rf·Cf = 1 GOhm × 100 pF
+    0.1
     """
     _, poles, _ = analog_zpk(frontend, input="charge")
     return float(1.0 / np.min(np.abs(poles)))
@@ -486,6 +607,20 @@ def band_edges_hz(
         ``(low_hz, high_hz)``; an edge is None when the response never leaves the
         tolerance on that side (e.g. no resonance and an ideal op-amp: no upper edge).
         None when no frequency is within the tolerance at all.
+
+    Examples
+    --------
+    A first-order high-pass, |H|² = r²/(1 + r²) with r = f/fc, is 1 dB down at
+    r = 1/√(10^0.1 − 1) = 1.965 (first principles):
+
+    >>> import math
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> low, high = band_edges_hz(fe, -1.0, 1.0)
+    >>> round(low / corner_frequency_hz(fe), 3), high  # no resonance, ideal op-amp
+    (1.965, None)
     """
     f = _search_grid(frontend)
     dev = _deviation_db(frontend, f)
@@ -522,6 +657,18 @@ def corner_frequency_hz(frontend: Frontend) -> float:
 
     Equals 1/(2πRfCf) or 1/(2π(Rin ∥ Rs)(Cs + Cc + Cin)) for an ideal op-amp and no
     nearby resonance.
+
+    Examples
+    --------
+    1/(2π·Rf·Cf) for a charge amplifier with an ideal op-amp (textbook relation):
+
+    >>> import math
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> round(corner_frequency_hz(fe) * 2 * math.pi * 1e9 * 100e-12, 9)
+    1.0
     """
     edges = band_edges_hz(frontend, -HALF_POWER_DB, math.inf)
     if edges is None or edges[0] is None:
@@ -537,6 +684,18 @@ def phase_deg(frontend: Frontend, frequency_hz: np.ndarray | float) -> np.ndarra
 
     The inversion of a charge amplifier is removed (reported by ``Frontend.inverting``),
     so a first-order high-pass reads +45° at its corner.
+
+    Examples
+    --------
+    A first-order high-pass leads by 45° at its corner and by arctan(fc/f) above it:
+
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> fc = corner_frequency_hz(fe)
+    >>> phase_deg(fe, [fc, 10 * fc]).round(2).tolist()
+    [45.0, 5.71]
     """
     h = frequency_response(frontend, frequency_hz)
     if frontend.inverting:
@@ -546,7 +705,16 @@ def phase_deg(frontend: Frontend, frequency_hz: np.ndarray | float) -> np.ndarra
 
 @dataclass(frozen=True)
 class ResponseSummary:
-    """What a front-end does to the signal (see :func:`summarise_response`)."""
+    """What a front-end does to the signal (see :func:`summarise_response`).
+
+    Examples
+    --------
+    >>> amp = VoltageAmplifier(input_resistance_ohm=1e8)
+    >>> fe = Frontend(Sensor(10e-12, 1e-9), amp, Cable(1e-9))
+    >>> summary = summarise_response(fe)
+    >>> summary.divider_ratio, summary.inverting, round(summary.time_constant_s, 9)
+    (0.5, False, 0.2)
+    """
 
     sensitivity_v_per_pa: float
     sensitivity_db_re_1v_per_pa: float
@@ -567,6 +735,19 @@ def summarise_response(frontend: Frontend, *, at_hz: tuple[float, ...] = ()) -> 
 
     ``divider_ratio`` is Cs/(Cs + Cc + Cin) in voltage mode (the capacitive divider of
     the open-circuit voltage) and None for a charge amplifier.
+
+    Examples
+    --------
+    Voltage mode: the sensor's 10 mV/Pa open-circuit sensitivity halved by a cable as
+    large as the sensor (capacitive divider Cs/(Cs + Cc) = 0.5), -46.02 dB re 1 V/Pa:
+
+    >>> amp = VoltageAmplifier(input_resistance_ohm=1e8)
+    >>> fe = Frontend(Sensor(10e-12, 1e-9), amp, Cable(1e-9))
+    >>> summary = summarise_response(fe, at_hz=(corner_frequency_hz(fe),))
+    >>> round(summary.sensitivity_db_re_1v_per_pa, 2), summary.divider_ratio
+    (-46.02, 0.5)
+    >>> round(summary.relative_level_db[0], 2), round(summary.phase_deg[0], 2)  # at the corner
+    (-3.01, 45.0)
     """
     for f in at_hz:
         _check_positive(f, "frequency (Hz)")
@@ -654,7 +835,14 @@ _CELSIUS_RE = re.compile(rf"^\s*({_NUMBER_TEXT})\s*(?:°C|degC|C)\s*$")
 
 
 def read_design(path: str | Path) -> dict[str, Any]:
-    """Read a design TOML file into a plain mapping (values still as text)."""
+    """Read a design TOML file into a plain mapping (values still as text).
+
+    Examples
+    --------
+    >>> design = read_design("recordings/designs/pump-disc-charge.toml")
+    >>> design["amplifier"]["type"], design["amplifier"]["feedback_capacitance"]
+    ('charge', '10 nF')
+    """
     return read_toml(path, what="design file", error=SpecError)
 
 
@@ -665,6 +853,15 @@ def load_frontend(path: str | Path) -> Frontend:
     ------
     SpecError
         Naming the file, the key and its value when anything is missing or invalid.
+
+    Examples
+    --------
+    The bundled bench design: 12 mV/Pa on 18 nF is Sq = 216 pC/Pa; over Cf = 10 nF with a
+    20 dB post gain that is 10 × 216 pC/Pa / 10 nF = 0.216 V/Pa:
+
+    >>> fe = load_frontend("recordings/designs/pump-disc-charge.toml")
+    >>> fe.amplifier.kind, round(midband_sensitivity_v_per_pa(fe), 6)
+    ('charge', 0.216)
     """
     return frontend_from_mapping(read_design(path), source=str(path))
 
@@ -775,6 +972,22 @@ def frontend_from_mapping(data: Mapping[str, Any], *, source: str | None = None)
     Values are text with units (``"1 nF"``, ``"1 GOhm"``, ``"12 pC/Pa"``) parsed by
     :mod:`piezo.chain.units`, or plain numbers in SI units. A value outside the range
     of :func:`piezo.validate.physical_value` is refused naming ``source``.
+
+    Examples
+    --------
+    >>> design = {
+    ...     "sensor": {"charge_sensitivity": "10 pC/Pa", "capacitance": "1 nF"},
+    ...     "amplifier": {"type": "charge", "feedback_capacitance": "100 pF",
+    ...                   "feedback_resistance": "1 GOhm"},
+    ... }
+    >>> fe = frontend_from_mapping(design)
+    >>> round(fe.amplifier.feedback_capacitance_f * 1e12, 9), fe.temperature_k
+    (100.0, 300.0)
+    >>> del design["amplifier"]["feedback_resistance"]
+    >>> frontend_from_mapping(design, source="bench.toml")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.SpecError: bench.toml: [amplifier] feedback_resistance is required
     """
     try:
         return _frontend_from_mapping(data, source=source)
@@ -892,6 +1105,15 @@ def resolve_design_key(name: str) -> tuple[str, str]:
 
     A bare key must occur in one section only (``feedback_resistance``); ``temperature``
     is the top-level key (section ``""``).
+
+    Examples
+    --------
+    >>> resolve_design_key("feedback_resistance"), resolve_design_key("cable.capacitance")
+    (('amplifier', 'feedback_resistance'), ('cable', 'capacitance'))
+    >>> resolve_design_key("capacitance")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: 'capacitance' is ambiguous; write ... or cable.capacitance
     """
     if "." in name:
         section, key = name.split(".", 1)
@@ -910,12 +1132,28 @@ def resolve_design_key(name: str) -> tuple[str, str]:
 
 def design_key_unit(name: str) -> str:
     """Unit of a numeric design key: a piezo.chain.units unit, or "gain", "sensitivity",
-    "temperature" for the three keys parsed differently."""
+    "temperature" for the three keys parsed differently.
+
+    Examples
+    --------
+    >>> design_key_unit("feedback_capacitance"), design_key_unit("voltage_noise")
+    ('F', 'V/sqrtHz')
+    >>> design_key_unit("gain"), design_key_unit("temperature")
+    ('gain', 'temperature')
+    """
     return _KEY_UNITS[resolve_design_key(name)]
 
 
 def parse_design_value(name: str, text: str | float) -> float:
-    """Parse ``text`` as a value of design key ``name``, in SI units (kelvin, farads...)."""
+    """Parse ``text`` as a value of design key ``name``, in SI units (kelvin, farads...).
+
+    Examples
+    --------
+    >>> parse_design_value("feedback_capacitance", "100 pF")
+    1e-10
+    >>> parse_design_value("temperature", "25 °C"), parse_design_value("gain", "20 dB")
+    (298.15, 10.0)
+    """
     section, key = resolve_design_key(name)
     unit = _KEY_UNITS[(section, key)]
     if unit == "temperature":
@@ -937,6 +1175,14 @@ def set_design_value(data: Mapping[str, Any], name: str, value: float) -> dict[s
     ``name`` as for :func:`resolve_design_key`. Used for trade-off tables. Setting the
     cable's capacitance drops its length and capacitance per metre, and the other way
     round, so the two descriptions never conflict.
+
+    Examples
+    --------
+    >>> design = {"cable": {"length": "3 m", "capacitance_per_metre": "100 pF/m"}}
+    >>> set_design_value(design, "cable.capacitance", 5e-10)
+    {'cable': {'capacitance': 5e-10}}
+    >>> design  # unchanged
+    {'cable': {'length': '3 m', 'capacitance_per_metre': '100 pF/m'}}
     """
     section, key = resolve_design_key(name)
     out = {k: (dict(v) if isinstance(v, Mapping) else v) for k, v in data.items()}

@@ -58,7 +58,15 @@ REFERENCE_PRESSURE_PA = 20e-6
 
 
 def thermal_noise_density_v(resistance_ohm: float, temperature_k: float) -> float:
-    """Open-circuit thermal noise density √(4kTR) of a resistor, V/√Hz (Johnson–Nyquist)."""
+    """Open-circuit thermal noise density √(4kTR) of a resistor, V/√Hz (Johnson–Nyquist).
+
+    Examples
+    --------
+    A 1 kΩ resistor at 300 K: √(4kTR) = 4.07 nV/√Hz (Johnson 1928, Nyquist 1928).
+
+    >>> round(thermal_noise_density_v(1e3, 300.0) * 1e9, 2)
+    4.07
+    """
     if not (resistance_ohm > 0 and temperature_k > 0):
         raise InputError(
             f"thermal noise needs positive resistance and temperature, got "
@@ -72,6 +80,19 @@ def noise_gain(frontend: Frontend, frequency_hz: np.ndarray | float) -> np.ndarr
 
     Charge amplifier: G·(Ysh + Yf)/Yf / (1 + (Ysh + Yf)/(A·Yf)); voltage buffer:
     G/(1 + G/A). G is the post gain.
+
+    Examples
+    --------
+    Charge amplifier above its corner: 1 + Cs/Cf, here 1 + 1 nF / 100 pF = 11 (textbook
+    charge-amplifier noise gain):
+
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> round(float(abs(noise_gain(fe, 1000.0))), 3)
+    11.0
     """
     f = np.asarray(frequency_hz, dtype=float)
     s = 2j * math.pi * f
@@ -92,6 +113,13 @@ def noise_gain_midband(frontend: Frontend) -> float:
     """Noise gain of the amplifier stage between its corners (post gain excluded).
 
     1 + (Cs + Cc + Cin)/Cf for the charge amplifier, G for the voltage buffer.
+
+    Examples
+    --------
+    >>> from piezo.frontend.model import Cable, ChargeAmplifier, Frontend, Sensor
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9)
+    >>> noise_gain_midband(Frontend(Sensor(10e-12, 1e-9), amp, Cable(1e-9)))  # 1 + 2 nF / 100 pF
+    21.0
     """
     amp = frontend.amplifier
     if isinstance(amp, ChargeAmplifier):
@@ -114,6 +142,22 @@ class NoiseBudget:
         Output PSD per source, V²/Hz, shape (sources, n).
     input_psd_pa2_per_hz
         The same referred to the sensor, Pa²/Hz (divided by |H(f)|²).
+
+    Examples
+    --------
+    The feedback resistor's current noise 4kT/Rf reaches the output through 1/(ωCf)
+    above the corner:
+
+    >>> import math
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> fe = Frontend(
+    ...     Sensor(10e-12, 1e-9),
+    ...     ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9),
+    ... )
+    >>> budget = noise_budget(fe, [1000.0])
+    >>> expected = 4 * 1.380649e-23 * 300.0 / 1e9 / (2 * math.pi * 1000.0 * 100e-12) ** 2
+    >>> budget.keys, round(float(budget.total_output_psd_v2_per_hz[0]) / expected, 4)
+    (('feedback_resistance',), 1.0)
     """
 
     frequency_hz: np.ndarray
@@ -141,6 +185,19 @@ def noise_budget(frontend: Frontend, frequency_hz: np.ndarray | float) -> NoiseB
     """Noise budget of ``frontend`` at ``frequency_hz`` (Hz, > 0), see :class:`NoiseBudget`.
 
     Sources with zero density (op-amp noise not given, no leakage resistance) are left out.
+
+    Examples
+    --------
+    The op-amp's voltage noise appears at the output times the noise gain 1 + Cs/Cf = 11:
+
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9,
+    ...                       voltage_noise_v_per_sqrt_hz=4e-9)
+    >>> budget = noise_budget(Frontend(Sensor(10e-12, 1e-9), amp), [1000.0])
+    >>> budget.keys
+    ('feedback_resistance', 'voltage_noise')
+    >>> round(float(budget.output_psd_v2_per_hz[1, 0]) ** 0.5 / 4e-9, 3)
+    11.0
     """
     f = np.atleast_1d(np.asarray(frequency_hz, dtype=float))
     if f.ndim != 1 or not np.all(f > 0):
@@ -186,7 +243,16 @@ def noise_budget(frontend: Frontend, frequency_hz: np.ndarray | float) -> NoiseB
 
 @dataclass(frozen=True)
 class SourceNoise:
-    """One line of the noise budget table."""
+    """One line of the noise budget table.
+
+    Examples
+    --------
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9)
+    >>> (line,) = self_noise(Frontend(Sensor(10e-12, 1e-9), amp)).sources
+    >>> line.label, line.share
+    ('Rf thermal', 1.0)
+    """
 
     key: str
     label: str
@@ -214,6 +280,18 @@ class SelfNoise:
         (None without a clip level).
     dynamic_range_db
         max_spl_db − a_weighted_db_spl (None without a clip level).
+
+    Examples
+    --------
+    A 10 V peak clip level at 0.1 V/Pa allows a sine of 10/√2/0.1 = 70.7 Pa RMS,
+    20·lg(70.7 Pa / 20 µPa) = 130.97 dB:
+
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9,
+    ...                       clip_level_v=10.0)
+    >>> noise = self_noise(Frontend(Sensor(10e-12, 1e-9), amp))
+    >>> round(noise.max_spl_db, 2), round(noise.max_spl_db - noise.a_weighted_db_spl, 2)
+    (130.97, 146.55)
     """
 
     band_hz: tuple[float, float]
@@ -255,6 +333,22 @@ def self_noise(
     points
         Grid size; 4001 points over three decades resolve resonances with Q up to a few
         hundred.
+
+    Examples
+    --------
+    Referred to the input, the feedback resistor's noise is 4kT/(Rf·(2πf·Sq)²) Pa²/Hz
+    (the transimpedance cancels), whose integral over 20 Hz–20 kHz is
+    4kT/(Rf·(2π·Sq)²)·(1/20 − 1/20000) (first principles):
+
+    >>> import math
+    >>> from piezo.frontend.model import ChargeAmplifier, Frontend, Sensor
+    >>> amp = ChargeAmplifier(feedback_capacitance_f=100e-12, feedback_resistance_ohm=1e9)
+    >>> noise = self_noise(Frontend(Sensor(10e-12, 1e-9), amp))
+    >>> p2 = 4 * 1.380649e-23 * 300.0 / (1e9 * (2 * math.pi * 10e-12) ** 2) * (1 / 20 - 1 / 20e3)
+    >>> round(noise.unweighted_db_spl, 2), round(10 * math.log10(p2 / 20e-6**2), 2)
+    (-2.81, -2.81)
+    >>> noise.a_weighted_db_spl < noise.unweighted_db_spl  # the noise is mostly low-frequency
+    True
     """
     lo, hi = band_hz
     if not (0 < lo < hi):

@@ -48,7 +48,19 @@ _CSV_CHUNK_ROWS = 65536
 
 @dataclass(frozen=True)
 class CsvLayout:
-    """Where the numbers are in a CSV file, found once when it is opened."""
+    """Where the numbers are in a CSV file, found once when it is opened.
+
+    Examples
+    --------
+    The layout of the bundled tap-test export: a header line, a time column and two
+    value columns.
+
+    >>> layout = open_recording("recordings/tap-test.csv").csv_layout
+    >>> layout.delimiter, layout.skip_lines, layout.time_column, layout.value_columns
+    (',', 1, 0, (1, 2))
+    >>> layout.column_names
+    ('Time (s)', 'Disc (V)', 'Reference (V)')
+    """
 
     delimiter: str | None
     skip_lines: int
@@ -88,6 +100,20 @@ class Recording:
         CSV opened with ``allow_time_gaps``: how many steps of the time column are gaps
         (at least :data:`GAP_STEP_RATIO` nominal steps) and the longest gap's missing
         time in seconds. None otherwise.
+    start_time_s
+        Time of the first sample, s: the first value of a CSV's time column (a scope's
+        pre-trigger makes it negative, e.g. -100 µs), else 0. Sample ``n`` lies at
+        ``start_time_s + n / sample_rate_hz``.
+
+    Examples
+    --------
+    The bundled calibrator recording: 4 s of 24-bit PCM at 48 kHz, read in blocks.
+
+    >>> rec = open_recording("recordings/calibrator-94dB.wav")
+    >>> rec.format, rec.subtype, rec.sample_rate_hz, rec.channels, rec.duration_s
+    ('WAV', 'PCM_24', 48000.0, 1, 4.0)
+    >>> [block.shape for block in rec.blocks(block_frames=80000)]
+    [(80000, 1), (80000, 1), (32000, 1)]
     """
 
     path: Path
@@ -101,6 +127,7 @@ class Recording:
     csv_layout: CsvLayout | None = field(default=None, repr=False)
     time_gaps: int | None = None
     largest_time_gap_s: float | None = None
+    start_time_s: float = 0.0
 
     @property
     def duration_s(self) -> float:
@@ -276,6 +303,22 @@ def open_recording(
         Missing, empty, unreadable or zero-length recordings.
     InputError
         Inconsistent options (rate for an audio file, unknown column, non-uniform time).
+
+    Examples
+    --------
+    A CSV export with a time column: the sample rate comes from its spacing (1 ms here).
+
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "scope.csv"
+    ...     _ = path.write_text("time,ch_a,ch_b\\n0,0.1,1\\n0.001,0.2,2\\n0.002,0.3,3\\n")
+    ...     rec = open_recording(path, columns=["ch_b"])
+    ...     samples = next(rec.blocks())
+    >>> rec.sample_rate_hz, rec.frames, rec.channel_names, rec.is_pcm
+    (1000.0, 3, ('ch_b',), False)
+    >>> samples[:, 0].tolist()
+    [1.0, 2.0, 3.0]
     """
     p = Path(path)
     st = regular_file(p, what="recording", error=RecordingError)
@@ -515,7 +558,9 @@ def _open_csv(
         n_columns=n_columns,
         size_bytes=size_bytes,
     )
-    frames, rate_from_time, gaps, largest_gap = _validate_csv(p, layout, allow_gaps=allow_gaps)
+    frames, rate_from_time, gaps, largest_gap, start_s = _validate_csv(
+        p, layout, allow_gaps=allow_gaps
+    )
     if frames == 0:
         raise RecordingError("recording has no samples (0 rows)", source=str(p))
     if time_col is None and rate_hz is None:
@@ -551,6 +596,7 @@ def _open_csv(
         csv_layout=layout,
         time_gaps=gaps,
         largest_time_gap_s=largest_gap,
+        start_time_s=start_s,
     )
 
 
@@ -625,11 +671,12 @@ def _first_bad_line(lines: list[str], layout: CsvLayout) -> int:
 
 def _validate_csv(
     p: Path, layout: CsvLayout, *, allow_gaps: bool = False
-) -> tuple[int, float | None, int | None, float | None]:
+) -> tuple[int, float | None, int | None, float | None, float]:
     """One streaming pass: count rows, reject NaN/inf, derive the rate from time.
 
-    Returns ``(frames, rate_hz, gaps, largest_gap_s)``; the last two are None unless
-    ``allow_gaps``. The nominal step is the median step of the first chunk of rows.
+    Returns ``(frames, rate_hz, gaps, largest_gap_s, start_time_s)``; gaps and the
+    largest gap are None unless ``allow_gaps``; the start time is the time column's first
+    value (0 without one). The nominal step is the median step of the first chunk of rows.
     """
     frames = 0
     t_first = t_prev = None
@@ -678,7 +725,7 @@ def _validate_csv(
             t_prev = float(t[-1])
         frames += table.shape[0]
     if layout.time_column is None:
-        return frames, None, None, None
+        return frames, None, None, None, 0.0
     if frames < 2:
         raise InputError(
             "a time column with a single row cannot give a sample rate; give one (rate_hz)",
@@ -702,8 +749,8 @@ def _validate_csv(
             source=str(p),
         )
     if allow_gaps:
-        return frames, 1.0 / spacing, gaps, (largest_gap if gaps else 0.0)
-    return frames, 1.0 / spacing, None, None
+        return frames, 1.0 / spacing, gaps, (largest_gap if gaps else 0.0), t_first
+    return frames, 1.0 / spacing, None, None, t_first
 
 
 def _csv_blocks(p: Path, layout: CsvLayout, step: int, frames: int) -> Iterator[np.ndarray]:

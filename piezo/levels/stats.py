@@ -17,6 +17,15 @@ class SignalStats:
     ----------
     channels
         Number of channels in each block.
+
+    Examples
+    --------
+    >>> stats = SignalStats(2)
+    >>> stats.update(np.array([[1.0, -2.0], [3.0, 2.0]]))
+    >>> stats.peak.tolist(), stats.mean.tolist(), stats.frames
+    ([3.0, 2.0], [2.0, 0.0], 2)
+    >>> [round(float(r), 4) for r in stats.rms]  # sqrt(5) and 2
+    [2.2361, 2.0]
     """
 
     def __init__(self, channels: int) -> None:

@@ -13,7 +13,7 @@ from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
-from piezo.results import to_jsonable
+from piezo.results import reference_key, to_jsonable
 
 __all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of", "reference_key"]
 
@@ -26,8 +26,10 @@ CAUTION = (
 
 #: Key order of each channel in the JSON document (the names are a public contract).
 LEVEL_KEYS = (
-    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin", "LCpeak", "LZpeak",
-    "LAE", *(f"LAF{p}" for p in PERCENTILES),
+    "LZeq", "LAeq", "LCeq", "LAFmax", "LASmax", "LAFmin", "LASmin",
+    "LCFmax", "LCSmax", "LCFmin", "LCSmin", "LZFmax", "LZSmax", "LZFmin", "LZSmin",
+    "LCpeak", "LZpeak", "LAE", *(f"LAF{p}" for p in PERCENTILES),
+    *(f"LAS{p}" for p in PERCENTILES),
 )  # fmt: skip
 
 
@@ -40,11 +42,18 @@ class Levels:
     file
         The recording, as it was opened.
     unit, level_unit
-        Unit of the samples (``"Pa"`` or ``"V"``) and of the levels (``"dB re 20 µPa"``).
+        Unit of the samples (``"Pa"``, ``"m/s²"`` ... or ``"V"``) and of the levels
+        (``"dB re 20 µPa"``), shared by the channels; ``"per channel"`` when channels
+        measure different quantities (each channel's entry states its own).
     channel_indices
         The recording's channels, 0-based, in the order of ``result.channels``.
     result
         The level meter's result.
+    quantities, units, level_units, references
+        Each channel's quantity, unit, level unit and level reference (ISO 1683).
+    weighted
+        Per channel: True when the A- and C-weighted levels are given (sound pressure,
+        volts, or asked for with ``weight_any_quantity``).
 
     Examples
     --------
@@ -61,6 +70,14 @@ class Levels:
     level_unit: str
     channel_indices: tuple[int, ...]
     result: LevelResult
+    quantities: tuple[str, ...] = ()
+    units: tuple[str, ...] = ()
+    level_units: tuple[str, ...] = ()
+    references: tuple[float, ...] = ()
+    weighted: tuple[bool, ...] = ()
+    #: Where a channel's response curve leaves the 10 Hz to 20 kHz range of IEC 61672-1
+    #: (Table 3) uncovered (end values held).
+    response_curve_notes: tuple[str, ...] = ()
 
     def channel(self, index: int) -> dict[str, Any]:
         """The levels of the recording's channel ``index`` (0-based), by name.
@@ -78,27 +95,48 @@ class Levels:
         """The ``piezo levels --json`` document (plain JSON values)."""
         result = self.result
         channels = []
-        for index, ch in zip(self.channel_indices, result.channels, strict=True):
+        n = len(self.channel_indices)
+        weighted = self.weighted or (True,) * n
+        for i, (index, ch) in enumerate(zip(self.channel_indices, result.channels, strict=True)):
             entry: dict[str, Any] = {"channel": index}
+            if self.quantities:
+                entry.update(
+                    quantity=self.quantities[i],
+                    unit=self.units[i],
+                    level_unit=self.level_units[i],
+                )
+                entry[reference_key(self.units[i])] = self.references[i]
             entry.update({key: getattr(ch, key) for key in LEVEL_KEYS})
             entry.update(ch.percentile_levels)
+            notes = list(ch.notes)
+            if not weighted[i]:
+                for key in entry:
+                    if _weighted_key(key):
+                        entry[key] = None
+                notes.append(weighting_refusal(self.quantities[i]))
             entry.update(
                 duration_s=result.duration_s,
                 crest_factor=ch.crest_factor,
                 crest_factor_db=ch.crest_factor_db,
-                notes=list(ch.notes),
+                notes=notes,
             )
             channels.append(entry)
+        refs = set(self.references)
         doc: dict[str, Any] = {
             "file": self.file,
             "unit": self.unit,
             "level_unit": self.level_unit,
-            reference_key(self.unit): result.reference,
+            **(
+                {reference_key(self.unit): refs.pop() if len(refs) == 1 else result.reference}
+                if len(refs) <= 1
+                else {}
+            ),
             "sample_rate_hz": result.sample_rate_hz,
             "duration_s": result.duration_s,
             "percentile_interval_s": result.percentile_interval_s,
             "start_up_excluded_s": result.excluded_s,
             "standard": "IEC 61672-1:2013 frequency and time weightings",
+            "response_curve_notes": list(self.response_curve_notes),
             "caution": CAUTION,
             "channels": channels,
         }
@@ -114,10 +152,12 @@ class Levels:
                     {
                         "channel": index,
                         "LZeq": h.LZeq[:, i],
-                        "LAeq": h.LAeq[:, i],
-                        "LCeq": h.LCeq[:, i],
-                        "LAF": h.LAF[:, i],
-                        "LAS": h.LAS[:, i],
+                        "LAeq": h.LAeq[:, i] if weighted[i] else None,
+                        "LCeq": h.LCeq[:, i] if weighted[i] else None,
+                        "LAFmax": h.LAFmax[:, i] if weighted[i] else None,
+                        "LCpeak": h.LCpeak[:, i] if weighted[i] else None,
+                        "LAF": h.LAF[:, i] if weighted[i] else None,
+                        "LAS": h.LAS[:, i] if weighted[i] else None,
                     }
                     for i, index in enumerate(self.channel_indices)
                 ],
@@ -125,17 +165,35 @@ class Levels:
         return to_jsonable(doc)
 
 
-def reference_key(unit: str) -> str:
-    """The JSON key of the levels' reference, named by its unit (docs/glossary.md).
+def _weighted_key(key: str) -> bool:
+    """True for the A- and C-weighted level names (LAeq, LCpeak, LAF90 ...)."""
+    return key.startswith(("LA", "LC"))
 
-    The reference of the levels is a pressure with a sensitivity and 1 V without one.
+
+def weighting_refusal(quantity: str) -> str:
+    """The one line that says why A and C weightings are not applied to ``quantity``.
 
     Examples
     --------
-    >>> reference_key("Pa"), reference_key("V")
-    ('reference_pa', 'reference_v')
+    >>> weighting_refusal("acceleration")[:52]
+    'A and C weightings apply to sound pressure only (IEC'
     """
-    return f"reference_{unit.lower()}"
+    return (
+        "A and C weightings apply to sound pressure only (IEC 61672-1); this channel "
+        f"measures {quantity}, so A- and C-weighted levels are not given "
+        "(--weight-any-quantity, weight_any_quantity=True, gives them anyway)"
+    )
+
+
+class _Relative:
+    """Feeds an analysis each channel divided by its level reference (levels re 1)."""
+
+    def __init__(self, analysis: Any, references: Any) -> None:
+        self.analysis = analysis
+        self.references = references
+
+    def update(self, block: Any) -> None:
+        self.analysis.update(block / self.references)
 
 
 def levels_of(
@@ -144,6 +202,7 @@ def levels_of(
     interval_s: float | None = None,
     filter_settle_s: float | None = None,
     percentiles: Sequence[float] | None = None,
+    weight_any_quantity: bool = False,
     advance: Callable[[int], object] | None = None,
 ) -> Levels:
     """Equivalent, maximum, minimum, peak, exposure and percentile levels of ``source``.
@@ -156,13 +215,18 @@ def levels_of(
     source
         The calibrated recording (:func:`piezo.open`).
     interval_s
-        Also give a level history: Leq per interval, LAF/LAS every 0.1 s.
+        Also give a level history: Leq, LAFmax and LCpeak per interval, LAF/LAS every
+        0.1 s.
     filter_settle_s
         Filter settling time excluded from the maxima, minima and percentiles; None
         keeps the meter's default.
     percentiles
-        Further LAF percentiles (each strictly between 0 and 100), e.g. ``[1, 99]``
-        for LAF1 and LAF99.
+        Further percentiles (each strictly between 0 and 100), e.g. ``[1, 99]`` for
+        LAF1, LAF99, LAS1 and LAS99.
+    weight_any_quantity
+        Give A- and C-weighted levels for every channel, also for quantities other than
+        sound pressure (IEC 61672-1 defines them for sound pressure only; by default such
+        channels get Z-weighted levels and a note).
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -178,8 +242,16 @@ def levels_of(
     'dB re 20 µPa'
     >>> round(lv.channel(0)["LZeq"], 2)  # 0.5/√2 V RMS over 10 mV/Pa: 35.36 Pa RMS
     124.95
+    >>> acc = levels_of(piezo.open(path, sensitivity="10 mV/g"))  # 35.36 g = 346.7 m/s²
+    >>> acc.level_unit, acc.channel(0)["LAeq"], round(acc.channel(0)["LZeq"], 2)
+    ('dB re 1 µm/s²', None, 170.8)
     """
-    options: dict[str, Any] = {"reference": source.reference}
+    chains = source.chains
+    references = source.references
+    units = source.units
+    level_units = tuple(c.level_unit for c in chains)
+    same = len(set(units)) == 1 and len(set(level_units)) == 1
+    options: dict[str, Any] = {"reference": float(references[0]) if same else 1.0}
     if interval_s is not None:
         options["interval_s"] = interval_s
     if filter_settle_s is not None:
@@ -187,11 +259,20 @@ def levels_of(
     if percentiles is not None:
         options["percentiles"] = list(percentiles)
     meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
-    source.feed(meter, advance=advance)
+    # Channels in different units: each divided by its own reference, levels re 1.
+    source.feed(meter if same else _Relative(meter, references), advance=advance)
     return Levels(
         file=str(source.recording.path),
-        unit=source.unit,
-        level_unit=source.chain.level_unit,
+        unit=units[0] if same else "per channel",
+        level_unit=level_units[0] if same else "per channel",
         channel_indices=source.channel_indices,
         result=meter.result(),
+        quantities=tuple(c.measured.name for c in chains),
+        units=units,
+        level_units=level_units,
+        references=tuple(float(r) for r in references),
+        weighted=tuple(weight_any_quantity or c.weightable for c in chains),
+        response_curve_notes=tuple(
+            source.curve_notes(10.0, min(20000.0, source.sample_rate_hz / 2))
+        ),
     )

@@ -180,7 +180,16 @@ CLASS1_LIMITS_DB: tuple[tuple[float, float], ...] = (
 
 
 def exact_third_octave_hz() -> np.ndarray:
-    """Exact base-10 frequencies 1000 * 10^(n/10), n = -20..13, behind Table 3's rows."""
+    """Exact base-10 frequencies 1000 * 10^(n/10), n = -20..13, behind Table 3's rows.
+
+    Examples
+    --------
+    Table 3's nominal 12.5 Hz, 1 kHz and 20 kHz rows stand for these exact frequencies:
+
+    >>> f = exact_third_octave_hz()
+    >>> len(f), round(float(f[1]), 3), float(f[20]), round(float(f[-1]), 1)
+    (34, 12.589, 1000.0, 19952.6)
+    """
     return 1000.0 * 10.0 ** (np.arange(-20, 14) / 10.0)
 
 
@@ -313,6 +322,16 @@ def weighting_chain_sos(sample_rate_hz: float) -> tuple[np.ndarray, np.ndarray]:
         ``(c_sos, a_after_c_sos)``, each of shape (sections, 6) for
         :func:`scipy.signal.sosfilt`. Filtering with ``c_sos`` gives the C-weighted
         signal; filtering that with ``a_after_c_sos`` gives the A-weighted signal.
+
+    Examples
+    --------
+    The two parts together are the A-weighting filter of :func:`weighting_sos`:
+
+    >>> c_sos, a_after_c_sos = weighting_chain_sos(48000)
+    >>> c_sos.shape, a_after_c_sos.shape
+    ((2, 6), (2, 6))
+    >>> bool(np.array_equal(np.vstack([c_sos, a_after_c_sos]), weighting_sos("A", 48000)))
+    True
     """
     c_sos, a_extra = _design(_check_rate(sample_rate_hz))
     return c_sos.copy(), a_extra.copy()
@@ -372,6 +391,16 @@ def weighting_sos(weighting: str, sample_rate_hz: float) -> np.ndarray:
     numpy.ndarray
         Shape (sections, 6). Gain is exactly 0 dB at 1 kHz. See the module docstring for
         the design; :func:`conformance` reports its accuracy.
+
+    Examples
+    --------
+    >>> from scipy import signal
+    >>> sos = weighting_sos("A", 48000)
+    >>> sos.shape, weighting_sos("Z", 48000).shape
+    ((4, 6), (0, 6))
+    >>> _, h = signal.sosfreqz(sos, worN=[1000.0], fs=48000)
+    >>> round(float(abs(h[0])), 9)  # unit gain at 1 kHz
+    1.0
     """
     key = _check_weighting(weighting)
     fs = _check_rate(sample_rate_hz)
@@ -384,7 +413,17 @@ def weighting_sos(weighting: str, sample_rate_hz: float) -> np.ndarray:
 def filter_response_db(
     frequency_hz: ArrayLike, *, weighting: str, sample_rate_hz: float
 ) -> np.ndarray:
-    """Magnitude response (dB) of :func:`weighting_sos` at the given frequencies."""
+    """Magnitude response (dB) of :func:`weighting_sos` at the given frequencies.
+
+    Examples
+    --------
+    At 48 kHz the digital A filter follows Table 3 of IEC 61672-1:2013 (-19.1 dB at
+    100 Hz, 0 dB at 1 kHz, -1.1 dB at 8 kHz):
+
+    >>> r = filter_response_db([100.0, 1000.0, 8000.0], weighting="A", sample_rate_hz=48000)
+    >>> [round(float(x), 1) for x in r]
+    [-19.1, 0.0, -1.1]
+    """
     f = np.asarray(frequency_hz, dtype=float)
     sos = weighting_sos(weighting, sample_rate_hz)
     return _sos_db(sos, f.ravel(), float(sample_rate_hz)).reshape(f.shape)
@@ -392,7 +431,19 @@ def filter_response_db(
 
 @dataclass(frozen=True)
 class ConformanceRow:
-    """One nominal one-third-octave frequency of the conformance check (dB)."""
+    """One nominal one-third-octave frequency of the conformance check (dB).
+
+    Examples
+    --------
+    The 100 Hz row of the A filter at 48 kHz: the analytic value is -19.14 dB and class 1
+    allows +-1 dB there (IEC 61672-1:2013, Table 3).
+
+    >>> row = conformance("A", 48000).rows[10]
+    >>> row.nominal_hz, round(float(row.design_db), 2), (row.upper_limit_db, row.lower_limit_db)
+    (100, -19.14, (1.0, -1.0))
+    >>> abs(row.deviation_db) < 0.05, row.passed
+    (True, True)
+    """
 
     nominal_hz: float
     exact_hz: float
@@ -406,7 +457,16 @@ class ConformanceRow:
 
 @dataclass(frozen=True)
 class ConformanceReport:
-    """Digital weighting filter against IEC 61672-1:2013 Table 3, class 1."""
+    """Digital weighting filter against IEC 61672-1:2013 Table 3, class 1.
+
+    Examples
+    --------
+    >>> report = conformance("C", 48000)
+    >>> report.weighting, report.passed, len(report.rows)
+    ('C', True, 34)
+    >>> report.max_deviation_to_10k_db < 0.05
+    True
+    """
 
     weighting: str
     sample_rate_hz: float
@@ -425,6 +485,16 @@ def conformance(weighting: str, sample_rate_hz: float) -> ConformanceReport:
     at or above 0.49 f_s are listed but not judged. The maximum deviation is also
     measured on a dense log grid (2000 points) from 10 Hz to 10 kHz and to 20 kHz (both
     capped at 0.49 f_s).
+
+    Examples
+    --------
+    At 8 kHz the rows from 4 kHz (0.49 f_s = 3.92 kHz) up are listed but not judged:
+
+    >>> report = conformance("A", 8000)
+    >>> report.passed, sum(row.passed is None for row in report.rows)
+    (True, 8)
+    >>> report.max_deviation_to_20k_db is None  # the Nyquist frequency is below 10 kHz
+    True
     """
     key = _check_weighting(weighting)
     fs = _check_rate(sample_rate_hz)
@@ -483,6 +553,16 @@ class FrequencyWeighting:
     Start-up: the filter state is set, at the first sample, to the steady state for a
     constant input equal to that sample, so a DC offset in the recording does not produce
     a step transient.
+
+    Examples
+    --------
+    A 100 Hz tone through the A filter loses 19.1 dB (IEC 61672-1:2013, Table 3):
+
+    >>> t = np.arange(24000) / 48000
+    >>> tone = np.sin(2 * np.pi * 100 * t)[:, None]
+    >>> weighted = FrequencyWeighting(48000, 1, weighting="A").update(tone)
+    >>> round(float(10 * np.log10(np.mean(weighted[4800:] ** 2) / np.mean(tone[4800:] ** 2))), 1)
+    -19.1
     """
 
     def __init__(self, sample_rate_hz: float, channels: int, *, weighting: str) -> None:
@@ -512,7 +592,14 @@ TIME_CONSTANTS_S: dict[str, float] = {"F": 0.125, "S": 1.0}
 
 
 def time_weighting_coefficient(time_constant_s: float, sample_rate_hz: float) -> float:
-    """Pole ``a = exp(-1 / (tau f_s))`` of the one-pole exponential averager."""
+    """Pole ``a = exp(-1 / (tau f_s))`` of the one-pole exponential averager.
+
+    Examples
+    --------
+    >>> a = time_weighting_coefficient(TIME_CONSTANTS_S["F"], 8000)  # 1000 samples per tau
+    >>> round(a, 6), round(a**1000, 6)  # a**1000 is exp(-1)
+    (0.999, 0.367879)
+    """
     tau = float(time_constant_s)
     fs = float(sample_rate_hz)
     if not (tau > 0 and math.isfinite(tau)):
@@ -540,6 +627,15 @@ class ExponentialAverager:
     initial
         Mean square the averager holds before the first sample. 0 (the default) is a
         meter reset at the first sample.
+
+    Examples
+    --------
+    A unit step of mean square reaches 1 - 1/e = 0.632 after one time constant:
+
+    >>> averager = ExponentialAverager(8000, 1, time_constant_s=0.125)
+    >>> y = averager.update(np.ones((2000, 1)))
+    >>> round(float(y[999, 0]), 3), round(float(y[-1, 0]), 3)  # after 1000, 2000 samples
+    (0.632, 0.865)
     """
 
     def __init__(

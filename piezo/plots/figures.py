@@ -110,19 +110,23 @@ def _density_unit(level_unit: str) -> str:
     return f"{level_unit} per Hz"
 
 
-def level_history_figure(levels: LevelResult, channels: list[int], level_unit: str) -> bytes:
-    """LAeq per interval (steps) and the LAF trace, per channel, against time."""
+def level_history_figure(
+    levels: LevelResult, channels: list[int], level_unit: str, *, start_time_s: float = 0.0
+) -> bytes:
+    """LAeq per interval (steps) and the LAF trace, per channel, against the recording's
+    time, which starts at ``start_time_s`` (the time of the first sample, e.g. a scope's
+    pre-trigger)."""
     h = levels.history
     assert h is not None
     rows = math.ceil(2 * len(channels) / 4)
-    end = h.interval_start_s[-1] + h.interval_duration_s[-1]
-    edges = np.append(h.interval_start_s, end)
+    end = start_time_s + h.interval_start_s[-1] + h.interval_duration_s[-1]
+    edges = np.append(start_time_s + h.interval_start_s, end)
     with plot_style():
         fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
         for i, ch in enumerate(channels):
             style = trace(i)
             ax.plot(
-                h.trace_time_s,
+                start_time_s + h.trace_time_s,
                 h.LAF[:, i],
                 **{**style, "linewidth": 0.7},
                 alpha=0.55,
@@ -137,7 +141,7 @@ def level_history_figure(levels: LevelResult, channels: list[int], level_unit: s
         ax.set_xlabel(axis_label("time", "s"))
         ax.set_ylabel(axis_label("level", level_unit))
         ax.set_title("Level history")
-        ax.set_xlim(0.0, float(end))
+        ax.set_xlim(float(start_time_s), float(end))
         finite = np.concatenate([h.LAF[np.isfinite(h.LAF)], h.LAeq[np.isfinite(h.LAeq)]])
         if finite.size:
             top = float(finite.max())
@@ -268,12 +272,19 @@ def _edges(centres: np.ndarray, *, log: bool) -> np.ndarray:
 
 
 def spectrogram_figure(
-    sg: SpectrogramResult, index: int, channel: int, reference: float, unit: str
+    sg: SpectrogramResult,
+    index: int,
+    channel: int,
+    reference: float,
+    unit: str,
+    *,
+    start_time_s: float = 0.0,
 ) -> bytes:
-    """Spectrogram of one channel: time against frequency (logarithmic), level in dB."""
+    """Spectrogram of one channel: time against frequency (logarithmic), level in dB; the
+    time axis is the recording's, starting at ``start_time_s`` (the first sample's)."""
     level = sg.level_db(reference)[:, 1:, index]  # drop DC for the log axis
     f = sg.frequency_hz[1:]
-    t = sg.time_s
+    t = start_time_s + sg.time_s
 
     finite = level[np.isfinite(level)]
     top = float(finite.max()) if finite.size else 0.0

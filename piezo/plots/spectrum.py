@@ -35,9 +35,13 @@ def spectrum_figure(
     name: str,
     level_unit: str,
     reference: float,
+    *,
+    start_time_s: float = 0.0,
 ) -> Figure:
     """PSD level of every channel over log frequency, and the first channel's spectrogram
-    (time-decimated by averaging); ``level_unit`` is the PSD's level unit text."""
+    (time-decimated by averaging); ``level_unit`` is the PSD's level unit text. The time
+    axis is the recording's: it starts at ``start_time_s``, the time of the first sample
+    (:attr:`piezo.io.reader.Recording.start_time_s`, e.g. a scope's pre-trigger)."""
     f = result.frequency_hz[1:]
     s = spectro.result()
     fs_ = s.frequency_hz[1:]
@@ -45,8 +49,8 @@ def spectrum_figure(
     finite = levels[np.isfinite(levels)]
     top = float(finite.max()) if finite.size else 0.0
     # Cell edges: time between column centres, frequency half a bin either side.
-    t = s.time_s
-    dt = float(np.median(np.diff(t))) if t.size > 1 else 2 * t[0]
+    t = s.time_s + start_time_s
+    dt = float(np.median(np.diff(t))) if t.size > 1 else 2 * s.time_s[0]
     t_edges = np.concatenate([t - dt / 2, [t[-1] + dt / 2]])
     df = fs_[0]
     f_edges = np.concatenate([fs_ - df / 2, [fs_[-1] + df / 2]])
@@ -100,6 +104,11 @@ def write_plot(
     name: str,
     level_unit: str,
     reference: float,
+    *,
+    start_time_s: float = 0.0,
 ) -> None:
     """Write :func:`spectrum_figure` to ``path`` atomically (format from the suffix)."""
-    save_figure(spectrum_figure(result, spectro, channels, name, level_unit, reference), path)
+    fig = spectrum_figure(
+        result, spectro, channels, name, level_unit, reference, start_time_s=start_time_s
+    )
+    save_figure(fig, path)

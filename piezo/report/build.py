@@ -90,13 +90,15 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
     """Every figure of the report, by name, as PNG bytes."""
     figures: dict[str, bytes] = {}
     level_unit = run.source.chain.level_unit
+    # Time axes are the recording's: they start at its first sample's time.
+    start_s = run.source.recording.start_time_s
     for diag in run.diagnostics.channels:
         png = plots.rolloff_figure(diag, level_unit)
         if png is not None:
             figures[f"rolloff_{diag.channel}"] = png
     if run.levels is not None and run.levels.history is not None:
         figures["level_history"] = plots.level_history_figure(
-            run.levels, list(run.source.channel_indices), level_unit
+            run.levels, list(run.source.channel_indices), level_unit, start_time_s=start_s
         )
     channels = list(run.source.channel_indices)
     ref = run.source.reference
@@ -108,7 +110,7 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
     if run.spectrogram is not None:
         for i, channel in enumerate(channels):
             figures[f"spectrogram_{channel}"] = plots.spectrogram_figure(
-                run.spectrogram, i, channel, ref, unit
+                run.spectrogram, i, channel, ref, unit, start_time_s=start_s
             )
     if run.frontend is not None:
         figures["frontend"] = plots.frontend_figure(run.frontend)

@@ -17,8 +17,9 @@ from piezo import __version__
 from piezo.chain.measurement import CalibratedSource
 from piezo.chain.units import format_quantity, ratio_to_db
 from piezo.levels.meter import LevelResult
-from piezo.levels.summary import LEVEL_KEYS, reference_key
+from piezo.levels.summary import LEVEL_KEYS
 from piezo.levels.weighting import ConformanceReport
+from piezo.results import reference_key
 from piezo.spectral.bands import BandResult
 from piezo.spectral.summary import confidence_document
 from piezo.spectral.welch import PSDResult, SpectrogramResult
@@ -76,6 +77,10 @@ def recording_section(source: CalibratedSource) -> dict[str, Any]:
         "sample_rate_hz": rec.sample_rate_hz,
         "frames": rec.frames,
         "duration_s": rec.duration_s,
+        # Time of the first sample (a CSV time column's first value, e.g. a scope's
+        # pre-trigger): the document's times count from the first sample, the figures'
+        # time axes start at this time.
+        "start_time_s": rec.start_time_s,
         "channels_in_file": rec.channels,
         "channels": list(source.channel_indices),
         "channel_names": [rec.channel_names[c] for c in source.channel_indices],

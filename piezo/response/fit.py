@@ -106,6 +106,16 @@ class ResponseTable:
         Reference of the dB values, e.g. ``"dB re 1 V/Pa"``; ``None`` if unknown.
     extra
         Further columns by name (coherence, distortion percent, ...).
+
+    Examples
+    --------
+    A table survives its CSV form:
+
+    >>> t = ResponseTable(np.array([100.0, 1000.0, 10000.0]), np.array([-41.0, -40.0, -39.5]),
+    ...                   magnitude_unit="dB re 1 V/Pa")
+    >>> back = parse_response_csv(format_response_csv(t))
+    >>> back.magnitude_db.tolist(), back.magnitude_unit, back.phase_deg is None
+    ([-41.0, -40.0, -39.5], 'dB re 1 V/Pa', True)
     """
 
     frequency_hz: np.ndarray
@@ -123,6 +133,17 @@ def format_response_csv(table: ResponseTable) -> str:
     """Render a :class:`ResponseTable` as CSV text (comma-separated, one header row).
 
     A leading ``# magnitude_db: <unit>`` comment carries the magnitude's reference.
+
+    Examples
+    --------
+    >>> t = ResponseTable(np.array([100.0, 1000.0]), np.array([-41.0, -40.0]),
+    ...                   phase_deg=np.array([12.5, 0.0]), magnitude_unit="dB re 1 V/Pa")
+    >>> print(format_response_csv(t), end="")
+    # piezo response table
+    # magnitude_db: dB re 1 V/Pa
+    frequency_hz,magnitude_db,phase_deg
+    100,-41.0000,12.500
+    1000,-40.0000,0.000
     """
     names = ["frequency_hz", "magnitude_db"]
     cols: list[tuple[np.ndarray, str]] = [
@@ -168,6 +189,20 @@ def parse_response_csv(text: str, *, source: str | None = None) -> ResponseTable
     InputError
         With the line number, if a cell is not a number, a row is short, frequencies are
         not positive and strictly increasing, or fewer than 3 rows remain.
+
+    Examples
+    --------
+    Semicolons, a header in any order, a unit comment and an extra column:
+
+    >>> text = ("# magnitude: dB re 1 V/Pa\\nlevel_db;freq;coh\\n"
+    ...         "-41;100;0.9\\n-40;1000;1\\n-39;2000;1\\n")
+    >>> t = parse_response_csv(text)
+    >>> t.frequency_hz.tolist(), t.magnitude_db.tolist(), t.magnitude_unit, list(t.extra)
+    ([100.0, 1000.0, 2000.0], [-41.0, -40.0, -39.0], 'dB re 1 V/Pa', ['coh'])
+    >>> parse_response_csv("100,-41\\n90,-40\\n2000,-39\\n")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: line 2: frequencies must be strictly increasing
     """
     unit: str | None = None
     header: list[str] | None = None
@@ -303,6 +338,17 @@ def highpass_magnitude_db(
     """Magnitude (dB) of a first-order (corner ``natural_hz``) or second-order high-pass.
 
     The shape is :func:`piezo.response.model.highpass_db`, the one high-pass model.
+
+    Examples
+    --------
+    Both the first-order and the Butterworth (Q = 1/√2) second-order high-pass are
+    -3.01 dB at ``natural_hz``; a decade below they are down about 20 and 40 dB:
+
+    >>> f = np.array([10.0, 100.0])
+    >>> highpass_magnitude_db(f, order=1, natural_hz=100.0).round(2).tolist()
+    [-20.04, -3.01]
+    >>> highpass_magnitude_db(f, order=2, natural_hz=100.0, q=2**-0.5).round(2).tolist()
+    [-40.0, -3.01]
     """
     if order == 2 and q is None:
         raise InputError("a second-order high-pass needs its q")
@@ -317,6 +363,14 @@ def resonance_magnitude_db(
     """Magnitude (dB) of a single-degree-of-freedom resonance, unity at low frequency.
 
     The shape is :func:`piezo.response.model.resonance_db`.
+
+    Examples
+    --------
+    At the natural frequency the gain is Q (20·lg 10 = 20 dB); far below it, unity:
+
+    >>> f = np.array([100.0, 10000.0])
+    >>> resonance_magnitude_db(f, resonance_hz=10000.0, q=10.0).round(3).tolist()
+    [0.001, 20.0]
     """
     return resonance_db(frequency_hz, resonance_hz=resonance_hz, q=q)
 
@@ -362,6 +416,13 @@ def sensitivity_at(
     ------
     InputError
         If ``reference_hz`` lies outside the measured frequencies.
+
+    Examples
+    --------
+    1 kHz lies halfway between 500 Hz and 2 kHz in log frequency:
+
+    >>> sensitivity_at([500.0, 2000.0, 4000.0], [-40.0, -38.0, -37.0])
+    -39.0
     """
     f, m = _clean(frequency_hz, magnitude_db)
     if not (f[0] <= reference_hz <= f[-1]):
@@ -379,6 +440,14 @@ class Band:
     ``low_limited`` / ``high_limited`` are true when the response stayed within the
     tolerance up to the end of the measured data, i.e. the true band edge lies beyond
     the reported one.
+
+    Examples
+    --------
+    >>> f = np.geomspace(2.0, 5000.0, 400)
+    >>> band = band_within(f, -40.0 + highpass_magnitude_db(f, order=1, natural_hz=10.0),
+    ...                    tolerance_db=1.0)
+    >>> round(band.low_hz, 1), band.low_limited, band.high_hz, band.high_limited
+    (19.6, False, 5000.0, True)
     """
 
     tolerance_db: float
@@ -407,6 +476,17 @@ def band_within(
 
     Walks down and up from the reference frequency to the first point outside the
     tolerance and interpolates the crossing in log frequency.
+
+    Examples
+    --------
+    A first-order high-pass at 10 Hz is 1 dB down where ``(f/fc)² = 1/(10^0.1 − 1)``,
+    at 19.65 Hz; above, the data end inside the tolerance:
+
+    >>> f = np.geomspace(2.0, 5000.0, 400)
+    >>> m = -40.0 + highpass_magnitude_db(f, order=1, natural_hz=10.0)
+    >>> band = band_within(f, m, tolerance_db=1.0)
+    >>> round(band.low_hz, 2), band.high_hz, band.high_limited
+    (19.65, 5000.0, True)
     """
     if not (math.isfinite(tolerance_db) and tolerance_db > 0):
         raise InputError(f"tolerance_db must be positive, got {tolerance_db!r}")
@@ -466,6 +546,17 @@ class HighPassFit:
         RMS of the fit residual with this order.
     other_order_residual_rms_db
         RMS residual of the order that was not chosen.
+
+    Examples
+    --------
+    A Butterworth second-order roll-off at 50 Hz is recognised as order 2 (its corner
+    equals f0 at Q = 1/√2):
+
+    >>> f = np.geomspace(5.0, 5000.0, 24 * 10)
+    >>> m = -40.0 + highpass_magnitude_db(f, order=2, natural_hz=50.0, q=2**-0.5)
+    >>> hp = fit_response(f, m).highpass
+    >>> hp.order, round(hp.corner_hz, 3), round(hp.q, 4), hp.in_band
+    (2, 50.0, 0.7071, True)
     """
 
     order: int
@@ -502,6 +593,14 @@ class ResonanceFit:
     poor_fit
         True when ``residual_rms_db`` exceeds ``RESONANCE_POOR_FIT_DB``: the peak is not
         single-mode shaped and ``frequency_hz``, ``q`` are only the nearest model's.
+
+    Examples
+    --------
+    >>> f = np.geomspace(100.0, 30000.0, 200)
+    >>> m = -40.0 + resonance_magnitude_db(f, resonance_hz=20000.0, q=20.0)
+    >>> res = fit_response(f, m).resonance
+    >>> round(res.frequency_hz, 1), round(res.q, 3), res.poor_fit
+    (20000.0, 20.0, False)
     """
 
     frequency_hz: float
@@ -538,6 +637,15 @@ class ResponseFit:
         RMS of (data − model), dB.
     magnitude_unit
         Reference of the dB values if known.
+
+    Examples
+    --------
+    -40 dB re 1 V/Pa is 10 mV/Pa:
+
+    >>> f = np.geomspace(5.0, 5000.0, 100)
+    >>> r = fit_response(f, np.full(f.size, -40.0), magnitude_unit="dB re 1 V/Pa")
+    >>> r.sensitivity_db, round(r.sensitivity_v_per_pa, 6), r.highpass, r.resonance
+    (-40.0, 0.01, None, None)
     """
 
     reference_hz: float
@@ -681,6 +789,22 @@ def fit_response(
         Fitted model S + HP_order(fc[, Q]) + RES(fr, Qr) in dB; the high-pass part only
         when the low end rolls off by at least ``CORNER_MIN_DROP_DB``, the resonance only
         when a peak of at least ``RESONANCE_MIN_PEAK_DB`` lies inside the band.
+
+    Examples
+    --------
+    A sensor of -40 dB re 1 V/Pa with a first-order corner at 20 Hz and a mounted
+    resonance at 20 kHz (Q = 20); the model recovers what it was built from:
+
+    >>> f = np.geomspace(5.0, 30000.0, 24 * 13)
+    >>> m = (-40.0 + highpass_magnitude_db(f, order=1, natural_hz=20.0)
+    ...      + resonance_magnitude_db(f, resonance_hz=20000.0, q=20.0))
+    >>> r = fit_response(f, m, magnitude_unit="dB re 1 V/Pa")
+    >>> round(r.passband_db, 3), r.highpass.order, round(r.highpass.corner_hz, 3)
+    (-40.0, 1, 20.0)
+    >>> round(r.resonance.frequency_hz, 1), round(r.resonance.q, 3)
+    (20000.0, 20.0)
+    >>> round(r.band_3db.low_hz, 1), round(r.residual_rms_db, 6)
+    (20.1, 0.0)
     """
     if not orders or any(o not in (1, 2) for o in orders):
         raise InputError(f"orders must be a non-empty choice from (1, 2), got {orders!r}")
@@ -854,6 +978,14 @@ class GoldenDeviation:
         RMS deviation, dB.
     aligned_at_hz
         Frequency at which both curves were aligned first, or None (absolute).
+
+    Examples
+    --------
+    >>> f = np.geomspace(10.0, 10000.0, 61)
+    >>> d = deviation_from_golden(f, np.where(f > 5000.0, -39.0, -40.0), f[::10],
+    ...                           np.full(7, -40.0))
+    >>> d.frequency_hz.size, round(d.worst_hz, 1), d.worst_db, round(d.rms_db, 3)
+    (7, 10000.0, 1.0, 0.378)
     """
 
     frequency_hz: np.ndarray
@@ -878,6 +1010,18 @@ def deviation_from_golden(
     frequency inside the measured range. With ``align_at_hz`` both curves are first
     shifted to agree at that frequency (a relative comparison of shape, for uncalibrated
     measurements); without it the comparison is absolute.
+
+    Examples
+    --------
+    A unit 0.5 dB more sensitive than the golden one everywhere: 0.5 dB absolute, nothing
+    once aligned at 1 kHz:
+
+    >>> f = np.geomspace(10.0, 10000.0, 31)
+    >>> golden = -40.0 + highpass_magnitude_db(f, order=1, natural_hz=20.0)
+    >>> deviation_from_golden(f, golden + 0.5, f, golden).worst_db
+    0.5
+    >>> abs(deviation_from_golden(f, golden + 0.5, f, golden, align_at_hz=1000.0).worst_db)
+    0.0
     """
     f, m = _clean(frequency_hz, magnitude_db)
     gf, gm = _clean(golden_frequency_hz, golden_magnitude_db)

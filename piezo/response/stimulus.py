@@ -134,6 +134,19 @@ class SweepSpec:
         RMS sound pressure the sweep produces at the sensor, Pa, when known (from a
         reference microphone or coupler calibration). It turns the measured response
         into a sensitivity in V/Pa. ``None`` leaves the response relative.
+
+    Examples
+    --------
+    A 20 Hz - 20 kHz sweep has ``R = ln 1000 = 6.908``; halfway through it is at the
+    geometric mean ``√(f1·f2) = 632.5`` Hz; -6 dBFS is a peak of ``10^(-6/20)``:
+
+    >>> spec = sweep_spec(20.0, 20000.0, 1.0, 48000.0)
+    >>> round(spec.rate_constant, 3), spec.sweep_frames, round(spec.amplitude, 4)
+    (6.908, 48000, 0.5012)
+    >>> round(float(spec.instantaneous_frequency_hz(0.5)), 1)
+    632.5
+    >>> SweepSpec.from_toml(spec.to_toml()) == spec
+    True
     """
 
     kind: ClassVar[str] = "exponential-sine-sweep"
@@ -253,6 +266,14 @@ class NoiseSpec:
         Seed of ``numpy.random.default_rng``; the same spec always gives the same noise.
     fade_s
         Half-Hann fade at both ends, seconds.
+
+    Examples
+    --------
+    >>> spec = NoiseSpec("pink", 0.5, 48000.0, -20.0, seed=7)
+    >>> spec.frames
+    24000
+    >>> print(spec.to_toml().splitlines()[4])
+    kind = "pink-noise"
     """
 
     kind: ClassVar[str] = "noise"
@@ -298,6 +319,17 @@ def stimulus_from_toml(text: str, *, source: str | None = None) -> SweepSpec | N
     SpecError
         If the text is not TOML, has no ``[stimulus]`` table, names an unknown kind or
         carries an unknown or non-numeric key.
+
+    Examples
+    --------
+    >>> text = NoiseSpec("white", 2.0, 48000.0, -20.0, seed=1).to_toml()
+    >>> stimulus_from_toml(text)
+    NoiseSpec(color='white', duration_s=2.0, sample_rate_hz=48000.0, level_dbfs=-20.0,
+              seed=1, fade_s=0.0)
+    >>> stimulus_from_toml("[stimulus]\\nkind = 'chirp'\\n")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.SpecError: ...unknown stimulus kind 'chirp'...
     """
     doc = parse_toml(text, source=source, error=SpecError)
     table = doc.get("stimulus")
@@ -362,6 +394,14 @@ def sweep_spec(
 
     The default fade-in spans the first half octave of the sweep and the default fade-out
     the last 1/24 octave, i.e. T·ln(2^k)/R seconds for k octaves.
+
+    Examples
+    --------
+    Ten octaves in 10 s: one octave per second, so the fades last 1/2 s and 1/24 s:
+
+    >>> spec = sweep_spec(20.0, 20480.0, 10.0, 48000.0)
+    >>> round(spec.fade_in_s, 6), round(spec.fade_out_s, 6), spec.level_dbfs
+    (0.5, 0.041667, -6.0)
     """
     ratio = stop_hz / start_hz if start_hz > 0 and stop_hz > start_hz else math.e
     seconds_per_octave = duration_s * math.log(2.0) / math.log(ratio) if duration_s > 0 else 0.0
@@ -411,6 +451,14 @@ def sweep_signal(spec: SweepSpec) -> np.ndarray:
     """The stimulus samples, shape (frames,), in fractions of full scale.
 
     Leading silence, the faded exponential sweep (Farina 2000), trailing silence.
+
+    Examples
+    --------
+    >>> spec = sweep_spec(20.0, 20000.0, 1.0, 48000.0, silence_before_s=0.1,
+    ...                   silence_after_s=0.5)
+    >>> x = sweep_signal(spec)
+    >>> x.shape, float(np.abs(x[:4800]).max()), round(float(np.abs(x).max()), 4)
+    ((76800,), 0.0, 0.5012)
     """
     return np.concatenate(
         [
@@ -430,6 +478,21 @@ def inverse_filter(spec: SweepSpec) -> np.ndarray:
     √2 f1 … f2/√2, weighted evenly per octave, is 1. A capture equal to the stimulus
     therefore deconvolves to a unit impulse at lag ``sweep_frames − 1`` of the full
     convolution, counted from the sweep start.
+
+    Examples
+    --------
+    The sweep convolved with its inverse peaks at lag ``sweep_frames − 1`` and has unit
+    gain across the band (to 0.2 %):
+
+    >>> from scipy import signal
+    >>> spec = sweep_spec(20.0, 20000.0, 1.0, 48000.0)
+    >>> y = signal.fftconvolve(sweep_signal(spec), inverse_filter(spec))
+    >>> int(np.argmax(np.abs(y))) == spec.sweep_frames - 1
+    True
+    >>> gain = np.abs(np.fft.rfft(y))
+    >>> f = np.fft.rfftfreq(y.size, 1 / 48000.0)
+    >>> [round(float(gain[np.argmin(np.abs(f - fk))]), 2) for fk in (100, 1000, 10000)]
+    [1.0, 1.0, 1.0]
     """
     return _inverse_and_reference(spec)[0]
 
@@ -467,6 +530,14 @@ def harmonic_offsets_s(spec: SweepSpec, orders: int | list[int] = 5) -> dict[int
 
     Δt_N = T ln N / ln(f2 / f1) (Farina 2000), in seconds, for N = 2 … ``orders`` (or the
     listed orders).
+
+    Examples
+    --------
+    With one octave per second the 2nd harmonic comes 1 s early, the 4th 2 s early:
+
+    >>> offsets = harmonic_offsets_s(sweep_spec(20.0, 20480.0, 10.0, 48000.0), 4)
+    >>> {n: round(dt, 4) for n, dt in offsets.items()}
+    {2: 1.0, 3: 1.585, 4: 2.0}
     """
     wanted = list(range(2, orders + 1)) if isinstance(orders, int) else list(orders)
     return {n: spec.duration_s * math.log(n) / spec.rate_constant for n in wanted}
@@ -481,6 +552,16 @@ def noise_signal(spec: NoiseSpec) -> np.ndarray:
     limited: Gaussian noise has a crest factor of about 4 to 5, so a level above about
     −15 dBFS may clip when played; :func:`noise_signal` raises if a sample would exceed
     full scale.
+
+    Examples
+    --------
+    At -20 dBFS the RMS is that of a sine of peak 0.1, ``0.1/√2``; the seed makes it
+    repeatable:
+
+    >>> spec = NoiseSpec("pink", 1.0, 48000.0, -20.0, seed=7)
+    >>> x = noise_signal(spec)
+    >>> round(float(np.sqrt(np.mean(x**2))), 6), bool(np.array_equal(x, noise_signal(spec)))
+    (0.070711, True)
     """
     n = spec.frames
     rng = np.random.default_rng(spec.seed)

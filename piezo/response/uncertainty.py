@@ -63,6 +63,15 @@ class Component:
         ν_i; infinite for a Type B estimate taken as exact.
     distribution
         ``"normal"``, ``"rectangular"`` or ``"t"``, for the budget table.
+
+    Examples
+    --------
+    A temperature known to ±0.2 K (u = 0.1 K) acting through a coefficient of
+    -0.05 dB/K contributes 0.005 dB:
+
+    >>> c = Component("temperature", 0.1, sensitivity=-0.05, degrees_of_freedom=20)
+    >>> round(c.contribution, 6), c.distribution
+    (0.005, 'normal')
     """
 
     name: str
@@ -268,6 +277,14 @@ class Decision:
         ``"simple"`` or ``"guarded"``.
     acceptance_low, acceptance_high
         The acceptance interval actually applied (limits narrowed by the guard band).
+
+    Examples
+    --------
+    A one-sided limit leaves the other side open:
+
+    >>> d = decide(-38.2, low=-40.0, high=None, expanded_uncertainty=0.3, rule="guarded")
+    >>> d.accepted, d.rule, round(d.acceptance_low, 6), d.acceptance_high
+    (True, 'guarded', -39.7, inf)
     """
 
     accepted: bool

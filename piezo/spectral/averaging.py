@@ -41,8 +41,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-import scipy.fft
-from scipy import signal
 
 from piezo import validate
 from piezo.errors import InputError
@@ -59,6 +57,7 @@ __all__ = [
     "Segmenter",
     "effective_averages",
     "equivalent_noise_bandwidth_bins",
+    "main_lobe_half_width_bins",
     "median_bias",
     "overlap_correlation",
     "segment_frames_for",
@@ -73,6 +72,10 @@ AVERAGES = ("mean", "median", "max")
 # HFT95 flat-top window (Heinzel et al. 2002, appendix D): sidelobes -95 dB, amplitude
 # flatness 0.0044 dB, NENBW 3.8112 bins. Cosine-sum coefficients with alternating signs.
 _HFT95 = (1.0, -1.9383379, 1.3045202, -0.4028270, 0.0350665)
+#: Hann: 0.5 − 0.5·cos (Harris 1978, eq. 27a).
+_HANN = (0.5, -0.5)
+#: 4-term Blackman–Harris, −92 dB sidelobes (Harris 1978, Table 1).
+_BLACKMAN_HARRIS = (0.35875, -0.48829, 0.14128, -0.01168)
 
 #: Memory allowed for the stored segments of a median average, bytes.
 MEDIAN_MEMORY_BYTES = 64 * 2**20
@@ -110,14 +113,33 @@ def window_coefficients(name: str, frames: int) -> np.ndarray:
         raise InputError(f"window must be one of {', '.join(WINDOWS)}; got {name!r}")
     if frames < 1:
         raise InputError(f"window length must be at least 1 sample, got {frames}")
-    if name == "hann":
-        return signal.windows.hann(frames, sym=False)
-    if name == "blackmanharris":
-        return signal.windows.blackmanharris(frames, sym=False)
     if name == "rectangular":
         return np.ones(frames)
+    # Periodic cosine-sum windows (the DFT-even form that Welch averaging wants):
+    # w[n] = Σ c_k cos(2π k n / N), signs folded into the coefficients.
+    coefficients = {"hann": _HANN, "blackmanharris": _BLACKMAN_HARRIS}.get(name, _HFT95)
     z = 2.0 * np.pi * np.arange(frames) / frames
-    return np.asarray(sum(c * np.cos(k * z) for k, c in enumerate(_HFT95)))
+    return np.asarray(sum(c * np.cos(k * z) for k, c in enumerate(coefficients)))
+
+
+#: Half the main-lobe width (null to null) of each window, bins. A cosine-sum window of
+#: ``K`` terms (``w = Σ_{k<K} a_k cos(2πkn/N)``) has the first zeros of its transform
+#: ``K`` bins from the centre (Harris 1978, section V; Heinzel et al. 2002, appendix C):
+#: rectangular 1, Hann 2, 4-term Blackman-Harris 4, HFT95 (5 terms) 5.
+_MAIN_LOBE_HALF_WIDTH_BINS = {"rectangular": 1, "hann": 2, "blackmanharris": 4, "flattop": 5}
+
+
+def main_lobe_half_width_bins(name: str) -> int:
+    """Half the main-lobe width (first zero to first zero) of window ``name``, in bins.
+
+    Examples
+    --------
+    >>> main_lobe_half_width_bins("hann"), main_lobe_half_width_bins("flattop")
+    (2, 5)
+    """
+    if name not in _MAIN_LOBE_HALF_WIDTH_BINS:
+        raise InputError(f"window must be one of {', '.join(WINDOWS)}; got {name!r}")
+    return _MAIN_LOBE_HALF_WIDTH_BINS[name]
 
 
 def equivalent_noise_bandwidth_bins(window: np.ndarray) -> float:
@@ -207,6 +229,8 @@ def segment_frames_for(sample_rate_hz: float, resolution_hz: float) -> int:
     if not resolution_hz > 0:
         raise InputError(f"resolution must be positive, got {resolution_hz!r} Hz")
     n = math.ceil(sample_rate_hz / resolution_hz - 1e-9)
+    import scipy.fft  # here, not at module level: the band analysis never needs it
+
     return int(scipy.fft.next_fast_len(max(n, 2), real=True))
 
 
@@ -326,6 +350,9 @@ class Segmenter:
         if self.n % 2 == 0:
             scale[-1] /= 2.0
         self.density_scale = scale
+        import scipy.fft  # loaded by the first segmenter, not by importing this module
+
+        self._rfft = scipy.fft.rfft
         self._w_spec = scipy.fft.rfft(self.w)
         nonzero = np.flatnonzero(np.abs(self._w_spec) > 1e-13 * np.abs(self._w_spec).max())
         self._w_bins = int(nonzero[-1]) + 1
@@ -395,7 +422,7 @@ class Segmenter:
             view = np.lib.stride_tricks.sliding_window_view(region, n, axis=0)[::step]
             buf = self._buf[:k]
             np.multiply(view, self.w, out=buf)  # (k, channels, n)
-            spec = scipy.fft.rfft(buf, axis=-1, overwrite_x=True, workers=_WORKERS)
+            spec = self._rfft(buf, axis=-1, overwrite_x=True, workers=_WORKERS)
             if self.detrend == "constant":
                 # Removing each segment's mean before windowing subtracts mean·DFT(w),
                 # which is non-zero only in the first few bins of a cosine-sum window.

@@ -49,6 +49,16 @@ def class1_limits_db(omega: np.ndarray, fraction: int) -> tuple[np.ndarray, np.n
     Linear interpolation in lg Omega between the breakpoints; on the pass side of the
     band edge the pass-side row applies, beyond it the stop-side row. Beyond G^4
     (octave) the minimum stays 70 dB.
+
+    Examples
+    --------
+    At the mid-band frequency the attenuation must lie within ±0.4 dB; one octave away
+    from an octave band (either side) it must be at least 16.6 dB (IEC 61260-1:2014,
+    table 1):
+
+    >>> lo, hi = class1_limits_db(np.array([1.0, G, 1 / G]), 1)
+    >>> lo.round(1).tolist(), hi.tolist()
+    ([-0.4, 16.6, 16.6], [0.4, inf, inf])
     """
     om = np.asarray(omega, dtype=float)
     om = np.where(om < 1.0, 1.0 / om, om)
@@ -70,7 +80,14 @@ def class1_limits_db(omega: np.ndarray, fraction: int) -> tuple[np.ndarray, np.n
 
 @dataclass(frozen=True)
 class BandConformance:
-    """Worst margin of a filter bank against the class 1 limits (dB; > 0 passes)."""
+    """Worst margin of a filter bank against the class 1 limits (dB; > 0 passes).
+
+    Examples
+    --------
+    >>> c = band_conformance(1, 48000.0, low_hz=1000.0, high_hz=1000.0)
+    >>> c.bands, c.worst_band, c.passed, bool(0.0 < c.worst_margin_db <= 0.4)
+    (1, '1k', True, True)
+    """
 
     fraction: int
     sample_rate_hz: float
@@ -90,6 +107,14 @@ def band_conformance(
     each band's whole multirate chain is evaluated at the breakpoints (both sides) and
     on a grid of 401 points from f_m/40 to 40 f_m (below Nyquist), and compared with
     :func:`class1_limits_db`.
+
+    Examples
+    --------
+    The octave bank from 31.5 Hz to 16 kHz at 48 kHz meets class 1:
+
+    >>> c = band_conformance(1, 48000.0)
+    >>> c.bands, c.passed
+    (10, True)
     """
     bands = fractional_octave_bands(
         fraction, low_hz=low_hz, high_hz=high_hz, sample_rate_hz=sample_rate_hz

@@ -18,7 +18,9 @@ import numpy as np
 from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
 from piezo.results import to_jsonable
+from piezo.spectral.averaging import main_lobe_half_width_bins
 from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
+from piezo.spectral.peaks import PeakRule, SpectralPeak, distinct_peaks, scatter_dof
 from piezo.spectral.welch import PSDResult, Spectrogram, WelchPSD
 
 __all__ = [
@@ -97,12 +99,32 @@ class Spectrum:
     reference: float
     channel_indices: tuple[int, ...]
     result: PSDResult
+    #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
+    quantity: str = "voltage"
+    #: Where a channel's response curve does not cover the spectrum (end values held).
+    response_curve_notes: tuple[str, ...] = ()
+
+    def peaks(self, column: int) -> tuple[list[SpectralPeak], PeakRule]:
+        """The distinct peaks of the PSD's ``column`` (strongest first) and the rule
+        applied: :func:`piezo.spectral.peaks.distinct_peaks` with the window's main lobe
+        and the scatter of the chosen average."""
+        r = self.result
+        return distinct_peaks(
+            r.frequency_hz,
+            r.psd[:, column],
+            main_lobe_half_width_bins=main_lobe_half_width_bins(r.window),
+            degrees_of_freedom=scatter_dof(r.average, r.effective_averages),
+        )
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo spectrum --json`` document (plain JSON values)."""
         r = self.result
+        found = [self.peaks(i) for i in range(len(self.channel_indices))]
+        rule = found[0][1]
+        ref2 = self.reference**2
         doc = {
             "file": self.file,
+            "quantity": self.quantity,
             "unit": self.unit,
             "level_unit": self.level_unit,
             "scaling": r.scaling,
@@ -116,11 +138,24 @@ class Spectrum:
             "enbw_bins": r.enbw_bins,
             "averages": r.averages,
             "effective_averages": r.effective_averages,
+            "response_curve_notes": list(self.response_curve_notes),
             "confidence": confidence_document(r),
+            # Distinct peaks: at least one main lobe apart, standing the margin above
+            # the local floor, separated by valleys deeper than the scatter.
+            "peak_separation_hz": rule.separation_bins * r.resolution_hz,
+            "peak_margin_db": rule.floor_margin_db,
             "channels": [
                 {
                     "channel": ch,
                     "mean_square": float(r.mean_square()[i]),
+                    "peaks": [
+                        {
+                            "frequency_hz": pk.frequency_hz,
+                            "level_db": 10.0 * np.log10(pk.density / ref2),
+                            "above_floor_db": pk.above_floor_db,
+                        }
+                        for pk in found[i][0]
+                    ],
                     "frequency_hz": r.frequency_hz,
                     "psd": r.psd[:, i],
                 }
@@ -198,10 +233,12 @@ def spectrum_of(
     return Spectrum(
         file=str(source.recording.path),
         unit=f"{source.unit}{result.unit_suffix}",
-        level_unit=psd_level_unit(source.chain.level_unit, scaling),
+        level_unit=psd_level_unit(source.level_unit, scaling),
         reference=source.reference,
         channel_indices=source.channel_indices,
         result=result,
+        quantity=source.quantity.name,
+        response_curve_notes=tuple(source.curve_notes(result.resolution_hz, fs / 2)),
     )
 
 
@@ -255,6 +292,10 @@ class Bands:
     #: "sample rate").
     high_hz: float = 20000.0
     high_source: str = "option"
+    #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
+    quantity: str = "voltage"
+    #: Where a channel's response curve does not cover the bands (end values held).
+    response_curve_notes: tuple[str, ...] = ()
 
     def level_db(self) -> np.ndarray:
         """Band Leq in dB re the reference, shape ``(bands, channels)``."""
@@ -267,6 +308,7 @@ class Bands:
         doc: dict[str, Any] = {
             "file": self.file,
             "fraction": result.fraction,
+            "quantity": self.quantity,
             "unit": self.unit,
             "level_unit": self.level_unit,
             "weighting": result.weighting,
@@ -274,6 +316,7 @@ class Bands:
             "interval_s": result.interval_s,
             "high_hz": self.high_hz,
             "high_source": self.high_source,
+            "response_curve_notes": list(self.response_curve_notes),
             "channels": [],
         }
         for i, ch in enumerate(self.channel_indices):
@@ -309,6 +352,7 @@ def bands_of(
     high_hz: float | None = None,
     interval_s: float | None = None,
     weighting: str = "Z",
+    weight_any_quantity: bool = False,
     advance: Callable[[int], object] | None = None,
 ) -> Bands:
     """Band Leq of each channel through the IEC 61260-1:2014 class 1 filter bank.
@@ -317,7 +361,9 @@ def bands_of(
     octave bands from ``low_hz`` to ``high_hz`` nominal, limited by Nyquist, after an
     IEC 61672-1 ``weighting``). Without ``high_hz`` the highest band follows from the
     sample rate (:func:`~piezo.spectral.bands.default_high_hz`: 20 kHz up to 48 kHz
-    sampling), and the document says so (``high_source``).
+    sampling), and the document says so (``high_source``). The A and C weightings
+    apply to sound pressure only (IEC 61672-1): for other quantities they are refused
+    unless ``weight_any_quantity``.
 
     Examples
     --------
@@ -332,6 +378,15 @@ def bands_of(
     >>> round(float(b.level_db()[2, 0]), 1)  # the 1 kHz band holds the tone: 20 lg(0.5/√2)
     -9.0
     """
+    if weighting.upper() != "Z" and not weight_any_quantity:
+        for index, chain in zip(source.channel_indices, source.chains, strict=True):
+            if not chain.weightable:
+                raise InputError(
+                    f"weighting {weighting.upper()} applies to sound pressure only "
+                    f"(IEC 61672-1); channel {index} measures {chain.quantity} "
+                    "(--weight-any-quantity, weight_any_quantity=True, applies it anyway)",
+                    source=str(source.recording.path),
+                )
     given = high_hz is not None
     if high_hz is None:
         high_hz = default_high_hz(source.sample_rate_hz)
@@ -348,14 +403,18 @@ def bands_of(
     except InputError as exc:
         raise exc.with_source(str(source.recording.path)) from None
     source.feed(analyzer, advance=advance)
+    result = analyzer.result()
+    edges = (result.bands[0].lower_hz, result.bands[-1].upper_hz) if result.bands else None
     return Bands(
         file=str(source.recording.path),
         unit=source.unit,
-        level_unit=source.chain.level_unit,
+        level_unit=source.level_unit,
         reference=source.reference,
         sample_rate_hz=source.sample_rate_hz,
         channel_indices=source.channel_indices,
-        result=analyzer.result(),
+        result=result,
         high_hz=float(high_hz),
         high_source="option" if given else "sample rate",
+        quantity=source.quantity.name,
+        response_curve_notes=tuple(source.curve_notes(*edges)) if edges else (),
     )

@@ -95,6 +95,18 @@ class ToneResult:
         Bin spacing of the spectrum analysed.
     segments
         Spectra averaged.
+
+    Examples
+    --------
+    A 1 kHz tone of 1 V amplitude with a second harmonic 40 dB down has 1 % THD:
+
+    >>> t = np.arange(48000) / 48000
+    >>> x = np.sin(2 * np.pi * 1000 * t) + 0.01 * np.sin(2 * np.pi * 2000 * t)
+    >>> result = measure_tone(x, 48000)
+    >>> round(result.frequency_hz, 3), round(result.tone_rms, 4), round(result.thd_percent, 3)
+    (1000.0, 0.7071, 1.0)
+    >>> round(result.level_db(1.0), 2), round(result.sinad_db, 1)  # dB re 1 V
+    (-3.01, 40.0)
     """
 
     frequency_hz: float
@@ -167,7 +179,19 @@ def _bandwidth(bandwidth_hz: tuple[float, float], sample_rate_hz: float) -> tupl
 
 
 def band_mean_square(psd: PSDResult, low_hz: float, high_hz: float) -> np.ndarray:
-    """Mean square per channel of a density spectrum between two frequencies (unit²)."""
+    """Mean square per channel of a density spectrum between two frequencies (unit²).
+
+    Examples
+    --------
+    The line of a sine of amplitude 1 holds its mean square 1/2 whatever the bins:
+
+    >>> from piezo.spectral.welch import WelchPSD
+    >>> t = np.arange(48000) / 48000
+    >>> welch = WelchPSD(48000, 1, resolution_hz=1.0, window="blackmanharris")
+    >>> welch.update(np.sin(2 * np.pi * 1000.3 * t)[:, None])
+    >>> [round(float(v), 4) for v in band_mean_square(welch.result(), 990.0, 1010.0)]
+    [0.5]
+    """
     if psd.scaling != "density":
         raise InputError("band_mean_square needs a density spectrum (scaling='density')")
     f = psd.frequency_hz
@@ -197,6 +221,18 @@ class ToneAnalyzer:
         signal: at least one segment of ``1/resolution_hz`` seconds is needed.
     segment_frames
         Segment length in samples instead of a resolution.
+
+    Examples
+    --------
+    Two channels fed in blocks; the second is the first at half the amplitude:
+
+    >>> t = np.arange(48000) / 48000
+    >>> x = np.sin(2 * np.pi * 1000 * t) + 0.01 * np.sin(2 * np.pi * 3000 * t)
+    >>> analyzer = ToneAnalyzer(48000, 2, expected_hz=1000)
+    >>> for block in np.array_split(np.column_stack([x, 0.5 * x]), 5):
+    ...     analyzer.update(block)
+    >>> [(round(r.tone_rms, 4), round(r.thd_percent, 3)) for r in analyzer.result()]
+    [(0.7071, 1.0), (0.3536, 1.0)]
     """
 
     def __init__(
@@ -363,6 +399,19 @@ def measure_tone(
 
     This is the form a calibration or production check needs: the band-limited RMS of
     the tone (``tone_rms``), its frequency and the residual (``thd_n_ratio``).
+
+    Examples
+    --------
+    With a noise-only recording the SNR comes too. Here white noise of 1 mV RMS over
+    0-24 kHz puts 0.83e-6 V² into 20 Hz-20 kHz, about 57.8 dB below the 0.5 V² tone:
+
+    >>> t = np.arange(48000) / 48000
+    >>> noise = 0.001 * np.random.default_rng(1).standard_normal(48000)
+    >>> result = measure_tone(np.sin(2 * np.pi * 1000 * t) + noise, 48000, noise=noise)
+    >>> round(result.snr_db)
+    58
+    >>> round(result.thd_n_percent, 2)  # residual = in-band noise: 0.9e-3 V / 0.707 V
+    0.13
     """
     arr = np.asarray(x, dtype=np.float64)
     one = arr.ndim == 1
@@ -402,6 +451,16 @@ def noise_mean_square(
 
     Uses the same 1 Hz Welch spectrum as the tone (or one segment of the whole array
     when it is shorter), so both sides of the SNR see the same bandwidth.
+
+    Examples
+    --------
+    White noise of 1 mV RMS spread over 0-24 kHz puts about 19980 / 24000 of its
+    1e-6 V² into 20 Hz-20 kHz (0.83e-6 V²; one seeded estimate):
+
+    >>> noise = 0.001 * np.random.default_rng(1).standard_normal(48000)
+    >>> ms = noise_mean_square(noise, 48000, bandwidth_hz=(20.0, 20000.0))
+    >>> f"{float(ms[0]):.2e}"
+    '8.14e-07'
     """
     n2 = np.asarray(x, dtype=np.float64)
     n2 = n2[:, None] if n2.ndim == 1 else n2

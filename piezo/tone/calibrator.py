@@ -83,7 +83,15 @@ MIN_DURATION_S = SETTLE_S + 2 * SEGMENT_S
 
 
 def calibrator_pressure_pa(level_db: float, reference_pa: float = REFERENCE_AIR_PA) -> float:
-    """RMS pressure of a calibrator level: ``p = p0 * 10^(L/20)`` (ISO 1683 reference)."""
+    """RMS pressure of a calibrator level: ``p = p0 * 10^(L/20)`` (ISO 1683 reference).
+
+    Examples
+    --------
+    94 dB re 20 uPa is close to 1 Pa, 114 dB ten times that:
+
+    >>> round(calibrator_pressure_pa(94.0), 4), round(calibrator_pressure_pa(114.0), 3)
+    (1.0024, 10.024)
+    """
     return reference_pa * 10.0 ** (level_db / 20.0)
 
 
@@ -113,6 +121,18 @@ class CalibrationResult:
         True when the tone met the stability limits.
     segment_level_std_db
         Sample standard deviation of the segment levels (n − 1 in the denominator).
+
+    Examples
+    --------
+    A 50 mV/Pa sensor on a 94 dB calibrator gives 50.12 mV RMS at 1 kHz:
+
+    >>> t = np.arange(96000) / 48000
+    >>> volts = 0.05 * calibrator_pressure_pa(94.0) * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t)
+    >>> result = calibrate_tone(volts, 48000)
+    >>> round(result.tone_rms_v * 1e3, 2), round(result.sensitivity_mv_per_pa, 3)
+    (50.12, 50.0)
+    >>> round(result.sensitivity_dbv_per_pa, 2), result.segments, result.stable
+    (-26.02, 3, True)
     """
 
     sensitivity_v_per_pa: float
@@ -151,6 +171,20 @@ class ToneCalibrator:
         Calibrator sound pressure level, dB re ``reference_pa``.
     reference_pa
         Reference pressure (ISO 1683: 20 µPa in air).
+
+    Examples
+    --------
+    Fed in blocks, with noise 40 dB below the tone (0.5 mV RMS against 50.1 mV):
+
+    >>> t = np.arange(96000) / 48000
+    >>> volts = 0.05 * calibrator_pressure_pa(94.0) * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t)
+    >>> volts += 0.0005 * np.random.default_rng(0).standard_normal(volts.size)
+    >>> calibrator = ToneCalibrator(48000, expected_hz=1000.0, level_db=94.0)
+    >>> for block in np.array_split(volts, 9):
+    ...     calibrator.update(block)
+    >>> result = calibrator.result()
+    >>> round(result.sensitivity_mv_per_pa, 1), round(result.residual_db), result.stable
+    (50.0, -40, True)
     """
 
     def __init__(
@@ -355,7 +389,18 @@ def calibrate_tone(
     level_db: float = 94.0,
     reference_pa: float = REFERENCE_AIR_PA,
 ) -> CalibrationResult:
-    """Whole-array form of :class:`ToneCalibrator` (``x`` in volts, one channel)."""
+    """Whole-array form of :class:`ToneCalibrator` (``x`` in volts, one channel).
+
+    Examples
+    --------
+    A 250 Hz calibrator at 114 dB (10.02 Pa) on a sensor reading 2 mV RMS:
+
+    >>> t = np.arange(96000) / 48000
+    >>> volts = 0.002 * np.sqrt(2) * np.sin(2 * np.pi * 250 * t)
+    >>> result = calibrate_tone(volts, 48000, expected_hz=250.0, level_db=114.0)
+    >>> round(result.tone_hz, 3), round(result.sensitivity_v_per_pa * 1e6, 1)  # uV/Pa
+    (250.0, 199.5)
+    """
     cal = ToneCalibrator(
         sample_rate_hz, expected_hz=expected_hz, level_db=level_db, reference_pa=reference_pa
     )

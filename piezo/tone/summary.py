@@ -80,12 +80,15 @@ class Tone:
     channel_indices: tuple[int, ...]
     results: tuple[ToneResult, ...]
     bandwidth_source: str = "option"
+    #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
+    quantity: str = "voltage"
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo tone --json`` document (plain JSON values)."""
         first = self.results[0]
         doc = {
             "file": self.file,
+            "quantity": self.quantity,
             "unit": self.unit,
             "level_unit": self.level_unit,
             "bandwidth_hz": list(self.bandwidth_hz),
@@ -213,12 +216,13 @@ def tone_of(
         file=file,
         noise_file=None if noise is None else str(noise.recording.path),
         unit=source.unit,
-        level_unit=source.chain.level_unit,
+        level_unit=source.level_unit,
         reference=source.reference,
         bandwidth_hz=(float(low), float(high)),
         channel_indices=source.channel_indices,
         results=tuple(results),
         bandwidth_source="option" if given else "sample rate",
+        quantity=source.quantity.name,
     )
 
 

@@ -26,7 +26,7 @@ def test_reference_pressures_iso_1683():
 
 
 def test_scale_pcm_and_csv():
-    chain = Chain(full_scale_v=2.0, gain=10.0, sensitivity_v_per_pa=0.01)
+    chain = Chain(full_scale_v=2.0, gain=10.0, sensitivity_v_per_unit=0.01)
     # A full-scale PCM sample is 2 V at the ADC, 0.2 V at the sensor, 20 Pa.
     assert chain.scale(is_pcm=True) == pytest.approx(20.0)
     # CSV values are volts at the ADC: 1 V there is 0.1 V at the sensor, 10 Pa.
@@ -44,7 +44,7 @@ def test_uncalibrated_chain_is_in_volts():
 
 
 @pytest.mark.parametrize(
-    "kwargs", [{"sensitivity_v_per_pa": 0.0}, {"gain": -1.0}, {"full_scale_v": float("nan")}]
+    "kwargs", [{"sensitivity_v_per_unit": 0.0}, {"gain": -1.0}, {"full_scale_v": float("nan")}]
 )
 def test_chain_rejects_non_positive_values(kwargs):
     with pytest.raises(InputError, match="must be positive"):
@@ -115,7 +115,7 @@ def test_calibrated_source_blocks(tmp_path):
     sf.write(str(rec_path), x, 8000, subtype="FLOAT")
     src = CalibratedSource.of(
         open_recording(rec_path),
-        Chain(full_scale_v=4.0, gain=2.0, sensitivity_v_per_pa=0.05),
+        Chain(full_scale_v=4.0, gain=2.0, sensitivity_v_per_unit=0.05),
         channels=[1],
     )
     got = np.concatenate(list(src.blocks(30)))

@@ -71,6 +71,37 @@ def test_levels_history(cli, tone_and_silence):
     assert all(abs(v - 20 * math.log10(0.5)) < 0.05 for v in hist["channels"][0]["LAeq"])
 
 
+def test_levels_c_z_time_weighted_and_las_in_json(cli, tmp_path):
+    """Issue 12 §3.17: LCFmax … LZSmin, LAS percentiles (also chosen ones) and the
+    history's LAFmax and LCpeak per interval, in the JSON document and the table. A steady
+    1 kHz sine of 1 Pa RMS for 6 s (longer than the 5.1 s the S minima wait): C and Z are
+    0 dB at 1 kHz (IEC 61672-1:2013, Annex E normalises C there), so every F and S level
+    reads 93.98 dB (20 lg(1 / 20e-6), computed) after settling, within the ±0.003 dB
+    ripple of the F level and the 0.03 dB a reset averager has left after 5 τ; the
+    C peak is √2 higher, +3.01 dB."""
+    t = np.arange(6 * FS) / FS
+    path = tmp_path / "steady.wav"
+    sf.write(path, 0.5 * math.sqrt(2) * np.sin(2 * np.pi * 1000 * t), FS, subtype="DOUBLE")
+    res = cli("levels", path, "--sensitivity", "500 mV/Pa", "--json", "--interval", "1s",
+              "--percentiles", "1,99")  # fmt: skip
+    assert res.code == 0, res.err
+    doc = res.json()
+    ch = doc["channels"][0]
+    for w in "CZ":
+        for t_w in "FS":
+            assert ch[f"L{w}{t_w}max"] == pytest.approx(93.98, abs=0.04)
+            assert ch[f"L{w}{t_w}min"] == pytest.approx(93.98, abs=0.04)
+    for key in ("LAS5", "LAS50", "LAS95", "LAS1", "LAS99"):
+        assert ch[key] == pytest.approx(93.98, abs=0.04), key
+    hist = doc["history"]["channels"][0]
+    assert len(hist["LAFmax"]) == len(hist["LCpeak"]) == 6
+    # After the first interval the F level is steady (settled long before).
+    assert hist["LAFmax"][1:] == pytest.approx([93.98] * 5, abs=0.02)
+    assert hist["LCpeak"] == pytest.approx([93.98 + 3.01] * 6, abs=0.02)
+    out = cli("levels", path, "--sensitivity", "500 mV/Pa", "--interval", "1s").out
+    assert "LZSmax" in out and "LAS95" in out and "LCpeak" in out
+
+
 def test_levels_terminal_table(cli, tone_and_silence):
     res = cli("levels", tone_and_silence, "--sensitivity", "1 V/Pa")
     assert res.code == 0, res.err

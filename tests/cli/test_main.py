@@ -390,7 +390,7 @@ def test_json_output_is_one_document_and_nothing_else(cli, full_scale_sine):
     [
         (
             ["levels", "{file}", "--intervall", "1s"],
-            "piezo: error: no such option --intervall (did you mean --interval?)",
+            "piezo: error: no such option --intervall (did you mean --integrate or --interval?)",
         ),
         (["levls", "{file}"], "piezo: error: no such command 'levls' (did you mean levels?)"),
         (["sweep", "mak"], "piezo: error: no such command 'mak' (did you mean make?)"),
@@ -416,7 +416,7 @@ def test_usage_mistake_is_one_line_from_a_terminal_width_process(full_scale_sine
     r = run_piezo("levels", full_scale_sine, "--intervall", "1s", env={"COLUMNS": "80"})
     assert r.returncode == 2
     assert r.stderr.splitlines() == [
-        "piezo: error: no such option --intervall (did you mean --interval?)"
+        "piezo: error: no such option --intervall (did you mean --integrate or --interval?)"
     ]
 
 

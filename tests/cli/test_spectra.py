@@ -249,3 +249,94 @@ def test_bands_history_states_interval_durations(cli, tone_wav):
     hist = r.json()["channels"][0]["history"]
     assert hist["time_s"] == [0.0, 0.75, 1.5]
     assert hist["interval_duration_s"] == pytest.approx([0.75, 0.75, 0.5])
+
+
+# --- distinct peaks (issue 12 §3.6) ---------------------------------------------------
+
+#: Rate of the peak scene: a high-rate capture, as the issue's 1 MS/s file.
+PEAK_FS = 1_000_000
+#: The scene's distinct lines, hertz: a resonance (band-pass, Q 20) and two tones.
+PEAK_LINES_HZ = (40_000.0, 100_000.0, 250_000.0)
+
+
+@pytest.fixture
+def peak_wav(tmp_path):
+    """1 s at 1 MS/s: white noise (0.5 mV RMS), noise through a 40 kHz resonance (Q 20,
+    about 20 dB above the floor at its peak) and tones at 100 kHz (1 mV) and 250 kHz
+    (0.3 mV). Invented for the test."""
+    from scipy import signal
+
+    rng = np.random.default_rng(12)
+    n = PEAK_FS
+    b, a = signal.iirpeak(PEAK_LINES_HZ[0], 20.0, PEAK_FS)
+    x = 0.5e-3 * rng.standard_normal(n) + signal.lfilter(b, a, 5e-3 * rng.standard_normal(n))
+    t = np.arange(n) / PEAK_FS
+    x += 1e-3 * np.sin(2 * np.pi * PEAK_LINES_HZ[1] * t)
+    x += 3e-4 * np.sin(2 * np.pi * PEAK_LINES_HZ[2] * t)
+    path = tmp_path / "peaks.wav"
+    sf.write(str(path), x, PEAK_FS, subtype="FLOAT")
+    return path
+
+
+def _near_lines(found_hz, tolerance_hz):
+    """Each expected line matched by exactly one found peak, and nothing else found."""
+    assert len(found_hz) == len(PEAK_LINES_HZ), found_hz
+    for f0 in PEAK_LINES_HZ:
+        assert sum(abs(f - f0) <= tolerance_hz for f in found_hz) == 1, (f0, found_hz)
+
+
+# Tolerance: a tone's strongest bin is within half a bin of it; the resonance's within
+# the width where its band-pass response is 1 dB down, f0/(2Q)·0.509 = 509 Hz (about two
+# 244 Hz bins), inside which the estimate's scatter (±0.4 dB, 95 %) can move the maximum.
+_PEAK_TOLERANCE_HZ = 509.0
+
+
+def test_spectrum_lists_distinct_peaks(cli, peak_wav):
+    """The terminal lists exactly the three lines, one number format (issue 12 §3.6:
+    four bins of one resonance and noise bins were listed, "40039" beside "4.6021e+05")."""
+    r = cli("spectrum", peak_wav)
+    assert r.code == 0, r.err
+    import re
+
+    # One row per peak: frequency (Hz, fixed point), PSD level (dB), above floor (dB).
+    rows = re.findall(r"(?m)(\d+(?:\.\d+)?) Hz\s+(-?\d+\.\d) dB\s+\+(\d+\.\d) dB\s*$", r.out)
+    _near_lines([float(f) for f, _, _ in rows], _PEAK_TOLERANCE_HZ)
+    assert "e+" not in r.out
+
+
+def test_spectrum_json_peaks(cli, peak_wav):
+    r = cli("spectrum", peak_wav, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    peaks = doc["channels"][0]["peaks"]
+    _near_lines([p["frequency_hz"] for p in peaks], _PEAK_TOLERANCE_HZ)
+    # Strongest first; each stands above the floor by at least the rule's margin.
+    levels = [p["level_db"] for p in peaks]
+    assert levels == sorted(levels, reverse=True)
+    assert all(p["above_floor_db"] >= doc["peak_margin_db"] for p in peaks)
+
+
+def test_spectrum_plot_keeps_a_csv_time_offset(cli, tmp_path):
+    """Issue 12 §3.16: the spectrogram of ``spectrum --plot`` runs on the recording's
+    time, which starts at the CSV time column's first value (a -100 µs pre-trigger)."""
+    from numpy.testing import assert_allclose
+
+    from piezo.plots import style
+
+    fs, start = 50000.0, -1e-4
+    x = 0.1 * np.random.default_rng(2).standard_normal(25000)
+    path = tmp_path / "scope.csv"
+    rows = [f"{start + i / fs:.7f},{v:.6f}" for i, v in enumerate(x)]
+    path.write_text("Time (s),Disc (V)\n" + "\n".join(rows) + "\n", encoding="utf-8")
+    wav = tmp_path / "same.wav"
+    sf.write(str(wav), x, int(fs), subtype="FLOAT")  # the same samples, from time 0
+    edges = []
+    for src, out in ((path, "csv.png"), (wav, "wav.png")):
+        with style.capture_figures() as figs:
+            r = cli("spectrum", src, "--plot", tmp_path / out)
+        assert r.code == 0, r.err
+        (fig,) = figs
+        mesh = fig.axes[1].collections[0]  # the spectrogram's cells
+        edges.append(mesh.get_coordinates()[0, :, 0])
+    # The same cells, shifted by the offset: rounding of the time column only.
+    assert_allclose(edges[0], edges[1] + start, rtol=0, atol=1e-9)

@@ -95,7 +95,7 @@ def test_clean_sine_at_minus_0p1_dbfs_is_not_flagged(bits):
 @pytest.mark.parametrize("freq_hz", [20.0, 50.0, 200.0])
 def test_clean_low_frequency_sines_near_full_scale_are_not_clipping(freq_hz):
     # Near a smooth maximum consecutive 16-bit samples repeat (flat runs), but the value
-    # histogram has no spike: the density ratio is 4.2 (see piezo.diagnostics.stream), far
+    # histogram has no spike: the density ratio is 4.2 (see piezo.diagnostics._stream), far
     # under the threshold 20. Common practice, no source, for the threshold.
     x = np.round(sine(freq_hz, 0.99, 2.0) * 32767) / 32768
     ch = check_capture(x, FS).channels[0]

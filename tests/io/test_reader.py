@@ -124,6 +124,21 @@ def test_csv_with_header_and_time_column(tmp_path):
     np.testing.assert_allclose(got[:, 0], np.round(np.sin(t * 100), 6), atol=0)
 
 
+def test_csv_time_offset_is_kept(tmp_path):
+    """Issue 12 §3.16: a scope's pre-trigger starts the time column at -100 µs; the
+    recording keeps that time of its first sample (audio files and CSV without a time
+    column start at 0)."""
+    lines = ["Time (s),Disc (V)"] + [f"{-1e-4 + i * 2e-5:.7f},{i % 3}" for i in range(200)]
+    rec = open_recording(write_text(tmp_path / "scope.csv", "\n".join(lines) + "\n"))
+    assert rec.start_time_s == pytest.approx(-1e-4, abs=1e-12)  # "-0.0001000" exactly
+    assert rec.sample_rate_hz == pytest.approx(50000.0, rel=1e-9)
+    plain = open_recording(write_text(tmp_path / "v.csv", "v\n1\n2\n3\n"), rate_hz=10.0)
+    assert plain.start_time_s == 0.0
+    wav = tmp_path / "a.wav"
+    sf.write(wav, np.zeros(100), 8000)
+    assert open_recording(wav).start_time_s == 0.0
+
+
 @pytest.mark.parametrize("delimiter", [",", ";", "\t", " "])
 def test_csv_delimiters_are_sniffed(tmp_path, delimiter):
     rows = [delimiter.join(["t", "a"])] + [

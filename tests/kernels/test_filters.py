@@ -194,15 +194,17 @@ def _run_level_kernel(x, fs, blocks, *, starts, periods, reference=20e-6):
     state = kern.new_level_state(channels)
     hist = np.zeros((channels, 60000), dtype=np.int64)
     other = np.zeros((2, channels), dtype=np.int64)
+    hist_s = np.zeros((channels, 60000), dtype=np.int64)
+    other_s = np.zeros((2, channels), dtype=np.int64)
     traces, intervals = [], []
     frame0 = 0
     for a, b in blocks:
         block = np.ascontiguousarray(x[a:b])
         n = b - a
         trace_out = np.zeros((2, channels, n // periods[1] + 1))
-        interval_out = np.zeros((n // max(periods[2], 1) + 1, 3, channels))
+        interval_out = np.zeros((n // max(periods[2], 1) + 1, kern.INTERVAL_ROWS, channels))
         m_trace, m_int = kern.level_meter_block(
-            block, c_sos, a_sos, zi_c, zi_a, state, hist, other, frame0,
+            block, c_sos, a_sos, zi_c, zi_a, state, hist, other, hist_s, other_s, frame0,
             np.array(starts), np.array(periods),
             time_weighting_coefficient(0.125, fs), time_weighting_coefficient(1.0, fs),
             reference**2, -300.0, 0.01, trace_out, interval_out,
@@ -210,7 +212,10 @@ def _run_level_kernel(x, fs, blocks, *, starts, periods, reference=20e-6):
         traces.append(trace_out[:, :, :m_trace])
         intervals.append(interval_out[:m_int])
         frame0 += n
-    return state, hist, other, np.concatenate(traces, axis=2), np.concatenate(intervals)
+    return (
+        state, (hist, hist_s), (other, other_s), np.concatenate(traces, axis=2),
+        np.concatenate(intervals),
+    )  # fmt: skip
 
 
 def test_level_kernel_matches_scipy_sample_by_sample(rng):
@@ -218,7 +223,7 @@ def test_level_kernel_matches_scipy_sample_by_sample(rng):
     n = 24000
     x = rng.standard_normal((n, 2)) * np.repeat(rng.uniform(0.1, 3.0, 30), n // 30)[:, None]
     starts, periods = [1600, 4000, 4000, 9000], [160, 1600, 8000]
-    state, hist, other, traces, intervals = _run_level_kernel(
+    state, (hist, hist_s), (other, other_s), traces, intervals = _run_level_kernel(
         x, fs, [(0, 5000), (5000, 5001), (5001, n)], starts=starts, periods=periods
     )
     # Reference: scipy's filters and a per-sample lfilter averager, from rest.
@@ -227,11 +232,13 @@ def test_level_kernel_matches_scipy_sample_by_sample(rng):
     ya = signal.sosfilt(a_sos, yc, axis=0)
     qa = ya * ya
 
-    def average(tau):
+    def average(tau, q=qa):
         a = time_weighting_coefficient(tau, fs)
-        return signal.lfilter([1 - a], [1, -a], qa, axis=0)
+        return signal.lfilter([1 - a], [1, -a], q, axis=0)
 
     f, s = average(0.125), average(1.0)
+    cf, cs = average(0.125, yc * yc), average(1.0, yc * yc)
+    zf, zs = average(0.125, x * x), average(1.0, x * x)
     # Sums and averages: rounding only (filters as above; sums of 24000 positive terms
     # in a different order: < 24000 eps relative).
     for row, expected in (
@@ -247,6 +254,19 @@ def test_level_kernel_matches_scipy_sample_by_sample(rng):
         (kern.ST_F_MIN, f[4000:].min(axis=0)),
         (kern.ST_S_MAX, s[1600:].max(axis=0)),
         (kern.ST_S_MIN, s[9000:].min(axis=0)),
+        # The C- and Z-weighted squares through the same F and S averagers.
+        (kern.ST_CF, cf[-1]),
+        (kern.ST_CS, cs[-1]),
+        (kern.ST_ZF, zf[-1]),
+        (kern.ST_ZS, zs[-1]),
+        (kern.ST_CF_MAX, cf[1600:].max(axis=0)),
+        (kern.ST_CF_MIN, cf[4000:].min(axis=0)),
+        (kern.ST_CS_MAX, cs[1600:].max(axis=0)),
+        (kern.ST_CS_MIN, cs[9000:].min(axis=0)),
+        (kern.ST_ZF_MAX, zf[1600:].max(axis=0)),
+        (kern.ST_ZF_MIN, zf[4000:].min(axis=0)),
+        (kern.ST_ZS_MAX, zs[1600:].max(axis=0)),
+        (kern.ST_ZS_MIN, zs[9000:].min(axis=0)),
     ):
         assert_allclose(state[row], expected, rtol=1e-11, err_msg=str(row))
     # Traces: F and S at every 1600th frame; intervals: sums over 8000 frames.
@@ -257,6 +277,10 @@ def test_level_kernel_matches_scipy_sample_by_sample(rng):
         sl = slice(8000 * k, 8000 * (k + 1))
         assert_allclose(intervals[k, 0], np.sum(x[sl] ** 2, axis=0), rtol=1e-11)
         assert_allclose(intervals[k, 2], np.sum(qa[sl], axis=0), rtol=1e-11)
+        # Per-interval A-F maximum and C peak, counted from the settling frame (1600).
+        sl = slice(max(8000 * k, 1600), 8000 * (k + 1))
+        assert_allclose(intervals[k, 3], f[sl].max(axis=0), rtol=1e-11)
+        assert_allclose(intervals[k, 4], np.abs(yc[sl]).max(axis=0), rtol=1e-11)
     # Percentile samples: F level every 160 frames from frame 4000, in 0.01 dB bins.
     pick = np.arange(159, n, 160)
     pick = pick[pick >= 4000]
@@ -267,6 +291,16 @@ def test_level_kernel_matches_scipy_sample_by_sample(rng):
         )
         assert_array_equal(hist[c], expected)
     assert_array_equal(other, 0)
+    # S level samples at the same instants from the S-minimum start (frame 9000).
+    pick = np.arange(159, n, 160)
+    pick = pick[pick >= 9000]
+    levels = 10 * np.log10(s[pick] / (20e-6) ** 2)
+    for c in range(2):
+        expected = np.bincount(
+            np.floor((levels[:, c] + 300.0) / 0.01).astype(int), minlength=60000
+        )
+        assert_array_equal(hist_s[c], expected)
+    assert_array_equal(other_s, 0)
 
 
 def test_level_kernel_rejects_non_finite_blocks_without_touching_state(rng):
@@ -277,16 +311,18 @@ def test_level_kernel_rejects_non_finite_blocks_without_touching_state(rng):
     state = kern.new_level_state(1)
     hist = np.zeros((1, 10), dtype=np.int64)
     other = np.zeros((2, 1), dtype=np.int64)
-    before = [a.copy() for a in (zi_c, zi_a, state, hist, other)]
+    hist_s = np.zeros((1, 10), dtype=np.int64)
+    other_s = np.zeros((2, 1), dtype=np.int64)
+    before = [a.copy() for a in (zi_c, zi_a, state, hist, other, hist_s, other_s)]
     x = rng.standard_normal((100, 1))
     x[57, 0] = np.inf
     got = kern.level_meter_block(
-        x, c_sos, a_sos, zi_c, zi_a, state, hist, other, 0,
+        x, c_sos, a_sos, zi_c, zi_a, state, hist, other, hist_s, other_s, 0,
         np.zeros(4, dtype=np.int64), np.array([1, 1, 1]), 0.5, 0.5, 1.0, 0.0, 1.0,
-        np.zeros((2, 1, 101)), np.zeros((101, 3, 1)),
+        np.zeros((2, 1, 101)), np.zeros((101, kern.INTERVAL_ROWS, 1)),
     )  # fmt: skip
     assert got == (-1, -1)
-    for a, b in zip((zi_c, zi_a, state, hist, other), before, strict=True):
+    for a, b in zip((zi_c, zi_a, state, hist, other, hist_s, other_s), before, strict=True):
         assert_array_equal(a, b)
 
 

@@ -73,7 +73,7 @@ def _toneburst(tb_s: float, fs: float, pre_s: float = 0.3, post_s: float = 0.6) 
     return x
 
 
-def _ideal_a_spread_db(tb_s: float, fs: float) -> float:
+def _ideal_a_spread_db(tb_s: float, fs: float, weighting: str = "A") -> float:
     """Energy change of the burst by the ideal A weighting relative to a steady 4 kHz tone.
 
     The reference values assume the weighted burst energy scales with Tb. A burst of a
@@ -88,9 +88,10 @@ def _ideal_a_spread_db(tb_s: float, fs: float) -> float:
     spec = np.abs(np.fft.rfft(x)) ** 2
     f = np.fft.rfftfreq(n_fft, 1 / fs)
     gain = np.zeros_like(f)
-    gain[1:] = 10 ** (weighting_db(f[1:], weighting="A") / 10)
+    gain[1:] = 10 ** (weighting_db(f[1:], weighting=weighting) / 10)
     return float(
-        10 * np.log10(np.sum(spec * gain) / np.sum(spec)) - weighting_db(4000.0, weighting="A")
+        10 * np.log10(np.sum(spec * gain) / np.sum(spec))
+        - weighting_db(4000.0, weighting=weighting)
     )
 
 
@@ -129,6 +130,27 @@ def test_toneburst_response():
         assert lim_f[1] <= got_f - ref_f <= lim_f[0]
         if ref_s is not None:
             got_s = ch.LASmax - steady
+            assert abs(got_s - (ref_s + spread)) <= 0.1, (tb, got_s)
+            assert lim_s[1] <= got_s - ref_s <= lim_s[0]
+
+
+@pytest.mark.parametrize("weighting", ["C", "Z"])
+def test_c_and_z_toneburst_response(weighting):
+    """Issue 12 §3.17: LCFmax, LCSmax, LZFmax, LZSmax. IEC 61672-1:2013 specifies the
+    toneburst response for the time weightings whatever the frequency weighting
+    (table 4); the same reference values as for A, within 0.1 dB after the ideal
+    weighting's own effect on a short burst (none for Z)."""
+    fs = 48000.0
+    steady = getattr(sound_levels(sine(4000, 1 / math.sqrt(2), 2.0, fs), fs).channels[0],
+                     f"L{weighting}eq")  # fmt: skip
+    for tb, ref_f, ref_s, _, lim_f, lim_s in TONEBURSTS:
+        ch = sound_levels(_toneburst(tb, fs), fs).channels[0]
+        spread = _ideal_a_spread_db(tb, fs, weighting) if weighting != "Z" else 0.0
+        got_f = getattr(ch, f"L{weighting}Fmax") - steady
+        assert abs(got_f - (ref_f + spread)) <= 0.1, (tb, got_f)
+        assert lim_f[1] <= got_f - ref_f <= lim_f[0]
+        if ref_s is not None:
+            got_s = getattr(ch, f"L{weighting}Smax") - steady
             assert abs(got_s - (ref_s + spread)) <= 0.1, (tb, got_s)
             assert lim_s[1] <= got_s - ref_s <= lim_s[0]
 
@@ -223,6 +245,59 @@ def test_max_min_and_percentiles_match_per_sample_reference(rng):
         assert abs(getattr(ch, f"LAF{p}") - expected) <= 0.01
 
 
+def _scipy_weighted(x: np.ndarray, fs: float, weighting: str) -> np.ndarray:
+    """The A-, C- or Z-weighted signal by ``scipy.signal.sosfilt`` (the meter's design:
+    C sections, started in the steady state for the first sample, then the A-only ones)."""
+    from piezo.levels.weighting import weighting_chain_sos
+
+    c_sos, a_sos = weighting_chain_sos(fs)
+    y = x
+    if weighting in "CA":
+        y = signal.sosfilt(c_sos, y, zi=signal.sosfilt_zi(c_sos) * x[0])[0]
+    if weighting == "A":
+        y = signal.sosfilt(a_sos, y)
+    return y
+
+
+def _scipy_trace(x: np.ndarray, fs: float, weighting: str, tau: float) -> np.ndarray:
+    """Per-sample time-weighted mean square from scipy alone: the weighted square through
+    the RC averager y[n] = a·y[n-1] + (1 - a)·q[n], a = exp(-1/(τ·fs)) (the exponential
+    time weighting of IEC 61672-1:2013, sampled), by ``scipy.signal.lfilter``."""
+    y = _scipy_weighted(x, fs, weighting)
+    a = math.exp(-1.0 / (tau * fs))
+    return signal.lfilter([1 - a], [1, -a], y * y)
+
+
+def test_c_z_time_weighted_extremes_and_las_percentiles_match_scipy(rng):
+    """Issue 12 §3.17: every F/S maximum and minimum (A, C, Z) and the LAS percentiles
+    (also chosen ones) equal a per-sample computation with scipy's filters."""
+    fs = 8000.0
+    x = rng.standard_normal(round(9 * fs)) * np.repeat(rng.uniform(0.05, 2.0, 90), 800)
+    res = sound_levels(x, fs, percentiles=(1, 99))
+    ch = res.channels[0]
+    for w in "ACZ":
+        for tau, t in ((0.125, "F"), (1.0, "S")):
+            y = _scipy_trace(x, fs, w, tau)
+            for kind, pick in (("max", np.max), ("min", np.min)):
+                key = f"L{w}{t}{kind}"
+                value = pick(y[round(res.excluded_s[key] * fs) :])
+                # The same recursion in another order of operations: rounding only.
+                assert_allclose(getattr(ch, key), 10 * np.log10(value / P0**2), rtol=1e-9,
+                                err_msg=key)  # fmt: skip
+    y = _scipy_trace(x, fs, "A", 1.0)
+    step = round(res.percentile_interval_s * fs)
+    idx = np.arange(step - 1, len(y), step)
+    idx = idx[idx >= round(res.excluded_s["LAS percentiles"] * fs)]
+    levels = np.sort(10 * np.log10(y[idx] / P0**2))[::-1]
+    assert res.excluded_s["LAS percentiles"] == pytest.approx(res.excluded_s["LASmin"])
+    for p in (*PERCENTILES, 1, 99):
+        # Level exceeded p % of the time; the meter interpolates within 0.001 dB bins.
+        expected = levels[math.ceil(p / 100 * len(levels)) - 1]
+        got = getattr(ch, f"LAS{p}", None) if p in PERCENTILES else ch.percentile_levels[f"LAS{p}"]
+        assert abs(got - expected) <= 0.002, p
+    assert set(ch.percentile_levels) == {"LAF1", "LAF99", "LAS1", "LAS99"}
+
+
 def test_start_up_excludes_filter_transient_and_reports_it():
     fs = 48000.0
     x = sine(1000, 1.0, 1.0, fs)
@@ -285,6 +360,17 @@ def test_history_intervals_and_traces(rng):
     idx = np.round(hist.trace_time_s * fs).astype(int)
     assert_allclose(hist.LAF[:, 0], 10 * np.log10(y[idx] / P0**2), rtol=1e-12)
     assert sound_levels(x, fs).history is None
+    # Issue 12 §3.17: LAFmax and LCpeak per interval, from the settling frame on (the
+    # recording's LAFmax and LCpeak are the largest of them), against scipy.
+    f = _scipy_trace(x, fs, "A", 0.125)
+    yc = np.abs(_scipy_weighted(x, fs, "C"))
+    settle = round(res.excluded_s["LAFmax"] * fs)
+    for k, start in enumerate(hist.interval_start_s):
+        sl = slice(max(round(start * fs), settle), round((start + 1.0) * fs))
+        assert_allclose(hist.LAFmax[k, 0], 10 * np.log10(f[sl].max() / P0**2), rtol=1e-9)
+        assert_allclose(hist.LCpeak[k, 0], 20 * np.log10(yc[sl].max() / P0), rtol=1e-9)
+    assert np.nanmax(hist.LAFmax) == pytest.approx(ch.LAFmax, abs=1e-9)
+    assert np.nanmax(hist.LCpeak) == pytest.approx(ch.LCpeak, abs=1e-9)
 
 
 def _assert_results_equal(a, b, rtol=1e-9):
@@ -297,7 +383,7 @@ def _assert_results_equal(a, b, rtol=1e-9):
                 assert_allclose(va, vb, rtol=rtol, err_msg=name)
         assert ca.notes == cb.notes
     if a.history is not None:
-        for name in ("LZeq", "LAeq", "LCeq", "LAF", "LAS"):
+        for name in ("LZeq", "LAeq", "LCeq", "LAFmax", "LCpeak", "LAF", "LAS"):
             assert_allclose(getattr(a.history, name), getattr(b.history, name), rtol=rtol)
 
 

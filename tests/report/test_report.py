@@ -266,3 +266,41 @@ def test_spectrum_sections_agree_with_the_levels(reports):
     assert doc["tone"]["channels"][0]["present"]
     pump = json.loads((reports / "pump-bench.report.json").read_text(encoding="utf-8"))
     assert pump["tone"] is None
+
+
+def test_a_csv_time_offset_starts_the_time_axes(tmp_path):
+    """Issue 12 §3.16: a scope export whose time column starts at -100 µs (pre-trigger)
+    keeps that offset: the report states it and its level-history and spectrogram axes
+    start there (the document's own times still count from the first sample)."""
+    from piezo.chain.measurement import CalibratedSource, ChainSettings, resolve_chain
+    from piezo.io.reader import open_recording
+    from piezo.plots import style
+    from piezo.report.build import report_document, report_figures
+    from piezo.report.run import ReportSettings, analyse
+
+    fs, start = 50000.0, -1e-4
+    n = 50000  # 1 s
+    rng = np.random.default_rng(5)
+    x = 0.05 * rng.standard_normal(n) + 0.2 * np.sin(2 * np.pi * 1000 * np.arange(n) / fs)
+    path = tmp_path / "scope.csv"
+    rows = [f"{start + i / fs:.7f},{v:.6f}" for i, v in enumerate(x)]
+    path.write_text("Time (s),Disc (V)\n" + "\n".join(rows) + "\n", encoding="utf-8")
+    rec = open_recording(path)
+    chain, provenance = resolve_chain(path, ChainSettings(), use_sidecar=False)
+    run = analyse(CalibratedSource.of(rec, chain, None, provenance), ReportSettings())
+    doc = report_document(run)
+    assert doc["recording"]["start_time_s"] == pytest.approx(start, abs=1e-12)
+    _schema_validator().validate(json.loads(json.dumps(doc)))
+    with style.capture_figures() as figs:
+        names = list(report_figures(run))
+    assert len(names) == len(figs)  # one figure per name, drawn in the same order
+    drawn = dict(zip(names, figs, strict=True))
+    history = drawn["level_history"].axes[0]
+    assert history.get_xlim()[0] == pytest.approx(start, abs=1e-12)
+    # The spectrogram's first cell starts half a column before its first column's time
+    # (the column times count from the first sample).
+    spectro = drawn["spectrogram_0"].axes[0]
+    sg = run.spectrogram
+    assert sg is not None
+    first_edge = start + sg.time_s[0] - (sg.time_s[1] - sg.time_s[0]) / 2
+    assert spectro.get_xlim()[0] == pytest.approx(first_edge, abs=1e-9)
