@@ -227,3 +227,30 @@ def test_every_csv_column_is_in_the_glossary(cli, tmp_path, glossary, command):
     assert result.code == 0, result.err
     header = csv_header(out.read_text(encoding="utf-8"))
     assert [c for c in header if c not in glossary] == []
+
+
+def test_level_rows_in_one_order_on_the_terminal_in_json_and_in_the_report(cli, tmp_path):
+    wav = RECORDINGS / "calibrator-94dB.wav"
+    doc = cli("levels", wav, "--json").json()
+    json_order = [k for k in doc["channels"][0] if k.startswith("L")]
+    terminal = cli("levels", wav).out.splitlines()
+    terminal_order = [
+        ln.split()[0] for ln in terminal if ln.split()[:1] in ([k] for k in json_order)
+    ]
+    assert cli("report", wav, "--out", tmp_path).code == 0
+    (report_json,) = tmp_path.glob("*.report.json")
+    report = json.loads(report_json.read_text(encoding="utf-8"))
+    assert terminal_order == json_order == report["levels"]["names"]
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        ["calibrate", f"{R}/calibrator-94dB.wav"],
+        ["frontend", f"{R}/designs/pump-disc-charge.toml"],
+    ],
+    ids=["calibrate", "frontend"],
+)
+def test_sensitivity_levels_print_as_db_re_1_v_per_pa(cli, args):
+    out = cli(*args).out
+    assert "dB re 1 V/Pa" in out and "dBV/Pa" not in out

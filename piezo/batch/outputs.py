@@ -344,7 +344,11 @@ def _csv_number(value: float | None) -> str:
 def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     """One line per capture: file, serial, verdict, each metric, messages, hashes.
 
-    Metric values have six significant digits (results.json keeps full precision);
+    Comment lines above the header name each metric column's unit
+    (``# sensitivity: dB re 1 V/Pa``, docs/glossary.md); the metric columns are named as
+    the spec's metrics. Metric values have six significant digits (results.json keeps
+    full precision); a file name starting with ``#`` gets a leading apostrophe, so no
+    result line reads as a comment;
     message columns join several messages with " | ". Written by
     :func:`piezo.io.tables.csv_text`: a text cell a spreadsheet would evaluate (a file
     name or serial starting with ``=``, ``+``, ``-``, ``@``) gets a leading apostrophe.
@@ -364,7 +368,7 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     ]
     table = (
         [
-            r["file"],
+            "'" + r["file"] if r["file"].startswith("#") else r["file"],
             r["serial"],
             r["verdict"],
             *(_csv_number(r["metrics"].get(n)) for n in names),
@@ -377,7 +381,8 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
         ]
         for r in rows
     )
-    return csv_text(header, table)
+    comments = ["piezo batch results", *(f"{m.name}: {m.unit}" for m in spec.metrics)]
+    return csv_text(header, table, comments=comments)
 
 
 def results_json_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Annotated
 
@@ -30,6 +31,7 @@ from piezo.cli.output import (
 from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
 from piezo.io.tables import csv_text
+from piezo.plots.style import axis_label
 from piezo.spectral.bands import FRACTIONS, BandResult
 from piezo.spectral.summary import bands_of
 
@@ -120,7 +122,12 @@ def bands(
     ref = measured.level_reference
     doc = measured.to_dict()
     if csv is not None:
-        write_text_atomic(csv, format_csv(result, source.channel_indices, ref))
+        write_text_atomic(
+            csv,
+            format_csv(
+                result, source.channel_indices, ref, measured.level_units or measured.level_unit
+            ),
+        )
     if json_out:
         emit_json(doc)
     else:
@@ -130,24 +137,33 @@ def bands(
 
 
 def format_csv(
-    result: BandResult, channels: tuple[int, ...], reference: float | np.ndarray
+    result: BandResult,
+    channels: tuple[int, ...],
+    reference: float | np.ndarray,
+    level_unit: str | Sequence[str],
 ) -> str:
-    """CSV text: one row per band (Leq), or per interval and band with ``--interval``."""
+    """CSV text: one row per band (Leq), or per interval and band with ``--interval``.
+
+    Band levels are in columns ``ch<N>_level_db``; a ``# column: unit`` comment line above
+    the header names their reference (``level_unit``, docs/glossary.md).
+    """
     levels = result.level_db(reference)
-    cols = [f"ch{ch}_dB" for ch in channels]
+    cols = [f"ch{ch}_level_db" for ch in channels]
+    units = [level_unit] * len(cols) if isinstance(level_unit, str) else list(level_unit)
+    comments = ["piezo band table", *(f"{c}: {u}" for c, u in zip(cols, units, strict=True))]
     if result.interval_s is None:
         rows = (
             [f"{b.nominal_hz:g}", f"{b.exact_hz:.4f}", *(_fmt(v) for v in levels[j])]
             for j, b in enumerate(result.bands)
         )
-        return csv_text(["nominal_hz", "exact_hz", *cols], rows)
+        return csv_text(["nominal_hz", "exact_hz", *cols], rows, comments=comments)
     hist = result.history_db(reference)
     timed = (
         [f"{t:.6g}", f"{b.nominal_hz:g}", f"{b.exact_hz:.4f}", *(_fmt(v) for v in row[j])]
         for t, row in zip(result.history_time_s, hist, strict=True)
         for j, b in enumerate(result.bands)
     )
-    return csv_text(["time_s", "nominal_hz", "exact_hz", *cols], timed)
+    return csv_text(["time_s", "nominal_hz", "exact_hz", *cols], timed, comments=comments)
 
 
 def _fmt(value: float) -> str:
@@ -169,7 +185,7 @@ def _print(doc: dict) -> None:
     for note in doc["response_curve_notes"]:
         console.print(f"  {note}")
     table = Table(box=None, pad_edge=False, header_style="bold")
-    table.add_column("band Hz", justify="right")
+    table.add_column(axis_label("band", "Hz"), justify="right")
     for entry in doc["channels"]:
         table.add_column(f"ch {entry['channel']}", justify="right")
     nb = len(doc["channels"][0]["bands"])

@@ -231,11 +231,13 @@ def _print_summary(
 ) -> None:
     counts = summary["counts"]
     styles = {PASS: "green", WARN: "yellow", FAIL: "bold red", NOT_EVALUABLE: "bold red"}
+    # Verdicts are shown in capitals, as check's severities and the HTML badges are; the
+    # JSON and CSV values stay lower case (docs/glossary.md).
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("verdict")
     table.add_column("captures", justify="right")
     for v in VERDICTS:
-        table.add_row(f"[{styles[v]}]{v}[/]", str(counts[v]))
+        table.add_row(f"[{styles[v]}]{v.upper()}[/]", str(counts[v]))
     console.print(table)
     y = summary["yield"]
     console.print(
@@ -259,7 +261,7 @@ def _print_summary(
         for r in shown:
             failing.add_row(
                 r["serial"] or Path(r["file"]).name,
-                f"[{styles[r['verdict']]}]{r['verdict']}[/]",
+                f"[{styles[r['verdict']]}]{r['verdict'].upper()}[/]",
                 _why(r),
             )
         console.print(failing)

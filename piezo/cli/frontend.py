@@ -40,6 +40,7 @@ from piezo.frontend.study import CAUTION, study_frontend, vary_values
 from piezo.io.atomic import write_text_atomic
 from piezo.io.toml import toml_value
 from piezo.plots.frontend import write_plot as _plot
+from piezo.plots.style import axis_label
 
 #: Output formats that hold 32-bit float samples (values beyond ±1 survive).
 _FLOAT_FORMATS = {".wav": "WAV", ".w64": "W64", ".rf64": "RF64", ".caf": "CAF", ".aiff": "AIFF"}
@@ -226,8 +227,8 @@ def _print_design(doc: dict[str, Any]) -> None:
             title="Response re midband", box=None, header_style="bold", title_justify="left"
         )
         table.add_column("frequency", justify="right")
-        table.add_column("level dB", justify="right")
-        table.add_column("phase °", justify="right")
+        table.add_column(axis_label("level", "dB"), justify="right")
+        table.add_column(axis_label("phase", "°"), justify="right")
         for row in doc["phase"]:
             table.add_row(
                 _q(row["frequency_hz"], "Hz"),
@@ -247,7 +248,7 @@ def _print_design(doc: dict[str, Any]) -> None:
     table.add_column("source")
     table.add_column("output", justify="right")
     table.add_column("input", justify="right")
-    table.add_column("dB(A) re 20 µPa", justify="right")
+    table.add_column(axis_label("A-weighted", "dB re 20 µPa"), justify="right")
     table.add_column("share", justify="right")
     for s in doc["noise_budget"]:
         table.add_row(
@@ -559,7 +560,7 @@ def equalize(
     )
     table = Table(box=None, header_style="bold")
     table.add_column("frequency", justify="right")
-    table.add_column("boost dB", justify="right")
+    table.add_column(axis_label("boost", "dB"), justify="right")
     for row in doc["boost_at"]:
         table.add_row(_q(row["frequency_hz"], "Hz"), f"{row['boost_db']:+.2f}")
     console.print(table)

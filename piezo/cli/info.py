@@ -14,6 +14,7 @@ from piezo.chain.measurement import Chain, Provenance
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.levels.stats import SignalStats
+from piezo.plots.style import axis_label
 from piezo.results import reference_key
 
 
@@ -145,8 +146,8 @@ def _print(doc: dict) -> None:
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("ch", justify="right")
     table.add_column("quantity")
-    table.add_column("peak dBFS", justify="right")
-    table.add_column("RMS dBFS", justify="right")
+    table.add_column(axis_label("peak", "dBFS"), justify="right")
+    table.add_column(axis_label("RMS", "dBFS"), justify="right")
     table.add_column("peak", justify="right")
     table.add_column("RMS", justify="right")
     table.add_column("RMS level", justify="right")

@@ -19,6 +19,7 @@ from piezo.cli.options import (
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
 from piezo.levels.summary import LEVEL_KEYS, levels_of
+from piezo.plots.style import axis_label
 
 #: Terminal history tables longer than this are left to --json.
 MAX_HISTORY_ROWS = 60
@@ -131,7 +132,9 @@ def _print(doc: dict[str, Any]) -> None:
     extra = [k for k in doc["channels"][0] if k.startswith(("LAF", "LAS")) and k not in LEVEL_KEYS]
     for key in (*LEVEL_KEYS, *extra):
         table.add_row(key, *(_fmt(ch[key]) for ch in doc["channels"]))
-    table.add_row("crest factor (dB)", *(_fmt(ch["crest_factor_db"]) for ch in doc["channels"]))
+    table.add_row(
+        axis_label("crest factor", "dB"), *(_fmt(ch["crest_factor_db"]) for ch in doc["channels"])
+    )
     console.print(table)
     excluded = doc["start_up_excluded_s"]
     console.print(

@@ -156,7 +156,7 @@ def spectrum(
     ref = measured.reference
     level_unit = measured.level_unit
     if csv is not None:
-        write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref))
+        write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref, level_unit))
     if plot is not None and spectro is not None:
         write_plot(
             plot,
@@ -181,11 +181,23 @@ def spectrum(
             err_console.print(f"{what} written: {path}")
 
 
-def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, reference: float) -> str:
-    """CSV text: frequency, then the PSD and its level in dB for each channel."""
+def format_csv(
+    result: PSDResult,
+    channels: tuple[int, ...],
+    unit: str,
+    reference: float,
+    level_unit: str,
+) -> str:
+    """CSV text: frequency, then the PSD and its level for each channel.
+
+    Columns ``ch<N>_psd`` (in ``unit``) and ``ch<N>_psd_db`` (in ``level_unit``); a
+    ``# column: unit`` comment line above the header names each unit (docs/glossary.md).
+    """
     header = ["frequency_hz"]
+    comments = ["piezo spectrum table"]
     for ch in channels:
-        header += [f"ch{ch}_{unit}", f"ch{ch}_dB"]
+        header += [f"ch{ch}_psd", f"ch{ch}_psd_db"]
+        comments += [f"ch{ch}_psd: {unit}", f"ch{ch}_psd_db: {level_unit}"]
     with np.errstate(divide="ignore"):
         levels = 10 * np.log10(result.psd / reference**2)
     rows = []
@@ -195,14 +207,17 @@ def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, referenc
             lv = levels[k, i]
             row += [f"{result.psd[k, i]:.6e}", f"{lv:.3f}" if np.isfinite(lv) else ""]
         rows.append(row)
-    return csv_text(header, rows)
+    return csv_text(header, rows, comments=comments)
 
 
 def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit: str) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     ci = doc["confidence"]
     ci_text = (
-        f", 95 % interval {ci['lower_db']:+.2f}/{ci['upper_db']:+.2f} dB" if ci is not None else ""
+        f", {100 * ci['coverage_probability']:g} % interval "
+        f"{ci['lower_db']:+.2f}/{ci['upper_db']:+.2f} dB"
+        if ci is not None
+        else ""
     )
     console.print(
         f"  {doc['window']} window, {result.segment_frames} samples "

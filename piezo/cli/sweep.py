@@ -53,7 +53,7 @@ from piezo.response.stimulus import (
     sweep_signal,
     sweep_spec,
 )
-from piezo.response.summary import sweep_response_of
+from piezo.response.summary import stimulus_document, sweep_response_of
 
 STIMULUS_SUFFIX = ".stimulus.toml"
 SUBTYPES = ("PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE")
@@ -196,7 +196,7 @@ def make(
         "file": str(out),
         "sidecar": str(side),
         "frames": spec.frames,
-        **{k: getattr(spec, k) for k in spec.__dataclass_fields__},
+        **stimulus_document(spec),
     }
     if json_out:
         emit_json(doc)
@@ -246,7 +246,7 @@ def noise(
         "file": str(out),
         "sidecar": str(side),
         "frames": spec.frames,
-        **{k: getattr(spec, k) for k in spec.__dataclass_fields__},
+        **stimulus_document(spec),
     }
     if json_out:
         emit_json(doc)

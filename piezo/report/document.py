@@ -21,6 +21,7 @@ from piezo.levels.summary import LEVEL_KEYS
 from piezo.levels.weighting import ConformanceReport
 from piezo.results import reference_key
 from piezo.spectral.bands import BandResult
+from piezo.spectral.summary import confidence_document
 from piezo.spectral.welch import PSDResult, SpectrogramResult
 from piezo.tone.analysis import ToneResult
 
@@ -318,9 +319,7 @@ def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
         "enbw_hz": psd.enbw_hz,
         "averages": psd.averages,
         "degrees_of_freedom": psd.degrees_of_freedom,
-        "ci_lower_db": finite(psd.ci_lower_db),
-        "ci_upper_db": finite(psd.ci_upper_db),
-        "confidence_level": psd.confidence_level,
+        "confidence": confidence_document(psd),
         "reference_text": format_quantity(reference, unit),
         "frequency_hz": _series(psd.frequency_hz, 4),
         "level_db": _columns(_db(psd.psd, reference)),

@@ -29,7 +29,7 @@ from piezo.response.fit import (
     fit_response,
 )
 from piezo.response.measure import H1Estimator, SweepResponse, TransferEstimate, analyze_sweep
-from piezo.response.stimulus import SweepSpec
+from piezo.response.stimulus import NoiseSpec, SweepSpec
 from piezo.results import to_jsonable
 
 __all__ = [
@@ -42,6 +42,7 @@ __all__ = [
     "fit_document",
     "golden_document",
     "h1_response_of",
+    "stimulus_document",
     "sweep_response_of",
     "table_document",
     "table_subset",
@@ -99,6 +100,26 @@ def fit_document(fit: ResponseFit | None) -> dict[str, Any]:
         "band_3db_hz": [fit.band_3db.low_hz, fit.band_3db.high_hz],
         "band_3db_limited": [fit.band_3db.low_limited, fit.band_3db.high_limited],
         "fit_residual_rms_db": fit.residual_rms_db,
+    }
+
+
+def stimulus_document(spec: SweepSpec | NoiseSpec) -> dict[str, Any]:
+    """A stimulus's parameters as the JSON documents name them (docs/glossary.md).
+
+    The sidecar's ``level_dbfs`` is a sweep's peak and a noise's RMS level; the document
+    says which, as ``peak_dbfs`` or ``rms_dbfs`` (the names ``info`` uses).
+
+    Examples
+    --------
+    >>> from piezo.response.stimulus import sweep_spec
+    >>> doc = stimulus_document(sweep_spec(20.0, 20000.0, 1.0, 48000.0, level_dbfs=-6.0))
+    >>> doc["peak_dbfs"], "level_dbfs" in doc
+    (-6.0, False)
+    """
+    level_key = "peak_dbfs" if isinstance(spec, SweepSpec) else "rms_dbfs"
+    return {
+        level_key if name == "level_dbfs" else name: getattr(spec, name)
+        for name in spec.__dataclass_fields__
     }
 
 
@@ -230,7 +251,7 @@ class SweepAnalysis:
             "file": self.file,
             "channel": self.channel,
             "stimulus": self.stimulus,
-            "sweep": {k: getattr(spec, k) for k in spec.__dataclass_fields__},
+            "sweep": stimulus_document(spec),
             "acoustic_level_pa": self.acoustic_level_pa,
             "latency_frames": r.latency_frames,
             "latency_s": r.latency_s,

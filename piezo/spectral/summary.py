@@ -24,7 +24,30 @@ from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
 from piezo.spectral.peaks import PeakRule, SpectralPeak, distinct_peaks, scatter_dof
 from piezo.spectral.welch import PSDResult, Spectrogram, WelchPSD
 
-__all__ = ["Bands", "Spectrum", "bands_of", "psd_level_unit", "spectrum_of"]
+__all__ = [
+    "Bands",
+    "Spectrum",
+    "bands_of",
+    "confidence_document",
+    "psd_level_unit",
+    "spectrum_of",
+]
+
+
+def confidence_document(psd: PSDResult) -> dict[str, float] | None:
+    """The PSD's confidence interval as ``spectrum`` and the report give it.
+
+    ``coverage_probability`` (as in an uncertainty budget) and the bounds as offsets in
+    dB to add to a PSD level; ``None`` for the median average, whose interval has no
+    simple form.
+    """
+    if psd.ci_lower_db is None or psd.ci_upper_db is None:
+        return None
+    return {
+        "coverage_probability": psd.confidence_level,
+        "lower_db": psd.ci_lower_db,
+        "upper_db": psd.ci_upper_db,
+    }
 
 
 def psd_level_unit(level_unit: str, scaling: str) -> str:
@@ -117,14 +140,7 @@ class Spectrum:
             "averages": r.averages,
             "effective_averages": r.effective_averages,
             "response_curve_notes": list(self.response_curve_notes),
-            # No interval for the median average (its distribution has no simple form).
-            "confidence": None
-            if r.ci_lower_db is None
-            else {
-                "level": r.confidence_level,
-                "lower_db": r.ci_lower_db,
-                "upper_db": r.ci_upper_db,
-            },
+            "confidence": confidence_document(r),
             # Distinct peaks: at least one main lobe apart, standing the margin above
             # the local floor, separated by valleys deeper than the scatter.
             "peak_separation_hz": rule.separation_bins * r.resolution_hz,

@@ -278,7 +278,7 @@ class Calibration:
     >>> t = np.arange(48000 * 3) / 48000
     >>> sf.write(path, 0.05 * np.sin(2 * np.pi * 1000 * t), 48000, subtype="FLOAT")
     >>> cal = calibration_of(piezo.open(path, gain="20 dB"), level_db=114.0)
-    >>> cal.to_dict()["gain"], round(cal.to_dict()["calibrator_pressure_pa"], 3)  # 114 dB
+    >>> cal.to_dict()["chain"]["gain"], round(cal.to_dict()["calibrator_pressure_pa"], 3)
     (10.0, 10.024)
     """
 
@@ -306,12 +306,15 @@ class Calibration:
             "calibrator_pressure_pa": calibrator_pressure_pa(
                 self.calibrator_level_db, self.reference_pa
             ),
-            "reference_pa": self.reference_pa,
             "level_spread_db": r.level_spread_db,
             "frequency_spread_percent": 100 * r.frequency_spread,
             "stable": r.stable,
-            "gain": self.gain,
-            "full_scale_v": self.full_scale_v,
+            # The chain under the same key and names as in ``info`` and ``check``.
+            "chain": {
+                "full_scale_v": self.full_scale_v,
+                "gain": self.gain,
+                "reference_pa": self.reference_pa,
+            },
             "uncertainty": {
                 "expanded_uncertainty_db": self.budget.expanded_uncertainty,
                 "coverage_factor": self.budget.coverage_factor,

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import csv
 import functools
-import io
 import json
 import os
 import re
@@ -50,7 +49,11 @@ def rows(tmp_path_factory):
 
 
 def test_csv_has_one_row_per_capture_and_metric_columns(rows):
-    table = list(csv.DictReader(io.StringIO(results_csv_text(rows, SPEC))))
+    lines = results_csv_text(rows, SPEC).splitlines()
+    # Each metric column's unit in a comment line above the header (docs/glossary.md).
+    assert lines[0] == "# piezo batch results"
+    assert lines[1 : 1 + len(SPEC.metrics)] == [f"# {m.name}: {m.unit}" for m in SPEC.metrics]
+    table = list(csv.DictReader(ln for ln in lines if not ln.startswith("#")))
     assert [r["file"] for r in table] == [r["file"] for r in rows]
     assert list(table[0]) == [
         "file", "serial", "verdict", "sensitivity", "clipping", "noise_floor",
@@ -66,6 +69,16 @@ def test_csv_has_one_row_per_capture_and_metric_columns(rows):
     )  # 6 significant digits in the CSV
     bad = next(r for r in table if r["verdict"] == "not evaluable")
     assert bad["sensitivity"] == "" and bad["error"].startswith("unreadable capture")
+
+
+def test_csv_result_lines_never_read_as_comments(rows):
+    # A capture named "#1.wav" (relative path) must not start a line with "#", which
+    # readers of piezo's tables skip as a comment.
+    renamed = [{**rows[0], "file": "#1.wav"}, *rows[1:]]
+    lines = results_csv_text(renamed, SPEC).splitlines()
+    comments = [ln for ln in lines if ln.startswith("#")]
+    assert len(comments) == 1 + len(SPEC.metrics)
+    assert any(ln.startswith("'#1.wav,") for ln in lines)
 
 
 def test_json_document(rows):

@@ -96,6 +96,8 @@ def test_run_writes_results_and_exits_1_on_failures(cli, fake_lot, with_fakes):
     assert r.code == 1, r.err
     assert "yield 75.0 % of 8 captures" in r.out
     assert "0100  " in r.out and "0102  " in r.out  # serials of the failing units
+    # Verdicts in capitals on the terminal, as check's severities and the HTML badges.
+    assert "FAIL" in r.out and "PASS" in r.out and " fail " not in r.out
     assert sorted(p.name for p in out.iterdir()) == sorted([*RESULT_FILES, "reports"])
     assert len(list((out / "reports").iterdir())) == 8
     html = (out / "summary.html").read_text(encoding="utf-8")

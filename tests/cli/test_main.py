@@ -211,6 +211,9 @@ def test_calibrate_json_contract(cli, tmp_path):
     assert doc["sensitivity_mv_per_pa"] == pytest.approx(8.5, rel=1e-4)
     assert doc["sensitivity_dbv_per_pa"] == pytest.approx(20 * np.log10(0.0085), abs=1e-3)
     assert doc["tone_hz"] == pytest.approx(1000.0, rel=1e-5)
+    # The chain is under "chain", named as in info and check (docs/glossary.md).
+    assert doc["chain"] == {"full_scale_v": 2.0, "gain": pytest.approx(10.0), "reference_pa": 2e-5}
+    assert not {"gain", "full_scale_v", "reference_pa"} & set(doc)
 
 
 def test_calibrate_states_its_uncertainty_budget(cli, tmp_path):

@@ -52,8 +52,12 @@ def test_spectrum_json_contract(cli, tone_wav, tmp_path):
     # Parseval over the PSD gives the tone's mean square (1 Pa² + 1e-4) within 0.5 %.
     assert ch0["mean_square"] == pytest.approx(1.0001, rel=0.005)
     assert doc["channels"][1]["mean_square"] == pytest.approx(0.25 * 1.0001, rel=0.005)
-    rows = list(csv.reader(out_csv.read_text().splitlines()))
-    assert rows[0][:3] == ["frequency_hz", "ch0_Pa^2/Hz", "ch0_dB"]
+    lines = out_csv.read_text().splitlines()
+    # The units of the columns are named above the header (docs/glossary.md).
+    assert lines[:3] == ["# piezo spectrum table", "# ch0_psd: Pa^2/Hz",
+                         "# ch0_psd_db: dB re (20 µPa)²/Hz"]  # fmt: skip
+    rows = list(csv.reader(ln for ln in lines if not ln.startswith("#")))
+    assert rows[0][:3] == ["frequency_hz", "ch0_psd", "ch0_psd_db"]
     assert len(rows) == len(ch0["psd"]) + 1
     assert out_png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
@@ -113,8 +117,11 @@ def test_bands_json_contract(cli, tone_wav, tmp_path):
     assert k["level_db"] == pytest.approx(ONE_PA_DB, abs=0.05)
     two_k = next(b for b in bands if b["nominal_hz"] == 2000)
     assert two_k["level_db"] == pytest.approx(ONE_PA_DB - 40, abs=0.05)  # 1 % harmonic
-    rows = list(csv.reader(out_csv.read_text().splitlines()))
-    assert rows[0] == ["nominal_hz", "exact_hz", "ch0_dB", "ch1_dB"]
+    lines = out_csv.read_text().splitlines()
+    assert lines[:3] == ["# piezo band table", "# ch0_level_db: dB re 20 µPa",
+                         "# ch1_level_db: dB re 20 µPa"]  # fmt: skip
+    rows = list(csv.reader(ln for ln in lines if not ln.startswith("#")))
+    assert rows[0] == ["nominal_hz", "exact_hz", "ch0_level_db", "ch1_level_db"]
     assert len(rows) == 32
 
 

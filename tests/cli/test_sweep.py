@@ -54,6 +54,14 @@ def test_make_writes_wav_and_sidecar(cli, tmp_path):
     np.testing.assert_allclose(data, sweep_signal(spec), atol=2.0**-23)
 
 
+def test_make_json_names_the_peak_level(cli, tmp_path):
+    # The sweep's --level is its peak (the sidecar keeps level_dbfs, the JSON says peak).
+    r = cli("sweep", "make", "--from", "20Hz", "--to", "2kHz", "--duration", "0.2s",
+            "--rate", "48k", "--level", "-9", "--out", tmp_path / "s.wav", "--json")  # fmt: skip
+    assert r.code == 0, r.err
+    assert r.json()["peak_dbfs"] == -9.0 and "level_dbfs" not in r.json()
+
+
 def test_cli_defaults_equal_library_defaults(cli, tmp_path):
     # No --level: the CLI's −6 dBFS is the library's default.
     _make(cli, tmp_path)
@@ -179,6 +187,8 @@ def test_noise_command(cli, tmp_path):
     r = cli("sweep", "noise", "--kind", "pink", "--duration", "2s", "--rate", "48k",
             "--level", "-20", "--seed", "4", "--out", out, "--json")  # fmt: skip
     assert r.code == 0, r.err
+    # The noise's --level is an RMS level: the document says so (docs/glossary.md).
+    assert r.json()["rms_dbfs"] == -20.0 and "level_dbfs" not in r.json()
     data, fs = sf.read(str(out))
     assert fs == FS and data.size == 2 * FS
     # −20 dBFS RMS (AES17) = 0.1/√2, to PCM_24 rounding.
