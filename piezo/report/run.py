@@ -146,7 +146,7 @@ def frontend_response(path: Path, *, top_hz: float) -> FrontendResponse:
     >>> fr = frontend_response(design, top_hz=24000.0)
     >>> fr.name, fr.amplifier
     ('PD-27 disc on the bench charge amplifier', 'charge')
-    >>> round(fr.frequency_hz[0] / fr.summary.corner_hz, 6), float(fr.frequency_hz[-1])
+    >>> round(float(fr.frequency_hz[0]) / fr.summary.corner_hz, 6), float(fr.frequency_hz[-1])
     (0.05, 24000.0)
     >>> round(float(fr.level_db[0]), 1), round(float(fr.phase_deg[0]), 1)
     (-26.0, 87.1)
