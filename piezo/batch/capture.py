@@ -68,6 +68,17 @@ def load_capture(path: str, spec: Spec) -> Capture:
     ------
     PiezoError
         An unreadable or empty capture, or a spec channel the capture does not have.
+
+    Examples
+    --------
+    A unit of the bundled demo lot, read with its spec's chain (20 dB gain, 1 V full
+    scale), so the clip level is 1 V / 10 at the sensor:
+
+    >>> from piezo.batch.spec import load_spec
+    >>> spec = load_spec("recordings/pd27-spec.toml")
+    >>> cap = load_capture("recordings/pd27-lot/PD27-24101.flac", spec)
+    >>> cap.sample_rate_hz, cap.samples.shape, round(cap.clip_level_v, 6)
+    (16000.0, (16000,), 0.1)
     """
     if spec.stimulus.kind == "impedance":
         return Capture(path, math.nan, np.zeros(0), math.nan, sweep=read_impedance_csv(path))

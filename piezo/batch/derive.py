@@ -48,6 +48,18 @@ def sigma_interval(n: int, confidence: float = 0.95) -> tuple[float, float] | No
 
     Returns the factors (low, high) such that low·s <= σ <= high·s with the given
     confidence, or None for n < 2.
+
+    Examples
+    --------
+    For n = 10 (9 degrees of freedom) the chi-square table gives 2.700 and 19.023 at the
+    2.5 % and 97.5 % points (NIST/SEMATECH e-Handbook, 1.3.6.7.4), so σ/s lies between
+    √(9/19.023) and √(9/2.700):
+
+    >>> low, high = sigma_interval(10)
+    >>> round(low, 3), round(high, 3)
+    (0.688, 1.826)
+    >>> sigma_interval(1) is None
+    True
     """
     if n < 2:
         return None
@@ -60,7 +72,14 @@ def sigma_interval(n: int, confidence: float = 0.95) -> tuple[float, float] | No
 
 @dataclass(frozen=True)
 class DerivedMetric:
-    """What was derived for one metric (scalar or mask)."""
+    """What was derived for one metric (scalar or mask).
+
+    Examples
+    --------
+    >>> d = DerivedMetric("thd", 5, mean=0.12, std=0.02, lower=None, upper=0.18)
+    >>> d.copied, d.warn_upper
+    (False, None)
+    """
 
     name: str
     n: int
@@ -115,6 +134,39 @@ def derive_limits(
     (derived, notes)
         One :class:`DerivedMetric` per metric of ``spec`` and messages for the user
         (golden captures left out, small n).
+
+    Examples
+    --------
+    Five golden units at -42 ± 0.2/0.4 dB: the sample σ is √(0.4 / 4) = 0.316 dB. The
+    sensitivity has no base limits, so both sides are derived; THD has an upper limit only
+    (and, every unit at 0.1 %, zero spread, which a note points out):
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [stimulus]
+    ... kind = "tone"
+    ... frequency_hz = 1000
+    ... level_db = 94
+    ... [metrics.sensitivity]
+    ... [metrics.thd]
+    ... frequency_hz = 1000
+    ... upper = 1.0
+    ... ''')
+    >>> levels = [-42.2, -41.8, -42.0, -41.6, -42.4]
+    >>> rows = [
+    ...     {"file": f"u{i}.wav", "metrics": {"sensitivity": s, "thd": 0.1}}
+    ...     for i, s in enumerate(levels)
+    ... ]
+    >>> rows.append({"file": "u5.wav", "error": "cannot read"})
+    >>> (sens, thd), notes = derive_limits(rows, spec, k=3.0)
+    >>> sens.n, sens.mean, round(sens.std, 3), round(sens.lower, 2), round(sens.upper, 2)
+    (5, -42.0, 0.316, -42.95, -41.05)
+    >>> thd.lower, round(thd.upper, 6)
+    (None, 0.1)
+    >>> notes[0]
+    'u5.wav: left out (cannot read)'
+    >>> notes[1].startswith("metric 'thd': zero spread")
+    True
     """
     if not (math.isfinite(k) and k > 0):
         raise InputError(f"--k: must be a positive number, got {k!r}")
@@ -262,7 +314,33 @@ def derived_spec_text(
     base_source: str,
     out_path: str | Path,
 ) -> str:
-    """The new spec file: the base spec with derived limits, n/mean/σ in comments."""
+    """The new spec file: the base spec with derived limits, n/mean/σ in comments.
+
+    Examples
+    --------
+    The derived text is a spec again:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [stimulus]
+    ... kind = "tone"
+    ... frequency_hz = 1000
+    ... [metrics.thd]
+    ... frequency_hz = 1000
+    ... upper = 1.0
+    ... ''')
+    >>> rows = [{"file": "a.wav", "metrics": {"thd": 0.10}},
+    ...         {"file": "b.wav", "metrics": {"thd": 0.14}}]
+    >>> derived, notes = derive_limits(rows, spec, k=3.0)
+    >>> text = derived_spec_text(
+    ...     spec, derived, notes, k=3.0, warn_k=None,
+    ...     golden_source="golden/", base_source="base.toml", out_path="derived.toml",
+    ... )
+    >>> print(text.splitlines()[1])
+    # base spec: base.toml; fail limits at mean ± 3·σ.
+    >>> parse_spec(text).metrics[0].limits[0].upper
+    0.205
+    """
     out_dir = Path(out_path).resolve().parent
     comments, inner = _base_comments(spec.text)
     raw = _raw_tables(spec)

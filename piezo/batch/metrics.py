@@ -50,7 +50,20 @@ def _db(ratio: float) -> float:
 
 
 def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
-    """The :class:`piezo.response.stimulus.SweepSpec` of the spec's sweep at the capture's rate."""
+    """The :class:`piezo.response.stimulus.SweepSpec` of the spec's sweep at the capture's rate.
+
+    Examples
+    --------
+    The spec's sweep at the capture's rate; the fades the spec leaves out get defaults:
+
+    >>> from piezo.batch.spec import load_spec
+    >>> spec = load_spec("recordings/pd27-spec.toml")
+    >>> stim = sweep_stimulus(spec.stimulus.params, 16000.0)
+    >>> stim.start_hz, stim.stop_hz, stim.duration_s, stim.sample_rate_hz
+    (20.0, 7000.0, 0.6, 16000.0)
+    >>> stim.silence_before_s, stim.silence_after_s
+    (0.2, 0.2)
+    """
     if params.get("file_data") is not None:
         stim = stimulus_from_toml(params["file_data"], source=params.get("file"))
         if not isinstance(stim, SweepSpec):
@@ -544,7 +557,24 @@ EXTRACTORS: dict[str, Callable[[CaptureAnalysis, MetricSpec], MetricValue]] = {
 
 def report_data(a: CaptureAnalysis) -> dict[str, Any]:
     """Curves for a capture's report, from the analyses already run (nothing is
-    computed again): the swept response on a 1/12-octave grid when there is one."""
+    computed again): the swept response on a 1/12-octave grid when there is one.
+
+    Examples
+    --------
+    Nothing before an extractor ran the swept response; its curve afterwards:
+
+    >>> from piezo.batch.capture import CaptureAnalysis, load_capture
+    >>> from piezo.batch.spec import load_spec
+    >>> spec = load_spec("recordings/pd27-spec.toml")
+    >>> cap = load_capture("recordings/pd27-lot/PD27-24101.flac", spec)
+    >>> a = CaptureAnalysis(cap, spec)
+    >>> report_data(a)
+    {}
+    >>> corner = EXTRACTORS["corner"](a, spec.metrics[1])
+    >>> curve = report_data(a)["response"]
+    >>> curve["unit"], 1000.0 in curve["frequency_hz"]
+    ('dB re 1 V/Pa', True)
+    """
     out: dict[str, Any] = {}
     found, response = a.peek("sweep_response")
     if found:

@@ -78,6 +78,16 @@ class Journal:
     link) planted at its name in the output folder is refused with
     :class:`~piezo.errors.OutputError`, and what it points to is left untouched. A new
     journal (``keep=False``) replaces the name, never truncating a file in place.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as out:
+    ...     journal = Journal(out, keep=False)
+    ...     journal.add({"file": "PD27-24101.flac", "verdict": "pass"})
+    ...     journal.close(remove=False)
+    ...     read_previous_rows(out)
+    [{'file': 'PD27-24101.flac', 'verdict': 'pass'}]
     """
 
     def __init__(self, out_dir: str | Path, *, keep: bool) -> None:
@@ -260,6 +270,17 @@ def read_previous_rows(out_dir: str | Path) -> list[dict[str, Any]]:
 
     A journal line cut off by the interruption is ignored. Missing files give no rows;
     either file being a symbolic link is refused (:class:`OutputError`).
+
+    Examples
+    --------
+    An interrupted run: one complete journal line and one cut off mid-write:
+
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> with tempfile.TemporaryDirectory() as out:
+    ...     _ = (Path(out) / JOURNAL_NAME).write_text('{"file": "a.wav"}\\n{"file": "b.w')
+    ...     read_previous_rows(out)
+    [{'file': 'a.wav'}]
     """
     rows: list[dict[str, Any]] = []
     text = _read_no_follow(Path(out_dir) / "results.json")
@@ -292,6 +313,39 @@ def summarize(rows: Sequence[Mapping[str, Any]], spec: Spec) -> dict[str, Any]:
     :func:`~piezo.batch.stats.far_outliers`; special causes such as a clipped capture,
     counted in ``outliers``), against the metric's innermost "fail" limits (its "warn"
     limits when it has no other).
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> s = summarize(rows, spec)
+    >>> s["captures"], s["counts"], round(s["yield"], 3)
+    (3, {'pass': 1, 'warn': 0, 'fail': 1, 'not evaluable': 1}, 0.333)
+    >>> m = s["metrics"][0]
+    >>> m["name"], m["n"], m["lower"], m["upper"]
+    ('resonance', 2, 3900.0, 4700.0)
     """
     counts = verdict_counts(r["verdict"] for r in rows)
     metrics: list[dict[str, Any]] = []
@@ -352,6 +406,38 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     message columns join several messages with " | ". Written by
     :func:`piezo.io.tables.csv_text`: a text cell a spreadsheet would evaluate (a file
     name or serial starting with ``=``, ``+``, ``-``, ``@``) gets a leading apostrophe.
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> lines = results_csv_text(rows, spec).splitlines()
+    >>> lines[0]
+    'file,serial,verdict,resonance,failed_limits,warnings,not_evaluable,error,content_sha256,spec_sha256'
+    >>> lines[1].split(",")[:4]
+    ['PD27-24101.flac', '24101', 'pass', '4289.13']
     """
     names = [m.name for m in spec.metrics]
     header = [
@@ -386,7 +472,41 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
 
 
 def results_json_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
-    """The whole run as one JSON document (sorted keys, no timestamps)."""
+    """The whole run as one JSON document (sorted keys, no timestamps).
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> import json
+    >>> doc = json.loads(results_json_text(rows, spec))
+    >>> doc["spec"]["name"], [r["verdict"] for r in doc["results"]]
+    ('PD27 resonance', ['pass', 'fail', 'not evaluable'])
+    >>> results_json_text(rows, spec) == results_json_text(rows, spec)  # no timestamps
+    True
+    """
     doc = {
         "piezo_version": __version__,
         "spec": {"name": spec.name, "sha256": spec.sha256},
@@ -416,6 +536,41 @@ def junit_xml_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
 
     A failing capture carries a ``failure`` (message: its failed limits), a capture that
     is not evaluable an ``error``; warnings go to the test case's ``system-out``.
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> import xml.etree.ElementTree as ET
+    >>> suite = ET.fromstring(junit_xml_text(rows, spec)).find("testsuite")
+    >>> suite.get("tests"), suite.get("failures"), suite.get("errors")
+    ('3', '1', '1')
+    >>> [case.get("name") for case in suite.iter("testcase")][0]
+    '24101 (PD27-24101.flac)'
+    >>> suite.find("testcase/failure").get("message")
+    'resonance = 5215.59 Hz above upper limit 4700 (Q 1.1, peak +3.21 dB) [fail]'
     """
     counts = verdict_counts(r["verdict"] for r in rows)
     suites = ET.Element(
@@ -480,6 +635,36 @@ def summary_html_text(
     """The lot summary page: yield, counts, histograms with limits, Cp/Cpk, failing units.
 
     ``reports`` maps a row's file to the relative link of its capture report.
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> page = summary_html_text(rows, spec)
+    >>> page.startswith("<!DOCTYPE html>"), "<title>Batch summary: PD27 resonance</title>" in page
+    (True, True)
     """
     summary = summarize(rows, spec)
     for metric, m in zip(summary["metrics"], spec.metrics, strict=True):
@@ -531,7 +716,38 @@ def capture_report_html(
 ) -> str:
     """Report of one capture: verdict, every metric with its value, limits and margin,
     and, when ``data`` carries the swept response, a plot of it with the spec's golden
-    response and masks."""
+    response and masks.
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> page = capture_report_html(rows[1], spec)
+    >>> "<title>Capture report: PD27-24107.flac</title>" in page
+    True
+    """
     lines = []
     for m in spec.metrics:
         value = row["metrics"].get(m.name)
@@ -587,6 +803,37 @@ def write_outputs(
 
     All texts are built first, then each file replaced atomically; results.json (the file
     ``--resume`` reads) comes last.
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as out:
+    ...     [path.name for path in write_outputs(out, rows, spec)]
+    ['results.csv', 'junit.xml', 'summary.html', 'results.json']
     """
     out = Path(out_dir)
     texts = {
@@ -615,6 +862,39 @@ def write_capture_report(
     ``name`` defaults to the capture's own name from :func:`report_page_names` (give
     the run's names to keep colliding captures apart). A ``reports`` folder that is a
     symbolic link is refused (:class:`OutputError`).
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> with tempfile.TemporaryDirectory() as out:
+    ...     link = write_capture_report(out, rows[1], spec)
+    ...     link, (Path(out) / link).is_file()
+    ('reports/PD27-24107.flac.html', True)
     """
     folder = output_folder(Path(out_dir) / "reports", within=out_dir)
     name = report_page_names([row["file"]])[row["file"]] if name is None else name
@@ -637,7 +917,40 @@ def report_link(name: str) -> str:
 def write_capture_reports(
     out_dir: str | Path, rows: Iterable[Mapping[str, Any]], spec: Spec
 ) -> dict[str, str]:
-    """Write one report (without curves) per capture; return file -> link."""
+    """Write one report (without curves) per capture; return file -> link.
+
+    Examples
+    --------
+    Three units of the bundled demo lot, judged on their resonance alone: one passes, one
+    resonates too high, one file is truncated:
+
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "PD27 resonance"
+    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
+    ... [stimulus]
+    ... kind = "sweep"
+    ... start_hz = 20.0
+    ... stop_hz = 7000.0
+    ... duration_s = 0.6
+    ... silence_before_s = 0.2
+    ... silence_after_s = 0.2
+    ... [metrics.resonance]
+    ... lower = 3900.0
+    ... upper = 4700.0
+    ... ''')
+    >>> from piezo.batch.runner import evaluate_capture
+    >>> rows = [
+    ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
+    ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
+    ... ]
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as out:
+    ...     links = write_capture_reports(out, rows, spec)
+    >>> links["PD27-24136.flac"]
+    'reports/PD27-24136.flac.html'
+    """
     rows = list(rows)
     names = report_page_names([row["file"] for row in rows])
     return {

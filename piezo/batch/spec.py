@@ -80,7 +80,16 @@ STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
 
 @dataclass(frozen=True)
 class MetricKind:
-    """What a metric measures, its unit, its parameters and the stimuli it needs."""
+    """What a metric measures, its unit, its parameters and the stimuli it needs.
+
+    Examples
+    --------
+    >>> kind = METRIC_KINDS["corner"]
+    >>> kind.unit, kind.stimuli, kind.description
+    ('Hz', ('sweep',), '-3 dB low corner')
+    >>> sorted(METRIC_KINDS["thd"].params)
+    ['frequency_hz']
+    """
 
     name: str
     unit: str
@@ -265,6 +274,13 @@ class Limit:
     ``lower`` or ``upper`` may be None (one-sided limit), never both. ``decision`` is the
     rule of :data:`DECISION_RULES`: with ``"guarded"`` a value is accepted only when its
     expanded uncertainty interval lies inside the limits.
+
+    Examples
+    --------
+    >>> Limit(lower=None, upper=1.0).to_json()
+    {'lower': None, 'upper': 1.0, 'severity': 'fail'}
+    >>> Limit(3900.0, 4700.0, severity="warn", decision="guarded").to_json()
+    {'lower': 3900.0, 'upper': 4700.0, 'severity': 'warn', 'decision': 'guarded'}
     """
 
     lower: float | None
@@ -286,6 +302,21 @@ class MetricSpec:
 
     For masks (``response_mask``, ``band_mask``) the value is the worst margin in dB
     (negative = outside the mask) and the limit is ``lower = 0``.
+
+    Examples
+    --------
+    A sensitivity metric with a fail band and a narrower warning band:
+
+    >>> m = MetricSpec(
+    ...     "sensitivity",
+    ...     "sensitivity",
+    ...     {"reference_hz": 1000.0},
+    ...     (Limit(-45.0, -39.0), Limit(-44.0, -40.0, severity="warn")),
+    ... )
+    >>> m.unit
+    'dB re 1 V/Pa'
+    >>> m.fail_limits(), m.spec_limits()
+    ((-45.0, -39.0), (-45.0, -39.0))
     """
 
     name: str
@@ -330,7 +361,18 @@ class MetricSpec:
 
 @dataclass(frozen=True)
 class Stimulus:
-    """The stimulus each capture was recorded with."""
+    """The stimulus each capture was recorded with.
+
+    Examples
+    --------
+    94 dB re 20 µPa is the usual sound calibrator level, about 1 Pa RMS:
+
+    >>> s = Stimulus("tone", {"frequency_hz": 1000.0, "level_db": 94.0})
+    >>> round(s.level_pa, 4)
+    1.0024
+    >>> Stimulus("noise", {}).level_pa is None
+    True
+    """
 
     kind: str
     params: dict[str, Any]
@@ -347,7 +389,28 @@ class Stimulus:
 
 @dataclass(frozen=True)
 class Spec:
-    """A validated limit specification."""
+    """A validated limit specification.
+
+    Examples
+    --------
+    >>> spec = parse_spec('''
+    ... [spec]
+    ... name = "demo"
+    ... serial_pattern = 'SN(?P<serial>[0-9]+)'
+    ... [stimulus]
+    ... kind = "tone"
+    ... frequency_hz = 1000
+    ... [metrics.thd]
+    ... frequency_hz = 1000
+    ... upper = 1.0
+    ... ''')
+    >>> spec.serial_from_name("lot-7/SN00123_rerun.wav")
+    '00123'
+    >>> spec.serial_from_name("unlabelled.wav") is None
+    True
+    >>> len(spec.sha256)
+    64
+    """
 
     name: str
     stimulus: Stimulus
@@ -586,6 +649,16 @@ def load_spec(path: str | Path, *, for_derive: bool = False) -> Spec:
     SpecError
         Unreadable file, TOML syntax error or invalid content; the message names the
         line and the key at fault.
+
+    Examples
+    --------
+    The bundled demo spec (doctests run from the repository root):
+
+    >>> spec = load_spec("recordings/pd27-spec.toml")
+    >>> spec.stimulus.kind, round(spec.gain, 3)
+    ('sweep', 10.0)
+    >>> [m.name for m in spec.metrics][:4]
+    ['sensitivity', 'corner', 'resonance', 'thd_1k']
     """
     p = Path(path)
     text = read_text(p, what="limit spec", error=SpecError)
@@ -612,6 +685,30 @@ def parse_spec(
     for_derive
         Accept masks without lower_db/upper_db (a base spec for ``piezo limits derive``
         needs only the mask frequencies).
+
+    Examples
+    --------
+    >>> text = '''
+    ... [stimulus]
+    ... kind = "tone"
+    ... frequency_hz = 1000
+    ... level_db = 94
+    ... [metrics.sensitivity]
+    ... nominal = -42.0
+    ... lower_rel = -3.0
+    ... upper_rel = 3.0
+    ... '''
+    >>> spec = parse_spec(text)
+    >>> spec.metrics[0].limits
+    (Limit(lower=-45.0, upper=-39.0, severity='fail', decision='simple'),)
+
+    Errors name the file, the line and the key:
+
+    >>> try:
+    ...     parse_spec(text.replace("-42.0", '"loud"'), source="unit.toml")
+    ... except SpecError as exc:
+    ...     print(exc)
+    unit.toml: line 7: metrics.sensitivity.nominal: expected a number, got str 'loud'
     """
     data = parse_toml(text, source=source, error=SpecError)
     check = _Checker(text, source)

@@ -33,7 +33,13 @@ __all__ = [
 
 
 def verdict_counts(verdicts: Iterable[str]) -> dict[str, int]:
-    """Number of captures per verdict, every verdict present (zero when unseen)."""
+    """Number of captures per verdict, every verdict present (zero when unseen).
+
+    Examples
+    --------
+    >>> verdict_counts(["pass", "pass", "fail"])
+    {'pass': 2, 'warn': 0, 'fail': 1, 'not evaluable': 0}
+    """
     counts = dict.fromkeys(VERDICTS, 0)
     for v in verdicts:
         if v not in counts:
@@ -46,6 +52,16 @@ def yield_fraction(counts: Mapping[str, int]) -> float | None:
     """First-pass yield: (pass + warn) / all captures, not evaluable counted as not good.
 
     None for an empty lot.
+
+    Examples
+    --------
+    Three good units (two pass, one warn) of five:
+
+    >>> counts = verdict_counts(["pass", "pass", "warn", "fail", "not evaluable"])
+    >>> yield_fraction(counts)
+    0.6
+    >>> yield_fraction(verdict_counts([])) is None
+    True
     """
     total = sum(counts.values())
     if total == 0:
@@ -59,6 +75,17 @@ class Capability:
 
     Indices are None when they are undefined: fewer than two values, zero spread, or the
     limit they need is absent (Cp needs both limits).
+
+    Examples
+    --------
+    Mean 10, σ = 1 (ddof = 1); with a lower limit only, Cpl = (10 - 7) / 3 and Cp is
+    undefined:
+
+    >>> c = capability([9.0, 10.0, 11.0], lsl=7.0)
+    >>> c.n, c.mean, c.std, c.cpl, c.cp
+    (3, 10.0, 1.0, 1.0, None)
+    >>> c.cpk == c.cpl
+    True
     """
 
     n: int
@@ -107,7 +134,15 @@ def capability(
 def far_outliers(values: Sequence[float] | np.ndarray) -> np.ndarray:
     """Mask of the far outliers of ``values``: beyond the quartiles ∓ 3 IQR (Tukey's
     "far out" fences; common practice). With zero IQR every value other than the
-    quartile value is far out."""
+    quartile value is far out.
+
+    Examples
+    --------
+    Quartiles 11 and 13, IQR 2: the fences are 5 and 19, so only 50 is far out:
+
+    >>> far_outliers([10.0, 11.0, 12.0, 13.0, 50.0]).tolist()
+    [False, False, False, False, True]
+    """
     x = np.asarray(values, dtype=float)
     if x.size == 0:
         return np.zeros(0, dtype=bool)
@@ -124,6 +159,14 @@ class Histogram:
 
     ``below`` and ``above`` count the values outside the binned range (far outliers,
     typically failed units), which are not in ``counts``.
+
+    Examples
+    --------
+    >>> h = Histogram(edges=[0.0, 1.0, 2.0], counts=[3, 1], lower=0.0, upper=2.0, above=1)
+    >>> len(h.edges) == len(h.counts) + 1
+    True
+    >>> sum(h.counts) + h.below + h.above
+    5
     """
 
     edges: list[float]
@@ -147,6 +190,17 @@ def histogram(
     practice for "far out" values), so one wild unit does not squeeze the rest into a
     single bar; values beyond are counted in ``below``/``above``. Bin width: the
     Freedman-Diaconis rule, 2 IQR / n^(1/3), with 10 to ``max_bins`` bins.
+
+    Examples
+    --------
+    The wild unit at 25.0 lies beyond the far fence; it is counted in ``above`` and the
+    bins span the limits 9 .. 11 only:
+
+    >>> h = histogram([9.9, 10.05, 10.15, 10.3, 25.0], lower=9.0, upper=11.0)
+    >>> h.edges[0], h.edges[-1], len(h.counts)
+    (9.0, 11.0, 10)
+    >>> sum(h.counts), h.below, h.above
+    (4, 0, 1)
     """
     x = np.asarray(values, dtype=float)
     x = x[np.isfinite(x)]

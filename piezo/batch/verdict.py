@@ -66,6 +66,16 @@ class MetricValue:
     uncertainty
         Standard uncertainty of ``value`` in the same unit, where the analysis gives one
         (a fit's covariance, the spread of repeated events); None otherwise.
+
+    Examples
+    --------
+    >>> MetricValue(72.5).evaluable
+    True
+    >>> mv = MetricValue(None, reason="no corner inside the sweep range")
+    >>> mv.evaluable, mv.reason
+    (False, 'no corner inside the sweep range')
+    >>> MetricValue(float("nan")).evaluable
+    False
     """
 
     value: float | None
@@ -85,6 +95,18 @@ class Verdict:
 
     ``failed``, ``warnings`` and ``not_evaluable`` are messages naming the metric, the
     value and the limit, in spec order.
+
+    Examples
+    --------
+    >>> from piezo.batch.spec import Limit, MetricSpec
+    >>> corner = MetricSpec("corner", "corner", {}, (Limit(None, 80.0),))
+    >>> v = judge([corner], {"corner": MetricValue(91.0)})
+    >>> v.verdict
+    'fail'
+    >>> v.failed
+    ('corner = 91 Hz above upper limit 80 [fail]',)
+    >>> v.warnings, v.not_evaluable
+    ((), ())
     """
 
     verdict: str
@@ -115,6 +137,29 @@ def judge(
     error
         When set, the capture itself could not be used (unreadable file, missing serial
         number); the verdict is ``not evaluable`` with this message.
+
+    Examples
+    --------
+    >>> from piezo.batch.spec import Limit, MetricSpec
+    >>> corner = MetricSpec("corner", "corner", {}, (Limit(None, 80.0),))
+    >>> judge([corner], {"corner": MetricValue(72.5)}).verdict
+    'pass'
+    >>> judge([corner], {}).not_evaluable
+    ('corner: not evaluable (no value)',)
+    >>> judge([corner], {}, error="cannot read unit.wav").verdict
+    'not evaluable'
+
+    A guarded limit narrows the acceptance zone by U = 2u on each side: -44.5 lies
+    inside -45 .. -39, and inside -44.6 .. -39.4 (u = 0.2), but not inside -44.2 .. -39.8
+    (u = 0.4):
+
+    >>> sens = MetricSpec(
+    ...     "sens", "sensitivity", {}, (Limit(-45.0, -39.0, decision="guarded"),)
+    ... )
+    >>> judge([sens], {"sens": MetricValue(-44.5, uncertainty=0.2)}).verdict
+    'pass'
+    >>> judge([sens], {"sens": MetricValue(-44.5, uncertainty=0.4)}).verdict
+    'fail'
     """
     if error is not None:
         return Verdict(NOT_EVALUABLE, not_evaluable=(error,))

@@ -35,7 +35,31 @@ __all__ = ["report_document", "report_figures", "write_report"]
 
 
 def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[str, Any]:
-    """The JSON document of a run (``docs/report.schema.json``)."""
+    """The JSON document of a run (``docs/report.schema.json``).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> import numpy as np
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
+    >>> t = np.arange(12000) / 48000.0  # 0.25 s
+    >>> tone_v = 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t)  # 1 Pa RMS at 50 mV/Pa
+    >>> sf.write(path, tone_v, 48000, subtype="PCM_24")
+    >>> source = piezo.open(path, sensitivity="50 mV/Pa")
+    >>> from piezo.report.run import ReportSettings, analyse
+    >>> run = analyse(source, ReportSettings(band_fraction=1))
+    >>> doc = report_document(run, json_name="tone.json")
+    >>> doc["report"]["schema"], doc["report"]["json_name"]
+    ('piezo-report/1', 'tone.json')
+    >>> doc["recording"]["name"], doc["chain"]["level_unit"]
+    ('tone.wav', 'dB re 20 µPa')
+    >>> round(doc["tone"]["channels"][0]["level_db"], 1)  # 1 Pa RMS
+    94.0
+    >>> folder.cleanup()
+    """
     source = run.source
     ref = source.reference
     unit = source.unit
@@ -87,7 +111,34 @@ def _band_selftest(run: RunResults) -> dict[str, Any] | None:
 
 
 def report_figures(run: RunResults) -> dict[str, bytes]:
-    """Every figure of the report, by name, as PNG bytes."""
+    """Every figure of the report, by name, as PNG bytes.
+
+    Examples
+    --------
+    A figure for each result the run holds (here, to keep the example short, only the
+    diagnostics' roll-off):
+
+    >>> import tempfile
+    >>> import numpy as np
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
+    >>> t = np.arange(12000) / 48000.0  # 0.25 s
+    >>> tone_v = 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t)  # 1 Pa RMS at 50 mV/Pa
+    >>> sf.write(path, tone_v, 48000, subtype="PCM_24")
+    >>> source = piezo.open(path, sensitivity="50 mV/Pa")
+    >>> from piezo.report.run import ReportSettings, analyse
+    >>> run = analyse(source, ReportSettings(band_fraction=1))
+    >>> import dataclasses
+    >>> fewer = dataclasses.replace(run, levels=None, bands=None, spectrogram=None, psd=None)
+    >>> figures = report_figures(fewer)
+    >>> sorted(figures)
+    ['rolloff_0']
+    >>> figures["rolloff_0"][1:4]  # the PNG signature
+    b'PNG'
+    >>> folder.cleanup()
+    """
     figures: dict[str, bytes] = {}
     level_unit = run.source.chain.level_unit
     # Time axes are the recording's: they start at its first sample's time.
@@ -118,7 +169,32 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
 
 
 def write_report(run: RunResults, out_dir: Path, stem: str) -> tuple[Path, Path]:
-    """Write ``<stem>.html`` and ``<stem>.json`` into ``out_dir`` (atomically each)."""
+    """Write ``<stem>.html`` and ``<stem>.json`` into ``out_dir`` (atomically each).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> import numpy as np
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
+    >>> t = np.arange(12000) / 48000.0  # 0.25 s
+    >>> tone_v = 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t)  # 1 Pa RMS at 50 mV/Pa
+    >>> sf.write(path, tone_v, 48000, subtype="PCM_24")
+    >>> source = piezo.open(path, sensitivity="50 mV/Pa")
+    >>> from piezo.report.run import ReportSettings, analyse
+    >>> run = analyse(source, ReportSettings(band_fraction=1))
+    >>> import dataclasses
+    >>> from pathlib import Path
+    >>> fewer = dataclasses.replace(run, levels=None, bands=None, spectrogram=None, psd=None)
+    >>> html_path, json_path = write_report(fewer, Path(folder.name), "tone")
+    >>> html_path.name, json_path.name
+    ('tone.html', 'tone.json')
+    >>> '"json_name": "tone.json"' in json_path.read_text(encoding="utf-8")
+    True
+    >>> folder.cleanup()
+    """
 
     html_path = out_dir / f"{stem}.html"
     json_path = out_dir / f"{stem}.json"

@@ -56,7 +56,17 @@ CAUTIONS = (
 
 
 def software_versions() -> dict[str, str]:
-    """Versions of piezo, Python and the libraries that made the numbers."""
+    """Versions of piezo, Python and the libraries that made the numbers.
+
+    Examples
+    --------
+    >>> import piezo
+    >>> versions = software_versions()
+    >>> list(versions)
+    ['piezo', 'python', 'numpy', 'scipy', 'soundfile', 'matplotlib', 'jinja2']
+    >>> versions["piezo"] == piezo.__version__
+    True
+    """
     versions = {"piezo": __version__, "python": platform.python_version()}
     for dist in ("numpy", "scipy", "soundfile", "matplotlib", "jinja2"):
         try:
@@ -67,7 +77,17 @@ def software_versions() -> dict[str, str]:
 
 
 def recording_section(source: CalibratedSource) -> dict[str, Any]:
-    """What the recording is: file, format, rate, length, channels analysed."""
+    """What the recording is: file, format, rate, length, channels analysed.
+
+    Examples
+    --------
+    >>> import piezo
+    >>> rec = recording_section(piezo.open("recordings/calibrator-94dB.wav"))
+    >>> rec["name"], rec["format"], rec["subtype"], rec["sample_rate_hz"], rec["duration_s"]
+    ('calibrator-94dB.wav', 'WAV', 'PCM_24', 48000.0, 4.0)
+    >>> rec["channels"], rec["is_pcm"]
+    ([0], True)
+    """
     rec = source.recording
     return {
         "file": str(rec.path),
@@ -97,7 +117,24 @@ def _origin(text: str) -> str:
 
 
 def chain_section(source: CalibratedSource) -> dict[str, Any]:
-    """The measurement chain with the provenance of every value."""
+    """The measurement chain with the provenance of every value.
+
+    Examples
+    --------
+    The bundled calibrator recording: its sidecar sets 2 V full scale and 20 dB gain, and
+    no sensitivity yet, so results are in volts at the sensor (2 V / 10 per unit sample):
+
+    >>> import piezo
+    >>> chain = chain_section(piezo.open("recordings/calibrator-94dB.wav"))
+    >>> chain["unit"], chain["level_unit"], chain["calibrated"], chain["gain"]
+    ('V', 'dB re 1 V', False, 10.0)
+    >>> [(row["quantity"], row["value"]) for row in chain["rows"]][1:]
+    ... # doctest: +NORMALIZE_WHITESPACE
+    [('gain between sensor and ADC', '10 V/V (20.00 dB)'),
+     ('sensor sensitivity', 'none: results in volts'),
+     ('level reference', 'dB re 1 V'),
+     ('raw sample to calibrated value', '× 0.2 V')]
+    """
     chain = source.chain
     prov = source.provenance.as_dict() if source.provenance else {}
     origin = {k: _origin(v) for k, v in prov.items()}
@@ -180,7 +217,13 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
 
 
 def finite(value: float | None, digits: int | None = None) -> float | None:
-    """A finite float (rounded to ``digits`` decimals) or None, for JSON."""
+    """A finite float (rounded to ``digits`` decimals) or None, for JSON.
+
+    Examples
+    --------
+    >>> finite(93.97940008672037, 2), finite(float("inf")), finite(None), finite(3)
+    (93.98, None, None, 3.0)
+    """
     if value is None:
         return None
     value = float(value)
@@ -205,7 +248,26 @@ def _columns(matrix: np.ndarray, digits: int = 2) -> list[list[float | None]]:
 
 
 def levels_section(levels: LevelResult, level_unit: str, unit: str) -> dict[str, Any]:
-    """The level set per channel and the level history (levels in dB re the reference)."""
+    """The level set per channel and the level history (levels in dB re the reference).
+
+    Examples
+    --------
+    A 1 kHz sine of 1 Pa RMS for 0.5 s: 20 lg(1 Pa / 20 µPa) = 94.0 dB for every
+    weighting, since A and C are 0 dB at 1 kHz (IEC 61672-1:2013, Table 3), and the peak
+    is 3 dB above (crest factor √2):
+
+    >>> import numpy as np
+    >>> from piezo.levels.meter import LevelMeter
+    >>> t = np.arange(24000) / 48000.0
+    >>> meter = LevelMeter(48000.0, 1)
+    >>> meter.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
+    >>> section = levels_section(meter.result(), "dB re 20 µPa", "Pa")
+    >>> ch = section["channels"][0]
+    >>> round(ch["LZeq"], 1), round(ch["LAeq"], 1), round(ch["LCeq"], 1), round(ch["LZpeak"], 1)
+    (94.0, 94.0, 94.0, 97.0)
+    >>> section["names"][:3]
+    ['LZeq', 'LAeq', 'LCeq']
+    """
     channels = []
     for ch in levels.channels:
         entry: dict[str, Any] = {"channel": ch.channel}
@@ -240,7 +302,21 @@ def levels_section(levels: LevelResult, level_unit: str, unit: str) -> dict[str,
 
 
 def conformance_section(reports: tuple[ConformanceReport, ...]) -> list[dict[str, Any]]:
-    """The weighting filters' self-test at the recording's sample rate."""
+    """The weighting filters' self-test at the recording's sample rate.
+
+    Examples
+    --------
+    The A-weighting filter at 48 kHz against the design values of IEC 61672-1:2013,
+    Table 3 (-19.1 dB at 100 Hz, 0 dB at 1 kHz):
+
+    >>> from piezo.levels.weighting import conformance
+    >>> (a,) = conformance_section((conformance("A", 48000.0),))
+    >>> a["weighting"], a["passed"]
+    ('A', True)
+    >>> [(r["nominal_hz"], round(r["design_db"], 1)) for r in a["rows"]
+    ...  if r["nominal_hz"] in (100, 1000)]
+    [(100, -19.1), (1000, 0.0)]
+    """
     out = []
     for rep in reports:
         out.append(
@@ -268,7 +344,22 @@ def conformance_section(reports: tuple[ConformanceReport, ...]) -> list[dict[str
 
 
 def frontend_section(fr: Any) -> dict[str, Any]:
-    """The front-end design's summary and modelled response (a FrontendResponse)."""
+    """The front-end design's summary and modelled response (a FrontendResponse).
+
+    Examples
+    --------
+    The bundled charge-amplifier design: its 10 s time constant puts the low corner at
+    1 / (2π · 10 s) = 15.9 mHz:
+
+    >>> from pathlib import Path
+    >>> from piezo.report.run import frontend_response
+    >>> design = Path("recordings/designs/pump-disc-charge.toml")
+    >>> fe = frontend_section(frontend_response(design, top_hz=24000.0))
+    >>> fe["amplifier"], round(fe["time_constant_s"], 3), round(1000 * fe["corner_hz"], 1)
+    ('charge', 10.0, 15.9)
+    >>> fe["summary"].split("; ")[0]
+    'charge amplifier'
+    """
     sm = fr.summary
     band3 = sm.band_3db_hz
     parts = [
@@ -310,7 +401,22 @@ def _db(mean_square: np.ndarray, reference: float) -> np.ndarray:
 
 
 def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
-    """The Welch PSD per channel, in dB re reference²/Hz."""
+    """The Welch PSD per channel, in dB re reference²/Hz.
+
+    Examples
+    --------
+    4800-sample Hann segments at 48 kHz resolve 10 Hz; 0.5 s with 50 % overlap gives
+    9 averages:
+
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import WelchPSD
+    >>> t = np.arange(24000) / 48000.0
+    >>> welch = WelchPSD(48000.0, 1, segment_frames=4800)
+    >>> welch.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
+    >>> psd = psd_section(welch.result(), 20e-6, "Pa")
+    >>> psd["window"], psd["resolution_hz"], psd["averages"], psd["reference_text"]
+    ('hann', 10.0, 9, '20 µPa')
+    """
     return {
         "window": psd.window,
         "segment_frames": psd.segment_frames,
@@ -327,7 +433,23 @@ def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
 
 
 def bands_section(bands: BandResult, reference: float) -> dict[str, Any]:
-    """Band levels per channel (Leq per band, dB re the reference)."""
+    """Band levels per channel (Leq per band, dB re the reference).
+
+    Examples
+    --------
+    A 1 Pa RMS tone at 1 kHz lands in the 1 kHz octave band at 94 dB re 20 µPa:
+
+    >>> import numpy as np
+    >>> from piezo.spectral.bands import BandAnalyzer
+    >>> t = np.arange(24000) / 48000.0
+    >>> bank = BandAnalyzer(48000.0, 1, fraction=1)
+    >>> bank.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
+    >>> bands = bands_section(bank.result(), 20e-6)
+    >>> bands["labels"]
+    ['31.5', '63', '125', '250', '500', '1k', '2k', '4k', '8k', '16k']
+    >>> round(bands["level_db"][0][bands["labels"].index("1k")], 1)
+    94.0
+    """
     return {
         "fraction": bands.fraction,
         "labels": [b.label for b in bands.bands],
@@ -338,7 +460,21 @@ def bands_section(bands: BandResult, reference: float) -> dict[str, Any]:
 
 
 def spectrogram_section(sg: SpectrogramResult, reference: float) -> dict[str, Any]:
-    """Spectrogram per channel: ``level_db[channel][column][bin]``, dB re reference²/Hz."""
+    """Spectrogram per channel: ``level_db[channel][column][bin]``, dB re reference²/Hz.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from piezo.spectral.welch import Spectrogram
+    >>> t = np.arange(24000) / 48000.0
+    >>> sg = Spectrogram(48000.0, 1, segment_frames=1024, max_columns=8)
+    >>> sg.update(np.sin(2 * np.pi * 1000.0 * t)[:, None])
+    >>> section = spectrogram_section(sg.result(), 20e-6)
+    >>> section["segment_frames"], section["resolution_hz"]  # 48000 / 1024
+    (1024, 46.875)
+    >>> len(section["level_db"]), len(section["level_db"][0]) == len(section["time_s"])
+    (1, True)
+    """
     level = sg.level_db(reference)  # (columns, bins, channels)
     return {
         "window": sg.window,
@@ -357,7 +493,27 @@ def spectrogram_section(sg: SpectrogramResult, reference: float) -> dict[str, An
 def tone_section(
     tones: tuple[ToneResult | str, ...], channels: list[int], reference: float
 ) -> dict[str, Any] | None:
-    """Tone metrics of the channels holding a test tone (None when none does)."""
+    """Tone metrics of the channels holding a test tone (None when none does).
+
+    Examples
+    --------
+    One channel with a 1 kHz tone of 1 Pa RMS (94 dB re 20 µPa), one without:
+
+    >>> import numpy as np
+    >>> from piezo.tone.analysis import ToneAnalyzer
+    >>> t = np.arange(24000) / 48000.0
+    >>> analyzer = ToneAnalyzer(48000.0, 1, resolution_hz=10.0)
+    >>> analyzer.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
+    >>> (tone,) = analyzer.result()
+    >>> section = tone_section((tone, "no test tone"), [0, 1], 20e-6)
+    >>> first, second = section["channels"]
+    >>> round(first["frequency_hz"], 3), round(first["level_db"], 2)
+    (1000.0, 93.98)
+    >>> second
+    {'channel': 1, 'present': False, 'reason': 'no test tone'}
+    >>> tone_section(("no test tone",), [0], 20e-6) is None
+    True
+    """
     out = []
     for ch, tone in zip(channels, tones, strict=True):
         if isinstance(tone, str):

@@ -68,7 +68,22 @@ def _fmt(value: Any, spec: str = "") -> str:
 
 def environment() -> jinja2.Environment:
     """The Jinja2 environment of every piezo page: package templates, autoescape on,
-    a missing value an error (StrictUndefined), the ``fmt`` number filter."""
+    a missing value an error (StrictUndefined), the ``fmt`` number filter.
+
+    Examples
+    --------
+    Values are escaped, and ``fmt`` shows a missing number as a dash:
+
+    >>> env = environment()
+    >>> env.from_string("{{ name }}: {{ value | fmt('.1f') }}").render(name="<b>", value=93.98)
+    '&lt;b&gt;: 94.0'
+    >>> env.from_string("{{ value | fmt }}").render(value=None)
+    '—'
+    >>> env.from_string("{{ missing }}").render()
+    Traceback (most recent call last):
+    ...
+    jinja2.exceptions.UndefinedError: 'missing' is undefined
+    """
     env = jinja2.Environment(
         loader=jinja2.FunctionLoader(lambda name: _load(name)),
         autoescape=True,  # every value is escaped unless marked safe in code
@@ -97,12 +112,45 @@ def data_uri(png: bytes | None) -> str | None:
 def render_page(template: str, **context: Any) -> str:
     """Render the page ``template`` with ``context``, the shared style sheet and the
     piezo version. Only the project's own style sheet is inserted unescaped; every value
-    of ``context`` is escaped by the template engine."""
+    of ``context`` is escaped by the template engine.
+
+    Examples
+    --------
+    >>> page = render_page("batch_capture.html.j2", row={"file": "PD27-24101.flac",
+    ...     "serial": "24101", "verdict": "pass", "error": None, "content_sha256": "0" * 64,
+    ...     "failed_limits": [], "warnings": [], "not_evaluable": []},
+    ...     spec={"name": "lot", "sha256": "1" * 64}, lines=[], png=None)
+    >>> page.startswith("<!DOCTYPE html>")
+    True
+    >>> "<title>Capture report: PD27-24101.flac</title>" in page
+    True
+    """
     page = environment().get_template(template)
     return page.render(css=Markup(_load(STYLESHEET)), version=__version__, **context)
 
 
 def render_html(doc: Mapping[str, Any], figures: Mapping[str, bytes]) -> str:
-    """The report page for ``doc`` (the JSON document) with ``figures`` (name -> PNG)."""
+    """The report page for ``doc`` (the JSON document) with ``figures`` (name -> PNG).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> import numpy as np
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
+    >>> t = np.arange(12000) / 48000.0  # 0.25 s
+    >>> tone_v = 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t)  # 1 Pa RMS at 50 mV/Pa
+    >>> sf.write(path, tone_v, 48000, subtype="PCM_24")
+    >>> source = piezo.open(path, sensitivity="50 mV/Pa")
+    >>> from piezo.report.run import ReportSettings, analyse
+    >>> run = analyse(source, ReportSettings(band_fraction=1))
+    >>> from piezo.report.build import report_document
+    >>> page = render_html(report_document(run), figures={})
+    >>> "tone.wav" in page, page.startswith("<!DOCTYPE html>")
+    (True, True)
+    >>> folder.cleanup()
+    """
     uris = {name: data_uri(png) for name, png in figures.items()}
     return render_page("report.html.j2", doc=doc, figures=uris)

@@ -68,6 +68,18 @@ class ReportSettings:
         Thresholds of the capture diagnostics.
     frontend_design
         Front-end design file whose response is shown, or None.
+
+    Examples
+    --------
+    >>> settings = ReportSettings(band_fraction=1)
+    >>> settings.as_dict()["band_fraction"], settings.as_dict()["psd_segment_frames"]
+    (1, None)
+    >>> "thresholds" in settings.as_dict()
+    False
+    >>> ReportSettings(block_frames=0)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: block_frames: must be a whole number >= 1, got 0
     """
 
     block_frames: int = 65536
@@ -104,6 +116,14 @@ class FrontendResponse:
 
     ``level_db`` is the magnitude relative to the midband sensitivity, ``phase_deg`` the
     phase, both on ``frequency_hz``.
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> design = Path("recordings/designs/film-buffer-voltage.toml")
+    >>> fr = frontend_response(design, top_hz=24000.0)
+    >>> fr.amplifier, fr.frequency_hz.shape == fr.level_db.shape == fr.phase_deg.shape
+    ('voltage', True)
     """
 
     design: str
@@ -116,7 +136,23 @@ class FrontendResponse:
 
 
 def frontend_response(path: Path, *, top_hz: float) -> FrontendResponse:
-    """Load a design and evaluate its response from below its corner up to ``top_hz``."""
+    """Load a design and evaluate its response from below its corner up to ``top_hz``.
+
+    Examples
+    --------
+    The curve starts a factor 20 below the corner, where a first-order high-pass is down
+    10 lg(1 + 20²) = 26.0 dB and leads by arctan(20) = 87.1°:
+
+    >>> from pathlib import Path
+    >>> design = Path("recordings/designs/pump-disc-charge.toml")
+    >>> fr = frontend_response(design, top_hz=24000.0)
+    >>> fr.name, fr.amplifier
+    ('PD-27 disc on the bench charge amplifier', 'charge')
+    >>> round(float(fr.frequency_hz[0]) / fr.summary.corner_hz, 6), float(fr.frequency_hz[-1])
+    (0.05, 24000.0)
+    >>> round(float(fr.level_db[0]), 1), round(float(fr.phase_deg[0]), 1)
+    (-26.0, 87.1)
+    """
     fe = load_frontend(path)
     summary = summarise_response(fe)
     low = max(summary.corner_hz / 20.0, 1e-4)
@@ -135,7 +171,27 @@ def frontend_response(path: Path, *, top_hz: float) -> FrontendResponse:
 
 @dataclass(frozen=True)
 class RunResults:
-    """The result objects of one run, with what they were made from."""
+    """The result objects of one run, with what they were made from.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> import numpy as np
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
+    >>> t = np.arange(12000) / 48000.0  # 0.25 s
+    >>> tone_v = 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t)  # 1 Pa RMS at 50 mV/Pa
+    >>> sf.write(path, tone_v, 48000, subtype="PCM_24")
+    >>> source = piezo.open(path, sensitivity="50 mV/Pa")
+    >>> run = analyse(source, ReportSettings(band_fraction=1))
+    >>> run.source is source, run.frontend is None, run.notes
+    (True, True, ())
+    >>> run.generated_utc.endswith("Z")
+    True
+    >>> folder.cleanup()
+    """
 
     source: CalibratedSource
     settings: ReportSettings
@@ -166,6 +222,38 @@ def analyse(
 
     ``advance(frames)`` is called after each block (for a progress bar). Settings left
     to be chosen (None) are resolved from the recording and kept in the result.
+
+    Examples
+    --------
+    A 0.25 s, 1 kHz tone of 1 Pa RMS: 94.0 dB re 20 µPa (20 lg(1 Pa / 20 µPa)), and the
+    same LAeq, A-weighting being 0 dB at 1 kHz (IEC 61672-1:2013, Table 3):
+
+    >>> import tempfile
+    >>> import numpy as np
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
+    >>> t = np.arange(12000) / 48000.0  # 0.25 s
+    >>> tone_v = 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t)  # 1 Pa RMS at 50 mV/Pa
+    >>> sf.write(path, tone_v, 48000, subtype="PCM_24")
+    >>> source = piezo.open(path, sensitivity="50 mV/Pa")
+    >>> frames = []
+    >>> run = analyse(source, ReportSettings(band_fraction=1), advance=frames.append)
+    >>> sum(frames)
+    12000
+    >>> (tone,) = run.tones
+    >>> round(tone.frequency_hz, 2), round(tone.level_db(20e-6), 1)
+    (1000.0, 94.0)
+    >>> round(run.levels.channels[0].LAeq, 1)
+    94.0
+
+    Settings left open are chosen from the recording (the PSD segment: the largest power
+    of two up to a quarter of the 12000 frames):
+
+    >>> run.settings.psd_segment_frames, run.settings.level_interval_s
+    (2048, 0.1)
+    >>> folder.cleanup()
     """
     fs = source.sample_rate_hz
     frames = source.frames
