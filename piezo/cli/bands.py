@@ -112,7 +112,7 @@ def bands(
     ref = measured.reference
     doc = measured.to_dict()
     if csv is not None:
-        write_text_atomic(csv, format_csv(result, source.channel_indices, ref))
+        write_text_atomic(csv, _format_csv(result, source.channel_indices, ref))
     if json_out:
         emit_json(doc)
     else:
@@ -121,7 +121,7 @@ def bands(
         err_console.print(f"table written: {csv}")
 
 
-def format_csv(result: BandResult, channels: tuple[int, ...], reference: float) -> str:
+def _format_csv(result: BandResult, channels: tuple[int, ...], reference: float) -> str:
     """CSV text: one row per band (Leq), or per interval and band with ``--interval``."""
     levels = result.level_db(reference)
     cols = [f"ch{ch}_dB" for ch in channels]

@@ -31,7 +31,7 @@ def demo(
     out.mkdir(parents=True, exist_ok=True)
     files = demo_files()
     for item in files:
-        write_demo_file(out, item)
+        _write_demo_file(out, item)
         console.print(f"  {item.name:<34} {item.description}")
     texts = demo_texts()
     for name, text in texts.items():
@@ -53,7 +53,7 @@ def demo(
     )
 
 
-def write_demo_file(out: Path, item: DemoFile) -> None:
+def _write_demo_file(out: Path, item: DemoFile) -> None:
     """Write one demo recording (and its sidecar) atomically."""
     target = out / item.name
     if item.subtype is None:

@@ -183,7 +183,7 @@ def impedance(
         )  # fmt: skip
     except InputError as exc:
         raise exc.with_source(str(file)) from None
-    doc = document(file, analysis, measurement)
+    doc = _document(file, analysis, measurement)
     if plot is not None:
         from piezo.io.atomic import write_bytes_atomic
         from piezo.plots.element import impedance_figure
@@ -205,7 +205,7 @@ MODE_KEYS = (
 )  # fmt: skip
 
 
-def document(file: Path, analysis: Any, measurement: dict[str, Any] | None) -> dict[str, Any]:
+def _document(file: Path, analysis: Any, measurement: dict[str, Any] | None) -> dict[str, Any]:
     """The ``--json`` document of one sweep."""
     sweep = analysis.sweep
     modes = []

@@ -66,7 +66,7 @@ def emit_json(obj: Any) -> None:
     sys.stdout.flush()
 
 
-def interactive() -> bool:
+def _interactive() -> bool:
     """True when stdout and stderr are both terminals (progress bars are shown)."""
     return sys.stdout.isatty() and sys.stderr.isatty()
 
@@ -78,7 +78,7 @@ def progress(description: str, total: float | None) -> Iterator[Any]:
     Yields a function ``advance(amount)``. The bar is drawn on stderr so a JSON document
     on stdout is never mixed with it.
     """
-    if not interactive():
+    if not _interactive():
         yield lambda amount=1: None
         return
     bar = Progress(

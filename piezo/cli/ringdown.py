@@ -76,14 +76,14 @@ def ringdown(
             analyzer.update(block)
             advance(block.shape[0])
     results = analyzer.result()
-    doc = document(file, source, results)
+    doc = _document(file, source, results)
     if json_out:
         emit_json(doc)
     else:
         _print(doc)
 
 
-def document(file: Path, source: Any, results: list[Any]) -> dict[str, Any]:
+def _document(file: Path, source: Any, results: list[Any]) -> dict[str, Any]:
     """The ``--json`` document."""
     channels = []
     for index, r in zip(source.channel_indices, results, strict=True):

@@ -156,7 +156,7 @@ def spectrum(
     ref = measured.reference
     level_unit = measured.level_unit
     if csv is not None:
-        write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref))
+        write_text_atomic(csv, _format_csv(result, source.channel_indices, unit, ref))
     if plot is not None and spectro is not None:
         write_plot(plot, result, spectro, source.channel_indices, file.name, level_unit, ref)
     doc = measured.to_dict()
@@ -172,7 +172,7 @@ def spectrum(
             err_console.print(f"{what} written: {path}")
 
 
-def format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, reference: float) -> str:
+def _format_csv(result: PSDResult, channels: tuple[int, ...], unit: str, reference: float) -> str:
     """CSV text: frequency, then the PSD and its level in dB for each channel."""
     header = ["frequency_hz"]
     for ch in channels:

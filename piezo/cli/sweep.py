@@ -70,7 +70,7 @@ def register(app: typer.Typer) -> None:
     app.add_typer(sweep_app, name="sweep")
 
 
-def stimulus_sidecar(wav: Path) -> Path:
+def _stimulus_sidecar(wav: Path) -> Path:
     """``NAME.stimulus.toml`` beside ``NAME.wav``."""
     return wav.with_name(wav.stem + STIMULUS_SUFFIX)
 
@@ -92,7 +92,7 @@ def _parse_rate(text: str) -> float:
     return float(round(rate))
 
 
-def seconds(text: str, what: str) -> float:
+def _seconds(text: str, what: str) -> float:
     """A duration that may be zero (silences, fades)."""
     try:
         return parse_duration(text, what=what)
@@ -114,7 +114,7 @@ def _write_stimulus(out: Path, samples: np.ndarray, rate: float, subtype: str, t
         raise InputError(f"--out {out.name!r}: the stimulus is written as .wav or .flac")
     if not sf.check_format(fmt, subtype):
         raise InputError(f"--subtype {subtype} cannot be written as {fmt}")
-    side = stimulus_sidecar(out)
+    side = _stimulus_sidecar(out)
     with atomic_output(out) as tmp:
         sf.write(str(tmp), samples, int(rate), subtype=subtype, format=fmt)
     write_text_atomic(side, toml)
@@ -175,7 +175,7 @@ def make(
     The sweep runs from --from to --to in --duration with half-Hann fades, between
     silences; NAME.stimulus.toml beside NAME.wav records every parameter.
     """
-    refuse_existing(out, stimulus_sidecar(out), force=force)
+    refuse_existing(out, _stimulus_sidecar(out), force=force)
 
     spec = sweep_spec(
         parse_frequency(start, "--from"),
@@ -183,10 +183,10 @@ def make(
         parse_duration(duration, what="--duration"),
         _parse_rate(rate),
         level_dbfs=_parse_level(level),
-        fade_in_s=None if fade_in is None else seconds(fade_in, "--fade-in"),
-        fade_out_s=None if fade_out is None else seconds(fade_out, "--fade-out"),
-        silence_before_s=seconds(silence_before, "--silence-before"),
-        silence_after_s=seconds(silence_after, "--silence-after"),
+        fade_in_s=None if fade_in is None else _seconds(fade_in, "--fade-in"),
+        fade_out_s=None if fade_out is None else _seconds(fade_out, "--fade-out"),
+        silence_before_s=_seconds(silence_before, "--silence-before"),
+        silence_after_s=_seconds(silence_after, "--silence-after"),
         acoustic_level_pa=parse_acoustic_level(acoustic_level),
     )
     side = _write_stimulus(
@@ -230,14 +230,14 @@ def noise(
     """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
     if kind not in ("pink", "white"):
         raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
-    refuse_existing(out, stimulus_sidecar(out), force=force)
+    refuse_existing(out, _stimulus_sidecar(out), force=force)
     spec = NoiseSpec(
         kind,
         parse_duration(duration, what="--duration"),
         _parse_rate(rate),
         _parse_level(level),
         seed=seed,
-        fade_s=seconds(fade, "--fade"),
+        fade_s=_seconds(fade, "--fade"),
     )
     side = _write_stimulus(
         out, noise_signal(spec), spec.sample_rate_hz, _check_subtype(subtype), spec.to_toml()
@@ -257,12 +257,12 @@ def noise(
     )
 
 
-def load_sweep(path: Path) -> SweepSpec:
+def _load_sweep(path: Path) -> SweepSpec:
     """The sweep behind ``--stimulus``: a ``.toml`` sidecar, or a WAV with one beside it."""
     if path.suffix.lower() == ".toml":
         side = path
     else:
-        side = stimulus_sidecar(path)
+        side = _stimulus_sidecar(path)
         if not side.is_file():
             raise InputError(
                 f"no {side.name} beside the stimulus; give the {STIMULUS_SUFFIX} file written "
@@ -345,7 +345,7 @@ def analyze(
     refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     thd_freqs = parse_frequency_list(thd_at, what="--thd-at")
-    spec = load_sweep(stimulus)
+    spec = _load_sweep(stimulus)
     level_pa = parse_acoustic_level(acoustic_level)
     source = open_source(file, src)
     if len(source.channel_indices) != 1:

@@ -21,7 +21,7 @@ def register(app: typer.Typer) -> None:
     app.command("tone", help="Test-tone frequency, level, THD, THD+N, SINAD and SNR.")(tone)
 
 
-def parse_bandwidth(text: str) -> tuple[float, float]:
+def _parse_bandwidth(text: str) -> tuple[float, float]:
     """``"20Hz:20kHz"`` -> ``(20.0, 20000.0)``."""
     parts = text.split(":")
     if len(parts) != 2:
@@ -71,7 +71,7 @@ def tone(
     The whole recording is averaged into a 1 Hz Blackman-Harris Welch spectrum; a
     recording shorter than 1 s is analysed as one segment.
     """
-    given = parse_bandwidth(bandwidth) if bandwidth is not None else None
+    given = _parse_bandwidth(bandwidth) if bandwidth is not None else None
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
     noise_source = open_source(noise, src) if noise is not None else None
