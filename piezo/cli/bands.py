@@ -29,7 +29,16 @@ from piezo.spectral.summary import bands_of
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``bands`` command to ``app``."""
+    """Add the ``bands`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['bands']
+    """
     app.command("bands", help="Octave and fractional-octave band levels (IEC 61260-1 class 1).")(
         bands
     )

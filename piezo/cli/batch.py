@@ -42,7 +42,16 @@ SHOWN_FAILURES = 15
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``batch`` command to ``app``."""
+    """Add the ``batch`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['batch']
+    """
     app.command(
         "batch",
         help="Judge every capture of a lot against a limit spec: verdicts, yield, "

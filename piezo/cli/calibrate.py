@@ -18,7 +18,16 @@ from piezo.tone.summary import calibration_of
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``calibrate`` command to ``app``."""
+    """Add the ``calibrate`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['calibrate']
+    """
     app.command(
         "calibrate", help="Sensitivity (mV/Pa, dBV/Pa) from a 94 or 114 dB calibrator capture."
     )(calibrate)

@@ -32,7 +32,16 @@ __all__ = ["check", "register", "resolve_thresholds", "run_check"]
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``check`` command to ``app``."""
+    """Add the ``check`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['check']
+    """
     app.command(
         "check",
         help="Capture diagnostics: clipping, headroom, DC, dropouts, hum, roll-off, noise floor. "

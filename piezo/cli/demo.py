@@ -17,7 +17,16 @@ from piezo.io.atomic import write_bytes_atomic
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``demo`` command to ``app``."""
+    """Add the ``demo`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['demo']
+    """
     app.command("demo", help="Write the synthetic demo recordings and their profiles.")(demo)
 
 

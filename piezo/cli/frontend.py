@@ -56,7 +56,16 @@ OutOption = Annotated[
 
 
 def register(app: typer.Typer) -> None:
-    """Add ``frontend``, ``simulate`` and ``equalize`` to ``app``."""
+    """Add ``frontend``, ``simulate`` and ``equalize`` to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['frontend', 'simulate', 'equalize']
+    """
     app.command(
         "frontend",
         help="Sensitivity, corner, bands, phase, noise budget and self-noise of a design.",

@@ -23,7 +23,16 @@ CAUTION = (
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``impedance`` command to ``app``."""
+    """Add the ``impedance`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['impedance']
+    """
     app.command(
         "impedance",
         help="Impedance sweep of an element (CSV table, or a V/I capture with --shunt): "

@@ -16,7 +16,16 @@ from piezo.levels.stats import SignalStats
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``info`` command to ``app``."""
+    """Add the ``info`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['info']
+    """
     app.command(
         "info", help="Format, rate, duration and peak/RMS per channel (dBFS, Pa, dB SPL)."
     )(info)

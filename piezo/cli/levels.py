@@ -19,7 +19,16 @@ MAX_HISTORY_ROWS = 60
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``levels`` command to ``app``."""
+    """Add the ``levels`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['levels']
+    """
     app.command(
         "levels",
         help="Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "

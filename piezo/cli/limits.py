@@ -32,7 +32,16 @@ limits_app = typer.Typer(
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``limits`` command group to ``app``."""
+    """Add the ``limits`` command group to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [group.name for group in app.registered_groups]
+    ['limits']
+    """
     app.add_typer(limits_app, name="limits")
 
 

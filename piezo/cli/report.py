@@ -19,7 +19,16 @@ __all__ = ["register", "report"]
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``report`` command to ``app``."""
+    """Add the ``report`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['report']
+    """
     app.command(
         "report",
         help="Write an HTML report (plots embedded, printable, offline) and its JSON per file.",

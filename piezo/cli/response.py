@@ -44,7 +44,16 @@ FRONTEND_CAUTION = (
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``response`` and ``fit-frontend`` commands to ``app``."""
+    """Add the ``response`` and ``fit-frontend`` commands to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['response', 'fit-frontend']
+    """
     app.command(
         "response",
         help="Frequency response H1 = Gxy/Gxx with coherence from a two-channel recording.",

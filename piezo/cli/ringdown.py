@@ -16,7 +16,16 @@ from piezo.errors import InputError
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``ringdown`` command to ``app``."""
+    """Add the ``ringdown`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['ringdown']
+    """
     app.command(
         "ringdown",
         help="Tap and ring-down tests: events, modes (frequency, damping ratio, Q, decay "

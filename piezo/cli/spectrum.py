@@ -35,7 +35,16 @@ PRINTED_PEAKS = 5
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``spectrum`` command to ``app``."""
+    """Add the ``spectrum`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['spectrum']
+    """
     app.command("spectrum", help="Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG.")(
         spectrum
     )

@@ -66,7 +66,16 @@ sweep_app = typer.Typer(
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``sweep`` command group to ``app``."""
+    """Add the ``sweep`` command group to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [group.name for group in app.registered_groups]
+    ['sweep']
+    """
     app.add_typer(sweep_app, name="sweep")
 
 

@@ -17,7 +17,16 @@ from piezo.tone.summary import tone_of
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``tone`` command to ``app``."""
+    """Add the ``tone`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['tone']
+    """
     app.command("tone", help="Test-tone frequency, level, THD, THD+N, SINAD and SNR.")(tone)
 
 
