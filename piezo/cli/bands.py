@@ -92,6 +92,20 @@ def bands(
     Bands are named by their nominal mid-band frequency; exact mid-band frequencies
     follow the base-ten formula of the standard. Levels are in dB re the reference
     pressure (or re 1 V without a sensitivity).
+
+    Examples
+    --------
+    A 94 dB, 1 kHz calibrator tone puts 94 dB into the 1 kHz octave, whose exact
+    mid-band frequency is 1000 Hz (IEC 61260-1:2014, 5.2):
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["bands", "recordings/calibrator-94dB.wav", "--sensitivity", "8.5 mV/Pa",
+    ...           "--fraction", "1", "--low", "500Hz", "--high", "2kHz", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "nominal_hz": 1000, "exact_hz": 1000.0, ... "level_db": 93.99..., ...}
+    0
     """
     refuse_existing(csv, force=force)
     if fraction not in FRACTIONS:

@@ -36,6 +36,18 @@ def demo(
     """Write the demo recordings (seeded, identical on every run) into a folder.
 
     All data is synthetic: scenarios of our own, made to exercise every command.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.cli import main
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["demo", "--out", tmp])
+    ...     except SystemExit as done:
+    ...         print(done.code, (pathlib.Path(tmp) / "calibrator-94dB.wav").is_file())
+    calibrator-94dB.wav film microphone on a 94 dB, 1 kHz calibrator ...
+    0 True
     """
     out.mkdir(parents=True, exist_ok=True)
     files = demo_files()

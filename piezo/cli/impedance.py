@@ -41,7 +41,13 @@ def register(app: typer.Typer) -> None:
 
 
 def parse_band(text: str, what: str = "--band") -> tuple[float, float]:
-    """``"27k:33k"`` or ``"27 kHz:33 kHz"`` -> (27000.0, 33000.0)."""
+    """``"27k:33k"`` or ``"27 kHz:33 kHz"`` -> (27000.0, 33000.0).
+
+    Examples
+    --------
+    >>> parse_band("27k:33k"), parse_band("27 kHz:33 kHz")
+    ((27000.0, 33000.0), (27000.0, 33000.0))
+    """
     if ":" not in text:
         raise InputError(f"{what}: expected LOW:HIGH, e.g. '27kHz:33kHz', got {text!r}")
     lo_text, hi_text = text.split(":", 1)
@@ -124,6 +130,19 @@ def impedance(
     k_eff² = (fp² − fs²)/fp² with standard uncertainties from the fit (IEEE Std 176),
     the free capacitance and tan δ at --at, and with --shape the material coupling
     (EN 50324-2). See docs/element.md.
+
+    Examples
+    --------
+    k_eff² = (fp² − fs²)/fp² (IEEE Std 176-1987): 1 − (28899.9/30542.7)² gives
+    k_eff = 0.3235:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["impedance", "recordings/element-lot/impedance/EL-29101.csv", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "fs_hz": 28899.8..., "fp_hz": 30542.7..., ... "k_eff": 0.3235..., ...}
+    0
     """
     from piezo.element.bvd import SHAPES, analyse_impedance
     from piezo.element.impedance import read_impedance_csv

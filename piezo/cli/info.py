@@ -43,6 +43,18 @@ def info(
     Levels in dBFS follow AES17: the RMS of a full-scale sine reads 0 dBFS. With a
     sensitivity (option, sidecar or profile) peak and RMS are also given in pascals and
     in dB re the reference pressure.
+
+    Examples
+    --------
+    16000 frames at 16 kHz are one second:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["info", "recordings/pd27-golden/PD27-23001.flac", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "sample_rate_hz": 16000.0, "frames": 16000, "duration_s": 1.0, ...}
+    0
     """
     source = open_source(file, src)
     rec = source.recording

@@ -183,6 +183,22 @@ def make(
 
     The sweep runs from --from to --to in --duration with half-Hann fades, between
     silences; NAME.stimulus.toml beside NAME.wav records every parameter.
+
+    Examples
+    --------
+    0.5 s of silence, the 0.5 s sweep and 1 s of silence at 16 kHz make 32000 frames:
+
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["sweep", "make", "--from", "20Hz", "--to", "4kHz", "--duration", "0.5s",
+    ...               "--rate", "16k", "--out", f"{tmp}/sweep.wav", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "frames": 32000, "kind": "exponential-sine-sweep", ...
+    "silence_before_s": 0.5, "silence_after_s": 1.0, ...}
+    0
     """
     refuse_existing(out, _stimulus_sidecar(out), force=force)
 
@@ -236,7 +252,21 @@ def noise(
     force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
-    """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
+    """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar.
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["sweep", "noise", "--kind", "pink", "--duration", "0.5s", "--rate", "16k",
+    ...               "--out", f"{tmp}/pink.wav", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "frames": 8000, "kind": "noise", "color": "pink", ... "seed": 1, ...}
+    0
+    """
     if kind not in ("pink", "white"):
         raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
     refuse_existing(out, _stimulus_sidecar(out), force=force)
@@ -350,6 +380,19 @@ def analyze(
     chain is ignored: it is what is measured). With the sweep's acoustic level the
     magnitude is a sensitivity in dB re 1 V/Pa, otherwise it is relative to the
     stimulus (dB re 1 V per stimulus full scale).
+
+    Examples
+    --------
+    A capture of the sweep itself (the demo's loop-back) has no latency:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["sweep", "analyze", "recordings/valve-pickup-sweep.flac",
+    ...           "--stimulus", "recordings/valve-pickup-sweep.stimulus.toml", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "latency_frames": 0, ... "magnitude_unit": "dB re 1 V/Pa", ...}
+    0
     """
     refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
