@@ -68,7 +68,15 @@ __all__ = [
 @dataclass(frozen=True)
 class Command:
     """One top-level command: its name, the module under :mod:`piezo.cli` whose
-    ``register(app)`` adds it, and the one-line help ``piezo --help`` lists."""
+    ``register(app)`` adds it, and the one-line help ``piezo --help`` lists.
+
+    Examples
+    --------
+    >>> Command("info", "info", "What a recording is.").module
+    'info'
+    >>> [command.name for command in COMMANDS if command.module == "frontend"]
+    ['frontend', 'simulate', 'equalize']
+    """
 
     name: str
     module: str
@@ -168,14 +176,25 @@ def _plain_help(text: str | None) -> str | None:
     """Help text as plain text for rich: markup escaped, paragraph lines joined.
 
     A paragraph whose lines form a list or an indented block (or that starts with click's
-    ``\\b`` marker) keeps its line breaks.
+    ``\\b`` marker) keeps its line breaks. A docstring's numpy-style ``Examples`` section
+    is for readers of the code and is left out.
+
+    Examples
+    --------
+    >>> from piezo.cli.sweep import noise
+    >>> _plain_help(noise.__doc__)
+    'Write seeded pink or white noise (a stimulus for piezo response) and its sidecar.'
     """
     if not text:
         return text
     from rich.markup import escape
 
+    text = inspect.cleandoc(text)
+    examples = re.search(r"^Examples\n-+$", text, re.MULTILINE)
+    if examples is not None:
+        text = text[: examples.start()].rstrip()
     paragraphs = []
-    for paragraph in inspect.cleandoc(text).split("\n\n"):
+    for paragraph in text.split("\n\n"):
         lines = paragraph.splitlines()
         keep = paragraph.startswith("\b") or any(
             re.match(r"\s|[-*•] |\d+[.)] ", line) for line in lines[1:]
@@ -222,7 +241,19 @@ class _NoSuchCommand(click_errors.UsageError):
 
 class LazyGroup(TyperGroup):
     """The top-level group: lists :data:`COMMANDS` without importing them; imports a
-    command's module only when that command is resolved."""
+    command's module only when that command is resolved.
+
+    Examples
+    --------
+    The listing comes from :data:`COMMANDS`; resolving a command imports its module:
+
+    >>> import typer.main
+    >>> group = typer.main.get_command(app)
+    >>> isinstance(group, LazyGroup), group.list_commands(None)[:3]
+    (True, ['info', 'calibrate', 'levels'])
+    >>> group.get_command(None, "fit-frontend").name
+    'fit-frontend'
+    """
 
     _listing = False
 
@@ -369,7 +400,25 @@ def _run(args: Sequence[str]) -> int:
 
 
 def main(argv: list[str] | None = None) -> None:
-    """Console-script entry point."""
+    """Console-script entry point.
+
+    Examples
+    --------
+    ``main`` ends by :func:`sys.exit` with the exit code; a usage mistake is one line on
+    stderr and exit code 2:
+
+    >>> try:
+    ...     main(["--version"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    piezo ...
+    0
+    >>> try:
+    ...     main(["lvels", "x.wav"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    2
+    """
     args = sys.argv[1:] if argv is None else argv
     # --debug is accepted anywhere on the line, not only before the command.
     _state["debug"] = "--debug" in args

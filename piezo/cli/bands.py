@@ -37,7 +37,16 @@ from piezo.spectral.summary import bands_of
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``bands`` command to ``app``."""
+    """Add the ``bands`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['bands']
+    """
     app.command("bands", help="Octave and fractional-octave band levels (IEC 61260-1 class 1).")(
         bands
     )
@@ -92,6 +101,20 @@ def bands(
     Bands are named by their nominal mid-band frequency; exact mid-band frequencies
     follow the base-ten formula of the standard. Levels are in dB re the reference
     pressure (or re 1 V without a sensitivity).
+
+    Examples
+    --------
+    A 94 dB, 1 kHz calibrator tone puts 94 dB into the 1 kHz octave, whose exact
+    mid-band frequency is 1000 Hz (IEC 61260-1:2014, 5.2):
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["bands", "recordings/calibrator-94dB.wav", "--sensitivity", "8.5 mV/Pa",
+    ...           "--fraction", "1", "--low", "500Hz", "--high", "2kHz", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "nominal_hz": 1000, "exact_hz": 1000.0, ... "level_db": 93.99..., ...}
+    0
     """
     refuse_existing(csv, force=force)
     if fraction not in FRACTIONS:
@@ -124,7 +147,7 @@ def bands(
     if csv is not None:
         write_text_atomic(
             csv,
-            format_csv(
+            _format_csv(
                 result, source.channel_indices, ref, measured.level_units or measured.level_unit
             ),
         )
@@ -136,7 +159,7 @@ def bands(
         err_console.print(f"table written: {csv}")
 
 
-def format_csv(
+def _format_csv(
     result: BandResult,
     channels: tuple[int, ...],
     reference: float | np.ndarray,

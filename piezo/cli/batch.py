@@ -42,7 +42,16 @@ SHOWN_FAILURES = 15
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``batch`` command to ``app``."""
+    """Add the ``batch`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['batch']
+    """
     app.command(
         "batch",
         help="Judge every capture of a lot against a limit spec: verdicts, yield, "
@@ -106,6 +115,20 @@ def batch(
     is not evaluable, 2 for a bad spec or unusable arguments, an --out that another run
     is using, or a cluster that no worker joined within --worker-wait (nothing is judged
     then); 130 when interrupted (the journal is kept for --resume).
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["batch", "recordings/element-lot/tap/EL-29101.flac",
+    ...               "--spec", "recordings/element-tap-spec.toml", "--out", tmp,
+    ...               "--workers", "1", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "captures": 1, ... "counts": { "pass": 1, ...}, "yield": 1.0, "failing": [] }
+    0
     """
     spec = load_spec(spec_path)  # a bad spec stops here, before any capture is read
     if workers is not None and cluster is not None:

@@ -18,7 +18,16 @@ from piezo.tone.summary import calibration_of
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``calibrate`` command to ``app``."""
+    """Add the ``calibrate`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['calibrate']
+    """
     app.command(
         "calibrate",
         help="Sensitivity (mV/Pa, dB re 1 V/Pa) from a 94 or 114 dB calibrator capture.",
@@ -73,6 +82,18 @@ def calibrate(
     the calibrator's RMS pressure gives the sensitivity. Any sensitivity given by option
     or profile is ignored for the measurement. A tone whose level or frequency drifts is
     refused (the calibrator was moved, or is failing).
+
+    Examples
+    --------
+    94 dB re 20 µPa is 20 µPa · 10^(94/20) = 1.0024 Pa RMS:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["calibrate", "recordings/calibrator-94dB.wav", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "sensitivity_mv_per_pa": 8.50..., ... "calibrator_pressure_pa": 1.0023..., ...}
+    0
     """
     expected_hz = parse_quantity(frequency, "Hz", what="--frequency")
     tolerance_db = parse_decibels(calibrator_tolerance, what="--calibrator-tolerance")

@@ -32,7 +32,16 @@ __all__ = ["check", "register", "resolve_thresholds", "run_check"]
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``check`` command to ``app``."""
+    """Add the ``check`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['check']
+    """
     app.command(
         "check",
         help="Capture diagnostics: clipping, headroom, DC, dropouts, hum, roll-off, noise floor. "
@@ -43,7 +52,14 @@ def register(app: typer.Typer) -> None:
 def resolve_thresholds(
     thresholds_file: Path | None, overrides: list[str] | None, expected_corner: str | None
 ) -> Thresholds:
-    """Defaults, then the TOML file, then ``--threshold`` overrides, then the corner option."""
+    """Defaults, then the TOML file, then ``--threshold`` overrides, then the corner option.
+
+    Examples
+    --------
+    >>> th = resolve_thresholds(None, ["clip_min_run=5"], "10 Hz")
+    >>> th.clip_min_run, th.rolloff_expected_hz
+    (5, 10.0)
+    """
     th = load_thresholds(thresholds_file) if thresholds_file is not None else Thresholds()
     values: dict[str, Any] = {}
     for text in overrides or []:
@@ -56,7 +72,16 @@ def resolve_thresholds(
 
 
 def run_check(source: CalibratedSource, thresholds: Thresholds) -> Check:
-    """Read ``source`` once (with a progress bar on a terminal) and return its check."""
+    """Read ``source`` once (with a progress bar on a terminal) and return its check.
+
+    Examples
+    --------
+    >>> import piezo
+    >>> source = piezo.open("recordings/pd27-golden/PD27-23001.flac")
+    >>> checked = run_check(source, resolve_thresholds(None, None, None))
+    >>> checked.failed, [channel.verdict.value for channel in checked.diagnostics.channels]
+    (False, ['ok'])
+    """
     with progress(f"Checking {source.recording.path.name}", source.frames) as advance:
         return check_of(source, thresholds, advance=advance)
 
@@ -99,6 +124,18 @@ def check(
     A channel's verdict is the worst severity of its own checks; the file's verdict adds
     the file-level (metadata) checks. Exit code 0 when nothing fails, 1 when a channel or
     a file-level check fails, 2 when the input cannot be used.
+
+    Examples
+    --------
+    A warning does not fail the check (exit code 0; 1 when a check fails):
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["check", "recordings/pd27-golden/PD27-23001.flac", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "frames": 16000, ... "verdict": "warn", ...}
+    0
     """
     thresholds = resolve_thresholds(thresholds_file, threshold, expected_corner)
     source = open_source(file, src, allow_time_gaps=True)

@@ -17,7 +17,16 @@ from piezo.io.atomic import write_bytes_atomic
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``demo`` command to ``app``."""
+    """Add the ``demo`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['demo']
+    """
     app.command("demo", help="Write the synthetic demo recordings and their profiles.")(demo)
 
 
@@ -27,11 +36,23 @@ def demo(
     """Write the demo recordings (seeded, identical on every run) into a folder.
 
     All data is synthetic: scenarios of our own, made to exercise every command.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.cli import main
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["demo", "--out", tmp])
+    ...     except SystemExit as done:
+    ...         print(done.code, (pathlib.Path(tmp) / "calibrator-94dB.wav").is_file())
+    calibrator-94dB.wav film microphone on a 94 dB, 1 kHz calibrator ...
+    0 True
     """
     out.mkdir(parents=True, exist_ok=True)
     files = demo_files()
     for item in files:
-        write_demo_file(out, item)
+        _write_demo_file(out, item)
         console.print(f"  {item.name:<34} {item.description}")
     texts = demo_texts()
     for name, text in texts.items():
@@ -53,7 +74,7 @@ def demo(
     )
 
 
-def write_demo_file(out: Path, item: DemoFile) -> None:
+def _write_demo_file(out: Path, item: DemoFile) -> None:
     """Write one demo recording (and its sidecar) atomically."""
     target = out / item.name
     if item.subtype is None:

@@ -57,7 +57,16 @@ OutOption = Annotated[
 
 
 def register(app: typer.Typer) -> None:
-    """Add ``frontend``, ``simulate`` and ``equalize`` to ``app``."""
+    """Add ``frontend``, ``simulate`` and ``equalize`` to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['frontend', 'simulate', 'equalize']
+    """
     app.command(
         "frontend",
         help="Sensitivity, corner, bands, phase, noise budget and self-noise of a design.",
@@ -133,6 +142,18 @@ def frontend(
     ±3 dB bands (low end from the high-pass, high end from the resonance or the op-amp),
     level and phase at --at frequencies, the noise budget per source, the A-weighted
     self-noise (dB re 20 µPa, 20 Hz–20 kHz) and the dynamic range to the clip level.
+
+    Examples
+    --------
+    The corner of a first-order high-pass is 1/(2π τ): 1/(2π · 0.124 s) = 1.2835 Hz:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["frontend", "recordings/designs/film-buffer-voltage.toml", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "corner_hz": 1.2835..., "time_constant_s": 0.124..., ...}
+    0
     """
     refuse_existing(plot, force=force)
     at_hz = tuple(parse_frequency_list(at, what="--at"))
@@ -367,6 +388,20 @@ def simulate(
     profile or a sidecar; samples already in pascals: --sensitivity '1 V/Pa') or, with
     --input charge, as the sensor's charge. The output is a 32-bit float file of volts at
     the amplifier output: read it back with --full-scale 1V.
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["simulate", "recordings/pd27-golden/PD27-23001.flac",
+    ...               "--frontend", "recordings/designs/film-buffer-voltage.toml",
+    ...               "--sensitivity", "1 V/Pa", "--out", f"{tmp}/out.wav", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "input": "pressure", ... "output_unit": "V", ... "corner_hz": 1.2835..., ...}
+    0
     """
     if input_kind not in ("pressure", "charge"):
         raise InputError(f"--input must be 'pressure' or 'charge', got {input_kind!r}")
@@ -500,6 +535,22 @@ def equalize(
     towards DC rises by ωc/ωt, which also amplifies any noise, drift or offset the
     recording holds below the old corner. The output keeps the input's sample scale (so
     the same chain options and profile apply) as a 32-bit float file.
+
+    Examples
+    --------
+    Moving the corner from 1.2835 Hz to 1 Hz boosts towards DC by 20·lg(1.2835) = 2.17 dB:
+
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["equalize", "recordings/pd27-golden/PD27-23001.flac",
+    ...               "--frontend", "recordings/designs/film-buffer-voltage.toml",
+    ...               "--corner", "1Hz", "--out", f"{tmp}/eq.wav", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "model_corner_hz": 1.2835..., "target_corner_hz": 1.0, "boost_db": 2.16..., ...}
+    0
     """
     fe = frontend_from_mapping(read_design(frontend_path), source=str(frontend_path))
     target_hz = parse_quantity(corner, "Hz", what="--corner")

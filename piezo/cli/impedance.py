@@ -23,7 +23,16 @@ CAUTION = (
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``impedance`` command to ``app``."""
+    """Add the ``impedance`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['impedance']
+    """
     app.command(
         "impedance",
         help="Impedance sweep of an element (CSV table, or a V/I capture with --shunt): "
@@ -32,7 +41,13 @@ def register(app: typer.Typer) -> None:
 
 
 def parse_band(text: str, what: str = "--band") -> tuple[float, float]:
-    """``"27k:33k"`` or ``"27 kHz:33 kHz"`` -> (27000.0, 33000.0)."""
+    """``"27k:33k"`` or ``"27 kHz:33 kHz"`` -> (27000.0, 33000.0).
+
+    Examples
+    --------
+    >>> parse_band("27k:33k"), parse_band("27 kHz:33 kHz")
+    ((27000.0, 33000.0), (27000.0, 33000.0))
+    """
     if ":" not in text:
         raise InputError(f"{what}: expected LOW:HIGH, e.g. '27kHz:33kHz', got {text!r}")
     lo_text, hi_text = text.split(":", 1)
@@ -115,6 +130,19 @@ def impedance(
     k_eff² = (fp² − fs²)/fp² with standard uncertainties from the fit (IEEE Std 176),
     the free capacitance and tan δ at --at, and with --shape the material coupling
     (EN 50324-2). See docs/element.md.
+
+    Examples
+    --------
+    k_eff² = (fp² − fs²)/fp² (IEEE Std 176-1987): 1 − (28899.9/30542.7)² gives
+    k_eff = 0.3235:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["impedance", "recordings/element-lot/impedance/EL-29101.csv", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "fs_hz": 28899.8..., "fp_hz": 30542.7..., ... "k_eff": 0.3235..., ...}
+    0
     """
     from piezo.element.bvd import SHAPES, analyse_impedance
     from piezo.element.impedance import read_impedance_csv
@@ -183,7 +211,7 @@ def impedance(
         )  # fmt: skip
     except InputError as exc:
         raise exc.with_source(str(file)) from None
-    doc = document(file, analysis, measurement)
+    doc = _document(file, analysis, measurement)
     if plot is not None:
         from piezo.io.atomic import write_bytes_atomic
         from piezo.plots.element import impedance_figure
@@ -205,7 +233,7 @@ MODE_KEYS = (
 )  # fmt: skip
 
 
-def document(file: Path, analysis: Any, measurement: dict[str, Any] | None) -> dict[str, Any]:
+def _document(file: Path, analysis: Any, measurement: dict[str, Any] | None) -> dict[str, Any]:
     """The ``--json`` document of one sweep."""
     sweep = analysis.sweep
     modes = []

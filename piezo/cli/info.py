@@ -19,7 +19,16 @@ from piezo.results import reference_key
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``info`` command to ``app``."""
+    """Add the ``info`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['info']
+    """
     app.command(
         "info", help="Format, rate, duration and peak/RMS per channel (dBFS, Pa, dB SPL)."
     )(info)
@@ -38,6 +47,18 @@ def info(
     sensitivity (option, sidecar or profile) peak and RMS are also given in the
     quantity's unit (Pa, m/s², N ...) and in dB re its ISO 1683 reference. Each channel
     is shown through its own chain (a profile's [channel.N] sections).
+
+    Examples
+    --------
+    16000 frames at 16 kHz are one second:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["info", "recordings/pd27-golden/PD27-23001.flac", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "sample_rate_hz": 16000.0, "frames": 16000, "duration_s": 1.0, ...}
+    0
     """
     source = open_source(file, src)
     rec = source.recording

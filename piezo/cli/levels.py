@@ -28,11 +28,20 @@ HISTORY_KEYS = ("LZeq", "LAeq", "LCeq", "LAFmax", "LCpeak")
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``levels`` command to ``app``."""
+    """Add the ``levels`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['levels']
+    """
     app.command(
         "levels",
-        help="Sound levels per channel: LAeq, LCeq, LZeq, LAFmax/min, LASmax/min, LCpeak, "
-        "LZpeak, LAE, LAF5..LAF95 (IEC 61672-1).",
+        help="Sound levels per channel: LAeq, LCeq, LZeq, F and S maxima and minima (A, C, Z), "
+        "LCpeak, LZpeak, LAE, LAF5..LAF95, LAS5..LAS95 (IEC 61672-1).",
     )(levels)
 
 
@@ -78,6 +87,21 @@ def levels(
     IEC 61672-1:2013. Levels are in dB re 20 µPa (air), 1 µPa (water, --reference) or,
     without a sensitivity, dB re 1 V. See docs/levels.md for each level's definition and
     the start-up handling.
+
+    Examples
+    --------
+    A 94 dB, 1 kHz calibrator tone through its measured 8.5 mV/Pa reads LAeq = 94 dB
+    (A-weighting is 0 dB at 1 kHz, IEC 61672-1:2013 Table 3), and its C-weighted peak
+    about 3 dB higher (a sine's crest factor √2):
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["levels", "recordings/calibrator-94dB.wav", "--sensitivity", "8.5 mV/Pa",
+    ...           "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "unit": "Pa", ... "LZeq": 94.00..., "LAeq": 94.00..., ... "LCpeak": 97.0..., ...}
+    0
     """
     interval_s = parse_duration(interval, what="--interval") if interval is not None else None
     source = open_source(file, src)

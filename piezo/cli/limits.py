@@ -32,7 +32,16 @@ limits_app = typer.Typer(
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``limits`` command group to ``app``."""
+    """Add the ``limits`` command group to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [group.name for group in app.registered_groups]
+    ['limits']
+    """
     app.add_typer(limits_app, name="limits")
 
 
@@ -66,6 +75,22 @@ def derive(
 ) -> None:
     """Measure the base spec's metrics on golden captures and write a spec with limits
     at mean ± k·σ (σ: sample standard deviation), n, mean and σ stated in comments.
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["limits", "derive", "recordings/pd27-golden/PD27-23001.flac",
+    ...               "recordings/pd27-golden/PD27-23002.flac",
+    ...               "recordings/pd27-golden/PD27-23003.flac",
+    ...               "--spec", "recordings/pd27-spec.toml", "--out", f"{tmp}/spec.toml",
+    ...               "--workers", "1", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "captures": 3, "k": 3.0, ... "name": "sensitivity", "n": 3, ...}
+    0
     """
     spec = load_spec(spec_path, for_derive=True)
     refuse_existing(out, force=force)

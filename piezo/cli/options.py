@@ -49,7 +49,14 @@ WeightAnyQuantityOption = Annotated[
 
 @dataclass(frozen=True)
 class SourceOptions:
-    """Input and chain options as typed on the command line (text, unparsed)."""
+    """Input and chain options as typed on the command line (text, unparsed).
+
+    Examples
+    --------
+    >>> options = SourceOptions(sensitivity="8.5 mV/Pa", channel=[0])
+    >>> options.sensitivity, options.channel, options.no_sidecar
+    ('8.5 mV/Pa', [0], False)
+    """
 
     sensitivity: str | None = None
     gain: str | None = None
@@ -199,6 +206,18 @@ def source_options(func: Callable[..., Any]) -> Callable[..., Any]:
     The decorated function takes a keyword parameter ``src: SourceOptions`` instead of the
     individual options; the command-line parameters are appended to its signature, so
     typer shows them (under their own help panels) on every analysis command.
+
+    Examples
+    --------
+    >>> import inspect
+    >>> @source_options
+    ... def show(file: str, *, src: SourceOptions) -> None:
+    ...     print(file, src.sensitivity, src.gain)
+    >>> params = inspect.signature(show).parameters
+    >>> "src" in params, "sensitivity" in params, "no_sidecar" in params
+    (False, True, True)
+    >>> show("a.wav", sensitivity="8.5 mV/Pa")
+    a.wav 8.5 mV/Pa None
     """
     sig = inspect.signature(func)
     hints = typing.get_type_hints(func, include_extras=True)
@@ -273,6 +292,18 @@ def open_source(
 
     ``allow_time_gaps`` lets a CSV time column with gaps through (reported on the
     recording) instead of refusing it; only the capture check asks for that.
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> capture = Path("recordings/calibrator-94dB.wav")
+    >>> source = open_source(capture, SourceOptions(sensitivity="8.5 mV/Pa"))
+    >>> source.chain.sensitivity_v_per_pa, source.unit
+    (0.0085, 'Pa')
+    >>> open_source(capture, SourceOptions(full_scale="2 A"))
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: ...: --full-scale: unknown unit in '2 A'; ...
     """
     try:
         return open_calibrated(

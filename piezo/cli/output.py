@@ -46,6 +46,19 @@ def refuse_existing(*paths: Path | None, force: bool) -> None:
 
     A path that is an existing folder is refused even with ``force`` (nothing replaces
     a folder). None entries (options not given) are skipped.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     out = pathlib.Path(tmp) / "table.csv"
+    ...     refuse_existing(out, None, force=False)  # not there yet
+    ...     _ = out.write_text("x")
+    ...     refuse_existing(out, force=True)  # there, and --force given
+    ...     refuse_existing(out, force=False)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.OutputError: .../table.csv: exists; use --force to replace it
     """
     for path in paths:
         if path is None:
@@ -61,12 +74,25 @@ err_console = Console(stderr=True, highlight=False)
 
 
 def emit_json(obj: Any) -> None:
-    """Print exactly one JSON document on stdout."""
+    """Print exactly one JSON document on stdout.
+
+    Examples
+    --------
+    >>> emit_json({"level_db": 94.0, "bands_hz": (500, 1000), "peak": float("nan")})
+    {
+      "level_db": 94.0,
+      "bands_hz": [
+        500,
+        1000
+      ],
+      "peak": null
+    }
+    """
     sys.stdout.write(json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n")
     sys.stdout.flush()
 
 
-def interactive() -> bool:
+def _interactive() -> bool:
     """True when stdout and stderr are both terminals (progress bars are shown)."""
     return sys.stdout.isatty() and sys.stderr.isatty()
 
@@ -77,8 +103,18 @@ def progress(description: str, total: float | None) -> Iterator[Any]:
 
     Yields a function ``advance(amount)``. The bar is drawn on stderr so a JSON document
     on stdout is never mixed with it.
+
+    Examples
+    --------
+    Under doctest stdout is not a terminal, so nothing is drawn:
+
+    >>> with progress("Reading x.wav", total=3) as advance:
+    ...     for _ in range(3):
+    ...         advance(1)
+    >>> print("done")
+    done
     """
-    if not interactive():
+    if not _interactive():
         yield lambda amount=1: None
         return
     bar = Progress(

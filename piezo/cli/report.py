@@ -19,7 +19,16 @@ __all__ = ["register", "report"]
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``report`` command to ``app``."""
+    """Add the ``report`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['report']
+    """
     app.command(
         "report",
         help="Write an HTML report (plots embedded, printable, offline) and its JSON per file.",
@@ -62,6 +71,20 @@ def report(
     their evidence, the levels, the spectra and the filter self-test at the file's sample
     rate; it embeds its figures and needs no network. Every file gets its report even
     when another fails; the exit code is 2 if any could not be analysed.
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["report", "recordings/pd27-golden/PD27-23001.flac", "--out", tmp, "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    { "reports": [ { "file": "recordings/pd27-golden/PD27-23001.flac",
+    "html": ".../PD27-23001.report.html", "json": ".../PD27-23001.report.json",
+    "verdict": "warn" } ], "failed": [] }
+    0
     """
     thresholds = resolve_thresholds(thresholds_file, threshold, expected_corner)
     if frontend is not None and not frontend.is_file():

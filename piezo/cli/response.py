@@ -54,7 +54,16 @@ FRONTEND_CAUTION = (
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``response`` and ``fit-frontend`` commands to ``app``."""
+    """Add the ``response`` and ``fit-frontend`` commands to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['response', 'fit-frontend']
+    """
     app.command(
         "response",
         help="Frequency response H1 = Gxy/Gxx with coherence from a two-channel recording.",
@@ -106,7 +115,17 @@ SmoothOption = Annotated[
 
 
 def parse_frequency(text: str, what: str) -> float:
-    """A positive frequency from user text."""
+    """A positive frequency from user text.
+
+    Examples
+    --------
+    >>> parse_frequency("1 kHz", "--reference-frequency")
+    1000.0
+    >>> parse_frequency("0 Hz", "--fit-from")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --fit-from must be a positive frequency, got '0 Hz'
+    """
     value = parse_quantity(text, "Hz", what=what)
     if not (math.isfinite(value) and value > 0):
         raise InputError(f"{what} must be a positive frequency, got {text!r}")
@@ -117,7 +136,17 @@ _DB_SPL_RE = re.compile(r"^\s*([-+]?\d+(?:\.\d*)?)\s*dB(?:\s*SPL)?\s*$", re.IGNO
 
 
 def parse_acoustic_level(text: str | None) -> float | None:
-    """``"94 dB"`` (dB SPL re 20 µPa) or ``"1.2 Pa"`` (RMS) → pascals RMS."""
+    """``"94 dB"`` (dB SPL re 20 µPa) or ``"1.2 Pa"`` (RMS) → pascals RMS.
+
+    Examples
+    --------
+    94 dB re 20 µPa is 20 µPa · 10^(94/20) = 1.0024 Pa:
+
+    >>> round(parse_acoustic_level("94 dB"), 4), parse_acoustic_level("1.2 Pa")
+    (1.0024, 1.2)
+    >>> parse_acoustic_level(None) is None
+    True
+    """
     if text is None:
         return None
     m = _DB_SPL_RE.match(text)
@@ -141,7 +170,22 @@ def _band_text(lo: float, hi: float, lo_limited: bool, hi_limited: bool) -> str:
 
 
 def print_fit(doc: dict[str, Any]) -> None:
-    """Terminal summary of :func:`fit_document`'s numbers."""
+    """Terminal summary of :func:`fit_document`'s numbers.
+
+    Examples
+    --------
+    A first-order 50 Hz high-pass at -40 dB is 10·lg(1 + 0.05²) = 0.01 dB down at 1 kHz:
+
+    >>> import numpy as np
+    >>> from piezo.response.fit import fit_response
+    >>> from piezo.response.summary import fit_document
+    >>> f = np.geomspace(10.0, 10e3, 200)
+    >>> print_fit(fit_document(fit_response(f, -40 - 10 * np.log10(1 + (50 / f) ** 2))))
+    sensitivity   -40.01 dB (relative) at 1000 Hz
+    low corner    50.0... Hz ..., order 1
+    resonance     none inside the band
+    ...
+    """
     unit = doc["magnitude_unit"] or "dB (relative)"
     sens = f"{doc['sensitivity_db']:.2f} {unit}"
     if doc["sensitivity_mv_per_pa"] is not None:
@@ -179,7 +223,22 @@ def print_fit(doc: dict[str, Any]) -> None:
 
 
 def write_csv(path: Path, table: ResponseTable) -> None:
-    """Write the response table atomically."""
+    """Write the response table atomically.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> import numpy as np
+    >>> from piezo.response.fit import ResponseTable
+    >>> table = ResponseTable(np.array([100.0, 1000.0]), np.array([-40.5, -40.0]))
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     write_csv(pathlib.Path(tmp) / "response.csv", table)
+    ...     print((pathlib.Path(tmp) / "response.csv").read_text(), end="")
+    # piezo response table
+    frequency_hz,magnitude_db
+    100,-40.5000
+    1000,-40.0000
+    """
     write_text_atomic(path, format_response_csv(table))
 
 
@@ -272,6 +331,18 @@ def response(
     the back-to-back comparison method (ISO 16063-21; IEC 60565 and IEC 61094-5 in
     pressure): each unit's sensitivity against frequency in its quantity's unit, with an
     expanded uncertainty and its GUM budget (docs/uncertainty.md).
+
+    Examples
+    --------
+    Both channels are taken in volts, so H1 is in V/V:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["response", "recordings/valve-pickup-noise-2ch.flac", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "channel": 1, "magnitude_unit": "dB re 1 V/V", ... "corner_order": 1, ...}
+    0
     """
     refuse_existing(csv, plot, write_curve, write_profile, force=force)
     ref_expanded_db = (
@@ -499,6 +570,16 @@ def fit_frontend(
     (or any table of frequency and magnitude in dB). Each fitted value comes with an
     uncertainty from the fit's covariance: printed expanded (k = 2), standard (1σ) in
     the JSON's ``*_std*`` keys.
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["fit-frontend", "recordings/valve-pickup-golden.csv", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "points": 239, ... "corner_hz": 77.2..., ... "corner_order": 1, ...}
+    0
     """
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     table = read_response_table(file, what="response file")

@@ -35,14 +35,33 @@ PRINTED_PEAKS = 5
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``spectrum`` command to ``app``."""
+    """Add the ``spectrum`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['spectrum']
+    """
     app.command("spectrum", help="Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG.")(
         spectrum
     )
 
 
 def parse_frequency(text: str, what: str) -> float:
-    """A positive frequency from user text such as ``"1Hz"`` or ``"2.5 kHz"``."""
+    """A positive frequency from user text such as ``"1Hz"`` or ``"2.5 kHz"``.
+
+    Examples
+    --------
+    >>> parse_frequency("2.5 kHz", "--resolution"), parse_frequency("1Hz", "--resolution")
+    (2500.0, 1.0)
+    >>> parse_frequency("-1 Hz", "--resolution")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --resolution must be a positive frequency, got '-1 Hz'
+    """
     value = parse_quantity(text, "Hz", what=what)
     if not value > 0:
         raise InputError(f"{what} must be a positive frequency, got {text!r}")
@@ -109,6 +128,19 @@ def spectrum(
     equals scipy.signal.welch on the same data; the report gives the window's
     equivalent noise bandwidth, the number of averages and a 95 % chi-square confidence
     interval from the effective number of independent averages (Welch 1967).
+
+    Examples
+    --------
+    The Hann window's equivalent noise bandwidth is 1.5 bins (Harris 1978, Table 1):
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["spectrum", "recordings/pd27-golden/PD27-23001.flac", "--resolution", "10Hz",
+    ...           "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "resolution_hz": 10.0, "window": "hann", ... "enbw_bins": 1.49..., ...}
+    0
     """
     refuse_existing(csv, plot, force=force)
     _choice(window, WINDOWS, "--window")
@@ -156,7 +188,7 @@ def spectrum(
     ref = measured.reference
     level_unit = measured.level_unit
     if csv is not None:
-        write_text_atomic(csv, format_csv(result, source.channel_indices, unit, ref, level_unit))
+        write_text_atomic(csv, _format_csv(result, source.channel_indices, unit, ref, level_unit))
     if plot is not None and spectro is not None:
         write_plot(
             plot,
@@ -181,7 +213,7 @@ def spectrum(
             err_console.print(f"{what} written: {path}")
 
 
-def format_csv(
+def _format_csv(
     result: PSDResult,
     channels: tuple[int, ...],
     unit: str,

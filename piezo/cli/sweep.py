@@ -66,11 +66,20 @@ sweep_app = typer.Typer(
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``sweep`` command group to ``app``."""
+    """Add the ``sweep`` command group to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [group.name for group in app.registered_groups]
+    ['sweep']
+    """
     app.add_typer(sweep_app, name="sweep")
 
 
-def stimulus_sidecar(wav: Path) -> Path:
+def _stimulus_sidecar(wav: Path) -> Path:
     """``NAME.stimulus.toml`` beside ``NAME.wav``."""
     return wav.with_name(wav.stem + STIMULUS_SUFFIX)
 
@@ -92,7 +101,7 @@ def _parse_rate(text: str) -> float:
     return float(round(rate))
 
 
-def seconds(text: str, what: str) -> float:
+def _seconds(text: str, what: str) -> float:
     """A duration that may be zero (silences, fades)."""
     try:
         return parse_duration(text, what=what)
@@ -114,7 +123,7 @@ def _write_stimulus(out: Path, samples: np.ndarray, rate: float, subtype: str, t
         raise InputError(f"--out {out.name!r}: the stimulus is written as .wav or .flac")
     if not sf.check_format(fmt, subtype):
         raise InputError(f"--subtype {subtype} cannot be written as {fmt}")
-    side = stimulus_sidecar(out)
+    side = _stimulus_sidecar(out)
     with atomic_output(out) as tmp:
         sf.write(str(tmp), samples, int(rate), subtype=subtype, format=fmt)
     write_text_atomic(side, toml)
@@ -174,8 +183,24 @@ def make(
 
     The sweep runs from --from to --to in --duration with half-Hann fades, between
     silences; NAME.stimulus.toml beside NAME.wav records every parameter.
+
+    Examples
+    --------
+    0.5 s of silence, the 0.5 s sweep and 1 s of silence at 16 kHz make 32000 frames:
+
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["sweep", "make", "--from", "20Hz", "--to", "4kHz", "--duration", "0.5s",
+    ...               "--rate", "16k", "--out", f"{tmp}/sweep.wav", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "frames": 32000, "kind": "exponential-sine-sweep", ...
+    "silence_before_s": 0.5, "silence_after_s": 1.0, ...}
+    0
     """
-    refuse_existing(out, stimulus_sidecar(out), force=force)
+    refuse_existing(out, _stimulus_sidecar(out), force=force)
 
     spec = sweep_spec(
         parse_frequency(start, "--from"),
@@ -183,10 +208,10 @@ def make(
         parse_duration(duration, what="--duration"),
         _parse_rate(rate),
         level_dbfs=_parse_level(level),
-        fade_in_s=None if fade_in is None else seconds(fade_in, "--fade-in"),
-        fade_out_s=None if fade_out is None else seconds(fade_out, "--fade-out"),
-        silence_before_s=seconds(silence_before, "--silence-before"),
-        silence_after_s=seconds(silence_after, "--silence-after"),
+        fade_in_s=None if fade_in is None else _seconds(fade_in, "--fade-in"),
+        fade_out_s=None if fade_out is None else _seconds(fade_out, "--fade-out"),
+        silence_before_s=_seconds(silence_before, "--silence-before"),
+        silence_after_s=_seconds(silence_after, "--silence-after"),
         acoustic_level_pa=parse_acoustic_level(acoustic_level),
     )
     side = _write_stimulus(
@@ -227,17 +252,31 @@ def noise(
     force: ForceOption = False,
     json_out: JsonOption = False,
 ) -> None:
-    """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar."""
+    """Write seeded pink or white noise (a stimulus for piezo response) and its sidecar.
+
+    Examples
+    --------
+    >>> from piezo.cli import main
+    >>> import tempfile
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     try:
+    ...         main(["sweep", "noise", "--kind", "pink", "--duration", "0.5s", "--rate", "16k",
+    ...               "--out", f"{tmp}/pink.wav", "--json"])
+    ...     except SystemExit as done:
+    ...         print(done.code)
+    {... "frames": 8000, "kind": "noise", "color": "pink", ... "seed": 1, ...}
+    0
+    """
     if kind not in ("pink", "white"):
         raise InputError(f"--kind must be 'pink' or 'white', got {kind!r}")
-    refuse_existing(out, stimulus_sidecar(out), force=force)
+    refuse_existing(out, _stimulus_sidecar(out), force=force)
     spec = NoiseSpec(
         kind,
         parse_duration(duration, what="--duration"),
         _parse_rate(rate),
         _parse_level(level),
         seed=seed,
-        fade_s=seconds(fade, "--fade"),
+        fade_s=_seconds(fade, "--fade"),
     )
     side = _write_stimulus(
         out, noise_signal(spec), spec.sample_rate_hz, _check_subtype(subtype), spec.to_toml()
@@ -257,12 +296,12 @@ def noise(
     )
 
 
-def load_sweep(path: Path) -> SweepSpec:
+def _load_sweep(path: Path) -> SweepSpec:
     """The sweep behind ``--stimulus``: a ``.toml`` sidecar, or a WAV with one beside it."""
     if path.suffix.lower() == ".toml":
         side = path
     else:
-        side = stimulus_sidecar(path)
+        side = _stimulus_sidecar(path)
         if not side.is_file():
             raise InputError(
                 f"no {side.name} beside the stimulus; give the {STIMULUS_SUFFIX} file written "
@@ -341,11 +380,24 @@ def analyze(
     chain is ignored: it is what is measured). With the sweep's acoustic level the
     magnitude is a sensitivity in dB re 1 V/Pa, otherwise it is relative to the
     stimulus (dB re 1 V per stimulus full scale).
+
+    Examples
+    --------
+    A capture of the sweep itself (the demo's loop-back) has no latency:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["sweep", "analyze", "recordings/valve-pickup-sweep.flac",
+    ...           "--stimulus", "recordings/valve-pickup-sweep.stimulus.toml", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "latency_frames": 0, ... "magnitude_unit": "dB re 1 V/Pa", ...}
+    0
     """
     refuse_existing(csv, plot, force=force)
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     thd_freqs = parse_frequency_list(thd_at, what="--thd-at")
-    spec = load_sweep(stimulus)
+    spec = _load_sweep(stimulus)
     level_pa = parse_acoustic_level(acoustic_level)
     source = open_source(file, src)
     if len(source.channel_indices) != 1:

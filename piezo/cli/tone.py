@@ -17,11 +17,20 @@ from piezo.tone.summary import tone_of
 
 
 def register(app: typer.Typer) -> None:
-    """Add the ``tone`` command to ``app``."""
+    """Add the ``tone`` command to ``app``.
+
+    Examples
+    --------
+    >>> import typer
+    >>> app = typer.Typer()
+    >>> register(app)
+    >>> [command.name for command in app.registered_commands]
+    ['tone']
+    """
     app.command("tone", help="Test-tone frequency, level, THD, THD+N, SINAD and SNR.")(tone)
 
 
-def parse_bandwidth(text: str) -> tuple[float, float]:
+def _parse_bandwidth(text: str) -> tuple[float, float]:
     """``"20Hz:20kHz"`` -> ``(20.0, 20000.0)``."""
     parts = text.split(":")
     if len(parts) != 2:
@@ -70,8 +79,20 @@ def tone(
 
     The whole recording is averaged into a 1 Hz Blackman-Harris Welch spectrum; a
     recording shorter than 1 s is analysed as one segment.
+
+    Examples
+    --------
+    The calibrator of the demo runs 1.3 Hz above its nominal 1 kHz:
+
+    >>> from piezo.cli import main
+    >>> try:
+    ...     main(["tone", "recordings/calibrator-94dB.wav", "--json"])
+    ... except SystemExit as done:
+    ...     print(done.code)
+    {... "resolution_hz": 1.0, ... "frequency_hz": 1001.2..., ...}
+    0
     """
-    given = parse_bandwidth(bandwidth) if bandwidth is not None else None
+    given = _parse_bandwidth(bandwidth) if bandwidth is not None else None
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
     noise_source = open_source(noise, src) if noise is not None else None

@@ -14,7 +14,18 @@ from piezo.cli.output import console, emit_json, progress
 
 
 def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3) -> None:
-    """Print (or emit as JSON) the transient view of an opened source."""
+    """Print (or emit as JSON) the transient view of an opened source.
+
+    Examples
+    --------
+    The exposure level of an event is 10·lg of its energy: 10·lg(1.4875e-4 V²·s) = -38.28 dB:
+
+    >>> from pathlib import Path
+    >>> import piezo
+    >>> tap = Path("recordings/element-lot/tap/EL-29101.flac")
+    >>> transient_view(tap, piezo.open(tap), json_out=True)
+    {... "energy": 0.000148..., "exposure_level_db": -38.27..., ...}
+    """
     from piezo.spectral.transient import TransientAnalyzer
 
     fs = source.sample_rate_hz

@@ -53,6 +53,19 @@ def histogram_figure(summary: Mapping[str, Any], metric: MetricSpec) -> bytes | 
     ``summary`` is the metric's entry of the batch summary (its ``histogram`` edges and
     counts, values outside the range counted in ``below``/``above``). Returns None when
     no capture has a value.
+
+    Examples
+    --------
+    >>> from piezo.batch.outputs import summarize
+    >>> from piezo.batch.spec import load_spec
+    >>> from piezo.plots.style import capture_figures
+    >>> spec = load_spec("recordings/pd27-spec.toml")
+    >>> rows = [{"verdict": "pass", "metrics": {"sensitivity": v}} for v in (-42.0, -41.5, -41.0)]
+    >>> summary = summarize(rows, spec)["metrics"][0]
+    >>> with capture_figures() as figs:
+    ...     _ = histogram_figure(summary, spec.metrics[0])
+    >>> figs[0].axes[0].get_title(loc="left")
+    '3 captures'
     """
     hist = summary["histogram"]
     edges, counts = list(hist["edges"]), list(hist["counts"])
@@ -116,6 +129,20 @@ def response_figure(response: Mapping[str, Any] | None, spec: Spec) -> bytes | N
     Curves given relative to a frequency (``relative_to_hz``) are shifted to meet the
     measured curve there. Mask lines take the style of their limit's severity. Returns
     None without a response.
+
+    Examples
+    --------
+    >>> from piezo.batch.spec import load_spec
+    >>> from piezo.plots.style import capture_figures
+    >>> spec = load_spec("recordings/pd27-spec.toml")
+    >>> f = [100.0, 1000.0, 5000.0]
+    >>> with capture_figures() as figs:
+    ...     _ = response_figure({"frequency_hz": f, "magnitude_db": [-42.0] * 3}, spec)
+    >>> labels = [t.get_text() for t in figs[0].legends[0].get_texts()]
+    >>> labels[:2]
+    ['measured', 'golden response']
+    >>> response_figure(None, spec) is None
+    True
     """
     if not response:
         return None

@@ -45,6 +45,17 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
     """Band levels seen by the roll-off check, with the fitted high-pass shape.
 
     Returns None when the check saw no bands (nothing to show).
+
+    Examples
+    --------
+    >>> import piezo
+    >>> from piezo.diagnostics.summary import check_of
+    >>> from piezo.plots.style import capture_figures
+    >>> checked = check_of(piezo.open("recordings/pd27-golden/PD27-23001.flac"))
+    >>> with capture_figures() as figs:
+    ...     png = rolloff_figure(checked.diagnostics.channels[0], "dB re 1 V")
+    >>> png[:4], figs[0].axes[0].get_xlabel()
+    (b'\x89PNG', 'frequency / Hz')
     """
     r = ch.rolloff
     if not r.band_hz:
@@ -115,7 +126,20 @@ def level_history_figure(
 ) -> bytes:
     """LAeq per interval (steps) and the LAF trace, per channel, against the recording's
     time, which starts at ``start_time_s`` (the time of the first sample, e.g. a scope's
-    pre-trigger)."""
+    pre-trigger).
+
+    Examples
+    --------
+    >>> from piezo.levels.meter import LevelMeter
+    >>> from piezo.plots.style import capture_figures
+    >>> meter = LevelMeter(8000, 1, interval_s=0.25)
+    >>> meter.update(np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000)[:, None])
+    >>> with capture_figures() as figs:
+    ...     _ = level_history_figure(meter.result(), [0], "dB re 1 V")
+    >>> ax = figs[0].axes[0]
+    >>> ax.get_title(loc="left"), ax.get_xlabel(), ax.get_ylabel()
+    ('Level history', 'time / s', 'level / dB re 1 V')
+    """
     h = levels.history
     assert h is not None
     rows = math.ceil(2 * len(channels) / 4)
@@ -151,7 +175,18 @@ def level_history_figure(
 
 
 def frontend_figure(fr: FrontendResponse) -> bytes:
-    """Magnitude (re midband) and phase of a front-end design against frequency."""
+    """Magnitude (re midband) and phase of a front-end design against frequency.
+
+    Examples
+    --------
+    >>> from piezo.plots.style import capture_figures
+    >>> from piezo.report.run import frontend_response
+    >>> fr = frontend_response("recordings/designs/film-buffer-voltage.toml", top_hz=20e3)
+    >>> with capture_figures() as figs:
+    ...     _ = frontend_figure(fr)
+    >>> [ax.get_ylabel() for ax in figs[0].axes]  # magnitude, and phase on a twin axis
+    ['level re midband / dB', 'phase / °']
+    """
     sm = fr.summary
     with plot_style():
         fig, ax = figure(6.6, 4.2)
@@ -188,7 +223,19 @@ def _ref_text(reference: float, unit: str) -> str:
 
 
 def psd_figure(psd: PSDResult, channels: list[int], reference: float, unit: str) -> bytes:
-    """Welch PSD per channel, dB re reference²/Hz, on a logarithmic frequency axis."""
+    """Welch PSD per channel, dB re reference²/Hz, on a logarithmic frequency axis.
+
+    Examples
+    --------
+    >>> from piezo.plots.style import capture_figures
+    >>> from piezo.spectral.welch import WelchPSD
+    >>> psd = WelchPSD(8000, 1, segment_frames=1024)
+    >>> psd.update(np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000)[:, None])
+    >>> with capture_figures() as figs:
+    ...     png = psd_figure(psd.result(), [0], 1.0, "V")
+    >>> png[:4], figs[0].axes[0].get_ylabel()
+    (b'\x89PNG', 'PSD / dB re (1 V)²/Hz')
+    """
     f = psd.frequency_hz[1:]
     with np.errstate(divide="ignore"):
         level = 10.0 * np.log10(psd.psd[1:] / reference**2)
@@ -217,7 +264,20 @@ _HATCHES = ("", "////", "....", "xxxx")
 def bands_figure(
     bands: BandResult, channels: list[int], reference: float, level_unit: str
 ) -> bytes:
-    """Band levels per channel as grouped bars (hatched per channel, for greyscale)."""
+    """Band levels per channel as grouped bars (hatched per channel, for greyscale).
+
+    Examples
+    --------
+    >>> from piezo.plots.style import capture_figures
+    >>> from piezo.spectral.bands import BandAnalyzer
+    >>> bank = BandAnalyzer(8000, 2, fraction=1, low_hz=250.0, high_hz=2000.0)
+    >>> bank.update(np.random.default_rng(1).standard_normal((8000, 2)))
+    >>> with capture_figures() as figs:
+    ...     _ = bands_figure(bank.result(), [0, 1], 1.0, "dB re 1 V")
+    >>> ax = figs[0].axes[0]
+    >>> len(ax.patches), ax.get_ylabel()  # 4 octaves (250 Hz to 2 kHz), 2 channels
+    (8, 'band level / dB re 1 V')
+    """
     level = bands.level_db(reference)
     labels = [b.label for b in bands.bands]
     n = len(labels)
@@ -281,7 +341,20 @@ def spectrogram_figure(
     start_time_s: float = 0.0,
 ) -> bytes:
     """Spectrogram of one channel: time against frequency (logarithmic), level in dB; the
-    time axis is the recording's, starting at ``start_time_s`` (the first sample's)."""
+    time axis is the recording's, starting at ``start_time_s`` (the first sample's).
+
+    Examples
+    --------
+    >>> from piezo.plots.style import capture_figures
+    >>> from piezo.spectral.welch import Spectrogram
+    >>> sg = Spectrogram(8000, 1, segment_frames=256)
+    >>> sg.update(np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000)[:, None])
+    >>> with capture_figures() as figs:
+    ...     _ = spectrogram_figure(sg.result(), 0, 0, 1.0, "V")
+    >>> ax, bar = figs[0].axes  # the image and its colour bar
+    >>> ax.get_title(loc="left"), ax.get_yscale(), bar.get_ylabel()
+    ('Channel 0: spectrogram', 'log', 'PSD / dB re (1 V)²/Hz')
+    """
     level = sg.level_db(reference)[:, 1:, index]  # drop DC for the log axis
     f = sg.frequency_hz[1:]
     t = start_time_s + sg.time_s

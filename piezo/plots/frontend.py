@@ -29,7 +29,18 @@ _P_REF_PA = 20e-6
 def frontend_design_figure(fe: Frontend, *, title: str) -> Figure:
     """Level re midband (with a ±1 dB band), phase, and the input-referred noise budget
     (each source and the total) of ``fe``, from a twentieth of its corner to 40 kHz (or
-    three times the sensor's resonance)."""
+    three times the sensor's resonance).
+
+    Examples
+    --------
+    >>> from piezo.frontend.model import load_frontend
+    >>> fe = load_frontend("recordings/designs/film-buffer-voltage.toml")
+    >>> fig = frontend_design_figure(fe, title="film buffer")
+    >>> [ax.get_ylabel() for ax in fig.axes]
+    ['level re midband / dB', 'phase / °', 'input noise / dB re 20 µPa/√Hz']
+    >>> fig.axes[2].get_legend().get_texts()[-1].get_text()
+    'total'
+    """
     summary = summarise_response(fe)
     top = max(40e3, 3 * (fe.sensor.resonance_hz or 0.0))
     f = np.geomspace(max(summary.corner_hz / 20, 1e-4), top, 1500)
@@ -64,5 +75,17 @@ def frontend_design_figure(fe: Frontend, *, title: str) -> Figure:
 
 def write_plot(fe: Frontend, path: Path, *, title: str) -> None:
     """Write :func:`frontend_design_figure` to ``path`` atomically (PNG, SVG or PDF by
-    the suffix)."""
+    the suffix).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.frontend.model import load_frontend
+    >>> fe = load_frontend("recordings/designs/film-buffer-voltage.toml")
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     path = pathlib.Path(tmp) / "design.png"
+    ...     write_plot(fe, path, title="film buffer")
+    ...     path.read_bytes()[:4]
+    b'\\x89PNG'
+    """
     save_figure(frontend_design_figure(fe, title=title), path)

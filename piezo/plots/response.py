@@ -32,7 +32,19 @@ def response_figure(
     lower: str = "distortion",
 ) -> Figure:
     """Magnitude (raw and, when ``smooth``, 1/smooth-octave smoothed), phase, and in the
-    lowest panel the harmonic distortion or (``lower="coherence"``) the coherence."""
+    lowest panel the harmonic distortion or (``lower="coherence"``) the coherence.
+
+    Examples
+    --------
+    >>> from piezo.response.fit import ResponseTable
+    >>> f = np.geomspace(20.0, 20e3, 200)
+    >>> mag = -40.0 - 10 * np.log10(1 + (40.0 / f) ** 2)  # a first-order 40 Hz high-pass
+    >>> extra = {"coherence": np.full(f.size, 0.99)}
+    >>> table = ResponseTable(f, mag, np.degrees(np.arctan(40.0 / f)), "dB re 1 V/Pa", extra)
+    >>> fig = response_figure(table, title="unit A", smooth=6, lower="coherence")
+    >>> [ax.get_ylabel() for ax in fig.axes]
+    ['magnitude / dB re 1 V/Pa', 'phase / °', 'coherence γ² / 1']
+    """
     f = table.frequency_hz
     unit = table.magnitude_unit or "dB (relative)"
     with plot_style():
@@ -89,7 +101,20 @@ def write_plot(
     golden: ResponseTable | None = None,
     lower: str = "distortion",
 ) -> None:
-    """Write :func:`response_figure` to ``path`` atomically (format from the suffix)."""
+    """Write :func:`response_figure` to ``path`` atomically (format from the suffix).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.response.fit import ResponseTable
+    >>> f = np.geomspace(20.0, 20e3, 50)
+    >>> table = ResponseTable(f, np.full(f.size, -40.0), None, "dB re 1 V/Pa", {})
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     path = pathlib.Path(tmp) / "response.png"
+    ...     write_plot(path, table, title="flat", smooth=0)
+    ...     path.read_bytes()[:4]
+    b'\x89PNG'
+    """
     save_figure(
         response_figure(table, title=title, smooth=smooth, golden=golden, lower=lower), path
     )

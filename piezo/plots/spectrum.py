@@ -41,7 +41,19 @@ def spectrum_figure(
     """PSD level of every channel over log frequency, and the first channel's spectrogram
     (time-decimated by averaging); ``level_unit`` is the PSD's level unit text. The time
     axis is the recording's: it starts at ``start_time_s``, the time of the first sample
-    (:attr:`piezo.io.reader.Recording.start_time_s`, e.g. a scope's pre-trigger)."""
+    (:attr:`piezo.io.reader.Recording.start_time_s`, e.g. a scope's pre-trigger).
+
+    Examples
+    --------
+    >>> from piezo.spectral.welch import Spectrogram, WelchPSD
+    >>> x = np.random.default_rng(1).standard_normal((8000, 2))
+    >>> psd, sg = WelchPSD(8000, 2, segment_frames=1024), Spectrogram(8000, 2, segment_frames=256)
+    >>> psd.update(x); sg.update(x)
+    >>> fig = spectrum_figure(psd.result(), sg, (0, 1), "x.wav", "dB re (1 V)²/Hz", 1.0)
+    >>> ax_psd = fig.axes[0]  # then the spectrogram and its colour bar
+    >>> len(fig.axes), [t.get_text() for t in ax_psd.get_legend().get_texts()]
+    (3, ['channel 0', 'channel 1'])
+    """
     f = result.frequency_hz[1:]
     s = spectro.result()
     fs_ = s.frequency_hz[1:]
@@ -107,7 +119,21 @@ def write_plot(
     *,
     start_time_s: float = 0.0,
 ) -> None:
-    """Write :func:`spectrum_figure` to ``path`` atomically (format from the suffix)."""
+    """Write :func:`spectrum_figure` to ``path`` atomically (format from the suffix).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from piezo.spectral.welch import Spectrogram, WelchPSD
+    >>> x = np.random.default_rng(1).standard_normal((8000, 1))
+    >>> psd, sg = WelchPSD(8000, 1, segment_frames=1024), Spectrogram(8000, 1, segment_frames=256)
+    >>> psd.update(x); sg.update(x)
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     path = pathlib.Path(tmp) / "psd.png"
+    ...     write_plot(path, psd.result(), sg, (0,), "x.wav", "dB re (1 V)²/Hz", 1.0)
+    ...     path.read_bytes()[:4]
+    b'\\x89PNG'
+    """
     fig = spectrum_figure(
         result, spectro, channels, name, level_unit, reference, start_time_s=start_time_s
     )

@@ -79,7 +79,15 @@ FONT_SIZES = {"title": 10.0, "label": 9.0, "tick": 8.0, "legend": 8.0, "note": 8
 
 @dataclass(frozen=True)
 class TraceStyle:
-    """Colour, dash pattern, width and marker of one trace."""
+    """Colour, dash pattern, width and marker of one trace.
+
+    Examples
+    --------
+    >>> TraceStyle("#1d3557", "-", 1.4, None).linewidth
+    1.4
+    >>> len({t.linestyle for t in TRACES}) == len(TRACES)  # no two share a dash pattern
+    True
+    """
 
     color: str
     linestyle: str | tuple[int, tuple[float, ...]]
@@ -185,7 +193,15 @@ def _rc() -> dict[str, Any]:
 
 @contextlib.contextmanager
 def plot_style() -> Iterator[None]:
-    """Apply the project style to the figures made and rendered inside the block."""
+    """Apply the project style to the figures made and rendered inside the block.
+
+    Examples
+    --------
+    >>> import matplotlib
+    >>> with plot_style():
+    ...     matplotlib.rcParams["font.family"], matplotlib.rcParams["axes.grid"]
+    (['DejaVu Sans'], True)
+    """
     import matplotlib
 
     rc: Any = _rc()  # matplotlib types the keys as literals; ours are checked at run time
@@ -249,7 +265,18 @@ def panels(
 
 
 def legend_below(fig: Figure, ncol: int) -> None:
-    """The figure's legend in the room :func:`figure` left under the axes."""
+    """The figure's legend in the room :func:`figure` left under the axes.
+
+    Examples
+    --------
+    >>> with plot_style():
+    ...     fig, ax = figure(legend_rows=1)
+    ...     for i in range(2):
+    ...         _ = ax.plot([0, 1], [i, i], label=f"channel {i}", **trace(i))
+    ...     legend_below(fig, ncol=2)
+    >>> [t.get_text() for t in fig.legends[0].get_texts()]
+    ['channel 0', 'channel 1']
+    """
     fig.legend(loc="lower center", ncol=ncol, bbox_to_anchor=(0.5, 0.0))
 
 
@@ -265,7 +292,15 @@ def limit_line(severity: str) -> dict[str, Any]:
 
 
 def trace(index: int) -> dict[str, Any]:
-    """Keyword arguments for ``Axes.plot`` of the ``index``-th trace."""
+    """Keyword arguments for ``Axes.plot`` of the ``index``-th trace.
+
+    Examples
+    --------
+    >>> trace(0)
+    {'color': '#1d3557', 'linestyle': '-', 'linewidth': 1.4}
+    >>> trace(len(TRACES)) == trace(0)  # the styles repeat after the last one
+    True
+    """
     style = TRACES[index % len(TRACES)]
     kw: dict[str, Any] = {
         "color": style.color,
