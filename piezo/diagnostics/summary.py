@@ -81,6 +81,15 @@ def diagnostics_document(diagnostics: CaptureDiagnostics) -> dict[str, Any]:
     The checker's full scale is in the capture's unit; it is given as ``full_scale_pa``
     (``None`` without a sensitivity, when the unit is volts). The level reference is the
     chain's (``chain.reference_pa``, or 1 V as ``level_unit`` says), so it is not repeated.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from piezo.diagnostics.checker import check_capture
+    >>> x = 0.25 * np.sin(2 * np.pi * 1000 * np.arange(48000) / 48000)[:, None]
+    >>> doc = diagnostics_document(check_capture(x, 48000.0, full_scale=1.0, unit="V"))
+    >>> doc["full_scale_pa"], "reference" in doc   # volts: no full scale in pascals
+    (None, False)
     """
     doc: dict[str, Any] = {}
     for key, value in diagnostics.as_dict().items():

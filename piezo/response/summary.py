@@ -571,6 +571,21 @@ class ComparisonChannel:
         Frequencies below this coherence are left out of the chart.
     band_hz
         The band written to a chart: the reference's chart range within the estimate's.
+
+    Examples
+    --------
+    The demo bench's unit under test (channel 1) against its reference (channel 0,
+    10.15 mV/g with its chart): the simulation's truth is 9.62 mV/g at 160 Hz
+    (:mod:`piezo.demo.bench`):
+
+    >>> import piezo
+    >>> src = piezo.open("recordings/accel-bench.flac")
+    >>> cmp = comparison_of(src, h1_response_of(src).estimate, reference_hz=160.0)
+    >>> unit = cmp.channels[0]
+    >>> unit.channel, unit.to_dict()["sensitivity"]
+    (1, '0.9810 mV/(m/s²) (9.621 mV/g)')
+    >>> unit.chart_text().splitlines()[1]
+    'frequency_hz,relative_db,phase_deg,expanded_uncertainty_db'
     """
 
     channel: int
@@ -637,6 +652,15 @@ class Comparison:
         Its response curve (chart), or None.
     channels
         One :class:`ComparisonChannel` per unit under test.
+
+    Examples
+    --------
+    >>> import piezo
+    >>> src = piezo.open("recordings/accel-bench.flac")
+    >>> cmp = comparison_of(src, h1_response_of(src).estimate, reference_hz=160.0)
+    >>> doc = cmp.to_dict()
+    >>> doc["reference_channel"], doc["reference_sensitivity"], len(doc["channels"])
+    (0, '1.035 mV/(m/s²) (10.15 mV/g)', 1)
     """
 
     reference_channel: int

@@ -40,6 +40,23 @@ def confidence_document(psd: PSDResult) -> dict[str, float] | None:
     ``coverage_probability`` (as in an uncertainty budget) and the bounds as offsets in
     dB to add to a PSD level; ``None`` for the median average, whose interval has no
     simple form.
+
+    Examples
+    --------
+    The bounds are the χ² interval of a mean of ν/2 independent periodograms,
+    ``10·lg(ν / χ²(ν, 1 − α/2))`` below and ``10·lg(ν / χ²(ν, α/2))`` above (Bendat &
+    Piersol, *Random Data*, 4th ed., 2010, 8.5.4):
+
+    >>> import numpy as np
+    >>> from scipy.stats import chi2
+    >>> from piezo.spectral.welch import WelchPSD
+    >>> psd = WelchPSD(8000.0, 1, segment_frames=256)
+    >>> psd.update(np.random.default_rng(1).standard_normal((8000, 1)))
+    >>> doc = confidence_document(psd.result())
+    >>> nu = psd.result().degrees_of_freedom
+    >>> expected = 10 * np.log10(nu / chi2.ppf(0.975, nu))
+    >>> doc["coverage_probability"], bool(abs(doc["lower_db"] - expected) < 1e-9)
+    (0.95, True)
     """
     if psd.ci_lower_db is None or psd.ci_upper_db is None:
         return None
