@@ -434,9 +434,11 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     ...     for name in ("PD27-24101.flac", "PD27-24107.flac", "PD27-24136.flac")
     ... ]
     >>> lines = results_csv_text(rows, spec).splitlines()
-    >>> lines[0]
+    >>> lines[:2]  # comment lines name each metric's unit
+    ['# piezo batch results', '# resonance: Hz']
+    >>> lines[2]
     'file,serial,verdict,resonance,failed_limits,warnings,not_evaluable,error,content_sha256,spec_sha256'
-    >>> lines[1].split(",")[:4]
+    >>> lines[3].split(",")[:4]
     ['PD27-24101.flac', '24101', 'pass', '4289.13']
     """
     names = [m.name for m in spec.metrics]

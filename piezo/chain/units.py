@@ -381,6 +381,24 @@ def parse_sensitivity(
 _MINUTES_HOURS_RE = re.compile(r"^\s*(" + _NUMBER + r")\s*(min|h)\s*$")
 
 
+def parse_frequency(text: str | float, what: str = "frequency") -> float:
+    """A finite, positive frequency from user text such as ``"1Hz"`` or ``"2.5 kHz"``.
+
+    Examples
+    --------
+    >>> parse_frequency("2.5 kHz", "--resolution"), parse_frequency("1Hz", "--resolution")
+    (2500.0, 1.0)
+    >>> parse_frequency("0 Hz", "--fit-from")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: --fit-from must be a positive frequency, got '0 Hz'
+    """
+    value = parse_quantity(text, "Hz", what=what)
+    if not (math.isfinite(value) and value > 0):
+        raise UnitError(f"{what} must be a positive frequency, got {text!r}")
+    return value
+
+
 def parse_duration(text: str | float, *, what: str = "duration") -> float:
     """Parse a duration (``"1s"``, ``"125 ms"``, ``"2 min"``, ``"1 h"``) in seconds.
 

@@ -11,7 +11,7 @@ import numpy as np
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_duration
+from piezo.chain.units import parse_duration, parse_frequency
 from piezo.cli.options import (
     JsonOption,
     SourceOptions,
@@ -28,7 +28,6 @@ from piezo.cli.output import (
     refuse_existing,
     write_text_atomic,
 )
-from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
 from piezo.io.tables import csv_text
 from piezo.plots.style import axis_label

@@ -19,7 +19,7 @@ import typer
 from rich.table import Table
 
 from piezo.chain.measurement import CalibratedSource, profile_for_sensor
-from piezo.chain.units import format_uncertain, parse_quantity
+from piezo.chain.units import format_uncertain, parse_frequency, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     ForceOption,
@@ -112,24 +112,6 @@ SmoothOption = Annotated[
         help="1/N-octave smoothing of the plotted magnitude only (0: none).",
     ),
 ]
-
-
-def parse_frequency(text: str, what: str) -> float:
-    """A positive frequency from user text.
-
-    Examples
-    --------
-    >>> parse_frequency("1 kHz", "--reference-frequency")
-    1000.0
-    >>> parse_frequency("0 Hz", "--fit-from")
-    Traceback (most recent call last):
-    ...
-    piezo.errors.InputError: --fit-from must be a positive frequency, got '0 Hz'
-    """
-    value = parse_quantity(text, "Hz", what=what)
-    if not (math.isfinite(value) and value > 0):
-        raise InputError(f"{what} must be a positive frequency, got {text!r}")
-    return value
 
 
 _DB_SPL_RE = re.compile(r"^\s*([-+]?\d+(?:\.\d*)?)\s*dB(?:\s*SPL)?\s*$", re.IGNORECASE)

@@ -10,7 +10,7 @@ import numpy as np
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_quantity
+from piezo.chain.units import parse_frequency
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     ForceOption,
@@ -48,24 +48,6 @@ def register(app: typer.Typer) -> None:
     app.command("spectrum", help="Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG.")(
         spectrum
     )
-
-
-def parse_frequency(text: str, what: str) -> float:
-    """A positive frequency from user text such as ``"1Hz"`` or ``"2.5 kHz"``.
-
-    Examples
-    --------
-    >>> parse_frequency("2.5 kHz", "--resolution"), parse_frequency("1Hz", "--resolution")
-    (2500.0, 1.0)
-    >>> parse_frequency("-1 Hz", "--resolution")
-    Traceback (most recent call last):
-    ...
-    piezo.errors.InputError: --resolution must be a positive frequency, got '-1 Hz'
-    """
-    value = parse_quantity(text, "Hz", what=what)
-    if not value > 0:
-        raise InputError(f"{what} must be a positive frequency, got {text!r}")
-    return value
 
 
 def _choice(value: str, allowed: tuple[str, ...], what: str) -> str:

@@ -16,7 +16,12 @@ import numpy as np
 import soundfile as sf
 import typer
 
-from piezo.chain.units import parse_duration, parse_frequency_list, parse_quantity
+from piezo.chain.units import (
+    parse_duration,
+    parse_frequency,
+    parse_frequency_list,
+    parse_quantity,
+)
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     ForceOption,
@@ -34,7 +39,6 @@ from piezo.cli.response import (
     ReferenceFrequencyOption,
     SmoothOption,
     parse_acoustic_level,
-    parse_frequency,
     print_fit,
     write_csv,
 )

@@ -9,9 +9,9 @@ from typing import Annotated
 import typer
 from rich.table import Table
 
+from piezo.chain.units import parse_frequency
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
-from piezo.cli.spectrum import parse_frequency
 from piezo.errors import InputError
 from piezo.tone.summary import tone_of
 

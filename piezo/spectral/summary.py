@@ -18,7 +18,7 @@ import numpy as np
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
-from piezo.results import to_jsonable
+from piezo.results import reference_key, to_jsonable
 from piezo.spectral.averaging import main_lobe_half_width_bins
 from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
 from piezo.spectral.peaks import PeakRule, SpectralPeak, distinct_peaks, scatter_dof
@@ -356,8 +356,8 @@ class Bands:
                     quantity=self.quantities[i],
                     unit=self.units[i],
                     level_unit=self.level_units[i],
-                    reference=self.references[i],
                 )
+                entry[reference_key(self.units[i])] = self.references[i]
             entry.update(
                 {
                     "bands": [

@@ -17,7 +17,7 @@ from typing import Any
 from piezo.chain.measurement import CalibratedSource
 from piezo.errors import InputError
 from piezo.response.uncertainty import Budget
-from piezo.results import to_jsonable
+from piezo.results import reference_key, to_jsonable
 from piezo.spectral.welch import WelchPSD
 from piezo.tone.analysis import (
     ToneAnalyzer,
@@ -139,7 +139,7 @@ class Tone:
             "quantity": self.quantities[i],
             "unit": self.units[i],
             "level_unit": self.level_units[i],
-            "reference": self.references[i],
+            reference_key(self.units[i]): self.references[i],
         }
 
 

@@ -15,6 +15,7 @@ from piezo.chain.units import (
     format_uncertain,
     parse_charge_gain,
     parse_duration,
+    parse_frequency,
     parse_frequency_list,
     parse_gain,
     parse_quantity,
@@ -220,3 +221,15 @@ def test_format_uncertain_keeps_two_digits_and_the_same_decimal_place(value, u):
     assert 1 <= len(digits.rstrip("0") or "1") <= 2
     assert float(u_text) == pytest.approx(2 * u, rel=0.06)
     assert abs(float(v_text) - value) <= float(u_text) / 10 + 1e-9 * abs(value) + 1e-12
+
+
+@given(st.floats(min_value=1e-6, max_value=1e9, allow_nan=False, allow_infinity=False))
+def test_parse_frequency_reads_back_any_positive_value(value):
+    assert parse_frequency(f"{value!r} Hz") == pytest.approx(value, rel=1e-12)
+    assert parse_frequency(f"{value / 1e3!r} kHz") == pytest.approx(value, rel=1e-12)
+
+
+@pytest.mark.parametrize("text", ["0 Hz", "-1 Hz", "inf Hz", "nan Hz", "1 s", ""])
+def test_parse_frequency_refuses_what_is_not_a_positive_frequency(text):
+    with pytest.raises(UnitError, match="--resolution"):
+        parse_frequency(text, "--resolution")
