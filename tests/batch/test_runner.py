@@ -20,6 +20,7 @@ from piezo.batch.spec import parse_spec
 from piezo.batch.verdict import FAIL, NOT_EVALUABLE, PASS, WARN
 from piezo.errors import InputError
 from tests import batch_fakes as fakes
+from tests.processes import interruptible
 
 SPEC = parse_spec(fakes.SPEC_TEXT)
 
@@ -256,6 +257,7 @@ def _start_holder(lot: Path, marks: Path, mode: str):
         [sys.executable, "-c", code, str(lot), str(marks), mode],
         cwd=REPO,
         env={**os.environ, "PYTHONPATH": str(REPO)},
+        preexec_fn=interruptible,
     )
     deadline = time.monotonic() + 120
     while len(list(marks.iterdir())) < 2:

@@ -19,6 +19,7 @@ import pytest
 
 from piezo.batch.outputs import JOURNAL_NAME, LOCK_NAME, RESULT_FILES, report_link
 from tests import batch_fakes as fakes
+from tests.processes import interruptible
 
 REPO = Path(__file__).resolve().parents[2]
 
@@ -162,6 +163,7 @@ def _start_slow_run(folder: Path, out: Path, *extra: str) -> subprocess.Popen:
         env=env,
         stdout=subprocess.DEVNULL,
         stderr=subprocess.PIPE,
+        preexec_fn=interruptible,
     )
 
 

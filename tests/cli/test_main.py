@@ -20,6 +20,7 @@ from piezo._kernels.cache import cache_folder
 from piezo.cli import COMMANDS, _load
 from piezo.tone.calibrator import calibrator_pressure_pa
 from tests.paths import REPO
+from tests.processes import interruptible
 
 #: The analysis stack: none of it may load for ``--help`` or ``--version``.
 ANALYSIS_STACK = ("numpy", "scipy", "numba", "matplotlib", "soundfile", "jinja2")
@@ -492,6 +493,7 @@ def test_interrupt_prints_one_line_and_exits_130(tmp_path):
         text=True,
         cwd=REPO.parent,
         env={**os.environ, "PYTHONPATH": str(REPO)},
+        preexec_fn=interruptible,
     )
     try:
         deadline = time.monotonic() + 120  # start-up on a loaded machine, with compiling
