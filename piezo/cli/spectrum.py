@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Annotated
 
@@ -135,6 +136,13 @@ def spectrum(
         return transient_view(file, source, json_out=json_out)
     fs = source.sample_rate_hz
     nch = len(source.channel_indices)
+    if plot is not None and len(set(source.units)) > 1:
+        raise InputError(
+            "--plot draws one quantity, and these channels measure "
+            f"{', '.join(sorted({c.quantity for c in source.chains}))}: choose one with "
+            "--channel N",
+            source=str(file),
+        )
     res_hz = parse_frequency(resolution, "--resolution") if resolution is not None else None
     spectro = None
     if plot is not None:
@@ -166,11 +174,19 @@ def spectrum(
             advance=advance,
         )
     result = measured.result
-    unit = measured.unit
     ref = measured.reference
     level_unit = measured.level_unit
     if csv is not None:
-        write_text_atomic(csv, _format_csv(result, source.channel_indices, unit, ref, level_unit))
+        write_text_atomic(
+            csv,
+            _format_csv(
+                result,
+                source.channel_indices,
+                measured.units,
+                measured.references,
+                measured.level_units,
+            ),
+        )
     if plot is not None and spectro is not None:
         write_plot(
             plot,
@@ -186,7 +202,7 @@ def spectrum(
     if json_out:
         emit_json(doc)
     else:
-        _print(doc, result, source.unit, ref, source.level_unit)
+        _print(doc, result)
     note = stationarity.result().note() if stationarity is not None else None
     if note is not None:
         err_console.print(f"note: {note}")
@@ -198,22 +214,23 @@ def spectrum(
 def _format_csv(
     result: PSDResult,
     channels: tuple[int, ...],
-    unit: str,
-    reference: float,
-    level_unit: str,
+    units: Sequence[str],
+    references: Sequence[float],
+    level_units: Sequence[str],
 ) -> str:
     """CSV text: frequency, then the PSD and its level for each channel.
 
-    Columns ``ch<N>_psd`` (in ``unit``) and ``ch<N>_psd_db`` (in ``level_unit``); a
-    ``# column: unit`` comment line above the header names each unit (docs/glossary.md).
+    Columns ``ch<N>_psd`` (in the channel's unit) and ``ch<N>_psd_db`` (in its level
+    unit); a ``# column: unit`` comment line above the header names each unit
+    (docs/glossary.md), so channels of different quantities keep theirs.
     """
     header = ["frequency_hz"]
     comments = ["piezo spectrum table"]
-    for ch in channels:
+    for ch, unit, level_unit in zip(channels, units, level_units, strict=True):
         header += [f"ch{ch}_psd", f"ch{ch}_psd_db"]
         comments += [f"ch{ch}_psd: {unit}", f"ch{ch}_psd_db: {level_unit}"]
     with np.errstate(divide="ignore"):
-        levels = 10 * np.log10(result.psd / reference**2)
+        levels = 10 * np.log10(result.psd / np.asarray(references, dtype=float) ** 2)
     rows = []
     for k, f in enumerate(result.frequency_hz):
         row = [f"{f:.6g}"]
@@ -224,7 +241,19 @@ def _format_csv(
     return csv_text(header, rows, comments=comments)
 
 
-def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit: str) -> None:
+def _levels_in(doc: dict) -> str:
+    if doc["level_unit"] != "per channel":
+        return str(doc["level_unit"])
+    return ", ".join(f"{e['level_unit']} (ch {e['channel']})" for e in doc["channels"])
+
+
+def _level_of_total(psd_level_unit: str) -> str:
+    """``dB re 20 µPa`` from a PSD level unit ``dB re (20 µPa)²/Hz`` (or ``…)²``)."""
+    ref = psd_level_unit.removeprefix("dB re (").split(")²")[0]
+    return f"dB re {ref}"
+
+
+def _print(doc: dict, result: PSDResult) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     ci = doc["confidence"]
     ci_text = (
@@ -241,24 +270,32 @@ def _print(doc: dict, result: PSDResult, unit: str, reference: float, level_unit
     )
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("ch", justify="right")
-    table.add_column(f"RMS {unit}", justify="right")
-    table.add_column(f"total {level_unit}", justify="right")
+    # Each channel through its own chain: the RMS in its quantity's unit and the total
+    # level re its own reference (the PSD's unit and level unit without the "²/Hz").
+    units = [entry["unit"].removesuffix(result.unit_suffix) for entry in doc["channels"]]
+    totals = [_level_of_total(entry["level_unit"]) for entry in doc["channels"]]
+    same = len(set(units)) == 1 and len(set(totals)) == 1
+    table.add_column(f"RMS {units[0]}" if same else "RMS", justify="right")
+    table.add_column(f"total {totals[0]}" if same else "total", justify="right")
     table.add_column("distinct peaks: Hz, PSD level, above floor", justify="right")
     # One fixed-point format: frequencies to the bin spacing, levels to 0.1 dB.
     decimals = max(0, math.ceil(-math.log10(doc["resolution_hz"])))
-    for entry in doc["channels"]:
+    for entry, unit, total_unit in zip(doc["channels"], units, totals, strict=True):
         ms = entry["mean_square"]
         rms = math.sqrt(ms) if ms > 0 else 0.0
+        reference = next(v for k, v in entry.items() if k.startswith("reference_"))
         total = f"{20 * math.log10(rms / reference):.2f}" if rms > 0 else "—"
         text = "\n".join(
             f"{pk['frequency_hz']:.{decimals}f} Hz  {pk['level_db']:.1f} dB  "
             f"{pk['above_floor_db']:+.1f} dB"
             for pk in entry["peaks"][:PRINTED_PEAKS]
         )
-        table.add_row(str(entry["channel"]), f"{rms:.4g}", total, text or "none")
+        rms_text = f"{rms:.4g}" if same else f"{rms:.4g} {unit}"
+        total_text = total if same else f"{total} {total_unit}"
+        table.add_row(str(entry["channel"]), rms_text, total_text, text or "none")
     console.print(table)
     console.print(
-        f"  PSD levels in {doc['level_unit']}; totals by Parseval over all bins. Peaks: "
+        f"  PSD levels in {_levels_in(doc)}; totals by Parseval over all bins. Peaks: "
         f"at least {doc['peak_separation_hz']:.{decimals}f} Hz (one main lobe) apart, "
         f"{doc['peak_margin_db']:.1f} dB above the local floor (running median over an "
         "octave), apart by valleys deeper than the scatter; "

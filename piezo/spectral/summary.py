@@ -94,11 +94,15 @@ class Spectrum:
     level_unit
         Unit of PSD levels, e.g. ``"dB re (20 µPa)²/Hz"``.
     reference
-        Reference of the levels (Pa, or 1 V), squared in the level unit.
+        Reference of the levels (Pa, or 1 V), squared in the level unit; NaN when the
+        channels measure different quantities (then see ``references``).
     channel_indices
         The recording's channels, in the order of the PSD's columns.
     result
         The estimator's result.
+    quantities, units, level_units, references
+        Per channel: what it measures, the PSD's unit, the unit of its levels and their
+        reference (each channel through its own chain, a profile's ``[channel.N]``).
 
     Examples
     --------
@@ -121,6 +125,26 @@ class Spectrum:
     quantity: str = "voltage"
     #: Where a channel's response curve does not cover the spectrum (end values held).
     response_curve_notes: tuple[str, ...] = ()
+    quantities: tuple[str, ...] = ()
+    units: tuple[str, ...] = ()
+    level_units: tuple[str, ...] = ()
+    references: tuple[float, ...] = ()
+
+    def reference_of(self, column: int) -> float:
+        """The level reference of the PSD's ``column`` (its channel's own)."""
+        return self.references[column] if self.references else self.reference
+
+    def _channel_units(self, column: int) -> dict[str, Any]:
+        if not self.quantities:
+            return {}
+        return {
+            "quantity": self.quantities[column],
+            "unit": self.units[column],
+            "level_unit": self.level_units[column],
+            reference_key(self.units[column].removesuffix(self.result.unit_suffix)): (
+                self.references[column]
+            ),
+        }
 
     def peaks(self, column: int) -> tuple[list[SpectralPeak], PeakRule]:
         """The distinct peaks of the PSD's ``column`` (strongest first) and the rule
@@ -139,7 +163,6 @@ class Spectrum:
         r = self.result
         found = [self.peaks(i) for i in range(len(self.channel_indices))]
         rule = found[0][1]
-        ref2 = self.reference**2
         doc = {
             "file": self.file,
             "quantity": self.quantity,
@@ -165,11 +188,12 @@ class Spectrum:
             "channels": [
                 {
                     "channel": ch,
+                    **self._channel_units(i),
                     "mean_square": float(r.mean_square()[i]),
                     "peaks": [
                         {
                             "frequency_hz": pk.frequency_hz,
-                            "level_db": 10.0 * np.log10(pk.density / ref2),
+                            "level_db": 10.0 * np.log10(pk.density / self.reference_of(i) ** 2),
                             "above_floor_db": pk.above_floor_db,
                         }
                         for pk in found[i][0]
@@ -248,15 +272,23 @@ def spectrum_of(
         )
     source.feed(est, *([] if spectrogram is None else [spectrogram]), *also, advance=advance)
     result = est.result()
+    chains = source.chains
+    units = tuple(f"{c.unit}{result.unit_suffix}" for c in chains)
+    level_units = tuple(psd_level_unit(c.level_unit, scaling) for c in chains)
+    same = len(set(units)) == 1 and len(set(level_units)) == 1
     return Spectrum(
         file=str(source.recording.path),
-        unit=f"{source.unit}{result.unit_suffix}",
-        level_unit=psd_level_unit(source.level_unit, scaling),
-        reference=source.reference,
+        unit=units[0] if same else "per channel",
+        level_unit=level_units[0] if same else "per channel",
+        reference=float(source.references[0]) if same else math.nan,
         channel_indices=source.channel_indices,
         result=result,
-        quantity=source.quantity.name,
+        quantity=chains[0].measured.name if same else "per channel",
         response_curve_notes=tuple(source.curve_notes(result.resolution_hz, fs / 2)),
+        quantities=tuple(c.measured.name for c in chains),
+        units=units,
+        level_units=level_units,
+        references=tuple(float(r) for r in source.references),
     )
 
 

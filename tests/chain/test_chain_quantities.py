@@ -189,8 +189,14 @@ def test_channels_of_different_quantities_have_their_own_levels(cli, sine_wav):
     tp, ta = (ch["level_db"] for ch in tone["channels"])
     assert (tp, ta) == pytest.approx((p["LZeq"], a["LZeq"]), abs=0.01)
     assert [ch["level_unit"] for ch in tone["channels"]] == ["dB re 20 µPa", "dB re 1 µm/s²"]
-    r = cli("spectrum", sine_wav, "--json")
-    assert r.code == 2 and "differ in unit" in r.err
+    spectrum = cli("spectrum", sine_wav, "--json").json()
+    assert [ch["unit"] for ch in spectrum["channels"]] == ["Pa^2/Hz", "m/s²^2/Hz"]
+    sp, sa = (ch["mean_square"] for ch in spectrum["channels"])
+    # Parseval: the mean square in each channel's unit gives its LZeq.
+    assert 10 * np.log10(sp / 20e-6**2) == pytest.approx(p["LZeq"], abs=0.01)
+    assert 10 * np.log10(sa / 1e-6**2) == pytest.approx(a["LZeq"], abs=0.01)
+    r = cli("check", sine_wav, "--json")  # one chain at a time: refused in one line
+    assert r.code == 2 and "--channel N" in r.err and r.err.count("\n") == 1
 
 
 def test_channel_sections_are_checked(cli, sine_wav, tmp_path):

@@ -340,3 +340,41 @@ def test_spectrum_plot_keeps_a_csv_time_offset(cli, tmp_path):
         edges.append(mesh.get_coordinates()[0, :, 0])
     # The same cells, shifted by the offset: rounding of the time column only.
     assert_allclose(edges[0], edges[1] + start, rtol=0, atol=1e-9)
+
+
+def test_spectrum_gives_channels_of_different_quantities_each_in_its_own_unit(cli, tmp_path):
+    # A pressure channel (10 mV/Pa) and an accelerometer channel (10 mV/g) see the same
+    # 0.1 V RMS tone: 10 Pa RMS is 20·lg(10 / 20 µPa) = 113.98 dB re 20 µPa, and 10 g =
+    # 98.0665 m/s² (g = 9.80665 m/s², ISO 80000-3) is 20·lg(98.0665 / 1 µm/s²) =
+    # 159.83 dB re 1 µm/s² (references of ISO 1683:2015).
+    fs = 48000
+    t = np.arange(2 * fs) / fs
+    x = 0.1 * np.sqrt(2) * np.sin(2 * np.pi * 1000 * t)
+    path = tmp_path / "mixed.wav"
+    sf.write(path, np.column_stack([x, x]), fs, subtype="FLOAT")
+    (tmp_path / "mixed.toml").write_text(
+        '[channel.0]\nquantity = "pressure"\nsensitivity = "10 mV/Pa"\n'
+        '[channel.1]\nquantity = "acceleration"\nsensitivity = "10 mV/g"\n',
+        encoding="utf-8",
+    )
+    csv_path = tmp_path / "psd.csv"
+    r = cli("spectrum", path, "--json", "--csv", csv_path)
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["unit"] == doc["level_unit"] == "per channel"
+    pressure, accel = doc["channels"]
+    assert (pressure["quantity"], pressure["reference_pa"]) == ("pressure", 2e-5)
+    assert (accel["quantity"], accel["reference_m_per_s2"]) == ("acceleration", 1e-6)
+    # Parseval: the mean square of each channel in its own unit.
+    assert pressure["mean_square"] == pytest.approx(100.0, rel=1e-3)
+    assert accel["mean_square"] == pytest.approx(98.0665**2, rel=1e-3)
+    assert pressure["peaks"][0]["frequency_hz"] == pytest.approx(1000, abs=12)
+    text = csv_path.read_text(encoding="utf-8")
+    assert (
+        "# ch0_psd_db: dB re (20 µPa)²/Hz" in text and "# ch1_psd_db: dB re (1 µm/s²)²/Hz" in text
+    )
+    shown = cli("spectrum", path)
+    assert "113.98 dB re 20 µPa" in shown.out and "159.83 dB re 1 µm/s²" in shown.out
+    refused = cli("spectrum", path, "--plot", tmp_path / "psd.png")
+    assert refused.code == 2 and "--channel N" in refused.err
+    assert not (tmp_path / "psd.png").exists()
