@@ -8,7 +8,7 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_duration, parse_quantity
+from piezo.chain.units import parse_duration, parse_frequency, parse_quantity
 from piezo.cli.options import (
     JsonOption,
     SourceOptions,
@@ -78,6 +78,16 @@ def levels(
         ),
     ] = None,
     weight_any_quantity: WeightAnyQuantityOption = False,
+    velocity_band: Annotated[
+        str,
+        typer.Option(
+            "--velocity-band",
+            metavar="LOW:HIGH",
+            help="Band of the RMS velocity given for velocity channels (a velocity sensor, "
+            "or acceleration with --integrate 1): 10Hz:1kHz by default, the broadband "
+            "range of machine-vibration severity (ISO 20816-1).",
+        ),
+    ] = "10Hz:1kHz",
     json_out: JsonOption = False,
     src: SourceOptions,
 ) -> None:
@@ -104,6 +114,15 @@ def levels(
     0
     """
     interval_s = parse_duration(interval, what="--interval") if interval is not None else None
+    low_text, sep, high_text = velocity_band.partition(":")
+    if not sep:
+        raise InputError(
+            f"--velocity-band: expected LOW:HIGH such as 10Hz:1kHz, got {velocity_band!r}"
+        )
+    band_hz = (
+        parse_frequency(low_text, "--velocity-band"),
+        parse_frequency(high_text, "--velocity-band"),
+    )
     source = open_source(file, src)
     settle_s = None
     if settle is not None:
@@ -117,6 +136,7 @@ def levels(
             filter_settle_s=settle_s,
             percentiles=None if percentiles is None else _parse_percentiles(percentiles),
             weight_any_quantity=weight_any_quantity,
+            velocity_band_hz=band_hz,
             advance=advance,
         )
     doc = measured.to_dict()
@@ -166,6 +186,14 @@ def _print(doc: dict[str, Any]) -> None:
         f"maxima, {excluded['LAFmin']:g} s from the F minima and LAF percentiles, "
         f"{excluded['LASmin']:g} s from the S minima and LAS percentiles"
     )
+    if "velocity_band_hz" in doc:
+        low, high = doc["velocity_band_hz"]
+        for ch in doc["channels"]:
+            if "velocity_rms_m_per_s" in ch:
+                console.print(
+                    f"  ch {ch['channel']}: velocity RMS {low:g} Hz to {high:g} Hz "
+                    f"{1e3 * ch['velocity_rms_m_per_s']:.4g} mm/s"
+                )
     for ch in doc["channels"]:
         for note in ch["notes"]:
             console.print(f"  ch {ch['channel']}: {note}")

@@ -13,6 +13,7 @@ from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
 from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
+from piezo.levels.stats import VELOCITY_BAND_HZ, BandRms
 from piezo.results import reference_key, to_jsonable
 
 __all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of", "reference_key"]
@@ -78,6 +79,10 @@ class Levels:
     #: Where a channel's response curve leaves the 10 Hz to 20 kHz range of IEC 61672-1
     #: (Table 3) uncovered (end values held).
     response_curve_notes: tuple[str, ...] = ()
+    #: Velocity channels: the band of ``velocity_rms`` and each channel's RMS in it (None
+    #: for channels of other quantities); ``None``/empty when no channel is a velocity.
+    velocity_band_hz: tuple[float, float] | None = None
+    velocity_rms: tuple[float | None, ...] = ()
 
     def channel(self, index: int) -> dict[str, Any]:
         """The levels of the recording's channel ``index`` (0-based), by name.
@@ -120,6 +125,8 @@ class Levels:
                 crest_factor_db=ch.crest_factor_db,
                 notes=notes,
             )
+            if self.velocity_rms and self.velocity_rms[i] is not None:
+                entry["velocity_rms_m_per_s"] = self.velocity_rms[i]
             channels.append(entry)
         refs = set(self.references)
         doc: dict[str, Any] = {
@@ -138,6 +145,11 @@ class Levels:
             "standard": "IEC 61672-1:2013 frequency and time weightings",
             "response_curve_notes": list(self.response_curve_notes),
             "caution": CAUTION,
+            **(
+                {}
+                if self.velocity_band_hz is None
+                else {"velocity_band_hz": list(self.velocity_band_hz)}
+            ),
             "channels": channels,
         }
         if result.history is not None:
@@ -203,6 +215,7 @@ def levels_of(
     filter_settle_s: float | None = None,
     percentiles: Sequence[float] | None = None,
     weight_any_quantity: bool = False,
+    velocity_band_hz: tuple[float, float] = VELOCITY_BAND_HZ,
     advance: Callable[[int], object] | None = None,
 ) -> Levels:
     """Equivalent, maximum, minimum, peak, exposure and percentile levels of ``source``.
@@ -227,6 +240,11 @@ def levels_of(
         Give A- and C-weighted levels for every channel, also for quantities other than
         sound pressure (IEC 61672-1 defines them for sound pressure only; by default such
         channels get Z-weighted levels and a note).
+    velocity_band_hz
+        For velocity channels (a velocity sensor, or acceleration integrated once): the
+        band of their RMS velocity, 10 Hz to 1 kHz by default, the broadband range of
+        machine-vibration severity (ISO 20816-1), through
+        :class:`~piezo.levels.stats.BandRms`.
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -259,8 +277,15 @@ def levels_of(
     if percentiles is not None:
         options["percentiles"] = list(percentiles)
     meter = LevelMeter(source.sample_rate_hz, len(source.channel_indices), **options)
+    velocity = [c.measured.name == "velocity" for c in chains]
+    band = (
+        BandRms(source.sample_rate_hz, len(source.channel_indices), velocity_band_hz)
+        if any(velocity)
+        else None
+    )
     # Channels in different units: each divided by its own reference, levels re 1.
-    source.feed(meter if same else _Relative(meter, references), advance=advance)
+    analyses = [meter if same else _Relative(meter, references)]
+    source.feed(*analyses, *([] if band is None else [band]), advance=advance)
     return Levels(
         file=str(source.recording.path),
         unit=units[0] if same else "per channel",
@@ -275,4 +300,8 @@ def levels_of(
         response_curve_notes=tuple(
             source.curve_notes(10.0, min(20000.0, source.sample_rate_hz / 2))
         ),
+        velocity_band_hz=None if band is None else band.band_hz,
+        velocity_rms=()
+        if band is None
+        else tuple(float(r) if v else None for r, v in zip(band.rms, velocity, strict=True)),
     )

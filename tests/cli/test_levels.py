@@ -191,3 +191,36 @@ def test_chosen_percentiles(cli, tmp_path):
     assert ch["LAF1"] - ch["LAF99"] == pytest.approx(20.0, abs=1.0)
     r = cli("levels", path, "--percentiles", "0,50")
     assert r.code == 2 and "--percentiles" in r.err
+
+
+def test_velocity_rms_in_the_machine_vibration_band(cli, tmp_path):
+    # 1 g peak at 159.155 Hz (ω = 1000 rad/s) integrates to v = a/ω = 9.80665 mm/s peak
+    # (first principles), 6.9344 mm/s RMS; the 10 Hz-1 kHz band (ISO 20816-1) passes
+    # 159 Hz unchanged, and the band-pass removes the integration's start-up offset.
+    fs = 48000
+    t = np.arange(10 * fs) / fs
+    path = tmp_path / "acc.wav"
+    sf.write(path, 0.01 * np.sin(2 * np.pi * 159.155 * t), fs, subtype="FLOAT")  # 10 mV/g
+    doc = cli("levels", path, "--sensitivity", "10 mV/g", "--integrate", "1", "--json").json()
+    assert doc["velocity_band_hz"] == [10.0, 1000.0]
+    assert doc["channels"][0]["velocity_rms_m_per_s"] == pytest.approx(
+        9.80665e-3 / np.sqrt(2), rel=1e-3
+    )
+    # The same tone outside a chosen band: 159 Hz is 2.6 octaves below a 1 kHz edge, where
+    # the 2nd-order side falls 12 dB per octave (about -31 dB).
+    narrow = cli(
+        "levels",
+        path,
+        "--sensitivity",
+        "10 mV/g",
+        "--integrate",
+        "1",
+        "--velocity-band",
+        "1kHz:2kHz",
+        "--json",
+    ).json()
+    assert narrow["channels"][0]["velocity_rms_m_per_s"] < 0.05 * 9.80665e-3 / np.sqrt(2)
+    plain = cli("levels", path, "--sensitivity", "10 mV/g", "--json").json()
+    assert "velocity_band_hz" not in plain  # acceleration: no velocity RMS
+    bad = cli("levels", path, "--velocity-band", "10Hz")
+    assert bad.code == 2 and "--velocity-band" in bad.err
