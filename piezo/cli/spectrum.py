@@ -11,6 +11,7 @@ import numpy as np
 import typer
 from rich.table import Table
 
+from piezo.chain.measurement import Chain
 from piezo.chain.units import parse_frequency
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
@@ -202,7 +203,7 @@ def spectrum(
     if json_out:
         emit_json(doc)
     else:
-        _print(doc, result)
+        _print(doc, result, source.chains)
     note = stationarity.result().note() if stationarity is not None else None
     if note is not None:
         err_console.print(f"note: {note}")
@@ -247,13 +248,7 @@ def _levels_in(doc: dict) -> str:
     return ", ".join(f"{e['level_unit']} (ch {e['channel']})" for e in doc["channels"])
 
 
-def _level_of_total(psd_level_unit: str) -> str:
-    """``dB re 20 µPa`` from a PSD level unit ``dB re (20 µPa)²/Hz`` (or ``…)²``)."""
-    ref = psd_level_unit.removeprefix("dB re (").split(")²")[0]
-    return f"dB re {ref}"
-
-
-def _print(doc: dict, result: PSDResult) -> None:
+def _print(doc: dict, result: PSDResult, chains: Sequence[Chain]) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     ci = doc["confidence"]
     ci_text = (
@@ -271,9 +266,9 @@ def _print(doc: dict, result: PSDResult) -> None:
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("ch", justify="right")
     # Each channel through its own chain: the RMS in its quantity's unit and the total
-    # level re its own reference (the PSD's unit and level unit without the "²/Hz").
-    units = [entry["unit"].removesuffix(result.unit_suffix) for entry in doc["channels"]]
-    totals = [_level_of_total(entry["level_unit"]) for entry in doc["channels"]]
+    # level re its own reference.
+    units = [c.unit for c in chains]
+    totals = [c.level_unit for c in chains]
     same = len(set(units)) == 1 and len(set(totals)) == 1
     table.add_column(f"RMS {units[0]}" if same else "RMS", justify="right")
     table.add_column(f"total {totals[0]}" if same else "total", justify="right")
