@@ -320,21 +320,8 @@ def summarize(rows: Sequence[Mapping[str, Any]], spec: Spec) -> dict[str, Any]:
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -413,21 +400,8 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -482,21 +456,8 @@ def results_json_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -545,21 +506,8 @@ def junit_xml_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -644,21 +592,8 @@ def summary_html_text(
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -726,21 +661,8 @@ def capture_report_html(
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -812,21 +734,8 @@ def write_outputs(
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -871,21 +780,8 @@ def write_capture_report(
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)
@@ -927,21 +823,8 @@ def write_capture_reports(
     resonates too high, one file is truncated:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> from piezo.batch.runner import evaluate_capture
     >>> rows = [
     ...     evaluate_capture(f"recordings/pd27-lot/{name}", spec, display=name)

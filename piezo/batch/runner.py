@@ -163,21 +163,8 @@ def error_row(display: str, spec: Spec, message: str, content: str = "") -> dict
     Examples
     --------
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> row = error_row("PD27-24136.flac", spec, "unreadable capture: file is truncated")
     >>> row["serial"], row["verdict"], row["metrics"]
     ('24136', 'not evaluable', {'resonance': None})
@@ -251,21 +238,8 @@ def evaluate_capture(
     A unit of the bundled demo lot whose resonance lies above the limit:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> row = evaluate_capture("recordings/pd27-lot/PD27-24107.flac", spec)
     >>> row["serial"], row["verdict"], round(row["metrics"]["resonance"])
     ('24107', 'fail', 5216)
@@ -445,21 +419,8 @@ def run_batch(
     as ``previous``: nothing is analysed a second time:
 
     >>> from piezo.batch.spec import parse_spec
-    >>> spec = parse_spec('''
-    ... [spec]
-    ... name = "PD27 resonance"
-    ... serial_pattern = 'PD27-(?P<serial>[0-9]{5})'
-    ... [stimulus]
-    ... kind = "sweep"
-    ... start_hz = 20.0
-    ... stop_hz = 7000.0
-    ... duration_s = 0.6
-    ... silence_before_s = 0.2
-    ... silence_after_s = 0.2
-    ... [metrics.resonance]
-    ... lower = 3900.0
-    ... upper = 4700.0
-    ... ''')
+    >>> from piezo.demo.lot import resonance_spec_text
+    >>> spec = parse_spec(resonance_spec_text())
     >>> paths = expand_inputs(["recordings/pd27-lot/PD27-2410[12].flac"])
     >>> rows = run_batch(paths, spec, workers=1)
     >>> [(row["serial"], row["verdict"]) for row in rows]

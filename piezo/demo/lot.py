@@ -62,6 +62,7 @@ __all__ = [
     "flac_bytes",
     "golden_response_csv",
     "lot_files",
+    "resonance_spec_text",
     "simulate_capture",
     "spec_text",
     "unit_response",
@@ -362,6 +363,35 @@ golden = "pd27-golden.csv"
 band_hz = [100, 3000]
 relative_to_hz = 1000
 upper = 1.5
+"""
+
+
+def resonance_spec_text() -> str:
+    """A one-metric spec for the bundled lot: the resonance alone, within the limits of
+    :func:`spec_text`. It judges a capture in a few milliseconds (no level meter, no
+    distortion analysis), which suits examples and a first look at a lot.
+
+    Examples
+    --------
+    >>> from piezo.batch.spec import parse_spec
+    >>> spec = parse_spec(resonance_spec_text())
+    >>> spec.name, [m.name for m in spec.metrics], spec.metrics[0].fail_limits()
+    ('PD27 resonance', ['resonance'], (3900.0, 4700.0))
+    """
+    return f"""\
+[spec]
+name = "PD27 resonance"
+serial_pattern = 'PD27-(?P<serial>[0-9]{{5}})'
+[stimulus]
+kind = "sweep"
+start_hz = {SWEEP["start_hz"]}
+stop_hz = {SWEEP["stop_hz"]}
+duration_s = {SWEEP["duration_s"]}
+silence_before_s = {SWEEP["silence_before_s"]}
+silence_after_s = {SWEEP["silence_after_s"]}
+[metrics.resonance]
+lower = 3900.0
+upper = 4700.0
 """
 
 
