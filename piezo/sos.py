@@ -34,10 +34,11 @@ def sos_response(sos: np.ndarray, frequency_hz: np.ndarray, sample_rate_hz: floa
     sections = np.atleast_2d(np.asarray(sos, dtype=np.float64))
     f = np.atleast_1d(np.asarray(frequency_hz, dtype=np.float64))
     z1 = np.exp(-2j * np.pi * f / float(sample_rate_hz))  # z⁻¹
-    z2 = z1 * z1
     h = np.ones(f.shape, dtype=np.complex128)
     for b0, b1, b2, a0, a1, a2 in sections:
-        h *= (b0 + b1 * z1 + b2 * z2) / (a0 + a1 * z1 + a2 * z2)
+        # Horner's rule, as scipy.signal.freqz evaluates each section: near z = 1 a
+        # high-pass section's terms nearly cancel, and the order of the sums matters.
+        h *= (b0 + z1 * (b1 + z1 * b2)) / (a0 + z1 * (a1 + z1 * a2))
     return h
 
 

@@ -37,7 +37,7 @@ from typing import Any
 from piezo.errors import OutputError
 from piezo.io.atomic import write_bytes_atomic
 
-__all__ = ["cache_folder", "cached_arrays", "compile_cached", "design_folder"]
+__all__ = ["cache_folder", "cached_arrays", "code_digest", "compile_cached", "design_folder"]
 
 
 def _platform_cache_home() -> Path:
@@ -123,6 +123,24 @@ def design_folder() -> Path:
     False
     """
     return _piezo_cache("designs")
+
+
+@cache
+def code_digest(*sources: str) -> str:
+    """SHA-256 of the given source files' bytes: the part of a design-cache key that
+    changes whenever the code computing the design does.
+
+    Examples
+    --------
+    >>> import piezo.sos
+    >>> len(code_digest(piezo.sos.__file__)), code_digest(piezo.sos.__file__) == code_digest(
+    ...     piezo.sos.__file__)
+    (64, True)
+    """
+    digest = hashlib.sha256()
+    for source in sources:
+        digest.update(Path(source).read_bytes())
+    return digest.hexdigest()
 
 
 def cached_arrays(name: str, key: str, compute: Callable[[], dict[str, Any]]) -> dict[str, Any]:

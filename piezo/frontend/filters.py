@@ -36,6 +36,7 @@ from scipy import optimize, signal
 from piezo import validate
 from piezo.errors import InputError
 from piezo.frontend.model import Frontend, InputKind, analog_zpk, corner_frequency_hz
+from piezo.sos import sos_response
 
 __all__ = [
     "DigitalRealisation",
@@ -105,10 +106,7 @@ class DigitalRealisation:
 
     def response(self, frequency_hz: np.ndarray) -> np.ndarray:
         """Complex response of the digital filter at ``frequency_hz``."""
-        _, h = signal.sosfreqz(
-            self.sos, worN=np.asarray(frequency_hz, dtype=float), fs=self.sample_rate_hz
-        )
-        return h
+        return sos_response(self.sos, np.asarray(frequency_hz, dtype=float), self.sample_rate_hz)
 
 
 def _analog(

@@ -7,7 +7,7 @@ import math
 import numpy as np
 
 from piezo import validate
-from piezo._kernels.cache import cached_arrays
+from piezo._kernels.cache import cached_arrays, code_digest
 from piezo._kernels.filters import sosfilt_inplace
 from piezo.errors import InputError
 
@@ -116,7 +116,7 @@ class BandRms:
             )
         self.band_hz = (low, high)
         self.channels = channels
-        key = f"{self.sample_rate_hz!r} {low!r} {high!r} butter-2-bandpass"
+        key = f"{self.sample_rate_hz!r} {low!r} {high!r} {code_digest(__file__)}"
         stored = cached_arrays("band-rms", key, lambda: {"sos": self._design()})
         self._sos = np.ascontiguousarray(stored["sos"], dtype=np.float64)
         self._zi = np.zeros((self._sos.shape[0], 2, channels))

@@ -33,18 +33,18 @@ the one-pole recursion ``y[n] = a y[n-1] + (1 - a) x[n]`` with ``a = exp(-1/(tau
 from __future__ import annotations
 
 import functools
-import hashlib
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 from numpy.typing import ArrayLike
 
+import piezo.sos
 from piezo import validate
-from piezo._kernels.cache import cached_arrays
+from piezo._kernels.cache import cached_arrays, code_digest
 from piezo._kernels.filters import sosfilt_inplace
 from piezo.errors import InputError
+from piezo.sos import sos_response_db
 
 __all__ = [
     "A1000_DB",
@@ -223,11 +223,7 @@ def _bilinear_highpass(poles_hz: tuple[float, ...], zeros: int, fs: float) -> np
 def _sos_db(sos: np.ndarray, frequency_hz: np.ndarray, fs: float) -> np.ndarray:
     if len(sos) == 0:
         return np.zeros_like(frequency_hz)
-    from scipy import signal
-
-    _, h = signal.sosfreqz(sos, worN=frequency_hz, fs=fs)
-    with np.errstate(divide="ignore"):
-        return 20.0 * np.log10(np.abs(h))
+    return sos_response_db(sos, frequency_hz, fs)
 
 
 def _section(params: np.ndarray) -> np.ndarray:
@@ -291,9 +287,9 @@ def _design(fs: float) -> tuple[np.ndarray, np.ndarray]:
     return c_sos, a_extra
 
 
-@functools.cache
 def _source_digest() -> str:
-    return hashlib.sha256(Path(__file__).read_bytes()).hexdigest()
+    # This module and the response evaluation its design normalises with.
+    return code_digest(__file__, piezo.sos.__file__)
 
 
 def _fit_design(fs: float) -> tuple[np.ndarray, np.ndarray]:

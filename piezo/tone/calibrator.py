@@ -45,6 +45,7 @@ from piezo.chain.measurement import REFERENCE_AIR_PA
 from piezo.chain.units import ratio_to_db
 from piezo.errors import InputError
 from piezo.response.uncertainty import Budget, Component
+from piezo.sos import sos_response
 from piezo.spectral.averaging import AutoSpectra
 from piezo.tone.line import spectral_line
 
@@ -281,8 +282,7 @@ class ToneCalibrator:
         edges = f0 * np.array([2 ** (-1 / 6), 2 ** (1 / 6)])
         self._sos = signal.butter(3, edges, btype="bandpass", fs=self.fs, output="sos")
         self._zi = np.zeros((self._sos.shape[0], 2))
-        _, h = signal.sosfreqz(self._sos, worN=[f0], fs=self.fs)
-        self._gain_at_tone = float(abs(h[0]))
+        self._gain_at_tone = float(abs(sos_response(self._sos, np.array([f0]), self.fs)[0]))
 
     def _run(self, x: np.ndarray) -> None:
         assert self._sos is not None
