@@ -284,8 +284,8 @@ def levels_of(
         else None
     )
     # Channels in different units: each divided by its own reference, levels re 1.
-    analyses = [meter if same else _Relative(meter, references)]
-    source.feed(*analyses, *([] if band is None else [band]), advance=advance)
+    extra = [] if band is None else [band]
+    source.feed(meter if same else _Relative(meter, references), *extra, advance=advance)
     return Levels(
         file=str(source.recording.path),
         unit=units[0] if same else "per channel",
