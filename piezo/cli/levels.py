@@ -123,6 +123,8 @@ def levels(
         parse_frequency(low_text, "--velocity-band"),
         parse_frequency(high_text, "--velocity-band"),
     )
+    if not band_hz[0] < band_hz[1]:
+        raise InputError(f"--velocity-band {velocity_band!r}: LOW must be below HIGH")
     source = open_source(file, src)
     settle_s = None
     if settle is not None:

@@ -224,3 +224,5 @@ def test_velocity_rms_in_the_machine_vibration_band(cli, tmp_path):
     assert "velocity_band_hz" not in plain  # acceleration: no velocity RMS
     bad = cli("levels", path, "--velocity-band", "10Hz")
     assert bad.code == 2 and "--velocity-band" in bad.err
+    reversed_band = cli("levels", path, "--velocity-band", "2kHz:1kHz")
+    assert reversed_band.code == 2 and "--velocity-band" in reversed_band.err
