@@ -16,6 +16,7 @@ import pytest
 import soundfile as sf
 
 from piezo.levels.summary import LEVEL_KEYS, levels_of
+from tests.chromium import CHROMIUM, image_layout
 from tests.report.test_report import _schema_validator
 
 FS = 48000
@@ -217,3 +218,13 @@ def test_no_axis_is_shared_by_two_units(mixed):
     # The accelerometer's history is its LZeq per interval (no A weighting).
     (steps,) = [p for p in drawn["level_history"].axes[1].patches]
     assert "LZeq" in str(steps.get_label())
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed: page not rendered")
+def test_mixed_page_renders_in_headless_chromium(mixed, tmp_path):
+    page = mixed[3]
+    sizes, console = image_layout(page, tmp_path)
+    assert console == []
+    assert len(sizes) == page.count("<img ")
+    for w, h, shown in sizes:
+        assert w > 0 and h > 0 and shown > 0, (w, h, shown)
