@@ -223,3 +223,19 @@ def test_bundled_accelerometer_bench_is_checked(cli):
     fs = [ch["full_scale"] for ch in doc["channels"]]
     assert fs == pytest.approx([0.2 / 10.15e-3 * G, 0.2 / 10e-3 * G], rel=1e-9)
     assert all(ch["level_unit"] == "dB re 1 µm/s²" for ch in doc["channels"])
+
+
+def test_sensitivity_warning_names_the_channel_without_one(cli, mixed):
+    # Only the microphone has a sensitivity: the accelerometer channel stays in volts,
+    # and the file-level warning says which channel.
+    mixed.with_suffix(".toml").write_text(PROFILE.split("[channel.1]")[0], encoding="utf-8")
+    doc = cli("check", mixed, "--json").json()
+    meta = {m["name"]: m for m in doc["metadata"]}
+    assert meta["sensitivity"]["severity"] == "warn"
+    assert meta["sensitivity"]["evidence"].startswith(
+        "no sensor sensitivity given for channel 1: its levels are in volts"
+    )
+    assert [ch["unit"] for ch in doc["channels"]] == ["Pa", "V"]
+    # A channel that measures voltage takes no sensitivity: no warning about it.
+    doc = cli("check", mixed, "--no-sidecar", "--quantity", "voltage", "--json").json()
+    assert "sensitivity" not in {m["name"] for m in doc["metadata"]}
