@@ -707,3 +707,33 @@ def test_missing_sensitivity_names_the_channels_without_one():
     everyone = CaptureMetadata(sensitivity_known=False, uncalibrated_channels=(0, 1))
     (check,) = check_capture(x, FS, metadata=everyone).metadata_checks
     assert check.evidence.startswith("no sensor sensitivity given: the levels are in volts")
+
+
+def test_a_channel_scaled_with_its_full_scale_and_reference_reads_the_same():
+    # Invariance: multiplying a channel's samples, its full scale and its level reference
+    # by one factor changes no dB figure, no count and no severity (every dB value is a
+    # ratio to the full scale or to the reference). Each channel gets its own factor
+    # (channel 0 holds the clips, channel 1 the hum); powers of two, so the scaled
+    # samples are exact in binary and the figures agree to rounding.
+    k = np.array([0.125, 256.0])
+    x = _FEATURES * k
+    options = dict(full_scale=list(k), reference=list(k), unit=["Pa", "m/s²"])
+    scaled = check_capture(x, 2000.0, thresholds=_STREAM_TH, **options).as_dict()
+    for a, b in zip(_WHOLE["channels"], scaled["channels"], strict=True):
+        assert [c["severity"] for c in a["checks"]] == [c["severity"] for c in b["checks"]]
+        for key in ("headroom_db", "peak_dbfs", "crest_factor_db", "noise_floor_db"):
+            assert b[key] == pytest.approx(a[key], rel=1e-12, abs=1e-12), key
+        assert b["clipping"]["clipped_samples"] == a["clipping"]["clipped_samples"]
+        dbfs = [lv["level_dbfs"] for lv in b["clipping"]["levels"]]
+        assert dbfs == pytest.approx([lv["level_dbfs"] for lv in a["clipping"]["levels"]])
+        assert b["hum"]["status"] == a["hum"]["status"]
+        assert b["noise"]["psd_floor_db"] == pytest.approx(a["noise"]["psd_floor_db"])
+        assert b["hum"]["re_total_db"] == pytest.approx(a["hum"]["re_total_db"])
+    assert scaled["channels"][1]["hum"]["level_db"] == pytest.approx(
+        _WHOLE["channels"][1]["hum"]["level_db"]
+    )
+    # Streamed in uneven blocks with per-channel options: the same as the whole array.
+    checker = CaptureChecker(2000.0, 2, thresholds=_STREAM_TH, **options)
+    for block in np.array_split(x, 7):
+        checker.update(block)
+    _assert_same(scaled, checker.result().as_dict())
