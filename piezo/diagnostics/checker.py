@@ -610,20 +610,11 @@ def _per_channel(value: Any, channels: int, what: str) -> tuple[Any, ...]:
 
 
 def _positive(value: Any, what: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-        raise InputError(f"{what}: must be a positive number, got {value!r}")
-    if not (math.isfinite(value) and value > 0):
-        raise InputError(f"{what}: must be positive, got {value!r}")
-    return float(value)
+    return validate.physical_value(value, what=what)
 
 
 def _positive_or_none(value: Any, what: str) -> float | None:
-    if value is None:
-        return None
-    try:
-        return _positive(value, what)
-    except InputError:
-        raise InputError(f"{what}: must be positive or None, got {value!r}") from None
+    return None if value is None else validate.physical_value(value, what=f"{what} (or None)")
 
 
 # --------------------------------------------------------------------------------------

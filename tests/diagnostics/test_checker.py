@@ -690,9 +690,9 @@ def test_per_channel_options_are_validated():
     x = np.zeros((100, 2))
     with pytest.raises(InputError, match=r"full_scale: needs one value or one per channel \(2\)"):
         check_capture(x, FS, full_scale=[1.0])
-    with pytest.raises(InputError, match="reference: must be positive, got -1"):
+    with pytest.raises(InputError, match="reference must be positive and finite, got -1"):
         check_capture(x, FS, reference=[1.0, -1.0])
-    with pytest.raises(InputError, match="volts_per_unit: must be positive or None"):
+    with pytest.raises(InputError, match=r"volts_per_unit \(or None\) must be positive"):
         check_capture(x, FS, volts_per_unit=[0.0, None])
     with pytest.raises(InputError, match="unit: needs one value or one per channel"):
         check_capture(x, FS, unit=["Pa", "V", "N"])
