@@ -211,6 +211,11 @@ def test_csv_channels_get_a_full_scale_only_when_one_is_given(cli, tmp_path):
     # Peak 0.5 V (mic) and 0.25 V (accel) against 10 V: 20 lg 20 and 20 lg 40 of headroom.
     heads = [ch["headroom_db"] for ch in doc["channels"]]
     assert heads == pytest.approx([20 * math.log10(20), 20 * math.log10(40)], abs=1e-3)
+    # A full scale for channel 0 only (N=VALUE): channel 1's stays unknown.
+    doc = cli("check", path, "--profile", profile, "--full-scale", "0=10 V", "--json").json()
+    mic, accel = doc["channels"]
+    assert mic["full_scale"] == pytest.approx(10 / MIC_V_PER_PA, rel=1e-12)
+    assert accel["full_scale"] is None and accel["headroom_db"] is None
 
 
 def test_bundled_accelerometer_bench_is_checked(cli):
