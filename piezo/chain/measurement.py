@@ -56,6 +56,7 @@ from piezo.io.toml import toml_value
 from piezo.validate import physical_value
 
 __all__ = [
+    "CHANNEL_SETTINGS",
     "REFERENCE_AIR_PA",
     "REFERENCE_WATER_PA",
     "CalibratedSource",
@@ -700,6 +701,10 @@ class ChainSettings:
     field (``sensitivity``, ``full_scale`` ...). A numeric ``sensitivity`` is in V per SI
     unit of ``quantity`` (V/Pa for sound pressure).
 
+    The fields are for every channel; ``channels`` holds values of single channels (by
+    0-based channel number, each a ``ChainSettings`` of its own without ``profile``),
+    which override them for that channel (:meth:`for_channel`).
+
     Examples
     --------
     >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="20 mV/Pa", gain="20 dB"))
@@ -708,6 +713,9 @@ class ChainSettings:
     >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="10 mV/g"))
     >>> chain.quantity, chain.unit
     ('acceleration', 'm/s²')
+    >>> both = ChainSettings(gain="20 dB", channels={1: ChainSettings(gain="0 dB")})
+    >>> [round(resolve_chain(None, both, channel=n)[0].gain, 6) for n in (0, 1)]
+    [10.0, 1.0]
     """
 
     sensitivity: ChainValue = None
@@ -718,6 +726,37 @@ class ChainSettings:
     profile: str | Path | None = None
     quantity: str | None = None
     response_curve: str | Path | None = None
+    channels: Mapping[int, ChainSettings] = field(default_factory=dict)
+
+    def for_channel(self, channel: int | None) -> ChainSettings:
+        """The values that apply to ``channel``: its own over those for every channel.
+
+        Examples
+        --------
+        >>> s = ChainSettings(sensitivity="10 mV/g", gain="20 dB",
+        ...                   channels={1: ChainSettings(sensitivity="50 mV/Pa")})
+        >>> s.for_channel(1).sensitivity, s.for_channel(1).gain, s.for_channel(0).sensitivity
+        ('50 mV/Pa', '20 dB', '10 mV/g')
+        """
+        own = None if channel is None else self.channels.get(channel)
+        if own is None:
+            return self
+        given = {
+            name: getattr(own, name) for name in CHANNEL_SETTINGS if getattr(own, name) is not None
+        }
+        return replace(self, **given)
+
+
+#: The :class:`ChainSettings` fields a single channel may have values of its own for.
+CHANNEL_SETTINGS = (
+    "sensitivity",
+    "gain",
+    "full_scale",
+    "reference",
+    "charge_gain",
+    "quantity",
+    "response_curve",
+)
 
 
 def load_response_curve(path: str | Path) -> ResponseCurve:
@@ -812,11 +851,15 @@ def resolve_chain(
 
     Later sources override earlier ones, value by value: defaults, the sidecar
     ``NAME.toml`` (when ``use_sidecar``), ``settings.profile``, then the values of
-    ``settings``. Within a profile, a ``[channel.N]`` section overrides ``[sensor]`` for
-    ``channel`` N. Text is parsed here, once, by :mod:`piezo.chain.units` and
-    :mod:`piezo.chain.quantity`. The quantity is the ``quantity`` given (profile key or
-    option), else the one the sensitivity's unit names, else sound pressure; a
-    sensitivity whose unit names another quantity is refused.
+    ``settings``. Within each source the more specific value wins: in a profile, a
+    ``[channel.N]`` section overrides ``[sensor]`` for ``channel`` N; in ``settings``,
+    ``settings.channels[N]`` overrides the values for every channel. Text is parsed
+    here, once, by :mod:`piezo.chain.units` and :mod:`piezo.chain.quantity`. The
+    quantity is the ``quantity`` given (profile key or option), else the one the
+    sensitivity's unit names, else sound pressure; a sensitivity given in ``settings``
+    names its quantity over a profile's ``quantity`` key (given values over profiles),
+    and a sensitivity whose unit names another quantity than one given at its own level
+    or above is refused.
 
     ``profiles`` are the profiles already read (:func:`profile_paths`,
     :func:`load_profile`), so that a file is read once for all channels.
@@ -832,12 +875,18 @@ def resolve_chain(
     >>> chain, prov = resolve_chain(None, ChainSettings(sensitivity=0.01, quantity="force"))
     >>> chain.unit, chain.level_unit, prov.quantity
     ('N', 'dB re 1 µN', 'option')
+    >>> resolve_chain(None, ChainSettings(sensitivity="12 mV/Pa", quantity="force"))
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: sensitivity: '12 mV/Pa' is a pressure sensitivity, but the \
+channel measures force
     """
     if profiles is None:
         profiles = [
             load_profile(p)
             for p in profile_paths(recording_path, settings, use_sidecar=use_sidecar)
         ]
+    settings = settings.for_channel(channel)
     prefix = "" if channel is None else f"channel {channel}: "
     values: dict[str, Any] = {
         "full_scale_v": 1.0,
@@ -908,6 +957,9 @@ def resolve_chain(
         raise UnitError(prefix + exc.message) from None
 
     quantity = values["quantity"]
+    if sens_quantity is not None and origin["sensitivity_v_per_pa"] == "option":
+        if origin["quantity"] != "option":
+            quantity = None  # the given sensitivity's unit names it, over a profile's key
     if quantity is None:
         quantity = sens_quantity or "pressure"
         if sens_quantity is not None:
