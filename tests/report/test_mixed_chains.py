@@ -193,6 +193,12 @@ def test_page_labels_each_channel_with_its_unit(mixed):
     tone = tone[: tone.index("</table>")]
     assert f"{doc['tone']['channels'][1]['level_db']:.2f} dB re 1 µm/s²" in tone
     assert "Channel 0: pressure in Pa" in page and "Channel 1: acceleration in m/s²" in page
+    # The check tables name each channel's unit, from the check result's channel entries.
+    assert "Channel 1 (m/s², levels in dB re 1 µm/s²):" in page
+    assert [ch["level_unit"] for ch in doc["diagnostics"]["channels"]] == [
+        "dB re 20 µPa",
+        "dB re 1 µm/s²",
+    ]
 
 
 def test_no_axis_is_shared_by_two_units(mixed):
