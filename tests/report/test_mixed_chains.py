@@ -234,3 +234,42 @@ def test_mixed_page_renders_in_headless_chromium(mixed, tmp_path):
     assert len(sizes) == page.count("<img ")
     for w, h, shown in sizes:
         assert w > 0 and h > 0 and shown > 0, (w, h, shown)
+
+
+def test_bundled_accelerometer_bench_keeps_each_sensor_and_chart(tmp_path):
+    """recordings/accel-bench.flac: two accelerometers of one unit with sensitivities (and,
+    for channel 0, a calibration chart) of their own, from [channel.N] sections."""
+    import piezo
+    from piezo.report.build import report_document
+    from piezo.report.run import ReportSettings, analyse
+    from tests.paths import RECORDINGS
+
+    path = RECORDINGS / "accel-bench.flac"
+    run = analyse(piezo.open(path), ReportSettings())
+    doc = report_document(run)
+    chain = doc["chain"]
+    assert (chain["unit"], chain["level_unit"], chain["shared"]) == (
+        "m/s²",
+        "dB re 1 µm/s²",
+        False,
+    )
+    ref, dut = chain["channels"]
+    assert ref["response_curve"].endswith("accel-bench-reference-chart.csv")
+    assert ref["provenance"]["response_curve"].endswith("[channel.0]")
+    assert dut["response_curve"] is None
+    # The profile's sensitivities, 10.15 mV/g and 10 mV/g (recordings/accel-bench.toml).
+    assert ref["sensitivity_v_per_unit"] == pytest.approx(10.15e-3 / G_M_PER_S2, rel=1e-12)
+    assert dut["sensitivity_v_per_unit"] == pytest.approx(10e-3 / G_M_PER_S2, rel=1e-12)
+    assert (ref["sensor"]["serial"], dut["sensor"]["serial"]) == ("RA3-0112", "PA12-2291")
+    # One reference for both: the levels section gives it once.
+    assert doc["levels"]["reference_m_per_s2"] == pytest.approx(REF_ACCELERATION_M_PER_S2)
+    interval = doc["levels"]["history"]["interval_s"]
+    for entry in doc["levels"]["channels"]:
+        c = entry["channel"]
+        # Each channel alone, through its own chart (channel 0) or none (channel 1): the
+        # same meter on the same calibrated samples, so equal to float64 rounding.
+        alone = levels_of(piezo.open(path, channels=[c]), interval_s=interval).channel(c)
+        assert entry["LZeq"] == pytest.approx(alone["LZeq"], abs=1e-9)
+        assert entry["LZpeak"] == pytest.approx(alone["LZpeak"], abs=1e-9)
+        assert entry["LAeq"] is None  # acceleration: no A weighting (IEC 61672-1)
+    _schema_validator().validate(json.loads(json.dumps(doc)))
