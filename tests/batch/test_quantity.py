@@ -184,6 +184,22 @@ def test_the_reference_sensors_chart_is_undone(tmp_path):
     assert plain == pytest.approx(_db(10e-3 / G) - 4.0 / 3.0, abs=0.05)
     # The chart's data is part of the spec's hash: another chart, other results.
     assert with_chart.sha256 != without.sha256
+    # A chart that stops below the reference frequency is held at its end value (+1 dB
+    # instead of +1.33 dB: the unit reads 9.62 mV/g, above 9.4), and the messages say so.
+    (tmp_path / "short.csv").write_text(
+        "frequency_hz,relative_db\n10,0\n500,1\n", encoding="utf-8"
+    )
+    short = parse_spec(
+        text.replace("ref-chart.csv", "short.csv")
+        .replace('"10.5 mV/g"', '"9.4 mV/g"')
+        .replace('"9.5 mV/g"', '"9.0 mV/g"'),
+        base_dir=tmp_path,
+    )
+    message = evaluate_capture(path, short)["failed_limits"][0]
+    assert message.endswith(
+        f"reference chart {tmp_path / 'short.csv'}: chart covers 10 Hz to 500 Hz; end values "
+        "held above) [fail]"
+    )
 
 
 def test_a_hydrophone_line_in_water(tmp_path):
