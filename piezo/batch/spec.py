@@ -1137,8 +1137,17 @@ def _parse_metric(
             raise check.error(path, f"missing key {key!r} for metric kind {kind.name!r}")
         elif key == "reference_hz" and stimulus.kind == "tone":
             params[key] = stimulus.params["frequency_hz"]
+        elif key == "weighting" and stimulus.measurand.quantity != "pressure":
+            params[key] = "Z"
         elif default is not None:
             params[key] = default
+    quantity = stimulus.measurand.quantity
+    if params.get("weighting", "Z") != "Z" and quantity != "pressure":
+        raise check.error(
+            (*path, "weighting"),
+            f"the A and C weightings (IEC 61672-1) are for sound pressure, but "
+            f'capture.quantity is {quantity}: use "Z"',
+        )
     _check_stimulus_fit(check, path, kind, params, stimulus)
     derive = table.get("derive", True)
     if not isinstance(derive, bool):

@@ -174,12 +174,17 @@ def test_the_reference_sensors_chart_is_undone(tmp_path):
     with_chart = parse_spec(text, base_dir=tmp_path)
     without = parse_spec(ACCEL_SPEC)
     path = accel_sweep_capture(tmp_path / "u.wav", 10.0, envelope_db=lambda f: -chart_db(f))
-    row = evaluate_capture(path, with_chart)
+    row = evaluate_capture(path, with_chart, with_report=True)
     # The chart's 1.33 dB at 1 kHz is undone: the unit reads its true 10 mV/g. The
     # envelope changes by 0.67 dB per decade, so slowly that the sweep analysis reads it
     # as the response at the instantaneous frequency; 0.05 dB is 25 times below the
     # chart's effect, so a chart ignored or applied with the wrong sign fails.
     assert row["metrics"]["sensitivity"] == pytest.approx(_db(10e-3 / G), abs=0.05)
+    # The report's response curve is in the same unit, corrected the same way.
+    curve = row["_report"]["response"]
+    assert curve["unit"] == "dB re 1 V/(m/s²)"
+    at_1k = curve["magnitude_db"][curve["frequency_hz"].index(1000.0)]
+    assert at_1k == pytest.approx(_db(10e-3 / G), abs=0.05)
     plain = evaluate_capture(path, without)["metrics"]["sensitivity"]
     assert plain == pytest.approx(_db(10e-3 / G) - 4.0 / 3.0, abs=0.05)
     # The chart's data is part of the spec's hash: another chart, other results.
@@ -246,6 +251,12 @@ weighting = "Z"
 BAD_SPECS = [
     # (replace, by, key, problem)
     (
+        'weighting = "Z"',
+        'weighting = "A"',
+        "metrics.self_noise.weighting",
+        "the A and C weightings (IEC 61672-1) are for sound pressure",
+    ),
+    (
         'level = "1 g"',
         'level = "1 Pa"',
         "stimulus.level",
@@ -301,6 +312,12 @@ def test_a_unit_that_does_not_fit_the_quantity_is_refused(old, new, key, problem
     message = str(info.value)
     assert message.startswith(f"accel.toml: line {line}: {key}: ")
     assert problem in message
+
+
+def test_noise_of_a_vibration_line_is_unweighted_by_default():
+    # IEC 61672-1 weights sound: a self-noise left without a weighting is Z, not A.
+    spec = parse_spec(ACCEL_SPEC.replace('weighting = "Z"\n', ""))
+    assert spec.metrics[1].params["weighting"] == "Z"
 
 
 def test_water_and_air_are_the_only_pressure_references():
