@@ -375,7 +375,7 @@ def derived_spec_text(
     lines.append(f"gain = {toml_value(raw_capture.get('gain', spec.gain))}")
     if spec.rate_hz is not None:
         lines.append(f"rate_hz = {toml_value(raw_capture.get('rate_hz', spec.rate_hz))}")
-    for key in ("quantity", "reference"):
+    for key in ("quantity", "reference", "charge_gain"):
         if key in raw_capture:
             lines.append(f"{key} = {toml_value(raw_capture[key])}")
     if spec.response_curve_file is not None:

@@ -30,7 +30,7 @@ from piezo.chain.quantity import (
     parse_sensitivity_of,
     parse_value_of,
 )
-from piezo.chain.units import parse_gain, parse_quantity, ratio_to_db
+from piezo.chain.units import parse_charge_gain, parse_gain, parse_quantity, ratio_to_db
 from piezo.errors import SpecError, UnitError
 from piezo.io.text import parse_toml, read_text
 
@@ -104,14 +104,16 @@ _AIR_PA, _WATER_PA = 20e-6, 1e-6
 class Measurand:
     """What a line's stimulus is: the quantity at the unit and its level reference.
 
-    The spec's ``[capture] quantity`` (pressure by default) and, for sound pressure,
-    ``reference`` (20 µPa in air, 1 µPa in water; ISO 1683:2015). It sets the unit of the
-    stimulus level, of the sensitivity metric (dB re 1 V per SI unit of the quantity) and
-    its trade form.
+    The spec's ``[capture] quantity`` (pressure by default), for sound pressure
+    ``reference`` (20 µPa in air, 1 µPa in water; ISO 1683:2015), and ``charge_gain``
+    (V/C) when the units feed a charge amplifier. It sets the unit of the stimulus level,
+    of the sensitivity metric (dB re 1 V per SI unit of the quantity: the voltage
+    sensitivity of the unit, with its charge amplifier if it has one) and its trade form
+    (a charge sensitivity, pC per unit, with a charge amplifier).
 
     Examples
     --------
-    An accelerometer line: 10 mV/g is 1.0197 mV/(m/s²), −39.83 dB re 1 V/(m/s²):
+    An accelerometer line: 10 mV/g is 1.0197 mV/(m/s²), −59.83 dB re 1 V/(m/s²):
 
     >>> m = Measurand("acceleration")
     >>> m.sensitivity_unit, m.level_unit
@@ -123,10 +125,19 @@ class Measurand:
     True
     >>> Measurand("pressure", 1e-6).trade_form(-76.0)   # hydrophones: dB re 1 V/µPa
     '-196.00 dB re 1 V/µPa'
+
+    A force sensor on a 1 mV/pC charge amplifier: 4 pC/N reads 4 mV/N, −47.96 dB re 1 V/N:
+
+    >>> f = Measurand("force", 1e-6, charge_gain_v_per_c=1e9)
+    >>> db = f.sensitivity_db("4 pC/N", what="nominal")
+    >>> round(db, 2), f.trade_form(db)
+    (-47.96, '4.000 pC/N')
     """
 
     quantity: str = "pressure"
     reference: float = _AIR_PA
+    #: Gain of the charge amplifier the units feed (V/C), or None for voltage output.
+    charge_gain_v_per_c: float | None = None
 
     @property
     def measured(self) -> Quantity:
@@ -140,8 +151,10 @@ class Measurand:
 
     @property
     def default(self) -> bool:
-        """True for sound pressure in air, the spec's default."""
-        return self.quantity == "pressure" and not self.in_water
+        """True for sound pressure in air without a charge amplifier, the spec's default."""
+        return (
+            self.quantity == "pressure" and not self.in_water and self.charge_gain_v_per_c is None
+        )
 
     @property
     def sensitivity_unit(self) -> str:
@@ -171,23 +184,27 @@ class Measurand:
 
     def sensitivity_db(self, text: str, *, what: str) -> float:
         """A sensitivity in any trade form of the quantity, as a metric value
-        (dB re 1 V per SI unit); a charge sensitivity or another quantity is refused."""
+        (dB re 1 V per SI unit); another quantity is refused, and a charge sensitivity
+        without a charge amplifier."""
         s = parse_sensitivity_of(text, quantity=self.quantity, what=what)
-        if s.electrical != "V":
+        if s.electrical != "V" and self.charge_gain_v_per_c is None:
             raise UnitError(
-                f"{what}: {text!r} is a charge sensitivity; the batch measures volts at the "
-                "sensor: give the limit in volts per unit"
+                f"{what}: {text!r} is a charge sensitivity; set capture.charge_gain (the "
+                'charge amplifier\'s gain, e.g. "1 mV/pC") or give volts per unit'
             )
-        return ratio_to_db(s.value)
+        return ratio_to_db(s.volts_per_unit(self.charge_gain_v_per_c))
 
     def trade_form(self, value_db: float) -> str | None:
         """The sensitivity metric ``value_db`` in its trade form, or None for a microphone
         (dB re 1 V/Pa is its own)."""
         if self.default or not math.isfinite(value_db):
             return None
+        volts = 10.0 ** (value_db / 20.0)
+        if self.charge_gain_v_per_c is not None:
+            charge = volts / self.charge_gain_v_per_c
+            return format_sensitivity(Sensitivity(charge, "C", self.measured))
         if self.in_water:
             return f"{value_db - 120.0:.2f} dB re 1 V/µPa"
-        volts = 10.0 ** (value_db / 20.0)
         return format_sensitivity(Sensitivity(volts, "V", self.measured))
 
 
@@ -609,6 +626,7 @@ class Spec:
         if not self.measurand.default:
             out["quantity"] = self.measurand.quantity
             out["reference"] = self.measurand.reference
+            out["charge_gain_v_per_c"] = self.measurand.charge_gain_v_per_c
         if self.response_curve is not None:
             out["response_curve"] = {
                 "frequency_hz": [float(v) for v in self.response_curve.frequency_hz],
@@ -816,6 +834,7 @@ _CAPTURE_KEYS = (
     "quantity",
     "reference",
     "response_curve",
+    "charge_gain",
 )
 _LIMIT_KEYS = ("lower", "upper", "lower_rel", "upper_rel", "severity", "decision")
 _METRIC_COMMON = ("kind", "derive", "limits", "severity", *_LIMIT_KEYS)
@@ -1004,8 +1023,16 @@ def _measurand(check: _Checker, cap: Mapping[str, Any]) -> Measurand:
             ("capture", "quantity"),
             f"expected one of {', '.join(CAPTURE_QUANTITIES)}, got {_show(name)}",
         )
+    charge_gain = None
+    if "charge_gain" in cap:
+        try:
+            charge_gain = parse_charge_gain(cap["charge_gain"], what="capture.charge_gain")
+        except UnitError as exc:
+            problem = exc.message.removeprefix("capture.charge_gain: ")
+            raise check.error(("capture", "charge_gain"), problem) from None
     if "reference" not in cap:
-        return Measurand(name, _AIR_PA if name == "pressure" else QUANTITIES[name].reference)
+        own = _AIR_PA if name == "pressure" else QUANTITIES[name].reference
+        return Measurand(name, own, charge_gain)
     path = ("capture", "reference")
     if name != "pressure":
         raise check.error(
@@ -1019,7 +1046,7 @@ def _measurand(check: _Checker, cap: Mapping[str, Any]) -> Measurand:
         raise check.error(path, exc.message.removeprefix("capture.reference: ")) from None
     for known in (_AIR_PA, _WATER_PA):
         if math.isclose(reference, known, rel_tol=1e-9):
-            return Measurand(name, known)
+            return Measurand(name, known, charge_gain)
     raise check.error(
         path,
         f'expected "20 uPa" (air) or "1 uPa" (water), the references of ISO 1683, got '

@@ -69,24 +69,29 @@ def _sweep():
     )
 
 
-def accel_sweep_capture(path, mv_per_g, *, level_ms2=G, envelope_db=None, noise_v=0.0, seed=1):
-    """A flat accelerometer of ``mv_per_g`` on a shaker swept at ``level_ms2`` RMS.
+def sweep_capture(path, v_per_unit, level, *, envelope_db=None, noise_v=0.0, seed=1):
+    """A flat sensor of ``v_per_unit`` (V per SI unit) swept at ``level`` RMS (SI unit).
 
-    ``envelope_db(f)`` (dB) scales the acceleration at the sweep's instantaneous
-    frequency f1·e^(R t / T) (Farina 2000), a fixture whose level varies along the sweep.
+    ``envelope_db(f)`` (dB) scales the stimulus at the sweep's instantaneous frequency
+    f1·e^(R t / T) (Farina 2000): a fixture whose level varies along the sweep.
     """
     spec = _sweep()
     x = sweep_signal(spec)
-    accel = x * (math.sqrt(2.0) * level_ms2 / spec.amplitude)  # RMS level_ms2 over the sweep
+    stimulus = x * (math.sqrt(2.0) * level / spec.amplitude)  # RMS level over the sweep
     if envelope_db is not None:
         t = (np.arange(x.size) - spec.silence_before_frames) / FS
         rate = math.log(spec.stop_hz / spec.start_hz) / spec.duration_s
         f = spec.start_hz * np.exp(rate * np.clip(t, 0.0, spec.duration_s))
-        accel = accel * 10.0 ** (envelope_db(f) / 20.0)
-    volts = (mv_per_g * 1e-3 / G) * accel
+        stimulus = stimulus * 10.0 ** (envelope_db(f) / 20.0)
+    volts = v_per_unit * stimulus
     volts = volts + noise_v * np.random.default_rng(seed).standard_normal(volts.size)
     sf.write(path, volts * GAIN / FULL_SCALE_V, int(FS), subtype="FLOAT")
     return str(path)
+
+
+def accel_sweep_capture(path, mv_per_g, **kwargs):
+    """A flat accelerometer of ``mv_per_g`` on a shaker swept at 1 g RMS."""
+    return sweep_capture(path, mv_per_g * 1e-3 / G, G, **kwargs)
 
 
 def _db(x):
@@ -246,6 +251,38 @@ weighting = "Z"
     assert row["metrics"]["self_noise"] == pytest.approx(
         _db(1e-6 / 10 ** (-76 / 20) / 1e-6), abs=0.7
     )
+
+
+def test_a_force_line_on_a_charge_amplifier_reads_pc_per_n(tmp_path):
+    # Force sensors of 3.7, 4.0 and 4.3 pC/N on a 1 mV/pC charge amplifier: the metric is
+    # the voltage sensitivity with the amplifier (4 pC/N x 1 mV/pC = 4 mV/N,
+    # -47.96 dB re 1 V/N), its trade form the charge sensitivity.
+    text = (
+        ACCEL_SPEC.replace(
+            'quantity = "acceleration"', 'quantity = "force"\ncharge_gain = "1 mV/pC"'
+        )
+        .replace('level = "1 g"', 'level = "10 N"')
+        .replace('"10 mV/g"', '"4 pC/N"')
+        .replace('"9.5 mV/g"', '"3.8 pC/N"')
+        .replace('"10.5 mV/g"', '"4.2 mV/N"')  # a limit in volts per unit is taken too
+    )
+    spec = parse_spec(text)
+    sens = spec.metrics[0]
+    assert sens.unit == "dB re 1 V/N"
+    assert sens.params["nominal"] == pytest.approx(_db(4e-3), abs=1e-12)
+    assert (sens.limits[0].lower, sens.limits[0].upper) == pytest.approx(
+        (_db(3.8e-3), _db(4.2e-3))
+    )
+    verdicts = []
+    for pc in (3.7, 4.0, 4.3):
+        path = sweep_capture(tmp_path / f"f{pc}.wav", pc * 1e-12 * 1e9, 10.0, noise_v=2e-6)
+        row = evaluate_capture(path, spec)
+        # As for the accelerometers: a flat gain, noise 86 dB below the 40 mV signal.
+        assert row["metrics"]["sensitivity"] == pytest.approx(_db(pc * 1e-3), abs=0.05)
+        form = sens.trade_form(row["metrics"]["sensitivity"])
+        assert form.endswith(" pC/N") and float(form.split()[0]) == pytest.approx(pc, rel=0.006)
+        verdicts.append(row["verdict"])
+    assert verdicts == ["fail", "pass", "fail"]
 
 
 BAD_SPECS = [
