@@ -160,14 +160,12 @@ def _sweep_sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 def _sensitivity_value(
     a: CaptureAnalysis, m: MetricSpec, value: float, frequency_hz: float
 ) -> MetricValue:
-    """A sensitivity value with its trade form and any note on the chart as detail."""
-    notes = [t for t in (m.trade_form(value),) if t]
+    """A sensitivity value, with a note as detail where the reference chart does not
+    reach its frequency (its trade form is added by the verdict's messages)."""
     curve = a.spec.response_curve
-    if curve is not None:
-        note = curve.coverage_note(frequency_hz, frequency_hz)
-        if note is not None:
-            notes.append(f"reference chart {a.spec.response_curve_file}: {note}")
-    return MetricValue(value, detail="; ".join(notes) or None)
+    note = None if curve is None else curve.coverage_note(frequency_hz, frequency_hz)
+    detail = None if note is None else f"reference chart {a.spec.response_curve_file}: {note}"
+    return MetricValue(value, detail=detail)
 
 
 def _corner(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:

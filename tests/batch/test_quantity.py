@@ -121,12 +121,13 @@ def test_an_accelerometer_lot_reads_its_sensitivity_per_g(tmp_path):
         # in dB re 1 V/Pa cannot pass.
         assert row["metrics"]["sensitivity"] == pytest.approx(_db(mv * 1e-3 / G), abs=0.05)
     assert [rows[mv]["verdict"] for mv in rows] == ["fail", "pass", "pass", "fail"]
-    # The limit message carries the trade form beside the dB value.
+    # The limit message gives value and limit in dB and in the trade form; the limit
+    # reads as the spec wrote it (10.5 mV/g).
     message = rows[11.0]["failed_limits"][0]
     upper = f"{_db(10.5e-3 / G):.6g}"  # 10.5 mV/g: -59.4066 dB re 1 V/(m/s²)
     assert re.fullmatch(
-        rf"sensitivity = -59\.0\d* dB re 1 V/\(m/s²\) above upper limit {upper} "
-        r"\(1\.12\d mV/\(m/s²\) \(1[01]\.\d\d mV/g\)\) \[fail\]",
+        r"sensitivity = -59\.0\d* dB re 1 V/\(m/s²\) \(1\.12\d mV/\(m/s²\) \(1[01]\.\d\d mV/g\)\) "
+        rf"above upper limit {upper} \(1\.071 mV/\(m/s²\) \(10\.50 mV/g\)\) \[fail\]",
         message,
     ), message
     assert sens.trade_form(rows[9.9]["metrics"]["sensitivity"]).endswith(" mV/g)")
