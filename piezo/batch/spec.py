@@ -455,7 +455,8 @@ class MetricSpec:
     limits: tuple[Limit, ...]
     derive: bool = True
     line: int = 0
-    #: The line's stimulus quantity (units of sensitivity and self-noise); None: in air.
+    #: The line's stimulus quantity (units of sensitivity and self-noise); None: the
+    #: kind's own units (sound pressure in air).
     measurand: Measurand | None = field(default=None, repr=False)
 
     @property
