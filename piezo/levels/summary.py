@@ -20,8 +20,8 @@ __all__ = [
     "CAUTION",
     "LEVEL_KEYS",
     "VIBRATION_CAUTION",
-    "caution_for",
     "Levels",
+    "caution_for",
     "levels_of",
     "reference_key",
 ]
