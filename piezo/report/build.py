@@ -12,6 +12,7 @@ from typing import Any
 
 from piezo.diagnostics.summary import diagnostics_document
 from piezo.io.atomic import atomic_output
+from piezo.levels.summary import VIBRATION_CAUTION
 from piezo.plots import figures as plots
 from piezo.report.document import (
     CAUTIONS,
@@ -73,7 +74,10 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
             "software": software_versions(),
             "json_name": json_name,
         },
-        "cautions": list(CAUTIONS),
+        "cautions": [
+            *CAUTIONS,
+            *([VIBRATION_CAUTION] if any(c.measured.name != "pressure" for c in chains) else []),
+        ],
         "notes": list(run.notes),
         "recording": recording_section(source),
         "chain": chain_section(source),
