@@ -546,16 +546,19 @@ def profile_with_sensitivity(
     source: str | None = None,
     quantity: str = "pressure",
     section: str = "sensor",
+    charge_gain_v_per_c: float | None = None,
 ) -> str:
     r"""A profile's text with ``quantity``, ``sensitivity`` and ``calibration_date`` set.
 
     The values go into ``[section]`` (``"sensor"``, or ``"channel.N"`` for one channel
     of a multi-channel recording), which is added when missing; the sensitivity, in V
     per SI unit of ``quantity``, is written in its trade unit
-    (:func:`~piezo.chain.quantity.compact_sensitivity`). Everything else (other keys,
-    sections, comments, blank lines) is kept as it is; a ``charge_sensitivity`` in the
-    section is dropped (the measured voltage sensitivity replaces it). ``text`` None or
-    empty starts a new profile. The caller writes the result.
+    (:func:`~piezo.chain.quantity.compact_sensitivity`). With ``charge_gain_v_per_c``
+    (a charge amplifier's gain) it is written as a ``charge_sensitivity`` (``"4 pC/N"``)
+    and the gain as ``[chain] charge_gain``, so the profile reads back to the same
+    volts. Everything else (other keys, sections, comments, blank lines) is kept as it
+    is; the section's other form of sensitivity is dropped. ``text`` None or empty
+    starts a new profile. The caller writes the result.
 
     Raises
     ------
@@ -595,16 +598,46 @@ def profile_with_sensitivity(
     sensitivity = "1.0197 mV/(m/s²)"
     calibration_date = 2026-12-02
     <BLANKLINE>
+    >>> print(profile_with_sensitivity(None, 4e-3, calibration_date="2026-12-02",
+    ...                                quantity="force", charge_gain_v_per_c=1e9))
+    [sensor]
+    quantity = "force"
+    charge_sensitivity = "4 pC/N"
+    calibration_date = 2026-12-02
+    <BLANKLINE>
+    [chain]
+    charge_gain = "1 mV/pC"
+    <BLANKLINE>
     """
     lines = text.splitlines() if text else []
     if lines:
         parse_toml("\n".join(lines), source=source)
-    sensitivity = Sensitivity(sensitivity_v_per_unit, "V", quantity_named(quantity))
+    q = quantity_named(quantity)
+    if charge_gain_v_per_c is None:
+        key, drop = "sensitivity", "charge_sensitivity"
+        measured = Sensitivity(sensitivity_v_per_unit, "V", q)
+    else:
+        key, drop = "charge_sensitivity", "sensitivity"
+        measured = Sensitivity(sensitivity_v_per_unit / charge_gain_v_per_c, "C", q)
     values = {
-        "quantity": toml_value(sensitivity.quantity.name),
-        "sensitivity": toml_value(compact_sensitivity(sensitivity)),
+        "quantity": toml_value(q.name),
+        key: toml_value(compact_sensitivity(measured)),
         "calibration_date": calibration_date,
     }
+    lines = _with_keys(lines, section, values, drop=drop)
+    if charge_gain_v_per_c is not None:
+        gain = toml_value(f"{charge_gain_v_per_c * 1e-9:.5g} mV/pC")
+        lines = _with_keys(lines, "chain", {"charge_gain": gain})
+    result = "\n".join(lines).rstrip("\n") + "\n"
+    parse_toml(result, source=source)
+    return result
+
+
+def _with_keys(
+    lines: list[str], section: str, values: Mapping[str, str], *, drop: str | None = None
+) -> list[str]:
+    """Profile lines with ``values`` (TOML text) set in ``[section]`` and ``drop`` removed
+    from it; a missing ``[section]`` is added (``[sensor]`` first, others last)."""
     out: list[str] = []
     current = None
     seen = False
@@ -622,13 +655,13 @@ def profile_with_sensitivity(
                 written.update(values)
             current = stripped.strip("[]").strip()
             seen = seen or current == section
-        key = stripped.split("=", 1)[0].strip() if "=" in stripped else None
+        key = stripped.split("=", 1)[0].strip() if "=" in stripped else ""
         if current == section and key in values and key not in written:
             out.append(f"{key} = {values[key]}")
             written.add(key)
             continue
-        if current == section and key == "charge_sensitivity":
-            continue  # replaced by the measured voltage sensitivity
+        if current == section and key and key == drop:
+            continue  # replaced by the measured sensitivity
         out.append(line)
     block = [f"{k} = {v}" for k, v in values.items() if k not in written]
     if current == section:
@@ -641,9 +674,7 @@ def profile_with_sensitivity(
             while out and not out[-1].strip():
                 out.pop()
             out = [*out, "", *head] if out else head
-    result = "\n".join(out).rstrip("\n") + "\n"
-    parse_toml(result, source=source)
-    return result
+    return out
 
 
 def profile_for_sensor(

@@ -10,9 +10,22 @@ from typing import Annotated
 import typer
 
 from piezo.chain.measurement import CalibratedSource, profile_with_sensitivity, sidecar_path
-from piezo.chain.quantity import QUANTITIES, Quantity, parse_level_of, quantity_named
-from piezo.chain.units import parse_decibels, parse_quantity
-from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
+from piezo.chain.quantity import (
+    QUANTITIES,
+    Quantity,
+    Sensitivity,
+    format_sensitivity,
+    parse_level_of,
+    quantity_named,
+)
+from piezo.chain.units import parse_charge_gain, parse_decibels, parse_quantity
+from piezo.cli.options import (
+    JsonOption,
+    SourceOptions,
+    open_source,
+    parse_channel_values,
+    source_options,
+)
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
 from piezo.errors import InputError, UnitError
 from piezo.io.text import parse_toml, read_text
@@ -146,6 +159,7 @@ def calibrate(
             quantity=quantity.name,
             calibrator_tolerance_db=tolerance_db,
             calibrator_expanded_db=certificate_db,
+            charge_gain_v_per_c=_charge_gain(source, src),
             advance=advance,
         )
     result = calibration.result
@@ -170,6 +184,20 @@ def calibrate(
         err_console.print(
             f"tip: --write-profile {sidecar_path(file)} stores this sensitivity in the sidecar"
         )
+
+
+def _charge_gain(source: CalibratedSource, src: SourceOptions) -> float | None:
+    """The charge amplifier's gain of the calibrated channel: ``--charge-gain`` (its own
+    ``N=`` value, else the bare one), else the last profile's ``[chain] charge_gain``."""
+    index = source.channel_indices[0]
+    every, own = parse_channel_values(src.charge_gain, option="--charge-gain")
+    text = own.get(index, every)
+    if text is not None:
+        return parse_charge_gain(text, what="--charge-gain")
+    provenance = source.provenance_of(index)
+    profiles = () if provenance is None else provenance.profiles
+    gains = [p.charge_gain_v_per_c for p in profiles if p.charge_gain_v_per_c is not None]
+    return gains[-1] if gains else None
 
 
 def _quantities(source: CalibratedSource) -> str:
@@ -235,6 +263,9 @@ def _print(file: Path, doc: dict, calibration: Calibration) -> None:
     extra = ""
     if result.sensitivity_dbv_per_pa is not None:
         extra = f"  ({result.sensitivity_dbv_per_pa:.2f} dB re 1 V/Pa)"
+    if result.charge_gain_v_per_c is not None:
+        volts = Sensitivity(result.sensitivity_v_per_unit, "V", quantity)
+        extra += f"  ({format_sensitivity(volts)} after the charge amplifier)"
     console.print(f"  sensitivity   [bold]{result.sensitivity_text}[/bold]{extra}")
     budget = calibration.budget
     console.print(
@@ -282,5 +313,6 @@ def _update_profile(path: Path, calibration: Calibration, *, several: bool) -> N
         source=str(path),
         quantity=result.quantity,
         section=f"channel.{channel}" if several or own else "sensor",
+        charge_gain_v_per_c=result.charge_gain_v_per_c,
     )
     write_text_atomic(path, text)

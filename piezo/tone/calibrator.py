@@ -167,6 +167,9 @@ class CalibrationResult:
         Sample standard deviation of the segment levels (n − 1 in the denominator).
     quantity
         What the calibrator applies (``"pressure"``, ``"acceleration"`` ...).
+    charge_gain_v_per_c
+        The charge amplifier's gain (V/C) of a charge-output sensor, when known: the
+        sensitivity is then also a charge sensitivity (C per unit, ``"4 pC/N"``).
 
     Examples
     --------
@@ -193,6 +196,7 @@ class CalibrationResult:
     stable: bool
     segment_level_std_db: float = math.nan
     quantity: str = "pressure"
+    charge_gain_v_per_c: float | None = None
 
     @property
     def calibrator_rms(self) -> float:
@@ -200,13 +204,25 @@ class CalibrationResult:
         return self.reference * 10.0 ** (self.level_db / 20.0)
 
     @property
+    def charge_sensitivity_c_per_unit(self) -> float | None:
+        """The charge sensitivity (C per SI unit) with a charge amplifier's gain, else None."""
+        gain = self.charge_gain_v_per_c
+        return None if gain is None else self.sensitivity_v_per_unit / gain
+
+    @property
     def sensitivity(self) -> Sensitivity:
-        """The measured sensitivity, with its quantity (a voltage sensitivity)."""
-        return Sensitivity(self.sensitivity_v_per_unit, "V", QUANTITIES[self.quantity])
+        """The measured sensitivity, with its quantity: a charge sensitivity with a charge
+        amplifier's gain, else a voltage sensitivity."""
+        q = QUANTITIES[self.quantity]
+        charge = self.charge_sensitivity_c_per_unit
+        if charge is not None:
+            return Sensitivity(charge, "C", q)
+        return Sensitivity(self.sensitivity_v_per_unit, "V", q)
 
     @property
     def sensitivity_text(self) -> str:
-        """The sensitivity in its trade form (``"8.500 mV/Pa"``, ``"1.020 mV/(m/s²) ..."``)."""
+        """The sensitivity in its trade form (``"8.500 mV/Pa"``, ``"1.020 mV/(m/s²) ..."``,
+        ``"4.000 pC/N"``)."""
         return format_sensitivity(self.sensitivity)
 
     @property

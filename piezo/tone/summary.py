@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
@@ -33,6 +33,7 @@ from piezo.tone.calibrator import (
     calibration_budget,
     calibrator_frequency_hz,
 )
+from piezo.validate import physical_value
 
 __all__ = ["RESOLUTION_HZ", "Calibration", "Tone", "calibration_of", "tone_of"]
 
@@ -314,6 +315,8 @@ class Calibration:
             "sensitivity_v_per_unit": r.sensitivity_v_per_unit,
             "sensitivity": r.sensitivity_text,
         }
+        if r.charge_gain_v_per_c is not None:
+            doc["charge_sensitivity_c_per_unit"] = r.charge_sensitivity_c_per_unit
         if pressure:
             doc["sensitivity_mv_per_pa"] = r.sensitivity_mv_per_pa
             doc["sensitivity_dbv_per_pa"] = r.sensitivity_dbv_per_pa
@@ -335,6 +338,11 @@ class Calibration:
                 "full_scale_v": self.full_scale_v,
                 "gain": self.gain,
                 reference_key(q.unit): r.reference,
+                **(
+                    {}
+                    if r.charge_gain_v_per_c is None
+                    else {"charge_gain_v_per_c": r.charge_gain_v_per_c}
+                ),
             },
             uncertainty={
                 "expanded_uncertainty_db": self.budget.expanded_uncertainty,
@@ -353,6 +361,7 @@ def calibration_of(
     quantity: str | None = None,
     calibrator_tolerance_db: float = CLASS1_LEVEL_TOLERANCE_DB,
     calibrator_expanded_db: float | None = None,
+    charge_gain_v_per_c: float | None = None,
     advance: Callable[[int], object] | None = None,
 ) -> Calibration:
     """Sensitivity of the sensor on one channel of ``source`` from a calibrator tone.
@@ -368,7 +377,9 @@ def calibration_of(
     (:func:`~piezo.tone.calibrator.calibrator_frequency_hz`). ``result.stable`` says
     whether the tone's level and frequency held still; the caller decides whether to
     accept it. ``calibrator_tolerance_db`` (class 1 of IEC 60942:2017 by default) or a
-    certificate's ``calibrator_expanded_db`` (k = 2) enter the uncertainty budget.
+    certificate's ``calibrator_expanded_db`` (k = 2) enter the uncertainty budget. With
+    ``charge_gain_v_per_c`` (the charge amplifier of a charge-output sensor) the result
+    is a charge sensitivity too (``"4.000 pC/N"``).
 
     Raises
     ------
@@ -402,6 +413,8 @@ def calibration_of(
     chain = source.chain_of(source.channel_indices[0])
     name = chain.quantity if quantity is None else quantity
     try:
+        if charge_gain_v_per_c is not None:
+            physical_value(charge_gain_v_per_c, what="charge_gain_v_per_c", unit="V/C")
         q = quantity_named(name)
         if expected_hz is None:
             expected_hz = calibrator_frequency_hz(q.name)
@@ -414,7 +427,7 @@ def calibration_of(
             quantity=q.name,
         )
         source.volts_at_sensor().feed(cal, advance=advance)
-        result = cal.result()
+        result = replace(cal.result(), charge_gain_v_per_c=charge_gain_v_per_c)
     except InputError as exc:
         raise exc.with_source(file) from None
     return Calibration(

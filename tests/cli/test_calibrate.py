@@ -189,3 +189,27 @@ def test_bad_levels_are_one_line(cli, tmp_path, options, message):
     r = cli("calibrate", path, *options, *CHAIN)
     assert r.code == 2 and r.out == ""
     assert r.err.count("\n") == 1 and message in r.err
+
+
+def test_a_charge_amplifier_gives_pc_per_n_and_writes_it_back(cli, tmp_path):
+    # The same volts, now a force sensor behind a 10 mV/pC charge amplifier on a 10 N RMS
+    # calibrator: 10.197 mV / 10 N / 10 mV/pC = 0.10197 pC/N.
+    path = vibration_capture(tmp_path / "force.wav")
+    side = path.with_suffix(".toml")
+    side.write_text('[chain]\ngain = "20 dB"\nfull_scale = "2 V"\n', encoding="utf-8")
+    r = cli("calibrate", path, "--level", "10 N", "--frequency", "159.2 Hz",
+            "--charge-gain", "10 mV/pC", "--write-profile", side, "--json")  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["charge_sensitivity_c_per_unit"] == pytest.approx(0.010 / G * 1e-11, rel=SENS_TOL)
+    assert doc["sensitivity"].endswith(" pC/N") and doc["chain"]["charge_gain_v_per_c"] == 1e10
+    written = tomllib.loads(side.read_text(encoding="utf-8"))
+    assert written["sensor"]["charge_sensitivity"].endswith(" pC/N")
+    assert "sensitivity" not in written["sensor"]
+    assert written["chain"]["charge_gain"] == "10 mV/pC"
+    # Read back through the profile alone: 10 N RMS (the tolerance of the sensitivity,
+    # of info's RMS over 3 s, 1/(2ωT), and of 5 printed digits).
+    info = cli("info", path, "--json").json()
+    (ch,) = info["channels"]
+    assert ch["unit"] == "N"
+    assert ch["rms"] == pytest.approx(10.0, rel=SENS_TOL + 1 / (2 * OMEGA * 3) + 5e-5)
