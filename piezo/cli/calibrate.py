@@ -60,15 +60,15 @@ def calibrate(
     file: Annotated[Path, typer.Argument(help="Capture of the sensor on a calibrator.")],
     *,
     level: Annotated[
-        str,
+        str | None,
         typer.Option(
             "--level",
             help="Calibrator level with its unit: '94 dB', '114 dB re 20 uPa', '10 m/s²', "
             "'1 g', '10 N' (RMS); a bare number is dB re the channel's reference "
-            "(20 uPa, 1 um/s², 1 uN ...). Its unit names the quantity when the profile "
-            "or --quantity does not.",
+            "(20 uPa, 1 um/s², 1 uN ...). Its unit names the quantity unless --quantity "
+            "does. Default 94 dB for sound pressure; required for other quantities.",
         ),
-    ] = "94",
+    ] = None,
     frequency: Annotated[
         str | None,
         typer.Option(
@@ -207,17 +207,25 @@ def _quantities(source: CalibratedSource) -> str:
     )
 
 
-def _calibrator_level(source: CalibratedSource, text: str) -> tuple[Quantity, float]:
+def _calibrator_level(source: CalibratedSource, text: str | None) -> tuple[Quantity, float]:
     """The calibrator's quantity and its level in dB re that quantity's reference.
 
     The quantity is ``--quantity``'s when given, else the one the level's unit names,
-    else the channel's (its profile's, or sound pressure).
+    else the channel's (its profile's, or sound pressure). Without a level, a sound
+    calibrator's 94 dB; other calibrators have no usual level.
     """
     index = source.channel_indices[0]
     chain = source.chain_of(index)
     given = source.provenance_of(index)
     by_option = given is not None and given.quantity == "option"
     channel_quantity = quantity_named(chain.quantity)
+    if text is None:
+        if channel_quantity.name != "pressure":
+            raise InputError(
+                f"--level: channel {index} measures {channel_quantity.name}; give the "
+                "calibrator's level with its unit, e.g. --level '10 m/s²'"
+            )
+        text = "94"
 
     def reference(q: Quantity) -> float:
         # The chain's reference pressure (20 µPa in air, 1 µPa in water), else ISO 1683.

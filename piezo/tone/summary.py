@@ -356,7 +356,7 @@ class Calibration:
 def calibration_of(
     source: CalibratedSource,
     *,
-    level_db: float = 94.0,
+    level_db: float | None = None,
     expected_hz: float | None = None,
     quantity: str | None = None,
     calibrator_tolerance_db: float = CLASS1_LEVEL_TOLERANCE_DB,
@@ -372,7 +372,8 @@ def calibration_of(
     (:class:`~piezo.tone.calibrator.ToneCalibrator`), in V per SI unit of the quantity.
     ``quantity`` is what the calibrator applies, by default the channel's (its profile's
     or ``quantity=`` of :func:`piezo.open`); ``level_db`` is re that quantity's level
-    reference (the chain's reference pressure for sound pressure, else ISO 1683);
+    reference (the chain's reference pressure for sound pressure, else ISO 1683), 94 dB
+    by default for a sound calibrator, required for the others;
     ``expected_hz`` defaults to the quantity's usual calibrator frequency
     (:func:`~piezo.tone.calibrator.calibrator_frequency_hz`). ``result.stable`` says
     whether the tone's level and frequency held still; the caller decides whether to
@@ -384,8 +385,9 @@ def calibration_of(
     Raises
     ------
     InputError
-        More than one channel, a quantity without a usual calibrator frequency and no
-        ``expected_hz``, or no calibrator tone.
+        More than one channel, a quantity other than sound pressure without
+        ``level_db``, or without a usual calibrator frequency and no ``expected_hz``,
+        or no calibrator tone.
 
     Examples
     --------
@@ -416,6 +418,10 @@ def calibration_of(
         if charge_gain_v_per_c is not None:
             physical_value(charge_gain_v_per_c, what="charge_gain_v_per_c", unit="V/C")
         q = quantity_named(name)
+        if level_db is None:
+            if q.name != "pressure":
+                raise InputError(f"level_db: give the level of the {q.name} calibrator")
+            level_db = 94.0
         if expected_hz is None:
             expected_hz = calibrator_frequency_hz(q.name)
         reference = chain.reference_pa if q.name == "pressure" else q.reference
