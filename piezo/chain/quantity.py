@@ -45,6 +45,7 @@ __all__ = [
     "format_sensitivity",
     "parse_level_of",
     "parse_sensitivity_of",
+    "parse_value_of",
     "quantity_named",
 ]
 
@@ -297,6 +298,71 @@ def parse_sensitivity_of(
     if quantity is not None and quantity_named(quantity, what=what) != q:
         raise UnitError(f"{what}: {text!r} is a {name} sensitivity, not {quantity}")
     return Sensitivity(value, kind, q)
+
+
+_VALUE_RE = re.compile(rf"^({_NUMBER})\s*(.+)$")
+
+
+def parse_value_of(
+    text: str, *, quantity: str | None = None, what: str = "value"
+) -> tuple[float, Quantity]:
+    """Read a value of a measured quantity (``"10 m/s²"``, ``"1 g"``, ``"2 N"``, ``"1 Pa"``).
+
+    The unit is one of those the sensitivities are written with (``Pa``, ``kPa``,
+    ``µPa``, ``g``, ``m/s²``, ``m/s``, ``mm/s``, ``m``, ``mm``, ``µm``, ``nm``, ``N``,
+    ``kN``); ``g`` is the standard acceleration of gravity (ISO 80000-3).
+
+    Parameters
+    ----------
+    text
+        The value with its unit.
+    quantity
+        When given, the quantity the value must be of (another one is refused).
+    what
+        Name of the input in error messages.
+
+    Returns
+    -------
+    tuple
+        The value in the quantity's SI unit, and the :class:`Quantity`.
+
+    Examples
+    --------
+    >>> value, q = parse_value_of("1 g")
+    >>> value, q.name, q.unit
+    (9.80665, 'acceleration', 'm/s²')
+    >>> parse_value_of("10 mm/s", quantity="velocity")[0]
+    0.01
+    >>> parse_value_of("10 m/s²", quantity="force", what="stimulus.level")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: stimulus.level: '10 m/s²' is an acceleration (m/s²), not a force (N)
+    """
+    match = _VALUE_RE.match(str(text).strip())
+    unit = match.group(2).replace(" ", "").replace("μ", "µ") if match else ""
+    if unit.startswith("(") and unit.endswith(")"):
+        unit = unit[1:-1]
+    found = _MECHANICAL.get(unit)
+    if match is None or found is None:
+        units = ", ".join(k for k in _MECHANICAL if k not in ("uPa", "um", "m/s^2", "m/s2"))
+        raise UnitError(f"{what}: cannot read {text!r}; expected a number and one of {units}")
+    name, factor = found
+    value = float(match.group(1)) * factor
+    if not math.isfinite(value):
+        raise UnitError(f"{what}: {text!r} is not a finite value")
+    q = QUANTITIES[name]
+    if quantity is not None:
+        wanted = quantity_named(quantity, what=what)
+        if wanted != q:
+            raise UnitError(
+                f"{what}: {text!r} is {_article(name)} {name} ({q.unit}), not "
+                f"{_article(wanted.name)} {wanted.name} ({wanted.unit})"
+            )
+    return value, q
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1] in "aeiou" else "a"
 
 
 #: Trade form of each quantity's sensitivity: (electrical kind, quantity) -> (text, factor).
