@@ -310,7 +310,8 @@ def parse_value_of(
 
     The unit is one of those the sensitivities are written with (``Pa``, ``kPa``,
     ``µPa``, ``g``, ``m/s²``, ``m/s``, ``mm/s``, ``m``, ``mm``, ``µm``, ``nm``, ``N``,
-    ``kN``); ``g`` is the standard acceleration of gravity (ISO 80000-3).
+    ``kN``, and the SI units with a prefix p, n, µ, m or k: ``µm/s²``, ``nm/s``, ``pm``,
+    ``µN``); ``g`` is the standard acceleration of gravity (ISO 80000-3).
 
     Parameters
     ----------
@@ -339,10 +340,7 @@ def parse_value_of(
     piezo.errors.UnitError: stimulus.level: '10 m/s²' is an acceleration (m/s²), not a force (N)
     """
     match = _VALUE_RE.match(str(text).strip())
-    unit = match.group(2).replace(" ", "").replace("μ", "µ") if match else ""
-    if unit.startswith("(") and unit.endswith(")"):
-        unit = unit[1:-1]
-    found = _MECHANICAL.get(unit)
+    found = _mechanical_unit(match.group(2)) if match else None
     if match is None or found is None:
         units = ", ".join(k for k in _MECHANICAL if k not in ("uPa", "um", "m/s^2", "m/s2"))
         raise UnitError(f"{what}: cannot read {text!r}; expected a number and one of {units}")
@@ -423,7 +421,7 @@ def compact_sensitivity(s: Sensitivity, *, digits: int = 5) -> str:
 
 _DB_LEVEL_RE = re.compile(rf"^({_NUMBER})\s*(?:dB)?$")
 _DB_RE_RE = re.compile(rf"^({_NUMBER})\s*dB\s*re\s*({_NUMBER})\s*(.+)$")
-_AMOUNT_RE = re.compile(rf"^({_NUMBER})\s*(.+?)(?:\s+RMS)?$", re.IGNORECASE)
+_RMS_RE = re.compile(r"\s+RMS$", re.IGNORECASE)
 
 
 def parse_level_of(
@@ -471,13 +469,10 @@ def parse_level_of(
             raise UnitError(f"{what}: {text!r} names no reference; give e.g. '94 dB re 20 µPa'")
         value = reference * 10.0 ** (float(bare.group(1)) / 20.0)
     elif relative is not None:
-        ref, named = _amount(float(relative.group(2)), relative.group(3), text, what)
+        ref, named = _amount(f"{relative.group(2)} {relative.group(3)}", text, what)
         value = ref * 10.0 ** (float(relative.group(1)) / 20.0)
     else:
-        amount = _AMOUNT_RE.match(t)
-        if amount is None:
-            raise UnitError(f"{what}: cannot read {text!r}; {_LEVEL_FORMS}")
-        value, named = _amount(float(amount.group(1)), amount.group(2), text, what)
+        value, named = _amount(_RMS_RE.sub("", t), text, what)
     if not (math.isfinite(value) and value > 0):
         raise UnitError(f"{what}: must be positive and finite, got {text!r}")
     return value, named
@@ -489,11 +484,14 @@ _LEVEL_FORMS = (
 )
 
 
-def _amount(number: float, unit: str, text: object, what: str) -> tuple[float, Quantity]:
-    found = _mechanical_unit(unit)
-    if found is None or found[0] == "voltage":
-        raise UnitError(f"{what}: cannot read the unit of {text!r}; {_LEVEL_FORMS}")
-    name, factor = found
-    if not number > 0:
+def _amount(part: str, text: object, what: str) -> tuple[float, Quantity]:
+    """A value of a mechanical quantity (:func:`parse_value_of`) inside a level's text."""
+    try:
+        value, q = parse_value_of(part, what=what)
+    except UnitError:
+        raise UnitError(f"{what}: cannot read {text!r}; {_LEVEL_FORMS}") from None
+    if not q.mechanical:
+        raise UnitError(f"{what}: {text!r} is a {q.name}, not a calibrator level; {_LEVEL_FORMS}")
+    if not value > 0:
         raise UnitError(f"{what}: must be positive and finite, got {text!r}")
-    return number * factor, QUANTITIES[name]
+    return value, q
