@@ -295,6 +295,8 @@ def option_message(message: str) -> str:
     "--rate must be positive, got '-1'"
     >>> option_message("sensitivity: give the gain too (charge_gain, e.g. '1 mV/pC')")
     "--sensitivity: give the gain too (--charge-gain, e.g. '1 mV/pC')"
+    >>> option_message("channel 1: full_scale: unknown unit in '2 A'")
+    "channel 1: --full-scale: unknown unit in '2 A'"
     """
     for name, option in _OPTION_NAMES.items():
         # A parameter named in parentheses, as a hint, is respelt too.

@@ -179,6 +179,9 @@ def test_a_channel_option_names_its_channel_over_a_profile_quantity(cli, tmp_pat
     ch0, ch1 = r.json()["channels"]
     assert (ch0["unit"], ch1["unit"]) == ("m/s²", "Pa")
     assert ch1["chain"]["provenance"]["quantity"] == "sensitivity unit"
+    # A bare option is for every channel, over the profile's quantity too.
+    both = cli("info", path, "--json", "--sensitivity", "50 mV/Pa").json()["channels"]
+    assert [c["unit"] for c in both] == ["Pa", "Pa"]
     # Both given as options and at odds: refused.
     bad = cli("info", path, "--quantity", "1=force", "--sensitivity", "1=50 mV/Pa")
     assert bad.code == 2
