@@ -42,6 +42,7 @@ from piezo.chain.quantity import (
     format_sensitivity,
     parse_sensitivity_of,
     quantity_named,
+    with_article,
 )
 from piezo.chain.units import (
     parse_charge_gain,
@@ -373,8 +374,8 @@ channel measures acceleration
             ) from None
     if quantity is not None and s.quantity.name != quantity:
         raise UnitError(
-            f"{what}: {text!r} is a {s.quantity.name} sensitivity, but the channel measures "
-            f"{quantity}"
+            f"{what}: {text!r} is {with_article(s.quantity.name)} sensitivity, but the channel "
+            f"measures {quantity}"
         )
     if s.electrical == "C" and charge_gain_v_per_c is None:
         raise UnitError(

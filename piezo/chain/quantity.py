@@ -47,6 +47,7 @@ __all__ = [
     "parse_sensitivity_of",
     "parse_value_of",
     "quantity_named",
+    "with_article",
 ]
 
 #: Standard acceleration of gravity, exact (3rd CGPM 1901; ISO 80000-3:2019).
@@ -296,7 +297,7 @@ def parse_sensitivity_of(
         raise UnitError(f"{what}: sensitivity must be positive and finite, got {text!r}")
     q = QUANTITIES[name]
     if quantity is not None and quantity_named(quantity, what=what) != q:
-        raise UnitError(f"{what}: {text!r} is a {name} sensitivity, not {quantity}")
+        raise UnitError(f"{what}: {text!r} is {with_article(name)} sensitivity, not {quantity}")
     return Sensitivity(value, kind, q)
 
 
@@ -378,6 +379,17 @@ _TRADE_FORMS = {
 }
 
 
+def with_article(word: str) -> str:
+    """``word`` after its indefinite article, for messages: "an acceleration", "a force".
+
+    Examples
+    --------
+    >>> with_article("acceleration"), with_article("pressure")
+    ('an acceleration', 'a pressure')
+    """
+    return f"{'an' if word[:1] in ('a', 'e', 'i', 'o', 'u') else 'a'} {word}"
+
+
 def format_sensitivity(s: Sensitivity, *, digits: int = 4) -> str:
     """The trade form of a sensitivity, e.g. ``"1.02 mV/(m/s²) (10.00 mV/g)"``.
 
@@ -387,6 +399,8 @@ def format_sensitivity(s: Sensitivity, *, digits: int = 4) -> str:
     '1.020 mV/(m/s²) (10.00 mV/g)'
     >>> format_sensitivity(parse_sensitivity_of("4 pC/N"))
     '4.000 pC/N'
+    >>> format_sensitivity(parse_sensitivity_of("9.99999 mV/N"))  # rounds across a decade
+    '10.00 mV/N'
     """
     unit, factor = _TRADE_FORMS[(s.electrical, s.quantity.name)]
     text = _keep_zeros(s.value * factor, digits) + f" {unit}"
@@ -400,8 +414,10 @@ def _keep_zeros(value: float, digits: int) -> str:
     """``value`` to ``digits`` significant digits, trailing zeros kept (``10.00``)."""
     if value == 0 or not math.isfinite(value):
         return f"{value:g}"
-    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(value)))))
-    return f"{value:.{decimals}f}"
+    # Round first: 9.99999 to 4 digits is 10.00, whose decade sets the decimals.
+    rounded = float(f"{value:.{digits}g}")
+    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(rounded)))))
+    return f"{rounded:.{decimals}f}"
 
 
 def compact_sensitivity(s: Sensitivity, *, digits: int = 5) -> str:
