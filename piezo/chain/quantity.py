@@ -436,6 +436,7 @@ def compact_sensitivity(s: Sensitivity, *, digits: int = 5) -> str:
 
 
 _DB_LEVEL_RE = re.compile(rf"^({_NUMBER})\s*(?:dB)?$")
+_DB_SPL_RE = re.compile(rf"^({_NUMBER})\s*dB\s*SPL$", re.IGNORECASE)
 _DB_RE_RE = re.compile(rf"^({_NUMBER})\s*dB\s*re\s*({_NUMBER})\s*(.+)$")
 _RMS_RE = re.compile(r"\s+RMS$", re.IGNORECASE)
 
@@ -470,6 +471,9 @@ def parse_level_of(
     >>> value, q = parse_level_of("140 dB re 1 µm/s²")
     >>> round(value, 9), q.name
     (10.0, 'acceleration')
+    >>> value, q = parse_level_of("94 dB SPL")  # re 20 µPa, in air
+    >>> round(value, 5), q.name
+    (1.00237, 'pressure')
     >>> value, q = parse_level_of("94", reference=20e-6)
     >>> round(value, 5), q
     (1.00237, None)
@@ -480,7 +484,13 @@ def parse_level_of(
     named: Quantity | None = None
     bare = _DB_LEVEL_RE.match(t)
     relative = _DB_RE_RE.match(t)
-    if bare is not None:
+    spl = _DB_SPL_RE.match(t)
+    if spl is not None:
+        # Sound pressure level: re 20 µPa, the reference in air (ISO 1683; in water the
+        # reference must be stated, "dB re 1 µPa").
+        named = QUANTITIES["pressure"]
+        value = named.reference * 10.0 ** (float(spl.group(1)) / 20.0)
+    elif bare is not None:
         if reference is None:
             raise UnitError(f"{what}: {text!r} names no reference; give e.g. '94 dB re 20 µPa'")
         value = reference * 10.0 ** (float(bare.group(1)) / 20.0)
@@ -495,7 +505,7 @@ def parse_level_of(
 
 
 _LEVEL_FORMS = (
-    "accepted forms: '94 dB' (re the channel's reference), '114 dB re 20 µPa', "
+    "accepted forms: '94 dB' (re the channel's reference), '94 dB SPL', '114 dB re 20 µPa', "
     "'140 dB re 1 µm/s²', '10 m/s²', '1 g', '1 Pa', '10 N', '10 mm/s' (RMS)"
 )
 

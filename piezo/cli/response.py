@@ -9,7 +9,6 @@ from __future__ import annotations
 import datetime
 import math
 import os
-import re
 from dataclasses import replace
 from pathlib import Path
 from typing import Annotated, Any
@@ -19,6 +18,7 @@ import typer
 from rich.table import Table
 
 from piezo.chain.measurement import CalibratedSource, profile_for_sensor
+from piezo.chain.quantity import parse_level_of, with_article
 from piezo.chain.units import format_uncertain, parse_frequency, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
@@ -114,11 +114,11 @@ SmoothOption = Annotated[
 ]
 
 
-_DB_SPL_RE = re.compile(r"^\s*([-+]?\d+(?:\.\d*)?)\s*dB(?:\s*SPL)?\s*$", re.IGNORECASE)
-
-
 def parse_acoustic_level(text: str | None) -> float | None:
-    """``"94 dB"`` (dB SPL re 20 µPa) or ``"1.2 Pa"`` (RMS) → pascals RMS.
+    """``"94 dB"`` (dB re 20 µPa) or ``"1.2 Pa"`` (RMS) → pascals RMS.
+
+    Read by the one level parser, :func:`piezo.chain.quantity.parse_level_of`; a level of
+    another quantity is refused (the sweep's level is the sound pressure at the unit).
 
     Examples
     --------
@@ -131,17 +131,12 @@ def parse_acoustic_level(text: str | None) -> float | None:
     """
     if text is None:
         return None
-    m = _DB_SPL_RE.match(text)
-    if m:
-        return 20e-6 * 10 ** (float(m.group(1)) / 20)
-    try:
-        value = parse_quantity(text, "Pa", what="--acoustic-level")
-    except InputError:
+    value, quantity = parse_level_of(text, reference=20e-6, what="--acoustic-level")
+    if quantity is not None and quantity.name != "pressure":
         raise InputError(
-            f"--acoustic-level: cannot read {text!r}; use e.g. '94 dB' (re 20 µPa) or '1 Pa' (RMS)"
-        ) from None
-    if not value > 0:
-        raise InputError(f"--acoustic-level must be positive, got {text!r}")
+            f"--acoustic-level: {text!r} is {with_article(quantity.name)}; give the sound "
+            "pressure at the unit, e.g. '94 dB' (re 20 µPa) or '1 Pa' (RMS)"
+        )
     return value
 
 
