@@ -432,17 +432,20 @@ def _bode_kernel_integral(x: np.ndarray) -> np.ndarray:
 
 
 def _bode_phase(log_f: np.ndarray, log_magnitude: np.ndarray) -> np.ndarray:
-    """Minimum phase (rad) of an analog system at ``log_f`` from its ln|H| there.
+    """Minimum phase (rad) of an analog system at ``log_f`` (evenly spaced) from ln|H|.
 
     Bode's gain–phase relation, φ(ω₀) = (1/π) ∫ (d ln|H| / du) ln coth(|u|/2) du with
     u = ln(ω/ω₀) (H. W. Bode, *Network Analysis and Feedback Amplifier Design*, 1945,
     chapter XIV; chapter from memory), integrated exactly for ln|H| linear in u between
-    the points and constant beyond the first and the last.
+    the points and constant beyond the first and the last. On even spacing Δ the
+    integral over segment i seen from point j depends on i − j only: one kernel,
+    ``G((k + 1)Δ) − G(kΔ)``, correlated with the slopes.
     """
-    slope = np.diff(log_magnitude) / np.diff(log_f)
-    upper = _bode_kernel_integral(log_f[None, 1:] - log_f[:, None])
-    lower = _bode_kernel_integral(log_f[None, :-1] - log_f[:, None])
-    return np.asarray((upper - lower) @ slope / math.pi)
+    step = (log_f[-1] - log_f[0]) / (log_f.size - 1)
+    slope = np.diff(log_magnitude) / step
+    k = np.arange(-(log_f.size - 1), log_f.size - 1)
+    kernel = _bode_kernel_integral((k + 1) * step) - _bode_kernel_integral(k * step)
+    return np.correlate(kernel, slope, "valid")[::-1] / math.pi
 
 
 def _device_model(f: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
