@@ -9,10 +9,9 @@ from typing import Annotated
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_frequency
+from piezo.chain.units import parse_frequency, parse_frequency_range
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
-from piezo.errors import InputError
 from piezo.tone.summary import tone_of
 
 
@@ -28,18 +27,6 @@ def register(app: typer.Typer) -> None:
     ['tone']
     """
     app.command("tone", help="Test-tone frequency, level, THD, THD+N, SINAD and SNR.")(tone)
-
-
-def _parse_bandwidth(text: str) -> tuple[float, float]:
-    """``"20Hz:20kHz"`` -> ``(20.0, 20000.0)``."""
-    parts = text.split(":")
-    if len(parts) != 2:
-        raise InputError(f"--bandwidth must look like '20Hz:20kHz'; got {text!r}")
-    lo = parse_frequency(parts[0].strip(), "--bandwidth (low end)")
-    hi = parse_frequency(parts[1].strip(), "--bandwidth (high end)")
-    if not lo < hi:
-        raise InputError(f"--bandwidth: low end must be below high end; got {text!r}")
-    return lo, hi
 
 
 @source_options
@@ -92,7 +79,7 @@ def tone(
     {... "resolution_hz": 1.0, ... "frequency_hz": 1001.2..., ...}
     0
     """
-    given = _parse_bandwidth(bandwidth) if bandwidth is not None else None
+    given = parse_frequency_range(bandwidth, what="--bandwidth") if bandwidth is not None else None
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
     noise_source = open_source(noise, src) if noise is not None else None
