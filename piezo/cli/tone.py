@@ -47,7 +47,8 @@ def tone(
             "--bandwidth",
             metavar="LOW:HIGH",
             help="Measurement bandwidth; default 20Hz:20kHz up to 48 kHz sampling, else "
-            "20 Hz to 0.45 × the sample rate.",
+            "20 Hz to 0.45 × the sample rate, ended at the sensor's frequency range "
+            "(profile) when that ends lower.",
         ),
     ] = None,
     expected: Annotated[
@@ -99,12 +100,19 @@ def tone(
         _print(doc)
 
 
+#: What the terminal says about a default bandwidth (``bandwidth_source``).
+_SOURCE_NOTE = {
+    "sample rate": " (default for the sample rate)",
+    "sensor": " (default: up to where the sensor's frequency range ends)",
+}
+
+
 def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     lo, hi = doc["bandwidth_hz"]
     console.print(
         f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz"
-        + (" (default for the sample rate)" if doc["bandwidth_source"] == "sample rate" else "")
+        + _SOURCE_NOTE.get(doc["bandwidth_source"], "")
         + f", {doc['resolution_hz']:g} Hz bins, "
         f"{doc['segments']} averages"
     )
