@@ -375,11 +375,17 @@ def derived_spec_text(
     lines.append(f"gain = {toml_value(raw_capture.get('gain', spec.gain))}")
     if spec.rate_hz is not None:
         lines.append(f"rate_hz = {toml_value(raw_capture.get('rate_hz', spec.rate_hz))}")
+    for key in ("quantity", "reference", "charge_gain"):
+        if key in raw_capture:
+            lines.append(f"{key} = {toml_value(raw_capture[key])}")
+    if spec.response_curve_file is not None:
+        chart = os.path.relpath(Path(spec.response_curve_file).resolve(), out_dir)
+        lines.append(f"response_curve = {toml_value(chart)}")
     lines += table("stimulus")
     lines.append(f"kind = {toml_value(spec.stimulus.kind)}")
     stim = dict(spec.stimulus.params)
     if "file" in stim:  # parameters that came from the stimulus file stay there
-        stim = {k: v for k, v in stim.items() if k in ("level_pa", "level_db")}
+        stim = {k: v for k, v in stim.items() if k in ("level", "level_pa", "level_db")}
         stim["file"] = os.path.relpath(Path(spec.stimulus.params["file"]).resolve(), out_dir)
     for key, value in stim.items():
         if key != "file" and key in raw_stimulus:

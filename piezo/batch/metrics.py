@@ -16,6 +16,7 @@ verdict turns into "not evaluable", never into a pass.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Callable, Mapping
 from typing import Any
@@ -36,9 +37,6 @@ from piezo.spectral.bands import band_levels
 from piezo.tone.analysis import measure_tone
 
 __all__ = ["EXTRACTORS", "report_data", "sweep_stimulus"]
-
-#: dB re 20 µPa of 1 Pa: 20 lg(1 / 20e-6) (ISO 1683 reference pressure in air).
-_DB_RE_20UPA_OF_1PA = 20.0 * math.log10(1.0 / 20e-6)
 
 
 def _db(ratio: float) -> float:
@@ -87,18 +85,46 @@ def sweep_stimulus(params: Mapping[str, Any], sample_rate_hz: float) -> Any:
 
 
 def _sweep_response(a: CaptureAnalysis) -> Any:
+    """The swept response in V per unit of the line's quantity when the level is known.
+
+    :func:`~piezo.response.measure.analyze_sweep` scales by the stimulus level whatever
+    its quantity (it names it Pa); the unit is the spec's, and the reference sensor's
+    chart is undone (:func:`_chart_factor`).
+    """
+
     def compute() -> Any:
         cap = a.capture
-        stim = sweep_stimulus(a.spec.stimulus.params, cap.sample_rate_hz)
-        return analyze_sweep(
-            cap.samples,
-            stim,
-            cap.sample_rate_hz,
-            unit="V",
-            acoustic_level_pa=a.spec.stimulus.level_pa,
+        stimulus = a.spec.stimulus
+        stim = sweep_stimulus(stimulus.params, cap.sample_rate_hz)
+        level = stimulus.level_value
+        r = analyze_sweep(cap.samples, stim, cap.sample_rate_hz, unit="V", acoustic_level_pa=level)
+        if level is None or (a.spec.measurand.default and a.spec.response_curve is None):
+            return r
+        return dataclasses.replace(
+            r,
+            response=r.response * _chart_factor(a, r.frequency_hz),
+            magnitude_unit=a.spec.measurand.sensitivity_unit,
         )
 
     return a.cached("sweep_response", compute)
+
+
+def _chart_factor(a: CaptureAnalysis, frequency_hz: Any) -> Any:
+    """Factor from "volts per stimulus level" to the unit's sensitivity, from the chart
+    of the line's reference sensor (``[capture] response_curve``); 1 without one.
+
+    The stimulus level is what the reference sensor reads. Where its chart says it
+    reads ``relative_db`` high (the convention of :mod:`piezo.chain.curve`), the true
+    stimulus is that much lower and the unit's sensitivity that much higher:
+    S_unit(f) = S_ref(f)/S_ref · V(f)/level, the comparison of ISO 16063-21:2003 with
+    the reference's output held at the level. Magnitude only: the batch judges
+    magnitudes, and the chart's phase (if any) is left out.
+    """
+    curve = a.spec.response_curve
+    f = np.asarray(frequency_hz, dtype=float)
+    if curve is None:
+        return np.ones_like(f)
+    return 10.0 ** (curve.relative_db_at(f) / 20.0)
 
 
 def _reference_hz(a: CaptureAnalysis) -> float:
@@ -127,7 +153,19 @@ def _response_at(a: CaptureAnalysis, frequency_hz: float) -> float:
 
 
 def _sweep_sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
-    return MetricValue(_response_at(a, float(m.params["reference_hz"])))
+    value = _response_at(a, float(m.params["reference_hz"]))
+    return _sensitivity_value(a, m, value, float(m.params["reference_hz"]))
+
+
+def _sensitivity_value(
+    a: CaptureAnalysis, m: MetricSpec, value: float, frequency_hz: float
+) -> MetricValue:
+    """A sensitivity value, with a note as detail where the reference chart does not
+    reach its frequency (its trade form is added by the verdict's messages)."""
+    curve = a.spec.response_curve
+    note = None if curve is None else curve.coverage_note(frequency_hz, frequency_hz)
+    detail = None if note is None else f"reference chart {a.spec.response_curve_file}: {note}"
+    return MetricValue(value, detail=detail)
 
 
 def _corner(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
@@ -293,7 +331,8 @@ def _self_noise(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
     sens = _SENSITIVITY[a.spec.stimulus.kind](a, m).value
     if sens is None:
         return MetricValue(None, reason="sensitivity not measurable")
-    return MetricValue(_db(rms) - sens + _DB_RE_20UPA_OF_1PA)
+    # dB re 1 V, less dB re 1 V/unit, is dB re 1 unit; then re the level reference.
+    return MetricValue(_db(rms) - sens + _db(1.0 / a.spec.measurand.reference))
 
 
 # ---------------------------------------------------------------------------------------
@@ -332,8 +371,11 @@ def _checked_tone(a: CaptureAnalysis) -> Any:
 
 
 def _tone_sensitivity(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
-    level_pa = a.spec.stimulus.level_pa
-    return MetricValue(_db(_checked_tone(a).tone_rms / level_pa))
+    level = a.spec.stimulus.level_value
+    tone = _checked_tone(a)
+    factor = float(_chart_factor(a, [float(a.spec.stimulus.params["frequency_hz"])])[0])
+    value = _db(tone.tone_rms * factor / level)
+    return _sensitivity_value(a, m, value, float(a.spec.stimulus.params["frequency_hz"]))
 
 
 def _tone_thd(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:

@@ -343,29 +343,30 @@ def summarize(rows: Sequence[Mapping[str, Any]], spec: Spec) -> dict[str, Any]:
         lsl, usl = m.spec_limits()
         cap = capability(finite[~far], lsl=lsl, usl=usl)
         hist = histogram(finite, lower=lsl, upper=usl)
-        metrics.append(
-            {
-                "name": m.name,
-                "kind": m.kind,
-                "unit": m.unit,
-                "lower": lsl,
-                "upper": usl,
-                "n": cap.n,
-                "outliers": int(np.count_nonzero(far)),
-                "mean": cap.mean,
-                "std": cap.std,
-                "cp": cap.cp,
-                "cpk": cap.cpk,
-                "cpl": cap.cpl,
-                "cpu": cap.cpu,
-                "histogram": {
-                    "edges": hist.edges,
-                    "counts": hist.counts,
-                    "below": hist.below,
-                    "above": hist.above,
-                },
-            }
-        )
+        entry = {
+            "name": m.name,
+            "kind": m.kind,
+            "unit": m.unit,
+            "lower": lsl,
+            "upper": usl,
+            "n": cap.n,
+            "outliers": int(np.count_nonzero(far)),
+            "mean": cap.mean,
+            "std": cap.std,
+            "cp": cap.cp,
+            "cpk": cap.cpk,
+            "cpl": cap.cpl,
+            "cpu": cap.cpu,
+            "histogram": {
+                "edges": hist.edges,
+                "counts": hist.counts,
+                "below": hist.below,
+                "above": hist.above,
+            },
+        }
+        if m.has_trade_form:
+            entry["mean_trade_form"] = m.trade_form(cap.mean)
+        metrics.append(entry)
     return {
         "captures": len(rows),
         "counts": counts,
@@ -416,11 +417,13 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
     ['PD27-24101.flac', '24101', 'pass', '4289.13']
     """
     names = [m.name for m in spec.metrics]
+    traded = [m for m in spec.metrics if m.has_trade_form]
     header = [
         "file",
         "serial",
         "verdict",
         *names,
+        *(f"{m.name}_trade_form" for m in traded),
         "failed_limits",
         "warnings",
         "not_evaluable",
@@ -434,6 +437,7 @@ def results_csv_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
             r["serial"],
             r["verdict"],
             *(_csv_number(r["metrics"].get(n)) for n in names),
+            *(m.trade_form(r["metrics"].get(m.name)) or "" for m in traded),
             " | ".join(r["failed_limits"]),
             " | ".join(r["warnings"]),
             " | ".join(r["not_evaluable"]),
@@ -475,9 +479,19 @@ def results_json_text(rows: Sequence[Mapping[str, Any]], spec: Spec) -> str:
         "spec": {"name": spec.name, "sha256": spec.sha256},
         "metrics": [m.to_json() for m in spec.metrics],
         "summary": summarize(rows, spec),
-        "results": list(rows),
+        "results": [_with_trade_forms(r, spec) for r in rows],
     }
     return json.dumps(_json_safe(doc), indent=1, sort_keys=True, allow_nan=False) + "\n"
+
+
+def _with_trade_forms(row: Mapping[str, Any], spec: Spec) -> Mapping[str, Any]:
+    """The row with ``trade_forms`` (metric -> text) for sensitivities of a line whose
+    quantity has a trade form of its own (mV/g ...); the row itself otherwise."""
+    traded = [m for m in spec.metrics if m.has_trade_form]
+    if not traded:
+        return row
+    forms = {m.name: m.trade_form(row["metrics"].get(m.name)) for m in traded}
+    return {**row, "trade_forms": forms}
 
 
 def _json_safe(value: Any) -> Any:
@@ -679,6 +693,7 @@ def capture_report_html(
             {
                 "metric": m,
                 "value": value,
+                "trade_form": m.trade_form(value),
                 "limits": [_limit_text(m, lim.lower, lim.upper, lim.severity) for lim in m.limits],
                 "margin": _margin(m, value),
                 "margin_to": "fail limit" if m.fail_limits() != (None, None) else "warn limit",

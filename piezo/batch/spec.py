@@ -21,16 +21,27 @@ from pathlib import Path
 from typing import Any
 
 from piezo import __version__
-from piezo.chain.units import parse_gain
+from piezo.chain.curve import ResponseCurve
+from piezo.chain.quantity import (
+    QUANTITIES,
+    Quantity,
+    Sensitivity,
+    format_sensitivity,
+    parse_sensitivity_of,
+    parse_value_of,
+)
+from piezo.chain.units import parse_charge_gain, parse_gain, parse_quantity, ratio_to_db
 from piezo.errors import SpecError, UnitError
 from piezo.io.text import parse_toml, read_text
 
 __all__ = [
+    "CAPTURE_QUANTITIES",
     "DECISION_RULES",
     "METRIC_KINDS",
     "SEVERITIES",
     "STIMULUS_KINDS",
     "Limit",
+    "Measurand",
     "MetricKind",
     "MetricSpec",
     "Spec",
@@ -55,6 +66,7 @@ STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
         "duration_s": ("pos", True, None),
         "fade_in_s": ("nonneg", False, None),
         "fade_out_s": ("nonneg", False, None),
+        "level": ("text", False, None),
         "level_pa": ("pos", False, None),
         "level_db": ("float", False, None),
         "silence_before_s": ("nonneg", False, 0.0),
@@ -62,11 +74,13 @@ STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
     },
     "tone": {
         "frequency_hz": ("pos", True, None),
+        "level": ("text", False, None),
         "level_pa": ("pos", False, None),
         "level_db": ("float", False, None),
         "silence_before_s": ("nonneg", False, 0.0),
     },
     "noise": {
+        "level": ("text", False, None),
         "level_pa": ("pos", False, None),
         "level_db": ("float", False, None),
         "silence_before_s": ("nonneg", False, 0.0),
@@ -76,6 +90,122 @@ STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
     "impedance": {"low_frequency_hz": ("pos", False, 1000.0)},
     "tap": {"threshold_db": ("pos", False, 20.0)},
 }
+
+
+#: Quantities a line's stimulus may be given in ([capture] quantity): the mechanical
+#: quantities of :mod:`piezo.chain.quantity` (a voltage or charge is no sensor stimulus).
+CAPTURE_QUANTITIES = ("pressure", "acceleration", "velocity", "displacement", "force")
+
+#: Reference sound pressures for levels, ISO 1683:2015: in gases, in liquids.
+_AIR_PA, _WATER_PA = 20e-6, 1e-6
+
+
+@dataclass(frozen=True)
+class Measurand:
+    """What a line's stimulus is: the quantity at the unit and its level reference.
+
+    The spec's ``[capture] quantity`` (pressure by default), for sound pressure
+    ``reference`` (20 µPa in air, 1 µPa in water; ISO 1683:2015), and ``charge_gain``
+    (V/C) when the units feed a charge amplifier. It sets the unit of the stimulus level,
+    of the sensitivity metric (dB re 1 V per SI unit of the quantity: the voltage
+    sensitivity of the unit, with its charge amplifier if it has one) and its trade form
+    (a charge sensitivity, pC per unit, with a charge amplifier).
+
+    Examples
+    --------
+    An accelerometer line: 10 mV/g is 1.0197 mV/(m/s²), −59.83 dB re 1 V/(m/s²):
+
+    >>> m = Measurand("acceleration")
+    >>> m.sensitivity_unit, m.level_unit
+    ('dB re 1 V/(m/s²)', 'dB re 1 µm/s²')
+    >>> db = m.sensitivity_db("10 mV/g", what="nominal")
+    >>> round(db, 2), m.trade_form(db)
+    (-59.83, '1.020 mV/(m/s²) (10.00 mV/g)')
+    >>> Measurand().trade_form(-42.0) is None      # dB re 1 V/Pa is a microphone's own form
+    True
+    >>> Measurand("pressure", 1e-6).trade_form(-76.0)   # hydrophones: dB re 1 V/µPa
+    '-196.00 dB re 1 V/µPa'
+
+    A force sensor on a 1 mV/pC charge amplifier: 4 pC/N reads 4 mV/N, −47.96 dB re 1 V/N:
+
+    >>> f = Measurand("force", 1e-6, charge_gain_v_per_c=1e9)
+    >>> db = f.sensitivity_db("4 pC/N", what="nominal")
+    >>> round(db, 2), f.trade_form(db)
+    (-47.96, '4.000 pC/N')
+    """
+
+    quantity: str = "pressure"
+    reference: float = _AIR_PA
+    #: Gain of the charge amplifier the units feed (V/C), or None for voltage output.
+    charge_gain_v_per_c: float | None = None
+
+    @property
+    def measured(self) -> Quantity:
+        """The :class:`~piezo.chain.quantity.Quantity` of the stimulus."""
+        return QUANTITIES[self.quantity]
+
+    @property
+    def in_water(self) -> bool:
+        """True for sound pressure referred to 1 µPa (ISO 1683: liquids)."""
+        return self.quantity == "pressure" and math.isclose(self.reference, _WATER_PA)
+
+    @property
+    def default(self) -> bool:
+        """True for sound pressure in air without a charge amplifier, the spec's default."""
+        return (
+            self.quantity == "pressure" and not self.in_water and self.charge_gain_v_per_c is None
+        )
+
+    @property
+    def sensitivity_unit(self) -> str:
+        """Unit of the sensitivity metric: ``"dB re 1 V/Pa"``, ``"dB re 1 V/(m/s²)"`` ..."""
+        unit = self.measured.unit
+        return f"dB re 1 V/({unit})" if "/" in unit else f"dB re 1 V/{unit}"
+
+    @property
+    def level_unit(self) -> str:
+        """Unit of stimulus and noise levels: ``"dB re 20 µPa"``, ``"dB re 1 µm/s²"`` ..."""
+        return self.measured.level_label(in_water=self.in_water)
+
+    def level_of(self, params: Mapping[str, Any]) -> float | None:
+        """The stimulus level (RMS, in the quantity's SI unit) of stimulus ``params``.
+
+        ``level`` (text with a unit, already checked), ``level_pa`` or ``level_db``
+        (re :attr:`reference`, or the quantity's ISO 1683 reference); None when none is
+        given.
+        """
+        if params.get("level") is not None:
+            return parse_value_of(str(params["level"]), quantity=self.quantity)[0]
+        if params.get("level_pa") is not None:
+            return float(params["level_pa"])
+        if params.get("level_db") is not None:
+            return self.reference * 10.0 ** (float(params["level_db"]) / 20.0)
+        return None
+
+    def sensitivity_db(self, text: str, *, what: str) -> float:
+        """A sensitivity in any trade form of the quantity, as a metric value
+        (dB re 1 V per SI unit); another quantity is refused, and a charge sensitivity
+        without a charge amplifier."""
+        s = parse_sensitivity_of(text, quantity=self.quantity, what=what)
+        if s.electrical != "V" and self.charge_gain_v_per_c is None:
+            raise UnitError(
+                f"{what}: {text!r} is a charge sensitivity; set capture.charge_gain (the "
+                'charge amplifier\'s gain, e.g. "1 mV/pC") or give volts per unit'
+            )
+        return ratio_to_db(s.volts_per_unit(self.charge_gain_v_per_c))
+
+    def trade_form(self, value_db: float) -> str | None:
+        """The sensitivity metric ``value_db`` in its trade form, or None for a microphone
+        (dB re 1 V/Pa is its own)."""
+        if self.default or not math.isfinite(value_db):
+            return None
+        volts = 10.0 ** (value_db / 20.0)
+        if self.charge_gain_v_per_c is not None:
+            charge = volts / self.charge_gain_v_per_c
+            return format_sensitivity(Sensitivity(charge, "C", self.measured))
+        if self.in_water:
+            return f"{value_db - 120.0:.2f} dB re 1 V/µPa"
+        return format_sensitivity(Sensitivity(volts, "V", self.measured))
 
 
 @dataclass(frozen=True)
@@ -325,10 +455,44 @@ class MetricSpec:
     limits: tuple[Limit, ...]
     derive: bool = True
     line: int = 0
+    #: The line's stimulus quantity (units of sensitivity and self-noise); None: the
+    #: kind's own units (sound pressure in air).
+    measurand: Measurand | None = field(default=None, repr=False)
 
     @property
     def unit(self) -> str:
+        """The unit of the values: the kind's, or for ``sensitivity`` and ``self_noise``
+        the line's quantity's (dB re 1 V/(m/s²), dB re 1 µm/s² ...)."""
+        if self.measurand is not None:
+            if self.kind == "sensitivity":
+                return self.measurand.sensitivity_unit
+            if self.kind == "self_noise":
+                return self.measurand.level_unit
         return METRIC_KINDS[self.kind].unit
+
+    @property
+    def has_trade_form(self) -> bool:
+        """True for a sensitivity of a line whose quantity has a trade form of its own
+        (not sound pressure in air)."""
+        return (
+            self.kind == "sensitivity"
+            and self.measurand is not None
+            and (not self.measurand.default)
+        )
+
+    def trade_form(self, value: float | None) -> str | None:
+        """A sensitivity value in the trade form of the line's quantity (``"10.02 mV/g"``),
+        None for other kinds, microphones in air and missing values.
+
+        Examples
+        --------
+        >>> m = MetricSpec("s", "sensitivity", {}, (), measurand=Measurand("force"))
+        >>> m.unit, m.trade_form(-40.0)
+        ('dB re 1 V/N', '10.00 mV/N')
+        """
+        if not self.has_trade_form or value is None:
+            return None
+        return self.measurand.trade_form(value)  # type: ignore[union-attr]
 
     def fail_limits(self) -> tuple[float | None, float | None]:
         """The innermost lower and upper limits of severity "fail" (None if absent)."""
@@ -376,15 +540,26 @@ class Stimulus:
 
     kind: str
     params: dict[str, Any]
+    measurand: Measurand = field(default_factory=Measurand)
 
     @property
     def level_pa(self) -> float | None:
-        """RMS sound pressure of the stimulus at the unit in pascals, if given."""
-        if self.params.get("level_pa") is not None:
-            return float(self.params["level_pa"])
-        if self.params.get("level_db") is not None:
-            return 20e-6 * 10.0 ** (float(self.params["level_db"]) / 20.0)
-        return None
+        """RMS sound pressure of the stimulus at the unit in pascals, if given (None for
+        a stimulus of another quantity)."""
+        return self.level_value if self.measurand.quantity == "pressure" else None
+
+    @property
+    def level_value(self) -> float | None:
+        """RMS level of the stimulus at the unit in its quantity's SI unit, if given.
+
+        Examples
+        --------
+        >>> shaker = Stimulus("tone", {"frequency_hz": 159.2, "level": "1 g"},
+        ...                   Measurand("acceleration"))
+        >>> shaker.level_value, shaker.level_pa
+        (9.80665, None)
+        """
+        return self.measurand.level_of(self.params)
 
 
 @dataclass(frozen=True)
@@ -423,6 +598,10 @@ class Spec:
     serial_required: bool = False
     path: str | None = None
     text: str = field(default="", repr=False, compare=False)
+    measurand: Measurand = field(default_factory=Measurand)
+    #: Chart of the line's reference sensor ([capture] response_curve), and its file.
+    response_curve: ResponseCurve | None = field(default=None, repr=False, compare=False)
+    response_curve_file: str | None = None
 
     def canonical(self) -> dict[str, Any]:
         """Everything that decides a capture's row, as plain JSON-able data."""
@@ -432,15 +611,29 @@ class Spec:
                 "kind": self.stimulus.kind,
                 "params": _jsonable(_without_paths(self.stimulus.params)),
             },
-            "capture": {
-                "channel": self.channel,
-                "full_scale_v": self.full_scale_v,
-                "gain": self.gain,
-                "rate_hz": self.rate_hz,
-            },
+            "capture": self._canonical_capture(),
             "serial": {"pattern": self.serial_pattern, "required": self.serial_required},
             "metrics": [m.to_json() for m in self.metrics],
         }
+
+    def _canonical_capture(self) -> dict[str, Any]:
+        out: dict[str, Any] = {
+            "channel": self.channel,
+            "full_scale_v": self.full_scale_v,
+            "gain": self.gain,
+            "rate_hz": self.rate_hz,
+        }
+        # Only what a spec sets: a microphone line's hash stays what it was.
+        if not self.measurand.default:
+            out["quantity"] = self.measurand.quantity
+            out["reference"] = self.measurand.reference
+            out["charge_gain_v_per_c"] = self.measurand.charge_gain_v_per_c
+        if self.response_curve is not None:
+            out["response_curve"] = {
+                "frequency_hz": [float(v) for v in self.response_curve.frequency_hz],
+                "relative_db": [float(v) for v in self.response_curve.relative_db],
+            }
+        return out
 
     @property
     def sha256(self) -> str:
@@ -605,6 +798,8 @@ class _Checker:
             if not high > low:
                 raise self.error(path, f"high must exceed low, got {value!r}")
             return [low, high]
+        if rule == "text":
+            return self.string(value, path)
         if rule == "weighting":
             text = self.string(value, path)
             if text not in ("A", "C", "Z"):
@@ -632,7 +827,16 @@ def _show(value: Any) -> str:
 
 _TOP_KEYS = ("spec", "capture", "stimulus", "metrics")
 _SPEC_KEYS = ("name", "serial_pattern", "serial_required")
-_CAPTURE_KEYS = ("channel", "full_scale_v", "gain", "rate_hz")
+_CAPTURE_KEYS = (
+    "channel",
+    "full_scale_v",
+    "gain",
+    "rate_hz",
+    "quantity",
+    "reference",
+    "response_curve",
+    "charge_gain",
+)
 _LIMIT_KEYS = ("lower", "upper", "lower_rel", "upper_rel", "severity", "decision")
 _METRIC_COMMON = ("kind", "derive", "limits", "severity", *_LIMIT_KEYS)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
@@ -708,7 +912,8 @@ def parse_spec(
     ...     parse_spec(text.replace("-42.0", '"loud"'), source="unit.toml")
     ... except SpecError as exc:
     ...     print(exc)
-    unit.toml: line 7: metrics.sensitivity.nominal: expected a number, got str 'loud'
+    unit.toml: line 7: metrics.sensitivity.nominal: expected a number (dB re 1 V/Pa) or a \
+sensitivity such as "12 mV/Pa", got str 'loud'
     """
     data = parse_toml(text, source=source, error=SpecError)
     check = _Checker(text, source)
@@ -752,6 +957,8 @@ def parse_spec(
         raise check.error(
             ("capture", "gain"), exc.message.removeprefix("capture.gain: ")
         ) from None
+    measurand = _measurand(check, cap)
+    curve, curve_file = _reference_chart(check, cap, base)
 
     if "stimulus" not in data:
         raise check.error(
@@ -767,7 +974,7 @@ def parse_spec(
     check.no_unknown(stim, ("kind", *rules), ("stimulus",))
     sparams: dict[str, Any] = {}
     if kind == "sweep" and "file" in stim:
-        sparams.update(_sweep_file(check, stim, base))
+        sparams.update(_sweep_file(check, stim, base, measurand))
     for key, (rule, needed, default) in rules.items():
         if key in sparams:
             continue
@@ -777,11 +984,10 @@ def parse_spec(
             raise check.error(("stimulus",), f"missing key {key!r} for a {kind} stimulus")
         elif default is not None:
             sparams[key] = default
-    if "level_pa" in stim and "level_db" in stim:
-        raise check.error(("stimulus", "level_db"), "give level_pa or level_db, not both")
+    _check_level(check, stim, measurand)
     if kind == "sweep" and not sparams["stop_hz"] > sparams["start_hz"]:
         raise check.error(("stimulus", "stop_hz"), "must be above start_hz")
-    stimulus = Stimulus(kind, sparams)
+    stimulus = Stimulus(kind, sparams, measurand)
 
     metrics_table = check.table(data.get("metrics", {}), ("metrics",))
     if not metrics_table:
@@ -790,6 +996,8 @@ def parse_spec(
         _parse_metric(check, mname, mtable, stimulus, base, for_derive)
         for mname, mtable in metrics_table.items()
     )
+    if curve is not None:
+        _check_chart_use(check, stimulus)
     return Spec(
         name=name,
         stimulus=stimulus,
@@ -802,7 +1010,123 @@ def parse_spec(
         serial_required=required,
         path=source,
         text=text,
+        measurand=measurand,
+        response_curve=curve,
+        response_curve_file=curve_file,
     )
+
+
+def _measurand(check: _Checker, cap: Mapping[str, Any]) -> Measurand:
+    """``[capture] quantity`` and ``reference`` (sound pressure: 20 µPa or 1 µPa)."""
+    name = cap.get("quantity", "pressure")
+    if not isinstance(name, str) or name not in CAPTURE_QUANTITIES:
+        raise check.error(
+            ("capture", "quantity"),
+            f"expected one of {', '.join(CAPTURE_QUANTITIES)}, got {_show(name)}",
+        )
+    charge_gain = None
+    if "charge_gain" in cap:
+        try:
+            charge_gain = parse_charge_gain(cap["charge_gain"], what="capture.charge_gain")
+        except UnitError as exc:
+            problem = exc.message.removeprefix("capture.charge_gain: ")
+            raise check.error(("capture", "charge_gain"), problem) from None
+    if "reference" not in cap:
+        own = _AIR_PA if name == "pressure" else QUANTITIES[name].reference
+        return Measurand(name, own, charge_gain)
+    path = ("capture", "reference")
+    if name != "pressure":
+        raise check.error(
+            path,
+            f"only sound pressure has a choice of reference; {name} levels are re "
+            f"{QUANTITIES[name].reference_text} (ISO 1683)",
+        )
+    try:
+        reference = parse_quantity(cap["reference"], "Pa", what="capture.reference")
+    except UnitError as exc:
+        raise check.error(path, exc.message.removeprefix("capture.reference: ")) from None
+    for known in (_AIR_PA, _WATER_PA):
+        if math.isclose(reference, known, rel_tol=1e-9):
+            return Measurand(name, known, charge_gain)
+    raise check.error(
+        path,
+        f'expected "20 uPa" (air) or "1 uPa" (water), the references of ISO 1683, got '
+        f"{_show(cap['reference'])}",
+    )
+
+
+def _reference_chart(
+    check: _Checker, cap: Mapping[str, Any], base: Path | None
+) -> tuple[ResponseCurve | None, str | None]:
+    """``[capture] response_curve``: the chart of the line's reference sensor."""
+    if "response_curve" not in cap:
+        return None, None
+    from piezo.chain.measurement import load_response_curve
+    from piezo.errors import InputError
+
+    path = ("capture", "response_curve")
+    file = check.param("path", cap["response_curve"], path, base)
+    try:
+        return load_response_curve(file), file
+    except InputError as exc:
+        raise check.error(path, f"{exc.message} ({file})") from None
+
+
+def _check_level(check: _Checker, stim: Mapping[str, Any], measurand: Measurand) -> None:
+    """One stimulus level at most, in the line's quantity."""
+    given = [k for k in ("level", "level_pa", "level_db") if k in stim]
+    if len(given) > 1:
+        raise check.error(
+            ("stimulus", given[1]), f"give one of level, level_pa, level_db, not {given[0]} too"
+        )
+    if "level_pa" in stim and measurand.quantity != "pressure":
+        raise check.error(
+            ("stimulus", "level_pa"),
+            f"is a sound pressure, but capture.quantity is {measurand.quantity}: "
+            f'give level (e.g. "{_EXAMPLE_LEVELS[measurand.quantity]}") or level_db '
+            f"({measurand.level_unit})",
+        )
+    if "level" in stim:
+        path = ("stimulus", "level")
+        try:
+            value, _ = parse_value_of(
+                check.string(stim["level"], path),
+                quantity=measurand.quantity,
+                what="stimulus.level",
+            )
+        except UnitError as exc:
+            raise check.error(path, exc.message.removeprefix("stimulus.level: ")) from None
+        if not value > 0:
+            raise check.error(path, f"must be positive, got {_show(stim['level'])}")
+
+
+#: A sensitivity of each quantity, for messages.
+_EXAMPLE_SENSITIVITIES = {
+    "pressure": "12 mV/Pa",
+    "acceleration": "10 mV/g",
+    "velocity": "100 mV/(mm/s)",
+    "displacement": "8 mV/µm",
+    "force": "2 mV/N",
+}
+
+#: A level of each quantity, for messages.
+_EXAMPLE_LEVELS = {
+    "pressure": "1 Pa",
+    "acceleration": "1 g",
+    "velocity": "10 mm/s",
+    "displacement": "10 µm",
+    "force": "10 N",
+}
+
+
+def _check_chart_use(check: _Checker, stimulus: Stimulus) -> None:
+    """A reference chart corrects a stimulus level: it needs a level to correct."""
+    if stimulus.level_value is None:
+        raise check.error(
+            ("capture", "response_curve"),
+            "the chart of the reference sensor corrects the stimulus level, but the "
+            "stimulus has none: set stimulus.level or level_db",
+        )
 
 
 def _parse_metric(
@@ -825,6 +1149,8 @@ def _parse_metric(
         )
     kind = METRIC_KINDS[kind_name]
     check.no_unknown(table, (*_METRIC_COMMON, *kind.params), path)
+    if kind.name == "sensitivity":
+        table = _sensitivity_texts(check, table, path, stimulus.measurand)
     if stimulus.kind not in kind.stimuli:
         raise check.error(
             path,
@@ -839,8 +1165,17 @@ def _parse_metric(
             raise check.error(path, f"missing key {key!r} for metric kind {kind.name!r}")
         elif key == "reference_hz" and stimulus.kind == "tone":
             params[key] = stimulus.params["frequency_hz"]
+        elif key == "weighting" and stimulus.measurand.quantity != "pressure":
+            params[key] = "Z"
         elif default is not None:
             params[key] = default
+    quantity = stimulus.measurand.quantity
+    if params.get("weighting", "Z") != "Z" and quantity != "pressure":
+        raise check.error(
+            (*path, "weighting"),
+            f"the A and C weightings (IEC 61672-1) are for sound pressure, but "
+            f'capture.quantity is {quantity}: use "Z"',
+        )
     _check_stimulus_fit(check, path, kind, params, stimulus)
     derive = table.get("derive", True)
     if not isinstance(derive, bool):
@@ -882,7 +1217,43 @@ def _parse_metric(
         limits=limits,
         derive=derive,
         line=check.locator.line(path) or 0,
+        measurand=stimulus.measurand,
     )
+
+
+def _sensitivity_texts(
+    check: _Checker, table: dict[str, Any], path: tuple[Any, ...], measurand: Measurand
+) -> dict[str, Any]:
+    """A sensitivity table with its ``nominal``, ``lower`` and ``upper`` written as
+    sensitivities (``"10 mV/g"``, ``"-196 dB re 1 V/µPa"``) turned into metric values."""
+
+    def convert(entry: Mapping[str, Any], where: tuple[Any, ...], keys: Sequence[str]):
+        out = dict(entry)
+        for key in keys:
+            if isinstance(out.get(key), str):
+                what = ".".join(str(p) for p in (*where, key))
+                try:
+                    out[key] = measurand.sensitivity_db(out[key], what=what)
+                except UnitError as exc:
+                    problem = exc.message.removeprefix(what + ": ")
+                    if problem.startswith("cannot read"):
+                        problem = (
+                            f"expected a number ({measurand.sensitivity_unit}) or a "
+                            f'sensitivity such as "{_EXAMPLE_SENSITIVITIES[measurand.quantity]}"'
+                            f", got {_show(out[key])}"
+                        )
+                    raise check.error((*where, key), problem) from None
+        return out
+
+    out = convert(table, path, ("nominal", "lower", "upper"))
+    if isinstance(out.get("limits"), list):
+        out["limits"] = [
+            convert(item, (*path, "limits", i), ("lower", "upper"))
+            if isinstance(item, dict)
+            else item
+            for i, item in enumerate(out["limits"])
+        ]
+    return out
 
 
 def _severity(check: _Checker, value: Any, path: Sequence[Any]) -> str:
@@ -931,11 +1302,14 @@ def _check_stimulus_fit(
     stimulus: Stimulus,
 ) -> None:
     sp = stimulus.params
-    if kind.needs_level and stimulus.level_pa is None:
+    if kind.needs_level and stimulus.level_value is None:
+        m = stimulus.measurand
+        pascals = "stimulus.level_pa (RMS pascals), " if m.quantity == "pressure" else ""
         raise check.error(
             path,
             f"metric kind {kind.name!r} needs the stimulus level at the unit: "
-            "set stimulus.level_pa (RMS pascals) or stimulus.level_db (dB re 20 µPa)",
+            f'set stimulus.level (RMS, e.g. "{_EXAMPLE_LEVELS[m.quantity]}"), {pascals}'
+            f"or stimulus.level_db ({m.level_unit})",
         )
     if stimulus.kind == "tone":
         tone_hz = sp["frequency_hz"]
@@ -986,7 +1360,9 @@ _SWEEP_FILE_KEYS = (
 )
 
 
-def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> dict[str, Any]:
+def _sweep_file(
+    check: _Checker, stim: Mapping[str, Any], base: Path | None, measurand: Measurand
+) -> dict[str, Any]:
     """Sweep parameters from a stimulus file written by ``piezo sweep make``."""
     from piezo.response.stimulus import SweepSpec, read_stimulus
 
@@ -1004,7 +1380,8 @@ def _sweep_file(check: _Checker, stim: Mapping[str, Any], base: Path | None) -> 
     values: dict[str, float | str] = {key: float(getattr(sweep, key)) for key in _SWEEP_FILE_KEYS}
     values["file"] = file
     values["file_data"] = text
-    if sweep.acoustic_level_pa is not None and "level_pa" not in stim and "level_db" not in stim:
+    given = any(k in stim for k in ("level", "level_pa", "level_db"))
+    if sweep.acoustic_level_pa is not None and measurand.quantity == "pressure" and not given:
         values["level_pa"] = float(sweep.acoustic_level_pa)
     return values
 

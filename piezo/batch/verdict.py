@@ -229,8 +229,24 @@ def _violation(
             return f"{metric.name}: outside the mask by {_fmt(-value)} dB{where}"
         return None
     suffix = f" ({detail})" if detail else ""
+
+    def traded(v: float) -> str:
+        # A sensitivity of a line in another quantity: its trade form beside (mV/g ...).
+        return _fmt(v) + _trade_suffix(metric, v)
+
     if lower is not None and value < lower:
-        return f"{metric.name} = {_fmt(value)} {unit} below lower limit {_fmt(lower)}{suffix}"
+        return (
+            f"{metric.name} = {_fmt(value)} {unit}{_trade_suffix(metric, value)} below lower "
+            f"limit {traded(lower)}{suffix}"
+        )
     if upper is not None and value > upper:
-        return f"{metric.name} = {_fmt(value)} {unit} above upper limit {_fmt(upper)}{suffix}"
+        return (
+            f"{metric.name} = {_fmt(value)} {unit}{_trade_suffix(metric, value)} above upper "
+            f"limit {traded(upper)}{suffix}"
+        )
     return None
+
+
+def _trade_suffix(metric: MetricSpec, value: float) -> str:
+    form = metric.trade_form(value)
+    return f" ({form})" if form else ""

@@ -38,6 +38,7 @@ from piezo.chain.quantity import (
     QUANTITIES,
     Quantity,
     Sensitivity,
+    compact_sensitivity,
     format_sensitivity,
     parse_sensitivity_of,
     quantity_named,
@@ -57,6 +58,7 @@ from piezo.io.toml import toml_value
 from piezo.validate import physical_value
 
 __all__ = [
+    "CHANNEL_SETTINGS",
     "REFERENCE_AIR_PA",
     "REFERENCE_WATER_PA",
     "CalibratedSource",
@@ -556,21 +558,31 @@ def _sensor_part(
 
 def profile_with_sensitivity(
     text: str | None,
-    sensitivity_v_per_pa: float,
+    sensitivity_v_per_unit: float,
     *,
     calibration_date: str,
     source: str | None = None,
+    quantity: str = "pressure",
+    section: str = "sensor",
+    charge_gain_v_per_c: float | None = None,
 ) -> str:
-    r"""A profile's text with ``[sensor] sensitivity`` and ``calibration_date`` set.
+    r"""A profile's text with ``quantity``, ``sensitivity`` and ``calibration_date`` set.
 
-    Everything else (other keys, sections, comments, blank lines) is kept as it is; a
-    ``charge_sensitivity`` is dropped (the measured voltage sensitivity replaces it).
-    ``text`` None or empty starts a new profile. The caller writes the result.
+    The values go into ``[section]`` (``"sensor"``, or ``"channel.N"`` for one channel
+    of a multi-channel recording), which is added when missing; the sensitivity, in V
+    per SI unit of ``quantity``, is written in its trade unit
+    (:func:`~piezo.chain.quantity.compact_sensitivity`). With ``charge_gain_v_per_c``
+    (a charge amplifier's gain) it is written as a ``charge_sensitivity`` (``"4 pC/N"``)
+    and the gain as ``[chain] charge_gain``, so the profile reads back to the same
+    volts. Everything else (other keys, sections, comments, blank lines) is kept as it
+    is; the section's other form of sensitivity is dropped. ``text`` None or empty
+    starts a new profile. The caller writes the result.
 
     Raises
     ------
     InputError
-        ``text`` is not valid TOML (the message names ``source``).
+        ``text`` is not valid TOML, or the edit would not be (the message names
+        ``source``).
 
     Examples
     --------
@@ -579,6 +591,7 @@ def profile_with_sensitivity(
     # bench mic
     [sensor]
     name = "film"
+    quantity = "pressure"
     sensitivity = "8.5 mV/Pa"
     calibration_date = 2026-12-01
     <BLANKLINE>
@@ -589,22 +602,68 @@ def profile_with_sensitivity(
     >>> load = tomllib.loads(profile_with_sensitivity(None, 0.012, calibration_date="2026-12-01"))
     >>> load["sensor"]["sensitivity"]
     '12 mV/Pa'
+    >>> print(profile_with_sensitivity(old, 10e-3 / 9.80665, calibration_date="2026-12-02",
+    ...                                quantity="acceleration", section="channel.1"))
+    # bench mic
+    [sensor]
+    name = "film"
+    <BLANKLINE>
+    [chain]
+    gain = "20 dB"
+    <BLANKLINE>
+    [channel.1]
+    quantity = "acceleration"
+    sensitivity = "1.0197 mV/(m/s²)"
+    calibration_date = 2026-12-02
+    <BLANKLINE>
+    >>> print(profile_with_sensitivity(None, 4e-3, calibration_date="2026-12-02",
+    ...                                quantity="force", charge_gain_v_per_c=1e9))
+    [sensor]
+    quantity = "force"
+    charge_sensitivity = "4 pC/N"
+    calibration_date = 2026-12-02
+    <BLANKLINE>
+    [chain]
+    charge_gain = "1 mV/pC"
+    <BLANKLINE>
     """
     lines = text.splitlines() if text else []
     if lines:
         parse_toml("\n".join(lines), source=source)
+    q = quantity_named(quantity)
+    if charge_gain_v_per_c is None:
+        key, drop = "sensitivity", "charge_sensitivity"
+        measured = Sensitivity(sensitivity_v_per_unit, "V", q)
+    else:
+        key, drop = "charge_sensitivity", "sensitivity"
+        measured = Sensitivity(sensitivity_v_per_unit / charge_gain_v_per_c, "C", q)
     values = {
-        "sensitivity": toml_value(f"{1e3 * sensitivity_v_per_pa:.5g} mV/Pa"),
+        "quantity": toml_value(q.name),
+        key: toml_value(compact_sensitivity(measured)),
         "calibration_date": calibration_date,
     }
+    lines = _with_keys(lines, section, values, drop=drop)
+    if charge_gain_v_per_c is not None:
+        gain = toml_value(f"{charge_gain_v_per_c * 1e-9:.5g} mV/pC")
+        lines = _with_keys(lines, "chain", {"charge_gain": gain})
+    result = "\n".join(lines).rstrip("\n") + "\n"
+    parse_toml(result, source=source)
+    return result
+
+
+def _with_keys(
+    lines: list[str], section: str, values: Mapping[str, str], *, drop: str | None = None
+) -> list[str]:
+    """Profile lines with ``values`` (TOML text) set in ``[section]`` and ``drop`` removed
+    from it; a missing ``[section]`` is added (``[sensor]`` first, others last)."""
     out: list[str] = []
-    section = None
-    seen_sensor = False
+    current = None
+    seen = False
     written: set[str] = set()
     for line in lines:
         stripped = line.strip()
         if stripped.startswith("["):
-            if section == "sensor":
+            if current == section:
                 blanks = 0
                 while out and not out[-1].strip():
                     out.pop()
@@ -612,21 +671,28 @@ def profile_with_sensitivity(
                 out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
                 out.extend([""] * blanks)
                 written.update(values)
-            section = stripped.strip("[]").strip()
-            seen_sensor = seen_sensor or section == "sensor"
-        key = stripped.split("=", 1)[0].strip() if "=" in stripped else None
-        if section == "sensor" and key in values and key not in written:
+            current = stripped.strip("[]").strip()
+            seen = seen or current == section
+        key = stripped.split("=", 1)[0].strip() if "=" in stripped else ""
+        if current == section and key in values and key not in written:
             out.append(f"{key} = {values[key]}")
             written.add(key)
             continue
-        if section == "sensor" and key == "charge_sensitivity":
-            continue  # replaced by the measured voltage sensitivity
+        if current == section and key and key == drop:
+            continue  # replaced by the measured sensitivity
         out.append(line)
-    if section == "sensor":
-        out.extend(f"{k} = {v}" for k, v in values.items() if k not in written)
-    elif not seen_sensor:
-        out = ["[sensor]", *(f"{k} = {v}" for k, v in values.items()), "", *out]
-    return "\n".join(out).rstrip("\n") + "\n"
+    block = [f"{k} = {v}" for k, v in values.items() if k not in written]
+    if current == section:
+        out.extend(block)
+    elif not seen:
+        head = [f"[{section}]", *block]
+        if section == "sensor":
+            out = [*head, "", *out]
+        else:
+            while out and not out[-1].strip():
+                out.pop()
+            out = [*out, "", *head] if out else head
+    return out
 
 
 def profile_for_sensor(
@@ -718,6 +784,10 @@ class ChainSettings:
     field (``sensitivity``, ``full_scale`` ...). A numeric ``sensitivity`` is in V per SI
     unit of ``quantity`` (V/Pa for sound pressure).
 
+    The fields are for every channel; ``channels`` holds values of single channels (by
+    0-based channel number, each a ``ChainSettings`` of its own without ``profile``),
+    which override them for that channel (:meth:`for_channel`).
+
     Examples
     --------
     >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="20 mV/Pa", gain="20 dB"))
@@ -726,6 +796,9 @@ class ChainSettings:
     >>> chain, _ = resolve_chain(None, ChainSettings(sensitivity="10 mV/g"))
     >>> chain.quantity, chain.unit
     ('acceleration', 'm/s²')
+    >>> both = ChainSettings(gain="20 dB", channels={1: ChainSettings(gain="0 dB")})
+    >>> [round(resolve_chain(None, both, channel=n)[0].gain, 6) for n in (0, 1)]
+    [10.0, 1.0]
     """
 
     sensitivity: ChainValue = None
@@ -736,6 +809,37 @@ class ChainSettings:
     profile: str | Path | None = None
     quantity: str | None = None
     response_curve: str | Path | None = None
+    channels: Mapping[int, ChainSettings] = field(default_factory=dict)
+
+    def for_channel(self, channel: int | None) -> ChainSettings:
+        """The values that apply to ``channel``: its own over those for every channel.
+
+        Examples
+        --------
+        >>> s = ChainSettings(sensitivity="10 mV/g", gain="20 dB",
+        ...                   channels={1: ChainSettings(sensitivity="50 mV/Pa")})
+        >>> s.for_channel(1).sensitivity, s.for_channel(1).gain, s.for_channel(0).sensitivity
+        ('50 mV/Pa', '20 dB', '10 mV/g')
+        """
+        own = None if channel is None else self.channels.get(channel)
+        if own is None:
+            return self
+        given = {
+            name: getattr(own, name) for name in CHANNEL_SETTINGS if getattr(own, name) is not None
+        }
+        return replace(self, **given)
+
+
+#: The :class:`ChainSettings` fields a single channel may have values of its own for.
+CHANNEL_SETTINGS = (
+    "sensitivity",
+    "gain",
+    "full_scale",
+    "reference",
+    "charge_gain",
+    "quantity",
+    "response_curve",
+)
 
 
 def load_response_curve(path: str | Path) -> ResponseCurve:
@@ -830,11 +934,15 @@ def resolve_chain(
 
     Later sources override earlier ones, value by value: defaults, the sidecar
     ``NAME.toml`` (when ``use_sidecar``), ``settings.profile``, then the values of
-    ``settings``. Within a profile, a ``[channel.N]`` section overrides ``[sensor]`` for
-    ``channel`` N. Text is parsed here, once, by :mod:`piezo.chain.units` and
-    :mod:`piezo.chain.quantity`. The quantity is the ``quantity`` given (profile key or
-    option), else the one the sensitivity's unit names, else sound pressure; a
-    sensitivity whose unit names another quantity is refused.
+    ``settings``. Within each source the more specific value wins: in a profile, a
+    ``[channel.N]`` section overrides ``[sensor]`` for ``channel`` N; in ``settings``,
+    ``settings.channels[N]`` overrides the values for every channel. Text is parsed
+    here, once, by :mod:`piezo.chain.units` and :mod:`piezo.chain.quantity`. The
+    quantity is the ``quantity`` given (profile key or option), else the one the
+    sensitivity's unit names, else sound pressure; a sensitivity given in ``settings``
+    names its quantity over a profile's ``quantity`` key (given values over profiles),
+    and a sensitivity whose unit names another quantity than one given at its own level
+    or above is refused.
 
     ``profiles`` are the profiles already read (:func:`profile_paths`,
     :func:`load_profile`), so that a file is read once for all channels.
@@ -850,12 +958,18 @@ def resolve_chain(
     >>> chain, prov = resolve_chain(None, ChainSettings(sensitivity=0.01, quantity="force"))
     >>> chain.unit, chain.level_unit, prov.quantity
     ('N', 'dB re 1 µN', 'option')
+    >>> resolve_chain(None, ChainSettings(sensitivity="12 mV/Pa", quantity="force"))
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: sensitivity: '12 mV/Pa' is a pressure sensitivity, but the \
+channel measures force
     """
     if profiles is None:
         profiles = [
             load_profile(p)
             for p in profile_paths(recording_path, settings, use_sidecar=use_sidecar)
         ]
+    settings = settings.for_channel(channel)
     prefix = "" if channel is None else f"channel {channel}: "
     values: dict[str, Any] = {
         "full_scale_v": 1.0,
@@ -928,14 +1042,18 @@ def resolve_chain(
         raise UnitError(prefix + exc.message) from None
 
     quantity = values["quantity"]
+    if sens_quantity is not None and origin["sensitivity_v_per_pa"] == "option":
+        if origin["quantity"] != "option":
+            quantity = None  # the given sensitivity's unit names it, over a profile's key
     if quantity is None:
         quantity = sens_quantity or "pressure"
         if sens_quantity is not None:
             origin["quantity"] = "sensitivity unit"
     elif sens_quantity is not None and sens_quantity != quantity:
+        article = "an" if sens_quantity[0] in "aeiou" else "a"
         raise InputError(
-            f"{prefix}the sensitivity ({_where(origin['sensitivity_v_per_pa'])}) is a "
-            f"{sens_quantity} sensitivity, but the quantity is {quantity} "
+            f"{prefix}the sensitivity ({_where(origin['sensitivity_v_per_pa'])}) is "
+            f"{article} {sens_quantity} sensitivity, but the quantity is {quantity} "
             f"({_where(origin['quantity'])})"
         )
     if quantity == "charge":

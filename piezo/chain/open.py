@@ -10,10 +10,12 @@ the batch runner analyse. Values may be numbers in SI units or unit text such as
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
+from typing import Any
 
 from piezo.chain.measurement import (
+    CHANNEL_SETTINGS,
     CalibratedSource,
     ChainSettings,
     ChainValue,
@@ -45,6 +47,7 @@ def open_source(
     columns: Sequence[str | int] | str | None = None,
     use_sidecar: bool = True,
     allow_time_gaps: bool = False,
+    channel_values: Mapping[int, Mapping[str, ChainValue]] | None = None,
 ) -> CalibratedSource:
     """Open a recording through its measurement chain.
 
@@ -89,6 +92,12 @@ def open_source(
         Read ``NAME.toml`` beside ``NAME.wav`` when it exists.
     allow_time_gaps
         CSV only: accept a time column with gaps and report them on the recording.
+    channel_values
+        Values of single channels, by 0-based channel number: ``{1: {"sensitivity":
+        "50 mV/Pa", "quantity": "pressure"}}``. Keys are the names of the chain
+        parameters above (``sensitivity``, ``gain``, ``full_scale``, ``reference``,
+        ``charge_gain``, ``quantity``, ``response_curve``); a channel's own value
+        overrides the one given for every channel, which overrides the profiles.
 
     Returns
     -------
@@ -116,6 +125,15 @@ def open_source(
     >>> acc = open_source(folder / "tone.wav", sensitivity="10 mV/g")
     >>> acc.unit, acc.level_unit, round(float(next(acc.blocks())[0, 0]), 3)  # 50 g in m/s²
     ('m/s²', 'dB re 1 µm/s²', 490.332)
+    >>> sf.write(folder / "two.wav", np.full((4800, 2), 0.5), 48000, subtype="FLOAT")
+    >>> two = open_source(folder / "two.wav", sensitivity="50 mV/Pa",
+    ...                   channel_values={1: {"sensitivity": "10 mV/g"}})
+    >>> two.units, two.provenance_of(1).sensitivity
+    (('Pa', 'm/s²'), 'option')
+    >>> open_source(folder / "two.wav", channel_values={2: {"gain": "20 dB"}})
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: ...: gain for channel 2: the recording has 2 channel(s) (0-based)
     """
     rate_hz = None
     if rate is not None:
@@ -133,6 +151,7 @@ def open_source(
         profile=profile,
         quantity=quantity,
         response_curve=response_curve,
+        channels=_channel_settings(channel_values or {}),
     )
     try:
         recording = open_recording(
@@ -142,7 +161,14 @@ def open_source(
             load_profile(p) for p in profile_paths(path, settings, use_sidecar=use_sidecar)
         ]
         chain, provenance = resolve_chain(path, settings, profiles=profiles)
-        own = {}
+        numbers = set(settings.channels)
+        for number, values in (channel_values or {}).items():
+            if number >= recording.channels:
+                name = next(iter(values), "channel_values")
+                raise InputError(
+                    f"{name} for channel {number}: the recording has "
+                    f"{recording.channels} channel(s) (0-based)"
+                )
         for prof in profiles:
             for number in prof.channels:
                 if number >= recording.channels:
@@ -150,9 +176,34 @@ def open_source(
                         f"{prof.path}: [channel.{number}] describes channel {number}, but "
                         f"the recording has {recording.channels} channel(s) (0-based)"
                     )
-                own[number] = resolve_chain(path, settings, profiles=profiles, channel=number)
+            numbers.update(prof.channels)
+        own = {
+            number: resolve_chain(path, settings, profiles=profiles, channel=number)
+            for number in sorted(numbers)
+        }
         return CalibratedSource.of(
             recording, chain, channels or None, provenance, channel_chains=own
         ).integrated(integrate)
     except InputError as exc:
         raise exc.with_source(str(path)) from None
+
+
+def _channel_settings(
+    values: Mapping[int, Mapping[str, ChainValue]],
+) -> dict[int, ChainSettings]:
+    """``channel_values`` as :class:`ChainSettings` by channel, keys checked."""
+    out = {}
+    for number, given in values.items():
+        if isinstance(number, bool) or not isinstance(number, int) or number < 0:
+            raise InputError(
+                f"channel_values: channel numbers are 0, 1, ... (0-based), got {number!r}"
+            )
+        unknown = sorted(set(given) - set(CHANNEL_SETTINGS))
+        if unknown:
+            raise InputError(
+                f"channel_values: channel {number}: unknown value {unknown[0]!r}; one of "
+                f"{', '.join(CHANNEL_SETTINGS)}"
+            )
+        own: dict[str, Any] = {k: v for k, v in given.items() if v is not None}
+        out[number] = ChainSettings(**own)
+    return out

@@ -41,8 +41,11 @@ __all__ = [
     "STANDARD_GRAVITY_M_PER_S2",
     "Quantity",
     "Sensitivity",
+    "compact_sensitivity",
     "format_sensitivity",
+    "parse_level_of",
     "parse_sensitivity_of",
+    "parse_value_of",
     "quantity_named",
 ]
 
@@ -178,6 +181,24 @@ _MECHANICAL = {
     "V": ("voltage", 1.0),
 }
 
+#: SI prefixes a mechanical unit may take beyond :data:`_MECHANICAL` (``µm/s²``, ``nm/s``,
+#: ``pm``, ``µN``, ``mPa``: the ISO 1683 references among them).
+_PREFIX_FACTORS = {"p": 1e-12, "n": 1e-9, "µ": 1e-6, "u": 1e-6, "m": 1e-3, "k": 1e3}
+_PREFIXABLE = ("Pa", "m/s²", "m/s^2", "m/s2", "m/s", "m", "N")
+
+
+def _mechanical_unit(text: str) -> tuple[str, float] | None:
+    """(quantity, factor to its SI unit) of a mechanical unit such as ``g`` or ``µm/s²``."""
+    unit = text.replace(" ", "").replace("μ", "µ")
+    if unit.startswith("(") and unit.endswith(")"):
+        unit = unit[1:-1]
+    found = _MECHANICAL.get(unit)
+    if found is None and len(unit) > 1 and unit[0] in _PREFIX_FACTORS and unit[1:] in _PREFIXABLE:
+        name, factor = _MECHANICAL[unit[1:]]
+        found = (name, _PREFIX_FACTORS[unit[0]] * factor)
+    return found
+
+
 _NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 _ELEC = "|".join(sorted((re.escape(k) for k in _ELECTRICAL), key=len, reverse=True))
 _LINEAR_RE = re.compile(rf"^({_NUMBER})\s*({_ELEC})\s*/\s*(.+)$")
@@ -265,10 +286,7 @@ def parse_sensitivity_of(
         raise UnitError(f"{what}: cannot read {text!r}; accepted forms: {_ACCEPTED}")
     number = float(match.group(1))
     kind, electrical_factor = _ELECTRICAL[match.group(2)]
-    mechanical = match.group(3).replace(" ", "")
-    if mechanical.startswith("(") and mechanical.endswith(")"):
-        mechanical = mechanical[1:-1]
-    found = _MECHANICAL.get(mechanical.replace("μ", "µ"))
+    found = _mechanical_unit(match.group(3))
     if found is None or found[0] == "voltage":
         raise UnitError(f"{what}: cannot read the unit of {text!r}; accepted forms: {_ACCEPTED}")
     name, mechanical_factor = found
@@ -280,6 +298,69 @@ def parse_sensitivity_of(
     if quantity is not None and quantity_named(quantity, what=what) != q:
         raise UnitError(f"{what}: {text!r} is a {name} sensitivity, not {quantity}")
     return Sensitivity(value, kind, q)
+
+
+_VALUE_RE = re.compile(rf"^({_NUMBER})\s*(.+)$")
+
+
+def parse_value_of(
+    text: str, *, quantity: str | None = None, what: str = "value"
+) -> tuple[float, Quantity]:
+    """Read a value of a measured quantity (``"10 m/s²"``, ``"1 g"``, ``"2 N"``, ``"1 Pa"``).
+
+    The unit is one of those the sensitivities are written with (``Pa``, ``kPa``,
+    ``µPa``, ``g``, ``m/s²``, ``m/s``, ``mm/s``, ``m``, ``mm``, ``µm``, ``nm``, ``N``,
+    ``kN``, and the SI units with a prefix p, n, µ, m or k: ``µm/s²``, ``nm/s``, ``pm``,
+    ``µN``); ``g`` is the standard acceleration of gravity (ISO 80000-3).
+
+    Parameters
+    ----------
+    text
+        The value with its unit.
+    quantity
+        When given, the quantity the value must be of (another one is refused).
+    what
+        Name of the input in error messages.
+
+    Returns
+    -------
+    tuple
+        The value in the quantity's SI unit, and the :class:`Quantity`.
+
+    Examples
+    --------
+    >>> value, q = parse_value_of("1 g")
+    >>> value, q.name, q.unit
+    (9.80665, 'acceleration', 'm/s²')
+    >>> parse_value_of("10 mm/s", quantity="velocity")[0]
+    0.01
+    >>> parse_value_of("10 m/s²", quantity="force", what="stimulus.level")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: stimulus.level: '10 m/s²' is an acceleration (m/s²), not a force (N)
+    """
+    match = _VALUE_RE.match(str(text).strip())
+    found = _mechanical_unit(match.group(2)) if match else None
+    if match is None or found is None:
+        units = ", ".join(k for k in _MECHANICAL if k not in ("uPa", "um", "m/s^2", "m/s2"))
+        raise UnitError(f"{what}: cannot read {text!r}; expected a number and one of {units}")
+    name, factor = found
+    value = float(match.group(1)) * factor
+    if not math.isfinite(value):
+        raise UnitError(f"{what}: {text!r} is not a finite value")
+    q = QUANTITIES[name]
+    if quantity is not None:
+        wanted = quantity_named(quantity, what=what)
+        if wanted != q:
+            raise UnitError(
+                f"{what}: {text!r} is {_article(name)} {name} ({q.unit}), not "
+                f"{_article(wanted.name)} {wanted.name} ({wanted.unit})"
+            )
+    return value, q
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1] in "aeiou" else "a"
 
 
 #: Trade form of each quantity's sensitivity: (electrical kind, quantity) -> (text, factor).
@@ -321,3 +402,96 @@ def _keep_zeros(value: float, digits: int) -> str:
         return f"{value:g}"
     decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(value)))))
     return f"{value:.{decimals}f}"
+
+
+def compact_sensitivity(s: Sensitivity, *, digits: int = 5) -> str:
+    """A sensitivity in its trade unit with ``digits`` significant digits, as a profile
+    stores it (``"8.5 mV/Pa"``, ``"1.0197 mV/(m/s²)"``, ``"4 pC/N"``).
+
+    Examples
+    --------
+    >>> compact_sensitivity(parse_sensitivity_of("10 mV/g"))
+    '1.0197 mV/(m/s²)'
+    >>> parse_sensitivity_of(compact_sensitivity(parse_sensitivity_of("8.5 mV/Pa"))).value
+    0.0085
+    """
+    unit, factor = _TRADE_FORMS[(s.electrical, s.quantity.name)]
+    return f"{s.value * factor:.{digits}g} {unit}"
+
+
+_DB_LEVEL_RE = re.compile(rf"^({_NUMBER})\s*(?:dB)?$")
+_DB_RE_RE = re.compile(rf"^({_NUMBER})\s*dB\s*re\s*({_NUMBER})\s*(.+)$")
+_RMS_RE = re.compile(r"\s+RMS$", re.IGNORECASE)
+
+
+def parse_level_of(
+    text: str | float, *, reference: float | None = None, what: str = "level"
+) -> tuple[float, Quantity | None]:
+    """An RMS amount of a mechanical quantity from a level or a value with its unit.
+
+    Forms: ``"94 dB"`` or a bare number (dB re ``reference``, the caller's: its quantity
+    is not named), ``"114 dB re 20 µPa"``, ``"140 dB re 1 µm/s²"``, and values in a
+    unit, RMS: ``"10 m/s²"``, ``"1 g"``, ``"1 Pa"``, ``"10 N"``,
+    ``"10 mm/s"``, ``"10 µm"`` (an optional ``RMS`` after the unit).
+
+    Returns
+    -------
+    tuple
+        The RMS value in the quantity's SI unit, and the quantity the text names (None
+        for a level without a reference: it is re ``reference``).
+
+    Raises
+    ------
+    UnitError
+        Text that does not read, a value that is not positive, a bare level without a
+        ``reference``.
+
+    Examples
+    --------
+    >>> value, q = parse_level_of("1 g")
+    >>> value, q.name
+    (9.80665, 'acceleration')
+    >>> value, q = parse_level_of("140 dB re 1 µm/s²")
+    >>> round(value, 9), q.name
+    (10.0, 'acceleration')
+    >>> value, q = parse_level_of("94", reference=20e-6)
+    >>> round(value, 5), q
+    (1.00237, None)
+    """
+    if isinstance(text, int | float) and not isinstance(text, bool):
+        text = f"{float(text)!r}"
+    t = str(text).strip()
+    named: Quantity | None = None
+    bare = _DB_LEVEL_RE.match(t)
+    relative = _DB_RE_RE.match(t)
+    if bare is not None:
+        if reference is None:
+            raise UnitError(f"{what}: {text!r} names no reference; give e.g. '94 dB re 20 µPa'")
+        value = reference * 10.0 ** (float(bare.group(1)) / 20.0)
+    elif relative is not None:
+        ref, named = _amount(f"{relative.group(2)} {relative.group(3)}", text, what)
+        value = ref * 10.0 ** (float(relative.group(1)) / 20.0)
+    else:
+        value, named = _amount(_RMS_RE.sub("", t), text, what)
+    if not (math.isfinite(value) and value > 0):
+        raise UnitError(f"{what}: must be positive and finite, got {text!r}")
+    return value, named
+
+
+_LEVEL_FORMS = (
+    "accepted forms: '94 dB' (re the channel's reference), '114 dB re 20 µPa', "
+    "'140 dB re 1 µm/s²', '10 m/s²', '1 g', '1 Pa', '10 N', '10 mm/s' (RMS)"
+)
+
+
+def _amount(part: str, text: object, what: str) -> tuple[float, Quantity]:
+    """A value of a mechanical quantity (:func:`parse_value_of`) inside a level's text."""
+    try:
+        value, q = parse_value_of(part, what=what)
+    except UnitError:
+        raise UnitError(f"{what}: cannot read {text!r}; {_LEVEL_FORMS}") from None
+    if not q.mechanical:
+        raise UnitError(f"{what}: {text!r} is a {q.name}, not a calibrator level; {_LEVEL_FORMS}")
+    if not value > 0:
+        raise UnitError(f"{what}: must be positive and finite, got {text!r}")
+    return value, q

@@ -481,6 +481,10 @@ def parse_frequency_range(
     return low, high
 
 
+#: SI prefixes of multiples (kilo and above).
+_MULTIPLES = frozenset("kMGT")
+
+
 def _engineering(value: float) -> tuple[float, str]:
     if value == 0 or not math.isfinite(value):
         return value, ""
@@ -515,11 +519,19 @@ def format_quantity(value: float, unit: str, *, digits: int = 4) -> str:
     '12.3 mV'
     >>> parse_quantity(format_quantity(1e9, "Ohm"), "Ohm")
     1000000000.0
+    >>> format_quantity(1961.33, "m/s²"), format_quantity(0.0123, "m/s")
+    ('1961 m/s²', '12.3 mm/s')
     """
     if value != 0 and math.isfinite(value):
         value = float(f"{value:.{digits}g}")
     mantissa, symbol = _engineering(value)
-    text = f"{mantissa:.{digits}g}"
+    if symbol in _MULTIPLES and ("/" in unit or unit == "m"):
+        # Lengths and compound units take no multiple prefix in the trade: 1961 m/s²
+        # (not 1.961 km/s²), 25 m/s; sub-multiples stay (12 mm/s, 3.2 µm).
+        mantissa, symbol = value, ""
+        text = f"{mantissa:.{digits}g}" if abs(mantissa) < 10**digits else f"{mantissa:.0f}"
+    else:
+        text = f"{mantissa:.{digits}g}"
     return f"{text} {symbol}{unit}"
 
 

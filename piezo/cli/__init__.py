@@ -91,7 +91,7 @@ COMMANDS: tuple[Command, ...] = (
     Command(
         "calibrate",
         "calibrate",
-        "Sensitivity (mV/Pa, dB re 1 V/Pa) from a 94 or 114 dB calibrator capture.",
+        "Sensitivity from a calibrator capture (sound, vibration, force): mV/Pa, mV/g, mV/N.",
     ),
     Command(
         "levels",

@@ -269,6 +269,14 @@ def _print_summary(
         if y is not None
         else "no captures"
     )
+    for m in summary["metrics"]:
+        # A sensitivity of a line whose quantity has a trade form (mV/g ...): the lot's
+        # mean in both forms.
+        if m.get("mean_trade_form"):
+            console.print(
+                f"{m['name']} mean: {m['mean_trade_form']} = {m['mean']:.4g} {m['unit']}",
+                soft_wrap=True,
+            )
     bad = [r for r in rows if r["verdict"] in (FAIL, NOT_EVALUABLE)]
     if bad:
         failing = Table(box=None, pad_edge=False, header_style="bold")

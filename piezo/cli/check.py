@@ -14,13 +14,14 @@ from rich import box
 from rich.markup import escape
 from rich.table import Table
 
-from piezo.chain.measurement import CalibratedSource
+from piezo.chain.measurement import CalibratedSource, Chain
 from piezo.chain.units import format_quantity, parse_quantity
 from piezo.cli.exits import EXIT_FAILED
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.diagnostics.checker import (
     CaptureDiagnostics,
+    ChannelDiagnostics,
     Severity,
     Thresholds,
     load_thresholds,
@@ -158,31 +159,27 @@ def _severity(sev: Severity) -> str:
 
 def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> None:
     rec = source.recording
-    chain = source.chain
+    chains = source.chains
+    shared = all(c == chains[0] for c in chains)
     console.print(f"[bold]{escape(str(file))}[/bold]")
     console.print(
         f"  {rec.format} {rec.subtype}, {rec.sample_rate_hz:g} Hz, {rec.frames} frames "
-        f"({rec.duration_s:.3f} s); values in {source.unit}, levels in {chain.level_unit}"
+        f"({rec.duration_s:.3f} s)" + ("" if shared else "; each channel through its own chain")
     )
-    sens_text = chain.sensitivity_text or "none (volts)"
-    fs_text = (
-        "unknown (CSV)"
-        if result.full_scale is None
-        else format_quantity(result.full_scale, source.unit)
-    )
-    console.print(
-        f"  chain: full scale {chain.full_scale_v:g} V, gain {chain.gain:g} V/V, sensitivity "
-        f"{sens_text}; full scale in {source.unit}: {fs_text}"
-    )
+    if shared:
+        console.print(f"  {escape(_chain_text(chains[0], result.channels[0], rec.is_pcm))}")
     if result.metadata_checks:
         console.print()
         table = _table("metadata")
         for c in result.metadata_checks:
             table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
         console.print(table)
-    for ch in result.channels:
+    for chain, ch in zip(chains, result.channels, strict=True):
         console.print()
-        table = _table(f"channel {ch.channel}: {_severity(ch.verdict)}")
+        title = f"channel {ch.channel}: {_severity(ch.verdict)}"
+        if not shared:  # each channel in its own unit: say which under its title
+            title += f"\n{escape(_chain_text(chain, ch, rec.is_pcm))}"
+        table = _table(title)
         for c in ch.checks:
             table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
         console.print(table)
@@ -195,6 +192,35 @@ def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> 
     verdict = result.verdict
     console.print(
         f"verdict: {_severity(verdict)}" + (f" — {'; '.join(bad)}" if bad else ""),
+    )
+
+
+def _chain_text(chain: Chain, channel: ChannelDiagnostics, is_pcm: bool) -> str:
+    """What a channel's values are and the chain they came through, in one line.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from piezo.diagnostics.checker import check_capture
+    >>> accel = Chain(gain=10.0, sensitivity_v_per_unit=1e-3, quantity="acceleration")
+    >>> x = 0.1 * np.sin(2 * np.pi * 100 * np.arange(8000) / 8000)
+    >>> ch = check_capture(x, 8000.0, full_scale=100.0, unit="m/s²", reference=1e-6)
+    >>> for part in _chain_text(accel, ch.channels[0], True).split("; "):
+    ...     print(part)
+    acceleration in m/s², levels in dB re 1 µm/s²
+    chain: full scale 1 V, gain 10 V/V, sensitivity 1.000 mV/(m/s²) (9.807 mV/g)
+    full scale in m/s²: 100 m/s²
+    """
+    if channel.full_scale is not None:
+        fs_text = format_quantity(channel.full_scale, channel.unit)
+    elif chain.integrations:
+        fs_text = "not determinable (integrated)"
+    else:
+        fs_text = "unknown (CSV)" if not is_pcm else "unknown"
+    return (
+        f"{chain.measured.name} in {channel.unit}, levels in {channel.level_unit}; chain: "
+        f"full scale {chain.full_scale_v:g} V, gain {chain.gain:g} V/V, sensitivity "
+        f"{chain.sensitivity_text or 'none (volts)'}; full scale in {channel.unit}: {fs_text}"
     )
 
 

@@ -176,12 +176,22 @@ def _print(doc: dict[str, Any]) -> None:
     for ch in doc["channels"]:
         table.add_column(f"ch {ch['channel']}", justify="right")
     extra = [k for k in doc["channels"][0] if k.startswith(("LAF", "LAS")) and k not in LEVEL_KEYS]
+    left_out = []
     for key in (*LEVEL_KEYS, *extra):
-        table.add_row(key, *(_fmt(ch[key]) for ch in doc["channels"]))
+        values = [ch[key] for ch in doc["channels"]]
+        if all(v is None for v in values):
+            left_out.append(key)
+            continue
+        table.add_row(key, *(_fmt(v) for v in values))
     table.add_row(
         axis_label("crest factor", "dB"), *(_fmt(ch["crest_factor_db"]) for ch in doc["channels"])
     )
     console.print(table)
+    if left_out:
+        console.print(
+            f"  not given for any channel, left out ({len(left_out)}; --json has them "
+            "as null): " + ", ".join(left_out)
+        )
     excluded = doc["start_up_excluded_s"]
     console.print(
         f"  start-up excluded: {excluded['LAFmax']:g} s from LCpeak and the F and S "

@@ -10,15 +10,16 @@ from __future__ import annotations
 
 import functools
 import inspect
+import re
 import typing
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Any
 
 import typer
 
-from piezo.chain.measurement import CalibratedSource
+from piezo.chain.measurement import CHANNEL_SETTINGS, CalibratedSource
 from piezo.chain.open import open_source as open_calibrated
 from piezo.errors import InputError
 
@@ -27,6 +28,7 @@ __all__ = [
     "SourceOptions",
     "WeightAnyQuantityOption",
     "open_source",
+    "parse_channel_values",
     "source_options",
 ]
 
@@ -47,25 +49,36 @@ WeightAnyQuantityOption = Annotated[
 ]
 
 
+#: A chain option as typed: one text, or the texts of a repeated option (``N=VALUE``
+#: for channel N, a bare value for every channel).
+OptionTexts = str | Path | Sequence[str | Path] | None
+
+
 @dataclass(frozen=True)
 class SourceOptions:
     """Input and chain options as typed on the command line (text, unparsed).
+
+    The chain options (``sensitivity`` ... ``response_curve``) hold one text or the
+    texts of the repeated option, each a bare value (every channel) or ``N=VALUE``
+    (channel N); :func:`open_source` parses them.
 
     Examples
     --------
     >>> options = SourceOptions(sensitivity="8.5 mV/Pa", channel=[0])
     >>> options.sensitivity, options.channel, options.no_sidecar
     ('8.5 mV/Pa', [0], False)
+    >>> SourceOptions(sensitivity=["10 mV/g", "1=50 mV/Pa"]).sensitivity
+    ['10 mV/g', '1=50 mV/Pa']
     """
 
-    sensitivity: str | None = None
-    gain: str | None = None
-    full_scale: str | None = None
-    reference: str | None = None
-    charge_gain: str | None = None
+    sensitivity: OptionTexts = None
+    gain: OptionTexts = None
+    full_scale: OptionTexts = None
+    reference: OptionTexts = None
+    charge_gain: OptionTexts = None
     profile: Path | None = None
-    quantity: str | None = None
-    response_curve: Path | None = None
+    quantity: OptionTexts = None
+    response_curve: OptionTexts = None
     integrate: int = 0
     channel: list[int] | None = None
     rate: str | None = None
@@ -75,69 +88,76 @@ class SourceOptions:
 
 _OPTIONS: dict[str, tuple[Any, Any]] = {
     "sensitivity": (
-        str | None,
+        list[str] | None,
         typer.Option(
             "--sensitivity",
-            metavar="SENS",
+            metavar="[N=]SENS",
             help="Sensor sensitivity: '20 mV/Pa', '-34 dBV/Pa', '-196 dB re 1 V/uPa', "
-            "'10 mV/g', '2 mV/N', '12 pC/Pa' or '4 pC/N' (with --charge-gain).",
+            "'10 mV/g', '2 mV/N', '12 pC/Pa' or '4 pC/N' (with --charge-gain). "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
     "gain": (
-        str | None,
+        list[str] | None,
         typer.Option(
             "--gain",
-            metavar="GAIN",
-            help="Amplifier gain between sensor and ADC: '20 dB' or '10' (V/V). Default 0 dB.",
+            metavar="[N=]GAIN",
+            help="Amplifier gain between sensor and ADC: '20 dB' or '10' (V/V). Default 0 dB. "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
     "full_scale": (
-        str | None,
+        list[str] | None,
         typer.Option(
             "--full-scale",
-            metavar="VOLTS",
-            help="Volts at digital full scale for audio files. Default 1 V. CSV values are volts.",
+            metavar="[N=]VOLTS",
+            help="Volts at digital full scale for audio files. Default 1 V. CSV values are volts. "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
     "reference": (
-        str | None,
+        list[str] | None,
         typer.Option(
             "--reference",
-            metavar="PRESSURE",
+            metavar="[N=]PRESSURE",
             help="Reference pressure for dB: '20 uPa' (air, default) or '1 uPa' (water). "
-            "Other quantities use ISO 1683 references (1 um/s², 1 nm/s, 1 pm, 1 uN).",
+            "Other quantities use ISO 1683 references (1 um/s², 1 nm/s, 1 pm, 1 uN). "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
     "charge_gain": (
-        str | None,
+        list[str] | None,
         typer.Option(
             "--charge-gain",
-            metavar="V/C",
-            help="Charge amplifier gain for pC/Pa sensitivities, e.g. '1 mV/pC'.",
+            metavar="[N=]V/C",
+            help="Charge amplifier gain for pC/Pa sensitivities, e.g. '1 mV/pC'. "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
     "quantity": (
-        str | None,
+        list[str] | None,
         typer.Option(
             "--quantity",
-            metavar="QUANTITY",
+            metavar="[N=]QUANTITY",
             help="What the sensor measures: pressure, acceleration, velocity, displacement, "
-            "force, voltage or charge. Default: the profile's, else the sensitivity's unit.",
+            "force, voltage or charge. Default: the profile's, else the sensitivity's unit. "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
     "response_curve": (
-        Path | None,
+        list[str] | None,
         typer.Option(
             "--response-curve",
-            metavar="CSV",
+            metavar="[N=]CSV",
             help="Sensor response curve (frequency_hz, relative_db[, phase_deg]) undone in "
-            "every result; for all channels, over the profile's.",
+            "every result; for all channels, over the profile's. "
+            "'N=VALUE' sets channel N (0-based) only; repeatable.",
             rich_help_panel=CHAIN_PANEL,
         ),
     ),
@@ -256,6 +276,7 @@ _OPTION_NAMES = {
     "reference": "--reference",
     "gain": "--gain",
     "quantity": "--quantity",
+    "response_curve": "--response-curve",
     "integrate": "--integrate",
     "rate_hz": "--rate",
     "rate": "--rate",
@@ -274,15 +295,98 @@ def option_message(message: str) -> str:
     "--rate must be positive, got '-1'"
     >>> option_message("sensitivity: give the gain too (charge_gain, e.g. '1 mV/pC')")
     "--sensitivity: give the gain too (--charge-gain, e.g. '1 mV/pC')"
+    >>> option_message("channel 1: full_scale: unknown unit in '2 A'")
+    "channel 1: --full-scale: unknown unit in '2 A'"
     """
     for name, option in _OPTION_NAMES.items():
         # A parameter named in parentheses, as a hint, is respelt too.
         message = message.replace(f"({name},", f"({option},").replace(f"({name})", f"({option})")
+    # A message about one channel's value ("channel 1: sensitivity: ...") keeps its prefix.
+    channel = _CHANNEL_PREFIX.match(message)
+    head, rest = (channel.group(0), message[channel.end() :]) if channel else ("", message)
     for name, option in _OPTION_NAMES.items():
         for sep in (":", " "):
-            if message.startswith(name + sep):
-                return option + message[len(name) :]
+            if rest.startswith(name + sep):
+                return head + option + rest[len(name) :]
     return message
+
+
+_CHANNEL_PREFIX = re.compile(r"^channel \d+: ")
+
+#: ``N=VALUE``: a channel number, "=", the value (which may hold "=" itself).
+_CHANNEL_VALUE = re.compile(r"^\s*([^=]*?)\s*=\s*(.*?)\s*$", re.DOTALL)
+
+
+def parse_channel_values(
+    texts: OptionTexts, *, option: str, path: bool = False
+) -> tuple[str | None, dict[int, str]]:
+    """Split a chain option's texts into the value for every channel and those of single ones.
+
+    Each text is a bare value (every channel) or ``N=VALUE`` (channel N, 0-based). At
+    most one bare value and one value per channel. With ``path`` (a file name option), a
+    text whose part before ``=`` is not a channel number is a bare file name.
+
+    Raises
+    ------
+    InputError
+        A malformed ``N=VALUE``, an empty value, or a channel (or every channel) given
+        twice; the message names ``option``.
+
+    Examples
+    --------
+    >>> parse_channel_values(["10 mV/g", "1=50 mV/Pa", " 3 = 2 mV/N"], option="--sensitivity")
+    ('10 mV/g', {1: '50 mV/Pa', 3: '2 mV/N'})
+    >>> parse_channel_values("20 dB", option="--gain"), parse_channel_values(None, option="--gain")
+    (('20 dB', {}), (None, {}))
+    >>> parse_channel_values(["1=10 mV/g", "1=12 mV/g"], option="--sensitivity")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --sensitivity: channel 1 is given twice ('1=10 mV/g', '1=12 mV/g')
+    >>> parse_channel_values(["x=10 mV/g"], option="--sensitivity")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --sensitivity: cannot read 'x=10 mV/g': a value for one channel \
+is N=VALUE with N = 0, 1, ... (0-based), e.g. '1=10 mV/g'
+    """
+    if texts is None:
+        return None, {}
+    items = [texts] if isinstance(texts, str | Path) else list(texts)
+    every: str | None = None
+    own: dict[int, str] = {}
+    given: dict[int | None, str] = {}
+    for item in items:
+        text = str(item)
+        match = _CHANNEL_VALUE.match(text)
+        number: int | None = None
+        value = text.strip()
+        key = "" if match is None else match.group(1)
+        is_number = key.isascii() and key.isdigit()
+        if match is not None and (is_number or not path):
+            value = match.group(2)
+            if not is_number:
+                raise InputError(
+                    f"{option}: cannot read {text!r}: a value for one channel is N=VALUE "
+                    "with N = 0, 1, ... (0-based), e.g. '1=10 mV/g'"
+                )
+            number = int(key)
+        if not value:
+            where = "" if number is None else f" for channel {number}"
+            raise InputError(f"{option}: no value{where} in {text!r}")
+        if number in given:
+            if number is None:
+                raise InputError(
+                    f"{option}: two values for every channel ({given[None]!r}, {text!r}); "
+                    "give one, and N=VALUE for channel N"
+                )
+            raise InputError(
+                f"{option}: channel {number} is given twice ({given[number]!r}, {text!r})"
+            )
+        given[number] = text
+        if number is None:
+            every = value
+        else:
+            own[number] = value
+    return every, own
 
 
 def open_source(
@@ -305,17 +409,26 @@ def open_source(
     ...
     piezo.errors.UnitError: ...: --full-scale: unknown unit in '2 A'; ...
     """
+    every: dict[str, str | None] = {}
+    own: dict[int, dict[str, str]] = {}
+    for name in CHANNEL_SETTINGS:
+        every[name], values = parse_channel_values(
+            getattr(src, name), option=_OPTION_NAMES[name], path=name == "response_curve"
+        )
+        for number, value in values.items():
+            own.setdefault(number, {})[name] = value
     try:
         return open_calibrated(
             file,
-            sensitivity=src.sensitivity,
-            gain=src.gain,
-            full_scale=src.full_scale,
-            reference=src.reference,
-            charge_gain=src.charge_gain,
+            sensitivity=every["sensitivity"],
+            gain=every["gain"],
+            full_scale=every["full_scale"],
+            reference=every["reference"],
+            charge_gain=every["charge_gain"],
             profile=src.profile,
-            quantity=src.quantity,
-            response_curve=src.response_curve,
+            quantity=every["quantity"],
+            response_curve=every["response_curve"],
+            channel_values=own,
             integrate=src.integrate,
             channels=src.channel or None,
             rate=src.rate,

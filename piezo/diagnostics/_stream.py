@@ -298,7 +298,7 @@ class IntervalLevels:
     silence) are counted apart.
     """
 
-    def __init__(self, length: int, channels: int, reference: float) -> None:
+    def __init__(self, length: int, channels: int, reference: float | np.ndarray) -> None:
         self.stats = IntervalStats(length, channels)
         self.reference = reference
         self.hist = np.zeros((_HIST_BINS, channels), dtype=np.int64)

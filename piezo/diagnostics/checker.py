@@ -63,6 +63,7 @@ from piezo.diagnostics.thresholds import (
 )
 from piezo.errors import InputError, RecordingError
 from piezo.levels.weighting import MIN_SAMPLE_RATE_HZ, FrequencyWeighting
+from piezo.results import reference_key
 from piezo.spectral.welch import WelchPSD, segment_frames_for
 
 __all__ = [
@@ -103,8 +104,11 @@ class CaptureMetadata:
     sidecar_rate_hz
         Sample rate stated in a sidecar or profile (None when there is none).
     sensitivity_known
-        False when no sensor sensitivity was given (results stay in volts); None when the
-        question does not apply.
+        False when a channel that needs a sensor sensitivity has none (its results stay in
+        volts); None when the question does not apply.
+    uncalibrated_channels
+        The channels (numbers in the file) left without a sensitivity, named in the
+        warning when only some of the analysed channels lack one; empty when not known.
     time_gaps
         Number of gaps the CSV reader found in the time column (None when not CSV).
     largest_time_gap_s
@@ -125,6 +129,7 @@ class CaptureMetadata:
     file_rate_hz: float | None = None
     sidecar_rate_hz: float | None = None
     sensitivity_known: bool | None = None
+    uncalibrated_channels: tuple[int, ...] = ()
     time_gaps: int | None = None
     largest_time_gap_s: float | None = None
 
@@ -259,7 +264,7 @@ class DcResult:
     """
 
     dc_offset: float  # in the unit of the samples
-    dc_offset_v: float  # in volts (at the sensor output)
+    dc_offset_v: float | None  # in volts at the sensor output (None: no such factor)
     dc_fraction_of_fs: float | None
     ac_rms: float
     dc_re_rms: float | None  # |DC| / AC RMS
@@ -357,6 +362,14 @@ class ChannelDiagnostics:
     noise: NoiseFloorResult
     psd_frequencies_hz: np.ndarray = field(repr=False)
     psd: np.ndarray = field(repr=False)
+    unit: str = "V"  # unit of the channel's values
+    reference: float = 1.0  # reference of its levels, in ``unit`` (ISO 1683)
+    full_scale: float | None = 1.0  # the converter's full scale in ``unit``; None: unknown
+
+    @property
+    def level_unit(self) -> str:
+        """How the channel's levels are labelled: 'dB re 20 µPa', 'dB re 1 µm/s²' ..."""
+        return _level_unit(self.reference, self.unit)
 
     def check(self, name: str) -> Check:
         """The check called ``name``."""
@@ -378,6 +391,10 @@ class ChannelDiagnostics:
         )
         return {
             "channel": self.channel,
+            "unit": self.unit,
+            "level_unit": self.level_unit,
+            reference_key(self.unit): self.reference,
+            "full_scale": _num(self.full_scale),
             "verdict": self.verdict.value,
             "clipping": {
                 "clipped_samples": c.clipped_samples,
@@ -403,7 +420,7 @@ class ChannelDiagnostics:
             "peak_dbfs": _num(h.peak_dbfs),
             "rms": h.rms,
             "crest_factor_db": _num(h.crest_factor_db),
-            "dc_offset_v": d.dc_offset_v,
+            "dc_offset_v": _num(d.dc_offset_v),
             "dc": {
                 "offset": d.dc_offset,
                 "fraction_of_full_scale": _num(d.dc_fraction_of_fs),
@@ -486,6 +503,10 @@ class ChannelDiagnostics:
 class CaptureDiagnostics:
     """The result of :class:`CaptureChecker`: metadata checks and one entry per channel.
 
+    Each channel states its own unit, level reference and full scale
+    (:class:`ChannelDiagnostics`); :attr:`unit`, :attr:`reference` and
+    :attr:`full_scale` are the values shared by every channel, None where they differ.
+
     Examples
     --------
     The file's verdict is the worst channel's: a clean channel beside a clipped one.
@@ -501,9 +522,6 @@ class CaptureDiagnostics:
 
     sample_rate_hz: float
     frames: int
-    unit: str
-    reference: float
-    full_scale: float | None
     thresholds: Thresholds
     metadata_checks: tuple[Check, ...]
     channels: tuple[ChannelDiagnostics, ...]
@@ -511,6 +529,32 @@ class CaptureDiagnostics:
     @property
     def duration_s(self) -> float:
         return self.frames / self.sample_rate_hz
+
+    def _shared(self, values: list[Any]) -> Any:
+        return values[0] if values and all(v == values[0] for v in values) else None
+
+    @property
+    def unit(self) -> str | None:
+        """Unit of the values when every channel has the same, else None."""
+        return self._shared([c.unit for c in self.channels])
+
+    @property
+    def level_unit(self) -> str | None:
+        """Label of the levels when every channel has the same, else None."""
+        return self._shared([c.level_unit for c in self.channels])
+
+    @property
+    def reference(self) -> float | None:
+        """Reference of the levels when every channel has the same, else None."""
+        return self._shared([c.reference for c in self.channels])
+
+    @property
+    def full_scale(self) -> float | None:
+        """Full scale (in :attr:`unit`) when the channels share unit and full scale, else
+        None (also when it is unknown)."""
+        if self.unit is None:
+            return None
+        return self._shared([c.full_scale for c in self.channels])
 
     @property
     def verdict(self) -> Severity:
@@ -548,6 +592,31 @@ def _num(value: float | None) -> float | None:
     return value if math.isfinite(value) else None
 
 
+def _level_unit(reference: float, unit: str) -> str:
+    """'dB re 20 µPa', 'dB re 1 µm/s²', 'dB re 1 V': a level's reference written out."""
+    return f"dB re {format_quantity(reference, unit)}"
+
+
+def _per_channel(value: Any, channels: int, what: str) -> tuple[Any, ...]:
+    """One value for every channel, or a sequence of exactly one per channel."""
+    if isinstance(value, str) or not isinstance(value, Sequence | np.ndarray):
+        return (value,) * channels
+    values = tuple(value)
+    if len(values) != channels:
+        raise InputError(
+            f"{what}: needs one value or one per channel ({channels}), got {len(values)}"
+        )
+    return values
+
+
+def _positive(value: Any, what: str) -> float:
+    return validate.physical_value(value, what=what)
+
+
+def _positive_or_none(value: Any, what: str) -> float | None:
+    return None if value is None else validate.physical_value(value, what=f"{what} (or None)")
+
+
 # --------------------------------------------------------------------------------------
 # The checker
 # --------------------------------------------------------------------------------------
@@ -579,18 +648,29 @@ class CaptureChecker:
         sensitivity for calibrated samples). None when unknown (e.g. a CSV export whose
         instrument range is not given): digital clipping and headroom are then not
         determinable and analog clipping uses tolerances relative to the observed extreme.
+        One value for every channel, or a sequence of one per channel (each channel in
+        its own unit, through its own chain).
     thresholds
         Limits used by the checks (defaults: :class:`Thresholds`).
     metadata
         What is known besides the samples (:class:`CaptureMetadata`).
     reference
         Reference value for dB levels, in the unit of the samples (1.0 = dB re 1 unit;
-        20e-6 for dB re 20 µPa when the samples are in pascals).
+        20e-6 for dB re 20 µPa when the samples are in pascals, 1e-6 for dB re 1 µm/s²
+        in m/s², ISO 1683). One value, or one per channel.
     unit
-        Name of the unit of the samples, for the evidence texts (``"V"`` or ``"Pa"``).
+        Name of the unit of the samples, for the evidence texts (``"V"``, ``"Pa"``,
+        ``"m/s²"`` ...). One name, or one per channel.
     volts_per_unit
-        Volts per unit of the samples (the sensitivity in V/Pa for pressure samples, 1 for
-        volts), for ``dc_offset_v`` in the JSON form.
+        Volts at the sensor output per unit of the samples (the sensitivity in V/Pa for
+        pressure samples, in V/(m/s²) for acceleration, 1 for volts), for ``dc_offset_v``;
+        None where no such factor exists (an integrated channel: ``dc_offset_v`` is then
+        None). One value, or one per channel.
+    weightable
+        Whether the IEC 61672-1 A weighting applies to a channel (it is defined for sound
+        pressure; volts are taken as a microphone's): ``noise_floor_a_db`` is None where
+        it does not. One flag, or one per channel; by default True for channels in
+        ``"Pa"`` or ``"V"``.
     channel_indices
         Channel numbers in the source file, for the results (default 0, 1, ...).
     expected_frames
@@ -621,6 +701,19 @@ class CaptureChecker:
     True
     >>> abs(streamed.headroom.rms - whole.headroom.rms) < 1e-12  # summation order only
     True
+
+    Channels through different chains: a microphone in pascals beside an accelerometer
+    in m/s², each with its own full scale and its own level reference (ISO 1683):
+
+    >>> two = np.column_stack([x, x])
+    >>> diag = check_capture(two, 48000.0, full_scale=[2.0, 50.0], unit=["Pa", "m/s²"],
+    ...                      reference=[20e-6, 1e-6], volts_per_unit=[0.01, 0.001])
+    >>> [(ch.unit, ch.level_unit, ch.full_scale) for ch in diag.channels]
+    [('Pa', 'dB re 20 µPa', 2.0), ('m/s²', 'dB re 1 µm/s²', 50.0)]
+    >>> diag.channels[1].check("headroom").evidence
+    'peak -40.00 dBFS, headroom 40.00 dB, crest factor 3.01 dB'
+    >>> diag.unit is None, diag.channels[1].noise.noise_floor_a_db is None
+    (True, True)
     """
 
     def __init__(
@@ -628,31 +721,40 @@ class CaptureChecker:
         sample_rate_hz: float,
         channels: int,
         *,
-        full_scale: float | None = 1.0,
+        full_scale: float | Sequence[float | None] | None = 1.0,
         thresholds: Thresholds | None = None,
         metadata: CaptureMetadata | None = None,
-        reference: float = 1.0,
-        unit: str = "V",
-        volts_per_unit: float = 1.0,
+        reference: float | Sequence[float] = 1.0,
+        unit: str | Sequence[str] = "V",
+        volts_per_unit: float | Sequence[float | None] | None = 1.0,
+        weightable: bool | Sequence[bool] | None = None,
         channel_indices: Sequence[int] | None = None,
         expected_frames: int | None = None,
     ) -> None:
         validate.sample_rate(sample_rate_hz)
         validate.channel_count(channels)
-        if full_scale is not None and not (math.isfinite(full_scale) and full_scale > 0):
-            raise InputError(f"full_scale: must be positive or None, got {full_scale!r}")
-        if not (math.isfinite(reference) and reference > 0):
-            raise InputError(f"reference: must be positive, got {reference!r}")
         self.sample_rate_hz = float(sample_rate_hz)
         self.channels = channels
-        self.full_scale = None if full_scale is None else float(full_scale)
+        self.full_scales: tuple[float | None, ...] = tuple(
+            _positive_or_none(v, "full_scale")
+            for v in _per_channel(full_scale, channels, "full_scale")
+        )
+        self.references: tuple[float, ...] = tuple(
+            _positive(v, "reference") for v in _per_channel(reference, channels, "reference")
+        )
+        self.units: tuple[str, ...] = tuple(str(v) for v in _per_channel(unit, channels, "unit"))
+        self.volts_per_unit: tuple[float | None, ...] = tuple(
+            _positive_or_none(v, "volts_per_unit")
+            for v in _per_channel(volts_per_unit, channels, "volts_per_unit")
+        )
+        if weightable is None:
+            self.weightable: tuple[bool, ...] = tuple(u in ("Pa", "V") for u in self.units)
+        else:
+            self.weightable = tuple(
+                bool(v) for v in _per_channel(weightable, channels, "weightable")
+            )
         self.thresholds = thresholds or Thresholds()
         self.metadata = metadata or CaptureMetadata()
-        self.reference = float(reference)
-        self.unit = unit
-        if not (math.isfinite(volts_per_unit) and volts_per_unit > 0):
-            raise InputError(f"volts_per_unit: must be positive, got {volts_per_unit!r}")
-        self.volts_per_unit = float(volts_per_unit)
         if channel_indices is None:
             channel_indices = list(range(channels))
         if len(channel_indices) != channels:
@@ -668,19 +770,20 @@ class CaptureChecker:
         self._m2 = np.zeros(channels)
         self._peak = np.zeros(channels)
         self._over = np.zeros(channels, dtype=np.int64)
-        # Clipping.
-        fs_abs = None if self.full_scale is None else self.full_scale
-        abs_tol = None if fs_abs is None else th.clip_level_tolerance * fs_abs
-        self._flat_tol = th.clip_flat_tolerance * (fs_abs if fs_abs is not None else 0.0)
+        # Full scale per channel as an array (inf where unknown: nothing lies beyond it).
+        self._fs_array = np.array([math.inf if v is None else v for v in self.full_scales])
+        # Clipping: tolerances relative to each channel's own full scale.
+        abs_tol = [None if v is None else th.clip_level_tolerance * v for v in self.full_scales]
+        flat_tol = [0.0 if v is None else th.clip_flat_tolerance * v for v in self.full_scales]
         self._pos = [
-            ExtremeSide(abs_tol, th.clip_level_tolerance, th.max_event_times)
-            for _ in range(channels)
+            ExtremeSide(abs_tol[c], th.clip_level_tolerance, th.max_event_times)
+            for c in range(channels)
         ]
         self._neg = [
-            ExtremeSide(abs_tol, th.clip_level_tolerance, th.max_event_times)
-            for _ in range(channels)
+            ExtremeSide(abs_tol[c], th.clip_level_tolerance, th.max_event_times)
+            for c in range(channels)
         ]
-        self._flat = [RunTracker(self._flat_tol) for _ in range(channels)]
+        self._flat = [RunTracker(flat_tol[c]) for c in range(channels)]
         # Digital clipping per side: [runs tracker, [samples, events, times]].
         self._digital: list[dict[str, tuple[MaskRuns, list[Any]]]] = [
             {side: (MaskRuns(), [0, 0, []]) for side in ("positive", "negative")}
@@ -707,13 +810,17 @@ class CaptureChecker:
         self._drift_m0 = np.full(channels, math.nan)  # first interval mean (origin of sums)
         # Noise floor.
         self._noise_len = max(1, round(th.noise_interval_s * fs))
-        self._noise = IntervalLevels(self._noise_len, channels, self.reference)
-        # The same through the IEC 61672-1 A weighting (not below its minimum rate).
+        refs = np.array(self.references)
+        self._noise = IntervalLevels(self._noise_len, channels, refs)
+        # The same through the IEC 61672-1 A weighting (not below its minimum rate), for
+        # the channels it applies to (sound pressure, or volts).
+        self._weighted = [c for c in range(channels) if self.weightable[c]]
         self._weight_a: FrequencyWeighting | None = None
         self._noise_a: IntervalLevels | None = None
-        if fs >= MIN_SAMPLE_RATE_HZ:
-            self._weight_a = FrequencyWeighting(fs, channels, weighting="A")
-            self._noise_a = IntervalLevels(self._noise_len, channels, self.reference)
+        if fs >= MIN_SAMPLE_RATE_HZ and self._weighted:
+            n_a = len(self._weighted)
+            self._weight_a = FrequencyWeighting(fs, n_a, weighting="A")
+            self._noise_a = IntervalLevels(self._noise_len, n_a, refs[self._weighted])
         # Diagnostic PSD (Welch, Hann, 50 % overlap; piezo.spectral.welch). A recording known
         # to be shorter than a segment gets the longest power-of-two segment that fits.
         segment = segment_frames_for(fs, th.spectrum_resolution_hz)
@@ -740,9 +847,7 @@ class CaptureChecker:
         ax = np.abs(x)
         self._peak = np.maximum(self._peak, ax.max(axis=0))
         th = self.thresholds
-        if self.full_scale is not None:
-            self._over += (ax > self.full_scale).sum(axis=0)
-            digital_level = th.digital_clip_level * self.full_scale
+        self._over += (ax > self._fs_array).sum(axis=0)
         for c in range(self.channels):
             xc = x[:, c]
             # Analog clipping bookkeeping at both extremes.
@@ -750,8 +855,10 @@ class CaptureChecker:
             self._neg[c].add_samples(-xc)
             s, ln, v = self._flat[c].feed(xc, offset)
             self._add_flat_runs(c, s, ln, v)
-            # Digital clipping: runs of samples at the extremes.
-            if self.full_scale is not None:
+            # Digital clipping: runs of samples at the extremes of the channel's own scale.
+            full_scale = self.full_scales[c]
+            if full_scale is not None:
+                digital_level = th.digital_clip_level * full_scale
                 for side, mask in (
                     ("positive", xc >= digital_level),
                     ("negative", xc <= -digital_level),
@@ -766,7 +873,7 @@ class CaptureChecker:
         self._update_drift(x)
         self._noise.update(x)
         if self._weight_a is not None and self._noise_a is not None:
-            self._noise_a.update(self._weight_a.update(x))
+            self._noise_a.update(self._weight_a.update(x[:, self._weighted]))
         self.frames += n
 
     def _add_flat_runs(self, c: int, s: np.ndarray, ln: np.ndarray, v: np.ndarray) -> None:
@@ -856,7 +963,7 @@ class CaptureChecker:
                         psd_c,
                         total_power=ac_power,
                         degrees_of_freedom=dof,
-                        reference=self.reference,
+                        reference=self.references[c],
                         thresholds=th,
                     )
                     exclude = [ln.frequency_hz for ln in hum.lines if ln.detected]
@@ -865,14 +972,14 @@ class CaptureChecker:
                         psd_c,
                         degrees_of_freedom=dof,
                         exclude_hz=exclude,
-                        reference=self.reference,
+                        reference=self.references[c],
                         thresholds=th,
                     )
                 else:
                     reason = "channel carries no signal"
                     hum, rolloff = _not_determinable(reason, th.rolloff_expected_hz)
-                psd_floor_db = self._psd_floor_db(freqs, psd_c, dof)
-            hum_check = self._hum_check(hum)
+                psd_floor_db = self._psd_floor_db(c, freqs, psd_c, dof)
+            hum_check = self._hum_check(c, hum)
             rolloff_check = self._rolloff_check(rolloff)
             noise, noise_check = self._noise_floor(c, psd_floor_db)
             checks = (
@@ -900,31 +1007,33 @@ class CaptureChecker:
                     noise=noise,
                     psd_frequencies_hz=freqs,
                     psd=psd_c,
+                    unit=self.units[c],
+                    reference=self.references[c],
+                    full_scale=self.full_scales[c],
                 )
             )
         return CaptureDiagnostics(
             sample_rate_hz=self.sample_rate_hz,
             frames=self.frames,
-            unit=self.unit,
-            reference=self.reference,
-            full_scale=self.full_scale,
             thresholds=th,
             metadata_checks=meta_checks,
             channels=tuple(channels),
         )
 
     # ---------------------------------------------------------------- pieces
-    def _fmt(self, value: float) -> str:
-        return format_quantity(value, self.unit)
+    def _fmt(self, c: int, value: float) -> str:
+        """A value of channel ``c`` with its unit: '1.013 Pa', '2.5 m/s²'."""
+        return format_quantity(value, self.units[c])
 
-    def _ref(self) -> str:
-        """'dB re 20 µPa', 'dB re 1 V' ..."""
-        return f"dB re {format_quantity(self.reference, self.unit)}"
+    def _ref(self, c: int) -> str:
+        """Channel ``c``'s level unit: 'dB re 20 µPa', 'dB re 1 µm/s²', 'dB re 1 V' ..."""
+        return _level_unit(self.references[c], self.units[c])
 
-    def _dbfs(self, value: float) -> float | None:
-        if self.full_scale is None or value <= 0:
+    def _dbfs(self, c: int, value: float) -> float | None:
+        full_scale = self.full_scales[c]
+        if full_scale is None or value <= 0:
             return None
-        return 20 * math.log10(value / self.full_scale)
+        return 20 * math.log10(value / full_scale)
 
     def _clipping(self, c: int) -> tuple[ClippingResult, Check, list[tuple[float, float]]]:
         th = self.thresholds
@@ -935,8 +1044,9 @@ class CaptureChecker:
         total = 0
         events = 0
         digital_level = None
-        if self.full_scale is not None:
-            digital_level = th.digital_clip_level * self.full_scale
+        full_scale = self.full_scales[c]
+        if full_scale is not None:
+            digital_level = th.digital_clip_level * full_scale
             for side_name, (tracker, acc) in self._digital[c].items():
                 samples, n_ev, t = acc[0], acc[1], list(acc[2])
                 ds, dl = tracker.pending()
@@ -950,7 +1060,7 @@ class CaptureChecker:
                 ext = self._pos[c].extreme if side_name == "positive" else self._neg[c].extreme
                 level = ext if side_name == "positive" else -ext
                 levels.append(
-                    ClipLevel(side_name, "digital", level, self._dbfs(ext), samples, n_ev, None)
+                    ClipLevel(side_name, "digital", level, self._dbfs(c, ext), samples, n_ev, None)
                 )
                 total += samples
                 events += n_ev
@@ -973,7 +1083,7 @@ class CaptureChecker:
             if samples >= th.clip_min_run and ratio >= th.clip_spike_ratio:
                 level = ext if side_name == "positive" else -ext
                 levels.append(
-                    ClipLevel(side_name, "analog", level, self._dbfs(ext), samples, n_ev, ratio)
+                    ClipLevel(side_name, "analog", level, self._dbfs(c, ext), samples, n_ev, ratio)
                 )
                 clip_values.append((level, tol))
                 total += samples
@@ -988,7 +1098,7 @@ class CaptureChecker:
             event_times_s=event_times,
             levels=tuple(levels),
             over_samples=int(self._over[c]),
-            digital_determinable=self.full_scale is not None,
+            digital_determinable=full_scale is not None,
         )
         threshold = (
             f"clip = run of >= {th.clip_min_run} samples at >= {th.digital_clip_level:g} of "
@@ -998,12 +1108,12 @@ class CaptureChecker:
         )
         if total == 0 and result.over_samples == 0:
             evidence = "no clipping found"
-            if self.full_scale is None:
+            if full_scale is None:
                 evidence += " (full scale unknown: digital clipping not determinable)"
             return result, Check("clipping", Severity.OK, evidence, threshold), clip_values
         parts = []
         for lv in levels:
-            where = f"{self._fmt(lv.level)}"
+            where = f"{self._fmt(c, lv.level)}"
             if lv.level_dbfs is not None:
                 where += f" ({lv.level_dbfs:.2f} dBFS)"
             parts.append(f"{lv.kind} clip at {where} on the {lv.side} side")
@@ -1030,7 +1140,7 @@ class CaptureChecker:
         mean = float(self._mean[c])
         rms = math.sqrt(self._ac_rms(c) ** 2 + mean**2)
         crest = 20 * math.log10(peak / rms) if rms > 0 and peak > 0 else None
-        peak_dbfs = self._dbfs(peak)
+        peak_dbfs = self._dbfs(c, peak)
         headroom = None if peak_dbfs is None else -peak_dbfs
         result = HeadroomResult(peak, peak_dbfs, headroom, rms, crest)
         threshold = (
@@ -1038,11 +1148,11 @@ class CaptureChecker:
             f"{th.underrange_warn_dbfs:g} dBFS (little of the range used)"
         )
         crest_text = f", crest factor {crest:.2f} dB" if crest is not None else ""
-        if self.full_scale is None:
+        if self.full_scales[c] is None:
             return result, Check(
                 "headroom",
                 Severity.OK,
-                f"peak {self._fmt(peak)}{crest_text}; full scale unknown, headroom not "
+                f"peak {self._fmt(c, peak)}{crest_text}; full scale unknown, headroom not "
                 "determinable",
                 threshold,
             )
@@ -1064,7 +1174,9 @@ class CaptureChecker:
         th = self.thresholds
         dc = float(self._mean[c])
         ac = self._ac_rms(c)
-        frac = abs(dc) / self.full_scale if self.full_scale is not None else None
+        full_scale = self.full_scales[c]
+        volts_per_unit = self.volts_per_unit[c]
+        frac = abs(dc) / full_scale if full_scale is not None else None
         re_rms = abs(dc) / ac if ac > 0 else None
         n = float(self._drift_n[c])
         drift_pp = slope = change = drift_re = t_stat = None
@@ -1085,7 +1197,7 @@ class CaptureChecker:
                     t_stat = abs(slope) / math.sqrt(resid / sxx) if resid > 0 else math.inf
         result = DcResult(
             dc,
-            dc * self.volts_per_unit,
+            None if volts_per_unit is None else dc * volts_per_unit,
             frac,
             ac,
             re_rms,
@@ -1102,7 +1214,7 @@ class CaptureChecker:
             f"scale; a trend of the {th.drift_interval_s:g} s means warns when it changes by "
             f">= {th.drift_warn_ratio:g} × AC RMS with t >= {th.drift_min_t:g}"
         )
-        evidence = f"DC {self._fmt(dc)}"
+        evidence = f"DC {self._fmt(c, dc)}"
         if frac is not None:
             evidence += f" ({_pct(frac)} of full scale)"
         if re_rms is not None:
@@ -1115,13 +1227,15 @@ class CaptureChecker:
         )
         if drift_pp is not None and slope is not None:
             evidence += (
-                f"; means of {int(n)} intervals spread {self._fmt(drift_pp)} p-p, trend "
-                f"{self._fmt(slope)}/s"
+                f"; means of {int(n)} intervals spread {self._fmt(c, drift_pp)} p-p, trend "
+                f"{self._fmt(c, slope)}/s"
             )
             if t_stat is None:
                 evidence += " (too few intervals to judge)"
             elif drifting and change is not None:
-                evidence += f": drift of {self._fmt(change)} over the recording (t = {t_stat:.3g})"
+                evidence += (
+                    f": drift of {self._fmt(c, change)} over the recording (t = {t_stat:.3g})"
+                )
             else:
                 evidence += f" (no steady drift, t = {t_stat:.2g})"
         else:
@@ -1145,7 +1259,8 @@ class CaptureChecker:
         table = {k: [v[0], v[1], list(v[2])] for k, v in self._repeat_acc[c].items()}
         ro = self._repeat_other[c]
         other = [ro[0], ro[1], list(ro[2])]
-        digital = th.digital_clip_level * self.full_scale if self.full_scale is not None else None
+        full_scale = self.full_scales[c]
+        digital = th.digital_clip_level * full_scale if full_scale is not None else None
         leading = self._leading[c]
         trailing = 0
         constant = False
@@ -1238,15 +1353,17 @@ class CaptureChecker:
         """True once the diagnostic PSD has at least one segment."""
         return self.frames >= self._spectrum.segment_frames
 
-    def _psd_floor_db(self, freqs: np.ndarray, psd: np.ndarray, dof: float) -> float | None:
+    def _psd_floor_db(
+        self, c: int, freqs: np.ndarray, psd: np.ndarray, dof: float
+    ) -> float | None:
         floor = psd_floor(
             freqs, psd, degrees_of_freedom=dof, percentile=self.thresholds.noise_floor_percentile
         )
         if floor is None or floor <= 0:
             return None
-        return 10 * math.log10(floor / self.reference**2)
+        return 10 * math.log10(floor / self.references[c] ** 2)
 
-    def _hum_check(self, hum: HumResult) -> Check:
+    def _hum_check(self, c: int, hum: HumResult) -> Check:
         th = self.thresholds
         threshold = (
             f"hum = line >= {th.hum_detect_db:g} dB above the local floor; warns from "
@@ -1262,7 +1379,7 @@ class CaptureChecker:
         rel = hum.re_total_db
         evidence = (
             f"mains {hum.mains_hz:g} Hz: lines at {harmonics}; together "
-            f"{hum.level_db:.1f} {self._ref()}"
+            f"{hum.level_db:.1f} {self._ref(c)}"
             + (f", {rel:.1f} dB re the AC power" if rel is not None else "")
         )
         sev = Severity.OK
@@ -1305,8 +1422,8 @@ class CaptureChecker:
         floor = self._noise.percentile_db(c, th.noise_floor_percentile)
         sig = self._noise.percentile_db(c, th.signal_percentile)
         floor_a = (
-            self._noise_a.percentile_db(c, th.noise_floor_percentile)
-            if self._noise_a is not None
+            self._noise_a.percentile_db(self._weighted.index(c), th.noise_floor_percentile)
+            if self._noise_a is not None and c in self._weighted
             else None
         )
         threshold = (
@@ -1315,7 +1432,7 @@ class CaptureChecker:
             f"SNR given when >= {th.signal_presence_db:g} dB, warns below "
             f"{th.snr_warn_db:g} dB"
         )
-        ref = self._ref()
+        ref = self._ref(c)
         if floor is None or sig is None:
             reason = (
                 "shorter than one noise interval"
@@ -1333,7 +1450,7 @@ class CaptureChecker:
         if psd_floor is not None:
             evidence += (
                 f"; PSD floor {psd_floor:.1f} dB re "
-                f"({format_quantity(self.reference, self.unit)})²/Hz"
+                f"({format_quantity(self.references[c], self.units[c])})²/Hz"
             )
         if silent:
             evidence += f"; {silent} silent intervals"
@@ -1376,33 +1493,40 @@ class CaptureChecker:
                         threshold,
                     )
                 )
+        expected = "a sensitivity is expected for levels of the measured quantity"
         if meta.sensitivity_known is False:
+            missing = meta.uncalibrated_channels
+            some = bool(missing) and len(missing) < self.channels
+            where = (
+                f" for channel{'s' if len(missing) > 1 else ''} "
+                + ", ".join(str(i) for i in missing)
+                if some
+                else ""
+            )
             checks.append(
                 Check(
                     "sensitivity",
                     Severity.WARN,
-                    "no sensor sensitivity given: levels are in volts, not pascals",
-                    "a sensitivity is expected for acoustic levels",
+                    f"no sensor sensitivity given{where}: "
+                    f"{'its' if some and len(missing) == 1 else 'the'} levels are in volts, "
+                    "not in the unit of the measured quantity",
+                    expected,
                 )
             )
         elif meta.sensitivity_known:
-            checks.append(
-                Check(
-                    "sensitivity",
-                    Severity.OK,
-                    "sensor sensitivity given",
-                    "a sensitivity is expected for acoustic levels",
-                )
-            )
+            checks.append(Check("sensitivity", Severity.OK, "sensor sensitivity given", expected))
         return tuple(checks)
 
 
 def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> CaptureChecker:
-    """A :class:`CaptureChecker` set up for ``source``: full scale, units, metadata.
+    """A :class:`CaptureChecker` set up for ``source``: per channel full scale, unit, level
+    reference and volts per unit, from each channel's own chain; and the metadata.
 
-    The full scale is known for audio files (a raw sample of 1.0); for CSV files only when
-    a full scale was given by option or profile (otherwise the instrument range is
-    unknown and digital clipping and headroom are not determinable).
+    The full scale is known for audio files (a raw sample of 1.0); for CSV files only for
+    channels whose full scale was given by option or profile (otherwise the instrument
+    range is unknown and digital clipping and headroom are not determinable), and never
+    for an integrated channel (integration changes amplitudes with frequency, so no one
+    velocity or displacement stands for the converter's full scale).
 
     Examples
     --------
@@ -1412,19 +1536,45 @@ def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> Capt
     >>> import piezo
     >>> source = piezo.open("recordings/calibrator-94dB.wav")
     >>> checker = checker_for_source(source, Thresholds())
-    >>> round(checker.full_scale, 6), checker.unit, checker.metadata.sensitivity_known
-    (0.2, 'V', False)
+    >>> [round(v, 6) for v in checker.full_scales], checker.units
+    ([0.2], ('V',))
+    >>> checker.metadata.sensitivity_known
+    False
+
+    The accelerometer bench: two channels, each with its own sensitivity (its profile's
+    ``[channel.N]`` sections), so each has its own full scale in m/s²; 2 V / 10 over
+    10.15 mV/g and over 10 mV/g, g = 9.80665 m/s²:
+
+    >>> bench = checker_for_source(piezo.open("recordings/accel-bench.flac"), Thresholds())
+    >>> [round(v, 2) for v in bench.full_scales], bench.units, bench.references
+    ([193.23, 196.13], ('m/s²', 'm/s²'), (1e-06, 1e-06))
     """
     rec = source.recording
-    chain = source.chain
-    provenance = source.provenance
-    if rec.is_pcm:
-        full_scale: float | None = source.scale
-    elif provenance is not None and provenance.full_scale_v != "default":
-        full_scale = chain.full_scale_v * source.scale
-    else:
-        full_scale = None
+    full_scales: list[float | None] = []
+    volts_per_unit: list[float | None] = []
+    uncalibrated: list[int] = []
+    needs_sensitivity = False
+    for index, chain in zip(source.channel_indices, source.chains, strict=True):
+        provenance = source.provenance_of(index)
+        scale = chain.scale(is_pcm=rec.is_pcm)
+        if chain.integrations:
+            full_scales.append(None)
+            volts_per_unit.append(None)
+        else:
+            if rec.is_pcm:
+                full_scales.append(scale)
+            elif provenance is not None and provenance.full_scale_v != "default":
+                full_scales.append(chain.full_scale_v * scale)
+            else:
+                full_scales.append(None)
+            volts_per_unit.append(chain.sensitivity_v_per_unit or 1.0)
+        if chain.quantity != "voltage":  # a voltage channel takes no sensitivity
+            needs_sensitivity = True
+            if not chain.calibrated:
+                uncalibrated.append(index)
     sidecar_rate = None
+    provenances = [source.provenance, *(source.provenance_of(i) for i in source.channel_indices)]
+    provenance = next((p for p in provenances if p is not None), None)
     if provenance is not None:
         for prof in provenance.profiles:
             if prof.sample_rate_hz is not None:
@@ -1432,21 +1582,24 @@ def checker_for_source(source: CalibratedSource, thresholds: Thresholds) -> Capt
     metadata = CaptureMetadata(
         file_rate_hz=rec.sample_rate_hz,
         sidecar_rate_hz=sidecar_rate,
-        sensitivity_known=chain.calibrated,
+        sensitivity_known=not uncalibrated if needs_sensitivity else None,
+        uncalibrated_channels=tuple(uncalibrated),
         # Set when the CSV reader was asked to report gaps (piezo check) instead of
         # refusing them; None for audio files and for readers that refuse gaps.
         time_gaps=rec.time_gaps,
         largest_time_gap_s=rec.largest_time_gap_s,
     )
+    chains = source.chains
     return CaptureChecker(
         source.sample_rate_hz,
         len(source.channel_indices),
-        full_scale=full_scale,
+        full_scale=full_scales,
         thresholds=thresholds,
         metadata=metadata,
-        reference=source.reference,
-        unit=source.unit,
-        volts_per_unit=chain.sensitivity_v_per_pa or 1.0,
+        reference=[c.reference for c in chains],
+        unit=[c.unit for c in chains],
+        volts_per_unit=volts_per_unit,
+        weightable=[c.weightable for c in chains],
         channel_indices=list(source.channel_indices),
         expected_frames=source.frames,
     )
@@ -1456,17 +1609,19 @@ def check_capture(
     samples: np.ndarray,
     sample_rate_hz: float,
     *,
-    full_scale: float | None = 1.0,
+    full_scale: float | Sequence[float | None] | None = 1.0,
     thresholds: Thresholds | None = None,
     metadata: CaptureMetadata | None = None,
-    reference: float = 1.0,
-    unit: str = "V",
-    volts_per_unit: float = 1.0,
+    reference: float | Sequence[float] = 1.0,
+    unit: str | Sequence[str] = "V",
+    volts_per_unit: float | Sequence[float | None] | None = 1.0,
+    weightable: bool | Sequence[bool] | None = None,
     channel_indices: Sequence[int] | None = None,
 ) -> CaptureDiagnostics:
     """Diagnose a whole capture held in memory (thin wrapper over :class:`CaptureChecker`).
 
-    ``samples`` has shape (frames, channels) or (frames,) for one channel.
+    ``samples`` has shape (frames, channels) or (frames,) for one channel. The options
+    are :class:`CaptureChecker`'s: one value for all channels, or one per channel.
 
     Examples
     --------
@@ -1490,6 +1645,7 @@ def check_capture(
         reference=reference,
         unit=unit,
         volts_per_unit=volts_per_unit,
+        weightable=weightable,
         channel_indices=channel_indices,
         expected_frames=x.shape[0],
     )

@@ -12,7 +12,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from piezo.chain.measurement import CalibratedSource
+from piezo.chain.measurement import CalibratedSource, Chain, Provenance
 from piezo.diagnostics.checker import CaptureDiagnostics, Severity, checker_for_source
 from piezo.diagnostics.thresholds import Thresholds
 from piezo.results import to_jsonable
@@ -51,36 +51,60 @@ class Check:
         return self.diagnostics.verdict is Severity.FAIL
 
     def to_dict(self) -> dict[str, Any]:
-        """The ``piezo check --json`` document: file, chain and provenance, diagnostics."""
-        rec = self.source.recording
-        chain = self.source.chain
-        provenance = self.source.provenance
+        """The ``piezo check --json`` document: file, chains and provenance, diagnostics.
+
+        Each channel entry carries its own ``quantity``, ``unit``, ``level_unit``, level
+        reference, ``full_scale`` and ``chain``; the top-level ``quantity``, ``unit``,
+        ``level_unit`` and ``chain`` are those shared by the analysed channels, None
+        where the channels differ.
+        """
+        source = self.source
+        rec = source.recording
+        chains = source.chains
+        indices = source.channel_indices
+        shared = _shared(list(chains))
+        first = source.provenance_of(indices[0]) if indices else source.provenance
         doc: dict[str, Any] = {
             "file": str(rec.path),
             "format": rec.format,
             "subtype": rec.subtype,
-            "quantity": chain.measured.name,
-            "level_unit": chain.level_unit,
-            "chain": {
-                "quantity": chain.quantity,
-                "full_scale_v": chain.full_scale_v,
-                "gain": chain.gain,
-                "sensitivity_v_per_unit": chain.sensitivity_v_per_unit,
-                "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
-                "reference_pa": chain.reference_pa,
-                "provenance": provenance.as_dict() if provenance else None,
-            },
+            "quantity": _shared([c.measured.name for c in chains]),
+            "level_unit": _shared([c.level_unit for c in chains]),
+            "chain": None if shared is None else _chain_document(shared, first),
         }
         doc.update(diagnostics_document(self.diagnostics))
+        for entry, index, chain in zip(doc["channels"], indices, chains, strict=True):
+            entry["quantity"] = chain.measured.name
+            entry["chain"] = _chain_document(chain, source.provenance_of(index))
         return to_jsonable(doc)
+
+
+def _shared(values: list[Any]) -> Any:
+    """The value every channel has, or None where they differ."""
+    return values[0] if values and all(v == values[0] for v in values) else None
+
+
+def _chain_document(chain: Chain, provenance: Provenance | None) -> dict[str, Any]:
+    """A channel's chain as ``check --json`` gives it, with where each value came from."""
+    return {
+        "quantity": chain.quantity,
+        "full_scale_v": chain.full_scale_v,
+        "gain": chain.gain,
+        "sensitivity_v_per_unit": chain.sensitivity_v_per_unit,
+        "sensitivity_v_per_pa": chain.sensitivity_v_per_pa,
+        "reference_pa": chain.reference_pa,
+        "provenance": provenance.as_dict() if provenance else None,
+    }
 
 
 def diagnostics_document(diagnostics: CaptureDiagnostics) -> dict[str, Any]:
     """The diagnostics as ``check --json`` and the report name them (docs/glossary.md).
 
-    The checker's full scale is in the capture's unit; it is given as ``full_scale_pa``
-    (``None`` without a sensitivity, when the unit is volts). The level reference is the
-    chain's (``chain.reference_pa``, or 1 V as ``level_unit`` says), so it is not repeated.
+    Every channel states its unit, level unit, level reference (``reference_pa``,
+    ``reference_m_per_s2`` ..., ISO 1683) and full scale in its unit. At the top, the
+    unit shared by the channels (None where they differ) and the full scale as
+    ``full_scale_pa`` (``None`` without a sensitivity, when the unit is not pascals, or
+    when the channels' full scales differ).
 
     Examples
     --------
@@ -90,6 +114,9 @@ def diagnostics_document(diagnostics: CaptureDiagnostics) -> dict[str, Any]:
     >>> doc = diagnostics_document(check_capture(x, 48000.0, full_scale=1.0, unit="V"))
     >>> doc["full_scale_pa"], "reference" in doc   # volts: no full scale in pascals
     (None, False)
+    >>> ch = doc["channels"][0]
+    >>> ch["unit"], ch["level_unit"], ch["reference_v"], ch["full_scale"]
+    ('V', 'dB re 1 V', 1.0, 1.0)
     """
     doc: dict[str, Any] = {}
     for key, value in diagnostics.as_dict().items():

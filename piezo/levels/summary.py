@@ -16,14 +16,43 @@ from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
 from piezo.levels.stats import VELOCITY_BAND_HZ, BandRms
 from piezo.results import reference_key, to_jsonable
 
-__all__ = ["CAUTION", "LEVEL_KEYS", "Levels", "levels_of", "reference_key"]
+__all__ = [
+    "CAUTION",
+    "LEVEL_KEYS",
+    "VIBRATION_CAUTION",
+    "Levels",
+    "caution_for",
+    "levels_of",
+    "reference_key",
+]
 
-#: Shown with every result (terminal and JSON).
+#: Shown with every result that holds sound pressure (terminal and JSON).
 CAUTION = (
     "Signal analysis of a recording, not a certified sound level meter measurement. "
     "Occupational noise exposure must be assessed as local regulations require, with "
     "calibrated class 1 instruments."
 )
+
+#: Shown instead when no channel measures sound pressure (vibration, force, voltage).
+VIBRATION_CAUTION = (
+    "Signal analysis of a recording, not a certified measurement. Human exposure to "
+    "vibration is assessed with the weightings and methods of ISO 5349-1 (hand-arm) and "
+    "ISO 2631-1 (whole-body), as local regulations require."
+)
+
+
+def caution_for(quantities: Sequence[str]) -> str:
+    """The caution a level result carries for channels measuring ``quantities``.
+
+    Examples
+    --------
+    >>> caution_for(["pressure", "acceleration"]) == CAUTION
+    True
+    >>> caution_for(["acceleration"]) == VIBRATION_CAUTION
+    True
+    """
+    return CAUTION if "pressure" in quantities else VIBRATION_CAUTION
+
 
 #: Key order of each channel in the JSON document (the names are a public contract).
 LEVEL_KEYS = (
@@ -144,7 +173,7 @@ class Levels:
             "start_up_excluded_s": result.excluded_s,
             "standard": "IEC 61672-1:2013 frequency and time weightings",
             "response_curve_notes": list(self.response_curve_notes),
-            "caution": CAUTION,
+            "caution": caution_for(self.quantities),
             **(
                 {}
                 if self.velocity_band_hz is None

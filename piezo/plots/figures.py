@@ -7,12 +7,14 @@ object (or the same value the JSON document carries). Each function returns PNG 
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from piezo.chain.units import format_quantity
+from piezo.chain.measurement import Chain
 from piezo.diagnostics.checker import ChannelDiagnostics
-from piezo.levels.meter import LevelResult
+from piezo.levels.summary import Levels
 from piezo.plots.style import (
     COLORMAP,
     FONT_SIZES,
@@ -22,6 +24,7 @@ from piezo.plots.style import (
     axis_label,
     figure,
     legend_below,
+    panels,
     plot_style,
     png_bytes,
     trace,
@@ -29,7 +32,12 @@ from piezo.plots.style import (
 from piezo.report.run import FrontendResponse
 from piezo.response.model import highpass_db
 from piezo.spectral.bands import BandResult
+from piezo.spectral.summary import psd_level_unit
 from piezo.spectral.welch import PSDResult, SpectrogramResult
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
 
 __all__ = [
     "bands_figure",
@@ -102,7 +110,7 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
                 label="no usable content" if r.lowest_content_hz > f[0] else None,
             )
         ax.set_xlabel(axis_label("frequency", "Hz"))
-        ax.set_ylabel(axis_label("PSD", _density_unit(level_unit)))
+        ax.set_ylabel(axis_label("PSD", psd_level_unit(level_unit, "density")))
         ax.set_title(f"Channel {ch.channel}: low-frequency roll-off ({r.status})")
         finite = level[np.isfinite(level)]
         if finite.size:
@@ -113,64 +121,110 @@ def rolloff_figure(ch: ChannelDiagnostics, level_unit: str) -> bytes | None:
         return png_bytes(fig)
 
 
-def _density_unit(level_unit: str) -> str:
-    """'dB re 20 µPa' -> 'dB re (20 µPa)²/Hz'."""
-    prefix = "dB re "
-    if level_unit.startswith(prefix):
-        return f"{prefix}({level_unit[len(prefix) :]})²/Hz"
-    return f"{level_unit} per Hz"
+def _unit_groups(units: Sequence[str]) -> list[tuple[str, list[int]]]:
+    """Positions of the channels by unit, units in order of first appearance."""
+    groups: dict[str, list[int]] = {}
+    for i, unit in enumerate(units):
+        groups.setdefault(unit, []).append(i)
+    return list(groups.items())
 
 
-def level_history_figure(
-    levels: LevelResult, channels: list[int], level_unit: str, *, start_time_s: float = 0.0
-) -> bytes:
+def _axes_per_unit(
+    groups: list[tuple[str, list[int]]], height_in: float, legend_rows: int
+) -> tuple[Figure, list[Axes]]:
+    """One axes for channels of one unit (legend below), else one panel per unit: an
+    axis is never shared by channels of different units."""
+    if len(groups) == 1:
+        fig, ax = figure(6.6, height_in + 0.2 * legend_rows, legend_rows=legend_rows)
+        return fig, [ax]
+    return panels(len(groups), 6.6, height_in)
+
+
+def _legend(fig: Figure, ax: Axes, panels_drawn: int, entries: int) -> None:
+    if panels_drawn == 1:
+        legend_below(fig, min(4, entries))
+    else:
+        ax.legend(loc="best", ncol=min(2, entries))
+
+
+def _channels_text(channels: Sequence[int]) -> str:
+    return ("channel " if len(channels) == 1 else "channels ") + ", ".join(map(str, channels))
+
+
+def level_history_figure(levels: Levels, *, start_time_s: float = 0.0) -> bytes:
     """LAeq per interval (steps) and the LAF trace, per channel, against the recording's
     time, which starts at ``start_time_s`` (the time of the first sample, e.g. a scope's
     pre-trigger).
 
+    Channels of different level units (a microphone's dB re 20 µPa, an accelerometer's
+    dB re 1 µm/s²) get a panel each; a channel without A weighting (not sound pressure,
+    :func:`piezo.levels.summary.levels_of`) shows its LZeq per interval.
+
     Examples
     --------
-    >>> from piezo.levels.meter import LevelMeter
+    >>> import tempfile
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> from piezo.levels.summary import levels_of
     >>> from piezo.plots.style import capture_figures
-    >>> meter = LevelMeter(8000, 1, interval_s=0.25)
-    >>> meter.update(np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000)[:, None])
+    >>> path = f"{tempfile.mkdtemp()}/tone.wav"
+    >>> sf.write(path, np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000), 8000, subtype="FLOAT")
+    >>> levels = levels_of(piezo.open(path), interval_s=0.25)
     >>> with capture_figures() as figs:
-    ...     _ = level_history_figure(meter.result(), [0], "dB re 1 V")
+    ...     _ = level_history_figure(levels)
     >>> ax = figs[0].axes[0]
     >>> ax.get_title(loc="left"), ax.get_xlabel(), ax.get_ylabel()
     ('Level history', 'time / s', 'level / dB re 1 V')
     """
-    h = levels.history
+    h = levels.result.history
     assert h is not None
-    rows = math.ceil(2 * len(channels) / 4)
+    n = len(levels.channel_indices)
+    weighted = levels.weighted or (True,) * n
+    level_units = levels.level_units or (levels.level_unit,) * n
+    groups = _unit_groups(level_units)
+    rows = math.ceil(2 * n / 4) if len(groups) == 1 else 0
     end = start_time_s + h.interval_start_s[-1] + h.interval_duration_s[-1]
     edges = np.append(start_time_s + h.interval_start_s, end)
     with plot_style():
-        fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
-        for i, ch in enumerate(channels):
-            style = trace(i)
-            ax.plot(
-                start_time_s + h.trace_time_s,
-                h.LAF[:, i],
-                **{**style, "linewidth": 0.7},
-                alpha=0.55,
-                label=f"channel {ch}: LAF",
+        fig, axes = _axes_per_unit(groups, 3.0, rows)
+        for ax, (level_unit, members) in zip(axes, groups, strict=True):
+            shown = []
+            for i in members:
+                ch = levels.channel_indices[i]
+                style = trace(i)
+                if weighted[i]:
+                    ax.plot(
+                        start_time_s + h.trace_time_s,
+                        h.LAF[:, i],
+                        **{**style, "linewidth": 0.7},
+                        alpha=0.55,
+                        label=f"channel {ch}: LAF",
+                    )
+                    shown.append(h.LAF[:, i])
+                name = "LAeq" if weighted[i] else "LZeq"
+                steps = (h.LAeq if weighted[i] else h.LZeq)[:, i]
+                ax.stairs(
+                    steps,
+                    edges,
+                    **{**style, "linewidth": 1.8},
+                    label=f"channel {ch}: {name} per {h.interval_s:g} s",
+                )
+                shown.append(steps)
+            ax.set_xlabel(axis_label("time", "s"))
+            ax.set_ylabel(axis_label("level", level_unit))
+            ax.set_title(
+                "Level history"
+                if len(groups) == 1
+                else "Level history: "
+                + _channels_text([levels.channel_indices[i] for i in members])
             )
-            ax.stairs(
-                h.LAeq[:, i],
-                edges,
-                **{**style, "linewidth": 1.8},
-                label=f"channel {ch}: LAeq per {h.interval_s:g} s",
-            )
-        ax.set_xlabel(axis_label("time", "s"))
-        ax.set_ylabel(axis_label("level", level_unit))
-        ax.set_title("Level history")
-        ax.set_xlim(float(start_time_s), float(end))
-        finite = np.concatenate([h.LAF[np.isfinite(h.LAF)], h.LAeq[np.isfinite(h.LAeq)]])
-        if finite.size:
-            top = float(finite.max())
-            ax.set_ylim(max(float(finite.min()), top - 60.0) - 2.0, top + 3.0)
-        legend_below(fig, min(4, 2 * len(channels)))
+            ax.set_xlim(float(start_time_s), float(end))
+            values = np.concatenate(shown)
+            finite = values[np.isfinite(values)]
+            if finite.size:
+                top = float(finite.max())
+                ax.set_ylim(max(float(finite.min()), top - 60.0) - 2.0, top + 3.0)
+            _legend(fig, ax, len(groups), len(shown))
         return png_bytes(fig)
 
 
@@ -218,53 +272,71 @@ def frontend_figure(fr: FrontendResponse) -> bytes:
         return png_bytes(fig)
 
 
-def _ref_text(reference: float, unit: str) -> str:
-    return format_quantity(reference, unit)
+def _references(chains: Sequence[Chain]) -> np.ndarray:
+    return np.array([c.reference for c in chains], dtype=float)
 
 
-def psd_figure(psd: PSDResult, channels: list[int], reference: float, unit: str) -> bytes:
-    """Welch PSD per channel, dB re reference²/Hz, on a logarithmic frequency axis.
+def psd_figure(psd: PSDResult, channels: list[int], chains: Sequence[Chain]) -> bytes:
+    """Welch PSD per channel, each in dB re its own reference squared per hertz, on a
+    logarithmic frequency axis; one panel per level unit when the channels' differ.
 
     Examples
     --------
     >>> from piezo.plots.style import capture_figures
     >>> from piezo.spectral.welch import WelchPSD
-    >>> psd = WelchPSD(8000, 1, segment_frames=1024)
-    >>> psd.update(np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000)[:, None])
+    >>> psd = WelchPSD(8000, 2, segment_frames=1024)
+    >>> psd.update(np.random.default_rng(1).standard_normal((8000, 2)))
     >>> with capture_figures() as figs:
-    ...     png = psd_figure(psd.result(), [0], 1.0, "V")
-    >>> png[:4], figs[0].axes[0].get_ylabel()
-    (b'\x89PNG', 'PSD / dB re (1 V)²/Hz')
+    ...     png = psd_figure(psd.result(), [0, 1], [Chain(), Chain()])
+    >>> png[:4], [ax.get_ylabel() for ax in figs[0].axes]
+    (b'\x89PNG', ['PSD / dB re (1 V)²/Hz'])
+
+    A microphone (Pa) and an accelerometer (m/s²) get a panel each:
+
+    >>> mic = Chain(sensitivity_v_per_unit=0.05)
+    >>> acc = Chain(sensitivity_v_per_unit=1e-3, quantity="acceleration")
+    >>> with capture_figures() as figs:
+    ...     _ = psd_figure(psd.result(), [0, 1], [mic, acc])
+    >>> [ax.get_ylabel() for ax in figs[0].axes]
+    ['PSD / dB re (20 µPa)²/Hz', 'PSD / dB re (1 µm/s²)²/Hz']
     """
     f = psd.frequency_hz[1:]
     with np.errstate(divide="ignore"):
-        level = 10.0 * np.log10(psd.psd[1:] / reference**2)
-    rows = math.ceil(len(channels) / 4)
+        level = 10.0 * np.log10(psd.psd[1:] / _references(chains) ** 2)
+    groups = _unit_groups([psd_level_unit(c.level_unit, psd.scaling) for c in chains])
+    rows = math.ceil(len(channels) / 4) if len(groups) == 1 else 0
     with plot_style():
-        fig, ax = figure(6.6, 3.0 + 0.2 * rows, legend_rows=rows)
-        for i, ch in enumerate(channels):
-            ax.semilogx(f, level[:, i], **{**trace(i), "linewidth": 1.0}, label=f"channel {ch}")
-        ax.set_xlabel(axis_label("frequency", "Hz"))
-        ax.set_ylabel(axis_label("PSD", f"dB re ({_ref_text(reference, unit)})²/Hz"))
-        ax.set_title(
-            f"Power spectral density ({psd.resolution_hz:.3g} Hz bins, {psd.averages} averages)"
-        )
-        ax.set_xlim(float(f[0]), float(f[-1]))
-        finite = level[np.isfinite(level)]
-        if finite.size:
-            top = float(finite.max())
-            ax.set_ylim(max(float(finite.min()), top - 100.0) - 3.0, top + 5.0)
-        legend_below(fig, min(4, len(channels)))
+        fig, axes = _axes_per_unit(groups, 3.0, rows)
+        for ax, (level_unit, members) in zip(axes, groups, strict=True):
+            for i in members:
+                ax.semilogx(
+                    f,
+                    level[:, i],
+                    **{**trace(i), "linewidth": 1.0},
+                    label=f"channel {channels[i]}",
+                )
+            ax.set_xlabel(axis_label("frequency", "Hz"))
+            ax.set_ylabel(axis_label("PSD", level_unit))
+            ax.set_title(
+                f"Power spectral density ({psd.resolution_hz:.3g} Hz bins, "
+                f"{psd.averages} averages)"
+            )
+            ax.set_xlim(float(f[0]), float(f[-1]))
+            finite = level[:, members][np.isfinite(level[:, members])]
+            if finite.size:
+                top = float(finite.max())
+                ax.set_ylim(max(float(finite.min()), top - 100.0) - 3.0, top + 5.0)
+            _legend(fig, ax, len(groups), len(members))
         return png_bytes(fig)
 
 
 _HATCHES = ("", "////", "....", "xxxx")
 
 
-def bands_figure(
-    bands: BandResult, channels: list[int], reference: float, level_unit: str
-) -> bytes:
-    """Band levels per channel as grouped bars (hatched per channel, for greyscale).
+def bands_figure(bands: BandResult, channels: list[int], chains: Sequence[Chain]) -> bytes:
+    """Band levels per channel as grouped bars (hatched per channel, for greyscale), each
+    channel in dB re its own reference; one panel per level unit when the channels'
+    differ.
 
     Examples
     --------
@@ -273,50 +345,58 @@ def bands_figure(
     >>> bank = BandAnalyzer(8000, 2, fraction=1, low_hz=250.0, high_hz=2000.0)
     >>> bank.update(np.random.default_rng(1).standard_normal((8000, 2)))
     >>> with capture_figures() as figs:
-    ...     _ = bands_figure(bank.result(), [0, 1], 1.0, "dB re 1 V")
+    ...     _ = bands_figure(bank.result(), [0, 1], [Chain(), Chain()])
     >>> ax = figs[0].axes[0]
     >>> len(ax.patches), ax.get_ylabel()  # 4 octaves (250 Hz to 2 kHz), 2 channels
     (8, 'band level / dB re 1 V')
+    >>> acc = Chain(sensitivity_v_per_unit=1e-3, quantity="acceleration")
+    >>> with capture_figures() as figs:
+    ...     _ = bands_figure(bank.result(), [0, 1], [Chain(), acc])
+    >>> [(len(ax.patches), ax.get_ylabel()) for ax in figs[0].axes]
+    [(4, 'band level / dB re 1 V'), (4, 'band level / dB re 1 µm/s²')]
     """
-    level = bands.level_db(reference)
+    level = bands.level_db(_references(chains))
     labels = [b.label for b in bands.bands]
     n = len(labels)
-    k = len(channels)
-    width = 0.8 / k
     x = np.arange(n)
-    finite = level[np.isfinite(level)]
-    floor = (float(finite.min()) - 5.0) if finite.size else 0.0
-    floor = max(floor, float(finite.max()) - 80.0) if finite.size else 0.0
-    rows = math.ceil(k / 4)
+    groups = _unit_groups([c.level_unit for c in chains])
+    rows = math.ceil(len(channels) / 4) if len(groups) == 1 else 0
     with plot_style():
-        fig, ax = figure(6.6, 3.2 + 0.2 * rows, legend_rows=rows)
-        for i, ch in enumerate(channels):
-            style = TRACES[i % len(TRACES)]
-            heights = np.where(np.isfinite(level[:, i]), level[:, i] - floor, 0.0)
-            ax.bar(
-                x + (i - (k - 1) / 2) * width,
-                heights,
-                width,
-                bottom=floor,
-                color=style.color,
-                edgecolor="white" if i == 0 else style.color,
-                hatch=_HATCHES[i % len(_HATCHES)],
-                fill=i == 0,
-                linewidth=0.6,
-                label=f"channel {ch}",
+        fig, axes = _axes_per_unit(groups, 3.2, rows)
+        for ax, (level_unit, members) in zip(axes, groups, strict=True):
+            k = len(members)
+            width = 0.8 / k
+            shown = level[:, members]
+            finite = shown[np.isfinite(shown)]
+            floor = (float(finite.min()) - 5.0) if finite.size else 0.0
+            floor = max(floor, float(finite.max()) - 80.0) if finite.size else 0.0
+            for j, i in enumerate(members):
+                style = TRACES[i % len(TRACES)]
+                heights = np.where(np.isfinite(level[:, i]), level[:, i] - floor, 0.0)
+                ax.bar(
+                    x + (j - (k - 1) / 2) * width,
+                    heights,
+                    width,
+                    bottom=floor,
+                    color=style.color,
+                    edgecolor="white" if i == 0 else style.color,
+                    hatch=_HATCHES[i % len(_HATCHES)],
+                    fill=i == 0,
+                    linewidth=0.6,
+                    label=f"channel {channels[i]}",
+                )
+            step = max(1, math.ceil(n / 16))
+            ax.set_xticks(x[::step], labels[::step], rotation=0)
+            ax.set_xlim(-0.6, n - 0.4)
+            ax.grid(axis="x", visible=False)
+            ax.set_xlabel(
+                axis_label(f"1/{bands.fraction}-octave band, nominal mid-band frequency", "Hz")
             )
-        step = max(1, math.ceil(n / 16))
-        ax.set_xticks(x[::step], labels[::step], rotation=0)
-        ax.set_xlim(-0.6, n - 0.4)
-        ax.grid(axis="x", visible=False)
-        ax.set_xlabel(
-            axis_label(f"1/{bands.fraction}-octave band, nominal mid-band frequency", "Hz")
-        )
-        ax.set_ylabel(axis_label("band level", level_unit))
-        ax.set_title("Band levels (Leq per band)")
-        if finite.size:
-            ax.set_ylim(floor, float(finite.max()) + 5.0)
-        legend_below(fig, min(4, k))
+            ax.set_ylabel(axis_label("band level", level_unit))
+            ax.set_title("Band levels (Leq per band)")
+            if finite.size:
+                ax.set_ylim(floor, float(finite.max()) + 5.0)
+            _legend(fig, ax, len(groups), k)
         return png_bytes(fig)
 
 
@@ -335,13 +415,13 @@ def spectrogram_figure(
     sg: SpectrogramResult,
     index: int,
     channel: int,
-    reference: float,
-    unit: str,
+    chain: Chain,
     *,
     start_time_s: float = 0.0,
 ) -> bytes:
     """Spectrogram of one channel: time against frequency (logarithmic), level in dB; the
-    time axis is the recording's, starting at ``start_time_s`` (the first sample's).
+    time axis is the recording's, starting at ``start_time_s`` (the first sample's);
+    levels in dB re the reference of the channel's ``chain`` squared per hertz.
 
     Examples
     --------
@@ -350,12 +430,12 @@ def spectrogram_figure(
     >>> sg = Spectrogram(8000, 1, segment_frames=256)
     >>> sg.update(np.sin(2 * np.pi * 1000 * np.arange(8000) / 8000)[:, None])
     >>> with capture_figures() as figs:
-    ...     _ = spectrogram_figure(sg.result(), 0, 0, 1.0, "V")
+    ...     _ = spectrogram_figure(sg.result(), 0, 0, Chain())
     >>> ax, bar = figs[0].axes  # the image and its colour bar
     >>> ax.get_title(loc="left"), ax.get_yscale(), bar.get_ylabel()
     ('Channel 0: spectrogram', 'log', 'PSD / dB re (1 V)²/Hz')
     """
-    level = sg.level_db(reference)[:, 1:, index]  # drop DC for the log axis
+    level = sg.level_db(chain.reference)[:, 1:, index]  # drop DC for the log axis
     f = sg.frequency_hz[1:]
     t = start_time_s + sg.time_s
 
@@ -380,7 +460,7 @@ def spectrogram_figure(
         ax.set_ylabel(axis_label("frequency", "Hz"))
         ax.set_title(f"Channel {channel}: spectrogram")
         bar = fig.colorbar(mesh, ax=ax, pad=0.015, fraction=0.05)
-        bar.set_label(axis_label("PSD", f"dB re ({_ref_text(reference, unit)})²/Hz"))
+        bar.set_label(axis_label("PSD", psd_level_unit(chain.level_unit, "density")))
         bar.outline.set_visible(False)
         fig.subplots_adjust(right=0.9)
         return png_bytes(fig)

@@ -12,6 +12,7 @@ from typing import Any
 
 from piezo.diagnostics.summary import diagnostics_document
 from piezo.io.atomic import atomic_output
+from piezo.levels.summary import VIBRATION_CAUTION
 from piezo.plots import figures as plots
 from piezo.report.document import (
     CAUTIONS,
@@ -53,17 +54,18 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
     >>> run = analyse(source, ReportSettings(band_fraction=1))
     >>> doc = report_document(run, json_name="tone.json")
     >>> doc["report"]["schema"], doc["report"]["json_name"]
-    ('piezo-report/1', 'tone.json')
+    ('piezo-report/2', 'tone.json')
     >>> doc["recording"]["name"], doc["chain"]["level_unit"]
     ('tone.wav', 'dB re 20 µPa')
+    >>> doc["levels"]["channels"][0]["unit"], doc["spectrum"]["level_unit"]
+    ('Pa', 'dB re (20 µPa)²/Hz')
     >>> round(doc["tone"]["channels"][0]["level_db"], 1)  # 1 Pa RMS
     94.0
     >>> folder.cleanup()
     """
     source = run.source
-    ref = source.reference
-    unit = source.unit
     channels = list(source.channel_indices)
+    chains = source.chains
     diagnostics = diagnostics_document(run.diagnostics)
     doc: dict[str, Any] = {
         "report": {
@@ -72,19 +74,22 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
             "software": software_versions(),
             "json_name": json_name,
         },
-        "cautions": list(CAUTIONS),
+        "cautions": [
+            *CAUTIONS,
+            *([VIBRATION_CAUTION] if any(c.measured.name != "pressure" for c in chains) else []),
+        ],
         "notes": list(run.notes),
         "recording": recording_section(source),
         "chain": chain_section(source),
         "settings": run.settings.as_dict(),
         "diagnostics": diagnostics,
-        "levels": (
-            levels_section(run.levels, source.chain.level_unit, unit) if run.levels else None
+        "levels": levels_section(run.levels) if run.levels else None,
+        "spectrum": psd_section(run.psd, channels, chains) if run.psd else None,
+        "bands": bands_section(run.bands, channels, chains) if run.bands else None,
+        "spectrogram": (
+            spectrogram_section(run.spectrogram, channels, chains) if run.spectrogram else None
         ),
-        "spectrum": psd_section(run.psd, ref, unit) if run.psd else None,
-        "bands": bands_section(run.bands, ref) if run.bands else None,
-        "spectrogram": spectrogram_section(run.spectrogram, ref) if run.spectrogram else None,
-        "tone": tone_section(run.tones, channels, ref),
+        "tone": tone_section(run.tones, channels, chains),
         "frontend": frontend_section(run.frontend) if run.frontend else None,
         "conformance": {
             "weighting": conformance_section(run.conformance),
@@ -140,28 +145,25 @@ def report_figures(run: RunResults) -> dict[str, bytes]:
     >>> folder.cleanup()
     """
     figures: dict[str, bytes] = {}
-    level_unit = run.source.chain.level_unit
+    source = run.source
     # Time axes are the recording's: they start at its first sample's time.
-    start_s = run.source.recording.start_time_s
+    start_s = source.recording.start_time_s
     for diag in run.diagnostics.channels:
-        png = plots.rolloff_figure(diag, level_unit)
+        png = plots.rolloff_figure(diag, source.chain_of(diag.channel).level_unit)
         if png is not None:
             figures[f"rolloff_{diag.channel}"] = png
-    if run.levels is not None and run.levels.history is not None:
-        figures["level_history"] = plots.level_history_figure(
-            run.levels, list(run.source.channel_indices), level_unit, start_time_s=start_s
-        )
-    channels = list(run.source.channel_indices)
-    ref = run.source.reference
-    unit = run.source.unit
+    channels = list(source.channel_indices)
+    chains = source.chains
+    if run.levels is not None and run.levels.result.history is not None:
+        figures["level_history"] = plots.level_history_figure(run.levels, start_time_s=start_s)
     if run.psd is not None:
-        figures["psd"] = plots.psd_figure(run.psd, channels, ref, unit)
+        figures["psd"] = plots.psd_figure(run.psd, channels, chains)
     if run.bands is not None:
-        figures["bands"] = plots.bands_figure(run.bands, channels, ref, level_unit)
+        figures["bands"] = plots.bands_figure(run.bands, channels, chains)
     if run.spectrogram is not None:
         for i, channel in enumerate(channels):
             figures[f"spectrogram_{channel}"] = plots.spectrogram_figure(
-                run.spectrogram, i, channel, ref, unit, start_time_s=start_s
+                run.spectrogram, i, channel, chains[i], start_time_s=start_s
             )
     if run.frontend is not None:
         figures["frontend"] = plots.frontend_figure(run.frontend)

@@ -8,20 +8,20 @@ from __future__ import annotations
 
 import math
 import platform
+from collections.abc import Sequence
 from importlib import metadata
 from typing import Any
 
 import numpy as np
 
 from piezo import __version__
-from piezo.chain.measurement import CalibratedSource
+from piezo.chain.measurement import CalibratedSource, Chain
 from piezo.chain.units import format_quantity, ratio_to_db
-from piezo.levels.meter import LevelResult
-from piezo.levels.summary import LEVEL_KEYS
+from piezo.levels.summary import LEVEL_KEYS, Levels
 from piezo.levels.weighting import ConformanceReport
 from piezo.results import reference_key
 from piezo.spectral.bands import BandResult
-from piezo.spectral.summary import confidence_document
+from piezo.spectral.summary import confidence_document, psd_level_unit
 from piezo.spectral.welch import PSDResult, SpectrogramResult
 from piezo.tone.analysis import ToneResult
 
@@ -31,6 +31,7 @@ __all__ = [
     "REPORT_SCHEMA",
     "bands_section",
     "chain_section",
+    "channel_units",
     "conformance_section",
     "frontend_section",
     "levels_section",
@@ -42,7 +43,7 @@ __all__ = [
 ]
 
 #: Identifier of the document layout (``docs/report.schema.json``).
-REPORT_SCHEMA = "piezo-report/1"
+REPORT_SCHEMA = "piezo-report/2"
 
 #: Stated in every report, on the page and in the JSON.
 CAUTIONS = (
@@ -116,8 +117,50 @@ def _origin(text: str) -> str:
     return f"profile {text}"
 
 
+def channel_units(source: CalibratedSource) -> list[dict[str, Any]]:
+    """What each analysed channel's values and levels are in: its quantity, unit, level
+    unit and level reference (ISO 1683; 1 V uncalibrated), by its own chain.
+
+    Examples
+    --------
+    >>> import piezo
+    >>> (ch,) = channel_units(piezo.open("recordings/calibrator-94dB.wav"))
+    >>> ch["channel"], ch["quantity"], ch["unit"], ch["level_unit"], ch["reference_text"]
+    (0, 'voltage', 'V', 'dB re 1 V', '1 V')
+    """
+    return _units(list(source.channel_indices), source.chains)
+
+
+def _units(channels: Sequence[int], chains: Sequence[Chain]) -> list[dict[str, Any]]:
+    return [
+        {
+            "channel": index,
+            "quantity": chain.measured.name,
+            "unit": chain.unit,
+            "level_unit": chain.level_unit,
+            reference_key(chain.unit): chain.reference,
+            "reference_text": format_quantity(chain.reference, chain.unit),
+        }
+        for index, chain in zip(channels, chains, strict=True)
+    ]
+
+
+def _relabel(units: list[dict[str, Any]], scaling: str) -> list[dict[str, Any]]:
+    """Channel units with the level unit of a density (``dB re (20 µPa)²/Hz``)."""
+    return [{**u, "level_unit": psd_level_unit(u["level_unit"], scaling)} for u in units]
+
+
+def _shared(values: list[str]) -> str:
+    """The one value all channels share, or ``"per channel"``."""
+    return values[0] if len(set(values)) == 1 else "per channel"
+
+
 def chain_section(source: CalibratedSource) -> dict[str, Any]:
-    """The measurement chain with the provenance of every value.
+    """The measurement chain of each channel with the provenance of every value.
+
+    ``unit`` and ``level_unit`` are those all channels share, or ``"per channel"``;
+    ``shared`` is True when every analysed channel has the same chain (one table on
+    the page).
 
     Examples
     --------
@@ -126,17 +169,56 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
 
     >>> import piezo
     >>> chain = chain_section(piezo.open("recordings/calibrator-94dB.wav"))
-    >>> chain["unit"], chain["level_unit"], chain["calibrated"], chain["gain"]
-    ('V', 'dB re 1 V', False, 10.0)
-    >>> [(row["quantity"], row["value"]) for row in chain["rows"]][1:]
+    >>> chain["unit"], chain["level_unit"], chain["calibrated"], chain["shared"]
+    ('V', 'dB re 1 V', False, True)
+    >>> (ch,) = chain["channels"]
+    >>> ch["gain"], [(row["quantity"], row["value"]) for row in ch["rows"]][1:]
     ... # doctest: +NORMALIZE_WHITESPACE
-    [('gain between sensor and ADC', '10 V/V (20.00 dB)'),
+    (10.0, [('gain between sensor and ADC', '10 V/V (20.00 dB)'),
      ('sensor sensitivity', 'none: results in volts'),
+     ('response curve', 'none (flat)'),
      ('level reference', 'dB re 1 V'),
-     ('raw sample to calibrated value', '× 0.2 V')]
+     ('raw sample to calibrated value', '× 0.2 V')])
+
+    The bundled bench of two accelerometers: one profile, a ``[channel.N]`` section
+    (sensitivity, and a chart for channel 0) for each:
+
+    >>> bench = chain_section(piezo.open("recordings/accel-bench.flac"))
+    >>> bench["unit"], bench["shared"], [ch["sensitivity"] for ch in bench["channels"]]
+    ('m/s²', False, ['1.035 mV/(m/s²) (10.15 mV/g)', '1.020 mV/(m/s²) (10.00 mV/g)'])
+    >>> bench["channels"][0]["provenance"]["response_curve"]
+    'recordings/accel-bench.toml [channel.0]'
     """
-    chain = source.chain
-    prov = source.provenance.as_dict() if source.provenance else {}
+    channels = [
+        _channel_chain(source, index, chain)
+        for index, chain in zip(source.channel_indices, source.chains, strict=True)
+    ]
+    profiles: dict[str, dict[str, Any]] = {}
+    for ch in channels:
+        for p in ch["profiles"]:
+            profiles.setdefault(p["path"], {k: p[k] for k in _PROFILE_KEYS})
+    return {
+        "unit": _shared([ch["unit"] for ch in channels]),
+        "level_unit": _shared([ch["level_unit"] for ch in channels]),
+        "calibrated": all(ch["calibrated"] for ch in channels),
+        "shared": len({_chain_key(ch) for ch in channels}) == 1,
+        "channels": channels,
+        "profiles": list(profiles.values()),
+    }
+
+
+_PROFILE_KEYS = ("path", "name", "serial", "calibration_date")
+
+
+def _chain_key(entry: dict[str, Any]) -> str:
+    """What makes two channels' chain tables the same (values and where they came from)."""
+    return repr((entry["rows"], [p["path"] for p in entry["profiles"]], entry["sensor"]))
+
+
+def _channel_chain(source: CalibratedSource, index: int, chain: Chain) -> dict[str, Any]:
+    """One channel's chain: its values, its table rows, its provenance and profiles."""
+    provenance = source.provenance_of(index)
+    prov = provenance.as_dict() if provenance else {}
     origin = {k: _origin(v) for k, v in prov.items()}
     rows = []
     if source.recording.is_pcm:
@@ -148,13 +230,7 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
             }
         )
     else:
-        rows.append(
-            {
-                "quantity": "values",
-                "value": "volts as exported (CSV)",
-                "source": "file",
-            }
-        )
+        rows.append({"quantity": "values", "value": "volts as exported (CSV)", "source": "file"})
     rows.append(
         {
             "quantity": "gain between sensor and ADC",
@@ -178,12 +254,25 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
     )
     rows.append(
         {
-            "quantity": "level reference",
-            "value": chain.level_unit,
-            "source": origin.get("reference_pa", "default") if chain.calibrated else "volts",
+            "quantity": "response curve",
+            "value": chain.response_curve_file or "none (flat)",
+            "source": origin.get("response_curve", "default")
+            if chain.response_curve_file
+            else "default",
         }
     )
-    scale = source.scale
+    rows.append(
+        {
+            "quantity": "level reference",
+            "value": chain.level_unit,
+            "source": origin.get("reference_pa", "default")
+            if chain.calibrated and chain.measured.name == "pressure"
+            else "ISO 1683"
+            if chain.calibrated
+            else "volts",
+        }
+    )
+    scale = chain.scale(is_pcm=source.recording.is_pcm)
     rows.append(
         {
             "quantity": "raw sample to calibrated value",
@@ -192,24 +281,32 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
         }
     )
     profiles = []
-    if source.provenance is not None:
-        for p in source.provenance.profiles:
-            profiles.append(
-                {
-                    "path": str(p.path),
-                    "name": p.name,
-                    "serial": p.serial,
-                    "calibration_date": p.calibration_date,
-                }
-            )
+    sensor: dict[str, Any] = {}
+    for p in provenance.profiles if provenance is not None else ():
+        own = p.channels.get(index)
+        entry = {
+            "path": str(p.path),
+            "name": p.name,
+            "serial": p.serial,
+            "calibration_date": p.calibration_date,
+        }
+        profiles.append(entry)
+        # The sensor of this channel: its [channel.N] section over the profile's [sensor].
+        for key in ("name", "serial", "calibration_date"):
+            value = (getattr(own, key) if own is not None else None) or entry[key]
+            if value is not None:
+                sensor[key] = value
+    (units,) = _units([index], [chain])
     return {
-        "unit": chain.unit,
-        "level_unit": chain.level_unit,
+        **units,
         "calibrated": chain.calibrated,
         "full_scale_v": chain.full_scale_v,
         "gain": chain.gain,
+        "sensitivity_v_per_unit": chain.sensitivity_v_per_unit,
+        "sensitivity": chain.sensitivity_text,
         "sensitivity_v_per_pa": sens,
-        "reference_pa": chain.reference_pa,
+        "response_curve": chain.response_curve_file,
+        "sensor": {k: sensor.get(k) for k in ("name", "serial", "calibration_date")},
         "provenance": prov,
         "rows": rows,
         "profiles": profiles,
@@ -247,8 +344,14 @@ def _columns(matrix: np.ndarray, digits: int = 2) -> list[list[float | None]]:
     return [_series(m[:, c], digits) for c in range(m.shape[1])]
 
 
-def levels_section(levels: LevelResult, level_unit: str, unit: str) -> dict[str, Any]:
-    """The level set per channel and the level history (levels in dB re the reference).
+def levels_section(levels: Levels) -> dict[str, Any]:
+    """The level set per channel and the level history, each channel in dB re its own
+    reference (the levels of ``piezo levels``, :func:`piezo.levels.summary.levels_of`).
+
+    ``level_unit`` (and the reference key) are those the channels share, else
+    ``level_unit`` is ``"per channel"`` and each channel states its own. A- and
+    C-weighted levels of channels that do not measure sound pressure are null, with a
+    note (IEC 61672-1 defines the weightings for sound pressure).
 
     Examples
     --------
@@ -256,46 +359,75 @@ def levels_section(levels: LevelResult, level_unit: str, unit: str) -> dict[str,
     weighting, since A and C are 0 dB at 1 kHz (IEC 61672-1:2013, Table 3), and the peak
     is 3 dB above (crest factor √2):
 
+    >>> import tempfile
     >>> import numpy as np
-    >>> from piezo.levels.meter import LevelMeter
+    >>> import soundfile as sf
+    >>> import piezo
+    >>> from piezo.levels.summary import levels_of
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = f"{folder.name}/tone.wav"
     >>> t = np.arange(24000) / 48000.0
-    >>> meter = LevelMeter(48000.0, 1)
-    >>> meter.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
-    >>> section = levels_section(meter.result(), "dB re 20 µPa", "Pa")
+    >>> sf.write(path, 0.05 * np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t), 48000,
+    ...          subtype="FLOAT")
+    >>> section = levels_section(levels_of(piezo.open(path, sensitivity="50 mV/Pa")))
     >>> ch = section["channels"][0]
     >>> round(ch["LZeq"], 1), round(ch["LAeq"], 1), round(ch["LCeq"], 1), round(ch["LZpeak"], 1)
     (94.0, 94.0, 94.0, 97.0)
-    >>> section["names"][:3]
-    ['LZeq', 'LAeq', 'LCeq']
+    >>> section["level_unit"], section["reference_pa"], section["names"][:3]
+    ('dB re 20 µPa', 2e-05, ['LZeq', 'LAeq', 'LCeq'])
+
+    The same file read as an accelerometer's (10 mV/g): 1 Pa's 50 mV RMS is 5 g,
+    20 lg(5 · 9.80665 m/s² / 1 µm/s²) = 153.8 dB re 1 µm/s² (ISO 1683), without A and
+    C levels:
+
+    >>> acc = levels_section(levels_of(piezo.open(path, sensitivity="10 mV/g")))
+    >>> ch = acc["channels"][0]
+    >>> ch["level_unit"], round(ch["LZeq"], 1), ch["LAeq"], ch["notes"][-1][:32]
+    ('dB re 1 µm/s²', 153.8, None, 'A and C weightings apply to soun')
+    >>> folder.cleanup()
     """
+    result = levels.result
+    doc = levels.to_dict()
     channels = []
-    for ch in levels.channels:
-        entry: dict[str, Any] = {"channel": ch.channel}
-        entry.update({name: finite(getattr(ch, name)) for name in LEVEL_NAMES})
-        entry["crest_factor_db"] = finite(ch.crest_factor_db)
-        entry["notes"] = list(ch.notes)
-        channels.append(entry)
+    for entry in doc["channels"]:
+        out: dict[str, Any] = {
+            k: entry[k]
+            for k in ("channel", "quantity", "unit", "level_unit", reference_key(entry["unit"]))
+        }
+        out.update({name: finite(entry[name]) for name in LEVEL_NAMES})
+        out["crest_factor_db"] = finite(entry["crest_factor_db"])
+        out["notes"] = list(entry["notes"])
+        channels.append(out)
     history = None
-    h = levels.history
+    h = result.history
     if h is not None:
+        weighted = levels.weighted or (True,) * len(channels)
+
+        def weighted_only(matrix: np.ndarray) -> list[list[float | None] | None]:
+            cols: list[list[float | None] | None] = list(_columns(matrix))
+            return [c if w else None for c, w in zip(cols, weighted, strict=True)]
+
         history = {
             "interval_s": h.interval_s,
             "interval_start_s": _series(h.interval_start_s, 6),
             "interval_duration_s": _series(h.interval_duration_s, 6),
-            "LAeq": _columns(h.LAeq),
-            "LCeq": _columns(h.LCeq),
+            "LAeq": weighted_only(h.LAeq),
+            "LCeq": weighted_only(h.LCeq),
             "LZeq": _columns(h.LZeq),
             "trace_interval_s": h.trace_interval_s,
             "trace_time_s": _series(h.trace_time_s, 6),
-            "LAF": _columns(h.LAF),
-            "LAS": _columns(h.LAS),
+            "LAF": weighted_only(h.LAF),
+            "LAS": weighted_only(h.LAS),
         }
+    key = reference_key(doc["unit"])
+    shared = {key: doc[key]} if doc["unit"] != "per channel" and key in doc else {}
     return {
-        reference_key(unit): levels.reference,
-        "level_unit": level_unit,
+        **shared,
+        "level_unit": doc["level_unit"],
         "names": list(LEVEL_NAMES),
-        "percentile_interval_s": levels.percentile_interval_s,
-        "excluded_s": dict(levels.excluded_s),
+        "percentile_interval_s": result.percentile_interval_s,
+        "excluded_s": dict(result.excluded_s),
+        "response_curve_notes": list(levels.response_curve_notes),
         "channels": channels,
         "history": history,
     }
@@ -395,13 +527,20 @@ def frontend_section(fr: Any) -> dict[str, Any]:
     }
 
 
-def _db(mean_square: np.ndarray, reference: float) -> np.ndarray:
+def _db(mean_square: np.ndarray, reference: float | np.ndarray) -> np.ndarray:
+    """Mean squares in dB re ``reference`` (one per channel, along the last axis)."""
     with np.errstate(divide="ignore"):
         return 10.0 * np.log10(np.asarray(mean_square, dtype=float) / reference**2)
 
 
-def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
-    """The Welch PSD per channel, in dB re reference²/Hz.
+def psd_section(
+    psd: PSDResult, channels: Sequence[int], chains: Sequence[Chain]
+) -> dict[str, Any]:
+    """The Welch PSD per channel, each in dB re its own reference squared per hertz.
+
+    ``channels`` are the recording's channel numbers of the PSD's columns, ``chains``
+    their chains; ``reference_text`` and ``level_unit`` are those the channels share, or
+    ``"per channel"`` (see ``channels``).
 
     Examples
     --------
@@ -409,14 +548,18 @@ def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
     9 averages:
 
     >>> import numpy as np
+    >>> from piezo.chain.measurement import Chain
     >>> from piezo.spectral.welch import WelchPSD
     >>> t = np.arange(24000) / 48000.0
     >>> welch = WelchPSD(48000.0, 1, segment_frames=4800)
     >>> welch.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
-    >>> psd = psd_section(welch.result(), 20e-6, "Pa")
+    >>> psd = psd_section(welch.result(), [0], [Chain(sensitivity_v_per_unit=1.0)])
     >>> psd["window"], psd["resolution_hz"], psd["averages"], psd["reference_text"]
     ('hann', 10.0, 9, '20 µPa')
+    >>> psd["level_unit"], psd["channels"][0]["unit"]
+    ('dB re (20 µPa)²/Hz', 'Pa')
     """
+    units = _relabel(_units(channels, chains), psd.scaling)
     return {
         "window": psd.window,
         "segment_frames": psd.segment_frames,
@@ -426,56 +569,78 @@ def psd_section(psd: PSDResult, reference: float, unit: str) -> dict[str, Any]:
         "averages": psd.averages,
         "degrees_of_freedom": psd.degrees_of_freedom,
         "confidence": confidence_document(psd),
-        "reference_text": format_quantity(reference, unit),
+        "reference_text": _shared([u["reference_text"] for u in units]),
+        "level_unit": _shared([u["level_unit"] for u in units]),
+        "channels": units,
         "frequency_hz": _series(psd.frequency_hz, 4),
-        "level_db": _columns(_db(psd.psd, reference)),
+        "level_db": _columns(_db(psd.psd, _references(chains))),
     }
 
 
-def bands_section(bands: BandResult, reference: float) -> dict[str, Any]:
-    """Band levels per channel (Leq per band, dB re the reference).
+def _references(chains: Sequence[Chain]) -> np.ndarray:
+    """Each channel's level reference, in its unit (broadcasts over a result's columns)."""
+    return np.array([c.reference for c in chains], dtype=float)
+
+
+def bands_section(
+    bands: BandResult, channels: Sequence[int], chains: Sequence[Chain]
+) -> dict[str, Any]:
+    """Band levels per channel (Leq per band, dB re each channel's own reference).
 
     Examples
     --------
     A 1 Pa RMS tone at 1 kHz lands in the 1 kHz octave band at 94 dB re 20 µPa:
 
     >>> import numpy as np
+    >>> from piezo.chain.measurement import Chain
     >>> from piezo.spectral.bands import BandAnalyzer
     >>> t = np.arange(24000) / 48000.0
     >>> bank = BandAnalyzer(48000.0, 1, fraction=1)
     >>> bank.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
-    >>> bands = bands_section(bank.result(), 20e-6)
+    >>> bands = bands_section(bank.result(), [0], [Chain(sensitivity_v_per_unit=1.0)])
     >>> bands["labels"]
     ['31.5', '63', '125', '250', '500', '1k', '2k', '4k', '8k', '16k']
     >>> round(bands["level_db"][0][bands["labels"].index("1k")], 1)
     94.0
+    >>> bands["level_unit"]
+    'dB re 20 µPa'
     """
+    units = _units(channels, chains)
     return {
         "fraction": bands.fraction,
         "labels": [b.label for b in bands.bands],
         "nominal_hz": [float(b.nominal_hz) for b in bands.bands],
         "exact_hz": [float(b.exact_hz) for b in bands.bands],
-        "level_db": _columns(bands.level_db(reference)),
+        "level_unit": _shared([u["level_unit"] for u in units]),
+        "channels": units,
+        "level_db": _columns(bands.level_db(_references(chains))),
     }
 
 
-def spectrogram_section(sg: SpectrogramResult, reference: float) -> dict[str, Any]:
-    """Spectrogram per channel: ``level_db[channel][column][bin]``, dB re reference²/Hz.
+def spectrogram_section(
+    sg: SpectrogramResult, channels: Sequence[int], chains: Sequence[Chain]
+) -> dict[str, Any]:
+    """Spectrogram per channel: ``level_db[channel][column][bin]``, each channel in dB re
+    its own reference squared per hertz.
 
     Examples
     --------
     >>> import numpy as np
+    >>> from piezo.chain.measurement import Chain
     >>> from piezo.spectral.welch import Spectrogram
     >>> t = np.arange(24000) / 48000.0
     >>> sg = Spectrogram(48000.0, 1, segment_frames=1024, max_columns=8)
     >>> sg.update(np.sin(2 * np.pi * 1000.0 * t)[:, None])
-    >>> section = spectrogram_section(sg.result(), 20e-6)
+    >>> section = spectrogram_section(sg.result(), [0], [Chain()])  # volts
     >>> section["segment_frames"], section["resolution_hz"]  # 48000 / 1024
     (1024, 46.875)
     >>> len(section["level_db"]), len(section["level_db"][0]) == len(section["time_s"])
     (1, True)
+    >>> section["level_unit"]
+    'dB re (1 V)²/Hz'
     """
-    level = sg.level_db(reference)  # (columns, bins, channels)
+    units = _relabel(_units(channels, chains), "density")
+    level = _db(sg.power, _references(chains))  # (columns, bins, channels)
     return {
         "window": sg.window,
         "segment_frames": int(2 * (sg.frequency_hz.size - 1)),
@@ -483,6 +648,8 @@ def spectrogram_section(sg: SpectrogramResult, reference: float) -> dict[str, An
         "time_s": _series(sg.time_s, 4),
         "frequency_hz": _series(sg.frequency_hz, 3),
         "segments_per_column": [int(v) for v in sg.segments_per_column],
+        "level_unit": _shared([u["level_unit"] for u in units]),
+        "channels": units,
         "level_db": [
             [_series(level[j, :, c], 1) for j in range(level.shape[0])]
             for c in range(level.shape[2])
@@ -491,37 +658,41 @@ def spectrogram_section(sg: SpectrogramResult, reference: float) -> dict[str, An
 
 
 def tone_section(
-    tones: tuple[ToneResult | str, ...], channels: list[int], reference: float
+    tones: tuple[ToneResult | str, ...], channels: Sequence[int], chains: Sequence[Chain]
 ) -> dict[str, Any] | None:
-    """Tone metrics of the channels holding a test tone (None when none does).
+    """Tone metrics of the channels holding a test tone (None when none does), each
+    channel's level and RMS in its own unit and level reference.
 
     Examples
     --------
     One channel with a 1 kHz tone of 1 Pa RMS (94 dB re 20 µPa), one without:
 
     >>> import numpy as np
+    >>> from piezo.chain.measurement import Chain
     >>> from piezo.tone.analysis import ToneAnalyzer
     >>> t = np.arange(24000) / 48000.0
     >>> analyzer = ToneAnalyzer(48000.0, 1, resolution_hz=10.0)
     >>> analyzer.update((np.sqrt(2.0) * np.sin(2 * np.pi * 1000.0 * t))[:, None])
     >>> (tone,) = analyzer.result()
-    >>> section = tone_section((tone, "no test tone"), [0, 1], 20e-6)
+    >>> pa = Chain(sensitivity_v_per_unit=1.0)
+    >>> section = tone_section((tone, "no test tone"), [0, 1], [pa, pa])
     >>> first, second = section["channels"]
-    >>> round(first["frequency_hz"], 3), round(first["level_db"], 2)
-    (1000.0, 93.98)
+    >>> round(first["frequency_hz"], 3), round(first["level_db"], 2), first["level_unit"]
+    (1000.0, 93.98, 'dB re 20 µPa')
     >>> second
     {'channel': 1, 'present': False, 'reason': 'no test tone'}
-    >>> tone_section(("no test tone",), [0], 20e-6) is None
+    >>> tone_section(("no test tone",), [0], [pa]) is None
     True
     """
     out = []
-    for ch, tone in zip(channels, tones, strict=True):
+    for units, chain, tone in zip(_units(channels, chains), chains, tones, strict=True):
         if isinstance(tone, str):
-            out.append({"channel": ch, "present": False, "reason": tone})
+            out.append({"channel": units["channel"], "present": False, "reason": tone})
             continue
+        reference = chain.reference
         out.append(
             {
-                "channel": ch,
+                **units,
                 "present": True,
                 "reason": "",
                 "frequency_hz": finite(tone.frequency_hz),

@@ -27,7 +27,7 @@ from piezo.frontend.model import (
     phase_deg,
     summarise_response,
 )
-from piezo.levels.meter import LevelMeter, LevelResult
+from piezo.levels.summary import Levels, levels_of
 from piezo.levels.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
 from piezo.spectral.averaging import DEFAULT_SEGMENT_FRAMES
 from piezo.spectral.bands import BandAnalyzer, BandResult
@@ -197,7 +197,7 @@ class RunResults:
     settings: ReportSettings
     generated_utc: str
     diagnostics: CaptureDiagnostics
-    levels: LevelResult | None
+    levels: Levels | None
     psd: PSDResult | None
     bands: BandResult | None
     spectrogram: SpectrogramResult | None
@@ -245,7 +245,7 @@ def analyse(
     >>> (tone,) = run.tones
     >>> round(tone.frequency_hz, 2), round(tone.level_db(20e-6), 1)
     (1000.0, 94.0)
-    >>> round(run.levels.channels[0].LAeq, 1)
+    >>> round(run.levels.channel(0)["LAeq"], 1)
     94.0
 
     Settings left open are chosen from the recording (the PSD segment: the largest power
@@ -280,25 +280,23 @@ def analyse(
         fs, channels, segment_frames=sg_segment, max_columns=settings.spectrogram_columns
     )
     tones = [ToneAnalyzer(fs, 1, resolution_hz=tone_resolution) for _ in range(channels)]
-    analyses: list[Any] = [checker, psd, bands, sgram]
-    meter = None
+    analyses: list[Any] = [checker, psd, bands, sgram, _EachChannel(tones)]
+    levels = None
     if fs >= MIN_SAMPLE_RATE_HZ:
-        meter = LevelMeter(
-            fs, channels, reference=source.reference, interval_s=settings.level_interval_s
+        # piezo levels' own computation (each channel in its own unit and level
+        # reference, A and C weightings where they apply), reading the blocks that feed
+        # every other analysis: the file is read once.
+        levels = levels_of(
+            _SharedPass.of_source(source, analyses, settings.block_frames),
+            interval_s=settings.level_interval_s,
+            advance=advance,
         )
-        analyses.append(meter)
     else:
         notes.append(
             f"levels and the weighting self-test need at least {MIN_SAMPLE_RATE_HZ:g} Hz "
             f"(IEC 61672-1 filters); this recording has {fs:g} Hz"
         )
-    for block in source.blocks(settings.block_frames):
-        for analysis in analyses:
-            analysis.update(block)
-        for c, tone in enumerate(tones):
-            tone.update(block[:, c : c + 1])
-        if advance is not None:
-            advance(block.shape[0])
+        source.feed(*analyses, advance=advance, block_frames=settings.block_frames)
     design = None
     if settings.frontend_design is not None:
         design = frontend_response(settings.frontend_design, top_hz=fs / 2.0)
@@ -312,7 +310,7 @@ def analyse(
         settings=settings,
         generated_utc=now.isoformat().replace("+00:00", "Z"),
         diagnostics=checker.result(),
-        levels=meter.result() if meter is not None else None,
+        levels=levels,
         psd=psd.result() if frames >= psd_segment else None,
         bands=band_result if band_result.bands else None,
         spectrogram=sgram.result() if frames >= sg_segment else None,
@@ -324,6 +322,41 @@ def analyse(
         else None,
         notes=tuple(notes),
     )
+
+
+class _EachChannel:
+    """Feeds one single-channel analysis per channel its column of each block."""
+
+    def __init__(self, analyses: list[ToneAnalyzer]) -> None:
+        self.analyses = analyses
+
+    def update(self, block: np.ndarray) -> None:
+        for c, analysis in enumerate(self.analyses):
+            analysis.update(block[:, c : c + 1])
+
+
+@dataclass(frozen=True)
+class _SharedPass(CalibratedSource):
+    """The report's source: whatever reads it through :meth:`feed` (``levels_of``)
+    also feeds the report's other analyses, in blocks of ``block_frames``."""
+
+    also: tuple[Any, ...] = ()
+    block_frames: int = 65536
+
+    @classmethod
+    def of_source(
+        cls, source: CalibratedSource, also: list[Any], block_frames: int
+    ) -> _SharedPass:
+        values = {f.name: getattr(source, f.name) for f in fields(CalibratedSource)}
+        return cls(**values, also=tuple(also), block_frames=block_frames)
+
+    def feed(
+        self,
+        *analyses: Any,
+        advance: Callable[[int], object] | None = None,
+        block_frames: int = 65536,
+    ) -> None:
+        super().feed(*analyses, *self.also, advance=advance, block_frames=self.block_frames)
 
 
 def _tone(analyzer: ToneAnalyzer, min_share: float) -> ToneResult | str:

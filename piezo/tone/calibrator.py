@@ -1,8 +1,12 @@
-"""Sensitivity from a sound calibrator capture.
+"""Sensitivity from a calibrator capture, for every measured quantity.
 
-A sound calibrator (IEC 60942) applies a known sound pressure level, usually 94 or
-114 dB re 20 µPa at 1 kHz, to the sensor. The band-limited RMS voltage of the tone, divided
-by the calibrator's RMS pressure, is the sensitivity in V/Pa.
+A calibrator applies a known RMS amount of the sensor's quantity at one frequency: a
+sound calibrator (IEC 60942) usually 94 or 114 dB re 20 µPa at 1 kHz; a hand-held
+vibration calibrator usually 10 m/s² RMS (or 1 g) at 159.2 Hz, where ω = 1000 rad/s, so
+that velocity and displacement follow from acceleration by powers of 1000 (common
+practice of the trade, no standard fixes it); force and hydrophone calibrators exist too.
+The band-limited RMS voltage of the tone, divided by the calibrator's RMS amount, is the
+sensitivity in V per SI unit of the quantity (V/Pa, V/(m/s²), V/N ...).
 
 Method (streamed, one pass):
 
@@ -22,15 +26,16 @@ Method (streamed, one pass):
    tone.
 
 Uncertainty (:func:`calibration_budget`): a GUM budget (JCGM 100:2008) of the
-sensitivity level in dB with three components: the calibrator's level (the class 1
-tolerance of IEC 60942:2017, ±0.25 dB at 160 Hz to 1.25 kHz, taken as a rectangular
-distribution, or the expanded uncertainty of its calibration certificate), the
+sensitivity level in dB with three components: the calibrator's level (by default the
+class 1 tolerance of a sound calibrator, IEC 60942:2017, ±0.25 dB at 160 Hz to 1.25 kHz,
+taken as a rectangular distribution; a vibration or force calibrator's stated tolerance;
+or the expanded uncertainty of its calibration certificate), the
 repeatability of the segment levels (Type A, s/√n with n − 1 degrees of freedom, GUM
 4.2.3) and the noise and distortion inside the tone's band (at most the whole residual,
 which adds ``10·lg(1 + 10^(residual/10))`` dB of power; rectangular). The chain's own
 gain and ADC scale, and the calibrator's corrections for static pressure and for the
 sensor's load volume, are not in it: they belong to the chain and to the calibrator's
-instructions.
+instructions (for a vibration calibrator: its loading by the sensor's mass).
 """
 
 from __future__ import annotations
@@ -42,6 +47,7 @@ import numpy as np
 from scipy import signal
 
 from piezo.chain.measurement import REFERENCE_AIR_PA
+from piezo.chain.quantity import QUANTITIES, Sensitivity, format_sensitivity, quantity_named
 from piezo.chain.units import ratio_to_db
 from piezo.errors import InputError
 from piezo.response.uncertainty import Budget, Component
@@ -50,11 +56,13 @@ from piezo.spectral.averaging import AutoSpectra
 from piezo.tone.line import spectral_line
 
 __all__ = [
+    "CALIBRATOR_FREQUENCY_HZ",
     "CLASS1_LEVEL_TOLERANCE_DB",
     "CalibrationResult",
     "ToneCalibrator",
     "calibrate_tone",
     "calibration_budget",
+    "calibrator_frequency_hz",
     "calibrator_pressure_pa",
 ]
 
@@ -62,6 +70,17 @@ __all__ = [
 #: 1.25 kHz): the half-width of the rectangular distribution assumed when no calibration
 #: certificate is given.
 CLASS1_LEVEL_TOLERANCE_DB = 0.25
+
+#: Usual nominal frequency of a calibrator, by quantity: 1 kHz for sound calibrators
+#: (IEC 60942:2017 calibrators work at 250 Hz or 1 kHz), 159.2 Hz (ω = 1000 rad/s) for
+#: hand-held vibration calibrators (common practice of the trade). Other quantities have
+#: no usual frequency: it must be given.
+CALIBRATOR_FREQUENCY_HZ = {
+    "pressure": 1000.0,
+    "acceleration": 1000.0 / (2.0 * math.pi),
+    "velocity": 1000.0 / (2.0 * math.pi),
+    "displacement": 1000.0 / (2.0 * math.pi),
+}
 
 #: Segment length for the stability check, seconds (common practice, no source).
 SEGMENT_S = 0.5
@@ -83,6 +102,29 @@ INFRASOUND_HZ = 20.0
 MIN_DURATION_S = SETTLE_S + 2 * SEGMENT_S
 
 
+def calibrator_frequency_hz(quantity: str, *, what: str = "expected_hz") -> float:
+    """The usual nominal frequency of a calibrator of ``quantity``
+    (:data:`CALIBRATOR_FREQUENCY_HZ`); refused, naming ``what``, for the others.
+
+    Examples
+    --------
+    >>> calibrator_frequency_hz("pressure"), round(calibrator_frequency_hz("acceleration"), 2)
+    (1000.0, 159.15)
+    >>> calibrator_frequency_hz("force", what="--frequency")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --frequency: force calibrators have no usual frequency; give the \
+calibrator's nominal frequency, e.g. 159.2 Hz
+    """
+    found = CALIBRATOR_FREQUENCY_HZ.get(quantity)
+    if found is None:
+        raise InputError(
+            f"{what}: {quantity} calibrators have no usual frequency; give the calibrator's "
+            "nominal frequency, e.g. 159.2 Hz"
+        )
+    return found
+
+
 def calibrator_pressure_pa(level_db: float, reference_pa: float = REFERENCE_AIR_PA) -> float:
     """RMS pressure of a calibrator level: ``p = p0 * 10^(L/20)`` (ISO 1683 reference).
 
@@ -102,8 +144,9 @@ class CalibrationResult:
 
     Attributes
     ----------
-    sensitivity_v_per_pa
-        Band-limited tone RMS voltage over the calibrator's RMS pressure.
+    sensitivity_v_per_unit
+        Band-limited tone RMS voltage over the calibrator's RMS amount of ``quantity``,
+        V per its SI unit (V/Pa, V/(m/s²), V/N ...).
     tone_hz
         Tone frequency found.
     tone_rms_v
@@ -116,12 +159,17 @@ class CalibrationResult:
         Relative spread of the segment frequencies.
     segments
         Number of segments measured.
-    level_db, reference_pa
-        The calibrator level assumed and its reference.
+    level_db, reference
+        The calibrator level assumed and its reference, in the quantity's SI unit.
     stable
         True when the tone met the stability limits.
     segment_level_std_db
         Sample standard deviation of the segment levels (n − 1 in the denominator).
+    quantity
+        What the calibrator applies (``"pressure"``, ``"acceleration"`` ...).
+    charge_gain_v_per_c
+        The charge amplifier's gain (V/C) of a charge-output sensor, when known: the
+        sensitivity is then also a charge sensitivity (C per unit, ``"4 pC/N"``).
 
     Examples
     --------
@@ -136,7 +184,7 @@ class CalibrationResult:
     (-26.02, 3, True)
     """
 
-    sensitivity_v_per_pa: float
+    sensitivity_v_per_unit: float
     tone_hz: float
     tone_rms_v: float
     residual_db: float
@@ -144,19 +192,55 @@ class CalibrationResult:
     frequency_spread: float
     segments: int
     level_db: float
-    reference_pa: float
+    reference: float
     stable: bool
     segment_level_std_db: float = math.nan
+    quantity: str = "pressure"
+    charge_gain_v_per_c: float | None = None
 
     @property
-    def sensitivity_mv_per_pa(self) -> float:
-        """Sensitivity in mV/Pa."""
-        return 1e3 * self.sensitivity_v_per_pa
+    def calibrator_rms(self) -> float:
+        """The calibrator's RMS amount, in the quantity's SI unit."""
+        return self.reference * 10.0 ** (self.level_db / 20.0)
 
     @property
-    def sensitivity_dbv_per_pa(self) -> float:
-        """Sensitivity in dB re 1 V/Pa."""
-        return ratio_to_db(self.sensitivity_v_per_pa)
+    def charge_sensitivity_c_per_unit(self) -> float | None:
+        """The charge sensitivity (C per SI unit) with a charge amplifier's gain, else None."""
+        gain = self.charge_gain_v_per_c
+        return None if gain is None else self.sensitivity_v_per_unit / gain
+
+    @property
+    def sensitivity(self) -> Sensitivity:
+        """The measured sensitivity, with its quantity: a charge sensitivity with a charge
+        amplifier's gain, else a voltage sensitivity."""
+        q = QUANTITIES[self.quantity]
+        charge = self.charge_sensitivity_c_per_unit
+        if charge is not None:
+            return Sensitivity(charge, "C", q)
+        return Sensitivity(self.sensitivity_v_per_unit, "V", q)
+
+    @property
+    def sensitivity_text(self) -> str:
+        """The sensitivity in its trade form (``"8.500 mV/Pa"``, ``"1.020 mV/(m/s²) ..."``,
+        ``"4.000 pC/N"``)."""
+        return format_sensitivity(self.sensitivity)
+
+    @property
+    def sensitivity_v_per_pa(self) -> float | None:
+        """Sensitivity in V/Pa of a sound-pressure calibration, else None."""
+        return self.sensitivity_v_per_unit if self.quantity == "pressure" else None
+
+    @property
+    def sensitivity_mv_per_pa(self) -> float | None:
+        """Sensitivity in mV/Pa of a sound-pressure calibration, else None."""
+        s = self.sensitivity_v_per_pa
+        return None if s is None else 1e3 * s
+
+    @property
+    def sensitivity_dbv_per_pa(self) -> float | None:
+        """Sensitivity in dB re 1 V/Pa of a sound-pressure calibration, else None."""
+        s = self.sensitivity_v_per_pa
+        return None if s is None else ratio_to_db(s)
 
 
 class ToneCalibrator:
@@ -169,9 +253,13 @@ class ToneCalibrator:
     expected_hz
         Nominal calibrator frequency (1 kHz for most calibrators).
     level_db
-        Calibrator sound pressure level, dB re ``reference_pa``.
-    reference_pa
-        Reference pressure (ISO 1683: 20 µPa in air).
+        Calibrator level, dB re ``reference``.
+    reference
+        Reference of the level in the quantity's SI unit; by default the quantity's
+        ISO 1683 reference (20 µPa for sound pressure in air, 1 µm/s², 1 µN ...).
+    quantity
+        What the calibrator applies: ``"pressure"`` (a sound calibrator),
+        ``"acceleration"`` (a vibration calibrator), ``"force"`` ...
 
     Examples
     --------
@@ -186,6 +274,15 @@ class ToneCalibrator:
     >>> result = calibrator.result()
     >>> round(result.sensitivity_mv_per_pa, 1), round(result.residual_db), result.stable
     (50.0, -40, True)
+
+    A vibration calibrator, 10 m/s² RMS (140 dB re 1 µm/s²) at 159.2 Hz, on a 10 mV/g
+    accelerometer (g = 9.80665 m/s²) gives 10.197 mV RMS:
+
+    >>> volts = 0.010 / 9.80665 * 10 * np.sqrt(2) * np.sin(1000 * t)
+    >>> vib = ToneCalibrator(48000, expected_hz=159.2, level_db=140.0, quantity="acceleration")
+    >>> vib.update(volts)
+    >>> vib.result().sensitivity_text
+    '1.020 mV/(m/s²) (10.00 mV/g)'
     """
 
     def __init__(
@@ -194,7 +291,8 @@ class ToneCalibrator:
         *,
         expected_hz: float = 1000.0,
         level_db: float = 94.0,
-        reference_pa: float = REFERENCE_AIR_PA,
+        reference: float | None = None,
+        quantity: str = "pressure",
     ) -> None:
         if not sample_rate_hz > 0:
             raise InputError(f"sample_rate_hz must be positive, got {sample_rate_hz!r}")
@@ -204,10 +302,17 @@ class ToneCalibrator:
                 f"calibrator frequency {expected_hz:g} Hz is out of range for a sample rate "
                 f"of {sample_rate_hz:g} Hz"
             )
+        q = quantity_named(quantity)
+        if not q.mechanical:
+            raise InputError(
+                f"quantity: a channel that measures {q.name} has no sensitivity to calibrate; "
+                "give the sensor's quantity (pressure, acceleration, force ...)"
+            )
         self.fs = float(sample_rate_hz)
         self.expected_hz = float(expected_hz)
         self.level_db = float(level_db)
-        self.reference_pa = float(reference_pa)
+        self.quantity = q.name
+        self.reference = float(q.reference if reference is None else reference)
         self._head: list[np.ndarray] = []
         self._head_frames = 0
         self._head_needed = int(round(self.fs * 1.0))
@@ -366,8 +471,7 @@ class ToneCalibrator:
             tone_hz = float(self.tone_hz_coarse or math.nan)
         tone_rms = math.sqrt(band_ms)
         return CalibrationResult(
-            sensitivity_v_per_pa=tone_rms
-            / calibrator_pressure_pa(self.level_db, self.reference_pa),
+            sensitivity_v_per_unit=tone_rms / (self.reference * 10.0 ** (self.level_db / 20.0)),
             tone_hz=tone_hz,
             tone_rms_v=tone_rms,
             residual_db=10 * math.log10(residual_ms / band_ms),
@@ -375,9 +479,10 @@ class ToneCalibrator:
             frequency_spread=freq_spread,
             segments=len(self._seg_band),
             level_db=self.level_db,
-            reference_pa=self.reference_pa,
+            reference=self.reference,
             stable=level_spread <= STABILITY_DB and freq_spread <= FREQUENCY_STABILITY,
             segment_level_std_db=float(np.std(seg_db, ddof=1)),
+            quantity=self.quantity,
         )
 
 
@@ -387,7 +492,8 @@ def calibrate_tone(
     *,
     expected_hz: float = 1000.0,
     level_db: float = 94.0,
-    reference_pa: float = REFERENCE_AIR_PA,
+    reference: float | None = None,
+    quantity: str = "pressure",
 ) -> CalibrationResult:
     """Whole-array form of :class:`ToneCalibrator` (``x`` in volts, one channel).
 
@@ -402,7 +508,11 @@ def calibrate_tone(
     (250.0, 199.5)
     """
     cal = ToneCalibrator(
-        sample_rate_hz, expected_hz=expected_hz, level_db=level_db, reference_pa=reference_pa
+        sample_rate_hz,
+        expected_hz=expected_hz,
+        level_db=level_db,
+        reference=reference,
+        quantity=quantity,
     )
     cal.update(x)
     return cal.result()

@@ -11,10 +11,11 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
+from piezo.chain.quantity import QUANTITIES, quantity_named
 from piezo.errors import InputError
 from piezo.response.uncertainty import Budget
 from piezo.results import reference_key, to_jsonable
@@ -31,8 +32,9 @@ from piezo.tone.calibrator import (
     CalibrationResult,
     ToneCalibrator,
     calibration_budget,
-    calibrator_pressure_pa,
+    calibrator_frequency_hz,
 )
+from piezo.validate import physical_value
 
 __all__ = ["RESOLUTION_HZ", "Calibration", "Tone", "calibration_of", "tone_of"]
 
@@ -268,18 +270,17 @@ def tone_of(
 
 @dataclass(frozen=True)
 class Calibration:
-    """A sensor's sensitivity measured on a sound calibrator (``piezo calibrate``).
+    """A sensor's sensitivity measured on a calibrator (``piezo calibrate``).
 
     Attributes
     ----------
     file, channel
         The capture and its channel.
-    calibrator_level_db
-        The calibrator's level, dB re ``reference_pa``.
-    reference_pa, gain, full_scale_v
+    gain, full_scale_v
         The chain the capture was taken through (its sensitivity, if any, is ignored).
     result
-        The calibrator measurement (tone, RMS volts, sensitivity, stability).
+        The calibrator measurement (quantity, level, tone, RMS volts, sensitivity,
+        stability).
     budget
         GUM uncertainty budget of the sensitivity level, dB
         (:func:`~piezo.tone.calibrator.calibration_budget`).
@@ -297,69 +298,109 @@ class Calibration:
 
     file: str
     channel: int
-    calibrator_level_db: float
-    reference_pa: float
     gain: float
     full_scale_v: float
     result: CalibrationResult
     budget: Budget
 
+    @property
+    def calibrator_level_db(self) -> float:
+        """The calibrator's level, dB re :attr:`reference`."""
+        return self.result.level_db
+
+    @property
+    def reference(self) -> float:
+        """The level's reference, in the quantity's SI unit (ISO 1683; 20 µPa in air)."""
+        return self.result.reference
+
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo calibrate --json`` document (without ``profile_written``)."""
         r = self.result
-        doc = {
+        q = QUANTITIES[r.quantity]
+        pressure = r.quantity == "pressure"
+        level_unit = f"dB re {r.reference / 1e-6:g} µPa" if pressure else q.level_label()
+        doc: dict[str, Any] = {
             "file": self.file,
             "channel": self.channel,
-            "sensitivity_mv_per_pa": r.sensitivity_mv_per_pa,
-            "sensitivity_dbv_per_pa": r.sensitivity_dbv_per_pa,
-            "tone_hz": r.tone_hz,
-            "residual_db": r.residual_db,
-            "tone_rms_v": r.tone_rms_v,
-            "calibrator_level_db": self.calibrator_level_db,
-            "calibrator_pressure_pa": calibrator_pressure_pa(
-                self.calibrator_level_db, self.reference_pa
-            ),
-            "level_spread_db": r.level_spread_db,
-            "frequency_spread_percent": 100 * r.frequency_spread,
-            "stable": r.stable,
+            "quantity": r.quantity,
+            "unit": q.unit,
+            "level_unit": level_unit,
+            "sensitivity_v_per_unit": r.sensitivity_v_per_unit,
+            "sensitivity": r.sensitivity_text,
+        }
+        if r.charge_gain_v_per_c is not None:
+            doc["charge_sensitivity_c_per_unit"] = r.charge_sensitivity_c_per_unit
+        if pressure:
+            doc["sensitivity_mv_per_pa"] = r.sensitivity_mv_per_pa
+            doc["sensitivity_dbv_per_pa"] = r.sensitivity_dbv_per_pa
+        doc.update(
+            tone_hz=r.tone_hz,
+            residual_db=r.residual_db,
+            tone_rms_v=r.tone_rms_v,
+            calibrator_level_db=r.level_db,
+            calibrator_rms=r.calibrator_rms,
+        )
+        if pressure:
+            doc["calibrator_pressure_pa"] = r.calibrator_rms
+        doc.update(
+            level_spread_db=r.level_spread_db,
+            frequency_spread_percent=100 * r.frequency_spread,
+            stable=r.stable,
             # The chain under the same key and names as in ``info`` and ``check``.
-            "chain": {
+            chain={
                 "full_scale_v": self.full_scale_v,
                 "gain": self.gain,
-                "reference_pa": self.reference_pa,
+                reference_key(q.unit): r.reference,
+                **(
+                    {}
+                    if r.charge_gain_v_per_c is None
+                    else {"charge_gain_v_per_c": r.charge_gain_v_per_c}
+                ),
             },
-            "uncertainty": {
+            uncertainty={
                 "expanded_uncertainty_db": self.budget.expanded_uncertainty,
                 "coverage_factor": self.budget.coverage_factor,
                 "budget": self.budget.to_dict(),
             },
-        }
+        )
         return to_jsonable(doc)
 
 
 def calibration_of(
     source: CalibratedSource,
     *,
-    level_db: float = 94.0,
-    expected_hz: float = 1000.0,
+    level_db: float | None = None,
+    expected_hz: float | None = None,
+    quantity: str | None = None,
     calibrator_tolerance_db: float = CLASS1_LEVEL_TOLERANCE_DB,
     calibrator_expanded_db: float | None = None,
+    charge_gain_v_per_c: float | None = None,
     advance: Callable[[int], object] | None = None,
 ) -> Calibration:
     """Sensitivity of the sensor on one channel of ``source`` from a calibrator tone.
 
     The capture is read in volts at the sensor
     (:meth:`~piezo.chain.measurement.CalibratedSource.volts_at_sensor`); the tone's
-    band-limited RMS voltage over the calibrator's RMS pressure is the sensitivity
-    (:class:`~piezo.tone.calibrator.ToneCalibrator`). ``result.stable`` says whether the
-    tone's level and frequency held still; the caller decides whether to accept it.
-    ``calibrator_tolerance_db`` (class 1 of IEC 60942:2017 by default) or a
-    certificate's ``calibrator_expanded_db`` (k = 2) enter the uncertainty budget.
+    band-limited RMS voltage over the calibrator's RMS amount is the sensitivity
+    (:class:`~piezo.tone.calibrator.ToneCalibrator`), in V per SI unit of the quantity.
+    ``quantity`` is what the calibrator applies, by default the channel's (its profile's
+    or ``quantity=`` of :func:`piezo.open`); ``level_db`` is re that quantity's level
+    reference (the chain's reference pressure for sound pressure, else ISO 1683), 94 dB
+    by default for a sound calibrator, required for the others;
+    ``expected_hz`` defaults to the quantity's usual calibrator frequency
+    (:func:`~piezo.tone.calibrator.calibrator_frequency_hz`). ``result.stable`` says
+    whether the tone's level and frequency held still; the caller decides whether to
+    accept it. ``calibrator_tolerance_db`` (class 1 of IEC 60942:2017 by default) or a
+    certificate's ``calibrator_expanded_db`` (k = 2) enter the uncertainty budget. With
+    ``charge_gain_v_per_c`` (the charge amplifier of a charge-output sensor) the result
+    is a charge sensitivity too (``"4.000 pC/N"``).
 
     Raises
     ------
     InputError
-        More than one channel, or no calibrator tone.
+        More than one channel, a quantity other than sound pressure without
+        ``level_db``, or without a usual calibrator frequency and no ``expected_hz``,
+        or no calibrator tone.
 
     Examples
     --------
@@ -373,30 +414,46 @@ def calibration_of(
     >>> cal = calibration_of(piezo.open(path), level_db=94.0)
     >>> round(cal.result.sensitivity_mv_per_pa, 2), cal.result.stable
     (10.0, True)
+    >>> # The same volts from a 1 g RMS vibration calibrator (139.83 dB re 1 µm/s²):
+    >>> sf.write(path, 0.010024 * np.sqrt(2) * np.sin(1000 * t), 48000, subtype="FLOAT")
+    >>> acc = calibration_of(piezo.open(path, quantity="acceleration"), level_db=139.83)
+    >>> acc.to_dict()["sensitivity"], round(acc.result.tone_hz, 1)
+    ('1.022 mV/(m/s²) (10.02 mV/g)', 159.2)
     """
     file = str(source.recording.path)
     if len(source.channel_indices) != 1:
         raise InputError(
             f"{source.recording.channels} channels: choose the calibrated one", source=file
         )
-    cal = ToneCalibrator(
-        source.sample_rate_hz,
-        expected_hz=expected_hz,
-        level_db=level_db,
-        reference_pa=source.chain.reference_pa,
-    )
+    chain = source.chain_of(source.channel_indices[0])
+    name = chain.quantity if quantity is None else quantity
     try:
+        if charge_gain_v_per_c is not None:
+            physical_value(charge_gain_v_per_c, what="charge_gain_v_per_c", unit="V/C")
+        q = quantity_named(name)
+        if level_db is None:
+            if q.name != "pressure":
+                raise InputError(f"level_db: give the level of the {q.name} calibrator")
+            level_db = 94.0
+        if expected_hz is None:
+            expected_hz = calibrator_frequency_hz(q.name)
+        reference = chain.reference_pa if q.name == "pressure" else q.reference
+        cal = ToneCalibrator(
+            source.sample_rate_hz,
+            expected_hz=expected_hz,
+            level_db=level_db,
+            reference=reference,
+            quantity=q.name,
+        )
         source.volts_at_sensor().feed(cal, advance=advance)
-        result = cal.result()
+        result = replace(cal.result(), charge_gain_v_per_c=charge_gain_v_per_c)
     except InputError as exc:
         raise exc.with_source(file) from None
     return Calibration(
         file=file,
         channel=source.channel_indices[0],
-        calibrator_level_db=level_db,
-        reference_pa=source.chain.reference_pa,
-        gain=source.chain.gain,
-        full_scale_v=source.chain.full_scale_v,
+        gain=chain.gain,
+        full_scale_v=chain.full_scale_v,
         result=result,
         budget=calibration_budget(
             result,

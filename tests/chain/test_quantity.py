@@ -12,7 +12,9 @@ from piezo.chain.quantity import (
     QUANTITIES,
     STANDARD_GRAVITY_M_PER_S2,
     Sensitivity,
+    compact_sensitivity,
     format_sensitivity,
+    parse_level_of,
     parse_sensitivity_of,
     quantity_named,
 )
@@ -115,3 +117,64 @@ def test_format_then_parse_round_trips(value, key):
     back = parse_sensitivity_of(text)
     assert back.quantity == s.quantity and back.electrical == s.electrical
     assert math.isclose(back.value, s.value, rel_tol=5e-6)
+
+
+# --- calibrator levels ------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("text", "value", "quantity"),
+    [
+        # ISO 1683:2015 references: 140 dB re 1 µm/s² is 10 m/s², 114 dB re 20 µPa is
+        # 10.024 Pa, 140 dB re 1 µN is 10 N (arithmetic on the references).
+        ("140 dB re 1 µm/s²", 10.0, "acceleration"),
+        ("140 dB re 1 um/s^2", 10.0, "acceleration"),
+        ("114 dB re 20 µPa", 20e-6 * 10 ** (114 / 20), "pressure"),
+        ("140 dB re 1 uN", 10.0, "force"),
+        ("120 dB re 1 nm/s", 1e-3, "velocity"),
+        ("10 m/s²", 10.0, "acceleration"),
+        ("10 m/s² RMS", 10.0, "acceleration"),
+        ("1 g", STANDARD_GRAVITY_M_PER_S2, "acceleration"),  # exact (CGPM 1901)
+        ("1 Pa", 1.0, "pressure"),
+        ("10 N", 10.0, "force"),
+        ("10 mm/s", 1e-2, "velocity"),
+        ("10 µm", 1e-5, "displacement"),
+    ],
+)
+def test_levels_and_amounts_name_their_quantity(text, value, quantity):
+    rms, named = parse_level_of(text)
+    assert rms == pytest.approx(value, rel=1e-12)
+    assert named is not None and named.name == quantity
+
+
+@given(level=st.floats(min_value=-50, max_value=250), reference=st.floats(1e-12, 1.0))
+def test_a_bare_level_is_re_the_callers_reference(level, reference):
+    # Property: L dB re r is r·10^(L/20) (IEC 60027-3, field quantity), in both spellings.
+    for text in (f"{level!r}", f"{level!r} dB", level):
+        rms, named = parse_level_of(text, reference=reference)
+        assert named is None
+        assert rms == pytest.approx(reference * 10 ** (level / 20), rel=1e-12)
+
+
+@pytest.mark.parametrize("text", ["94 dB", "94"])
+def test_a_bare_level_needs_a_reference(text):
+    with pytest.raises(UnitError, match="names no reference"):
+        parse_level_of(text, what="--level")
+
+
+@pytest.mark.parametrize("text", ["10 V", "10 furlong", "-1 g", "0 N", "94 dB re 1 V", "loud"])
+def test_refused_levels_name_the_option(text):
+    with pytest.raises(UnitError, match=r"^--level: "):
+        parse_level_of(text, reference=1e-6, what="--level")
+
+
+@given(
+    value=st.floats(min_value=1e-6, max_value=1e6, allow_nan=False),
+    name=st.sampled_from(["pressure", "acceleration", "velocity", "displacement", "force"]),
+)
+def test_compact_sensitivity_reads_back_within_its_digits(value, name):
+    # Property: 5 significant digits read back within half a unit of the last: 5e-5.
+    s = Sensitivity(value * 1e-3, "V", QUANTITIES[name])
+    back = parse_sensitivity_of(compact_sensitivity(s))
+    assert back.quantity == s.quantity
+    assert math.isclose(back.value, s.value, rel_tol=5e-5)

@@ -609,3 +609,131 @@ def test_file_level_metadata_warning_does_not_make_an_ok_channel_warn():
     assert ch.verdict is Severity.OK
     assert result.verdict is Severity.WARN
     assert result.as_dict()["channels"][0]["verdict"] == "ok"
+
+
+# --------------------------------------------------------------------------- per channel
+
+
+def test_clipping_is_judged_at_each_channels_own_full_scale():
+    # The same calibrated samples on two channels: a 997 Hz sine of amplitude 150 limited
+    # at ±100 (units of the samples). Behind a full scale of 100 that is the converter's
+    # extreme (digital clipping, 0 dBFS); behind a full scale of 1000 an analog stage
+    # saturating at 20 lg(100/1000) = -20 dBFS. The clipped share is the same:
+    # 1 - (2/π) asin(100/150) of the samples (inverse of the sine).
+    x = np.clip(sine(997.0, 150.0, 1.0), -100.0, 100.0)
+    diag = check_capture(np.column_stack([x, x]), FS, full_scale=[100.0, 1000.0])
+    digital, analog = diag.channels
+    assert {lv.kind for lv in digital.clipping.levels} == {"digital"}
+    assert {lv.kind for lv in analog.clipping.levels} == {"analog"}
+    assert [lv.level_dbfs for lv in digital.clipping.levels] == pytest.approx([0.0, 0.0])
+    assert [lv.level_dbfs for lv in analog.clipping.levels] == pytest.approx([-20.0, -20.0])
+    expected = (1 - 2 / np.pi * np.arcsin(100 / 150)) * x.size
+    for ch in diag.channels:
+        # ±1 % as in test_sine_clipped_at_0p8_is_analog_clipping_with_the_right_count.
+        assert ch.clipping.clipped_samples == pytest.approx(expected, rel=0.01)
+    # Headroom re each channel's own full scale: 0 dB and 20 dB.
+    assert digital.headroom.headroom_db == pytest.approx(0.0, abs=1e-9)
+    assert analog.headroom.headroom_db == pytest.approx(20.0, abs=1e-9)
+    assert (digital.full_scale, analog.full_scale) == (100.0, 1000.0)
+    assert diag.full_scale is None  # not shared
+
+
+def test_levels_of_each_channel_are_re_its_own_reference():
+    # One 1 kHz sine of amplitude 1 (RMS 1/√2) read as pascals and as m/s²: its levels
+    # are 20 lg(0.7071 / 20 µPa) = 90.97 dB and 20 lg(0.7071 / 1 µm/s²) = 116.99 dB
+    # (ISO 1683 references; the level by definition). 1 kHz at 48 kHz: every 0.1 s
+    # interval holds whole periods, RMS exactly 1/√2; the histogram reads at the centre
+    # of a 0.05 dB bin (±0.025 dB).
+    x = sine(1000.0, 1.0, 1.0)
+    diag = check_capture(
+        np.column_stack([x, x]),
+        FS,
+        full_scale=None,
+        unit=["Pa", "m/s²"],
+        reference=[20e-6, 1e-6],
+    )
+    mic, accel = diag.channels
+    rms = 1 / math.sqrt(2)
+    assert mic.noise.noise_floor_db == pytest.approx(20 * math.log10(rms / 20e-6), abs=0.026)
+    assert accel.noise.noise_floor_db == pytest.approx(20 * math.log10(rms / 1e-6), abs=0.026)
+    assert (mic.level_unit, accel.level_unit) == ("dB re 20 µPa", "dB re 1 µm/s²")
+    # The PSD floors differ by exactly the references' ratio squared (same samples).
+    assert mic.noise.psd_floor_db is not None and accel.noise.psd_floor_db is not None
+    ratio_db = 20 * math.log10(20e-6 / 1e-6)
+    assert accel.noise.psd_floor_db - mic.noise.psd_floor_db == pytest.approx(ratio_db)
+    # A weighting only where it applies (IEC 61672-1: sound pressure), by default from
+    # the unit; and on request off for a pressure channel too.
+    assert mic.noise.noise_floor_a_db is not None and accel.noise.noise_floor_a_db is None
+    off = check_capture(x, FS, unit="Pa", reference=20e-6, weightable=False)
+    assert off.channels[0].noise.noise_floor_a_db is None
+    doc = diag.as_dict()
+    assert doc["unit"] is None and doc["reference"] is None
+    assert doc["channels"][0]["reference_pa"] == 20e-6
+    assert doc["channels"][1]["reference_m_per_s2"] == 1e-6
+    assert "dB re 1 µm/s²" in accel.check("noise").evidence
+
+
+def test_dc_offset_in_volts_through_each_channels_own_factor():
+    # A DC of 2 units on both channels: 2 × 10 mV/unit = 20 mV and 2 × 1 mV/unit = 2 mV at
+    # the sensor; no factor (an integrated channel) gives None.
+    x = sine(1000.0, 1.0, 1.0) + 2.0
+    diag = check_capture(
+        np.column_stack([x, x, x]), FS, full_scale=None, volts_per_unit=[0.01, 0.001, None]
+    )
+    volts = [ch.dc.dc_offset_v for ch in diag.channels]
+    assert volts[:2] == pytest.approx([0.02, 0.002], rel=1e-12)
+    assert volts[2] is None
+    assert diag.as_dict()["channels"][2]["dc_offset_v"] is None
+
+
+def test_per_channel_options_are_validated():
+    x = np.zeros((100, 2))
+    with pytest.raises(InputError, match=r"full_scale: needs one value or one per channel \(2\)"):
+        check_capture(x, FS, full_scale=[1.0])
+    with pytest.raises(InputError, match="reference must be positive and finite, got -1"):
+        check_capture(x, FS, reference=[1.0, -1.0])
+    with pytest.raises(InputError, match=r"volts_per_unit \(or None\) must be positive"):
+        check_capture(x, FS, volts_per_unit=[0.0, None])
+    with pytest.raises(InputError, match="unit: needs one value or one per channel"):
+        check_capture(x, FS, unit=["Pa", "V", "N"])
+
+
+def test_missing_sensitivity_names_the_channels_without_one():
+    x = np.column_stack([sine(997.0, 0.5, 1.0)] * 2)
+    meta = CaptureMetadata(sensitivity_known=False, uncalibrated_channels=(1,))
+    (check,) = check_capture(x, FS, metadata=meta).metadata_checks
+    assert check.severity is Severity.WARN
+    assert check.evidence.startswith("no sensor sensitivity given for channel 1: its levels")
+    everyone = CaptureMetadata(sensitivity_known=False, uncalibrated_channels=(0, 1))
+    (check,) = check_capture(x, FS, metadata=everyone).metadata_checks
+    assert check.evidence.startswith("no sensor sensitivity given: the levels are in volts")
+
+
+def test_a_channel_scaled_with_its_full_scale_and_reference_reads_the_same():
+    # Invariance: multiplying a channel's samples, its full scale and its level reference
+    # by one factor changes no dB figure, no count and no severity (every dB value is a
+    # ratio to the full scale or to the reference). Each channel gets its own factor
+    # (channel 0 holds the clips, channel 1 the hum); powers of two, so the scaled
+    # samples are exact in binary and the figures agree to rounding.
+    k = np.array([0.125, 256.0])
+    x = _FEATURES * k
+    options = dict(full_scale=list(k), reference=list(k), unit=["Pa", "m/s²"])
+    scaled = check_capture(x, 2000.0, thresholds=_STREAM_TH, **options).as_dict()
+    for a, b in zip(_WHOLE["channels"], scaled["channels"], strict=True):
+        assert [c["severity"] for c in a["checks"]] == [c["severity"] for c in b["checks"]]
+        for key in ("headroom_db", "peak_dbfs", "crest_factor_db", "noise_floor_db"):
+            assert b[key] == pytest.approx(a[key], rel=1e-12, abs=1e-12), key
+        assert b["clipping"]["clipped_samples"] == a["clipping"]["clipped_samples"]
+        dbfs = [lv["level_dbfs"] for lv in b["clipping"]["levels"]]
+        assert dbfs == pytest.approx([lv["level_dbfs"] for lv in a["clipping"]["levels"]])
+        assert b["hum"]["status"] == a["hum"]["status"]
+        assert b["noise"]["psd_floor_db"] == pytest.approx(a["noise"]["psd_floor_db"])
+        assert b["hum"]["re_total_db"] == pytest.approx(a["hum"]["re_total_db"])
+    assert scaled["channels"][1]["hum"]["level_db"] == pytest.approx(
+        _WHOLE["channels"][1]["hum"]["level_db"]
+    )
+    # Streamed in uneven blocks with per-channel options: the same as the whole array.
+    checker = CaptureChecker(2000.0, 2, thresholds=_STREAM_TH, **options)
+    for block in np.array_split(x, 7):
+        checker.update(block)
+    _assert_same(scaled, checker.result().as_dict())

@@ -56,19 +56,18 @@ def _report_cases(run):
     from piezo.plots import figures
 
     ch = run.source.channel_indices
-    ref, unit, lu = run.source.reference, run.source.unit, run.source.chain.level_unit
+    chains = run.source.chains
+    lu = chains[0].level_unit
     return {
         ("figures", "rolloff_figure"): lambda: figures.rolloff_figure(
             run.diagnostics.channels[0], lu
         ),
-        ("figures", "level_history_figure"): lambda: figures.level_history_figure(
-            run.levels, list(ch), lu
-        ),
+        ("figures", "level_history_figure"): lambda: figures.level_history_figure(run.levels),
         ("figures", "frontend_figure"): lambda: figures.frontend_figure(run.frontend),
-        ("figures", "psd_figure"): lambda: figures.psd_figure(run.psd, list(ch), ref, unit),
-        ("figures", "bands_figure"): lambda: figures.bands_figure(run.bands, list(ch), ref, lu),
+        ("figures", "psd_figure"): lambda: figures.psd_figure(run.psd, list(ch), chains),
+        ("figures", "bands_figure"): lambda: figures.bands_figure(run.bands, list(ch), chains),
         ("figures", "spectrogram_figure"): lambda: figures.spectrogram_figure(
-            run.spectrogram, 0, ch[0], ref, unit
+            run.spectrogram, 0, ch[0], chains[0]
         ),
     }
 

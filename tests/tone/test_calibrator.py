@@ -172,3 +172,36 @@ def test_expanded_uncertainty_covers_the_truth_at_about_95_percent(rng):
         b = calibration_budget(r, calibrator_expanded_db=u_cert)
         hits += abs(20 * math.log10(r.sensitivity_v_per_pa / true)) <= b.expanded_uncertainty
     assert 180 <= hits <= 200
+
+
+# --- vibration calibrators ------------------------------------------------------------------
+
+G = 9.80665  # standard acceleration of gravity, exact (3rd CGPM 1901; ISO 80000-3:2019)
+
+
+@pytest.mark.parametrize("f0", [159.2, 1000 / (2 * math.pi)])  # nominal, and ω = 1000 rad/s
+def test_vibration_calibrator_gives_the_accelerometer_sensitivity(f0):
+    # 10 m/s² RMS (a hand-held vibration calibrator, common practice) through a 10 mV/g
+    # accelerometer: 10 · 0.010 / 9.80665 = 10.197 mV RMS at the sensor.
+    t = np.arange(3 * FS) / FS
+    volts = 10.0 * 0.010 / G * np.sqrt(2) * np.sin(2 * np.pi * f0 * t)
+    # 140 dB re 1 µm/s² (ISO 1683:2015) is 10 m/s².
+    r = calibrate_tone(volts, FS, expected_hz=159.2, level_db=140.0, quantity="acceleration")
+    assert r.calibrator_rms == pytest.approx(10.0, rel=1e-12)
+    # Tolerance from the estimator: the mean square of a sine over T seconds that hold no
+    # whole number of cycles departs from 1/2 by at most 1/(ωT) relative, so the RMS by
+    # 1/(2ωT); T is what the segments measured (settling excluded). Noise-free float
+    # volts add nothing else (the band-pass gain at the tone is divided out).
+    measured_s = r.segments * 0.5
+    tol = 1 / (2 * 2 * np.pi * f0 * measured_s)
+    assert r.sensitivity_v_per_unit * G * 1e3 == pytest.approx(10.0, rel=tol)  # mV/g
+    assert r.tone_hz == pytest.approx(f0, rel=1e-5)
+    assert r.quantity == "acceleration" and r.sensitivity_v_per_pa is None
+    # The trade forms of an accelerometer: per m/s², and per g beside it.
+    assert r.sensitivity_text.startswith("1.020 mV/(m/s²) (") and "mV/g)" in r.sensitivity_text
+
+
+def test_voltage_and_charge_channels_have_no_sensitivity_to_calibrate():
+    for quantity in ("voltage", "charge"):
+        with pytest.raises(InputError, match=f"measures {quantity} has no sensitivity"):
+            ToneCalibrator(FS, quantity=quantity)
