@@ -46,6 +46,7 @@ from piezo.chain.quantity import (
 )
 from piezo.chain.units import (
     parse_charge_gain,
+    parse_frequency_range,
     parse_gain,
     parse_quantity,
     parse_sensitivity,
@@ -111,6 +112,9 @@ class Chain:
     integrations
         0, 1 or 2: the values are integrated that many times after calibration
         (acceleration to velocity to displacement, :mod:`piezo.chain.integrate`).
+    frequency_range_hz
+        The sensor's usable frequency range (low, high) as its data sheet states it
+        (profile key ``frequency_range``), or None.
 
     Examples
     --------
@@ -129,6 +133,7 @@ class Chain:
     response_curve: ResponseCurve | None = field(default=None, compare=False, repr=False)
     response_curve_file: str | None = None
     integrations: int = 0
+    frequency_range_hz: tuple[float, float] | None = None
 
     def __post_init__(self) -> None:
         for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_unit"):
@@ -139,6 +144,8 @@ class Chain:
             quantity_named(self.quantity)
         except UnitError as exc:
             raise InputError(exc.message) from None
+        if self.frequency_range_hz is not None:
+            parse_frequency_range(list(self.frequency_range_hz), what="frequency_range_hz")
         if self.quantity == "voltage" and self.sensitivity_v_per_unit is not None:
             raise InputError(
                 "a channel that measures voltage takes no sensitivity (its values are volts)"
@@ -279,6 +286,7 @@ class SensorProfile:
     sample_rate_hz: float | None = None
     charge_gain_v_per_c: float | None = None
     response_curve: Path | None = None
+    frequency_range_hz: tuple[float, float] | None = None
     channels: Mapping[int, SensorProfile] = field(default_factory=dict, repr=False)
     raw: Mapping[str, Any] = field(default_factory=dict, repr=False)
 
@@ -302,6 +310,7 @@ _SENSOR_KEYS = {
     "charge_sensitivity",
     "quantity",
     "response_curve",
+    "frequency_range",
 }
 
 _PROFILE_KEYS = {
@@ -523,6 +532,14 @@ def _sensor_part(
                 source=str(path),
             )
         curve = path.parent / text  # relative to the profile; absolute paths stay
+    frequency_range = None
+    if "frequency_range" in sensor:
+        try:
+            frequency_range = parse_frequency_range(
+                sensor["frequency_range"], what=f"{section}.frequency_range"
+            )
+        except UnitError as exc:
+            raise fail(exc) from None
     date = sensor.get("calibration_date")
     if isinstance(date, _dt.date | _dt.datetime):
         date = date.isoformat()
@@ -536,6 +553,7 @@ def _sensor_part(
         capacitance_f=capacitance,
         calibration_date=_text(date),
         response_curve=curve,
+        frequency_range_hz=frequency_range,
     )
 
 
@@ -965,6 +983,7 @@ channel measures force
     origin = dict.fromkeys(values, "default")
     sens_quantity: str | None = None
     charge_gain: float | None = None
+    frequency_range: tuple[float, float] | None = None
     for prof in profiles:
         for key, attr in (
             ("full_scale_v", "full_scale_v"),
@@ -991,6 +1010,7 @@ channel measures force
             if layer.response_curve is not None:
                 values["response_curve"] = layer.response_curve
                 origin["response_curve"] = where
+            frequency_range = layer.frequency_range_hz or frequency_range
 
     try:
         if settings.quantity is not None:
@@ -1062,6 +1082,7 @@ channel measures force
         quantity=quantity,
         response_curve=curve,
         response_curve_file=None if curve_path is None else str(curve_path),
+        frequency_range_hz=frequency_range,
     )
     return chain, Provenance(**origin, profiles=tuple(profiles), channel=channel)
 

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 
 from piezo.errors import UnitError
 
@@ -24,6 +24,7 @@ __all__ = [
     "parse_charge_gain",
     "parse_duration",
     "parse_frequency_list",
+    "parse_frequency_range",
     "parse_gain",
     "parse_quantity",
     "parse_sensitivity",
@@ -429,6 +430,55 @@ def parse_frequency_list(text: str, *, what: str = "frequencies") -> list[float]
     if not parts:
         raise UnitError(f"{what}: expected a comma-separated list of frequencies")
     return [parse_quantity(p, "Hz", what=what) for p in parts]
+
+
+#: Separators of a frequency range's two ends: "..", "–" (en dash), ":" or "to".
+_RANGE_SPLIT_RE = re.compile(r"\s*(?:\.\.|–|:)\s*|\s+to\s+")
+
+
+def parse_frequency_range(
+    text: str | Sequence[str | float], *, what: str = "frequency range"
+) -> tuple[float, float]:
+    """A frequency range (low, high) in hertz, as data sheets state one.
+
+    Text ``"LOW .. HIGH"`` (or ``LOW to HIGH``, ``LOW – HIGH``, ``LOW:HIGH``), each end a
+    frequency as :func:`parse_frequency` reads it, or a pair ``[LOW, HIGH]`` of such
+    texts or numbers in hertz. The low end may be 0 (or ``"DC"``); the high end must lie
+    above it.
+
+    Examples
+    --------
+    >>> parse_frequency_range("0.5 Hz .. 10 kHz"), parse_frequency_range("20Hz:20kHz")
+    ((0.5, 10000.0), (20.0, 20000.0))
+    >>> parse_frequency_range(["DC", "4 kHz"]), parse_frequency_range([1, 8000])
+    ((0.0, 4000.0), (1.0, 8000.0))
+    >>> parse_frequency_range("10 kHz .. 1 Hz", what="range")
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: range: the low end must lie below the high end, got '10 kHz .. 1 Hz'
+    """
+    if isinstance(text, str):
+        parts: list[str | float] = [p for p in _RANGE_SPLIT_RE.split(text.strip()) if p]
+    elif isinstance(text, list | tuple):
+        parts = list(text)
+    else:
+        parts = []
+    if len(parts) != 2:
+        raise UnitError(
+            f"{what} must look like 'LOW .. HIGH' (or 'LOW:HIGH'), e.g. '0.5 Hz .. 10 kHz'; "
+            f"got {text!r}"
+        )
+    low_text, high_text = parts
+    if isinstance(low_text, str) and low_text.strip().upper() == "DC":
+        low = 0.0
+    else:
+        low = parse_quantity(low_text, "Hz", what=f"{what} (low end)")
+        if not low >= 0:
+            raise UnitError(f"{what}: the low end must be 0 Hz or above, got {low_text!r}")
+    high = parse_frequency(high_text, f"{what} (high end)")
+    if not low < high:
+        raise UnitError(f"{what}: the low end must lie below the high end, got {text!r}")
+    return low, high
 
 
 #: SI prefixes of multiples (kilo and above).

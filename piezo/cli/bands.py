@@ -72,7 +72,8 @@ def bands(
             "--high",
             metavar="FREQ",
             help="Highest nominal band; default 20kHz up to 48 kHz sampling, else the "
-            "highest band the sample rate allows.",
+            "highest band the sample rate allows, or the sensor's frequency range "
+            "(profile) when that ends lower.",
         ),
     ] = None,
     interval: Annotated[
@@ -203,6 +204,11 @@ def _print(doc: dict) -> None:
         console.print(
             f"  bands up to {doc['high_hz']:g} Hz: the default for "
             f"{doc['sample_rate_hz']:g} Hz sampling (--high to change)"
+        )
+    elif doc["high_source"] == "sensor":
+        console.print(
+            f"  bands up to {doc['high_hz']:g} Hz: where the sensor's frequency range ends "
+            "(profile frequency_range; --high to change)"
         )
     for note in doc["response_curve_notes"]:
         console.print(f"  {note}")

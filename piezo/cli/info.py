@@ -139,6 +139,7 @@ def chain_document(chain: Chain, provenance: Provenance | None) -> dict[str, Any
         **({} if chain.unit == "Pa" else {reference_key(chain.unit): chain.reference}),
         "level_unit": chain.level_unit,
         "response_curve": chain.response_curve_file,
+        "frequency_range_hz": chain.frequency_range_hz,
         "provenance": provenance.as_dict() if provenance else None,
     }
 
@@ -194,7 +195,9 @@ def _chain_text(chain: dict) -> str:
     sens = chain["sensitivity"]
     sens_text = "none (results in volts)" if sens is None else sens
     curve = f", response curve {chain['response_curve']}" if chain["response_curve"] else ""
+    band = chain["frequency_range_hz"]
+    band_text = f", frequency range {band[0]:g} Hz .. {band[1]:g} Hz" if band else ""
     return (
         f"{chain['quantity']}, full scale {chain['full_scale_v']:g} V, gain "
-        f"{chain['gain']:g} V/V, sensitivity {sens_text}{curve}"
+        f"{chain['gain']:g} V/V, sensitivity {sens_text}{curve}{band_text}"
     )

@@ -9,10 +9,9 @@ from typing import Annotated
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_frequency
+from piezo.chain.units import parse_frequency, parse_frequency_range
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
-from piezo.errors import InputError
 from piezo.tone.summary import tone_of
 
 
@@ -28,18 +27,6 @@ def register(app: typer.Typer) -> None:
     ['tone']
     """
     app.command("tone", help="Test-tone frequency, level, THD, THD+N, SINAD and SNR.")(tone)
-
-
-def _parse_bandwidth(text: str) -> tuple[float, float]:
-    """``"20Hz:20kHz"`` -> ``(20.0, 20000.0)``."""
-    parts = text.split(":")
-    if len(parts) != 2:
-        raise InputError(f"--bandwidth must look like '20Hz:20kHz'; got {text!r}")
-    lo = parse_frequency(parts[0].strip(), "--bandwidth (low end)")
-    hi = parse_frequency(parts[1].strip(), "--bandwidth (high end)")
-    if not lo < hi:
-        raise InputError(f"--bandwidth: low end must be below high end; got {text!r}")
-    return lo, hi
 
 
 @source_options
@@ -60,7 +47,8 @@ def tone(
             "--bandwidth",
             metavar="LOW:HIGH",
             help="Measurement bandwidth; default 20Hz:20kHz up to 48 kHz sampling, else "
-            "20 Hz to 0.45 × the sample rate.",
+            "20 Hz to 0.45 × the sample rate, ended at the sensor's frequency range "
+            "(profile) when that ends lower.",
         ),
     ] = None,
     expected: Annotated[
@@ -92,7 +80,7 @@ def tone(
     {... "resolution_hz": 1.0, ... "frequency_hz": 1001.2..., ...}
     0
     """
-    given = _parse_bandwidth(bandwidth) if bandwidth is not None else None
+    given = parse_frequency_range(bandwidth, what="--bandwidth") if bandwidth is not None else None
     expected_hz = parse_frequency(expected, "--expected") if expected is not None else None
     source = open_source(file, src)
     noise_source = open_source(noise, src) if noise is not None else None
@@ -112,12 +100,19 @@ def tone(
         _print(doc)
 
 
+#: What the terminal says about a default bandwidth (``bandwidth_source``).
+_SOURCE_NOTE = {
+    "sample rate": " (default for the sample rate)",
+    "sensor": " (default: up to where the sensor's frequency range ends)",
+}
+
+
 def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     lo, hi = doc["bandwidth_hz"]
     console.print(
         f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz"
-        + (" (default for the sample rate)" if doc["bandwidth_source"] == "sample rate" else "")
+        + _SOURCE_NOTE.get(doc["bandwidth_source"], "")
         + f", {doc['resolution_hz']:g} Hz bins, "
         f"{doc['segments']} averages"
     )

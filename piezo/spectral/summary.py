@@ -29,6 +29,7 @@ __all__ = [
     "Spectrum",
     "bands_of",
     "confidence_document",
+    "default_upper_limit_hz",
     "psd_level_unit",
     "spectrum_of",
 ]
@@ -338,8 +339,8 @@ class Bands:
     sample_rate_hz: float
     channel_indices: tuple[int, ...]
     result: BandResult
-    #: Highest nominal band asked for, Hz, and where it came from ("option" or
-    #: "sample rate").
+    #: Highest nominal band asked for, Hz, and where it came from ("option", "sample
+    #: rate" or "sensor": the sensor's frequency range).
     high_hz: float = 20000.0
     high_source: str = "option"
     #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
@@ -415,6 +416,42 @@ class Bands:
         return to_jsonable(doc)
 
 
+def default_upper_limit_hz(source: CalibratedSource, rate_limit_hz: float) -> tuple[float, str]:
+    """The default upper limit of an analysis, Hz, and where it comes from.
+
+    ``rate_limit_hz`` is the limit the sample rate sets (the command's own rule); a
+    sensor whose profile states its usable frequency range (``frequency_range``) ends
+    the analysis at that range's upper end when it is lower. With several channels the
+    widest sensor's end applies, so that no channel's usable band is cut, and a channel
+    whose sensor states no range leaves the sample rate's limit.
+
+    Returns
+    -------
+    limit_hz, source
+        The limit and ``"sensor"`` or ``"sample rate"`` (the ``high_source`` and
+        ``bandwidth_source`` values; ``"option"`` is the caller's, for a given limit).
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from piezo.chain.measurement import Chain
+    >>> from piezo.io.reader import Recording
+    >>> rec = Recording(Path("x.wav"), 48000.0, 4, 1, "WAV", "PCM_24", ("ch0",), True)
+    >>> disc = Chain(frequency_range_hz=(0.5, 10000.0))
+    >>> default_upper_limit_hz(CalibratedSource.of(rec, disc), 20000.0)
+    (10000.0, 'sensor')
+    >>> default_upper_limit_hz(CalibratedSource.of(rec, Chain()), 20000.0)
+    (20000.0, 'sample rate')
+    """
+    ranges = [chain.frequency_range_hz for chain in source.chains]
+    if not ranges or any(r is None for r in ranges):
+        return rate_limit_hz, "sample rate"
+    sensor_hz = max(r[1] for r in ranges if r is not None)
+    if sensor_hz < rate_limit_hz:
+        return sensor_hz, "sensor"
+    return rate_limit_hz, "sample rate"
+
+
 def bands_of(
     source: CalibratedSource,
     *,
@@ -432,7 +469,9 @@ def bands_of(
     octave bands from ``low_hz`` to ``high_hz`` nominal, limited by Nyquist, after an
     IEC 61672-1 ``weighting``). Without ``high_hz`` the highest band follows from the
     sample rate (:func:`~piezo.spectral.bands.default_high_hz`: 20 kHz up to 48 kHz
-    sampling), and the document says so (``high_source``). The A and C weightings
+    sampling), or from the sensor's frequency range where its profile states one and it
+    ends lower (:func:`default_upper_limit_hz`), and the document says which
+    (``high_source``: ``"sample rate"``, ``"sensor"`` or ``"option"``). The A and C weightings
     apply to sound pressure only (IEC 61672-1): for other quantities they are refused
     unless ``weight_any_quantity``.
 
@@ -458,9 +497,18 @@ def bands_of(
                     "(--weight-any-quantity, weight_any_quantity=True, applies it anyway)",
                     source=str(source.recording.path),
                 )
-    given = high_hz is not None
+    high_source = "option"
     if high_hz is None:
-        high_hz = default_high_hz(source.sample_rate_hz)
+        high_hz, high_source = default_upper_limit_hz(
+            source, default_high_hz(source.sample_rate_hz)
+        )
+        if high_source == "sensor" and high_hz < low_hz:
+            raise InputError(
+                f"the sensor's frequency range ends at {high_hz:g} Hz, below the lowest "
+                f"band asked for ({low_hz:g} Hz); ask for lower bands or give the highest "
+                "(--low/--high, low_hz/high_hz)",
+                source=str(source.recording.path),
+            )
     try:
         analyzer = BandAnalyzer(
             source.sample_rate_hz,
@@ -489,7 +537,7 @@ def bands_of(
         channel_indices=source.channel_indices,
         result=result,
         high_hz=float(high_hz),
-        high_source="option" if given else "sample rate",
+        high_source=high_source,
         quantity=chains[0].measured.name if same else "per channel",
         response_curve_notes=tuple(source.curve_notes(*edges)) if edges else (),
         quantities=tuple(c.measured.name for c in chains),

@@ -19,6 +19,7 @@ from piezo.chain.quantity import QUANTITIES, quantity_named
 from piezo.errors import InputError
 from piezo.response.uncertainty import Budget
 from piezo.results import reference_key, to_jsonable
+from piezo.spectral.summary import default_upper_limit_hz
 from piezo.spectral.welch import WelchPSD
 from piezo.tone.analysis import (
     ToneAnalyzer,
@@ -57,7 +58,9 @@ class Tone:
         Measurement bandwidth actually used (limited by Nyquist).
     bandwidth_source
         ``"option"`` when the bandwidth was given, ``"sample rate"`` when it is the
-        default for the sample rate (20 Hz to 20 kHz up to 48 kHz sampling).
+        default for the sample rate (20 Hz to 20 kHz up to 48 kHz sampling),
+        ``"sensor"`` when that default ends lower, at the upper end of the sensor's
+        frequency range (:func:`~piezo.spectral.summary.default_upper_limit_hz`).
     channel_indices
         The recording's channels, in the order of ``results``.
     results
@@ -167,7 +170,8 @@ def tone_of(
         Nominal tone frequency (searched within ±12 %); the strongest line when None.
     bandwidth_hz
         Band of THD and THD+N; None for the default of the sample rate
-        (:func:`~piezo.tone.analysis.default_bandwidth_hz`).
+        (:func:`~piezo.tone.analysis.default_bandwidth_hz`), ended at the sensor's
+        frequency range where its profile states one that ends lower.
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -196,9 +200,18 @@ def tone_of(
     if source.frames < 2:
         raise InputError("the recording is too short for a tone analysis", source=file)
     seg = None if source.frames >= fs / RESOLUTION_HZ else source.frames
-    given = bandwidth_hz is not None
+    bandwidth_source = "option"
     if bandwidth_hz is None:
-        bandwidth_hz = default_bandwidth_hz(fs)
+        low_hz, rate_high_hz = default_bandwidth_hz(fs)
+        high_hz, bandwidth_source = default_upper_limit_hz(source, rate_high_hz)
+        if high_hz <= low_hz:
+            raise InputError(
+                f"the sensor's frequency range ends at {high_hz:g} Hz, at or below the "
+                f"default bandwidth's low end ({low_hz:g} Hz); give the bandwidth "
+                "(--bandwidth, bandwidth_hz)",
+                source=file,
+            )
+        bandwidth_hz = (low_hz, high_hz)
     try:
         analyzer = ToneAnalyzer(
             fs,
@@ -246,7 +259,7 @@ def tone_of(
         bandwidth_hz=(float(low), float(high)),
         channel_indices=source.channel_indices,
         results=tuple(results),
-        bandwidth_source="option" if given else "sample rate",
+        bandwidth_source=bandwidth_source,
         quantity=chains[0].measured.name if same else "per channel",
         quantities=tuple(c.measured.name for c in chains),
         units=units,

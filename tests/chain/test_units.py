@@ -17,6 +17,7 @@ from piezo.chain.units import (
     parse_duration,
     parse_frequency,
     parse_frequency_list,
+    parse_frequency_range,
     parse_gain,
     parse_quantity,
     parse_sensitivity,
@@ -129,6 +130,42 @@ def test_parse_duration(text, seconds):
 
 def test_parse_frequency_list():
     assert parse_frequency_list("10Hz, 100 Hz,1k") == pytest.approx([10, 100, 1000])
+
+
+@pytest.mark.parametrize(
+    ("text", "range_hz"),
+    [
+        ("0.5 Hz .. 10 kHz", (0.5, 10000.0)),
+        ("1 Hz to 8 kHz", (1.0, 8000.0)),
+        ("2 – 20k", (2.0, 20000.0)),
+        ("20Hz:20kHz", (20.0, 20000.0)),
+        ("DC .. 4 kHz", (0.0, 4000.0)),
+        (["3 Hz", "12 kHz"], (3.0, 12000.0)),
+        ([0, 5000], (0.0, 5000.0)),
+    ],
+)
+def test_parse_frequency_range(text, range_hz):
+    # Data-sheet forms of a usable frequency range; SI prefixes as in parse_quantity.
+    assert parse_frequency_range(text) == range_hz
+
+
+@pytest.mark.parametrize(
+    ("text", "message"),
+    [
+        ("20Hz-20kHz", "must look like 'LOW .. HIGH'"),
+        ("10 kHz", "must look like"),
+        (["1 Hz", "2 Hz", "3 Hz"], "must look like"),
+        (10000, "must look like"),
+        ("10 kHz .. 1 Hz", "the low end must lie below the high end"),
+        ("5 Hz .. 5 Hz", "the low end must lie below the high end"),
+        ("-1 Hz .. 5 kHz", "the low end must be 0 Hz or above"),
+        ("1 Hz .. 0 Hz", r"\(high end\) must be a positive frequency"),
+        ("1 Hz .. 10 kV", r"\(high end\): unknown unit"),
+    ],
+)
+def test_parse_frequency_range_refuses(text, message):
+    with pytest.raises(UnitError, match=rf"^sensor\.frequency_range.*{message}"):
+        parse_frequency_range(text, what="sensor.frequency_range")
 
 
 def test_db_round_trip():

@@ -240,6 +240,93 @@ def test_bands_and_tone_default_their_upper_limit_from_the_sample_rate(cli, tmp_
     assert "default for 1e+06 Hz sampling" in r.out
 
 
+def test_bands_and_tone_end_their_defaults_at_the_sensor_range(cli, tone_wav, tmp_path):
+    # Issue 12 defect 16: a profile that states the sensor's usable frequency range
+    # (here a disc usable to 8 kHz, sampled at 48 kHz) ends the default bands and the
+    # default THD+N bandwidth there, and says so; an explicit option overrides it.
+    profile = tmp_path / "disc.toml"
+    profile.write_text('[sensor]\nfrequency_range = "20 Hz .. 8 kHz"\n', encoding="utf-8")
+    r = cli("bands", tone_wav, *SENS, "--profile", profile, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert (doc["high_hz"], doc["high_source"]) == (8000.0, "sensor")
+    assert doc["channels"][0]["bands"][-1]["nominal_hz"] == 8000
+    r = cli("bands", tone_wav, *SENS, "--profile", profile)
+    text = " ".join(r.out.split())  # the terminal wraps long lines
+    assert "bands up to 8000 Hz: where the sensor's frequency range ends" in text
+    r = cli("bands", tone_wav, *SENS, "--profile", profile, "--high", "20kHz", "--json")
+    doc = r.json()
+    assert (doc["high_hz"], doc["high_source"]) == (20000.0, "option")
+    assert doc["channels"][0]["bands"][-1]["nominal_hz"] == 20000
+    r = cli("tone", tone_wav, *SENS, "--profile", profile, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert (doc["bandwidth_hz"], doc["bandwidth_source"]) == ([20.0, 8000.0], "sensor")
+    # The 1 % second harmonic (2 kHz) lies inside the sensor's range: THD 1 %
+    # (IEC 60268-3 definition), as with the 20 kHz default.
+    assert doc["channels"][0]["thd_percent"] == pytest.approx(1.0, abs=0.01)
+    r = cli("tone", tone_wav, *SENS, "--profile", profile, "--bandwidth", "20Hz:20kHz",
+            "--json")  # fmt: skip
+    assert (r.json()["bandwidth_hz"], r.json()["bandwidth_source"]) == ([20.0, 20000.0], "option")
+    r = cli("tone", tone_wav, *SENS, "--profile", profile)
+    text = " ".join(r.out.split())  # the terminal wraps long lines
+    assert "20 Hz to 8000 Hz (default: up to where the sensor's frequency range ends)" in text
+    r = cli("info", tone_wav, "--profile", profile, "--json")
+    assert r.json()["chain"]["frequency_range_hz"] == [20.0, 8000.0]
+    r = cli("info", tone_wav, "--profile", profile)
+    assert "frequency range 20 Hz .. 8000 Hz" in " ".join(r.out.split())
+
+
+def test_sensor_range_of_several_channels(cli, tone_wav, tmp_path):
+    # Channel 1's sensor is usable to 4 kHz, channel 0's to 8 kHz: one bank serves both,
+    # so the wider range applies (no channel's usable band is cut). A channel whose
+    # sensor states no range leaves the sample rate's default.
+    profile = tmp_path / "two.toml"
+    profile.write_text(
+        '[sensor]\nfrequency_range = "20 Hz .. 8 kHz"\n'
+        '[channel.1]\nfrequency_range = "20 Hz .. 4 kHz"\n',
+        encoding="utf-8",
+    )
+    doc = cli("bands", tone_wav, "--profile", profile, "--json").json()
+    assert (doc["high_hz"], doc["high_source"]) == (8000.0, "sensor")
+    doc = cli("bands", tone_wav, "--profile", profile, "--channel", "1", "--json").json()
+    assert (doc["high_hz"], doc["high_source"]) == (4000.0, "sensor")
+    profile.write_text('[channel.1]\nfrequency_range = "20 Hz .. 4 kHz"\n', "utf-8")
+    doc = cli("bands", tone_wav, "--profile", profile, "--json").json()
+    assert (doc["high_hz"], doc["high_source"]) == (20000.0, "sample rate")
+
+
+@pytest.mark.parametrize(
+    ("value", "message"),
+    [
+        ('"8 kHz"', "sensor.frequency_range must look like 'LOW .. HIGH'"),
+        ('"8 kHz .. 20 Hz"', "the low end must lie below the high end"),
+    ],
+)
+def test_malformed_sensor_range_is_refused_in_one_line(cli, tone_wav, tmp_path, value, message):
+    profile = tmp_path / "bad.toml"
+    profile.write_text(f"[sensor]\nfrequency_range = {value}\n", encoding="utf-8")
+    for command in ("bands", "tone", "info"):
+        r = cli(command, tone_wav, "--profile", profile)
+        assert r.code == 2
+        lines = r.err.strip().splitlines()
+        assert len(lines) == 1 and str(profile) in lines[0] and message in lines[0]
+
+
+def test_sensor_range_below_the_lowest_band_is_refused(cli, tone_wav, tmp_path):
+    # A seismic sensor usable to 10 Hz: the default bands start at 20 Hz, so there is
+    # nothing to show without options; the message says what to give.
+    profile = tmp_path / "geo.toml"
+    profile.write_text('[sensor]\nfrequency_range = "0.1 Hz .. 10 Hz"\n', encoding="utf-8")
+    r = cli("bands", tone_wav, "--profile", profile)
+    assert r.code == 2 and "the sensor's frequency range ends at 10 Hz" in r.err
+    r = cli("tone", tone_wav, "--profile", profile)
+    assert r.code == 2 and "--bandwidth" in r.err
+    r = cli("bands", tone_wav, "--profile", profile, "--low", "1Hz", "--json")
+    assert r.code == 0, r.err
+    assert r.json()["channels"][0]["bands"][-1]["nominal_hz"] == 10
+
+
 def test_bands_history_states_interval_durations(cli, tone_wav):
     # Issue 12 §3.17: a 2 s recording in 0.75 s intervals has a last interval of 0.5 s;
     # the history says so beside each start time.

@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+import scipy.signal
 
 from piezo.demo.response import (
     PICKUPS,
@@ -62,6 +63,20 @@ def test_analysis_recovers_each_pickup(demo, index):
     # values' THD formula) where the pickup is nearly flat: at 2 and 3 kHz its response
     # is 0.14 and 0.37 dB above that at 1 kHz (resonance tail), under 5 % on THD.
     assert r.thd_percent_at([1000.0])[1000.0] == pytest.approx(math.hypot(0.3, 0.1), rel=0.05)
+    # Issue 12 defect 1: the latency is the simulated 277 samples (it read 278: the
+    # pickup's resonance goes on rolling off beyond the sweep's band), and with it
+    # removed the phase is the pickup's own analog phase, S·s/(s + ω_c) · ω_r²/(s² +
+    # s·ω_r/Q + ω_r²) evaluated by scipy.signal.freqs, within 2° up to 10 kHz (the
+    # issue's tolerance; one sample of latency is 75° at 10 kHz). Measured: 0.11°.
+    assert r.latency_frames == 277
+    wc, wr = 2 * math.pi * p.corner_hz, 2 * math.pi * p.resonance_hz
+    b = np.polymul([1.0, 0.0], [wr * wr])
+    a = np.polymul([1.0, wc], [1.0, wr / p.resonance_q, wr * wr])
+    f = r.frequency_hz
+    sel = (f >= 30.0) & (f <= 10000.0)
+    _, model = scipy.signal.freqs(b, a, 2 * math.pi * f[sel])
+    phase_error_deg = np.degrees(np.angle(r.response[sel] / model))
+    assert np.max(np.abs(phase_error_deg)) < 2.0
 
 
 def test_golden_and_two_channel(demo):

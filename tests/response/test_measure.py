@@ -368,3 +368,122 @@ def test_latency_is_the_pure_delay_before_a_minimum_phase_device(
     sel = (f >= 30.0) & (f <= 10000.0)
     _, h_true = scipy.signal.sosfreqz(sos, worN=f[sel], fs=FS)
     assert np.max(np.abs(np.degrees(np.angle(r.response[sel] / h_true)))) < 2.0
+
+
+def _through_analog(stimulus: np.ndarray, b: np.ndarray, a: np.ndarray) -> np.ndarray:
+    """An analog device H(s) = b(s)/a(s) (scipy.signal.freqs) applied on every FFT bin,
+    as the demo applies its pickups: the device sampled through an ideal band limit."""
+    freq = np.fft.rfftfreq(stimulus.size, 1.0 / FS)
+    _, h = scipy.signal.freqs(b, a, 2 * np.pi * freq)
+    return np.fft.irfft(np.fft.rfft(stimulus) * h, stimulus.size)
+
+
+def _analog_devices() -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """Analog minimum-phase devices designed with scipy.signal (rad/s)."""
+    w = 2 * np.pi
+    hp_b, hp_a = scipy.signal.butter(2, w * 100.0, "highpass", analog=True)
+    devices = {}
+    for order, lowpass_hz in [(2, 2000.0), (2, 8000.0), (4, 5000.0)]:
+        lp_b, lp_a = scipy.signal.butter(order, w * lowpass_hz, analog=True)
+        devices[f"hp2-100Hz lp{order}-{lowpass_hz:g}Hz"] = (
+            np.polymul(hp_b, lp_b),
+            np.polymul(hp_a, lp_a),
+        )
+    # A first-order high-pass and a resonance near the band edge (18 kHz, Q 20).
+    wr = w * 18000.0
+    hp1_b, hp1_a = scipy.signal.butter(1, w * 50.0, "highpass", analog=True)
+    devices["hp1-50Hz res-18kHz-Q20"] = (
+        np.polymul(hp1_b, [wr * wr]),
+        np.polymul(hp1_a, [1.0, wr / 20.0, wr * wr]),
+    )
+    # A pickup (77 Hz first-order high-pass, 14 kHz Q 8 resonance) behind an analog
+    # anti-alias low-pass (4th-order Butterworth at 21 kHz, beyond the sweep's band).
+    wp = w * 14000.0
+    aa_b, aa_a = scipy.signal.butter(4, w * 21000.0, analog=True)
+    p_b, p_a = scipy.signal.butter(1, w * 77.0, "highpass", analog=True)
+    devices["pickup + anti-alias lp4-21kHz"] = (
+        np.polymul(np.polymul(p_b, [wp * wp]), aa_b),
+        np.polymul(np.polymul(p_a, [1.0, wp / 8.0, wp * wp]), aa_a),
+    )
+    return devices
+
+
+@pytest.mark.parametrize("device", list(_analog_devices()))
+@pytest.mark.parametrize("delay", [0, 277])
+def test_latency_is_the_pure_delay_before_an_analog_device(spec, stimulus, delay, device):
+    # Issue 12 defect 1: an analog minimum-phase device goes on rolling off beyond the
+    # sweep's band (and beyond fs/2), which puts phase into the band that a delay could
+    # also explain (read one or two samples late before the fix). The known delay
+    # comes back and the phase is the device's own (scipy.signal.freqs) within 2° up to
+    # 10 kHz (the issue's tolerance; a sample of latency is 75° at 10 kHz). Measured:
+    # 0.05° at most.
+    b, a = _analog_devices()[device]
+    out = _through_analog(stimulus, b, a)
+    capture = np.concatenate([np.zeros(delay), out])
+    r = analyze_sweep(capture, spec, FS)
+    assert r.latency_frames == delay
+    f = r.frequency_hz
+    sel = (f >= 30.0) & (f <= 10000.0)
+    _, h_true = scipy.signal.freqs(b, a, 2 * np.pi * f[sel])
+    assert np.max(np.abs(np.degrees(np.angle(r.response[sel] / h_true)))) < 2.0
+
+
+@pytest.mark.parametrize("device", list(_analog_devices()))
+def test_latency_of_an_analog_device_in_noise(spec, stimulus, device):
+    # The roll-off beyond the band is read from the phase's curvature near f2, where a
+    # low-pass leaves little signal: with white noise 80 dB below the capture's peak
+    # (seeded) every device still reads its delay (checked over six seeds; at 60 dB a
+    # 4th-order low-pass at 5 kHz, 44 dB down at 18 kHz, read a sample late once in
+    # five, as docs/response.md says).
+    b, a = _analog_devices()[device]
+    out = np.concatenate([np.zeros(277), _through_analog(stimulus, b, a)])
+    noise = np.random.default_rng(12).standard_normal(out.size)
+    r = analyze_sweep(out + 1e-4 * np.max(np.abs(out)) * noise, spec, FS)
+    assert r.latency_frames == 277
+
+
+def test_linear_phase_anti_alias_filter_counts_in_the_latency(spec, stimulus):
+    # A converter's linear-phase decimation filter (here a 191-tap Kaiser-window FIR
+    # from scipy.signal.firwin, cut-off 22.5 kHz) is a pure delay of (191 − 1)/2 = 95
+    # samples (a symmetric FIR's group delay, Oppenheim & Schafer §5.7): behind an analog
+    # pickup and 182 samples of acoustic delay, the latency reads 277 and the phase is
+    # the pickup's own (its 14 kHz Q 8 resonance and 77 Hz corner, scipy.signal.freqs).
+    w = 2 * np.pi
+    wp = w * 14000.0
+    p_b, p_a = scipy.signal.butter(1, w * 77.0, "highpass", analog=True)
+    b, a = np.polymul(p_b, [wp * wp]), np.polymul(p_a, [1.0, wp / 8.0, wp * wp])
+    fir = scipy.signal.firwin(191, 22500.0, fs=FS, window=("kaiser", 8.0))
+    capture = scipy.signal.lfilter(fir, 1.0, _through_analog(stimulus, b, a))
+    r = analyze_sweep(np.concatenate([np.zeros(182), capture]), spec, FS)
+    assert r.latency_frames == 182 + 95
+    f = r.frequency_hz
+    sel = (f >= 30.0) & (f <= 10000.0)
+    _, h_true = scipy.signal.freqs(b, a, 2 * np.pi * f[sel])
+    assert np.max(np.abs(np.degrees(np.angle(r.response[sel] / h_true)))) < 2.0
+
+
+def test_bode_phase_of_an_analog_filter():
+    # Bode's gain-phase relation as the latency fit integrates it, with the phase of a
+    # constant log-magnitude slope n beyond an edge f_e, 2/π·n·χ₂(f/f_e) (and
+    # 2/π·n·χ₂(f_e/f) below), against the phase of an analog minimum-phase filter: a
+    # 2nd-order Butterworth high-pass at 100 Hz times a 4th-order Butterworth low-pass at
+    # 2 kHz (scipy.signal.freqs), whose slopes are +2 far below and −4 far above. Given
+    # from 1 Hz to 1 MHz on 96 points per octave (piecewise linear in ln f), the phase
+    # from 10 Hz to 20 kHz is the filter's within 0.01° (measured 0.001°); without the
+    # slopes' phase it would be 7° out at 10 Hz (2/π · 2 · 0.1 rad).
+    from piezo.response.measure import _bode_phase, _chi2
+
+    w = 2 * np.pi
+    hp_b, hp_a = scipy.signal.butter(2, w * 100.0, "highpass", analog=True)
+    lp_b, lp_a = scipy.signal.butter(4, w * 2000.0, analog=True)
+    b, a = np.polymul(hp_b, lp_b), np.polymul(hp_a, lp_a)
+    f = np.geomspace(1.0, 1e6, 96 * 20 + 1)
+    _, h = scipy.signal.freqs(b, a, w * f)
+    phase = (
+        _bode_phase(np.log(f), np.log(np.abs(h)))
+        + 2 / np.pi * -4 * _chi2(f / f[-1])
+        + 2 / np.pi * 2 * _chi2(f[0] / f)
+    )
+    inside = (f >= 10.0) & (f <= 20000.0)
+    err = np.degrees(phase - np.unwrap(np.angle(h)))[inside]
+    assert np.max(np.abs(err)) < 0.01
