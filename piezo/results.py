@@ -8,13 +8,16 @@ lists, paths strings, and non-finite floats ``null`` (JSON has no NaN or infinit
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import asdict, is_dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 
-__all__ = ["reference_key", "to_jsonable"]
+__all__ = ["reference_key", "shared_value", "to_jsonable"]
+
+T = TypeVar("T")
 
 
 def to_jsonable(obj: Any) -> Any:
@@ -41,6 +44,20 @@ def to_jsonable(obj: Any) -> Any:
     if isinstance(obj, Path):
         return str(obj)
     return obj
+
+
+def shared_value(values: Sequence[T]) -> T | None:
+    """The one value every channel has, or None when they differ (JSON ``null``).
+
+    A document's top-level ``unit``, ``level_unit`` and ``quantity`` are the channels'
+    common value; when the channels differ each channel entry states its own.
+
+    Examples
+    --------
+    >>> shared_value(["Pa", "Pa"]), shared_value(["Pa", "m/s²"])
+    ('Pa', None)
+    """
+    return values[0] if values and all(v == values[0] for v in values) else None
 
 
 def reference_key(unit: str) -> str:

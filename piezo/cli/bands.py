@@ -24,6 +24,7 @@ from piezo.cli.output import (
     console,
     emit_json,
     err_console,
+    levels_in,
     progress,
     refuse_existing,
     write_text_atomic,
@@ -148,7 +149,10 @@ def bands(
         write_text_atomic(
             csv,
             _format_csv(
-                result, source.channel_indices, ref, measured.level_units or measured.level_unit
+                result,
+                source.channel_indices,
+                ref,
+                measured.level_units or str(measured.level_unit),
             ),
         )
     if json_out:
@@ -197,7 +201,7 @@ def _print(doc: dict) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     console.print(
         f"  1/{doc['fraction']}-octave band Leq ({doc['weighting']}-weighted), "
-        f"{doc['level_unit']}, "
+        f"{levels_in(doc)}, "
         "IEC 61260-1:2014 class 1 filters"
     )
     if doc["high_source"] == "sample rate":

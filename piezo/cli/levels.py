@@ -16,7 +16,7 @@ from piezo.cli.options import (
     open_source,
     source_options,
 )
-from piezo.cli.output import console, emit_json, progress
+from piezo.cli.output import console, emit_json, levels_in, progress
 from piezo.errors import InputError
 from piezo.levels.summary import LEVEL_KEYS, levels_of
 from piezo.plots.style import axis_label
@@ -168,8 +168,7 @@ def _fmt(value: float | None) -> str:
 def _print(doc: dict[str, Any]) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     console.print(
-        f"  {doc['duration_s']:.3f} s at {doc['sample_rate_hz']:g} Hz, levels in "
-        f"{doc['level_unit']}"
+        f"  {doc['duration_s']:.3f} s at {doc['sample_rate_hz']:g} Hz, levels in {levels_in(doc)}"
     )
     table = Table(box=None, pad_edge=False, header_style="bold")
     table.add_column("level")

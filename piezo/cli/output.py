@@ -28,6 +28,7 @@ __all__ = [
     "console",
     "emit_json",
     "err_console",
+    "levels_in",
     "progress",
     "refuse_existing",
     "to_jsonable",
@@ -39,6 +40,23 @@ __all__ = [
 ForceOption = Annotated[
     bool, typer.Option("--force", help="Replace output files that exist already.")
 ]
+
+
+def levels_in(doc: dict[str, Any]) -> str:
+    """What a document's levels are in: its shared ``level_unit``, or each channel's own.
+
+    Examples
+    --------
+    >>> levels_in({"level_unit": "dB re 20 µPa", "channels": []})
+    'dB re 20 µPa'
+    >>> levels_in({"level_unit": None, "channels": [
+    ...     {"channel": 0, "level_unit": "dB re 20 µPa"},
+    ...     {"channel": 1, "level_unit": "dB re 1 µm/s²"}]})
+    'dB re 20 µPa (ch 0), dB re 1 µm/s² (ch 1)'
+    """
+    if doc["level_unit"] is not None:
+        return str(doc["level_unit"])
+    return ", ".join(f"{e['level_unit']} (ch {e['channel']})" for e in doc["channels"])
 
 
 def refuse_existing(*paths: Path | None, force: bool) -> None:

@@ -19,6 +19,7 @@ from piezo.cli.output import (
     console,
     emit_json,
     err_console,
+    levels_in,
     progress,
     refuse_existing,
     write_text_atomic,
@@ -137,10 +138,10 @@ def spectrum(
         return transient_view(file, source, json_out=json_out)
     fs = source.sample_rate_hz
     nch = len(source.channel_indices)
-    if plot is not None and len(set(source.units)) > 1:
+    if plot is not None and len({c.level_unit for c in source.chains}) > 1:
         raise InputError(
-            "--plot draws one quantity, and these channels measure "
-            f"{', '.join(sorted({c.quantity for c in source.chains}))}: choose one with "
+            "--plot draws one level unit, and these channels have "
+            f"{'; '.join(sorted({c.level_unit for c in source.chains}))}: choose one with "
             "--channel N",
             source=str(file),
         )
@@ -189,6 +190,7 @@ def spectrum(
             ),
         )
     if plot is not None and spectro is not None:
+        assert level_unit is not None  # one level unit: refused above otherwise
         write_plot(
             plot,
             result,
@@ -242,12 +244,6 @@ def _format_csv(
     return csv_text(header, rows, comments=comments)
 
 
-def _levels_in(doc: dict) -> str:
-    if doc["level_unit"] != "per channel":
-        return str(doc["level_unit"])
-    return ", ".join(f"{e['level_unit']} (ch {e['channel']})" for e in doc["channels"])
-
-
 def _print(doc: dict, result: PSDResult, chains: Sequence[Chain]) -> None:
     console.print(f"[bold]{doc['file']}[/bold]")
     ci = doc["confidence"]
@@ -290,7 +286,7 @@ def _print(doc: dict, result: PSDResult, chains: Sequence[Chain]) -> None:
         table.add_row(str(entry["channel"]), rms_text, total_text, text or "none")
     console.print(table)
     console.print(
-        f"  PSD levels in {_levels_in(doc)}; totals by Parseval over all bins. Peaks: "
+        f"  PSD levels in {levels_in(doc)}; totals by Parseval over all bins. Peaks: "
         f"at least {doc['peak_separation_hz']:.{decimals}f} Hz (one main lobe) apart, "
         f"{doc['peak_margin_db']:.1f} dB above the local floor (running median over an "
         "octave), apart by valleys deeper than the scatter; "

@@ -11,7 +11,7 @@ from rich.table import Table
 
 from piezo.chain.units import parse_frequency, parse_frequency_range
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, progress
+from piezo.cli.output import console, emit_json, levels_in, progress
 from piezo.tone.summary import tone_of
 
 
@@ -117,7 +117,10 @@ def _print(doc: dict) -> None:
         f"{doc['segments']} averages"
     )
     table = Table(box=None, pad_edge=False, header_style="bold")
-    for name in ("ch", "frequency Hz", f"level {doc['level_unit']}", "THD %", "THD+N %",
+    level_head = "level" if doc["level_unit"] is None else f"level {doc['level_unit']}"
+    if doc["level_unit"] is None:
+        console.print(f"  levels in {levels_in(doc)}")
+    for name in ("ch", "frequency Hz", level_head, "THD %", "THD+N %",
                  "SINAD dB", "SNR dB"):  # fmt: skip
         table.add_column(name, justify="right")
     for c in doc["channels"]:

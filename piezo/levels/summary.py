@@ -73,7 +73,7 @@ class Levels:
         The recording, as it was opened.
     unit, level_unit
         Unit of the samples (``"Pa"``, ``"m/s²"`` ... or ``"V"``) and of the levels
-        (``"dB re 20 µPa"``), shared by the channels; ``"per channel"`` when channels
+        (``"dB re 20 µPa"``), shared by the channels; None when channels
         measure different quantities (each channel's entry states its own).
     channel_indices
         The recording's channels, 0-based, in the order of ``result.channels``.
@@ -96,8 +96,8 @@ class Levels:
     """
 
     file: str
-    unit: str
-    level_unit: str
+    unit: str | None
+    level_unit: str | None
     channel_indices: tuple[int, ...]
     result: LevelResult
     quantities: tuple[str, ...] = ()
@@ -164,7 +164,7 @@ class Levels:
             "level_unit": self.level_unit,
             **(
                 {reference_key(self.unit): refs.pop() if len(refs) == 1 else result.reference}
-                if len(refs) <= 1
+                if self.unit is not None and len(refs) <= 1
                 else {}
             ),
             "sample_rate_hz": result.sample_rate_hz,
@@ -317,8 +317,8 @@ def levels_of(
     source.feed(meter if same else _Relative(meter, references), *extra, advance=advance)
     return Levels(
         file=str(source.recording.path),
-        unit=units[0] if same else "per channel",
-        level_unit=level_units[0] if same else "per channel",
+        unit=units[0] if same else None,
+        level_unit=level_units[0] if same else None,
         channel_indices=source.channel_indices,
         result=meter.result(),
         quantities=tuple(c.measured.name for c in chains),

@@ -180,7 +180,7 @@ def level_history_figure(levels: Levels, *, start_time_s: float = 0.0) -> bytes:
     assert h is not None
     n = len(levels.channel_indices)
     weighted = levels.weighted or (True,) * n
-    level_units = levels.level_units or (levels.level_unit,) * n
+    level_units = levels.level_units or (str(levels.level_unit),) * n
     groups = _unit_groups(level_units)
     rows = math.ceil(2 * n / 4) if len(groups) == 1 else 0
     end = start_time_s + h.interval_start_s[-1] + h.interval_duration_s[-1]

@@ -19,7 +19,7 @@ from piezo.chain.measurement import CalibratedSource, Chain
 from piezo.chain.units import format_quantity, ratio_to_db
 from piezo.levels.summary import LEVEL_KEYS, Levels
 from piezo.levels.weighting import ConformanceReport
-from piezo.results import reference_key
+from piezo.results import reference_key, shared_value
 from piezo.spectral.bands import BandResult
 from piezo.spectral.summary import confidence_document, psd_level_unit
 from piezo.spectral.welch import PSDResult, SpectrogramResult
@@ -150,15 +150,10 @@ def _relabel(units: list[dict[str, Any]], scaling: str) -> list[dict[str, Any]]:
     return [{**u, "level_unit": psd_level_unit(u["level_unit"], scaling)} for u in units]
 
 
-def _shared(values: list[str]) -> str:
-    """The one value all channels share, or ``"per channel"``."""
-    return values[0] if len(set(values)) == 1 else "per channel"
-
-
 def chain_section(source: CalibratedSource) -> dict[str, Any]:
     """The measurement chain of each channel with the provenance of every value.
 
-    ``unit`` and ``level_unit`` are those all channels share, or ``"per channel"``;
+    ``unit`` and ``level_unit`` are those all channels share, or None;
     ``shared`` is True when every analysed channel has the same chain (one table on
     the page).
 
@@ -198,8 +193,8 @@ def chain_section(source: CalibratedSource) -> dict[str, Any]:
         for p in ch["profiles"]:
             profiles.setdefault(p["path"], {k: p[k] for k in _PROFILE_KEYS})
     return {
-        "unit": _shared([ch["unit"] for ch in channels]),
-        "level_unit": _shared([ch["level_unit"] for ch in channels]),
+        "unit": shared_value([ch["unit"] for ch in channels]),
+        "level_unit": shared_value([ch["level_unit"] for ch in channels]),
         "calibrated": all(ch["calibrated"] for ch in channels),
         "shared": len({_chain_key(ch) for ch in channels}) == 1,
         "channels": channels,
@@ -349,7 +344,7 @@ def levels_section(levels: Levels) -> dict[str, Any]:
     reference (the levels of ``piezo levels``, :func:`piezo.levels.summary.levels_of`).
 
     ``level_unit`` (and the reference key) are those the channels share, else
-    ``level_unit`` is ``"per channel"`` and each channel states its own. A- and
+    ``level_unit`` is None and each channel states its own. A- and
     C-weighted levels of channels that do not measure sound pressure are null, with a
     note (IEC 61672-1 defines the weightings for sound pressure).
 
@@ -419,8 +414,8 @@ def levels_section(levels: Levels) -> dict[str, Any]:
             "LAF": weighted_only(h.LAF),
             "LAS": weighted_only(h.LAS),
         }
-    key = reference_key(doc["unit"])
-    shared = {key: doc[key]} if doc["unit"] != "per channel" and key in doc else {}
+    key = None if doc["unit"] is None else reference_key(doc["unit"])
+    shared = {key: doc[key]} if key is not None and key in doc else {}
     return {
         **shared,
         "level_unit": doc["level_unit"],
@@ -540,7 +535,7 @@ def psd_section(
 
     ``channels`` are the recording's channel numbers of the PSD's columns, ``chains``
     their chains; ``reference_text`` and ``level_unit`` are those the channels share, or
-    ``"per channel"`` (see ``channels``).
+    None (see ``channels``).
 
     Examples
     --------
@@ -569,8 +564,8 @@ def psd_section(
         "averages": psd.averages,
         "degrees_of_freedom": psd.degrees_of_freedom,
         "confidence": confidence_document(psd),
-        "reference_text": _shared([u["reference_text"] for u in units]),
-        "level_unit": _shared([u["level_unit"] for u in units]),
+        "reference_text": shared_value([u["reference_text"] for u in units]),
+        "level_unit": shared_value([u["level_unit"] for u in units]),
         "channels": units,
         "frequency_hz": _series(psd.frequency_hz, 4),
         "level_db": _columns(_db(psd.psd, _references(chains))),
@@ -611,7 +606,7 @@ def bands_section(
         "labels": [b.label for b in bands.bands],
         "nominal_hz": [float(b.nominal_hz) for b in bands.bands],
         "exact_hz": [float(b.exact_hz) for b in bands.bands],
-        "level_unit": _shared([u["level_unit"] for u in units]),
+        "level_unit": shared_value([u["level_unit"] for u in units]),
         "channels": units,
         "level_db": _columns(bands.level_db(_references(chains))),
     }
@@ -648,7 +643,7 @@ def spectrogram_section(
         "time_s": _series(sg.time_s, 4),
         "frequency_hz": _series(sg.frequency_hz, 3),
         "segments_per_column": [int(v) for v in sg.segments_per_column],
-        "level_unit": _shared([u["level_unit"] for u in units]),
+        "level_unit": shared_value([u["level_unit"] for u in units]),
         "channels": units,
         "level_db": [
             [_series(level[j, :, c], 1) for j in range(level.shape[0])]

@@ -117,13 +117,13 @@ class Spectrum:
     """
 
     file: str
-    unit: str
-    level_unit: str
+    unit: str | None
+    level_unit: str | None
     reference: float
     channel_indices: tuple[int, ...]
     result: PSDResult
     #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
-    quantity: str = "voltage"
+    quantity: str | None = "voltage"
     #: Where a channel's response curve does not cover the spectrum (end values held).
     response_curve_notes: tuple[str, ...] = ()
     quantities: tuple[str, ...] = ()
@@ -279,12 +279,12 @@ def spectrum_of(
     same = len(set(units)) == 1 and len(set(level_units)) == 1
     return Spectrum(
         file=str(source.recording.path),
-        unit=units[0] if same else "per channel",
-        level_unit=level_units[0] if same else "per channel",
+        unit=units[0] if same else None,
+        level_unit=level_units[0] if same else None,
         reference=float(source.references[0]) if same else math.nan,
         channel_indices=source.channel_indices,
         result=result,
-        quantity=chains[0].measured.name if same else "per channel",
+        quantity=chains[0].measured.name if same else None,
         response_curve_notes=tuple(source.curve_notes(result.resolution_hz, fs / 2)),
         quantities=tuple(c.measured.name for c in chains),
         units=units,
@@ -333,8 +333,8 @@ class Bands:
     """
 
     file: str
-    unit: str
-    level_unit: str
+    unit: str | None
+    level_unit: str | None
     reference: float
     sample_rate_hz: float
     channel_indices: tuple[int, ...]
@@ -344,7 +344,7 @@ class Bands:
     high_hz: float = 20000.0
     high_source: str = "option"
     #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
-    quantity: str = "voltage"
+    quantity: str | None = "voltage"
     #: Where a channel's response curve does not cover the bands (end values held).
     response_curve_notes: tuple[str, ...] = ()
     #: Each channel's quantity, unit, level unit and level reference (ISO 1683).
@@ -530,15 +530,15 @@ def bands_of(
     same = len(set(units)) == 1 and len(set(level_units)) == 1
     return Bands(
         file=str(source.recording.path),
-        unit=units[0] if same else "per channel",
-        level_unit=level_units[0] if same else "per channel",
+        unit=units[0] if same else None,
+        level_unit=level_units[0] if same else None,
         reference=float(source.references[0]) if same else math.nan,
         sample_rate_hz=source.sample_rate_hz,
         channel_indices=source.channel_indices,
         result=result,
         high_hz=float(high_hz),
         high_source=high_source,
-        quantity=chains[0].measured.name if same else "per channel",
+        quantity=chains[0].measured.name if same else None,
         response_curve_notes=tuple(source.curve_notes(*edges)) if edges else (),
         quantities=tuple(c.measured.name for c in chains),
         units=units,

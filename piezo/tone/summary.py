@@ -79,15 +79,15 @@ class Tone:
 
     file: str
     noise_file: str | None
-    unit: str
-    level_unit: str
+    unit: str | None
+    level_unit: str | None
     reference: float
     bandwidth_hz: tuple[float, float]
     channel_indices: tuple[int, ...]
     results: tuple[ToneResult, ...]
     bandwidth_source: str = "option"
     #: What the channels measure (pressure, acceleration ..., voltage uncalibrated).
-    quantity: str = "voltage"
+    quantity: str | None = "voltage"
     #: Each channel's quantity, unit, level unit and level reference (ISO 1683).
     quantities: tuple[str, ...] = ()
     units: tuple[str, ...] = ()
@@ -253,14 +253,14 @@ def tone_of(
     return Tone(
         file=file,
         noise_file=None if noise is None else str(noise.recording.path),
-        unit=units[0] if same else "per channel",
-        level_unit=level_units[0] if same else "per channel",
+        unit=units[0] if same else None,
+        level_unit=level_units[0] if same else None,
         reference=float(source.references[0]) if same else math.nan,
         bandwidth_hz=(float(low), float(high)),
         channel_indices=source.channel_indices,
         results=tuple(results),
         bandwidth_source=bandwidth_source,
-        quantity=chains[0].measured.name if same else "per channel",
+        quantity=chains[0].measured.name if same else None,
         quantities=tuple(c.measured.name for c in chains),
         units=units,
         level_units=level_units,

@@ -175,7 +175,7 @@ def test_channels_of_different_quantities_have_their_own_levels(cli, sine_wav):
         '[channel.0]\nsensitivity = "10 mV/Pa"\n[channel.1]\nsensitivity = "10 mV/g"\n',
     )
     doc = cli("levels", sine_wav, "--json").json()
-    assert doc["level_unit"] == "per channel"
+    assert doc["level_unit"] is None
     p, a = doc["channels"]
     assert (p["unit"], a["unit"]) == ("Pa", "m/s²")
     # 0.25 V peak over 10 mV/g is 25 g peak, RMS 25 g/√2, re 1 µm/s²; 0.5 V over
@@ -187,7 +187,7 @@ def test_channels_of_different_quantities_have_their_own_levels(cli, sine_wav):
     # the tone hold the whole sine: the same values as LZeq).
     bands = cli("bands", sine_wav, "--fraction", "1", "--low", "1kHz", "--high", "1kHz",
                 "--json").json()  # fmt: skip
-    assert bands["level_unit"] == "per channel"
+    assert bands["level_unit"] is None
     bp, ba = (ch["bands"][0]["level_db"] for ch in bands["channels"])
     assert (bp, ba) == pytest.approx((p["LZeq"], a["LZeq"]), abs=0.05)  # class 1 ripple
     assert [ch["unit"] for ch in bands["channels"]] == ["Pa", "m/s²"]
@@ -216,3 +216,23 @@ def test_channel_sections_are_checked(cli, sine_wav, tmp_path):
     r = cli("info", sine_wav, "--profile", far)
     assert r.code == 2 and len(r.err.strip().splitlines()) == 1
     assert "[channel.5] describes channel 5, but the recording has 2" in r.err
+
+
+def test_channels_sharing_a_reference_value_but_not_a_unit(cli, sine_wav, tmp_path):
+    # A hydrophone (re 1 µPa) and an accelerometer (re 1 µm/s²): the same number 1e-6 in
+    # two units (ISO 1683), so no document may state one reference for both.
+    write(
+        sine_wav.with_suffix(".toml"),
+        '[chain]\nreference = "1 uPa"\n'  # the pressure channels' reference (in water)
+        '[channel.0]\nsensitivity = "-200 dB re 1 V/µPa"\n'
+        '[channel.1]\nsensitivity = "10 mV/g"\n',
+    )
+    doc = cli("levels", sine_wav, "--json").json()
+    assert doc["unit"] is None and doc["level_unit"] is None
+    assert not [k for k in doc if k.startswith("reference")]
+    assert [ch["level_unit"] for ch in doc["channels"]] == ["dB re 1 µPa", "dB re 1 µm/s²"]
+    # One picture holds one level unit: --plot asks for a channel, in one line.
+    r = cli("spectrum", sine_wav, "--plot", tmp_path / "psd.png")
+    assert r.code == 2 and len(r.err.strip().splitlines()) == 1
+    assert "dB re 1 µPa; dB re 1 µm/s²" in r.err and "--channel N" in r.err
+    assert not (tmp_path / "psd.png").exists()

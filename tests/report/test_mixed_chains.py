@@ -73,7 +73,7 @@ def _source(path, profile, channels=None):
 def test_each_channel_states_its_own_chain(mixed):
     _, _, doc, _ = mixed
     chain = doc["chain"]
-    assert chain["unit"] == chain["level_unit"] == "per channel"
+    assert chain["unit"] is None and chain["level_unit"] is None
     assert chain["shared"] is False
     mic, acc = chain["channels"]
     assert (mic["quantity"], mic["unit"], mic["level_unit"]) == ("pressure", "Pa", "dB re 20 µPa")
@@ -103,7 +103,7 @@ def test_each_channel_states_its_own_chain(mixed):
 def test_levels_are_those_of_each_channel_alone(mixed):
     path, profile, doc, _ = mixed
     section = doc["levels"]
-    assert section["level_unit"] == "per channel"
+    assert section["level_unit"] is None
     for entry in section["channels"]:
         c = entry["channel"]
         alone = levels_of(_source(path, profile, [c]), interval_s=section["history"]["interval_s"])
