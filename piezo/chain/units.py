@@ -505,6 +505,20 @@ def _engineering(value: float) -> tuple[float, str]:
     return value / 10.0**exponent, symbol
 
 
+def squared_unit(unit: str, *, caret: bool = True) -> str:
+    """The square of ``unit`` as outputs write it: ``Pa^2``, ``(m/s²)^2`` (JSON, CSV) or
+    with a superscript, ``(m/s²)²`` (terminal); a compound unit is put in parentheses so
+    the square applies to all of it.
+
+    Examples
+    --------
+    >>> squared_unit("Pa"), squared_unit("m/s²"), squared_unit("m/s²", caret=False)
+    ('Pa^2', '(m/s²)^2', '(m/s²)²')
+    """
+    base = f"({unit})" if ("/" in unit or "²" in unit or " " in unit) else unit
+    return base + ("^2" if caret else "²")
+
+
 def format_quantity(value: float, unit: str, *, digits: int = 4) -> str:
     """Format ``value`` (in SI ``unit``) with an SI prefix and ``digits`` significant digits.
 

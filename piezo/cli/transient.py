@@ -10,7 +10,9 @@ from typing import Any
 
 from rich.table import Table
 
+from piezo.chain.units import squared_unit
 from piezo.cli.output import console, emit_json, progress
+from piezo.results import shared_value
 
 
 def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3) -> None:
@@ -36,16 +38,18 @@ def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3
             analyzer.update(block)
             advance(block.shape[0])
     r = analyzer.result()
-    ref = source.reference
-    ref_text = source.chain.level_unit.removeprefix("dB re ")
-    exposure_unit = f"dB re ({ref_text})²·s"
-    levels = r.exposure_level_db(ref)
-    bands = r.band_exposure_level_db(ref)
+    refs = source.references
+    units = source.units
+    # Each channel in its own unit: dB re (its reference)²·s (ISO 1683 references).
+    exposure_units = [f"dB re ({c.level_unit.removeprefix('dB re ')})²·s" for c in source.chains]
+    levels = r.exposure_level_db(refs)
+    bands = r.band_exposure_level_db(refs)
+    unit = shared_value(units)
     doc = {
         "file": str(file),
-        "unit": source.unit,
-        "exposure_unit": exposure_unit,
-        "esd_unit": f"{source.unit}²·s/Hz",
+        "unit": unit,
+        "exposure_unit": shared_value(exposure_units),
+        "esd_unit": None if unit is None else f"{squared_unit(unit, caret=False)}·s/Hz",
         "sample_rate_hz": fs,
         "duration_s": r.duration_s,
         "resolution_hz": r.resolution_hz,
@@ -54,6 +58,9 @@ def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3
         "channels": [
             {
                 "channel": ch,
+                "unit": units[i],
+                "exposure_unit": exposure_units[i],
+                "esd_unit": f"{squared_unit(units[i], caret=False)}·s/Hz",
                 "energy": float(r.energy[i]),
                 "exposure_level_db": float(levels[i]),
                 "band_nominal_hz": r.band_nominal_hz,
@@ -64,7 +71,7 @@ def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3
                         "duration_s": e.duration_s,
                         "peak": e.peak,
                         "energy": e.energy,
-                        "exposure_level_db": _level(e.energy, ref),
+                        "exposure_level_db": _level(e.energy, float(refs[i])),
                         "rms": (e.energy / e.duration_s) ** 0.5 if e.duration_s > 0 else None,
                     }
                     for e in r.events[i]
@@ -80,13 +87,14 @@ def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3
         return
     console.print(f"[bold]{file}[/bold]  transient view, {r.duration_s:.4g} s")
     for entry in doc["channels"]:
+        unit, exposure_unit = entry["unit"], entry["exposure_unit"]
         console.print(
             f"  channel {entry['channel']}: exposure {entry['exposure_level_db']:.2f} "
-            f"{exposure_unit} ({entry['energy']:.4g} {source.unit}²·s)"
+            f"{exposure_unit} ({entry['energy']:.4g} {squared_unit(unit, caret=False)}·s)"
         )
         if entry["events"]:
             table = Table(box=None, pad_edge=False, header_style="bold")
-            for name in ("event start s", "duration s", f"RMS {source.unit}",
+            for name in ("event start s", "duration s", f"RMS {unit}",
                          f"exposure {exposure_unit}"):  # fmt: skip
                 table.add_column(name, justify="right")
             for e in entry["events"][:40]:

@@ -17,6 +17,8 @@ from typing import Any
 import numpy as np
 
 from piezo.chain.measurement import CalibratedSource
+from piezo.chain.quantity import QUANTITIES
+from piezo.chain.units import squared_unit
 from piezo.errors import InputError
 from piezo.results import reference_key, to_jsonable
 from piezo.spectral.averaging import main_lobe_half_width_bins
@@ -142,9 +144,7 @@ class Spectrum:
             "quantity": self.quantities[column],
             "unit": self.units[column],
             "level_unit": self.level_units[column],
-            reference_key(self.units[column].removesuffix(self.result.unit_suffix)): (
-                self.references[column]
-            ),
+            reference_key(QUANTITIES[self.quantities[column]].unit): (self.references[column]),
         }
 
     def peaks(self, column: int) -> tuple[list[SpectralPeak], PeakRule]:
@@ -274,7 +274,7 @@ def spectrum_of(
     source.feed(est, *([] if spectrogram is None else [spectrogram]), *also, advance=advance)
     result = est.result()
     chains = source.chains
-    units = tuple(f"{c.unit}{result.unit_suffix}" for c in chains)
+    units = tuple(squared_unit(c.unit) + result.unit_suffix.removeprefix("^2") for c in chains)
     level_units = tuple(psd_level_unit(c.level_unit, scaling) for c in chains)
     same = len(set(units)) == 1 and len(set(level_units)) == 1
     return Spectrum(

@@ -475,13 +475,17 @@ class TransientResult:
     events: tuple[tuple[Event, ...], ...]
     resolution_hz: float
 
-    def exposure_level_db(self, reference: float) -> np.ndarray:
-        """10 lg(energy / (reference² · 1 s)) per channel: dB re (reference)²·s."""
+    def exposure_level_db(self, reference: float | np.ndarray) -> np.ndarray:
+        """10 lg(energy / (reference² · 1 s)) per channel: dB re (reference)²·s.
+
+        ``reference`` is one value or one per channel (each channel in its own unit)."""
         with np.errstate(divide="ignore"):
             return 10.0 * np.log10(self.energy / reference**2)
 
-    def band_exposure_level_db(self, reference: float) -> np.ndarray:
-        """Band exposure levels, dB re (reference)²·s, shape (bands, channels)."""
+    def band_exposure_level_db(self, reference: float | np.ndarray) -> np.ndarray:
+        """Band exposure levels, dB re (reference)²·s, shape (bands, channels).
+
+        ``reference`` is one value or one per channel."""
         with np.errstate(divide="ignore"):
             return 10.0 * np.log10(self.band_energy / reference**2)
 

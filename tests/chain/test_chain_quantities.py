@@ -196,7 +196,7 @@ def test_channels_of_different_quantities_have_their_own_levels(cli, sine_wav):
     assert (tp, ta) == pytest.approx((p["LZeq"], a["LZeq"]), abs=0.01)
     assert [ch["level_unit"] for ch in tone["channels"]] == ["dB re 20 µPa", "dB re 1 µm/s²"]
     spectrum = cli("spectrum", sine_wav, "--json").json()
-    assert [ch["unit"] for ch in spectrum["channels"]] == ["Pa^2/Hz", "m/s²^2/Hz"]
+    assert [ch["unit"] for ch in spectrum["channels"]] == ["Pa^2/Hz", "(m/s²)^2/Hz"]
     sp, sa = (ch["mean_square"] for ch in spectrum["channels"])
     # Parseval: the mean square in each channel's unit gives its LZeq.
     assert 10 * np.log10(sp / 20e-6**2) == pytest.approx(p["LZeq"], abs=0.01)

@@ -37,3 +37,22 @@ def test_spectrum_notes_the_transient(cli, burst):
     r = cli("spectrum", burst)
     assert r.code == 0, r.err
     assert "--transient" in r.err
+
+
+def test_each_channel_has_its_own_exposure_unit(cli, burst, tmp_path):
+    # The same burst on two channels: a 1 V/Pa microphone and a 1 V/(m/s²) accelerometer.
+    # Each exposure is re its own reference squared (ISO 1683: 20 µPa, 1 µm/s²).
+    x, fs = sf.read(burst)
+    two = tmp_path / "two.wav"
+    sf.write(two, np.column_stack([x, x]), fs, subtype="FLOAT")
+    r = cli("spectrum", two, "--transient", "--sensitivity", "0=1 V/Pa",
+            "--sensitivity", "1=1 V/(m/s²)", "--json")  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["unit"] is None and doc["exposure_unit"] is None
+    p, a = doc["channels"]
+    assert (p["unit"], a["unit"]) == ("Pa", "m/s²")
+    assert a["exposure_unit"] == "dB re (1 µm/s²)²·s" and a["esd_unit"] == "(m/s²)²·s/Hz"
+    energy = 0.3 * 0.125  # 0.3 s of (0.5/√2)² per unit²
+    assert p["exposure_level_db"] == pytest.approx(10 * math.log10(energy / 20e-6**2), abs=0.05)
+    assert a["exposure_level_db"] == pytest.approx(10 * math.log10(energy / 1e-6**2), abs=0.05)
