@@ -13,6 +13,7 @@ from piezo.cli.impedance import CAUTION, parse_band
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
+from piezo.results import shared_value
 
 
 def register(app: typer.Typer) -> None:
@@ -108,10 +109,12 @@ def ringdown(
 def _document(file: Path, source: Any, results: list[Any]) -> dict[str, Any]:
     """The ``--json`` document."""
     channels = []
-    for index, r in zip(source.channel_indices, results, strict=True):
+    units = source.units
+    for index, unit, r in zip(source.channel_indices, units, results, strict=True):
         channels.append(
             {
                 "channel": index,
+                "unit": unit,
                 "modes": list(r.modes),
                 "events": [
                     {
@@ -130,7 +133,7 @@ def _document(file: Path, source: Any, results: list[Any]) -> dict[str, Any]:
         )
     return {
         "file": str(file),
-        "unit": source.unit,
+        "unit": shared_value(units),
         "sample_rate_hz": source.sample_rate_hz,
         "method": "matrix pencil (Hua & Sarkar 1990) refined by least squares",
         "uncertainty_note": "standard uncertainties (k = 1) from the fit's covariance; "
@@ -159,7 +162,7 @@ def _print(doc: dict[str, Any]) -> None:
                 "—" if m.q_std is None else f"{m.q_std:.2g}",
                 f"{m.damping_ratio:.3g}",
                 f"{m.decay_db_per_s:.4g}",
-                f"{m.amplitude:.3g} {doc['unit']}",
+                f"{m.amplitude:.3g} {ch['unit']}",
                 str(m.events),
             )
         console.print(table)
