@@ -55,7 +55,7 @@ from typing import Any
 import numba
 import numpy as np
 
-from piezo._kernels.cache import compile_cached
+from piezo._kernels.cache import Kernel, compile_cached, first_call
 
 __all__ = [
     "BANK_SECTIONS",
@@ -159,6 +159,7 @@ def _sos_group4(sos, x, zi, g):
             zi[g + 3, 0, c], zi[g + 3, 1, c] = z30, z31
 
 
+@Kernel
 @_jit
 def sosfilt_inplace(sos, x, zi):
     """Filter a block in place through a cascade of second-order sections.
@@ -266,6 +267,7 @@ def _count_level(hist, c, value, ref_sq, low_db, step_db):
     return 0, 1
 
 
+@Kernel
 @_jit
 def level_meter_block(
     x,
@@ -659,7 +661,7 @@ def _bank_kernel(lanes: int) -> Callable:
     }
     try:
         kernel = compile_cached(func, **options)
-        kernel.compile(_BANK_SIGNATURE)
+        first_call(kernel.compile, _BANK_SIGNATURE)
     finally:
         config.SLP_VECTORIZE = previous
     _BANK_KERNELS[lanes] = kernel
