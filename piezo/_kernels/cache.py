@@ -178,17 +178,24 @@ _registries_loaded = False
 
 
 class Kernel:
-    """A compiled kernel (a numba dispatcher) called from Python.
+    """A kernel called from Python, compiled (or loaded from the cache) on first use.
 
-    Calls go straight to the dispatcher, except the process's first call of any
-    :class:`Kernel`, which runs with ``scipy.linalg`` hidden from this thread (module
-    docstring): loading numba's registries then skips the BLAS probe. Attributes are
-    the dispatcher's (``py_func``, ``signatures``, ...).
+    Until then it is the plain Python function and numba is not even imported, so a
+    command that imports an analysis without running its kernels does not pay for
+    numba (about 0.15 s of CPU). The first call makes the dispatcher
+    (:func:`compile_cached` with ``options``) after ``prepare()`` (which compiles the
+    helpers the kernel calls); the process's first call of any kernel runs as
+    :func:`first_call` (without scipy.linalg). Later calls go straight to the
+    dispatcher, whose attributes (``signatures``, ``_cache``, ...) the kernel passes on.
 
     Parameters
     ----------
-    dispatcher
-        What :func:`compile_cached` returned.
+    func
+        The kernel's Python source function.
+    prepare
+        Called once before the dispatcher is made, or None.
+    **options
+        For ``numba.njit``.
 
     Examples
     --------
@@ -202,17 +209,37 @@ class Kernel:
     [1.0, 1.5, 1.75]
     """
 
-    def __init__(self, dispatcher: Any) -> None:
-        self.dispatcher = dispatcher
-        self.__name__ = dispatcher.py_func.__name__
-        self.__doc__ = dispatcher.py_func.__doc__
+    def __init__(
+        self,
+        func: Callable[..., Any],
+        *,
+        prepare: Callable[[], None] | None = None,
+        **options: Any,
+    ) -> None:
+        self._dispatcher: Any = None
+        self.py_func = func
+        self.__name__ = func.__name__
+        self.__doc__ = func.__doc__
+        self._prepare = prepare
+        self._options = options
+
+    @property
+    def dispatcher(self) -> Any:
+        """The numba dispatcher (made on first access)."""
+        if self._dispatcher is None:
+            if self._prepare is not None:
+                self._prepare()
+            self._dispatcher = compile_cached(self.py_func, **self._options)
+        return self._dispatcher
 
     def __call__(self, *args: Any) -> Any:
-        if _registries_loaded:
-            return self.dispatcher(*args)
+        if _registries_loaded and self._dispatcher is not None:
+            return self._dispatcher(*args)
         return first_call(self.dispatcher, *args)
 
     def __getattr__(self, name: str) -> Any:
+        if name.startswith("__"):  # copy, pickle and the like probe for these
+            raise AttributeError(name)
         return getattr(self.dispatcher, name)
 
 

@@ -183,3 +183,28 @@ def test_kernel_passes_attributes_to_the_dispatcher():
     assert kern.sosfilt_inplace.py_func.__name__ == "sosfilt_inplace"
     assert kern.sosfilt_inplace.__doc__ == kern.sosfilt_inplace.py_func.__doc__
     assert isinstance(kern.level_meter_block, Kernel)
+
+
+def test_importing_the_analyses_does_not_import_numba(tmp_path):
+    # numba (about 0.15 s of CPU) is imported by the first kernel call, not by importing
+    # a module that may never run one (``piezo info``, ``spectrum`` and ``tone`` do not).
+    child = (
+        "import sys\n"
+        "import piezo.chain.measurement, piezo.levels.meter, piezo.levels.stats\n"
+        "import piezo.spectral.bands, piezo._kernels.filters as k\n"
+        "assert 'numba' not in sys.modules, 'imported numba'\n"
+        "import numpy as np\n"
+        "x = np.ones((2, 1))\n"
+        "k.sosfilt_inplace(np.array([[1.0, 0, 0, 1, -0.5, 0]]), x, np.zeros((1, 2, 1)))\n"
+        "print('numba' in sys.modules, x[:, 0].tolist())\n"
+    )
+    run = subprocess.run(
+        [sys.executable, "-W", "error", "-c", child],
+        cwd=tmp_path,
+        env={**os.environ, "PYTHONPATH": str(REPO)},
+        capture_output=True,
+        text=True,
+        timeout=180,
+    )
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.split(maxsplit=1) == ["True", "[1.0, 1.5]\n"]  # y = x + 0.5 y[n-1]
