@@ -35,6 +35,7 @@ reads a few hundred bytes instead of importing and running the design code.
 from __future__ import annotations
 
 import contextlib
+import gc
 import hashlib
 import io
 import os
@@ -259,11 +260,18 @@ def first_call(func: Callable[..., Any], *args: Any) -> Any:
     global _registries_loaded
     if _registries_loaded:
         return func(*args)
+    # numba creates some hundred thousand long-lived objects while it loads; the garbage
+    # collector would walk them several times over (about 0.04 s), so it waits.
+    collecting = gc.isenabled()
+    gc.disable()
     try:
         with hidden_module("scipy.linalg"):
             result = func(*args)
     except ImportError:
         result = func(*args)
+    finally:
+        if collecting:
+            gc.enable()
     _registries_loaded = True
     return result
 

@@ -138,6 +138,21 @@ def test_python_dash_m_works(tmp_path):
     assert r.stdout.strip() == f"piezo {__version__}"
 
 
+def test_a_process_ends_with_its_whole_output_and_exit_code(cli, tmp_path):
+    # The console entry freezes the garbage collector's objects before exiting (start-up
+    # time): the output of a whole process must still equal the in-process run's, and a
+    # refused input still exit 2 with its one line.
+    path = tmp_path / "tone.wav"
+    fs = 8000
+    sf.write(str(path), 0.1 * np.sin(2 * np.pi * 1000 * np.arange(fs) / fs), fs)
+    whole = run_piezo("levels", path, "--json", "--interval", "0.25s")
+    assert whole.returncode == 0, whole.stderr
+    assert whole.stdout == cli("levels", path, "--json", "--interval", "0.25s").out
+    bad = run_piezo("levels", tmp_path / "missing.wav")
+    assert bad.returncode == 2
+    assert len(bad.stderr.splitlines()) == 1 and "missing.wav" in bad.stderr
+
+
 @pytest.fixture
 def full_scale_sine(tmp_path):
     fs = 48000
