@@ -24,6 +24,7 @@ import gc
 import importlib
 import importlib.util
 import inspect
+import os
 import re
 import sys
 from collections.abc import Sequence
@@ -51,6 +52,7 @@ from piezo.cli.exits import (
     EXIT_USAGE,
 )
 from piezo.errors import PiezoError
+from piezo.threads import one_numeric_thread
 
 __all__ = [
     "COMMANDS",
@@ -421,6 +423,10 @@ def main(argv: list[str] | None = None) -> None:
     2
     """
     args = sys.argv[1:] if argv is None else argv
+    if argv is None:
+        # A process of its own: numpy is not imported yet, and one BLAS/OpenMP thread is
+        # all piezo's small linear algebra uses (piezo.threads).
+        one_numeric_thread(os.environ)
     code = _exit_code(args)
     if argv is None:
         # The process ends here: move every object out of the garbage collector's reach

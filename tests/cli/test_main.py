@@ -523,3 +523,31 @@ def test_interrupt_prints_one_line_and_exits_130(tmp_path):
     assert proc.returncode == 130
     assert err.splitlines() == ["piezo: interrupted"]
     assert "Traceback" not in err
+
+
+def test_a_piezo_process_runs_one_blas_thread_unless_the_user_chose(tmp_path):
+    probe = textwrap.dedent(
+        """
+        import os, runpy, sys
+        sys.argv = ["piezo", "--version"]
+        try:
+            runpy.run_module("piezo", run_name="__main__")
+        except SystemExit:
+            pass
+        print(os.environ.get("OPENBLAS_NUM_THREADS"), os.environ.get("OMP_NUM_THREADS"))
+        """
+    )
+    base = {k: v for k, v in os.environ.items() if not k.endswith("_NUM_THREADS")}
+
+    def run(**extra):
+        r = subprocess.run(
+            [sys.executable, "-c", probe],
+            capture_output=True,
+            text=True,
+            check=True,
+            env={**base, "PYTHONPATH": str(REPO), **extra},
+        )
+        return r.stdout.splitlines()[-1]
+
+    assert run() == "1 1"
+    assert run(OMP_NUM_THREADS="3") == "None 3"  # the user's choice: nothing touched
