@@ -149,6 +149,10 @@ _FIRST_CALL_CHILD = textwrap.dedent(
     k.sosfilt_inplace(sos, y, np.zeros((len(sos), 2, 2)))
     bank = k.SOSBank([np.array([[0.5, 0.0, 0.5, 1.0, 0.0, 0.0]] * 4)], 1, output_index=0)
     bank.process(np.ones((3, 1)), np.array([0]))
+    from piezo.levels.meter import LevelMeter
+    meter = LevelMeter(48000.0, 2)
+    meter.update(x)
+    meter.result()
     print("scipy.linalg" in sys.modules)
     from scipy import signal  # imports scipy.linalg: it must work as usual now
     import scipy.linalg.cython_blas  # noqa: F401
@@ -159,9 +163,10 @@ _FIRST_CALL_CHILD = textwrap.dedent(
 
 
 def test_kernels_load_without_scipy_linalg_and_scipy_works_afterwards(tmp_path):
-    # A fresh process, as a command runs: the cached kernels load (or compile) without
-    # importing scipy.linalg, and give scipy.signal.sosfilt's result afterwards.
-    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    # A fresh process, as a command runs: every kernel compiles (an empty cache folder)
+    # and runs without importing scipy.linalg (a kernel needing BLAS would fail here),
+    # and gives scipy.signal.sosfilt's result afterwards.
+    env = {**os.environ, "PYTHONPATH": str(REPO), "NUMBA_CACHE_DIR": str(tmp_path / "numba")}
     run = subprocess.run(
         [sys.executable, "-W", "error", "-c", _FIRST_CALL_CHILD],
         cwd=tmp_path,
