@@ -23,9 +23,9 @@ The band-bank kernels (:class:`SOSBank`)
 
 All are compiled with ``numba.njit(cache=True, nogil=True)`` on first use (1-3 s,
 once); numba itself is imported then, not when this module is. The machine code is
-cached in a per-user folder outside the package (:mod:`piezo._kernels.cache`); later
-processes load it in about 0.15 s. When that folder is not writable the kernels are
-compiled in every process.
+cached in a per-user folder outside the package (:mod:`piezo._kernels.cache`); a later
+process imports numba and loads it in about 0.25 s of CPU. When that folder is not
+writable the kernels are compiled in every process.
 ``fastmath`` is limited to ``contract`` (fused multiply-add allowed): no
 reassociation, no assumptions about NaN or infinity, so results differ from scipy's
 ``sosfilt`` by rounding only. ``nogil``: threads can run kernels in parallel.
