@@ -23,7 +23,8 @@ run of each command fills numba's cache, so the timed runs load compiled kernels
 user's second run would; so does the byte code of every process, cached in
 ``<data>/pycache`` (``PYTHONPYCACHEPREFIX``) as an installed package has its ``.pyc``
 files (``--no-bytecode-cache``: every process compiles its sources, as under
-``PYTHONDONTWRITEBYTECODE``). Run it from the repository root::
+``PYTHONDONTWRITEBYTECODE``). Every process runs one BLAS/OpenMP thread, as piezo's
+command line does by default. Run it from the repository root::
 
     PYTHONPATH=. python benchmarks/bench_startup.py --quick   # start-up, 20/10-min files
     PYTHONPATH=. python benchmarks/bench_startup.py           # and the 1-h/4-h memory
@@ -114,6 +115,12 @@ PYCACHE: Path | None = None
 def measure(argv: list[str], *, repeat: int) -> Run:
     """Run ``argv`` ``repeat`` times (stdout discarded); medians and the largest peak RSS."""
     env = {**os.environ, "PYTHONPATH": str(REPO), "COLUMNS": "80"}
+    # One BLAS/OpenMP thread for every process, reference processes included: piezo's
+    # command line asks for that itself (piezo.threads), and a reference process that
+    # starts OpenBLAS's pool pays up to 0.07 s of CPU for it (its idle threads spin on
+    # a free core), which is no part of decoding a file.
+    for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        env[name] = "1"
     if PYCACHE is not None:  # byte code cached, whatever the calling shell says
         env.pop("PYTHONDONTWRITEBYTECODE", None)
         env["PYTHONPYCACHEPREFIX"] = str(PYCACHE)
