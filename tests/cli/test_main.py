@@ -551,3 +551,22 @@ def test_a_piezo_process_runs_one_blas_thread_unless_the_user_chose(tmp_path):
 
     assert run() == "1 1"
     assert run(OMP_NUM_THREADS="3") == "None 3"  # the user's choice: nothing touched
+
+
+def test_collection_resumes_once_the_command_module_is_loaded(monkeypatch):
+    # A console run starts with the garbage collector off (start-up time); loading the
+    # command's module must turn it back on, or a long batch or report would never
+    # collect.
+    import gc
+
+    from piezo import cli
+
+    monkeypatch.setitem(cli._state, "collection_paused", True)
+    gc.disable()
+    try:
+        cli._load("levels")
+        assert gc.isenabled()
+        assert cli._state["collection_paused"] is False
+    finally:
+        gc.enable()
+        gc.unfreeze()
