@@ -24,7 +24,9 @@ user's second run would; so does the byte code of every process, cached in
 ``<data>/pycache`` (``PYTHONPYCACHEPREFIX``) as an installed package has its ``.pyc``
 files (``--no-bytecode-cache``: every process compiles its sources, as under
 ``PYTHONDONTWRITEBYTECODE``). Every process runs one BLAS/OpenMP thread, as piezo's
-command line does by default. Run it from the repository root::
+command line does by default (``--default-blas-threads``: the reference processes keep
+the libraries' default, i.e. pay for OpenBLAS's thread pool). Run it from the
+repository root::
 
     PYTHONPATH=. python benchmarks/bench_startup.py --quick   # start-up, 20/10-min files
     PYTHONPATH=. python benchmarks/bench_startup.py           # and the 1-h/4-h memory
@@ -110,6 +112,8 @@ class Run:
 #: ``.pyc`` files, so a user's second run does not compile piezo's sources again; kept
 #: outside the repository, beside the test files.
 PYCACHE: Path | None = None
+#: Whether every measured process gets one BLAS/OpenMP thread (set by ``main``).
+ONE_BLAS_THREAD = True
 
 
 def measure(argv: list[str], *, repeat: int) -> Run:
@@ -118,9 +122,11 @@ def measure(argv: list[str], *, repeat: int) -> Run:
     # One BLAS/OpenMP thread for every process, reference processes included: piezo's
     # command line asks for that itself (piezo.threads), and a reference process that
     # starts OpenBLAS's pool pays up to 0.07 s of CPU for it (its idle threads spin on
-    # a free core), which is no part of decoding a file.
-    for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        env[name] = "1"
+    # a free core), which is no part of decoding a file. --default-blas-threads leaves
+    # the libraries' defaults to the reference processes.
+    if ONE_BLAS_THREAD:
+        for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+            env[name] = "1"
     if PYCACHE is not None:  # byte code cached, whatever the calling shell says
         env.pop("PYTHONDONTWRITEBYTECODE", None)
         env["PYTHONPYCACHEPREFIX"] = str(PYCACHE)
@@ -193,10 +199,16 @@ def main() -> None:
         action="store_true",
         help="let every process compile its Python sources (as with PYTHONDONTWRITEBYTECODE)",
     )
+    parser.add_argument(
+        "--default-blas-threads",
+        action="store_true",
+        help="reference processes keep the numerical libraries' default thread count",
+    )
     args = parser.parse_args()
     data = args.data or Path(tempfile.gettempdir()) / "piezo-bench-data"
     data.mkdir(parents=True, exist_ok=True)
-    global PYCACHE
+    global PYCACHE, ONE_BLAS_THREAD
+    ONE_BLAS_THREAD = not args.default_blas_threads
     if args.no_bytecode_cache:
         os.environ["PYTHONDONTWRITEBYTECODE"] = "1"
     else:
@@ -204,9 +216,10 @@ def main() -> None:
     py = sys.executable
     piezo = [py, "-m", "piezo"]
     print(f"piezo from {REPO}, python {sys.version.split()[0]}, load {os.getloadavg()[0]:.1f}")
-    print(
-        f"byte code: {'compiled in every process' if PYCACHE is None else f'cached in {PYCACHE}'}"
-    )
+    cached = "compiled in every process" if PYCACHE is None else f"cached in {PYCACHE}"
+    print(f"byte code: {cached}")
+    threads = "one for every process" if ONE_BLAS_THREAD else "the libraries' default"
+    print(f"BLAS/OpenMP threads: {threads} (piezo's command line asks for one)")
 
     with tempfile.TemporaryDirectory() as tmp:
         minimal = Path(tmp) / "minimal_app.py"
