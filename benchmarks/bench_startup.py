@@ -20,7 +20,13 @@ the one a user feels. Targets:
 Test files are generated with a fixed seed into ``<temp>/piezo-bench-data`` (or
 ``--data DIR``), never into the repository, and kept for the next run. A first, untimed
 run of each command fills numba's cache, so the timed runs load compiled kernels as a
-user's second run would. Run it from the repository root::
+user's second run would; so does the byte code of every process, cached in
+``<data>/pycache`` (``PYTHONPYCACHEPREFIX``) as an installed package has its ``.pyc``
+files (``--no-bytecode-cache``: every process compiles its sources, as under
+``PYTHONDONTWRITEBYTECODE``). Every process runs one BLAS/OpenMP thread, as piezo's
+command line does by default (``--default-blas-threads``: the reference processes keep
+the libraries' default, i.e. pay for OpenBLAS's thread pool). Run it from the
+repository root::
 
     PYTHONPATH=. python benchmarks/bench_startup.py --quick   # start-up, 20/10-min files
     PYTHONPATH=. python benchmarks/bench_startup.py           # and the 1-h/4-h memory
@@ -102,9 +108,28 @@ class Run:
     rss_mb: float
 
 
+#: Byte-code cache of every measured process (set by ``main``): an installed piezo has its
+#: ``.pyc`` files, so a user's second run does not compile piezo's sources again; kept
+#: outside the repository, beside the test files.
+PYCACHE: Path | None = None
+#: Whether every measured process gets one BLAS/OpenMP thread (set by ``main``).
+ONE_BLAS_THREAD = True
+
+
 def measure(argv: list[str], *, repeat: int) -> Run:
     """Run ``argv`` ``repeat`` times (stdout discarded); medians and the largest peak RSS."""
     env = {**os.environ, "PYTHONPATH": str(REPO), "COLUMNS": "80"}
+    # One BLAS/OpenMP thread for every process, reference processes included: piezo's
+    # command line asks for that itself (piezo.threads), and a reference process that
+    # starts OpenBLAS's pool pays up to 0.07 s of CPU for it (its idle threads spin on
+    # a free core), which is no part of decoding a file. --default-blas-threads leaves
+    # the libraries' defaults to the reference processes.
+    if ONE_BLAS_THREAD:
+        for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+            env[name] = "1"
+    if PYCACHE is not None:  # byte code cached, whatever the calling shell says
+        env.pop("PYTHONDONTWRITEBYTECODE", None)
+        env["PYTHONPYCACHEPREFIX"] = str(PYCACHE)
     walls, cpus, rss = [], [], []
     for _ in range(repeat):
         start = time.perf_counter()
@@ -169,12 +194,32 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="skip the 1-h and 4-h files")
     parser.add_argument("--repeat", type=int, default=5, help="runs of each short process")
     parser.add_argument("--data", type=Path, help="folder for the generated test files")
+    parser.add_argument(
+        "--no-bytecode-cache",
+        action="store_true",
+        help="let every process compile its Python sources (as with PYTHONDONTWRITEBYTECODE)",
+    )
+    parser.add_argument(
+        "--default-blas-threads",
+        action="store_true",
+        help="reference processes keep the numerical libraries' default thread count",
+    )
     args = parser.parse_args()
     data = args.data or Path(tempfile.gettempdir()) / "piezo-bench-data"
     data.mkdir(parents=True, exist_ok=True)
+    global PYCACHE, ONE_BLAS_THREAD
+    ONE_BLAS_THREAD = not args.default_blas_threads
+    if args.no_bytecode_cache:
+        os.environ["PYTHONDONTWRITEBYTECODE"] = "1"
+    else:
+        PYCACHE = data / "pycache"
     py = sys.executable
     piezo = [py, "-m", "piezo"]
     print(f"piezo from {REPO}, python {sys.version.split()[0]}, load {os.getloadavg()[0]:.1f}")
+    cached = "compiled in every process" if PYCACHE is None else f"cached in {PYCACHE}"
+    print(f"byte code: {cached}")
+    threads = "one for every process" if ONE_BLAS_THREAD else "the libraries' default"
+    print(f"BLAS/OpenMP threads: {threads} (piezo's command line asks for one)")
 
     with tempfile.TemporaryDirectory() as tmp:
         minimal = Path(tmp) / "minimal_app.py"
@@ -187,6 +232,7 @@ def main() -> None:
         print("\n1. help")
         measure([py, str(minimal), "--help"], repeat=1)  # warm the file cache
         base = measure([py, str(minimal), "--help"], repeat=args.repeat)
+        measure([*piezo, "--help"], repeat=1)  # byte code cached
         run = measure([*piezo, "--help"], repeat=args.repeat)
         report("piezo --help vs minimal typer app", run, base, 1.5)
         print(f"{'':<44} peak RSS {run.rss_mb:.0f} MB (target <= 60 MB)")
@@ -196,6 +242,7 @@ def main() -> None:
         print("\n2. a 2-s capture")
         capture = data_file(data, "capture-2s.wav", 2.0)
         measure([*piezo, "levels", str(capture)], repeat=1)  # numba cache filled
+        measure([py, str(reader), str(capture)], repeat=1)  # byte code cached
         floor = measure([py, str(reader), str(capture)], repeat=args.repeat)
         run = measure([*piezo, "levels", str(capture)], repeat=args.repeat)
         report("piezo levels (2 s) vs numpy+soundfile read", run, floor, 5.0)
@@ -204,6 +251,7 @@ def main() -> None:
         twenty = data_file(data, "noise-20min.wav", 20 * 60)
         ten = data_file(data, "noise-10min.wav", 10 * 60)
         measure([*piezo, "bands", str(capture), "--fraction", "3"], repeat=1)
+        measure([py, str(floor_script), str(capture)], repeat=1)  # byte code cached
         floor20 = measure([py, str(floor_script), str(twenty)], repeat=2)
         run = measure([*piezo, "levels", str(twenty)], repeat=2)
         report("piezo levels (20 min) vs decode floor", run, floor20, 3.0)

@@ -15,6 +15,17 @@ piezo chooses the folder itself, in this order:
 When the chosen folder cannot be created or written, kernels are compiled in every
 process (about 1-3 s) and nothing is written anywhere.
 
+Loading a cached kernel makes numba import all its implementation registries once per
+process; one of them (``numba.np.arraymath``) probes for BLAS by importing
+``scipy.linalg.cython_blas``, i.e. all of ``scipy.linalg`` (about 0.2 s of CPU), which no
+piezo kernel uses. :class:`Kernel` runs the process's first kernel call with
+``scipy.linalg`` hidden from the calling thread (see :func:`hidden_module`), so numba
+records "no BLAS" and moves on; ``scipy.linalg`` imports normally afterwards and in
+every other thread. The one lasting effect: numba-compiled ``np.convolve`` and
+``np.correlate`` in the same process use numba's own loop instead of BLAS (same result
+to rounding). Nothing of numba is patched: when a numba release stops tolerating the
+missing module, the call is simply repeated without the guard (tested).
+
 Filter designs that need an optimiser or scipy's filter design (the IEC 61672-1 weighting
 fit, for instance) are kept the same way, per sample rate, by :func:`cached_arrays` in
 ``<dir>/designs`` (``$PIEZO_CACHE_DIR/designs`` when set): a later process at the same rate
@@ -24,11 +35,13 @@ reads a few hundred bytes instead of importing and running the design code.
 from __future__ import annotations
 
 import contextlib
+import gc
 import hashlib
 import io
 import os
 import sys
 import tempfile
+import threading
 from collections.abc import Callable, Iterator
 from functools import cache
 from pathlib import Path
@@ -37,7 +50,16 @@ from typing import Any
 from piezo.errors import OutputError
 from piezo.io.atomic import write_bytes_atomic
 
-__all__ = ["cache_folder", "cached_arrays", "code_digest", "compile_cached", "design_folder"]
+__all__ = [
+    "Kernel",
+    "cache_folder",
+    "cached_arrays",
+    "code_digest",
+    "compile_cached",
+    "design_folder",
+    "first_call",
+    "hidden_module",
+]
 
 
 def _platform_cache_home() -> Path:
@@ -110,6 +132,148 @@ def compile_cached(func: Callable[..., Any], **options: Any) -> Any:
         return numba.njit(cache=False, **options)(func)
     with _numba_cache_dir(folder):
         return numba.njit(cache=True, **options)(func)
+
+
+class _HideFromThread:
+    """A ``sys.meta_path`` finder refusing one module name to one thread."""
+
+    def __init__(self, name: str) -> None:
+        self.name = name
+        self.thread = threading.get_ident()
+
+    def find_spec(self, fullname: str, path: Any = None, target: Any = None) -> None:
+        if fullname == self.name and threading.get_ident() == self.thread:
+            raise ModuleNotFoundError(f"{fullname} hidden while piezo loads its kernels")
+
+
+@contextlib.contextmanager
+def hidden_module(name: str) -> Iterator[None]:
+    """Within the block, ``import name`` (and of its submodules) fails in this thread
+    when the module is not loaded yet; other threads import it as usual.
+
+    A finder in front of ``sys.meta_path`` (the import system's documented hook,
+    PEP 451) refuses the name; a module already in ``sys.modules`` is not affected.
+
+    Examples
+    --------
+    >>> import sys
+    >>> with hidden_module("piezo_no_such_module_loaded"):
+    ...     try:
+    ...         import piezo_no_such_module_loaded
+    ...     except ImportError as e:
+    ...         print("refused")
+    refused
+    >>> with hidden_module("json"):  # loaded already: not affected
+    ...     import json
+    """
+    finder = _HideFromThread(name)
+    sys.meta_path.insert(0, finder)
+    try:
+        yield
+    finally:
+        sys.meta_path.remove(finder)
+
+
+#: Set once the process's first kernel call has returned (numba's registries loaded).
+_registries_loaded = False
+
+
+class Kernel:
+    """A kernel called from Python, compiled (or loaded from the cache) on first use.
+
+    Until then it is the plain Python function and numba is not even imported, so a
+    command that imports an analysis without running its kernels does not pay for
+    numba (about 0.15 s of CPU). The first call makes the dispatcher
+    (:func:`compile_cached` with ``options``) after ``prepare()`` (which compiles the
+    helpers the kernel calls); the process's first call of any kernel runs as
+    :func:`first_call` (without scipy.linalg). Later calls go straight to the
+    dispatcher, whose attributes (``signatures``, ``_cache``, ...) the kernel passes on.
+
+    Parameters
+    ----------
+    func
+        The kernel's Python source function.
+    prepare
+        Called once before the dispatcher is made, or None.
+    **options
+        For ``numba.njit``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from piezo._kernels.filters import sosfilt_inplace
+    >>> isinstance(sosfilt_inplace, Kernel), sosfilt_inplace.__name__
+    (True, 'sosfilt_inplace')
+    >>> x = np.ones((3, 1))  # y[n] = x[n] + 0.5 y[n-1]
+    >>> sosfilt_inplace(np.array([[1.0, 0, 0, 1, -0.5, 0]]), x, np.zeros((1, 2, 1)))
+    >>> x[:, 0].tolist()
+    [1.0, 1.5, 1.75]
+    """
+
+    def __init__(
+        self,
+        func: Callable[..., Any],
+        *,
+        prepare: Callable[[], None] | None = None,
+        **options: Any,
+    ) -> None:
+        self._dispatcher: Any = None
+        self.py_func = func
+        self.__name__ = func.__name__
+        self.__doc__ = func.__doc__
+        self._prepare = prepare
+        self._options = options
+
+    @property
+    def dispatcher(self) -> Any:
+        """The numba dispatcher (made on first access)."""
+        if self._dispatcher is None:
+            if self._prepare is not None:
+                self._prepare()
+            self._dispatcher = compile_cached(self.py_func, **self._options)
+        return self._dispatcher
+
+    def __call__(self, *args: Any) -> Any:
+        if _registries_loaded and self._dispatcher is not None:
+            return self._dispatcher(*args)
+        return first_call(self.dispatcher, *args)
+
+    def __getattr__(self, name: str) -> Any:
+        if name.startswith("__"):  # copy, pickle and the like probe for these
+            raise AttributeError(name)
+        return getattr(self.dispatcher, name)
+
+
+def first_call(func: Callable[..., Any], *args: Any) -> Any:
+    """``func(*args)``; as the process's first kernel call when none has run yet.
+
+    For a kernel called through its dispatcher, e.g. ``first_call(dispatcher.compile,
+    signature)``; :class:`Kernel` calls it itself. The first call runs with
+    ``scipy.linalg`` hidden from this thread; if that raises ImportError (a numba that
+    needs the module after all), it is repeated without the guard.
+
+    Examples
+    --------
+    >>> first_call(max, 2.0, 3.0)
+    3.0
+    """
+    global _registries_loaded
+    if _registries_loaded:
+        return func(*args)
+    # numba creates some hundred thousand long-lived objects while it loads; the garbage
+    # collector would walk them several times over (about 0.04 s), so it waits.
+    collecting = gc.isenabled()
+    gc.disable()
+    try:
+        with hidden_module("scipy.linalg"):
+            result = func(*args)
+    except ImportError:
+        result = func(*args)
+    finally:
+        if collecting:
+            gc.enable()
+    _registries_loaded = True
+    return result
 
 
 def design_folder() -> Path:

@@ -22,9 +22,10 @@ The band-bank kernels (:class:`SOSBank`)
     the full output of one filter (the anti-alias low-pass) as the only results.
 
 All are compiled with ``numba.njit(cache=True, nogil=True)`` on first use (1-3 s,
-once). The machine code is cached in a per-user folder outside the package
-(:mod:`piezo._kernels.cache`); later processes load it in about 0.2 s. When that folder
-is not writable the kernels are compiled in every process.
+once); numba itself is imported then, not when this module is. The machine code is
+cached in a per-user folder outside the package (:mod:`piezo._kernels.cache`); a later
+process imports numba and loads it in about 0.25 s of CPU. When that folder is not
+writable the kernels are compiled in every process.
 ``fastmath`` is limited to ``contract`` (fused multiply-add allowed): no
 reassociation, no assumptions about NaN or infinity, so results differ from scipy's
 ``sosfilt`` by rounding only. ``nogil``: threads can run kernels in parallel.
@@ -48,14 +49,14 @@ from __future__ import annotations
 import importlib
 import math
 import os
+import threading
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
-import numba
 import numpy as np
 
-from piezo._kernels.cache import compile_cached
+from piezo._kernels.cache import Kernel, compile_cached, first_call
 
 __all__ = [
     "BANK_SECTIONS",
@@ -100,19 +101,48 @@ __all__ = [
 _OPTIONS: dict[str, Any] = {"nogil": True, "fastmath": {"contract"}, "error_model": "numpy"}
 
 
-def _jit(func: Callable) -> Callable:
-    """``numba.njit`` with the options above, cached outside the package when possible."""
-    return compile_cached(func, **_OPTIONS)
+# The kernels and their helpers stay plain Python functions until the first kernel
+# call: then :func:`_compile_helpers` replaces the helpers in this module's namespace by
+# numba functions (a kernel being compiled looks them up there) and the kernel makes
+# its dispatcher (:class:`piezo._kernels.cache.Kernel`). Importing this module does not
+# import numba.
+#: Helpers inlined into the kernels that call them.
+_INLINE = ("_biquad", "_coefficients", "_state", "_count_level")
+#: Helpers compiled as functions of their own (called from a kernel), cached.
+_CALLED = ("_sos_group4",)
 
 
-@numba.njit(inline="always", **_OPTIONS)
+_HELPERS_LOCK = threading.Lock()
+_helpers_compiled = False
+
+
+def _compile_helpers() -> None:
+    """Replace the helpers by their numba functions (once per process)."""
+    global _helpers_compiled
+    with _HELPERS_LOCK:
+        if _helpers_compiled:
+            return
+        import numba
+
+        names = globals()
+        for name in _INLINE:
+            names[name] = numba.njit(inline="always", **_OPTIONS)(names[name])
+        for name in _CALLED:
+            names[name] = compile_cached(names[name], **_OPTIONS)
+        _helpers_compiled = True
+
+
+def _kernel(func: Callable) -> Kernel:
+    """A kernel with the options above, cached outside the package when possible."""
+    return Kernel(func, prepare=_compile_helpers, **_OPTIONS)
+
+
 def _biquad(v, b0, b1, b2, a1, a2, z0, z1):
     """One transposed-direct-form-II step: (output, new z0, new z1)."""
     y = b0 * v + z0
     return y, (b1 * v + z1) - a1 * y, b2 * v - a2 * y
 
 
-@numba.njit(inline="always", **_OPTIONS)
 def _coefficients(sos, s):
     """(b0, b1, b2, a1, a2) of section ``s``; a pass-through section beyond the end."""
     if s < sos.shape[0]:
@@ -120,12 +150,10 @@ def _coefficients(sos, s):
     return 1.0, 0.0, 0.0, 0.0, 0.0
 
 
-@numba.njit(inline="always", **_OPTIONS)
 def _state(zi, s, k, c):
     return zi[s, k, c] if s < zi.shape[0] else 0.0
 
 
-@_jit
 def _sos_group4(sos, x, zi, g):
     """Sections g..g+3 of the cascade over the whole block (pass-through beyond the end).
 
@@ -159,7 +187,7 @@ def _sos_group4(sos, x, zi, g):
             zi[g + 3, 0, c], zi[g + 3, 1, c] = z30, z31
 
 
-@_jit
+@_kernel
 def sosfilt_inplace(sos, x, zi):
     """Filter a block in place through a cascade of second-order sections.
 
@@ -248,7 +276,6 @@ def new_level_state(channels: int) -> np.ndarray:
     return state
 
 
-@numba.njit(inline="always", **_OPTIONS)
 def _count_level(hist, c, value, ref_sq, low_db, step_db):
     """Count ``value`` (a mean square) in the level histogram ``hist[c]``.
 
@@ -266,7 +293,7 @@ def _count_level(hist, c, value, ref_sq, low_db, step_db):
     return 0, 1
 
 
-@_jit
+@_kernel
 def level_meter_block(
     x,
     c_sos,
@@ -649,6 +676,8 @@ def _bank_kernel(lanes: int) -> Callable:
     # package, so a copy of the two files outside the package works as well).
     module = importlib.import_module(f"{__package__}.bank" if __package__ else "bank")
     func = getattr(module, f"bank{lanes}")
+    import numba
+
     config: Any = numba.core.config  # settings are plain module attributes
     previous = config.SLP_VECTORIZE
     config.SLP_VECTORIZE = 1
@@ -659,7 +688,7 @@ def _bank_kernel(lanes: int) -> Callable:
     }
     try:
         kernel = compile_cached(func, **options)
-        kernel.compile(_BANK_SIGNATURE)
+        first_call(kernel.compile, _BANK_SIGNATURE)
     finally:
         config.SLP_VECTORIZE = previous
     _BANK_KERNELS[lanes] = kernel

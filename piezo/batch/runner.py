@@ -31,6 +31,7 @@ from piezo.batch.metrics import EXTRACTORS, report_data
 from piezo.batch.spec import METRIC_KINDS, MetricSpec, Spec
 from piezo.batch.verdict import MetricValue, judge
 from piezo.errors import InputError, PiezoError
+from piezo.threads import NUMERIC_THREAD_VARIABLES as _THREAD_VARIABLES
 
 __all__ = [
     "CAPTURE_SUFFIXES",
@@ -493,10 +494,6 @@ def _run_pool(
     context = multiprocessing.get_context("spawn")
     with _one_thread_per_worker():
         _pool_loop(paths, job, workers, finished, spec, context)
-
-
-#: Thread-count variables of the numeric libraries numpy and scipy may be built with.
-_THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 
 
 @contextlib.contextmanager

@@ -16,7 +16,6 @@ from typing import Annotated, Any
 
 import typer
 from rich.console import Console
-from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
 from piezo.errors import OutputError
 from piezo.io.atomic import atomic_output, write_text_atomic
@@ -135,6 +134,9 @@ def progress(description: str, total: float | None) -> Iterator[Any]:
     if not _interactive():
         yield lambda amount=1: None
         return
+    # Imported here for start-up time: only a terminal run draws a bar.
+    from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+
     bar = Progress(
         TextColumn("[bold]{task.description}"),
         BarColumn(),

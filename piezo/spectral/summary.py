@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -23,8 +23,10 @@ from piezo.errors import InputError
 from piezo.results import reference_key, to_jsonable
 from piezo.spectral.averaging import main_lobe_half_width_bins
 from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
-from piezo.spectral.peaks import PeakRule, SpectralPeak, distinct_peaks, scatter_dof
 from piezo.spectral.welch import PSDResult, Spectrogram, WelchPSD
+
+if TYPE_CHECKING:
+    from piezo.spectral.peaks import PeakRule, SpectralPeak
 
 __all__ = [
     "Bands",
@@ -151,6 +153,10 @@ class Spectrum:
         """The distinct peaks of the PSD's ``column`` (strongest first) and the rule
         applied: :func:`piezo.spectral.peaks.distinct_peaks` with the window's main lobe
         and the scatter of the chosen average."""
+        # Imported here for start-up time: the peak search needs scipy.signal and
+        # scipy.stats (about 0.5 s of CPU to import), which ``piezo bands`` never uses.
+        from piezo.spectral.peaks import distinct_peaks, scatter_dof
+
         r = self.result
         return distinct_peaks(
             r.frequency_hz,

@@ -138,6 +138,21 @@ def test_python_dash_m_works(tmp_path):
     assert r.stdout.strip() == f"piezo {__version__}"
 
 
+def test_a_process_ends_with_its_whole_output_and_exit_code(cli, tmp_path):
+    # The console entry freezes the garbage collector's objects before exiting (start-up
+    # time): the output of a whole process must still equal the in-process run's, and a
+    # refused input still exit 2 with its one line.
+    path = tmp_path / "tone.wav"
+    fs = 8000
+    sf.write(str(path), 0.1 * np.sin(2 * np.pi * 1000 * np.arange(fs) / fs), fs)
+    whole = run_piezo("levels", path, "--json", "--interval", "0.25s")
+    assert whole.returncode == 0, whole.stderr
+    assert whole.stdout == cli("levels", path, "--json", "--interval", "0.25s").out
+    bad = run_piezo("levels", tmp_path / "missing.wav")
+    assert bad.returncode == 2
+    assert len(bad.stderr.splitlines()) == 1 and "missing.wav" in bad.stderr
+
+
 @pytest.fixture
 def full_scale_sine(tmp_path):
     fs = 48000
@@ -508,3 +523,50 @@ def test_interrupt_prints_one_line_and_exits_130(tmp_path):
     assert proc.returncode == 130
     assert err.splitlines() == ["piezo: interrupted"]
     assert "Traceback" not in err
+
+
+def test_a_piezo_process_runs_one_blas_thread_unless_the_user_chose(tmp_path):
+    probe = textwrap.dedent(
+        """
+        import os, runpy, sys
+        sys.argv = ["piezo", "--version"]
+        try:
+            runpy.run_module("piezo", run_name="__main__")
+        except SystemExit:
+            pass
+        print(os.environ.get("OPENBLAS_NUM_THREADS"), os.environ.get("OMP_NUM_THREADS"))
+        """
+    )
+    base = {k: v for k, v in os.environ.items() if not k.endswith("_NUM_THREADS")}
+
+    def run(**extra):
+        r = subprocess.run(
+            [sys.executable, "-c", probe],
+            capture_output=True,
+            text=True,
+            check=True,
+            env={**base, "PYTHONPATH": str(REPO), **extra},
+        )
+        return r.stdout.splitlines()[-1]
+
+    assert run() == "1 1"
+    assert run(OMP_NUM_THREADS="3") == "None 3"  # the user's choice: nothing touched
+
+
+def test_collection_resumes_once_the_command_module_is_loaded(monkeypatch):
+    # A console run starts with the garbage collector off (start-up time); loading the
+    # command's module must turn it back on, or a long batch or report would never
+    # collect.
+    import gc
+
+    from piezo import cli
+
+    monkeypatch.setitem(cli._state, "collection_paused", True)
+    gc.disable()
+    try:
+        cli._load("levels")
+        assert gc.isenabled()
+        assert cli._state["collection_paused"] is False
+    finally:
+        gc.enable()
+        gc.unfreeze()
