@@ -90,7 +90,12 @@ class Command:
 #: the module registers (a test keeps the two equal); a module not present in this
 #: installation is left out of the listing.
 COMMANDS: tuple[Command, ...] = (
-    Command("info", "info", "Format, rate, duration and peak/RMS per channel (dBFS, Pa, dB SPL)."),
+    Command(
+        "info",
+        "info",
+        "Format, rate, duration and peak/RMS per channel in dBFS and its own unit "
+        "(Pa, m/s², N ...).",
+    ),
     Command(
         "calibrate",
         "calibrate",
@@ -99,11 +104,13 @@ COMMANDS: tuple[Command, ...] = (
     Command(
         "levels",
         "levels",
-        "Sound levels per channel: LAeq, LCeq, LZeq, F and S maxima and minima (A, C, Z), "
-        "LCpeak, LZpeak, LAE, LAF5..LAF95, LAS5..LAS95 (IEC 61672-1).",
+        "Levels per channel (IEC 61672-1): LZeq, F and S maxima and minima, LZpeak; for "
+        "sound pressure LAeq, LCeq, LCpeak, LAE, LAF and LAS percentiles.",
     ),
     Command(
-        "spectrum", "spectrum", "Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG."
+        "spectrum",
+        "spectrum",
+        "Welch power spectral density per channel (Pa²/Hz, (m/s²)²/Hz, V²/Hz ...), CSV and PNG.",
     ),
     Command("bands", "bands", "Octave and fractional-octave band levels (IEC 61260-1 class 1)."),
     Command("tone", "tone", "Test-tone frequency, level, THD, THD+N, SINAD and SNR."),
@@ -111,7 +118,7 @@ COMMANDS: tuple[Command, ...] = (
     Command(
         "response",
         "response",
-        "Frequency response H1 = Gxy/Gxx with coherence from a two-channel recording.",
+        "H1 response with coherence from a two-channel recording; comparison calibration.",
     ),
     Command(
         "fit-frontend",
@@ -339,7 +346,8 @@ def _root(
     """Calibrated analysis of piezoelectric sensor recordings.
 
     Levels, spectra, front-end models, frequency response, capture checks and production
-    limit checks, all in volts or pascals through one measurement chain.
+    limit checks, each channel in its own unit (Pa, m/s², N, V ...) through its measurement
+    chain.
     """
     _state["debug"] = _state["debug"] or debug
 

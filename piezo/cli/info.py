@@ -30,7 +30,9 @@ def register(app: typer.Typer) -> None:
     ['info']
     """
     app.command(
-        "info", help="Format, rate, duration and peak/RMS per channel (dBFS, Pa, dB SPL)."
+        "info",
+        help="Format, rate, duration and peak/RMS per channel in dBFS and its own unit "
+        "(Pa, m/s², N ...).",
     )(info)
 
 

@@ -40,8 +40,8 @@ def register(app: typer.Typer) -> None:
     """
     app.command(
         "levels",
-        help="Sound levels per channel: LAeq, LCeq, LZeq, F and S maxima and minima (A, C, Z), "
-        "LCpeak, LZpeak, LAE, LAF5..LAF95, LAS5..LAS95 (IEC 61672-1).",
+        help="Levels per channel (IEC 61672-1): LZeq, F and S maxima and minima, LZpeak; for "
+        "sound pressure LAeq, LCeq, LCpeak, LAE, LAF and LAS percentiles.",
     )(levels)
 
 

@@ -66,7 +66,7 @@ def register(app: typer.Typer) -> None:
     """
     app.command(
         "response",
-        help="Frequency response H1 = Gxy/Gxx with coherence from a two-channel recording.",
+        help="H1 response with coherence from a two-channel recording; comparison calibration.",
     )(response)
     app.command(
         "fit-frontend",

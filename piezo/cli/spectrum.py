@@ -48,9 +48,11 @@ def register(app: typer.Typer) -> None:
     >>> [command.name for command in app.registered_commands]
     ['spectrum']
     """
-    app.command("spectrum", help="Welch power spectral density (Pa²/Hz or V²/Hz), CSV and PNG.")(
-        spectrum
-    )
+    app.command(
+        "spectrum",
+        help="Welch power spectral density per channel (Pa²/Hz, (m/s²)²/Hz, V²/Hz ...), "
+        "CSV and PNG.",
+    )(spectrum)
 
 
 def _choice(value: str, allowed: tuple[str, ...], what: str) -> str:
