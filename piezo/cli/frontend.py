@@ -9,6 +9,7 @@ roll-off down to a lower corner.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -17,7 +18,8 @@ import soundfile as sf
 import typer
 from rich.table import Table
 
-from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource, sidecar_path
+from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource, Chain, sidecar_path
+from piezo.chain.quantity import QUANTITIES, Sensitivity, compact_sensitivity
 from piezo.chain.units import format_quantity, parse_frequency_list, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
@@ -41,6 +43,7 @@ from piezo.io.atomic import write_text_atomic
 from piezo.io.toml import toml_value
 from piezo.plots.frontend import write_plot as _plot
 from piezo.plots.style import axis_label
+from piezo.results import reference_key, shared_value
 
 #: Output formats that hold 32-bit float samples (values beyond ±1 survive).
 _FLOAT_FORMATS = {".wav": "WAV", ".w64": "W64", ".rf64": "RF64", ".caf": "CAF", ".aiff": "AIFF"}
@@ -487,24 +490,73 @@ def simulate(
     console.print(f"[yellow]{CAUTION}[/yellow]")
 
 
-def _write_equalized_sidecar(file: Path, out: Path, source: CalibratedSource) -> Path:
-    """The output's sidecar profile: the input's chain for the output's float samples.
+def _peaks_in_units(peaks: Sequence[float], units: Sequence[str]) -> dict[str, Any]:
+    """``output_peak_pa`` (or ``_v``, ``_m_per_s2`` ...) when the channels share a unit;
+    else ``output_peak`` with ``output_peak_units``, each channel in its own."""
+    unit = shared_value(list(units))
+    if unit is not None:
+        return {reference_key(unit).replace("reference_", "output_peak_", 1): list(peaks)}
+    return {"output_peak": list(peaks), "output_peak_units": list(units)}
 
-    The samples keep the input's scale; a float file is not scaled by a full-scale
-    voltage, so the sidecar's gain takes it in (gain / full scale for a PCM input).
+
+def _equalized_gain(file: Path, source: CalibratedSource) -> float:
+    """The one sidecar gain of an equalized output: the chains' gain over full scale.
+
+    The output keeps each channel's raw sample scale; a sidecar states one gain for the
+    file (``[chain]``) and a sensor per channel (``[channel.N]``), so channels with
+    different gains or full scales (per-channel options) cannot be written back.
     """
-    chain = source.chain
-    gain = chain.gain / (chain.full_scale_v if source.recording.is_pcm else 1.0)
+    pcm = source.recording.is_pcm
+    gains = {c.gain / (c.full_scale_v if pcm else 1.0) for c in source.chains}
+    if len(gains) > 1:
+        raise InputError(
+            "equalize writes one gain for the output's sidecar, and these channels have "
+            "different gains or full scales: equalize them one at a time (--channel N)",
+            source=str(file),
+        )
+    if any(c.integrations for c in source.chains):
+        raise InputError(
+            "equalize writes the sensor's own quantity: drop --integrate (integrate the "
+            "equalized file instead)",
+            source=str(file),
+        )
+    return gains.pop()
+
+
+def _sensor_lines(chain: Chain) -> list[str]:
+    if chain.sensitivity_v_per_unit is None:
+        return []
+    s = Sensitivity(chain.sensitivity_v_per_unit, "V", QUANTITIES[chain.quantity])
+    return [
+        f"quantity = {toml_value(chain.quantity)}",
+        f"sensitivity = {toml_value(compact_sensitivity(s, digits=10))}",
+    ]
+
+
+def _write_equalized_sidecar(file: Path, out: Path, source: CalibratedSource) -> Path:
+    """The output's sidecar profile: the input's chains for the output's float samples.
+
+    The samples keep each channel's input scale; a float file is not scaled by a
+    full-scale voltage, so the sidecar's gain takes it in (gain / full scale for a PCM
+    input). The response curve is not repeated: the output is already corrected by it.
+    Channels are numbered as in the output (the analysed channels, from 0).
+    """
+    gain = _equalized_gain(file, source)
+    chains = source.chains
     lines = [
         f"# Sidecar of {out.name}, written by piezo equalize from {file.name}: the samples",
         "# keep the input's scale, so this chain reads them in the input's units.",
     ]
-    if chain.sensitivity_v_per_pa is not None:
-        sensitivity = toml_value(f"{1e3 * chain.sensitivity_v_per_pa:.10g} mV/Pa")
-        lines += ["[sensor]", f"sensitivity = {sensitivity}"]
+    if len({(c.quantity, c.sensitivity_v_per_unit) for c in chains}) == 1:
+        sensor = _sensor_lines(chains[0])
+        lines += ["[sensor]", *sensor] if sensor else []
+    else:
+        for i, chain in enumerate(chains):
+            sensor = _sensor_lines(chain)
+            lines += [f"[channel.{i}]", *sensor] if sensor else []
     lines += ["[chain]", f"gain = {toml_value(f'{gain:.12g}')}"]
-    if chain.reference_pa != REFERENCE_AIR_PA:
-        lines.append(f"reference = {toml_value(f'{chain.reference_pa:.10g} Pa')}")
+    if chains[0].reference_pa != REFERENCE_AIR_PA:
+        lines.append(f"reference = {toml_value(f'{chains[0].reference_pa:.10g} Pa')}")
     path = sidecar_path(out)
     write_text_atomic(path, "\n".join(lines) + "\n")
     return path
@@ -556,8 +608,10 @@ def equalize(
     target_hz = parse_quantity(corner, "Hz", what="--corner")
     fmt = _check_output(file, out, force)
     source = open_source(file, src)
+    _equalized_gain(file, source)  # refused before anything is written
     rate = _integer_rate(source.sample_rate_hz)
     channels = len(source.channel_indices)
+    scales = source.scales
     eq = Equalizer(
         source.sample_rate_hz,
         channels,
@@ -571,7 +625,7 @@ def equalize(
         ) as sink:
             with progress(f"Equalizing {file.name}", source.frames) as advance:
                 for block in source.blocks():
-                    sink.write(eq.update(block) / source.scale)
+                    sink.write(eq.update(block) / scales)
                     advance(block.shape[0])
     result = eq.result()
     profile = _write_equalized_sidecar(file, out, source)
@@ -590,8 +644,8 @@ def equalize(
             {"frequency_hz": float(f), "boost_db": float(b)}
             for f, b in zip(probe, eq.boost_at_db(probe), strict=True)
         ],
-        "output_peak_fs": [p / source.scale for p in result.peak],
-        f"output_peak_{source.unit.lower()}": list(result.peak),
+        "output_peak_fs": [p / k for p, k in zip(result.peak, scales, strict=True)],
+        **_peaks_in_units(result.peak, source.units),
         "profile_written": str(profile),
         "max_error_db": result.max_error_db,
         "max_phase_error_deg": eq.realisation.max_phase_error_deg,

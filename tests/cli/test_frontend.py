@@ -227,6 +227,42 @@ def test_equalize_json_names_what_it_reports_and_keeps_the_file_calibrated(cli, 
     assert after["channels"][0]["LZeq"] == pytest.approx(before["channels"][0]["LZeq"], abs=0.01)
 
 
+def test_equalize_keeps_each_channels_own_sensor(cli, design, tmp_path):
+    # Two accelerometers of different sensitivities (issue 13: per-channel chains): the
+    # output keeps each channel's raw scale and its sidecar names each channel's sensor,
+    # so levels of the equalized file equal the input's, channel by channel.
+    t = np.arange(FS) / FS
+    x = 0.5 * np.sin(2 * np.pi * 1000 * t)
+    src = tmp_path / "acc.wav"
+    sf.write(str(src), np.column_stack([x, 0.25 * x]), FS, subtype="PCM_24")
+    src.with_suffix(".toml").write_text(
+        '[sensor]\nquantity = "acceleration"\n[chain]\ngain = "20 dB"\nfull_scale = "2 V"\n'
+        '[channel.0]\nsensitivity = "10 mV/g"\n[channel.1]\nsensitivity = "50 mV/g"\n',
+        encoding="utf-8",
+    )
+    out = tmp_path / "eq.wav"
+    r = cli("equalize", src, "--frontend", design, "--corner", "0.05Hz", "--out", out, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    # 0.5 FS × 2 V / 10 / 10 mV/g = 10 g; 0.125 FS × 0.2 V / 50 mV/g = 0.5 g (g = 9.80665).
+    np.testing.assert_allclose(doc["output_peak_m_per_s2"], [98.0665, 4.903325], rtol=6e-3)
+    sidecar = out.with_suffix(".toml").read_text(encoding="utf-8")
+    assert "[channel.0]" in sidecar and "[channel.1]" in sidecar and "mV/Pa" not in sidecar
+    before = cli("levels", src, "--json").json()
+    after = cli("levels", out, "--json").json()
+    assert after["unit"] == "m/s²"
+    for a, b in zip(after["channels"], before["channels"], strict=True):
+        assert a["LZeq"] == pytest.approx(b["LZeq"], abs=0.01)
+
+
+def test_equalize_refuses_channels_it_cannot_write_back(cli, design, tone, tmp_path):
+    out = tmp_path / "eq.wav"
+    r = cli("equalize", tone, "--frontend", design, "--corner", "0.05Hz", "--out", out,
+            "--gain", "0=20 dB", "--gain", "1=0 dB")  # fmt: skip
+    assert r.code == 2 and len(r.err.strip().splitlines()) == 1
+    assert "different gains or full scales" in r.err and not out.exists()
+
+
 def test_noise_density_table_at_chosen_frequencies(cli, design):
     # Issue 12 §3.17: the noise budget at chosen frequencies (--at), as a density table in
     # the JSON. The feedback resistor's Johnson current noise √(4kT/Rf) (Johnson 1928,
