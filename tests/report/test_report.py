@@ -364,7 +364,8 @@ def test_high_rate_report_reaches_above_the_audio_band(high_rate_reports):
     assert [b["nominal_hz"] for b in command["channels"][0]["bands"]] == bands["nominal_hz"]
     assert (command["high_hz"], command["high_source"]) == (bands["high_hz"], bands["high_source"])
     assert list(tone_of(source).bandwidth_hz) == tone["bandwidth_hz"]
-    assert "Bands up to 475000 Hz nominal: the default for 1e+06 Hz sampling" in page
+    assert "Bands up to 475000 Hz nominal: the default for the sample rate" in page
+    assert "The bandwidth's upper end is the default for the sample rate" in page
 
 
 def test_sensor_frequency_range_caps_the_report_limits(high_rate_reports):
