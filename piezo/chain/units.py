@@ -437,14 +437,18 @@ _RANGE_SPLIT_RE = re.compile(r"\s*(?:\.\.|–|:)\s*|\s+to\s+")
 
 
 def parse_frequency_range(
-    text: str | Sequence[str | float], *, what: str = "frequency range"
+    text: str | Sequence[str | float],
+    *,
+    what: str = "frequency range",
+    positive: bool = False,
 ) -> tuple[float, float]:
     """A frequency range (low, high) in hertz, as data sheets state one.
 
     Text ``"LOW .. HIGH"`` (or ``LOW to HIGH``, ``LOW – HIGH``, ``LOW:HIGH``), each end a
     frequency as :func:`parse_frequency` reads it, or a pair ``[LOW, HIGH]`` of such
-    texts or numbers in hertz. The low end may be 0 (or ``"DC"``); the high end must lie
-    above it.
+    texts or numbers in hertz. The low end may be 0 (or ``"DC"``), unless ``positive``
+    (a band-pass or a fit band, whose low end must lie above 0 Hz); the high end must lie
+    above the low end. Every frequency range or band a user gives is read here.
 
     Examples
     --------
@@ -456,6 +460,10 @@ def parse_frequency_range(
     Traceback (most recent call last):
     ...
     piezo.errors.UnitError: range: the low end must lie below the high end, got '10 kHz .. 1 Hz'
+    >>> parse_frequency_range("0 Hz:1 kHz", what="--band", positive=True)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.UnitError: --band: the low end must lie above 0 Hz, got '0 Hz:1 kHz'
     """
     if isinstance(text, str):
         parts: list[str | float] = [p for p in _RANGE_SPLIT_RE.split(text.strip()) if p]
@@ -475,6 +483,8 @@ def parse_frequency_range(
         low = parse_quantity(low_text, "Hz", what=f"{what} (low end)")
         if not low >= 0:
             raise UnitError(f"{what}: the low end must be 0 Hz or above, got {low_text!r}")
+    if positive and not low > 0:
+        raise UnitError(f"{what}: the low end must lie above 0 Hz, got {text!r}")
     high = parse_frequency(high_text, f"{what} (high end)")
     if not low < high:
         raise UnitError(f"{what}: the low end must lie below the high end, got {text!r}")

@@ -20,7 +20,12 @@ from rich.table import Table
 
 from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource, Chain, sidecar_path
 from piezo.chain.quantity import QUANTITIES, Sensitivity, compact_sensitivity
-from piezo.chain.units import format_quantity, parse_frequency_list, parse_quantity
+from piezo.chain.units import (
+    format_quantity,
+    parse_frequency_list,
+    parse_frequency_range,
+    parse_quantity,
+)
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
     ForceOption,
@@ -160,12 +165,7 @@ def frontend(
     """
     refuse_existing(plot, force=force)
     at_hz = tuple(parse_frequency_list(at, what="--at"))
-    band = parse_frequency_list(noise_band.replace(":", ","), what="--noise-band")
-    if len(band) != 2 or not 0 < band[0] < band[1]:
-        raise InputError(
-            f"--noise-band must look like '20Hz:20kHz' (low < high), got {noise_band!r}"
-        )
-    noise_band_hz = (band[0], band[1])
+    noise_band_hz = parse_frequency_range(noise_band, what="--noise-band", positive=True)
     varied = _parse_vary(vary) if vary is not None else None
     study = study_frontend(design, at_hz=at_hz, vary=varied, noise_band_hz=noise_band_hz)
     fe = study.frontend

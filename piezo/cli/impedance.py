@@ -9,7 +9,12 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import format_quantity, format_uncertain, parse_quantity
+from piezo.chain.units import (
+    format_quantity,
+    format_uncertain,
+    parse_frequency_range,
+    parse_quantity,
+)
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress
 from piezo.errors import InputError
@@ -38,24 +43,6 @@ def register(app: typer.Typer) -> None:
         help="Impedance sweep of an element (CSV table, or a V/I capture with --shunt): "
         "fs, fp, Qm, k_eff, C0 and the Butterworth–Van Dyke circuit per mode.",
     )(impedance)
-
-
-def parse_band(text: str, what: str = "--band") -> tuple[float, float]:
-    """``"27k:33k"`` or ``"27 kHz:33 kHz"`` -> (27000.0, 33000.0).
-
-    Examples
-    --------
-    >>> parse_band("27k:33k"), parse_band("27 kHz:33 kHz")
-    ((27000.0, 33000.0), (27000.0, 33000.0))
-    """
-    if ":" not in text:
-        raise InputError(f"{what}: expected LOW:HIGH, e.g. '27kHz:33kHz', got {text!r}")
-    lo_text, hi_text = text.split(":", 1)
-    lo = parse_quantity(lo_text.strip(), "Hz", what=what)
-    hi = parse_quantity(hi_text.strip(), "Hz", what=what)
-    if not 0 < lo < hi:
-        raise InputError(f"{what}: need 0 < LOW < HIGH, got {text!r}")
-    return lo, hi
 
 
 _LOSS = {"auto": None, "yes": True, "no": False}
@@ -156,7 +143,9 @@ def impedance(
     at_hz = parse_quantity(at, "Hz", what="--at")
     if not at_hz > 0:
         raise InputError(f"--at must be a positive frequency, got {at!r}")
-    bands = [parse_band(b) for b in band] if band else None
+    bands = (
+        [parse_frequency_range(b, what="--band", positive=True) for b in band] if band else None
+    )
     measurement: dict[str, Any] | None = None
     if shunt is None:
         if file.suffix.lower() not in CSV_SUFFIXES:

@@ -8,7 +8,7 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import parse_duration, parse_frequency, parse_quantity
+from piezo.chain.units import parse_duration, parse_frequency_range, parse_quantity
 from piezo.cli.options import (
     JsonOption,
     SourceOptions,
@@ -114,17 +114,7 @@ def levels(
     0
     """
     interval_s = parse_duration(interval, what="--interval") if interval is not None else None
-    low_text, sep, high_text = velocity_band.partition(":")
-    if not sep:
-        raise InputError(
-            f"--velocity-band: expected LOW:HIGH such as 10Hz:1kHz, got {velocity_band!r}"
-        )
-    band_hz = (
-        parse_frequency(low_text, "--velocity-band"),
-        parse_frequency(high_text, "--velocity-band"),
-    )
-    if not band_hz[0] < band_hz[1]:
-        raise InputError(f"--velocity-band {velocity_band!r}: LOW must be below HIGH")
+    band_hz = parse_frequency_range(velocity_band, what="--velocity-band", positive=True)
     source = open_source(file, src)
     settle_s = None
     if settle is not None:

@@ -8,8 +8,13 @@ from typing import Annotated, Any
 import typer
 from rich.table import Table
 
-from piezo.chain.units import format_uncertain, parse_decibels, parse_quantity
-from piezo.cli.impedance import CAUTION, parse_band
+from piezo.chain.units import (
+    format_uncertain,
+    parse_decibels,
+    parse_frequency_range,
+    parse_quantity,
+)
+from piezo.cli.impedance import CAUTION
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, progress
 from piezo.errors import InputError
@@ -88,7 +93,11 @@ def ringdown(
     skip_s = parse_quantity(skip, "s", what="--skip")
     if skip_s < 0:
         raise InputError(f"--skip must be 0 or more, got {skip!r}")
-    lo, hi = parse_band(band) if band is not None else (0.0, None)
+    lo, hi = (
+        parse_frequency_range(band, what="--band", positive=True)
+        if band is not None
+        else (0.0, None)
+    )
     source = open_source(file, src)
     analyzer = RingdownAnalyzer(
         source.sample_rate_hz, len(source.channel_indices), threshold_db=threshold_db,

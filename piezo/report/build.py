@@ -85,11 +85,13 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
         "diagnostics": diagnostics,
         "levels": levels_section(run.levels) if run.levels else None,
         "spectrum": psd_section(run.psd, channels, chains) if run.psd else None,
-        "bands": bands_section(run.bands, channels, chains) if run.bands else None,
+        "bands": _with_limit(bands_section(run.bands, channels, chains), run)
+        if run.bands
+        else None,
         "spectrogram": (
             spectrogram_section(run.spectrogram, channels, chains) if run.spectrogram else None
         ),
-        "tone": tone_section(run.tones, channels, chains),
+        "tone": _with_bandwidth_source(tone_section(run.tones, channels, chains), run),
         "frontend": frontend_section(run.frontend) if run.frontend else None,
         "conformance": {
             "weighting": conformance_section(run.conformance),
@@ -98,6 +100,24 @@ def report_document(run: RunResults, *, json_name: str = "report.json") -> dict[
         },
     }
     return to_jsonable(doc)
+
+
+def _with_limit(section: dict[str, Any], run: RunResults) -> dict[str, Any]:
+    """The bands section with its upper limit and where it came from (as ``piezo bands``)."""
+    return {
+        **section,
+        "high_hz": run.limits.band_high_hz,
+        "high_source": run.limits.high_source,
+    }
+
+
+def _with_bandwidth_source(
+    section: dict[str, Any] | None, run: RunResults
+) -> dict[str, Any] | None:
+    """The tone section with where its bandwidth's upper end came from (as ``piezo tone``)."""
+    if section is None:
+        return None
+    return {**section, "bandwidth_source": run.limits.bandwidth_source}
 
 
 def _band_selftest(run: RunResults) -> dict[str, Any] | None:

@@ -30,12 +30,25 @@ from piezo.frontend.model import (
 from piezo.levels.summary import Levels, levels_of
 from piezo.levels.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
 from piezo.spectral.averaging import DEFAULT_SEGMENT_FRAMES
-from piezo.spectral.bands import BandAnalyzer, BandResult
+from piezo.spectral.bands import BandAnalyzer, BandResult, default_high_hz
 from piezo.spectral.selftest import BandConformance, band_conformance
+from piezo.spectral.summary import default_upper_limit_hz
 from piezo.spectral.welch import PSDResult, Spectrogram, SpectrogramResult, WelchPSD
-from piezo.tone.analysis import ToneAnalyzer, ToneResult
+from piezo.tone.analysis import ToneAnalyzer, ToneResult, default_bandwidth_hz
 
-__all__ = ["FrontendResponse", "ReportSettings", "RunResults", "analyse", "frontend_response"]
+__all__ = [
+    "FrontendResponse",
+    "Limits",
+    "ReportSettings",
+    "RunResults",
+    "analyse",
+    "frontend_response",
+    "report_limits",
+]
+
+#: Lowest nominal band of the report's band levels, Hz (the bank's default, as ``piezo
+#: bands``).
+BAND_LOW_HZ = 20.0
 
 
 @dataclass(frozen=True)
@@ -170,6 +183,61 @@ def frontend_response(path: Path, *, top_hz: float) -> FrontendResponse:
 
 
 @dataclass(frozen=True)
+class Limits:
+    """The upper limits of the report's band levels and tone analysis, with their origin.
+
+    The limits are those ``piezo bands`` and ``piezo tone`` take without options
+    (:func:`report_limits`); ``high_source`` and ``bandwidth_source`` say where each came
+    from, in those commands' words: ``"sample rate"`` (the default for the rate) or
+    ``"sensor"`` (ended lower where the sensor's stated frequency range ends).
+
+    Examples
+    --------
+    >>> Limits(20000.0, "sample rate", (20.0, 20000.0), "sample rate").band_high_hz
+    20000.0
+    """
+
+    band_high_hz: float
+    high_source: str
+    tone_bandwidth_hz: tuple[float, float]
+    bandwidth_source: str
+
+
+def report_limits(source: CalibratedSource) -> Limits:
+    """The default upper limits of ``piezo bands`` and ``piezo tone`` for ``source``.
+
+    The sample rate's limit (:func:`~piezo.spectral.bands.default_high_hz`,
+    :func:`~piezo.tone.analysis.default_bandwidth_hz`), ended lower by the sensor's
+    frequency range (:func:`~piezo.spectral.summary.default_upper_limit_hz`): the one rule
+    of those commands, so a report and the commands agree.
+
+    Examples
+    --------
+    >>> from pathlib import Path
+    >>> from piezo.chain.measurement import Chain
+    >>> from piezo.io.reader import Recording
+    >>> rec = Recording(Path("x.wav"), 1e6, 4, 1, "WAV", "PCM_24", ("ch0",), True)
+    >>> report_limits(CalibratedSource.of(rec, Chain()))
+    Limits(band_high_hz=475000.0, high_source='sample rate', \
+tone_bandwidth_hz=(20.0, 450000.0), bandwidth_source='sample rate')
+    >>> disc = Chain(frequency_range_hz=(1.0, 10000.0))
+    >>> report_limits(CalibratedSource.of(rec, disc))
+    Limits(band_high_hz=10000.0, high_source='sensor', \
+tone_bandwidth_hz=(20.0, 10000.0), bandwidth_source='sensor')
+    """
+    fs = source.sample_rate_hz
+    band_high_hz, high_source = default_upper_limit_hz(source, default_high_hz(fs))
+    tone_low_hz, rate_high_hz = default_bandwidth_hz(fs)
+    tone_high_hz, bandwidth_source = default_upper_limit_hz(source, rate_high_hz)
+    return Limits(
+        band_high_hz=float(band_high_hz),
+        high_source=high_source,
+        tone_bandwidth_hz=(float(tone_low_hz), float(tone_high_hz)),
+        bandwidth_source=bandwidth_source,
+    )
+
+
+@dataclass(frozen=True)
 class RunResults:
     """The result objects of one run, with what they were made from.
 
@@ -188,6 +256,8 @@ class RunResults:
     >>> run = analyse(source, ReportSettings(band_fraction=1))
     >>> run.source is source, run.frontend is None, run.notes
     (True, True, ())
+    >>> run.limits.band_high_hz, run.limits.high_source
+    (20000.0, 'sample rate')
     >>> run.generated_utc.endswith("Z")
     True
     >>> folder.cleanup()
@@ -206,6 +276,7 @@ class RunResults:
     conformance: tuple[ConformanceReport, ...]
     band_conformance: BandConformance | None
     notes: tuple[str, ...]
+    limits: Limits  # the band and tone limits, and where each came from
 
 
 def _power_of_two_at_most(frames: int) -> int:
@@ -275,12 +346,36 @@ def analyse(
     )
     checker = checker_for_source(source, settings.thresholds)
     psd = WelchPSD(fs, channels, segment_frames=psd_segment, window="hann")
-    bands = BandAnalyzer(fs, channels, fraction=settings.band_fraction)
+    limits = report_limits(source)
+    bands = None
+    if limits.band_high_hz >= BAND_LOW_HZ:
+        bands = BandAnalyzer(
+            fs,
+            channels,
+            fraction=settings.band_fraction,
+            low_hz=BAND_LOW_HZ,
+            high_hz=limits.band_high_hz,
+        )
+    else:
+        notes.append(
+            f"no band levels: the sensor's frequency range ends at "
+            f"{limits.band_high_hz:g} Hz, below the lowest band ({BAND_LOW_HZ:g} Hz)"
+        )
     sgram = Spectrogram(
         fs, channels, segment_frames=sg_segment, max_columns=settings.spectrogram_columns
     )
-    tones = [ToneAnalyzer(fs, 1, resolution_hz=tone_resolution) for _ in range(channels)]
-    analyses: list[Any] = [checker, psd, bands, sgram, _EachChannel(tones)]
+    tones: list[ToneAnalyzer] = []
+    low_hz, high_hz = limits.tone_bandwidth_hz
+    if high_hz > low_hz:
+        tones = [
+            ToneAnalyzer(
+                fs, 1, bandwidth_hz=limits.tone_bandwidth_hz, resolution_hz=tone_resolution
+            )
+            for _ in range(channels)
+        ]
+    analyses: list[Any] = [checker, psd, sgram, _EachChannel(tones)]
+    if bands is not None:
+        analyses.append(bands)
     levels = None
     if fs >= MIN_SAMPLE_RATE_HZ:
         # piezo levels' own computation (each channel in its own unit and level
@@ -304,7 +399,11 @@ def analyse(
     if fs >= MIN_SAMPLE_RATE_HZ:
         selftest = (conformance("A", fs), conformance("C", fs))
     now = _dt.datetime.now(_dt.UTC).replace(microsecond=0)
-    band_result = bands.result()
+    band_result = bands.result() if bands is not None else None
+    no_tone = (
+        f"no tone analysis: the sensor's frequency range ends at {high_hz:g} Hz, at or "
+        f"below the low end of the bandwidth ({low_hz:g} Hz)"
+    )
     return RunResults(
         source=source,
         settings=settings,
@@ -312,15 +411,20 @@ def analyse(
         diagnostics=checker.result(),
         levels=levels,
         psd=psd.result() if frames >= psd_segment else None,
-        bands=band_result if band_result.bands else None,
+        bands=band_result if band_result is not None and band_result.bands else None,
         spectrogram=sgram.result() if frames >= sg_segment else None,
-        tones=tuple(_tone(t, settings.tone_min_share) for t in tones),
+        tones=tuple(_tone(t, settings.tone_min_share) for t in tones)
+        if tones
+        else (no_tone,) * channels,
         frontend=design,
         conformance=selftest,
-        band_conformance=band_conformance(settings.band_fraction, fs)
-        if band_result.bands
+        band_conformance=band_conformance(
+            settings.band_fraction, fs, low_hz=BAND_LOW_HZ, high_hz=limits.band_high_hz
+        )
+        if band_result is not None and band_result.bands
         else None,
         notes=tuple(notes),
+        limits=limits,
     )
 
 

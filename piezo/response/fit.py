@@ -34,7 +34,7 @@ from __future__ import annotations
 import functools
 import math
 import re
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -83,6 +83,17 @@ ORDER_RESIDUAL_RATIO = 0.5
 #: ``RESONANCE_FIT_SPAN`` × the peak) exceeds this (our rule: a measured single mode fits
 #: to a few hundredths of a dB; a peak of another shape leaves tenths of a dB or more).
 RESONANCE_POOR_FIT_DB = 0.25
+#: The fitted natural frequencies (high-pass, resonance) are kept within this factor
+#: below the lowest and above the highest frequency fitted: a first-order corner a
+#: factor 1000 beyond the data changes the model there by less than
+#: 10·lg(1 + 10⁻⁶) = 4·10⁻⁶ dB from its asymptote, so the data cannot place it further
+#: out (our rule). Without limits, least squares on noise-dominated data runs along
+#: such flat directions until the exponentials overflow.
+FREQUENCY_LIMIT_FACTOR = 1000.0
+#: Limits of the fitted quality factors (the second-order high-pass and the resonance):
+#: wider than any sensor or front-end shows (our rule; a single-mode mounted resonance
+#: has Q of order 10 to 1000, a high-pass of order 0.5 to 1).
+Q_LIMITS = (1e-3, 1e5)
 
 
 # --------------------------------------------------------------------------------------
@@ -674,6 +685,25 @@ class _Lsq:
     params: np.ndarray
     cov: np.ndarray
     rms_db: float
+    #: Per parameter: True where the fit ended on a limit (not estimated by the data,
+    #: so without an uncertainty).
+    at_limit: np.ndarray
+
+
+def _std(fit: _Lsq, index: int) -> float:
+    """Standard uncertainty of parameter ``index`` (NaN when it ended on a limit)."""
+    if fit.at_limit[index]:
+        return math.nan
+    return math.sqrt(max(float(fit.cov[index, index]), 0.0))
+
+
+def _limits(f: np.ndarray, *, with_q: bool) -> list[tuple[float, float]]:
+    """Limits of (ln natural frequency[, ln Q]) for a fit over the frequencies ``f``."""
+    spread = math.log(FREQUENCY_LIMIT_FACTOR)
+    out = [(math.log(float(f[0])) - spread, math.log(float(f[-1])) + spread)]
+    if with_q:
+        out.append((math.log(Q_LIMITS[0]), math.log(Q_LIMITS[1])))
+    return out
 
 
 def _highpass_part(f: np.ndarray, order: int, p: np.ndarray) -> np.ndarray:
@@ -696,10 +726,15 @@ def _lsq(
     w: np.ndarray,
     shape: Callable[[np.ndarray, np.ndarray], np.ndarray] | None,
     x0: np.ndarray,
+    limits: Sequence[tuple[float, float]] = (),
 ) -> _Lsq:
     """Weighted least squares of ``target ≈ p[0] + shape(f, p[1:])`` in dB.
 
-    Covariance s² (JᵀJ)⁻¹ with s² the weighted residual variance.
+    ``limits`` bound ``p[1:]`` (the logarithms of frequencies and Q, see
+    :func:`_limits`); ``p[0]`` is free. Trust-region reflective least squares
+    (``scipy.optimize.least_squares``, ``method="trf"``) keeps every step inside the
+    limits, so the model's exponentials stay finite on any data. Covariance
+    s² (JᵀJ)⁻¹ with s² the weighted residual variance.
     """
 
     def model(p: np.ndarray) -> np.ndarray:
@@ -708,14 +743,19 @@ def _lsq(
     def residual(p: np.ndarray) -> np.ndarray:
         return w * (model(p) - target)
 
+    lower = np.array([-np.inf, *(lo for lo, _ in limits)])
+    upper = np.array([np.inf, *(hi for _, hi in limits)])
+    start = np.clip(np.asarray(x0, dtype=np.float64), lower, upper)
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
-        sol = scipy.optimize.least_squares(residual, x0, method="lm", x_scale="jac")
+        sol = scipy.optimize.least_squares(
+            residual, start, method="trf", bounds=(lower, upper), x_scale="jac"
+        )
     r = model(sol.x) - target
     dof = max(f.size - sol.x.size, 1)
     s2 = float(np.sum((w * r) ** 2)) / dof
     cov = np.linalg.pinv(sol.jac.T @ sol.jac) * s2
     rms = float(np.sqrt(np.sum(w**2 * r**2) / np.sum(w**2)))
-    return _Lsq(sol.x, cov, rms)
+    return _Lsq(sol.x, cov, rms, np.asarray(sol.active_mask) != 0)
 
 
 def _log_weights(f: np.ndarray) -> np.ndarray:
@@ -830,7 +870,9 @@ def fit_response(
     res_x0: list[float] = []
     if with_res:
         assert peak is not None
-        res_x0 = [math.log(f[peak]), math.log(max(10.0 ** ((m[peak] - sens) / 20.0), 0.6))]
+        # ln Q from the peak's height: ln(10^(dB/20)) = dB · ln 10 / 20, at least ln 0.6
+        # (no power of ten taken, so any dB values give a finite start).
+        res_x0 = [math.log(f[peak]), max((m[peak] - sens) * math.log(10.0) / 20.0, math.log(0.6))]
     rolled_off = bool(sens - m[0] >= CORNER_MIN_DROP_DB)
 
     # Two regions fitted in turn, each with the other region's model held fixed, so a
@@ -863,6 +905,7 @@ def fit_response(
                     w[lower],
                     functools.partial(_highpass_part_of_order, o),
                     hp_x[o],
+                    _limits(f[lower], with_q=o == 2),
                 )
                 hp_x[o] = hp_fits[o].params
             if len(hp_fits) == 2 and hp_fits[2].rms_db < ORDER_RESIDUAL_RATIO * hp_fits[1].rms_db:
@@ -871,7 +914,14 @@ def fit_response(
                 order = orders[0] if len(hp_fits) == 1 else 1
         if with_res:
             offset = _highpass_part(f[upper], order, hp_x[order][1:]) if order else 0.0
-            res_fit = _lsq(f[upper], m[upper] - offset, w[upper], _resonance_part, res_x)
+            res_fit = _lsq(
+                f[upper],
+                m[upper] - offset,
+                w[upper],
+                _resonance_part,
+                res_x,
+                _limits(f[upper], with_q=True),
+            )
             res_x = res_fit.params
         if not (rolled_off and with_res):
             break
@@ -898,7 +948,7 @@ def fit_response(
         highpass = HighPassFit(
             order=1,
             corner_hz=fc,
-            corner_std_hz=fc * math.sqrt(max(fit1.cov[1, 1], 0.0)),
+            corner_std_hz=fc * _std(fit1, 1),
             natural_hz=fc,
             q=None,
             q_std=None,
@@ -915,15 +965,17 @@ def fit_response(
             - math.log(_second_order_corner_ratio(q * math.exp(-step)))
         ) / (2 * step)
         g = np.array([1.0, dlnratio_dlnq])
-        var_ln_corner = float(g @ fit2.cov[1:3, 1:3] @ g)
+        var_ln_corner = math.nan if fit2.at_limit[1:3].any() else float(g @ fit2.cov[1:3, 1:3] @ g)
         corner = f0 * _second_order_corner_ratio(q)
         highpass = HighPassFit(
             order=2,
             corner_hz=corner,
-            corner_std_hz=corner * math.sqrt(max(var_ln_corner, 0.0)),
+            corner_std_hz=corner * math.sqrt(max(var_ln_corner, 0.0))
+            if math.isfinite(var_ln_corner)
+            else math.nan,
             natural_hz=f0,
             q=q,
-            q_std=q * math.sqrt(max(fit2.cov[2, 2], 0.0)),
+            q_std=q * _std(fit2, 2),
             in_band=bool(f[0] <= corner <= f[-1]),
             residual_rms_db=fit2.rms_db,
             other_order_residual_rms_db=hp_fits[1].rms_db if 1 in hp_fits else math.nan,
@@ -935,9 +987,9 @@ def fit_response(
         poor = bool(res_fit.rms_db > RESONANCE_POOR_FIT_DB)
         resonance = ResonanceFit(
             frequency_hz=fr,
-            frequency_std_hz=math.nan if poor else fr * math.sqrt(max(res_fit.cov[1, 1], 0.0)),
+            frequency_std_hz=math.nan if poor else fr * _std(res_fit, 1),
             q=qr,
-            q_std=math.nan if poor else qr * math.sqrt(max(res_fit.cov[2, 2], 0.0)),
+            q_std=math.nan if poor else qr * _std(res_fit, 2),
             peak_hz=_peak_frequency(f, m, peak),
             peak_db=float(m[peak] - sens),
             residual_rms_db=res_fit.rms_db,
@@ -947,7 +999,7 @@ def fit_response(
         reference_hz=float(reference_hz),
         sensitivity_db=sens,
         passband_db=float(passband.params[0]),
-        passband_std_db=math.sqrt(max(float(passband.cov[0, 0]), 0.0)),
+        passband_std_db=_std(passband, 0),
         highpass=highpass,
         resonance=resonance,
         band_1db=band_within(f_all, m_all, tolerance_db=1.0, reference_hz=reference_hz),

@@ -465,9 +465,9 @@ def _device_model(f: np.ndarray, magnitude: np.ndarray) -> np.ndarray:
     reference_hz = 1000.0 if grid[0] <= 1000.0 <= grid[-1] else math.sqrt(grid[0] * grid[-1])
     try:
         fit = fit_response(grid, grid_db, reference_hz=reference_hz)
-    except (InputError, ArithmeticError):
-        # The model only sharpens the estimate: on a response it cannot describe (or
-        # whose noise defeats its least squares) the measured magnitude alone is used.
+    except InputError:
+        # The model only sharpens the estimate: on a response it cannot describe (too
+        # few points to fit) the measured magnitude alone is used.
         return unity
     hp, res = fit.highpass, fit.resonance
     if hp is None and res is None:

@@ -168,6 +168,51 @@ def test_parse_frequency_range_refuses(text, message):
         parse_frequency_range(text, what="sensor.frequency_range")
 
 
+frequencies = st.floats(min_value=1e-3, max_value=1e9, allow_nan=False, allow_infinity=False)
+#: Every separator the range grammar takes (the forms of tone --bandwidth, levels
+#: --velocity-band, impedance/ringdown --band, frontend --noise-band, profiles).
+separators = st.sampled_from([" .. ", "..", ":", " : ", " to ", " – ", "–"])
+
+
+@given(low=frequencies, high=frequencies, sep=separators, positive=st.booleans())
+def test_frequency_range_round_trip(low, high, sep, positive):
+    """Property: two formatted frequencies joined by any separator read back as the pair
+    (to the six formatted digits), in order; the reversed pair is refused."""
+    if not low < high * (1 - 1e-4):  # ends that six digits keep apart
+        low, high = min(low, high) / 2, max(low, high)
+    text = f"{format_quantity(low, 'Hz', digits=6)}{sep}{format_quantity(high, 'Hz', digits=6)}"
+    got = parse_frequency_range(text, what="--band", positive=positive)
+    # Six significant digits: each end within half a unit of the 6th digit.
+    assert math.isclose(got[0], low, rel_tol=5e-6) and math.isclose(got[1], high, rel_tol=5e-6)
+    backwards = (
+        f"{format_quantity(high, 'Hz', digits=6)}{sep}{format_quantity(low, 'Hz', digits=6)}"
+    )
+    with pytest.raises(UnitError, match=r"^--band: the low end must lie below the high end"):
+        parse_frequency_range(backwards, what="--band", positive=positive)
+
+
+@given(st.text(max_size=16), st.booleans())
+def test_frequency_range_parses_or_refuses(text, positive):
+    """Property: any text gives an ordered pair of finite frequencies, or a UnitError that
+    names the option; nothing else."""
+    try:
+        low, high = parse_frequency_range(text, what="--velocity-band", positive=positive)
+    except UnitError as exc:
+        assert exc.message.startswith("--velocity-band")
+        return
+    assert 0 <= low < high and math.isfinite(high)
+    assert low > 0 or not positive
+
+
+@pytest.mark.parametrize("text", ["0 Hz:1 kHz", "DC .. 4 kHz", [0, 5000]])
+def test_frequency_range_positive_refuses_a_zero_low_end(text):
+    # A band-pass or fit band needs a low end above 0 Hz; the same text without
+    # positive=True is a valid data-sheet range (test_parse_frequency_range).
+    assert parse_frequency_range(text)[0] == 0.0
+    with pytest.raises(UnitError, match=r"^--band: the low end must lie above 0 Hz"):
+        parse_frequency_range(text, what="--band", positive=True)
+
+
 def test_db_round_trip():
     # 20 lg 10 = 20 dB by definition of the field-quantity level.
     assert ratio_to_db(10.0) == pytest.approx(20.0)

@@ -69,7 +69,9 @@ def test_vi_capture(cli, tmp_path, rng):
         (("--shunt", "0ohm"), "--shunt must be a positive"),
         (("--dielectric-loss", "maybe"), "--dielectric-loss"),
         (("--shape", "sphere"), "--shape"),
-        (("--band", "33k:27k"), "LOW < HIGH"),
+        (("--band", "33k:27k"), "--band: the low end must lie below the high end"),
+        (("--band", "0:27k"), "--band: the low end must lie above 0 Hz"),
+        (("--band", "27k"), "--band must look like 'LOW .. HIGH' (or 'LOW:HIGH')"),
         (("--at", "-1Hz"), "--at"),
     ],
 )

@@ -252,6 +252,28 @@ def test_fit_frontend_matches_library(cli, tmp_path):
     assert "caution" in r.json()
 
 
+def test_fit_frontend_on_a_noise_dominated_table(cli, tmp_path):
+    # A response table with 40 dB RMS scatter (seeded): the fit used to overflow
+    # (OverflowError, exit 3); now it ends inside its limits, and a corner that ended on
+    # the lower limit (1000 times below the table) is given without an uncertainty.
+    f = np.geomspace(5.0, 30000.0, 300)
+    w = 2 * np.pi * 20.0
+    _, h = scipy.signal.freqs([1, 0], [1, w], worN=2 * np.pi * f)
+    m = -40 + 20 * np.log10(np.abs(h)) + 40 * np.random.default_rng(6).standard_normal(f.size)
+    path = tmp_path / "noisy.csv"
+    path.write_text("".join(f"{float(a)!r},{float(b)!r}\n" for a, b in zip(f, m, strict=True)))
+    r = cli("fit-frontend", path, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    lib = fit_response(f, m).highpass
+    assert lib is not None and doc["corner_hz"] == pytest.approx(lib.corner_hz, rel=1e-9)
+    # With this seed the corner ends on the lower limit, 5 Hz / 1000.
+    assert doc["corner_hz"] == pytest.approx(5.0 / 1000, rel=1e-6)
+    assert doc["corner_std_hz"] is None
+    plain = cli("fit-frontend", path)
+    assert plain.code == 0 and "Traceback" not in plain.err
+
+
 def test_analyze_demo_reports_measured_peak_beside_fitted_resonance(cli):
     # Issue 12 §3.2 on the demo's nominal pickup (a single mode at 14 kHz, Q 8): the
     # measured peak lies at f_r √(1 − 1/(2Q²)) = 13945 Hz (SDOF amplitude peak); the

@@ -304,3 +304,86 @@ def test_a_csv_time_offset_starts_the_time_axes(tmp_path):
     assert sg is not None
     first_edge = start + sg.time_s[0] - (sg.time_s[1] - sg.time_s[0]) / 2
     assert spectro.get_xlim()[0] == pytest.approx(first_edge, abs=1e-9)
+
+
+@pytest.fixture(scope="module")
+def high_rate_reports(tmp_path_factory):
+    """Reports of two 0.1 s captures at 1 MS/s: a 100 kHz tone without a profile, and a
+    1 kHz tone whose profile states a sensor range of 1 Hz to 10 kHz."""
+    from piezo.cli import main
+
+    root = tmp_path_factory.mktemp("high-rate")
+    fs = 1_000_000
+    t = np.arange(100_000) / fs
+    sf.write(str(root / "ultra.wav"), 0.5 * np.sin(2 * np.pi * 100e3 * t), fs, subtype="PCM_24")
+    sf.write(str(root / "disc.wav"), 0.5 * np.sin(2 * np.pi * 1e3 * t), fs, subtype="PCM_24")
+    profile = root / "disc.toml"
+    profile.write_text('[sensor]\nfrequency_range = "1 Hz .. 10 kHz"\n', encoding="utf-8")
+    out = root / "out"
+    for args in ([str(root / "ultra.wav")], [str(root / "disc.wav"), "--profile", str(profile)]):
+        try:
+            main(["report", *args, "--out", str(out)])
+        except SystemExit as exc:
+            assert exc.code in (0, None)
+    return root
+
+
+def _report(root, stem):
+    doc = json.loads((root / "out" / f"{stem}.report.json").read_text(encoding="utf-8"))
+    page = (root / "out" / f"{stem}.report.html").read_text(encoding="utf-8")
+    return doc, page
+
+
+def test_high_rate_report_reaches_above_the_audio_band(high_rate_reports):
+    """At 1 MS/s the report's bands and tone bandwidth are those of ``piezo bands`` and
+    ``piezo tone`` (not 20 kHz): a 100 kHz tone is in both."""
+    import piezo
+    from piezo.spectral.summary import bands_of
+    from piezo.tone.summary import tone_of
+
+    doc, page = _report(high_rate_reports, "ultra")
+    _schema_validator().validate(doc)
+    bands = doc["bands"]
+    # IEC 61260-1:2014 base-ten one-third-octave bands: the band of exact mid-band
+    # frequency 1000 · 10^(20/10) Hz = 100 kHz holds the tone; its neighbours, a third
+    # of an octave away, attenuate it (class 1 limits), so it is the largest.
+    peak = int(np.argmax(bands["level_db"][0]))
+    assert bands["labels"][peak] == "100k"
+    assert bands["exact_hz"][peak] == pytest.approx(100000.0, rel=1e-12)
+    # default_high_hz: 0.475 fs above audio rates (piezo.spectral.bands), 475 kHz here.
+    assert (bands["high_hz"], bands["high_source"]) == (475000.0, "sample rate")
+    tone = doc["tone"]["channels"][0]
+    assert tone["present"] and tone["frequency_hz"] == pytest.approx(100e3, rel=1e-6)
+    assert (tone["bandwidth_hz"], doc["tone"]["bandwidth_source"]) == (
+        [20.0, 450000.0],
+        "sample rate",
+    )
+    # The same limits as the commands' library calls on the same file.
+    source = piezo.open(high_rate_reports / "ultra.wav")
+    command = bands_of(source, fraction=3).to_dict()
+    assert [b["nominal_hz"] for b in command["channels"][0]["bands"]] == bands["nominal_hz"]
+    assert (command["high_hz"], command["high_source"]) == (bands["high_hz"], bands["high_source"])
+    assert list(tone_of(source).bandwidth_hz) == tone["bandwidth_hz"]
+    assert "Bands up to 475000 Hz nominal: the default for the sample rate" in page
+    assert "The bandwidth's upper end is the default for the sample rate" in page
+
+
+def test_sensor_frequency_range_caps_the_report_limits(high_rate_reports):
+    """A profile's ``frequency_range = "1 Hz .. 10 kHz"`` ends bands and tone bandwidth at
+    10 kHz, and the report says it came from the sensor."""
+    import piezo
+    from piezo.spectral.summary import bands_of
+
+    doc, page = _report(high_rate_reports, "disc")
+    _schema_validator().validate(doc)
+    bands = doc["bands"]
+    assert bands["labels"][-1] == "10k"
+    assert (bands["high_hz"], bands["high_source"]) == (10000.0, "sensor")
+    tone = doc["tone"]["channels"][0]
+    assert (tone["bandwidth_hz"], doc["tone"]["bandwidth_source"]) == ([20.0, 10000.0], "sensor")
+    assert tone["frequency_hz"] == pytest.approx(1e3, rel=1e-6)
+    source = piezo.open(high_rate_reports / "disc.wav", profile=high_rate_reports / "disc.toml")
+    command = bands_of(source, fraction=3).to_dict()
+    assert [b["nominal_hz"] for b in command["channels"][0]["bands"]] == bands["nominal_hz"]
+    # The bands' and the tone's sentence both name the sensor's range.
+    assert page.count("where the sensor's frequency range ends") == 2

@@ -11,6 +11,8 @@ import scipy.signal
 
 from piezo.errors import InputError
 from piezo.response.fit import (
+    FREQUENCY_LIMIT_FACTOR,
+    Q_LIMITS,
     ResponseTable,
     band_within,
     deviation_from_golden,
@@ -139,6 +141,37 @@ def test_uncertainty_matches_scatter(rng):
     reported = float(np.mean(sigmas))
     assert 1 / 1.5 < scatter / reported < 1.5
     assert abs(np.mean(corners) - fc) < 3 * scatter / math.sqrt(40)
+
+
+def test_noise_dominated_response_fits_inside_the_limits():
+    # A sweep table whose magnitudes scatter by 1 to 40 dB RMS (a capture drowned in
+    # noise): least squares used to run along flat directions (a degenerate second-order
+    # high-pass, Q → 0 with f0 → ∞) until math.exp overflowed (OverflowError). The fit
+    # must now end with every natural frequency and Q inside the limits, finite numbers
+    # throughout, and no uncertainty for a parameter that ended on a limit.
+    f = log_frequency_grid(5.0, 30000.0, 24)
+    w = 2 * np.pi * 20.0
+    clean = _sensor(f, s_db=-40.0, hp_b=[1, 0], hp_a=[1, w], fr=20000.0, qr=20.0)
+    low_limit = f[0] / FREQUENCY_LIMIT_FACTOR
+    on_limit = 0
+    for scatter_db in (1.0, 5.0, 20.0, 40.0):
+        for seed in range(40):
+            noisy = clean + scatter_db * np.random.default_rng(seed).standard_normal(f.size)
+            fit = fit_response(f, noisy)
+            assert np.all(np.isfinite(fit.model_db)) and math.isfinite(fit.passband_db)
+            hp, res = fit.highpass, fit.resonance
+            if hp is not None:
+                assert low_limit * (1 - 1e-9) <= hp.natural_hz <= 1000.0 * FREQUENCY_LIMIT_FACTOR
+                if hp.natural_hz <= low_limit * (1 + 1e-6):
+                    on_limit += 1
+                    assert math.isnan(hp.corner_std_hz)
+                else:
+                    assert math.isfinite(hp.corner_std_hz)
+            if res is not None:
+                assert Q_LIMITS[0] * (1 - 1e-9) <= res.q <= Q_LIMITS[1] * (1 + 1e-9)
+                assert f[0] <= res.frequency_hz <= f[-1] * FREQUENCY_LIMIT_FACTOR
+    # The last rule is exercised: some of these copies do end on the lower limit.
+    assert on_limit > 0
 
 
 def test_order_choice_with_noise(rng):
