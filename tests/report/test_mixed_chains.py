@@ -273,3 +273,20 @@ def test_bundled_accelerometer_bench_keeps_each_sensor_and_chart(tmp_path):
         assert entry["LZpeak"] == pytest.approx(alone["LZpeak"], abs=1e-9)
         assert entry["LAeq"] is None  # acceleration: no A weighting (IEC 61672-1)
     _schema_validator().validate(json.loads(json.dumps(doc)))
+
+
+def test_page_leaves_out_level_rows_no_channel_has(tmp_path):
+    # Two accelerometers: no A- or C-weighted level exists (IEC 61672-1 weights sound
+    # pressure), so the page's table holds only the Z rows and names what it left out,
+    # as the terminal does; the JSON keeps every name with null values.
+    from piezo.cli import main
+    from tests.paths import RECORDINGS
+
+    with pytest.raises(SystemExit) as done:
+        main(["report", str(RECORDINGS / "accel-bench.flac"), "--out", str(tmp_path)])
+    assert done.value.code in (0, None)
+    page = next(tmp_path.glob("*.report.html")).read_text(encoding="utf-8")
+    assert "<tr><td>LZeq</td>" in page and "<tr><td>LAeq</td>" not in page
+    assert "Not given for any channel, left out (23;" in page
+    doc = json.loads(next(tmp_path.glob("*.report.json")).read_text(encoding="utf-8"))
+    assert all(ch["LAeq"] is None for ch in doc["levels"]["channels"])
