@@ -307,6 +307,9 @@ def make(
         f"wrote {out}: sweep {spec.start_hz:g}–{spec.stop_hz:g} Hz in {spec.duration_s:g} s "
         f"at {spec.level_dbfs:g} dBFS, {spec.sample_rate_hz:g} Hz, {spec.frames} frames"
     )
+    if spec.sensor_level is not None:
+        amount, quantity = spec.sensor_level
+        console.print(f"  at the sensor {amount:.6g} {QUANTITIES[quantity].unit} RMS ({quantity})")
     console.print(f"  parameters in {side} (give it, or the WAV, to piezo sweep analyze)")
 
 

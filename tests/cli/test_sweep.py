@@ -418,6 +418,20 @@ def test_make_records_a_shaker_level_that_analyze_reads(cli, tmp_path):
     )
 
 
+def test_make_acoustic_level_is_the_pressure_spelling(cli, tmp_path):
+    # '--acoustic-level 94' is dB re 20 µPa (ISO 1683), as before: 1.0024 Pa RMS.
+    _make(cli, tmp_path, "--acoustic-level", "94")
+    spec = stimulus_from_toml((tmp_path / "sweep.stimulus.toml").read_text())
+    assert spec.sensor_level == (pytest.approx(20e-6 * 10 ** (94 / 20), rel=1e-12), "pressure")
+    r = cli("sweep", "make", "--from", "20Hz", "--to", "2kHz", "--duration", "0.2s", "--rate",
+            "48k", "--out", tmp_path / "g.wav", "--sensor-level", "1 g")  # fmt: skip
+    assert r.code == 0, r.err
+    assert "at the sensor 9.80665 m/s² RMS (acceleration)" in r.out
+    r = cli("sweep", "make", "--from", "20Hz", "--to", "2kHz", "--duration", "0.2s", "--rate",
+            "48k", "--out", tmp_path / "h.wav", "--acoustic-level", "1 g")  # fmt: skip
+    assert r.code == 2 and "sound-pressure spelling" in r.err
+
+
 def test_level_contradicting_the_channel_is_refused(cli, tmp_path, device_capture):
     capture, stim = device_capture
     cases = [
