@@ -105,6 +105,19 @@ class Quantity:
             return 1e-6
         return self.reference
 
+    @property
+    def sensitivity_label(self) -> str:
+        """Unit of a voltage sensitivity as a level: ``"dB re 1 V/Pa"``, ``"dB re 1 V/(m/s²)"``.
+
+        Examples
+        --------
+        >>> quantity_named("acceleration").sensitivity_label
+        'dB re 1 V/(m/s²)'
+        >>> quantity_named("force").sensitivity_label
+        'dB re 1 V/N'
+        """
+        return f"dB re 1 V/({self.unit})" if "/" in self.unit else f"dB re 1 V/{self.unit}"
+
     def level_label(self, *, in_water: bool = False) -> str:
         """How levels of this quantity are labelled, e.g. ``"dB re 20 µPa"``."""
         if self.name == "pressure" and in_water:

@@ -16,6 +16,8 @@ import numpy as np
 import soundfile as sf
 import typer
 
+from piezo.chain.measurement import CalibratedSource
+from piezo.chain.quantity import QUANTITIES, Quantity, parse_level_of, with_article
 from piezo.chain.units import (
     parse_duration,
     parse_frequency,
@@ -38,7 +40,6 @@ from piezo.cli.response import (
     PointsOption,
     ReferenceFrequencyOption,
     SmoothOption,
-    parse_acoustic_level,
     print_fit,
     write_csv,
 )
@@ -96,6 +97,57 @@ def _parse_level(text: str) -> float:
     if not m:
         raise InputError(f"--level: cannot read {text!r}; give dBFS, e.g. '-6' or '-6 dBFS'")
     return float(m.group(1))
+
+
+def _sensor_level(
+    text: str, *, what: str, reference: float | None
+) -> tuple[float, Quantity | None]:
+    """The sweep's RMS amount at the sensor from ``--level`` / ``--sensor-level`` (any
+    quantity, by its unit) or ``--acoustic-level`` (sound pressure only), read by the one
+    level parser; a bare number in dB is re ``reference`` and names no quantity.
+
+    Examples
+    --------
+    >>> value, q = _sensor_level("1 g", what="--level", reference=None)
+    >>> value, q.name
+    (9.80665, 'acceleration')
+    >>> _sensor_level("1 g", what="--acoustic-level", reference=20e-6)
+    Traceback (most recent call last):
+    ...
+    piezo.errors.InputError: --acoustic-level: '1 g' is an acceleration level; \
+--acoustic-level is the sound-pressure spelling of --level: give '94 dB' or '1 Pa'
+    """
+    value, named = parse_level_of(text, reference=reference, what=what)
+    if what == "--acoustic-level" and named is not None and named.name != "pressure":
+        raise InputError(
+            f"{what}: {text!r} is {with_article(named.name)} level; --acoustic-level is the "
+            "sound-pressure spelling of --level: give '94 dB' or '1 Pa'"
+        )
+    return value, named
+
+
+def _analysis_level(
+    source: CalibratedSource, level: str | None, acoustic_level: str | None
+) -> tuple[float | None, str | None, str]:
+    """``--level`` or ``--acoustic-level`` as (RMS value, quantity, option name).
+
+    A bare number in dB is re the reference of the channel's quantity (its chain's
+    reference pressure for sound pressure, ISO 1683 otherwise); ``--acoustic-level`` is
+    always sound pressure. Whether the quantity fits the channel is for
+    :func:`~piezo.response.summary.sweep_response_of` to judge.
+    """
+    if level is not None and acoustic_level is not None:
+        raise InputError(
+            "give --level or --acoustic-level (its sound-pressure spelling), not both"
+        )
+    if level is None and acoustic_level is None:
+        return None, None, "--level"
+    what = "--level" if level is not None else "--acoustic-level"
+    chain = source.chain_of(source.channel_indices[0])
+    bare = QUANTITIES["pressure" if level is None else chain.quantity]
+    reference = chain.reference_pa if bare.name == "pressure" else bare.reference
+    value, named = _sensor_level(str(level or acoustic_level), what=what, reference=reference)
+    return value, (named or bare).name, what
 
 
 def _parse_rate(text: str) -> float:
@@ -170,13 +222,23 @@ def make(
         str | None,
         typer.Option("--fade-out", metavar="TIME", help="Fade-out; default 1/24 octave."),
     ] = None,
+    sensor_level: Annotated[
+        str | None,
+        typer.Option(
+            "--sensor-level",
+            metavar="LEVEL",
+            help="What the sweep makes at the sensor, RMS, with its unit, if known: "
+            "'94 dB SPL', '114 dB re 20 µPa', '1 Pa', '10 m/s²', '1 g', '5 N'; recorded in "
+            "the sidecar for calibrated results (dB re 1 V/Pa, V/(m/s²), V/N ...).",
+        ),
+    ] = None,
     acoustic_level: Annotated[
         str | None,
         typer.Option(
             "--acoustic-level",
             metavar="LEVEL",
-            help="Sound pressure the sweep makes at the sensor ('94 dB' or '1 Pa' RMS), "
-            "if known; recorded in the sidecar for calibrated results.",
+            help="The sound-pressure spelling of --sensor-level: '94 dB' (re 20 µPa) or "
+            "'1 Pa' RMS.",
         ),
     ] = None,
     subtype: SubtypeOption = "PCM_24",
@@ -205,7 +267,15 @@ def make(
     0
     """
     refuse_existing(out, _stimulus_sidecar(out), force=force)
-
+    if sensor_level is not None and acoustic_level is not None:
+        raise InputError(
+            "give --sensor-level or --acoustic-level (its sound-pressure spelling), not both"
+        )
+    at_sensor: tuple[float, Quantity | None] | None = None
+    if sensor_level is not None:
+        at_sensor = _sensor_level(sensor_level, what="--sensor-level", reference=None)
+    elif acoustic_level is not None:
+        at_sensor = _sensor_level(acoustic_level, what="--acoustic-level", reference=20e-6)
     spec = sweep_spec(
         parse_frequency(start, "--from"),
         parse_frequency(stop, "--to"),
@@ -216,7 +286,10 @@ def make(
         fade_out_s=None if fade_out is None else _seconds(fade_out, "--fade-out"),
         silence_before_s=_seconds(silence_before, "--silence-before"),
         silence_after_s=_seconds(silence_after, "--silence-after"),
-        acoustic_level_pa=parse_acoustic_level(acoustic_level),
+        sensor_level=None if at_sensor is None else at_sensor[0],
+        sensor_quantity="pressure"
+        if at_sensor is None
+        else (at_sensor[1] or QUANTITIES["pressure"]).name,
     )
     side = _write_stimulus(
         out, sweep_signal(spec), spec.sample_rate_hz, _check_subtype(subtype), spec.to_toml()
@@ -234,6 +307,9 @@ def make(
         f"wrote {out}: sweep {spec.start_hz:g}–{spec.stop_hz:g} Hz in {spec.duration_s:g} s "
         f"at {spec.level_dbfs:g} dBFS, {spec.sample_rate_hz:g} Hz, {spec.frames} frames"
     )
+    if spec.sensor_level is not None:
+        amount, quantity = spec.sensor_level
+        console.print(f"  at the sensor {amount:.6g} {QUANTITIES[quantity].unit} RMS ({quantity})")
     console.print(f"  parameters in {side} (give it, or the WAV, to piezo sweep analyze)")
 
 
@@ -343,13 +419,25 @@ def analyze(
             help=f"The sweep: NAME.wav (with NAME{STIMULUS_SUFFIX} beside it) or the sidecar.",
         ),
     ],
+    level: Annotated[
+        str | None,
+        typer.Option(
+            "--level",
+            metavar="LEVEL",
+            help="What the sweep made at the sensor, RMS, with its unit: '94 dB SPL', "
+            "'114 dB re 20 µPa', '1 Pa', '10 m/s²', '1 g', '5 N'; a bare number is dB re "
+            "the channel's quantity's reference. Overrides the sidecar. Gives the response "
+            "in dB re 1 V per unit (V/Pa, V/(m/s²), V/N ...); the quantity must be the "
+            "channel's (--quantity, profile).",
+        ),
+    ] = None,
     acoustic_level: Annotated[
         str | None,
         typer.Option(
             "--acoustic-level",
             metavar="LEVEL",
-            help="Sound pressure of the sweep at the sensor ('94 dB' or '1 Pa' RMS); "
-            "overrides the sidecar. Gives the response in dB re 1 V/Pa.",
+            help="The sound-pressure spelling of --level: '94 dB' (re the chain's "
+            "reference, 20 µPa in air) or '1 Pa' RMS.",
         ),
     ] = None,
     golden: Annotated[
@@ -381,8 +469,9 @@ def analyze(
     Deconvolves the capture with the sweep's inverse filter (Farina 2000), finds the
     latency, and separates the linear response from the harmonics 2 to 5. The capture
     is taken in volts at the sensor (full scale and gain undone; a sensitivity in the
-    chain is ignored: it is what is measured). With the sweep's acoustic level the
-    magnitude is a sensitivity in dB re 1 V/Pa, otherwise it is relative to the
+    chain is ignored: it is what is measured). With the sweep's level at the sensor
+    (--level, or the sidecar's) the magnitude is a sensitivity in dB re 1 V per unit of
+    the level's quantity (V/Pa, V/(m/s²), V/N ...), otherwise it is relative to the
     stimulus (dB re 1 V per stimulus full scale).
 
     Examples
@@ -402,13 +491,13 @@ def analyze(
     ref_hz = parse_frequency(reference_frequency, "--reference-frequency")
     thd_freqs = parse_frequency_list(thd_at, what="--thd-at")
     spec = _load_sweep(stimulus)
-    level_pa = parse_acoustic_level(acoustic_level)
     source = open_source(file, src)
     if len(source.channel_indices) != 1:
         raise InputError(
             f"{source.recording.channels} channels: choose the device's channel with --channel",
             source=str(file),
         )
+    level_rms, quantity, level_what = _analysis_level(source, level, acoustic_level)
     golden_table: ResponseTable | None = None
     if golden is not None:
         golden_table = read_response_table(golden, what="golden response", finite=True)
@@ -416,7 +505,9 @@ def analyze(
         source,
         spec,
         stimulus=str(stimulus),
-        acoustic_level_pa=level_pa,
+        level=level_rms,
+        quantity=quantity,
+        level_what=level_what,
         golden=golden_table,
         golden_file=None if golden is None else str(golden),
         golden_relative=golden_relative,
@@ -452,6 +543,8 @@ def _print_summary(doc: dict) -> None:
         f"IR peak/noise {doc['peak_to_noise_db']:.0f} dB"
     )
     print_fit(doc)
+    if doc["sensitivity"] is not None:
+        console.print(f"  trade form    {doc['sensitivity']} at {doc['reference_hz']:g} Hz")
     parts = []
     for f, v in doc["thd_percent_at"].items():
         text = "—" if v is None or not math.isfinite(v) else f"{v:.3g} %"

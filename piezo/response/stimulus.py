@@ -36,6 +36,7 @@ from piezo.io.text import parse_toml, read_text
 from piezo.io.toml import toml_value
 
 __all__ = [
+    "SENSOR_LEVEL_KEYS",
     "NoiseSpec",
     "SweepSpec",
     "harmonic_offsets_s",
@@ -55,6 +56,17 @@ FADE_IN_OCTAVES = 0.5
 FADE_OUT_OCTAVES = 1.0 / 24.0
 
 _FORMAT_VERSION = 1
+
+#: Sidecar key of the RMS amount the sweep makes at the sensor, per measured quantity,
+#: in its SI unit (``acoustic_level_pa`` is the key older sidecars carry; at most one is
+#: set). A channel's quantity names are those of :mod:`piezo.chain.quantity`.
+SENSOR_LEVEL_KEYS = {
+    "pressure": "acoustic_level_pa",
+    "acceleration": "acceleration_level_m_per_s2",
+    "velocity": "velocity_level_m_per_s",
+    "displacement": "displacement_level_m",
+    "force": "force_level_n",
+}
 
 
 def _positive(value: float, what: str) -> float:
@@ -134,6 +146,11 @@ class SweepSpec:
         RMS sound pressure the sweep produces at the sensor, Pa, when known (from a
         reference microphone or coupler calibration). It turns the measured response
         into a sensitivity in V/Pa. ``None`` leaves the response relative.
+    acceleration_level_m_per_s2, velocity_level_m_per_s, displacement_level_m, force_level_n
+        The same for a shaker or a force exciter: the RMS amount of that quantity at the
+        sensor (from a reference accelerometer or force sensor), in its SI unit; the
+        response becomes a sensitivity in V/(m/s²), V/(m/s), V/m or V/N. At most one of
+        these and ``acoustic_level_pa`` is set (:attr:`sensor_level`).
 
     Examples
     --------
@@ -161,6 +178,10 @@ class SweepSpec:
     silence_before_s: float = 0.0
     silence_after_s: float = 0.0
     acoustic_level_pa: float | None = None
+    acceleration_level_m_per_s2: float | None = None
+    velocity_level_m_per_s: float | None = None
+    displacement_level_m: float | None = None
+    force_level_n: float | None = None
 
     def __post_init__(self) -> None:
         fs = _positive(self.sample_rate_hz, "sample_rate_hz")
@@ -190,8 +211,33 @@ class SweepSpec:
             )
         _non_negative(self.silence_before_s, "silence_before_s")
         _non_negative(self.silence_after_s, "silence_after_s")
-        if self.acoustic_level_pa is not None:
-            _positive(self.acoustic_level_pa, "acoustic_level_pa")
+        given = [k for k in SENSOR_LEVEL_KEYS.values() if getattr(self, k) is not None]
+        if len(given) > 1:
+            raise InputError(
+                f"the sweep's level at the sensor is given twice ({' and '.join(given)}); "
+                "keep the one of the quantity the sensor measures"
+            )
+        for key in given:
+            _positive(getattr(self, key), key)
+
+    @property
+    def sensor_level(self) -> tuple[float, str] | None:
+        """The RMS amount the sweep makes at the sensor and its quantity, or None.
+
+        The value is in the quantity's SI unit (Pa, m/s², m/s, m, N).
+
+        Examples
+        --------
+        >>> spec = sweep_spec(20.0, 2000.0, 1.0, 8000.0, sensor_level=9.80665,
+        ...                   sensor_quantity="acceleration")
+        >>> spec.sensor_level, spec.acceleration_level_m_per_s2, spec.acoustic_level_pa
+        ((9.80665, 'acceleration'), 9.80665, None)
+        """
+        for quantity, key in SENSOR_LEVEL_KEYS.items():
+            value = getattr(self, key)
+            if value is not None:
+                return float(value), quantity
+        return None
 
     # -- derived quantities -------------------------------------------------------------
     @property
@@ -389,11 +435,15 @@ def sweep_spec(
     silence_before_s: float = 0.0,
     silence_after_s: float = 0.0,
     acoustic_level_pa: float | None = None,
+    sensor_level: float | None = None,
+    sensor_quantity: str = "pressure",
 ) -> SweepSpec:
     """Build a :class:`SweepSpec`, choosing the fades when they are not given.
 
     The default fade-in spans the first half octave of the sweep and the default fade-out
-    the last 1/24 octave, i.e. T·ln(2^k)/R seconds for k octaves.
+    the last 1/24 octave, i.e. T·ln(2^k)/R seconds for k octaves. The level at the
+    sensor is ``acoustic_level_pa`` (sound pressure, Pa RMS) or ``sensor_level``, the RMS
+    amount of ``sensor_quantity`` in its SI unit (:data:`SENSOR_LEVEL_KEYS`).
 
     Examples
     --------
@@ -419,8 +469,25 @@ def sweep_spec(
         fade_out_s=float(fade_out_s),
         silence_before_s=float(silence_before_s),
         silence_after_s=float(silence_after_s),
-        acoustic_level_pa=None if acoustic_level_pa is None else float(acoustic_level_pa),
+        **_sensor_level_field(sensor_level, sensor_quantity, acoustic_level_pa),
     )
+
+
+def _sensor_level_field(
+    value: float | None, quantity: str, acoustic_level_pa: float | None
+) -> dict[str, float]:
+    """The :class:`SweepSpec` field that holds the level at the sensor (none: empty)."""
+    if value is None:
+        return {} if acoustic_level_pa is None else {"acoustic_level_pa": float(acoustic_level_pa)}
+    key = SENSOR_LEVEL_KEYS.get(quantity)
+    if key is None:
+        raise InputError(
+            f"sensor_quantity {quantity!r}: the level at the sensor is one of "
+            f"{', '.join(SENSOR_LEVEL_KEYS)}"
+        )
+    if acoustic_level_pa is not None:
+        raise InputError("give acoustic_level_pa or sensor_level, not both")
+    return {key: float(value)}
 
 
 def _half_hann_fades(frames: int, fade_in: int, fade_out: int) -> np.ndarray:

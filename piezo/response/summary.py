@@ -11,6 +11,8 @@ forms the three commands share.
 
 from __future__ import annotations
 
+import dataclasses
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -18,7 +20,13 @@ from typing import Any
 import numpy as np
 
 from piezo.chain.measurement import CalibratedSource
-from piezo.chain.quantity import QUANTITIES, Sensitivity, format_sensitivity
+from piezo.chain.quantity import (
+    QUANTITIES,
+    Sensitivity,
+    format_sensitivity,
+    quantity_named,
+    with_article,
+)
 from piezo.errors import InputError
 from piezo.response.comparison import ComparisonResult, compare_back_to_back
 from piezo.response.fit import (
@@ -29,7 +37,7 @@ from piezo.response.fit import (
     fit_response,
 )
 from piezo.response.measure import H1Estimator, SweepResponse, TransferEstimate, analyze_sweep
-from piezo.response.stimulus import NoiseSpec, SweepSpec
+from piezo.response.stimulus import SENSOR_LEVEL_KEYS, NoiseSpec, SweepSpec
 from piezo.results import to_jsonable
 
 __all__ = [
@@ -202,8 +210,10 @@ class SweepAnalysis:
         Where the sweep's parameters came from (its sidecar or WAV).
     sweep
         The sweep.
-    acoustic_level_pa
-        Sound pressure of the sweep at the sensor (RMS), or None (relative response).
+    sensor_level, quantity
+        The RMS amount the sweep makes at the sensor, in the SI unit of ``quantity``
+        (Pa, m/s², m/s, m, N), and that quantity; None for both when unknown (relative
+        response).
     response
         Deconvolution result (impulse response, harmonics, latency).
     table
@@ -226,19 +236,36 @@ class SweepAnalysis:
     >>> doc = a.to_dict()
     >>> doc["stimulus"], doc["golden"], doc["sweep"]["start_hz"]
     ('sweep.stimulus.toml', None, 50.0)
+    >>> a.acoustic_level_pa, a.sensitivity is None, doc["magnitude_unit"]
+    (None, True, 'dB re 1 V/FS')
     """
 
     file: str
     channel: int
     stimulus: str
     sweep: SweepSpec
-    acoustic_level_pa: float | None
+    sensor_level: float | None
+    quantity: str | None
     response: SweepResponse
     table: ResponseTable
     fit: ResponseFit
     thd_percent_at: dict[float, float]
     golden: GoldenDeviation | None = None
     golden_file: str | None = None
+
+    @property
+    def acoustic_level_pa(self) -> float | None:
+        """Sound pressure of the sweep at the sensor (RMS, Pa), or None."""
+        return self.sensor_level if self.quantity == "pressure" else None
+
+    @property
+    def sensitivity(self) -> Sensitivity | None:
+        """The voltage sensitivity at the reference frequency, when the level is known."""
+        if self.quantity is None or not math.isfinite(self.fit.sensitivity_db):
+            return None
+        return Sensitivity(
+            10.0 ** (self.fit.sensitivity_db / 20.0), "V", QUANTITIES[self.quantity]
+        )
 
     def to_dict(self) -> dict[str, Any]:
         """The ``piezo sweep analyze --json`` document (plain JSON values)."""
@@ -247,16 +274,20 @@ class SweepAnalysis:
         golden = None
         if self.golden is not None:
             golden = golden_document(self.golden, self.golden_file or "")
+        sens = self.sensitivity
         doc = {
             "file": self.file,
             "channel": self.channel,
             "stimulus": self.stimulus,
             "sweep": stimulus_document(spec),
             "acoustic_level_pa": self.acoustic_level_pa,
+            "quantity": self.quantity,
+            "sensor_level_rms": self.sensor_level,
             "latency_frames": r.latency_frames,
             "latency_s": r.latency_s,
             "peak_to_noise_db": r.peak_to_noise_db,
             **fit_document(self.fit),
+            "sensitivity": None if sens is None else format_sensitivity(sens),
             "thd_percent_at": {f"{f:g}": v for f, v in self.thd_percent_at.items()},
             "golden": golden,
             **table_document(self.table),
@@ -269,6 +300,9 @@ def sweep_response_of(
     sweep: SweepSpec,
     *,
     stimulus: str = "",
+    level: float | None = None,
+    quantity: str | None = None,
+    level_what: str = "level",
     acoustic_level_pa: float | None = None,
     golden: ResponseTable | None = None,
     golden_file: str | None = None,
@@ -290,9 +324,17 @@ def sweep_response_of(
         The sweep that was played.
     stimulus
         A label of where ``sweep`` came from (a file name), kept in the document.
+    level, quantity
+        The RMS amount the sweep makes at the sensor, in the SI unit of ``quantity``
+        (a name of :data:`piezo.chain.quantity.QUANTITIES`; the channel's chain's when
+        None). The sweep's own level (its sidecar) when ``level`` is None. With a level
+        the magnitude is a voltage sensitivity, in dB re 1 V per unit of the quantity
+        (``dB re 1 V/Pa``, ``dB re 1 V/(m/s²)``, ``dB re 1 V/N`` ...), and
+        :attr:`SweepAnalysis.sensitivity` its trade form.
+    level_what
+        Name of ``level`` in messages (the command's option).
     acoustic_level_pa
-        Sound pressure of the sweep at the sensor (RMS); the sweep's own when None.
-        With it the magnitude is a sensitivity in dB re 1 V/Pa.
+        The sound-pressure spelling of ``level`` (Pa RMS; ``quantity`` pressure).
     golden, golden_file, golden_relative
         A golden response to compare with, the file it came from, and whether both are
         aligned at ``reference_hz`` first.
@@ -306,7 +348,10 @@ def sweep_response_of(
     Raises
     ------
     InputError
-        More than one channel, or a capture the sweep cannot be found in.
+        More than one channel, a capture the sweep cannot be found in, a level of a
+        quantity other than the one the channel's chain states (its profile, the
+        quantity or sensitivity options), or of a channel that measures no mechanical
+        quantity.
 
     Examples
     --------
@@ -319,6 +364,15 @@ def sweep_response_of(
     >>> a = sweep_response_of(piezo.open(path), spec)
     >>> a.to_dict()["latency_frames"], round(a.fit.sensitivity_db, 1)  # 0.5: -6 dB
     (0, -6.0)
+
+    The same capture from an accelerometer on a shaker driven to 1 g RMS: the sweep's
+    peak A = 10^(−6/20) FS made a 0.5·A V peak, for √2·g m/s² peak, so the sensitivity
+    is 0.5·A/(√2·9.80665) = 18.07 mV/(m/s²), 177.2 mV/g:
+
+    >>> b = sweep_response_of(piezo.open(path, quantity="acceleration"), spec,
+    ...                       level=9.80665)
+    >>> b.to_dict()["magnitude_unit"], b.to_dict()["sensitivity"]
+    ('dB re 1 V/(m/s²)', '18.07 mV/(m/s²) (177.2 mV/g)')
     """
     volts = source.volts_at_sensor()
     file = str(source.recording.path)
@@ -327,16 +381,30 @@ def sweep_response_of(
             f"{source.recording.channels} channels: choose the device's channel",
             source=file,
         )
+    channel = volts.channel_indices[0]
+    if acoustic_level_pa is not None:
+        if level is not None:
+            raise InputError("give the sweep's level or its acoustic level, not both")
+        level, quantity = acoustic_level_pa, "pressure"
+    level, quantity = _level_at_sensor(
+        source, channel, sweep, level, quantity, level_what, stimulus
+    )
     # Whole-array analysis: a sweep capture is seconds to a minute long.
     capture = np.concatenate([b[:, 0] for b in volts.blocks()] or [np.zeros(0)])
     try:
+        # analyze_sweep scales by the level whatever its quantity (it names it Pa); the
+        # unit is the level's quantity's.
         response = analyze_sweep(
             capture,
             sweep,
             volts.sample_rate_hz,
             unit="V",
-            acoustic_level_pa=acoustic_level_pa,
+            acoustic_level_pa=level,
         )
+        if quantity is not None:
+            response = dataclasses.replace(
+                response, magnitude_unit=QUANTITIES[quantity].sensitivity_label
+            )
         table = response.to_table(points_per_octave=points_per_octave)
         fit = fit_response(
             table.frequency_hz,
@@ -358,13 +426,13 @@ def sweep_response_of(
             )
         except InputError as exc:
             raise exc.with_source(golden_file or "golden") from None
-    level = acoustic_level_pa if acoustic_level_pa is not None else sweep.acoustic_level_pa
     return SweepAnalysis(
         file=file,
-        channel=volts.channel_indices[0],
+        channel=channel,
         stimulus=stimulus,
         sweep=sweep,
-        acoustic_level_pa=level,
+        sensor_level=level,
+        quantity=quantity,
         response=response,
         table=table,
         fit=fit,
@@ -372,6 +440,50 @@ def sweep_response_of(
         golden=dev,
         golden_file=golden_file,
     )
+
+
+def _level_at_sensor(
+    source: CalibratedSource,
+    channel: int,
+    sweep: SweepSpec,
+    level: float | None,
+    quantity: str | None,
+    what: str,
+    stimulus: str,
+) -> tuple[float | None, str | None]:
+    """The sweep's level at the sensor and its quantity: the one given, else the sweep's.
+
+    A level of another quantity than the one the channel's chain states is refused; a
+    chain that states none (sound pressure by default) takes the level's.
+    """
+    file = str(source.recording.path)
+    if level is None:
+        if sweep.sensor_level is None:
+            return None, None
+        level, quantity = sweep.sensor_level
+        what = f"the level in {stimulus or 'the stimulus sidecar'}"
+    if not (math.isfinite(level) and level > 0):
+        raise InputError(f"{what}: the level must be positive and finite, got {level!r}")
+    chain = source.chain_of(channel)
+    named = chain.quantity if quantity is None else quantity_named(quantity, what=what).name
+    given = source.provenance_of(channel)
+    origin = "default" if given is None else given.quantity
+    if origin != "default" and named != chain.quantity:
+        where = {"option": "--quantity", "sensitivity unit": "the sensitivity's unit"}.get(
+            origin, origin
+        )
+        raise InputError(
+            f"{what}: the sweep's level is {with_article(named)} level, but channel "
+            f"{channel} measures {chain.quantity} ({where})",
+            source=file,
+        )
+    if named not in SENSOR_LEVEL_KEYS:
+        raise InputError(
+            f"{what}: channel {channel} measures {named}; a sweep's level at the sensor is "
+            f"one of {', '.join(SENSOR_LEVEL_KEYS)} (give --quantity)",
+            source=file,
+        )
+    return float(level), named
 
 
 # --------------------------------------------------------------------------------------

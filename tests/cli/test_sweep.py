@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import inspect
 import math
+import re
 
 import numpy as np
 import pytest
@@ -344,3 +345,154 @@ def test_response_with_noisy_reference_gives_the_h1_table_and_skips_the_fit(cli,
     r = cli("response", path)
     assert r.code == 0, r.err
     assert "fit skipped" in r.out
+
+
+# --- the sweep's level in the channel's quantity (issue #13) --------------------------
+
+#: Standard acceleration of gravity, exact (ISO 80000-3:2019, item 3-9.1; 3rd CGPM 1901).
+G = 9.80665
+
+
+def _shaker_capture(tmp_path, stim, *, amount_rms, sensitivity_v_per_unit, highpass_hz=None):
+    """What a sensor of ``sensitivity_v_per_unit`` puts out when the sweep in ``stim``
+    drives its mounting to ``amount_rms`` (SI unit, RMS), through an optional 2nd-order
+    Butterworth high-pass of our own (scipy.signal.butter), as a FLOAT file in volts."""
+    spec = stimulus_from_toml(stim.with_name("sweep.stimulus.toml").read_text())
+    # The sweep's peak A makes √2·amount_rms at the sensor (a sine's peak is √2 × RMS).
+    motion = math.sqrt(2) * amount_rms / spec.amplitude * sweep_signal(spec)
+    if highpass_hz is not None:
+        sos = scipy.signal.butter(2, highpass_hz, "highpass", fs=FS, output="sos")
+        motion = scipy.signal.sosfilt(sos, motion)
+    path = tmp_path / "shaker.wav"
+    sf.write(str(path), sensitivity_v_per_unit * motion, FS, subtype="FLOAT")
+    return path
+
+
+def _highpass_gain(corner_hz, f_hz):
+    """|H(f)| of the same Butterworth high-pass (scipy.signal.sosfreqz)."""
+    sos = scipy.signal.butter(2, corner_hz, "highpass", fs=FS, output="sos")
+    _, h = scipy.signal.sosfreqz(sos, worN=[f_hz], fs=FS)
+    return abs(h[0])
+
+
+def test_analyze_accelerometer_reads_its_mv_per_g_at_1khz(cli, tmp_path):
+    # An accelerometer of 10 mV/g (a data-sheet figure; g per ISO 80000-3) with a 30 Hz
+    # high-pass, swept on a shaker at 1 g RMS.
+    stim = _make(cli, tmp_path)
+    capture = _shaker_capture(
+        tmp_path, stim, amount_rms=G, sensitivity_v_per_unit=10e-3 / G, highpass_hz=30.0
+    )
+    r = cli("sweep", "analyze", capture, "--stimulus", stim, "--quantity", "acceleration",
+            "--level", "1 g", "--json")  # fmt: skip
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["magnitude_unit"] == "dB re 1 V/(m/s²)"
+    assert doc["quantity"] == "acceleration"
+    assert doc["sensor_level_rms"] == pytest.approx(G, rel=1e-15)
+    assert doc["acoustic_level_pa"] is None and doc["sensitivity_mv_per_pa"] is None
+    # 10 mV/g times the high-pass's |H(1 kHz)| (scipy: 1 − 4e-7 for this corner).
+    # Tolerance 1e-4 (0.0009 dB): the capture is noise-free float32 (6e-8 relative
+    # resolution), and 1 kHz lies 5.6 octaves inside both sweep edges, where the inverse
+    # filter's edge ripple has died out; a wrong scale (√2, g, the sweep's peak) is ≥ 2 %.
+    expected_v_per_ms2 = 10e-3 / G * _highpass_gain(30.0, 1000.0)
+    assert 10 ** (doc["sensitivity_db"] / 20) == pytest.approx(expected_v_per_ms2, rel=1e-4)
+    # The trade form, mV/(m/s²) then mV/g, 4 digits: read back its mV/g figure (rounding
+    # ±0.005 plus the 1e-4 above).
+    per_g = re.fullmatch(r"([\d.]+) mV/\(m/s²\) \(([\d.]+) mV/g\)", doc["sensitivity"])
+    assert per_g is not None, doc["sensitivity"]
+    assert float(per_g.group(2)) == pytest.approx(1e3 * expected_v_per_ms2 * G, abs=0.0051)
+    assert doc["corner_order"] == 2 and doc["corner_hz"] == pytest.approx(30.0, rel=0.02)
+    # The same level as a bare number: dB re 1 µm/s² (ISO 1683:2015, Table 1), the
+    # channel's quantity's reference; 20·lg(9.80665 / 1e-6) = 139.83 dB.
+    level_db = 20 * math.log10(G / 1e-6)
+    r2 = cli("sweep", "analyze", capture, "--stimulus", stim, "--quantity", "acceleration",
+             "--level", f"{level_db!r}", "--json")  # fmt: skip
+    assert r2.code == 0, r2.err
+    assert r2.json()["sensitivity_db"] == pytest.approx(doc["sensitivity_db"], abs=1e-9)
+    # The terminal and the CSV name the unit too.
+    csv = tmp_path / "a.csv"
+    r3 = cli("sweep", "analyze", capture, "--stimulus", stim, "--level", "1 g", "--csv", csv)
+    assert r3.code == 0, r3.err
+    assert "dB re 1 V/(m/s²)" in r3.out and "mV/g" in r3.out
+    assert "# magnitude_db: dB re 1 V/(m/s²)" in csv.read_text()
+
+
+def test_make_records_a_shaker_level_that_analyze_reads(cli, tmp_path):
+    # A force sensor of 2 mV/N (flat), the sweep at 5 N RMS, the level in the sidecar.
+    stim = _make(cli, tmp_path, "--sensor-level", "5 N")
+    spec = stimulus_from_toml((tmp_path / "sweep.stimulus.toml").read_text())
+    assert spec.sensor_level == (5.0, "force") and spec.acoustic_level_pa is None
+    capture = _shaker_capture(tmp_path, stim, amount_rms=5.0, sensitivity_v_per_unit=2e-3)
+    # No quantity in the chain: the sidecar's level names it.
+    r = cli("sweep", "analyze", capture, "--stimulus", stim, "--json")
+    assert r.code == 0, r.err
+    doc = r.json()
+    assert doc["magnitude_unit"] == "dB re 1 V/N" and doc["quantity"] == "force"
+    assert doc["sweep"]["force_level_n"] == 5.0
+    # Flat: 20·lg(2 mV/N) = −53.98 dB re 1 V/N; tolerance as in the accelerometer test.
+    assert 10 ** (doc["sensitivity_db"] / 20) == pytest.approx(2e-3, rel=1e-4)
+    assert doc["sensitivity"] == "2.000 mV/N"
+    # A level given on the command line overrides the sidecar's: 10 N halves it.
+    r2 = cli("sweep", "analyze", capture, "--stimulus", stim, "--level", "10 N", "--json")
+    assert r2.code == 0, r2.err
+    assert r2.json()["sensitivity_db"] == pytest.approx(
+        doc["sensitivity_db"] - 20 * math.log10(2), abs=1e-9
+    )
+
+
+def test_make_acoustic_level_is_the_pressure_spelling(cli, tmp_path):
+    # '--acoustic-level 94' is dB re 20 µPa (ISO 1683), as before: 1.0024 Pa RMS.
+    _make(cli, tmp_path, "--acoustic-level", "94")
+    spec = stimulus_from_toml((tmp_path / "sweep.stimulus.toml").read_text())
+    assert spec.sensor_level == (pytest.approx(20e-6 * 10 ** (94 / 20), rel=1e-12), "pressure")
+    r = cli("sweep", "make", "--from", "20Hz", "--to", "2kHz", "--duration", "0.2s", "--rate",
+            "48k", "--out", tmp_path / "g.wav", "--sensor-level", "1 g")  # fmt: skip
+    assert r.code == 0, r.err
+    assert "at the sensor 9.80665 m/s² RMS (acceleration)" in r.out
+    r = cli("sweep", "make", "--from", "20Hz", "--to", "2kHz", "--duration", "0.2s", "--rate",
+            "48k", "--out", tmp_path / "h.wav", "--acoustic-level", "1 g")  # fmt: skip
+    assert r.code == 2 and "sound-pressure spelling" in r.err
+
+
+def test_level_contradicting_the_channel_is_refused(cli, tmp_path, device_capture):
+    capture, stim = device_capture
+    cases = [
+        (("--quantity", "force", "--level", "1 g"), "acceleration level, but channel 0 "
+         "measures force (--quantity)"),
+        (("--sensitivity", "10 mV/g", "--level", "94 dB SPL"), "a pressure level, but "
+         "channel 0 measures acceleration (the sensitivity's unit)"),
+        (("--quantity", "acceleration", "--acoustic-level", "94 dB"), "a pressure level"),
+        (("--acoustic-level", "1 g"), "sound-pressure spelling of --level"),
+        (("--level", "1 g", "--acoustic-level", "94 dB"), "not both"),
+        (("--quantity", "voltage", "--level", "0"), "measures voltage"),
+    ]  # fmt: skip
+    for options, message in cases:
+        r = cli("sweep", "analyze", capture, "--stimulus", stim, *options)
+        assert r.code == 2, (options, r.out)
+        assert r.err.startswith("piezo: error:") and message in r.err, (options, r.err)
+        assert len(r.err.strip().splitlines()) == 1, r.err
+    # A sidecar's level is held to the channel's quantity as well.
+    (tmp_path / "shaker").mkdir()
+    shaker = _make(cli, tmp_path / "shaker", "--sensor-level", "1 g")
+    r = cli("sweep", "analyze", capture, "--stimulus", shaker, "--quantity", "pressure")
+    assert r.code == 2 and "an acceleration level, but channel 0 measures pressure" in r.err
+    r = cli("sweep", "make", "--from", "20Hz", "--to", "2kHz", "--duration", "0.2s", "--rate",
+            "48k", "--out", tmp_path / "x.wav", "--sensor-level", "94")  # fmt: skip
+    assert r.code == 2 and "names no reference" in r.err
+
+
+def test_pressure_level_forms_agree(cli, tmp_path, device_capture):
+    # '--level 94 dB SPL', '--level 94' (re 20 µPa, the chain's default) and the old
+    # '--acoustic-level 94 dB' are one level: 8 mV/Pa sensors read the same.
+    capture, stim = device_capture
+    chain = ("--gain", "20 dB", "--full-scale", "2 V")
+    docs = []
+    for options in (("--level", "94 dB SPL"), ("--level", "94"), ("--acoustic-level", "94 dB")):
+        r = cli("sweep", "analyze", capture, "--stimulus", stim, *chain, *options, "--json")
+        assert r.code == 0, (options, r.err)
+        docs.append(r.json())
+    for doc in docs:
+        assert doc["magnitude_unit"] == "dB re 1 V/Pa" and doc["quantity"] == "pressure"
+        assert doc["sensitivity_db"] == pytest.approx(docs[0]["sensitivity_db"], abs=1e-9)
+        assert doc["acoustic_level_pa"] == pytest.approx(20e-6 * 10 ** (94 / 20), rel=1e-12)
+    assert docs[0]["sensitivity"].endswith(" mV/Pa")

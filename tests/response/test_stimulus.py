@@ -153,6 +153,43 @@ def test_sidecar_without_acoustic_level():
     assert SweepSpec.from_toml(text).acoustic_level_pa is None
 
 
+def test_sidecar_keeps_a_shaker_level_in_its_quantitys_unit():
+    # 1 g RMS on a shaker (g = 9.80665 m/s², ISO 80000-3): its own key, in m/s².
+    spec = sweep_spec(20.0, 2000.0, 1.0, FS, sensor_level=9.80665, sensor_quantity="acceleration")
+    text = spec.to_toml()
+    assert "acceleration_level_m_per_s2 = 9.80665\n" in text
+    assert "acoustic_level_pa" not in text
+    back = SweepSpec.from_toml(text)
+    assert back == spec and back.sensor_level == (9.80665, "acceleration")
+
+
+def test_sidecar_sound_pressure_level_is_written_as_before():
+    # Sound pressure keeps the old key, so files written before read the same and a
+    # pressure sidecar is byte for byte what it was (the demo's recordings/).
+    old = sweep_spec(20.0, 2000.0, 1.0, FS, acoustic_level_pa=1.0023722)
+    new = sweep_spec(20.0, 2000.0, 1.0, FS, sensor_level=1.0023722, sensor_quantity="pressure")
+    assert new.to_toml() == old.to_toml()
+    assert [line for line in old.to_toml().splitlines() if "level" in line] == [
+        "level_dbfs = -6.0",
+        "acoustic_level_pa = 1.0023722",
+    ]
+    assert SweepSpec.from_toml(old.to_toml()).sensor_level == (1.0023722, "pressure")
+
+
+def test_sidecar_level_refusals():
+    text = sweep_spec(20.0, 2000.0, 1.0, FS, acoustic_level_pa=1.0).to_toml()
+    with pytest.raises(SpecError, match=r"given twice .*acoustic_level_pa and force_level_n"):
+        SweepSpec.from_toml(text + "force_level_n = 5.0\n")
+    with pytest.raises(SpecError, match="'force_level_n' must be a number"):
+        SweepSpec.from_toml(text.replace("acoustic_level_pa = 1.0", 'force_level_n = "5 N"'))
+    with pytest.raises(SpecError, match="force_level_n must be a positive finite number"):
+        SweepSpec.from_toml(text.replace("acoustic_level_pa = 1.0", "force_level_n = -5.0"))
+    with pytest.raises(InputError, match="one of pressure, acceleration, velocity"):
+        sweep_spec(20.0, 2000.0, 1.0, FS, sensor_level=1.0, sensor_quantity="voltage")
+    with pytest.raises(InputError, match="not both"):
+        sweep_spec(20.0, 2000.0, 1.0, FS, acoustic_level_pa=1.0, sensor_level=1.0)
+
+
 def test_noise_sidecar_round_trip():
     spec = NoiseSpec("pink", 2.0, FS, -20.0, seed=7, fade_s=0.01)
     back = stimulus_from_toml(spec.to_toml())
