@@ -530,7 +530,10 @@ def _amount(part: str, text: object, what: str) -> tuple[float, Quantity]:
     except UnitError:
         raise UnitError(f"{what}: cannot read {text!r}; {_LEVEL_FORMS}") from None
     if not q.mechanical:
-        raise UnitError(f"{what}: {text!r} is a {q.name}, not a calibrator level; {_LEVEL_FORMS}")
+        raise UnitError(
+            f"{what}: {text!r} is {with_article(q.name)}, not a sound, vibration or force "
+            f"level; {_LEVEL_FORMS}"
+        )
     if not value > 0:
         raise UnitError(f"{what}: must be positive and finite, got {text!r}")
     return value, q

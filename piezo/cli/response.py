@@ -18,7 +18,6 @@ import typer
 from rich.table import Table
 
 from piezo.chain.measurement import CalibratedSource, profile_for_sensor
-from piezo.chain.quantity import parse_level_of, with_article
 from piezo.chain.units import format_uncertain, parse_frequency, parse_quantity
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import (
@@ -112,32 +111,6 @@ SmoothOption = Annotated[
         help="1/N-octave smoothing of the plotted magnitude only (0: none).",
     ),
 ]
-
-
-def parse_acoustic_level(text: str | None) -> float | None:
-    """``"94 dB"`` (dB re 20 µPa) or ``"1.2 Pa"`` (RMS) → pascals RMS.
-
-    Read by the one level parser, :func:`piezo.chain.quantity.parse_level_of`; a level of
-    another quantity is refused (the sweep's level is the sound pressure at the unit).
-
-    Examples
-    --------
-    94 dB re 20 µPa is 20 µPa · 10^(94/20) = 1.0024 Pa:
-
-    >>> round(parse_acoustic_level("94 dB"), 4), parse_acoustic_level("1.2 Pa")
-    (1.0024, 1.2)
-    >>> parse_acoustic_level(None) is None
-    True
-    """
-    if text is None:
-        return None
-    value, quantity = parse_level_of(text, reference=20e-6, what="--acoustic-level")
-    if quantity is not None and quantity.name != "pressure":
-        raise InputError(
-            f"--acoustic-level: {text!r} is {with_article(quantity.name)}; give the sound "
-            "pressure at the unit, e.g. '94 dB' (re 20 µPa) or '1 Pa' (RMS)"
-        )
-    return value
 
 
 def _band_text(lo: float, hi: float, lo_limited: bool, hi_limited: bool) -> str:

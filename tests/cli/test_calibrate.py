@@ -180,7 +180,7 @@ def test_a_force_calibrator_needs_its_frequency(cli, tmp_path):
     [
         (("--level", "10", "--quantity", "acceleration"), "not a calibrator level"),
         (("--level", "10 m/s²", "--quantity", "force"), "is a level of acceleration, but"),
-        (("--level", "10 V"), "--level: '10 V' is a voltage, not a calibrator level"),
+        (("--level", "10 V"), "--level: '10 V' is a voltage, not a sound, vibration or"),
         (("--level", "140", "--quantity", "voltage"), "calibrate measures a sensor's"),
         # 94 dB is a sound calibrator's: an accelerometer channel needs its level given.
         (("--quantity", "acceleration"), "--level: channel 0 measures acceleration"),
