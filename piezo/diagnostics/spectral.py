@@ -331,8 +331,9 @@ def psd_floor(
 
 
 _FLOOR_GROUP = 32
-# Grid corners evaluated together by the coarse roll-off search (bounds the work array).
-_GRID_CHUNK = 16
+# Work array of the coarse roll-off search (grid corners x spectral lines evaluated at
+# once): large enough to pay for the loop, small enough to stay in the processor cache.
+_GRID_CHUNK_ELEMENTS = 2**17
 
 
 def estimate_rolloff(
@@ -526,8 +527,9 @@ def estimate_rolloff(
         errs = np.full(grid.size, _TOO_NARROW)
         b0 = int(starts[sel[0]])
         scatter = np.cumsum(sigma_b[sel] ** 2)
-        for lo in range(0, grid.size, _GRID_CHUNK):
-            rows = np.arange(lo, min(lo + _GRID_CHUNK, grid.size))
+        chunk = max(1, _GRID_CHUNK_ELEMENTS // max(bin_f.size, 1))
+        for lo in range(0, grid.size, chunk):
+            rows = np.arange(lo, min(lo + chunk, grid.size))
             rows = rows[used[rows] >= 6]
             if rows.size == 0:
                 continue

@@ -59,11 +59,11 @@ def test_corner_inside_the_search_range_is_still_estimated(fs, order):
 
 def test_rolloff_search_is_deterministic_and_chunk_independent(monkeypatch):
     # The coarse search is evaluated in chunks of grid corners: the chunk size bounds
-    # memory only and must not change the answer (one chunk per corner = the scalar
-    # evaluation order; every corner in one chunk).
+    # memory only and must not change the answer (one corner per chunk; every corner in
+    # one chunk).
     import piezo.diagnostics.spectral as spectral
 
     base = _rolloff(16000.0, 2, 60.0, seed=3)
-    for chunk in (1, 240):
-        monkeypatch.setattr(spectral, "_GRID_CHUNK", chunk)
+    for elements in (1, 2**30):
+        monkeypatch.setattr(spectral, "_GRID_CHUNK_ELEMENTS", elements)
         assert _rolloff(16000.0, 2, 60.0, seed=3) == base
