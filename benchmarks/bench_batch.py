@@ -397,6 +397,9 @@ def analysis_split(files: list[Path], spec_path: Path, sample: int) -> dict:
     spec = load_spec(spec_path)
     evaluate_capture(str(files[0]), spec)  # warm caches (imports, FFT plans)
     decode, job, analysis = [], [], []
+    # CPU per metric in spec order: a metric pays for the shared analyses it is the first
+    # to need (the sweep's for sensitivity, its fit for corner, diagnostics for clipping).
+    by_metric: dict[str, list[float]] = {m.name: [] for m in spec.metrics}
     for path in files[:sample]:
         t0 = time.perf_counter()
         sf.read(str(path), dtype="float64")
@@ -407,7 +410,9 @@ def analysis_split(files: list[Path], spec_path: Path, sample: int) -> dict:
         a = CaptureAnalysis(cap, spec)
         t3 = time.perf_counter()
         for m in spec.metrics:
+            c0 = time.process_time()
             EXTRACTORS[m.kind](a, m)
+            by_metric[m.name].append(time.process_time() - c0)
         t4 = time.perf_counter()
         decode.append(t1 - t0)
         job.append(t2 - t1)
@@ -416,6 +421,7 @@ def analysis_split(files: list[Path], spec_path: Path, sample: int) -> dict:
         "decode_s": float(np.median(decode)),
         "job_s": float(np.median(job)),
         "analysis_s": float(np.median(analysis)),
+        "metric_cpu_s": {name: float(np.median(v)) for name, v in by_metric.items()},
     }
 
 
@@ -453,6 +459,12 @@ def main() -> None:
             f"analyses {1e3 * split['analysis_s']:.1f} ms, whole job {1e3 * split['job_s']:.1f} ms"
         )
         print(
+            "  CPU per metric (median; the first metric to need a shared analysis pays for "
+            "it): "
+            + ", ".join(f"{k} {1e3 * v:.1f} ms" for k, v in split["metric_cpu_s"].items())
+            + f"; load average {os.getloadavg()[0]:.2f}"
+        )
+        print(
             f"  job / decode = {split['job_s'] / split['decode_s']:.1f}x; overhead beyond the "
             f"analyses {1e3 * overhead:.1f} ms = {100 * overhead / split['job_s']:.1f} % "
             "of the job (hash, read, calibrate, verdict)"
@@ -470,7 +482,8 @@ def main() -> None:
                     f"{r['run_s']:.1f} s = {r['captures'] / r['run_s']:.1f} captures/s (CPU "
                     f"{1e3 * r['cpu_s'] / r['captures']:.1f} ms per capture, "
                     f"{r['cpu_s'] / r['run_s']:.2f} cores); outputs written in "
-                    f"{r['write_s']:.2f} s; verdicts {r['verdicts']}"
+                    f"{r['write_s']:.2f} s; verdicts {r['verdicts']}; load average "
+                    f"{os.getloadavg()[0]:.2f}"
                 )
         results = {w: min(rs, key=lambda r: r["run_s"]) for w, rs in rounds.items()}
         ratio = results[1]["run_s"] / results[2]["run_s"]

@@ -331,6 +331,9 @@ def psd_floor(
 
 
 _FLOOR_GROUP = 32
+# Work array of the coarse roll-off search (grid corners x spectral lines evaluated at
+# once): large enough to pay for the loop, small enough to stay in the processor cache.
+_GRID_CHUNK_ELEMENTS = 2**17
 
 
 def estimate_rolloff(
@@ -362,7 +365,9 @@ def estimate_rolloff(
     - ``"below range"``: the spectrum is flat (within 3 dB) down to the lowest analysed
       frequency, so the corner lies below it (``upper_bound_hz``);
     - ``"not determinable"``: with the reason (no content below some frequency, a shape
-      that is no first- or second-order high-pass, too little bandwidth).
+      that is no first- or second-order high-pass, too little bandwidth, or a corner at
+      the top of the search: corners are sought up to 0.8 × Nyquist / ``rolloff_fit_span``,
+      and a best fit on that edge only says the corner lies near or above it).
 
     The estimate describes the spectrum as captured. It is the chain's corner only when
     the signal was broadband and above the converter's own noise at low frequencies.
@@ -513,12 +518,55 @@ def estimate_rolloff(
         return fail("too little bandwidth above the lowest content to fit a corner", f_content)
     grid = np.linspace(log_lo, log_hi, 240)
     step = float(grid[1] - grid[0])
-    best: tuple[float, float, int, np.ndarray] = (_TOO_NARROW, 0.0, 1, sel)
+    # Bands each grid corner uses (the first ``used`` of ``sel``; band centres rise).
+    grid_fc = np.array([math.exp(g) for g in grid])
+    used = np.searchsorted(centre[sel], th.rolloff_fit_span * grid_fc, side="right")
+
+    def coarse(order: int) -> np.ndarray:
+        """:func:`objective` at every grid corner at once (the same sums, vectorised)."""
+        errs = np.full(grid.size, _TOO_NARROW)
+        b0 = int(starts[sel[0]])
+        scatter = np.cumsum(sigma_b[sel] ** 2)
+        chunk = max(1, _GRID_CHUNK_ELEMENTS // max(bin_f.size, 1))
+        for lo in range(0, grid.size, chunk):
+            rows = np.arange(lo, min(lo + chunk, grid.size))
+            rows = rows[used[rows] >= 6]
+            if rows.size == 0:
+                continue
+            k = used[rows]
+            bands = sel[: int(k[-1])]
+            hi_bin = int(starts[bands[-1]] + count[bands[-1]])
+            power = highpass_power(
+                bin_f[b0:hi_bin],
+                corner_hz=grid_fc[rows][:, None],  # type: ignore[arg-type]  # broadcasts
+                order=order,
+            )
+            band_power = np.add.reduceat(power, starts[bands] - b0, axis=1) / count[bands]
+            model = 10 * np.log10(band_power)
+            y = level[bands] - model
+            w = weight[bands] * (np.arange(bands.size) < k[:, None])
+            x = log_centre[bands]
+            sw = np.sum(w, axis=1)
+            xm = np.sum(w * x, axis=1) / sw
+            ym = np.sum(w * y, axis=1) / sw
+            dx = x - xm[:, None]
+            sxx = np.sum(w * dx**2, axis=1)
+            sxy = np.sum(w * dx * (y - ym[:, None]), axis=1)
+            tilt = np.divide(sxy, sxx, out=np.zeros_like(sxx), where=sxx > 0)
+            tilt = np.clip(tilt, -_MAX_TILT_DB_PER_DECADE, _MAX_TILT_DB_PER_DECADE)
+            resid = y - ym[:, None] - tilt[:, None] * dx
+            errs[rows] = np.sum(w * resid**2, axis=1) / sw / (scatter[k - 1] / k)
+        return errs
+
+    best: tuple[float, float, int, np.ndarray, bool] = (_TOO_NARROW, 0.0, 1, sel, False)
     for order in (1, 2):
-        errs = np.array([objective(g, order) for g in grid])
+        errs = coarse(order)
         i = int(np.argmin(errs))
         if errs[i] >= _TOO_NARROW:
             continue
+        # The vectorised sums may differ from the scalar ones in the last bits: the value
+        # carried on is the scalar objective's.
+        errs[i] = objective(float(grid[i]), order)
         # The coarse search changes its band set with the corner, which makes the
         # objective jump; refine with the band set held fixed, twice (the second time
         # with the bands belonging to the refined corner).
@@ -538,10 +586,13 @@ def estimate_rolloff(
             if float(res.fun) <= value:
                 log_fc, value = float(res.x), float(res.fun)
         if value < best[0]:
-            best = (value, log_fc, order, use)
+            # A minimum on the grid's last corner, or refined beyond it, is the search
+            # limit, not the corner: the objective still falls there.
+            pinned = i == grid.size - 1 or log_fc > log_hi
+            best = (value, log_fc, order, use, pinned)
     if best[0] >= _TOO_NARROW:
         return fail("too little bandwidth to fit a corner", f_content)
-    _, log_fc, order, use = best
+    _, log_fc, order, use, pinned = best
     fc = math.exp(log_fc)
     resid, w, use, level_1k, tilt = fit(log_fc, order, use)  # type: ignore[misc]
     evidence.update(
@@ -561,6 +612,13 @@ def estimate_rolloff(
     dof_hp = max(use.size - 3, 1)
     f_stat = (chi2_flat - chi2_hp) / max(chi2_hp / dof_hp, 1e-300)
     significant = f_stat >= _CORNER_F_MIN
+    if significant and pinned:
+        return fail(
+            f"the corner lies near or above {math.exp(log_hi):.3g} Hz, the highest the fit "
+            f"can place (it needs passband up to {th.rolloff_fit_span:g} × the corner, below "
+            f"{f_top:.3g} Hz = 0.8 × Nyquist)",
+            f_content,
+        )
     if not at_floor and (fc < 2.0 * f_content or not shape_ok or not significant):
         return fail(
             no_content + ": the spectrum falls faster than a first- or second-order "

@@ -22,6 +22,7 @@ unsmoothed response.
 
 from __future__ import annotations
 
+import contextlib
 import math
 from dataclasses import dataclass
 
@@ -498,6 +499,67 @@ def _fit_delay(
     return float(coef[0]), rms
 
 
+_DelayBasis = tuple[
+    np.ndarray,
+    np.ndarray,
+    np.ndarray,
+    np.ndarray,
+    np.ndarray,
+    tuple[np.ndarray, np.ndarray],
+    tuple[np.ndarray, np.ndarray],
+]
+# Bases by (bins, bin spacing, top bin, band start and stop bin, sweep band): these fix
+# the grid and the band, so equal keys give bitwise equal bases.
+_DELAY_BASES: dict[tuple[int, float, float, int, int, float, float], _DelayBasis | None] = {}
+
+
+def _delay_basis(
+    freq: np.ndarray, lo: int, hi: int, start_hz: float, stop_hz: float
+) -> _DelayBasis | None:
+    """What the latency fit needs that does not depend on the capture, computed once per
+    analysis grid and band (a batch analyses the same sweep over and over).
+
+    Returns the band's frequencies, the mask of those fitted, their angular frequencies,
+    ln f, the nodes of Bode's relation, and the phase of a unit log-magnitude slope
+    beyond each band edge for the analog and the digital device; None when fewer than 8
+    frequencies are fitted. The arrays are read-only.
+    """
+    key = (freq.size, float(freq[1]), float(freq[-1]), lo, hi, float(start_hz), float(stop_hz))
+    if key in _DELAY_BASES:
+        with contextlib.suppress(KeyError):  # another thread may have cleared the table
+            return _DELAY_BASES[key]
+    f = freq[lo:hi]
+    fit = (f >= DELAY_FIT_START * start_hz) & (f <= DELAY_FIT_STOP * stop_hz)
+    basis: _DelayBasis | None = None
+    if np.count_nonzero(fit) >= 8:
+        log_f = np.log(f)
+        nodes = np.linspace(
+            log_f[0], log_f[-1], round(BODE_POINTS_PER_OCTAVE * math.log2(f[-1] / f[0])) + 2
+        )
+        above = np.zeros(freq.size)
+        above[hi:] = np.log(freq[hi:] / f[-1])
+        below = np.zeros(freq.size)
+        below[:lo] = np.log(np.maximum(freq[:lo], freq[1]) / f[0])
+        basis = (
+            f.copy(),
+            fit,
+            2.0 * np.pi * f[fit],
+            log_f,
+            nodes,
+            (2.0 / math.pi * _chi2(f[fit] / f[-1]), 2.0 / math.pi * _chi2(f[0] / f[fit])),
+            (
+                _folded_cepstrum_phase(above)[lo:hi][fit],
+                _folded_cepstrum_phase(below)[lo:hi][fit],
+            ),
+        )
+        for a in (*basis[:5], *basis[5], *basis[6]):
+            a.flags.writeable = False
+    if len(_DELAY_BASES) >= 64:  # a long-running process meeting many sweeps
+        _DELAY_BASES.clear()
+    _DELAY_BASES[key] = basis
+    return basis
+
+
 def _pure_delay_frames(
     freq: np.ndarray,
     h_spec: np.ndarray,
@@ -532,27 +594,18 @@ def _pure_delay_frames(
     """
     fs = spec.sample_rate_hz
     lo, hi = sel.start, sel.stop
-    f = freq[sel]
-    h = h_spec[sel] / d_spec[sel]
-    fit = (f >= DELAY_FIT_START * spec.start_hz) & (f <= DELAY_FIT_STOP * spec.stop_hz)
-    if np.count_nonzero(fit) < 8:
+    basis = _delay_basis(freq, lo, hi, spec.start_hz, spec.stop_hz)
+    if basis is None:
         return 0
-    omega = 2.0 * np.pi * f[fit]
+    f, fit, omega, log_f, nodes, analog_tails, digital_tails = basis
+    h = h_spec[sel] / d_spec[sel]
     magnitude = np.maximum(np.abs(h), np.max(np.abs(h)) * 1e-6)
 
     # Sampled analog device.
     model = _device_model(f, magnitude)
     rest = np.log(magnitude / np.abs(model))
-    log_f = np.log(f)
-    nodes = np.linspace(
-        log_f[0], log_f[-1], round(BODE_POINTS_PER_OCTAVE * math.log2(f[-1] / f[0])) + 2
-    )
     rest_phase = np.interp(log_f, nodes, _bode_phase(nodes, np.interp(nodes, log_f, rest)))
     analog_excess = np.unwrap(np.angle(h / model)) - rest_phase
-    analog_tails = (
-        2.0 / math.pi * _chi2(f[fit] / f[-1]),
-        2.0 / math.pi * _chi2(f[0] / f[fit]),
-    )
     analog_s, analog_rms = _fit_delay(omega, analog_excess[fit], analog_tails)
 
     # Digital device.
@@ -561,14 +614,6 @@ def _pure_delay_frames(
     full[lo:hi] = np.log(magnitude)
     full[hi:] = np.log(magnitude[-1])
     digital_excess = np.unwrap(np.angle(h)) - _folded_cepstrum_phase(full)[sel]
-    above = np.zeros(freq.size)
-    above[hi:] = np.log(freq[hi:] / f[-1])
-    below = np.zeros(freq.size)
-    below[:lo] = np.log(np.maximum(freq[:lo], freq[1]) / f[0])
-    digital_tails = (
-        _folded_cepstrum_phase(above)[sel][fit],
-        _folded_cepstrum_phase(below)[sel][fit],
-    )
     digital_s, digital_rms = _fit_delay(omega, digital_excess[fit], digital_tails)
 
     delay_s = digital_s if digital_rms <= DIGITAL_RESIDUAL_RATIO * analog_rms else analog_s

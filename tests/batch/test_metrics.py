@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -279,3 +280,27 @@ def test_every_metric_kind_has_an_extractor():
     from piezo.batch.spec import METRIC_KINDS
 
     assert set(EXTRACTORS) == set(METRIC_KINDS)
+
+
+def test_sweep_analysis_is_the_same_with_the_latency_basis_cached():
+    # A batch analyses one sweep over and over: the capture-independent part of the
+    # latency fit is kept per analysis grid (piezo.response.measure._delay_basis). The
+    # first (cold) and a later (warm) analysis of the same capture must agree bit for
+    # bit, and the kept arrays must be read-only so no caller can alter them.
+    from piezo.batch.capture import load_capture
+    from piezo.batch.metrics import sweep_stimulus
+    from piezo.batch.spec import load_spec
+    from piezo.response import measure
+
+    recordings = Path(__file__).resolve().parents[2] / "recordings"
+    spec = load_spec(recordings / "pd27-spec.toml")
+    cap = load_capture(str(recordings / "pd27-lot" / "PD27-24101.flac"), spec)
+    stim = sweep_stimulus(spec.stimulus.params, cap.sample_rate_hz)
+    measure._DELAY_BASES.clear()
+    cold = measure.analyze_sweep(cap.samples, stim, cap.sample_rate_hz, unit="V")
+    assert len(measure._DELAY_BASES) == 1
+    warm = measure.analyze_sweep(cap.samples, stim, cap.sample_rate_hz, unit="V")
+    assert warm.latency_frames == cold.latency_frames
+    np.testing.assert_array_equal(warm.response, cold.response)
+    (basis,) = measure._DELAY_BASES.values()
+    assert basis is not None and not basis[0].flags.writeable
