@@ -159,8 +159,7 @@ class Measurand:
     @property
     def sensitivity_unit(self) -> str:
         """Unit of the sensitivity metric: ``"dB re 1 V/Pa"``, ``"dB re 1 V/(m/s²)"`` ..."""
-        unit = self.measured.unit
-        return f"dB re 1 V/({unit})" if "/" in unit else f"dB re 1 V/{unit}"
+        return self.measured.sensitivity_label
 
     @property
     def level_unit(self) -> str:
