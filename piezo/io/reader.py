@@ -17,8 +17,10 @@ import io as _stdio
 import itertools
 import math
 import os
+import queue
 import re
 import sys
+import threading
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -216,6 +218,12 @@ class Recording:
         if self.csv_layout is not None:
             yield from _csv_blocks(self.path, self.csv_layout, step, self.frames)
             return
+        if self.frames > 2 * step:
+            yield from prefetched(self._decoded_blocks(step))
+        else:
+            yield from self._decoded_blocks(step)
+
+    def _decoded_blocks(self, step: int) -> Iterator[np.ndarray]:
         try:
             with _quiet_stderr():
                 handle = sf.SoundFile(str(self.path))
@@ -238,6 +246,75 @@ class Recording:
             ) from exc
         except OSError as exc:
             raise cannot_read(self.path, exc, what="recording", error=RecordingError) from None
+
+
+_END = object()
+
+
+def prefetched(blocks: Iterator[np.ndarray], depth: int = 2) -> Iterator[np.ndarray]:
+    """``blocks``, decoded one step ahead in a second thread while the caller analyses.
+
+    libsndfile decodes without holding the interpreter lock and the compiled kernels run
+    without it too (``nogil``), so decoding the next block overlaps the analysis of this
+    one: on a long file the wall time approaches the larger of the two instead of their
+    sum (the CPU time stays the same). At most ``depth`` blocks wait, so memory does not
+    grow with the recording. An exception in the reader is raised here, in the caller's
+    thread, unchanged; when the caller stops early the reader stops too and its file is
+    closed.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> out = list(prefetched(iter([np.zeros(2), np.ones(2)])))
+    >>> [b.tolist() for b in out]
+    [[0.0, 0.0], [1.0, 1.0]]
+    >>> def failing():
+    ...     yield np.zeros(1)
+    ...     raise RecordingError("data ends early", source="x.wav")
+    >>> list(prefetched(failing()))
+    Traceback (most recent call last):
+    ...
+    piezo.errors.RecordingError: x.wav: data ends early
+    """
+    handoff: queue.Queue[object] = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+
+    def offer(item: object) -> bool:
+        while not stop.is_set():
+            try:
+                handoff.put(item, timeout=0.05)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def read() -> None:
+        last: object = _END
+        try:
+            for block in blocks:
+                if not offer(block):
+                    return
+        except BaseException as exc:  # handed to the caller, who raises it
+            last = exc
+        finally:
+            close = getattr(blocks, "close", None)
+            if close is not None:
+                close()
+        offer(last)
+
+    reader = threading.Thread(target=read, name="piezo-reader", daemon=True)
+    reader.start()
+    try:
+        while True:
+            item = handoff.get()
+            if item is _END:
+                return
+            if isinstance(item, BaseException):
+                raise item
+            yield item  # type: ignore[misc]
+    finally:
+        stop.set()
+        reader.join(timeout=5.0)
 
 
 @contextlib.contextmanager

@@ -287,3 +287,41 @@ def test_csv_gaps_are_refused_or_reported(tmp_path):
     assert rec.largest_time_gap_s == pytest.approx(0.010, abs=1e-9)
     assert rec.sample_rate_hz == pytest.approx(1000.0, rel=1e-9)
     assert rec.frames == keep.sum()
+
+
+def test_prefetched_reader_stays_bounded_and_stops_with_its_caller():
+    import threading
+    import time
+
+    from piezo.io.reader import prefetched
+
+    made = []
+    closed = threading.Event()
+
+    def source():
+        try:
+            for i in range(1000):
+                made.append(i)
+                yield np.full(4, float(i))
+        finally:
+            closed.set()
+
+    blocks = prefetched(source(), depth=2)
+    first = [next(blocks)[0] for _ in range(3)]
+    time.sleep(0.2)  # give the reader every chance to run ahead
+    assert first == [0.0, 1.0, 2.0]
+    # At most depth blocks wait, plus the one being offered and the three taken.
+    assert len(made) <= 3 + 2 + 1
+    blocks.close()
+    assert closed.wait(2.0)  # the reader stopped and closed its source
+
+
+def test_prefetched_blocks_are_the_files_samples_in_order(tmp_path):
+    # Ten blocks: read ahead in the reader thread, the blocks come out as soundfile reads
+    # them, whole and in order.
+    path = tmp_path / "long.flac"
+    x = np.random.default_rng(3).uniform(-0.5, 0.5, (10 * 512, 2))
+    sf.write(path, x, 8000, subtype="PCM_24")
+    expected, _ = sf.read(path, always_2d=True)
+    got = np.concatenate(list(open_recording(path).blocks(block_frames=512)))
+    assert_array_equal(got, expected)
