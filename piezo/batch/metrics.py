@@ -97,7 +97,15 @@ def _sweep_response(a: CaptureAnalysis) -> Any:
         stimulus = a.spec.stimulus
         stim = sweep_stimulus(stimulus.params, cap.sample_rate_hz)
         level = stimulus.level_value
-        r = analyze_sweep(cap.samples, stim, cap.sample_rate_hz, unit="V", acoustic_level_pa=level)
+        # Every sweep metric is a magnitude or a distortion: no pure-delay fit needed.
+        r = analyze_sweep(
+            cap.samples,
+            stim,
+            cap.sample_rate_hz,
+            unit="V",
+            acoustic_level_pa=level,
+            pure_delay=False,
+        )
         if level is None or (a.spec.measurand.default and a.spec.response_curve is None):
             return r
         return dataclasses.replace(

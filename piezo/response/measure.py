@@ -629,6 +629,7 @@ def analyze_sweep(
     acoustic_level_pa: float | None = None,
     max_order: int = 5,
     linear_window_s: float | None = None,
+    pure_delay: bool = True,
 ) -> SweepResponse:
     """Linear response and harmonic distortion from a swept-sine capture (Farina 2000).
 
@@ -668,6 +669,11 @@ def analyze_sweep(
     linear_window_s
         Length of the linear window after the peak, seconds; default Δt_2. Longer gives
         finer frequency resolution and more noise.
+    pure_delay
+        Fit the pure delay as described above (the latency and the phase referred to
+        it). False takes the latency at the impulse response's peak and skips the fit
+        (about 20-40 ms per capture): for callers that use magnitudes and distortion
+        only, which do not depend on it (the batch runner).
 
     Returns
     -------
@@ -752,7 +758,11 @@ def analyze_sweep(
     h = h_spec[sel] / d_spec[sel]
     # The peak of a minimum-phase device's impulse response lies after its onset: refer
     # the phase to the pure delay instead (the excess phase's slope), not to the peak.
-    shift = _pure_delay_frames(freq, h_spec, d_spec, sel, spec, max_shift=pre1 // 2)
+    shift = (
+        _pure_delay_frames(freq, h_spec, d_spec, sel, spec, max_shift=pre1 // 2)
+        if pure_delay
+        else 0
+    )
     if shift:
         h = h * np.exp(2j * np.pi * f * shift / fs)
         latency += shift

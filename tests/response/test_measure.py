@@ -487,3 +487,23 @@ def test_bode_phase_of_an_analog_filter():
     inside = (f >= 10.0) & (f <= 20000.0)
     err = np.degrees(phase - np.unwrap(np.angle(h)))[inside]
     assert np.max(np.abs(err)) < 0.01
+
+
+def test_magnitudes_and_distortion_do_not_need_the_pure_delay_fit(spec, stimulus):
+    # pure_delay=False (the batch runner) skips the latency fit: the phase is referred
+    # to the impulse response's peak instead, while |H| and THD are the same numbers
+    # (|H·e^{jωτ}| = |H|; only rounding of the complex product differs).
+    sos = np.vstack(
+        [
+            scipy.signal.butter(2, 100.0, "highpass", fs=FS, output="sos"),
+            scipy.signal.butter(2, 2000.0, "lowpass", fs=FS, output="sos"),
+        ]
+    )
+    capture = np.concatenate([np.zeros(277), scipy.signal.sosfilt(sos, stimulus)])
+    full = analyze_sweep(capture, spec, FS)
+    quick = analyze_sweep(capture, spec, FS, pure_delay=False)
+    np.testing.assert_allclose(quick.magnitude_db, full.magnitude_db, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(quick.thd_percent, full.thd_percent, rtol=1e-9, equal_nan=True)
+    # The delay itself against the peak of the 2 kHz low-pass's response, 4 samples later
+    # (the test above).
+    assert (full.latency_frames, quick.latency_frames) == (277, 281)
