@@ -275,8 +275,13 @@ def _golden_deviation(a: CaptureAnalysis, m: MetricSpec) -> MetricValue:
 def _diagnostics(a: CaptureAnalysis) -> Any:
     def compute() -> Any:
         cap = a.capture
+        # Clipping is a time-domain check: the diagnostic PSD (hum, roll-off) is not made.
         result = check_capture(
-            cap.samples, cap.sample_rate_hz, full_scale=cap.clip_level_v, unit="V"
+            cap.samples,
+            cap.sample_rate_hz,
+            full_scale=cap.clip_level_v,
+            unit="V",
+            spectral=False,
         )
         return result.channels[0]
 

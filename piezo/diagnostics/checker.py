@@ -677,6 +677,11 @@ class CaptureChecker:
         Length of the recording when known in advance; a recording shorter than the
         diagnostic PSD's segment then gets a shorter segment (coarser bins) instead of no
         spectrum.
+    spectral
+        False leaves out what needs the diagnostic PSD (the hum and roll-off checks, "not
+        determinable: spectral checks not asked for", and the noise floor's PSD figure),
+        for a caller that needs only the time-domain checks (the batch runner's clipping
+        metric).
 
     Notes
     -----
@@ -730,8 +735,10 @@ class CaptureChecker:
         weightable: bool | Sequence[bool] | None = None,
         channel_indices: Sequence[int] | None = None,
         expected_frames: int | None = None,
+        spectral: bool = True,
     ) -> None:
         validate.sample_rate(sample_rate_hz)
+        self.spectral = bool(spectral)
         validate.channel_count(channels)
         self.sample_rate_hz = float(sample_rate_hz)
         self.channels = channels
@@ -869,7 +876,8 @@ class CaptureChecker:
             # Dropouts: runs of one exact value.
             s, ln, v = self._exact[c].feed(xc, offset)
             self._add_exact_runs(c, s, ln, v)
-        self._spectrum.update(x)
+        if self.spectral:
+            self._spectrum.update(x)
         self._update_drift(x)
         self._noise.update(x)
         if self._weight_a is not None and self._noise_a is not None:
@@ -936,7 +944,7 @@ class CaptureChecker:
         if self.frames == 0:
             raise RecordingError("the recording holds no samples; nothing to check")
         th = self.thresholds
-        spec = self._spectrum.result() if self._spectrum_ready() else None
+        spec = self._spectrum.result() if self.spectral and self._spectrum_ready() else None
         meta_checks = self._metadata_checks()
         channels = []
         for c in range(self.channels):
@@ -947,7 +955,9 @@ class CaptureChecker:
             ac_power = dc.ac_rms**2
             if spec is None:
                 reason = (
-                    "recording shorter than one spectrum segment "
+                    "spectral checks not asked for"
+                    if not self.spectral
+                    else "recording shorter than one spectrum segment "
                     f"({self._spectrum.segment_frames / self.sample_rate_hz:.3g} s)"
                 )
                 hum, rolloff = _not_determinable(reason, th.rolloff_expected_hz)
@@ -1617,6 +1627,7 @@ def check_capture(
     volts_per_unit: float | Sequence[float | None] | None = 1.0,
     weightable: bool | Sequence[bool] | None = None,
     channel_indices: Sequence[int] | None = None,
+    spectral: bool = True,
 ) -> CaptureDiagnostics:
     """Diagnose a whole capture held in memory (thin wrapper over :class:`CaptureChecker`).
 
@@ -1648,6 +1659,7 @@ def check_capture(
         weightable=weightable,
         channel_indices=channel_indices,
         expected_frames=x.shape[0],
+        spectral=spectral,
     )
     checker.update(x)
     return checker.result()

@@ -737,3 +737,18 @@ def test_a_channel_scaled_with_its_full_scale_and_reference_reads_the_same():
     for block in np.array_split(x, 7):
         checker.update(block)
     _assert_same(scaled, checker.result().as_dict())
+
+
+def test_time_domain_checks_do_not_depend_on_the_spectral_ones():
+    # spectral=False (the batch runner's clipping metric) makes no diagnostic PSD: the
+    # time-domain findings are the same numbers, hum and roll-off say they were not asked.
+    fs = 48000.0
+    t = np.arange(int(fs)) / fs
+    x = np.clip(1.2 * np.sin(2 * np.pi * 440 * t), -1.0, 1.0) + 0.01 * np.sin(2 * np.pi * 50 * t)
+    full = check_capture(x, fs).channels[0]
+    quick = check_capture(x, fs, spectral=False).channels[0]
+    assert quick.clipping == full.clipping and quick.headroom == full.headroom
+    assert quick.dc == full.dc and quick.dropouts == full.dropouts
+    assert full.clipping.clipped_samples > 0
+    for name in ("hum", "rolloff"):
+        assert "spectral checks not asked for" in quick.check(name).evidence
