@@ -202,9 +202,7 @@ class Measurand:
         if self.charge_gain_v_per_c is not None:
             charge = volts / self.charge_gain_v_per_c
             return format_sensitivity(Sensitivity(charge, "C", self.measured))
-        if self.in_water:
-            return f"{value_db - 120.0:.2f} dB re 1 V/µPa"
-        return format_sensitivity(Sensitivity(volts, "V", self.measured))
+        return format_sensitivity(Sensitivity(volts, "V", self.measured), in_water=self.in_water)
 
 
 @dataclass(frozen=True)

@@ -232,13 +232,18 @@ class Chain:
         --------
         >>> Chain(sensitivity_v_per_unit=1e9, quantity="charge").sensitivity_text
         '1 mV/pC'
+        >>> Chain(sensitivity_v_per_unit=10 ** (-76 / 20), reference_pa=1e-6).sensitivity_text
+        '-196.00 dB re 1 V/µPa'
         """
         s = self.sensitivity_v_per_unit
         if s is None:
             return None
         if self.quantity == "charge":
             return f"{s * 1e-9:.4g} mV/pC"
-        return format_sensitivity(Sensitivity(s, "V", QUANTITIES[self.quantity]))
+        return format_sensitivity(
+            Sensitivity(s, "V", QUANTITIES[self.quantity]),
+            in_water=self.reference_pa != REFERENCE_AIR_PA,
+        )
 
 
 @dataclass(frozen=True)

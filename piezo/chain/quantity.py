@@ -403,8 +403,11 @@ def with_article(word: str) -> str:
     return f"{'an' if word[:1] in ('a', 'e', 'i', 'o', 'u') else 'a'} {word}"
 
 
-def format_sensitivity(s: Sensitivity, *, digits: int = 4) -> str:
+def format_sensitivity(s: Sensitivity, *, digits: int = 4, in_water: bool = False) -> str:
     """The trade form of a sensitivity, e.g. ``"1.02 mV/(m/s²) (10.00 mV/g)"``.
+
+    A hydrophone's (a voltage sensitivity to pressure, ``in_water``) is a level, as
+    hydrophone data sheets and IEC 60565 give it: ``"-196.00 dB re 1 V/µPa"``.
 
     Examples
     --------
@@ -414,7 +417,11 @@ def format_sensitivity(s: Sensitivity, *, digits: int = 4) -> str:
     '4.000 pC/N'
     >>> format_sensitivity(parse_sensitivity_of("9.99999 mV/N"))  # rounds across a decade
     '10.00 mV/N'
+    >>> format_sensitivity(parse_sensitivity_of("-196 dB re 1 V/µPa"), in_water=True)
+    '-196.00 dB re 1 V/µPa'
     """
+    if in_water and s.quantity.name == "pressure" and s.electrical == "V" and s.value > 0:
+        return f"{20.0 * math.log10(s.value) - 120.0:.2f} dB re 1 V/µPa"
     unit, factor = _TRADE_FORMS[(s.electrical, s.quantity.name)]
     text = _keep_zeros(s.value * factor, digits) + f" {unit}"
     if s.quantity.name == "acceleration":
