@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from piezo.chain.measurement import CalibratedSource
+from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource
 from piezo.chain.quantity import (
     QUANTITIES,
     Sensitivity,
@@ -224,6 +224,9 @@ class SweepAnalysis:
         THD (harmonics 2 to 5) at the requested frequencies.
     golden, golden_file
         Deviation from a golden response and the file it came from, or None.
+    in_water
+        The channel's chain is a hydrophone's (levels re 1 µPa): its sensitivity's trade
+        form is dB re 1 V/µPa.
 
     Examples
     --------
@@ -252,6 +255,7 @@ class SweepAnalysis:
     thd_percent_at: dict[float, float]
     golden: GoldenDeviation | None = None
     golden_file: str | None = None
+    in_water: bool = False
 
     @property
     def acoustic_level_pa(self) -> float | None:
@@ -287,7 +291,9 @@ class SweepAnalysis:
             "latency_s": r.latency_s,
             "peak_to_noise_db": r.peak_to_noise_db,
             **fit_document(self.fit),
-            "sensitivity": None if sens is None else format_sensitivity(sens),
+            "sensitivity": (
+                None if sens is None else format_sensitivity(sens, in_water=self.in_water)
+            ),
             "thd_percent_at": {f"{f:g}": v for f, v in self.thd_percent_at.items()},
             "golden": golden,
             **table_document(self.table),
@@ -439,6 +445,7 @@ def sweep_response_of(
         thd_percent_at=response.thd_percent_at(list(thd_at_hz)),
         golden=dev,
         golden_file=golden_file,
+        in_water=source.chain_of(channel).reference_pa != REFERENCE_AIR_PA,
     )
 
 

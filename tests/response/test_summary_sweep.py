@@ -84,3 +84,18 @@ def test_relative_response_without_a_level(accelerometer):
     # 0.001 dB is the 1e-4 of the calibrated test.
     expected = 20 * np.log10(math.sqrt(2) * 10e-3 * gain_1k / spec.amplitude)
     assert a.fit.sensitivity_db == pytest.approx(expected, abs=1e-3)
+
+
+def test_a_hydrophones_sensitivity_reads_in_db_re_1_v_per_micropascal(tmp_path):
+    # A flat -196 dB re 1 V/µPa hydrophone (0.1585 mV/Pa) swept to 1 Pa RMS in a tank;
+    # with levels re 1 µPa (ISO 1683, water) its trade form is the level, as data sheets
+    # give it (IEC 60565 expresses hydrophone sensitivity in dB re 1 V/µPa).
+    spec = sweep_spec(20.0, 20000.0, 1.0, FS, silence_before_s=0.1, silence_after_s=0.5)
+    volts_per_pa = 10 ** (-196 / 20) * 1e6
+    pressure = math.sqrt(2.0) / spec.amplitude * sweep_signal(spec)  # 1 Pa RMS
+    path = tmp_path / "tank.wav"
+    sf.write(path, volts_per_pa * pressure, int(FS), subtype="FLOAT")
+    doc = sweep_response_of(piezo.open(path, reference="1 uPa"), spec, level=1.0).to_dict()
+    assert doc["sensitivity"] == "-196.00 dB re 1 V/µPa"
+    air = sweep_response_of(piezo.open(path), spec, level=1.0).to_dict()
+    assert air["sensitivity"] == "0.1585 mV/Pa"
