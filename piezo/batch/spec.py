@@ -22,6 +22,7 @@ from typing import Any
 
 from piezo import __version__
 from piezo.chain.curve import ResponseCurve
+from piezo.chain.measurement import REFERENCE_AIR_PA, REFERENCE_WATER_PA
 from piezo.chain.quantity import (
     QUANTITIES,
     Quantity,
@@ -96,9 +97,6 @@ STIMULUS_KINDS: dict[str, dict[str, tuple[str, bool, Any]]] = {
 #: quantities of :mod:`piezo.chain.quantity` (a voltage or charge is no sensor stimulus).
 CAPTURE_QUANTITIES = ("pressure", "acceleration", "velocity", "displacement", "force")
 
-#: Reference sound pressures for levels, ISO 1683:2015: in gases, in liquids.
-_AIR_PA, _WATER_PA = 20e-6, 1e-6
-
 
 @dataclass(frozen=True)
 class Measurand:
@@ -135,7 +133,7 @@ class Measurand:
     """
 
     quantity: str = "pressure"
-    reference: float = _AIR_PA
+    reference: float = REFERENCE_AIR_PA
     #: Gain of the charge amplifier the units feed (V/C), or None for voltage output.
     charge_gain_v_per_c: float | None = None
 
@@ -147,7 +145,7 @@ class Measurand:
     @property
     def in_water(self) -> bool:
         """True for sound pressure referred to 1 µPa (ISO 1683: liquids)."""
-        return self.quantity == "pressure" and math.isclose(self.reference, _WATER_PA)
+        return self.quantity == "pressure" and math.isclose(self.reference, REFERENCE_WATER_PA)
 
     @property
     def default(self) -> bool:
@@ -1029,7 +1027,7 @@ def _measurand(check: _Checker, cap: Mapping[str, Any]) -> Measurand:
             problem = exc.message.removeprefix("capture.charge_gain: ")
             raise check.error(("capture", "charge_gain"), problem) from None
     if "reference" not in cap:
-        own = _AIR_PA if name == "pressure" else QUANTITIES[name].reference
+        own = REFERENCE_AIR_PA if name == "pressure" else QUANTITIES[name].reference
         return Measurand(name, own, charge_gain)
     path = ("capture", "reference")
     if name != "pressure":
@@ -1042,7 +1040,7 @@ def _measurand(check: _Checker, cap: Mapping[str, Any]) -> Measurand:
         reference = parse_quantity(cap["reference"], "Pa", what="capture.reference")
     except UnitError as exc:
         raise check.error(path, exc.message.removeprefix("capture.reference: ")) from None
-    for known in (_AIR_PA, _WATER_PA):
+    for known in (REFERENCE_AIR_PA, REFERENCE_WATER_PA):
         if math.isclose(reference, known, rel_tol=1e-9):
             return Measurand(name, known, charge_gain)
     raise check.error(

@@ -172,6 +172,17 @@ class Chain:
         return QUANTITIES[integrated_quantity(self.quantity, self.integrations)]
 
     @property
+    def in_water(self) -> bool:
+        """True for a sound-pressure chain whose levels are re 1 µPa (ISO 1683: liquids).
+
+        Examples
+        --------
+        >>> Chain(reference_pa=REFERENCE_WATER_PA).in_water, Chain().in_water
+        (True, False)
+        """
+        return self.quantity == "pressure" and self.reference_pa == REFERENCE_WATER_PA
+
+    @property
     def sensitivity_v_per_pa(self) -> float | None:
         """The sensitivity in V/Pa for a sound-pressure chain, else None."""
         return self.sensitivity_v_per_unit if self.quantity == "pressure" else None
@@ -242,7 +253,7 @@ class Chain:
             return f"{s * 1e-9:.4g} mV/pC"
         return format_sensitivity(
             Sensitivity(s, "V", QUANTITIES[self.quantity]),
-            in_water=self.reference_pa != REFERENCE_AIR_PA,
+            in_water=self.in_water,
         )
 
 

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from piezo.chain.measurement import REFERENCE_AIR_PA, CalibratedSource
+from piezo.chain.measurement import CalibratedSource
 from piezo.chain.quantity import (
     QUANTITIES,
     Sensitivity,
@@ -445,7 +445,7 @@ def sweep_response_of(
         thd_percent_at=response.thd_percent_at(list(thd_at_hz)),
         golden=dev,
         golden_file=golden_file,
-        in_water=source.chain_of(channel).reference_pa != REFERENCE_AIR_PA,
+        in_water=source.chain_of(channel).in_water,
     )
 
 
