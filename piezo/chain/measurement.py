@@ -115,6 +115,10 @@ class Chain:
     frequency_range_hz
         The sensor's usable frequency range (low, high) as its data sheet states it
         (profile key ``frequency_range``), or None.
+    charge_gain_v_per_c
+        Gain of the charge amplifier in front of the ADC (``[chain] charge_gain`` or
+        ``--charge-gain``), V/C, or None when none is stated; a charge sensitivity is
+        already folded into ``sensitivity_v_per_unit`` with it.
 
     Examples
     --------
@@ -134,6 +138,7 @@ class Chain:
     response_curve_file: str | None = None
     integrations: int = 0
     frequency_range_hz: tuple[float, float] | None = None
+    charge_gain_v_per_c: float | None = None
 
     def __post_init__(self) -> None:
         for name in ("full_scale_v", "gain", "reference_pa", "sensitivity_v_per_unit"):
@@ -1067,10 +1072,9 @@ channel measures force
         if sens_quantity is not None:
             origin["quantity"] = "sensitivity unit"
     elif sens_quantity is not None and sens_quantity != quantity:
-        article = "an" if sens_quantity[0] in "aeiou" else "a"
         raise InputError(
             f"{prefix}the sensitivity ({_where(origin['sensitivity_v_per_pa'])}) is "
-            f"{article} {sens_quantity} sensitivity, but the quantity is {quantity} "
+            f"{with_article(sens_quantity)} sensitivity, but the quantity is {quantity} "
             f"({_where(origin['quantity'])})"
         )
     if quantity == "charge":
@@ -1099,6 +1103,7 @@ channel measures force
         response_curve=curve,
         response_curve_file=None if curve_path is None else str(curve_path),
         frequency_range_hz=frequency_range,
+        charge_gain_v_per_c=charge_gain,
     )
     return chain, Provenance(**origin, profiles=tuple(profiles), channel=channel)
 

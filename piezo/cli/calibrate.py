@@ -18,12 +18,11 @@ from piezo.chain.quantity import (
     parse_level_of,
     quantity_named,
 )
-from piezo.chain.units import parse_charge_gain, parse_decibels, parse_quantity
+from piezo.chain.units import parse_decibels, parse_quantity
 from piezo.cli.options import (
     JsonOption,
     SourceOptions,
     open_source,
-    parse_channel_values,
     source_options,
 )
 from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
@@ -159,7 +158,7 @@ def calibrate(
             quantity=quantity.name,
             calibrator_tolerance_db=tolerance_db,
             calibrator_expanded_db=certificate_db,
-            charge_gain_v_per_c=_charge_gain(source, src),
+            charge_gain_v_per_c=source.chain_of(source.channel_indices[0]).charge_gain_v_per_c,
             advance=advance,
         )
     result = calibration.result
@@ -184,20 +183,6 @@ def calibrate(
         err_console.print(
             f"tip: --write-profile {sidecar_path(file)} stores this sensitivity in the sidecar"
         )
-
-
-def _charge_gain(source: CalibratedSource, src: SourceOptions) -> float | None:
-    """The charge amplifier's gain of the calibrated channel: ``--charge-gain`` (its own
-    ``N=`` value, else the bare one), else the last profile's ``[chain] charge_gain``."""
-    index = source.channel_indices[0]
-    every, own = parse_channel_values(src.charge_gain, option="--charge-gain")
-    text = own.get(index, every)
-    if text is not None:
-        return parse_charge_gain(text, what="--charge-gain")
-    provenance = source.provenance_of(index)
-    profiles = () if provenance is None else provenance.profiles
-    gains = [p.charge_gain_v_per_c for p in profiles if p.charge_gain_v_per_c is not None]
-    return gains[-1] if gains else None
 
 
 def _quantities(source: CalibratedSource) -> str:
