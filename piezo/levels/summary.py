@@ -245,6 +245,8 @@ def levels_of(
     percentiles: Sequence[float] | None = None,
     weight_any_quantity: bool = False,
     velocity_band_hz: tuple[float, float] = VELOCITY_BAND_HZ,
+    also: Sequence[Any] = (),
+    block_frames: int = 65536,
     advance: Callable[[int], object] | None = None,
 ) -> Levels:
     """Equivalent, maximum, minimum, peak, exposure and percentile levels of ``source``.
@@ -274,6 +276,11 @@ def levels_of(
         band of their RMS velocity, 10 Hz to 1 kHz by default, the broadband range of
         machine-vibration severity (ISO 20816-1), through
         :class:`~piezo.levels.stats.BandRms`.
+    also
+        Further streaming analyses fed the same blocks (the report's), so the file is
+        read once.
+    block_frames
+        Frames per block read.
     advance
         Called with the frames of each block read (a progress bar).
 
@@ -314,7 +321,13 @@ def levels_of(
     )
     # Channels in different units: each divided by its own reference, levels re 1.
     extra = [] if band is None else [band]
-    source.feed(meter if same else _Relative(meter, references), *extra, advance=advance)
+    source.feed(
+        meter if same else _Relative(meter, references),
+        *extra,
+        *also,
+        advance=advance,
+        block_frames=block_frames,
+    )
     return Levels(
         file=str(source.recording.path),
         unit=units[0] if same else None,

@@ -382,8 +382,10 @@ def analyse(
         # reference, A and C weightings where they apply), reading the blocks that feed
         # every other analysis: the file is read once.
         levels = levels_of(
-            _SharedPass.of_source(source, analyses, settings.block_frames),
+            source,
             interval_s=settings.level_interval_s,
+            also=analyses,
+            block_frames=settings.block_frames,
             advance=advance,
         )
     else:
@@ -437,30 +439,6 @@ class _EachChannel:
     def update(self, block: np.ndarray) -> None:
         for c, analysis in enumerate(self.analyses):
             analysis.update(block[:, c : c + 1])
-
-
-@dataclass(frozen=True)
-class _SharedPass(CalibratedSource):
-    """The report's source: whatever reads it through :meth:`feed` (``levels_of``)
-    also feeds the report's other analyses, in blocks of ``block_frames``."""
-
-    also: tuple[Any, ...] = ()
-    block_frames: int = 65536
-
-    @classmethod
-    def of_source(
-        cls, source: CalibratedSource, also: list[Any], block_frames: int
-    ) -> _SharedPass:
-        values = {f.name: getattr(source, f.name) for f in fields(CalibratedSource)}
-        return cls(**values, also=tuple(also), block_frames=block_frames)
-
-    def feed(
-        self,
-        *analyses: Any,
-        advance: Callable[[int], object] | None = None,
-        block_frames: int = 65536,
-    ) -> None:
-        super().feed(*analyses, *self.also, advance=advance, block_frames=self.block_frames)
 
 
 def _tone(analyzer: ToneAnalyzer, min_share: float) -> ToneResult | str:
