@@ -16,15 +16,21 @@ When the chosen folder cannot be created or written, kernels are compiled in eve
 process (about 1-3 s) and nothing is written anywhere.
 
 Loading a cached kernel makes numba import all its implementation registries once per
-process; one of them (``numba.np.arraymath``) probes for BLAS by importing
-``scipy.linalg.cython_blas``, i.e. all of ``scipy.linalg`` (about 0.2 s of CPU), which no
-piezo kernel uses. :class:`Kernel` runs the process's first kernel call with
-``scipy.linalg`` hidden from the calling thread (see :func:`hidden_module`), so numba
-records "no BLAS" and moves on; ``scipy.linalg`` imports normally afterwards and in
-every other thread. The one lasting effect: numba-compiled ``np.convolve`` and
-``np.correlate`` in the same process use numba's own loop instead of BLAS (same result
-to rounding). Nothing of numba is patched: when a numba release stops tolerating the
-missing module, the call is simply repeated without the guard (tested).
+process, and some of them import libraries for features no piezo kernel uses:
+``numba.np.arraymath`` probes for BLAS by importing ``scipy.linalg.cython_blas``, i.e.
+all of ``scipy.linalg`` (about 0.2 s of CPU), and numba's cffi support builds a C parser
+(``cffi``, ``pycparser``: about 0.02 s); importing numba reads PyYAML (about 0.01 s) for a
+``.numba_config.yaml`` file that is rarely there. So :class:`Kernel` runs the process's
+first kernel call with ``scipy.linalg`` and ``cffi`` hidden from the calling thread (see
+:func:`hidden_module`), and :func:`import_numba` imports numba with ``yaml`` hidden unless
+the current folder has that file; numba records the feature as unavailable and moves on.
+The modules import normally afterwards and in every other thread. The lasting effects,
+in the same process only: numba-compiled ``np.convolve`` and ``np.correlate`` use
+numba's own loop instead of BLAS (same result to rounding), and numba cannot compile
+calls of cffi functions (a module already imported is never hidden, so a program that
+imported ``cffi`` or ``scipy.linalg`` before keeps numba's support). Nothing of numba is
+patched: when a numba release stops tolerating a missing module, the call is simply
+repeated without the guard (tested).
 
 Filter designs that need an optimiser or scipy's filter design (the IEC 61672-1 weighting
 fit, for instance) are kept the same way, per sample rate, by :func:`cached_arrays` in
@@ -45,6 +51,7 @@ import threading
 from collections.abc import Callable, Iterator
 from functools import cache
 from pathlib import Path
+from types import ModuleType
 from typing import Any
 
 from piezo.errors import OutputError
@@ -59,6 +66,7 @@ __all__ = [
     "design_folder",
     "first_call",
     "hidden_module",
+    "import_numba",
 ]
 
 
@@ -112,7 +120,7 @@ def _writable_folder() -> str | None:
 def _numba_cache_dir(folder: str) -> Iterator[None]:
     # numba picks the cache location when a function is decorated, from its config;
     # the setting is changed for piezo's decorations only and put back afterwards.
-    import numba
+    numba = import_numba()
 
     config: Any = numba.core.config  # settings are plain module attributes
     previous = config.CACHE_DIR
@@ -125,7 +133,7 @@ def _numba_cache_dir(folder: str) -> Iterator[None]:
 
 def compile_cached(func: Callable[..., Any], **options: Any) -> Any:
     """``numba.njit(**options)(func)``, cached in :func:`cache_folder` when writable."""
-    import numba
+    numba = import_numba()
 
     folder = _writable_folder()
     if folder is None:
@@ -135,43 +143,67 @@ def compile_cached(func: Callable[..., Any], **options: Any) -> Any:
 
 
 class _HideFromThread:
-    """A ``sys.meta_path`` finder refusing one module name to one thread."""
+    """A ``sys.meta_path`` finder refusing some module names to one thread."""
 
-    def __init__(self, name: str) -> None:
-        self.name = name
+    def __init__(self, names: tuple[str, ...]) -> None:
+        self.names = names
         self.thread = threading.get_ident()
 
     def find_spec(self, fullname: str, path: Any = None, target: Any = None) -> None:
-        if fullname == self.name and threading.get_ident() == self.thread:
+        if fullname in self.names and threading.get_ident() == self.thread:
             raise ModuleNotFoundError(f"{fullname} hidden while piezo loads its kernels")
 
 
 @contextlib.contextmanager
-def hidden_module(name: str) -> Iterator[None]:
+def hidden_module(*names: str) -> Iterator[None]:
     """Within the block, ``import name`` (and of its submodules) fails in this thread
-    when the module is not loaded yet; other threads import it as usual.
+    for each of ``names`` not loaded yet; other threads import them as usual.
 
     A finder in front of ``sys.meta_path`` (the import system's documented hook,
-    PEP 451) refuses the name; a module already in ``sys.modules`` is not affected.
+    PEP 451) refuses the names; a module already in ``sys.modules`` is not affected.
 
     Examples
     --------
     >>> import sys
-    >>> with hidden_module("piezo_no_such_module_loaded"):
+    >>> with hidden_module("piezo_no_such_module_loaded", "piezo_nor_this_one"):
     ...     try:
-    ...         import piezo_no_such_module_loaded
+    ...         import piezo_nor_this_one
     ...     except ImportError as e:
     ...         print("refused")
     refused
     >>> with hidden_module("json"):  # loaded already: not affected
     ...     import json
     """
-    finder = _HideFromThread(name)
+    finder = _HideFromThread(names)
     sys.meta_path.insert(0, finder)
     try:
         yield
     finally:
         sys.meta_path.remove(finder)
+
+
+#: numba's configuration file, read from the current folder when numba is imported.
+NUMBA_CONFIG_FILE = ".numba_config.yaml"
+
+
+def import_numba() -> ModuleType:
+    """The ``numba`` module, imported (once per process) with PyYAML hidden unless the
+    current folder has a :data:`NUMBA_CONFIG_FILE` for numba to read.
+
+    Examples
+    --------
+    >>> import_numba().njit is not None
+    True
+    """
+    loaded = sys.modules.get("numba")
+    if loaded is not None:
+        return loaded
+    if os.path.isfile(NUMBA_CONFIG_FILE):
+        import numba
+    else:
+        with hidden_module("yaml"):
+            import numba
+    return numba
 
 
 #: Set once the process's first kernel call has returned (numba's registries loaded).
@@ -265,7 +297,7 @@ def first_call(func: Callable[..., Any], *args: Any) -> Any:
     collecting = gc.isenabled()
     gc.disable()
     try:
-        with hidden_module("scipy.linalg"):
+        with hidden_module("scipy.linalg", "cffi"):
             result = func(*args)
     except ImportError:
         result = func(*args)

@@ -56,7 +56,7 @@ from typing import Any
 
 import numpy as np
 
-from piezo._kernels.cache import Kernel, compile_cached, first_call
+from piezo._kernels.cache import Kernel, compile_cached, first_call, import_numba
 
 __all__ = [
     "BANK_SECTIONS",
@@ -122,8 +122,7 @@ def _compile_helpers() -> None:
     with _HELPERS_LOCK:
         if _helpers_compiled:
             return
-        import numba
-
+        numba = import_numba()
         names = globals()
         for name in _INLINE:
             names[name] = numba.njit(inline="always", **_OPTIONS)(names[name])
@@ -676,7 +675,7 @@ def _bank_kernel(lanes: int) -> Callable:
     # package, so a copy of the two files outside the package works as well).
     module = importlib.import_module(f"{__package__}.bank" if __package__ else "bank")
     func = getattr(module, f"bank{lanes}")
-    import numba
+    numba = import_numba()
 
     config: Any = numba.core.config  # settings are plain module attributes
     previous = config.SLP_VECTORIZE

@@ -153,7 +153,7 @@ _FIRST_CALL_CHILD = textwrap.dedent(
     meter = LevelMeter(48000.0, 2)
     meter.update(x)
     meter.result()
-    print("scipy.linalg" in sys.modules)
+    print(*("scipy.linalg" in sys.modules, "cffi" in sys.modules, "yaml" in sys.modules))
     from scipy import signal  # imports scipy.linalg: it must work as usual now
     import scipy.linalg.cython_blas  # noqa: F401
     ref = signal.sosfilt(sos, x, axis=0)
@@ -165,7 +165,7 @@ _FIRST_CALL_CHILD = textwrap.dedent(
 def test_kernels_load_without_scipy_linalg_and_scipy_works_afterwards(tmp_path):
     # A fresh process, as a command runs: every kernel compiles (an empty cache folder)
     # and runs without importing scipy.linalg (a kernel needing BLAS would fail here),
-    # and gives scipy.signal.sosfilt's result afterwards.
+    # cffi or PyYAML, and gives scipy.signal.sosfilt's result afterwards.
     env = {**os.environ, "PYTHONPATH": str(REPO), "NUMBA_CACHE_DIR": str(tmp_path / "numba")}
     run = subprocess.run(
         [sys.executable, "-W", "error", "-c", _FIRST_CALL_CHILD],
@@ -176,12 +176,37 @@ def test_kernels_load_without_scipy_linalg_and_scipy_works_afterwards(tmp_path):
         timeout=180,
     )
     assert run.returncode == 0, run.stderr
-    loaded, error = run.stdout.split()
-    assert loaded == "False", "loading the kernels imported scipy.linalg"
+    linalg, cffi, yaml, error = run.stdout.split()
+    assert linalg == "False", "loading the kernels imported scipy.linalg"
+    assert cffi == "False", "loading the kernels imported cffi"
+    assert yaml == "False", "importing numba imported PyYAML with no config file to read"
     # The same cascade in transposed direct form II as scipy: rounding only (the C and A
     # weighting sections at 48 kHz, a few ulp per section; 1e-12 of the peak is far
     # below any fault, which would be of order 1).
     assert float(error) < 1e-12
+
+
+def test_a_numba_config_file_in_the_current_folder_is_still_read(tmp_path):
+    # numba reads .numba_config.yaml from the current folder with PyYAML when imported;
+    # piezo hides PyYAML only when there is no such file (the file's setting must hold).
+    pytest.importorskip("yaml")
+    (tmp_path / cache.NUMBA_CONFIG_FILE).write_text("boundscheck: 1\n")
+    child = (
+        "import sys\n"
+        "from piezo._kernels.cache import import_numba\n"
+        "numba = import_numba()\n"
+        "print('yaml' in sys.modules, numba.core.config.BOUNDSCHECK)\n"
+    )
+    run = subprocess.run(
+        [sys.executable, "-W", "error", "-c", child],
+        cwd=tmp_path,
+        env={**os.environ, "PYTHONPATH": str(REPO)},
+        capture_output=True,
+        text=True,
+        timeout=180,
+    )
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.split() == ["True", "1"]
 
 
 def test_kernel_passes_attributes_to_the_dispatcher():
