@@ -25,6 +25,7 @@ from piezo.cli.output import (
     emit_json,
     err_console,
     levels_in,
+    print_heading,
     progress,
     refuse_existing,
     write_text_atomic,
@@ -198,7 +199,7 @@ def _fmt(value: float) -> str:
 
 
 def _print(doc: dict) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]")
+    print_heading(doc["file"])
     console.print(
         f"  1/{doc['fraction']}-octave band Leq ({doc['weighting']}-weighted), "
         f"{levels_in(doc)}, "
@@ -231,6 +232,7 @@ def _print(doc: dict) -> None:
     console.print(table)
     if doc["weighting"] != "Z":
         console.print(
-            "  [dim]Weighted band levels from a piezo sensor are not sound level meter "
-            "readings (IEC 61672-1): do not use them to assess noise exposure.[/dim]"
+            "  Weighted band levels from a piezo sensor are not sound level meter "
+            "readings (IEC 61672-1): do not use them to assess noise exposure.",
+            style="dim",
         )

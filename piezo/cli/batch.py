@@ -9,6 +9,7 @@ from typing import Annotated, Any
 
 import typer
 from rich.table import Table
+from rich.text import Text
 
 from piezo.batch.lot import LotVerdicts
 from piezo.batch.outputs import (
@@ -260,7 +261,7 @@ def _print_summary(
     table.add_column("verdict")
     table.add_column("captures", justify="right")
     for v in VERDICTS:
-        table.add_row(f"[{styles[v]}]{v.upper()}[/]", str(counts[v]))
+        table.add_row(Text(v.upper(), style=styles[v]), str(counts[v]))
     console.print(table)
     y = summary["yield"]
     console.print(
@@ -292,7 +293,7 @@ def _print_summary(
         for r in shown:
             failing.add_row(
                 r["serial"] or Path(r["file"]).name,
-                f"[{styles[r['verdict']]}]{r['verdict'].upper()}[/]",
+                Text(r["verdict"].upper(), style=styles[r["verdict"]]),
                 _why(r),
             )
         console.print(failing)

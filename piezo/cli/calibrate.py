@@ -8,6 +8,7 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+from rich.text import Text
 
 from piezo.chain.measurement import CalibratedSource, profile_with_sensitivity, sidecar_path
 from piezo.chain.quantity import (
@@ -25,7 +26,14 @@ from piezo.cli.options import (
     open_source,
     source_options,
 )
-from piezo.cli.output import console, emit_json, err_console, progress, write_text_atomic
+from piezo.cli.output import (
+    console,
+    emit_json,
+    err_console,
+    print_heading,
+    progress,
+    write_text_atomic,
+)
 from piezo.errors import InputError, UnitError
 from piezo.io.text import parse_toml, read_text
 from piezo.tone.calibrator import calibrator_frequency_hz
@@ -246,7 +254,7 @@ def _calibrator_level(source: CalibratedSource, text: str | None) -> tuple[Quant
 def _print(file: Path, doc: dict, calibration: Calibration) -> None:
     result = calibration.result
     quantity = QUANTITIES[result.quantity]
-    console.print(f"[bold]{file}[/bold]  channel {doc['channel']}  ({result.quantity})")
+    print_heading(file, f"channel {doc['channel']}  ({result.quantity})")
     console.print(
         f"  calibrator    {result.level_db:.5g} {doc['level_unit']} "
         f"= {result.calibrator_rms:.5g} {quantity.unit} RMS",
@@ -259,7 +267,7 @@ def _print(file: Path, doc: dict, calibration: Calibration) -> None:
     if result.charge_gain_v_per_c is not None:
         volts = Sensitivity(result.sensitivity_v_per_unit, "V", quantity)
         extra += f"  ({format_sensitivity(volts)} after the charge amplifier)"
-    console.print(f"  sensitivity   [bold]{result.sensitivity_text}[/bold]{extra}")
+    console.print(Text.assemble("  sensitivity   ", (result.sensitivity_text, "bold"), extra))
     budget = calibration.budget
     console.print(
         f"  uncertainty   ± {budget.expanded_uncertainty:.2g} dB "

@@ -11,14 +11,14 @@ from typing import Annotated, Any
 
 import typer
 from rich import box
-from rich.markup import escape
 from rich.table import Table
+from rich.text import Text
 
 from piezo.chain.measurement import CalibratedSource, Chain
 from piezo.chain.units import format_quantity, parse_quantity
 from piezo.cli.exits import EXIT_FAILED
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, progress
+from piezo.cli.output import console, emit_json, print_heading, progress
 from piezo.diagnostics.checker import (
     CaptureDiagnostics,
     ChannelDiagnostics,
@@ -152,36 +152,36 @@ def check(
 _STYLE = {Severity.OK: "green", Severity.WARN: "yellow", Severity.FAIL: "bold red"}
 
 
-def _severity(sev: Severity) -> str:
+def _severity(sev: Severity) -> Text:
     # The word carries the meaning; colour only helps (readable without colour).
-    return f"[{_STYLE[sev]}]{sev.value.upper()}[/]"
+    return Text(sev.value.upper(), style=_STYLE[sev])
 
 
 def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> None:
     rec = source.recording
     chains = source.chains
     shared = all(c == chains[0] for c in chains)
-    console.print(f"[bold]{escape(str(file))}[/bold]")
+    print_heading(file)
     console.print(
         f"  {rec.format} {rec.subtype}, {rec.sample_rate_hz:g} Hz, {rec.frames} frames "
         f"({rec.duration_s:.3f} s)" + ("" if shared else "; each channel through its own chain")
     )
     if shared:
-        console.print(f"  {escape(_chain_text(chains[0], result.channels[0], rec.is_pcm))}")
+        console.print(f"  {_chain_text(chains[0], result.channels[0], rec.is_pcm)}")
     if result.metadata_checks:
         console.print()
         table = _table("metadata")
         for c in result.metadata_checks:
-            table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
+            table.add_row(c.name, _severity(c.severity), c.evidence, c.threshold)
         console.print(table)
     for chain, ch in zip(chains, result.channels, strict=True):
         console.print()
-        title = f"channel {ch.channel}: {_severity(ch.verdict)}"
+        title = Text.assemble(f"channel {ch.channel}: ", _severity(ch.verdict))
         if not shared:  # each channel in its own unit: say which under its title
-            title += f"\n{escape(_chain_text(chain, ch, rec.is_pcm))}"
+            title.append(f"\n{_chain_text(chain, ch, rec.is_pcm)}")
         table = _table(title)
         for c in ch.checks:
-            table.add_row(c.name, _severity(c.severity), escape(c.evidence), escape(c.threshold))
+            table.add_row(c.name, _severity(c.severity), c.evidence, c.threshold)
         console.print(table)
     console.print()
     bad = [f"file ({c.name})" for c in result.metadata_checks if c.severity is not Severity.OK]
@@ -191,7 +191,7 @@ def _print(file: Path, source: CalibratedSource, result: CaptureDiagnostics) -> 
             bad.append(f"channel {ch.channel} ({', '.join(names)})")
     verdict = result.verdict
     console.print(
-        f"verdict: {_severity(verdict)}" + (f" — {'; '.join(bad)}" if bad else ""),
+        Text.assemble("verdict: ", _severity(verdict), f" — {'; '.join(bad)}" if bad else "")
     )
 
 
@@ -224,7 +224,7 @@ def _chain_text(chain: Chain, channel: ChannelDiagnostics, is_pcm: bool) -> str:
     )
 
 
-def _table(title: str) -> Table:
+def _table(title: str | Text) -> Table:
     table = Table(
         title=title, title_justify="left", header_style="bold", expand=True, box=box.SIMPLE_HEAD
     )

@@ -32,6 +32,7 @@ from piezo.cli.output import (
     atomic_output,
     console,
     emit_json,
+    print_heading,
     progress,
     refuse_existing,
 )
@@ -182,7 +183,7 @@ def frontend(
         _print_vary(doc["vary"]["name"], rows)
     if plot is not None:
         console.print(f"plot written to {plot}")
-    console.print(f"[yellow]{CAUTION}[/yellow]")
+    console.print(CAUTION, style="yellow")
 
 
 def _q(value: float | None, unit: str, digits: int = 4) -> str:
@@ -205,7 +206,7 @@ def _num(value: float | None, spec: str) -> str:
 
 def _print_design(doc: dict[str, Any]) -> None:
     title = f"{doc['design']}" + (f" — {doc['name']}" if doc["name"] else "")
-    console.print(f"[bold]{title}[/bold]")
+    print_heading(title)
     kind = "charge amplifier" if doc["amplifier"] == "charge" else "voltage amplifier"
     lines = [
         ("front-end", kind + (", inverting output" if doc["inverting"] else "")),
@@ -487,7 +488,7 @@ def simulate(
             result.max_error_db, result.check_band_hz, filt.realisation.max_phase_error_deg
         )
     )
-    console.print(f"[yellow]{CAUTION}[/yellow]")
+    console.print(CAUTION, style="yellow")
 
 
 def _peaks_in_units(peaks: Sequence[float], units: Sequence[str]) -> dict[str, Any]:

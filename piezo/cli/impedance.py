@@ -8,6 +8,7 @@ from typing import Annotated, Any
 
 import typer
 from rich.table import Table
+from rich.text import Text
 
 from piezo.chain.units import (
     format_quantity,
@@ -16,7 +17,7 @@ from piezo.chain.units import (
     parse_quantity,
 )
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, err_console, progress
+from piezo.cli.output import console, emit_json, err_console, print_heading, progress
 from piezo.errors import InputError
 
 #: Shown with every result (terminal and JSON).
@@ -269,7 +270,7 @@ def _q(value: float | None, unit: str, u: float | None = None, digits: int = 5) 
 
 
 def _print(doc: dict[str, Any]) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]")
+    print_heading(doc["file"])
     lo, hi = doc["frequency_range_hz"]
     console.print(
         f"  {doc['source']} ({doc['form']}), {doc['points']} points from "
@@ -285,7 +286,7 @@ def _print(doc: dict[str, Any]) -> None:
             + (f", {bins:.1f} bins in the narrowest resonance" if bins is not None else "")
         )
         for note in meas["notes"]:
-            console.print(f"  [yellow]note:[/yellow] {note}")
+            console.print(Text.assemble("  ", ("note:", "yellow"), f" {note}"))
     if not doc["modes"]:
         console.print("  no resonance found")
     units = {"fs_hz": "Hz", "fp_hz": "Hz", "fm_hz": "Hz", "fn_hz": "Hz", "fr_hz": "Hz",
@@ -325,4 +326,4 @@ def _print(doc: dict[str, Any]) -> None:
     console.print(
         "  uncertainties: expanded (k = 2) from the fit's covariance; standard (k = 1) in --json"
     )
-    console.print(f"[dim]{doc['caution']}[/dim]")
+    console.print(doc["caution"], style="dim")

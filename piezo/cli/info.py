@@ -12,7 +12,7 @@ from rich.table import Table
 
 from piezo.chain.measurement import Chain, Provenance
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, progress
+from piezo.cli.output import console, emit_json, print_heading, progress
 from piezo.levels.stats import SignalStats
 from piezo.plots.style import axis_label
 from piezo.results import reference_key
@@ -155,7 +155,7 @@ def _fmt(value: float | None, spec: str = ".2f") -> str:
 
 
 def _print(doc: dict) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]")
+    print_heading(doc["file"])
     console.print(
         f"  {doc['format']} {doc['subtype']}, {doc['sample_rate_hz']:g} Hz, "
         f"{doc['frames']} frames ({doc['duration_s']:.3f} s), "

@@ -16,7 +16,7 @@ from piezo.cli.options import (
     open_source,
     source_options,
 )
-from piezo.cli.output import console, emit_json, levels_in, progress
+from piezo.cli.output import console, emit_json, levels_in, print_heading, progress
 from piezo.errors import InputError
 from piezo.levels.summary import LEVEL_KEYS, levels_of
 from piezo.plots.style import axis_label
@@ -156,7 +156,7 @@ def _fmt(value: float | None) -> str:
 
 
 def _print(doc: dict[str, Any]) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]")
+    print_heading(doc["file"])
     console.print(
         f"  {doc['duration_s']:.3f} s at {doc['sample_rate_hz']:g} Hz, levels in {levels_in(doc)}"
     )
@@ -217,7 +217,7 @@ def _print(doc: dict[str, Any]) -> None:
                     cells += [_fmt(_finite(ch[name][i])) for name in HISTORY_KEYS]
                 hist.add_row(*cells)
             console.print(hist)
-    console.print(f"[dim]{doc['caution']}[/dim]")
+    console.print(doc["caution"], style="dim")
 
 
 def _finite(value: float) -> float | None:

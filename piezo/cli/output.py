@@ -16,6 +16,7 @@ from typing import Annotated, Any
 
 import typer
 from rich.console import Console
+from rich.text import Text
 
 from piezo.errors import OutputError
 from piezo.io.atomic import atomic_output, write_text_atomic
@@ -28,6 +29,7 @@ __all__ = [
     "emit_json",
     "err_console",
     "levels_in",
+    "print_heading",
     "progress",
     "refuse_existing",
     "to_jsonable",
@@ -86,8 +88,26 @@ def refuse_existing(*paths: Path | None, force: bool) -> None:
             raise OutputError("exists; use --force to replace it", source=str(path))
 
 
-console = Console(highlight=False)
-err_console = Console(stderr=True, highlight=False)
+# Plain text: what piezo prints is not read as rich markup or emoji codes, so a file
+# name, a TOML section like "[capture]" or ":fire:" prints as it is. Styles are given as
+# ``style=`` or :class:`rich.text.Text` spans, never inside the text.
+console = Console(highlight=False, markup=False, emoji=False)
+err_console = Console(stderr=True, highlight=False, markup=False, emoji=False)
+
+
+def print_heading(title: object, detail: str = "") -> None:
+    """The first line of a command's terminal output: ``title`` (usually the file, as
+    the user named it) in bold, then ``detail``; never broken into lines, so a long
+    path can be copied whole.
+
+    Examples
+    --------
+    >>> print_heading("probe [1]:fire:.wav", "channel 0")
+    probe [1]:fire:.wav  channel 0
+    """
+    console.print(
+        Text.assemble((str(title), "bold"), f"  {detail}" if detail else ""), soft_wrap=True
+    )
 
 
 def emit_json(obj: Any) -> None:
@@ -138,7 +158,7 @@ def progress(description: str, total: float | None) -> Iterator[Any]:
     from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
 
     bar = Progress(
-        TextColumn("[bold]{task.description}"),
+        TextColumn("{task.description}", style="bold", markup=False),
         BarColumn(),
         TextColumn("{task.percentage:>3.0f}%"),
         TimeRemainingColumn(),

@@ -6,7 +6,6 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
-from rich.markup import escape
 
 from piezo.cli.check import resolve_thresholds
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
@@ -103,16 +102,14 @@ def report(
             html_path, json_path = write_report(run, out, names.claim(file.stem, ending=".report"))
         except PiezoError as exc:
             failed.append({"file": str(file), "error": str(exc.with_source(str(file)))})
-            err_console.print(f"piezo: error: {escape(str(exc))}", highlight=False, soft_wrap=True)
+            err_console.print(f"piezo: error: {exc}", highlight=False, soft_wrap=True)
             continue
         verdict = run.diagnostics.verdict.value
         written.append(
             {"file": str(file), "html": str(html_path), "json": str(json_path), "verdict": verdict}
         )
         if not json_out:
-            console.print(
-                f"{escape(str(file))}: {verdict} -> {escape(str(html_path))}", soft_wrap=True
-            )
+            console.print(f"{file}: {verdict} -> {html_path}", soft_wrap=True)
     if json_out:
         emit_json({"reports": written, "failed": failed})
     if failed:

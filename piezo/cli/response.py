@@ -16,6 +16,7 @@ from typing import Annotated, Any
 import numpy as np
 import typer
 from rich.table import Table
+from rich.text import Text
 
 from piezo.chain.measurement import CalibratedSource, profile_for_sensor
 from piezo.chain.units import format_uncertain, parse_frequency, parse_quantity
@@ -25,6 +26,7 @@ from piezo.cli.output import (
     console,
     emit_json,
     err_console,
+    print_heading,
     progress,
     refuse_existing,
     write_text_atomic,
@@ -140,7 +142,9 @@ def print_fit(doc: dict[str, Any]) -> None:
     sens = f"{doc['sensitivity_db']:.2f} {unit}"
     if doc["sensitivity_mv_per_pa"] is not None:
         sens += f"  ({doc['sensitivity_mv_per_pa']:.4g} mV/Pa)"
-    console.print(f"  sensitivity   [bold]{sens}[/bold] at {doc['reference_hz']:g} Hz")
+    console.print(
+        Text.assemble("  sensitivity   ", (sens, "bold"), f" at {doc['reference_hz']:g} Hz")
+    )
     if doc["corner_hz"] is None:
         console.print("  low corner    below the measured band (response flat at its low end)")
     else:
@@ -152,10 +156,13 @@ def print_fit(doc: dict[str, Any]) -> None:
         console.print("  resonance     none inside the band")
     elif doc["resonance_fit_poor"]:
         console.print(
-            f"  resonance     peak [bold]{doc['resonance_peak_hz']:.5g} Hz[/bold], "
-            f"{doc['resonance_peak_db']:+.2f} dB; not single-mode shaped (single-mode fit "
-            f"{doc['resonance_hz']:.4g} Hz, Q {doc['resonance_q']:.2g}, residual "
-            f"{doc['resonance_fit_residual_db']:.2f} dB RMS: no uncertainty quoted)"
+            Text.assemble(
+                "  resonance     peak ",
+                (f"{doc['resonance_peak_hz']:.5g} Hz", "bold"),
+                f", {doc['resonance_peak_db']:+.2f} dB; not single-mode shaped (single-mode fit "
+                f"{doc['resonance_hz']:.4g} Hz, Q {doc['resonance_q']:.2g}, residual "
+                f"{doc['resonance_fit_residual_db']:.2f} dB RMS: no uncertainty quoted)",
+            )
         )
     else:
         fr = format_uncertain(doc["resonance_hz"], doc["resonance_std_hz"], "Hz")
@@ -371,7 +378,7 @@ def response(
     if json_out:
         emit_json(doc)
     else:
-        console.print(f"[bold]{file}[/bold]  H1 from {result.segments} Welch segments")
+        print_heading(file, f"H1 from {result.segments} Welch segments")
         for entry in channels:
             console.print(
                 f" channel {entry['channel']} over reference channel {reference_channel} "
@@ -433,9 +440,13 @@ def _print_comparison(doc: dict[str, Any]) -> None:
     for ch in doc["channels"]:
         # Uncertainties to two significant digits (GUM 7.2.6), k stated (7.2.4).
         console.print(
-            f"  channel {ch['channel']} ({ch['quantity']}): [bold]{ch['sensitivity']}[/bold] at "
-            f"{ch['reference_frequency_hz']:.4g} Hz, U = {ch['expanded_uncertainty_db']:#.2g} dB "
-            f"(k = {ch['coverage_factor']:.2f}, about 95 %)"
+            Text.assemble(
+                f"  channel {ch['channel']} ({ch['quantity']}): ",
+                (ch["sensitivity"], "bold"),
+                f" at {ch['reference_frequency_hz']:.4g} Hz, "
+                f"U = {ch['expanded_uncertainty_db']:#.2g} dB "
+                f"(k = {ch['coverage_factor']:.2f}, about 95 %)",
+            )
         )
         budget = ch["budget"]
         table = Table(box=None, pad_edge=False, header_style="bold")
@@ -558,6 +569,6 @@ def fit_frontend(
     if json_out:
         emit_json(doc)
         return
-    console.print(f"[bold]{file}[/bold]  {doc['points']} points")
+    print_heading(file, f"{doc['points']} points")
     print_fit(doc)
     err_console.print(FRONTEND_CAUTION)

@@ -16,7 +16,7 @@ from piezo.chain.units import (
 )
 from piezo.cli.impedance import CAUTION
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, progress
+from piezo.cli.output import console, emit_json, print_heading, progress
 from piezo.errors import InputError
 from piezo.results import shared_value
 
@@ -153,7 +153,7 @@ def _document(file: Path, source: Any, results: list[Any]) -> dict[str, Any]:
 
 
 def _print(doc: dict[str, Any]) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]  ({doc['method']})")
+    print_heading(doc["file"], f"({doc['method']})")
     for ch in doc["channels"]:
         n = len(ch["events"])
         console.print(f"  channel {ch['channel']}: {n} event(s)")
@@ -187,4 +187,4 @@ def _print(doc: dict[str, Any]) -> None:
         "  uncertainties: expanded (k = 2), standard (k = 1) in --json; "
         "spreads over events (sample std)"
     )
-    console.print(f"[dim]{doc['caution']}[/dim]")
+    console.print(doc["caution"], style="dim")

@@ -20,6 +20,7 @@ from piezo.cli.output import (
     emit_json,
     err_console,
     levels_in,
+    print_heading,
     progress,
     refuse_existing,
     write_text_atomic,
@@ -247,7 +248,7 @@ def _format_csv(
 
 
 def _print(doc: dict, result: PSDResult, chains: Sequence[Chain]) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]")
+    print_heading(doc["file"])
     ci = doc["confidence"]
     ci_text = (
         f", {100 * ci['coverage_probability']:g} % interval "

@@ -31,6 +31,7 @@ from piezo.cli.output import (
     console,
     emit_json,
     err_console,
+    print_heading,
     refuse_existing,
     write_text_atomic,
 )
@@ -537,7 +538,7 @@ def analyze(
 
 
 def _print_summary(doc: dict) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]  channel {doc['channel']}")
+    print_heading(doc["file"], f"channel {doc['channel']}")
     console.print(
         f"  latency       {doc['latency_frames']} samples ({1e3 * doc['latency_s']:.3f} ms); "
         f"IR peak/noise {doc['peak_to_noise_db']:.0f} dB"

@@ -11,7 +11,7 @@ from rich.table import Table
 
 from piezo.chain.units import parse_frequency, parse_frequency_range
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
-from piezo.cli.output import console, emit_json, levels_in, progress
+from piezo.cli.output import console, emit_json, levels_in, print_heading, progress
 from piezo.tone.summary import tone_of
 
 
@@ -108,7 +108,7 @@ _SOURCE_NOTE = {
 
 
 def _print(doc: dict) -> None:
-    console.print(f"[bold]{doc['file']}[/bold]")
+    print_heading(doc["file"])
     lo, hi = doc["bandwidth_hz"]
     console.print(
         f"  THD and THD+N over {lo:g} Hz to {hi:g} Hz"

@@ -11,7 +11,7 @@ from typing import Any
 from rich.table import Table
 
 from piezo.chain.units import squared_unit
-from piezo.cli.output import console, emit_json, progress
+from piezo.cli.output import console, emit_json, print_heading, progress
 from piezo.results import shared_value
 
 
@@ -85,7 +85,7 @@ def transient_view(file: Path, source: Any, *, json_out: bool, fraction: int = 3
     if json_out:
         emit_json(doc)
         return
-    console.print(f"[bold]{file}[/bold]  transient view, {r.duration_s:.4g} s")
+    print_heading(file, f"transient view, {r.duration_s:.4g} s")
     for entry in doc["channels"]:
         unit, exposure_unit = entry["unit"], entry["exposure_unit"]
         console.print(

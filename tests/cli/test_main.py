@@ -163,6 +163,18 @@ def full_scale_sine(tmp_path):
     return path
 
 
+def test_file_names_print_as_they_are(cli, full_scale_sine):
+    # A name is the user's text: no emoji codes replaced (":fire:" would print a flame),
+    # no markup applied, on stdout and in the one-line error on stderr.
+    named = full_scale_sine.with_name("probe:fire: [bold]x.wav")
+    full_scale_sine.rename(named)
+    r = cli("levels", named)
+    assert r.code == 0, r.err
+    assert named.name in r.out
+    missing = cli("levels", named.with_name(":fire:missing.wav"))
+    assert missing.code == 2 and ":fire:missing.wav" in missing.err
+
+
 def test_info_json_contract(cli, full_scale_sine):
     r = cli("info", full_scale_sine, "--json")
     assert r.code == 0, r.err
