@@ -20,15 +20,16 @@ process, and some of them import libraries for features no piezo kernel uses:
 ``numba.np.arraymath`` probes for BLAS by importing ``scipy.linalg.cython_blas``, i.e.
 all of ``scipy.linalg`` (about 0.2 s of CPU), and numba's cffi support builds a C parser
 (``cffi``, ``pycparser``: about 0.02 s); importing numba reads PyYAML (about 0.01 s) for a
-``.numba_config.yaml`` file that is rarely there. So :class:`Kernel` runs the process's
-first kernel call with ``scipy.linalg`` and ``cffi`` hidden from the calling thread (see
-:func:`hidden_module`), and :func:`import_numba` imports numba with ``yaml`` hidden unless
-the current folder has that file; numba records the feature as unavailable and moves on.
-The modules import normally afterwards and in every other thread. The lasting effects,
-in the same process only: numba-compiled ``np.convolve`` and ``np.correlate`` use
-numba's own loop instead of BLAS (same result to rounding), and numba cannot compile
-calls of cffi functions (a module already imported is never hidden, so a program that
-imported ``cffi`` or ``scipy.linalg`` before keeps numba's support). Nothing of numba is
+``.numba_config.yaml`` file that is rarely there. In piezo's own processes (the command
+line and the batch runner's workers, which run no code of the user's) numba is loaded
+lean (:func:`lean_loading`): the process's first kernel call runs with ``scipy.linalg``
+and ``cffi`` hidden from the calling thread (see :func:`hidden_module`), and
+:func:`import_numba` imports numba with ``yaml`` hidden unless the current folder has
+that file; numba records the features as unavailable and moves on, and the modules
+import normally afterwards and in every other thread. The lasting effects, in that
+process only: numba-compiled ``np.convolve`` and ``np.correlate`` use numba's own loop
+instead of BLAS (same result to rounding), and numba cannot compile calls of cffi
+functions. Used as a library, piezo leaves numba's loading alone. Nothing of numba is
 patched: when a numba release stops tolerating a missing module, the call is simply
 repeated without the guard (tested).
 
@@ -42,7 +43,6 @@ from __future__ import annotations
 
 import contextlib
 import gc
-import hashlib
 import io
 import os
 import sys
@@ -67,6 +67,7 @@ __all__ = [
     "first_call",
     "hidden_module",
     "import_numba",
+    "lean_loading",
 ]
 
 
@@ -185,10 +186,23 @@ def hidden_module(*names: str) -> Iterator[None]:
 #: numba's configuration file, read from the current folder when numba is imported.
 NUMBA_CONFIG_FILE = ".numba_config.yaml"
 
+#: Set by :func:`lean_loading` in piezo's own processes.
+_lean = False
+
+
+def lean_loading() -> None:
+    """Load numba without the optional libraries no piezo kernel uses (see the module's
+    text), for the rest of this process. For piezo's own processes only: the command
+    line and the batch runner's workers, where no code of the user's runs.
+    """
+    global _lean
+    _lean = True
+
 
 def import_numba() -> ModuleType:
-    """The ``numba`` module, imported (once per process) with PyYAML hidden unless the
-    current folder has a :data:`NUMBA_CONFIG_FILE` for numba to read.
+    """The ``numba`` module, imported once per process; after :func:`lean_loading`,
+    with PyYAML hidden unless the current folder has a :data:`NUMBA_CONFIG_FILE` for
+    numba to read.
 
     Examples
     --------
@@ -198,7 +212,7 @@ def import_numba() -> ModuleType:
     loaded = sys.modules.get("numba")
     if loaded is not None:
         return loaded
-    if os.path.isfile(NUMBA_CONFIG_FILE):
+    if not _lean or os.path.isfile(NUMBA_CONFIG_FILE):
         import numba
     else:
         with hidden_module("yaml"):
@@ -280,9 +294,10 @@ def first_call(func: Callable[..., Any], *args: Any) -> Any:
     """``func(*args)``; as the process's first kernel call when none has run yet.
 
     For a kernel called through its dispatcher, e.g. ``first_call(dispatcher.compile,
-    signature)``; :class:`Kernel` calls it itself. The first call runs with
-    ``scipy.linalg`` hidden from this thread; if that raises ImportError (a numba that
-    needs the module after all), it is repeated without the guard.
+    signature)``; :class:`Kernel` calls it itself. After :func:`lean_loading`, the first
+    call runs with ``scipy.linalg`` and ``cffi`` hidden from this thread; if that raises
+    ImportError (a numba that needs a module after all), it is repeated without the
+    guard.
 
     Examples
     --------
@@ -297,7 +312,7 @@ def first_call(func: Callable[..., Any], *args: Any) -> Any:
     collecting = gc.isenabled()
     gc.disable()
     try:
-        with hidden_module("scipy.linalg", "cffi"):
+        with hidden_module(*(("scipy.linalg", "cffi") if _lean else ())):
             result = func(*args)
     except ImportError:
         result = func(*args)
@@ -333,6 +348,8 @@ def code_digest(*sources: str) -> str:
     ...     piezo.sos.__file__)
     (64, True)
     """
+    import hashlib  # here, not at the top: the command line's --help imports this module
+
     digest = hashlib.sha256()
     for source in sources:
         digest.update(Path(source).read_bytes())
@@ -363,6 +380,8 @@ def cached_arrays(name: str, key: str, compute: Callable[[], dict[str, Any]]) ->
     >>> len(calls), bool(np.array_equal(first["sos"], again["sos"]))
     (1, True)
     """
+    import hashlib
+
     import numpy as np
 
     digest = hashlib.sha256(key.encode()).hexdigest()[:24]

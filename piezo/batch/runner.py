@@ -26,6 +26,7 @@ from concurrent.futures.process import BrokenProcessPool
 from pathlib import Path
 from typing import Any
 
+from piezo._kernels.cache import lean_loading
 from piezo.batch.capture import Capture, CaptureAnalysis, load_capture
 from piezo.batch.metrics import EXTRACTORS, report_data
 from piezo.batch.spec import METRIC_KINDS, MetricSpec, Spec
@@ -580,7 +581,7 @@ def _worker_pool(workers: int, context: Any) -> Iterator[cf.ProcessPoolExecutor]
     pool = cf.ProcessPoolExecutor(
         max_workers=workers,
         mp_context=context,
-        initializer=_watch_parent,
+        initializer=_start_worker,
         initargs=(os.getpid(),),
     )
     try:
@@ -601,6 +602,14 @@ def _stop_pool(pool: cf.ProcessPoolExecutor) -> None:
     for process in processes:
         with contextlib.suppress(Exception):
             process.join(timeout=5)
+
+
+def _start_worker(parent_pid: int) -> None:
+    """Initializer of a local worker process: piezo's own process, so numba loads lean
+    (:func:`piezo._kernels.cache.lean_loading`); it ends with its parent
+    (:func:`_watch_parent`)."""
+    lean_loading()
+    _watch_parent(parent_pid)
 
 
 def _watch_parent(parent_pid: int) -> None:

@@ -44,6 +44,7 @@ except ImportError:  # older typer runs on click itself
     from click.utils import PacifyFlushWrapper  # type: ignore[no-redef]
 
 from piezo import __version__
+from piezo._kernels.cache import lean_loading
 from piezo.cli.exits import (
     EXIT_FAILED,
     EXIT_INTERNAL,
@@ -446,6 +447,8 @@ def main(argv: list[str] | None = None) -> None:
         # A process of its own: numpy is not imported yet, and one BLAS/OpenMP thread is
         # all piezo's small linear algebra uses (piezo.threads).
         one_numeric_thread(os.environ)
+        # ... and no user code: numba loads without the libraries no kernel uses.
+        lean_loading()
         # Start-up imports create only long-lived objects (modules, classes): no garbage
         # collection until the command's module is loaded (about 0.03 s of CPU; see
         # _resume_collection).

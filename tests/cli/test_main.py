@@ -128,6 +128,9 @@ def test_levels_loads_no_plotting_templates_or_filter_design(tmp_path):
     assert not {m.split(".")[0] for m in loaded} & {"matplotlib", "jinja2"}
     # ... and is read back from the cache: no filter design code is loaded.
     assert not {"scipy.optimize", "scipy.signal"} & loaded
+    # numba loaded lean: none of the libraries its unused features would import
+    # (piezo._kernels.cache.lean_loading).
+    assert "numba" in loaded and not {"scipy.linalg", "cffi", "yaml"} & loaded
 
 
 def test_python_dash_m_works(tmp_path):

@@ -138,8 +138,11 @@ _FIRST_CALL_CHILD = textwrap.dedent(
     """
     import sys
     import numpy as np
-    from piezo._kernels import filters as k
+    from piezo._kernels import cache, filters as k
     from piezo.levels.weighting import weighting_chain_sos
+
+    if sys.argv[1] == "lean":  # as piezo's command line does
+        cache.lean_loading()
 
     rng = np.random.default_rng(1)
     x = rng.standard_normal((4000, 2))
@@ -162,13 +165,10 @@ _FIRST_CALL_CHILD = textwrap.dedent(
 )
 
 
-def test_kernels_load_without_scipy_linalg_and_scipy_works_afterwards(tmp_path):
-    # A fresh process, as a command runs: every kernel compiles (an empty cache folder)
-    # and runs without importing scipy.linalg (a kernel needing BLAS would fail here),
-    # cffi or PyYAML, and gives scipy.signal.sosfilt's result afterwards.
+def _first_call_child(tmp_path, mode):
     env = {**os.environ, "PYTHONPATH": str(REPO), "NUMBA_CACHE_DIR": str(tmp_path / "numba")}
     run = subprocess.run(
-        [sys.executable, "-W", "error", "-c", _FIRST_CALL_CHILD],
+        [sys.executable, "-W", "error", "-c", _FIRST_CALL_CHILD, mode],
         cwd=tmp_path,
         env=env,
         capture_output=True,
@@ -177,13 +177,29 @@ def test_kernels_load_without_scipy_linalg_and_scipy_works_afterwards(tmp_path):
     )
     assert run.returncode == 0, run.stderr
     linalg, cffi, yaml, error = run.stdout.split()
-    assert linalg == "False", "loading the kernels imported scipy.linalg"
-    assert cffi == "False", "loading the kernels imported cffi"
-    assert yaml == "False", "importing numba imported PyYAML with no config file to read"
     # The same cascade in transposed direct form II as scipy: rounding only (the C and A
     # weighting sections at 48 kHz, a few ulp per section; 1e-12 of the peak is far
     # below any fault, which would be of order 1).
     assert float(error) < 1e-12
+    return linalg, cffi, yaml
+
+
+def test_kernels_load_lean_and_scipy_works_afterwards(tmp_path):
+    # A fresh process, as a command runs: every kernel compiles (an empty cache folder)
+    # and runs without importing scipy.linalg (a kernel needing BLAS would fail here),
+    # cffi or PyYAML, and gives scipy.signal.sosfilt's result afterwards.
+    linalg, cffi, yaml = _first_call_child(tmp_path, "lean")
+    assert linalg == "False", "loading the kernels imported scipy.linalg"
+    assert cffi == "False", "loading the kernels imported cffi"
+    assert yaml == "False", "importing numba imported PyYAML with no config file to read"
+
+
+def test_as_a_library_piezo_leaves_numba_loading_alone(tmp_path):
+    # Without lean_loading (a user's program), numba's BLAS probe runs as numba has it:
+    # scipy.linalg is imported by the registries (numba's own behaviour).
+    pytest.importorskip("scipy.linalg")
+    linalg, _, _ = _first_call_child(tmp_path, "library")
+    assert linalg == "True"
 
 
 def test_a_numba_config_file_in_the_current_folder_is_still_read(tmp_path):
@@ -193,7 +209,8 @@ def test_a_numba_config_file_in_the_current_folder_is_still_read(tmp_path):
     (tmp_path / cache.NUMBA_CONFIG_FILE).write_text("boundscheck: 1\n")
     child = (
         "import sys\n"
-        "from piezo._kernels.cache import import_numba\n"
+        "from piezo._kernels.cache import import_numba, lean_loading\n"
+        "lean_loading()\n"
         "numba = import_numba()\n"
         "print('yaml' in sys.modules, numba.core.config.BOUNDSCHECK)\n"
     )
