@@ -181,11 +181,16 @@ def data_file(folder: Path, name: str, seconds: float) -> Path:
 
 def report(label: str, run: Run, floor: Run, target: float) -> None:
     wall, cpu = run.wall_s / floor.wall_s, run.cpu_s / floor.cpu_s
-    verdict = "ok" if cpu <= target else "OVER"  # judged on CPU time, the steadier ratio
+
+    def verdict(ratio: float) -> str:
+        return "ok" if ratio <= target else "OVER"
+
+    # Both readings are judged: the wall-clock ratio is what a user waits for, the CPU
+    # ratio is steadier on a shared machine and does not credit piezo's second thread.
     print(
         f"{label:<44} {run.wall_s:7.2f} s {run.cpu_s:7.2f} s cpu {run.rss_mb:6.0f} MB | "
-        f"floor {floor.wall_s:6.2f} s {floor.cpu_s:6.2f} s cpu | "
-        f"ratio wall {wall:4.2f}x cpu {cpu:4.2f}x (target <= {target}x) {verdict}"
+        f"floor {floor.wall_s:6.2f} s {floor.cpu_s:6.2f} s cpu | ratio wall {wall:4.2f}x "
+        f"{verdict(wall)}, cpu {cpu:4.2f}x {verdict(cpu)} (target <= {target}x)"
     )
 
 
@@ -252,6 +257,11 @@ def main() -> None:
         ten = data_file(data, "noise-10min.wav", 10 * 60)
         measure([*piezo, "bands", str(capture), "--fraction", "3"], repeat=1)
         measure([py, str(floor_script), str(capture)], repeat=1)  # byte code cached
+        # One untimed read of each file first: a floor that reads from disk (a file just
+        # written or evicted) spends CPU in the kernel filling the page cache, which
+        # piezo's runs after it would not pay.
+        measure([py, str(floor_script), str(twenty)], repeat=1)
+        measure([py, str(floor_script), str(ten)], repeat=1)
         floor20 = measure([py, str(floor_script), str(twenty)], repeat=2)
         run = measure([*piezo, "levels", str(twenty)], repeat=2)
         report("piezo levels (20 min) vs decode floor", run, floor20, 3.0)
@@ -265,6 +275,7 @@ def main() -> None:
         print("\n4. peak memory on long files (target <= 250 MB)")
         for hours in (1, 4):
             path = data_file(data, f"noise-{hours}h.wav", hours * 3600)
+            measure([py, str(floor_script), str(path)], repeat=1)  # into the page cache
             floor = measure([py, str(floor_script), str(path)], repeat=1)
             run = measure([*piezo, "levels", str(path)], repeat=1)
             report(f"piezo levels ({hours} h) vs decode floor", run, floor, 3.0)
