@@ -222,9 +222,18 @@ def _plain_command(command: Any) -> None:
         # click options and typer's arguments carry a help text; click's arguments do not.
         if getattr(param, "help", None):
             param.help = _plain_help(param.help)
+        _no_value_shown(param)
+    _no_value_shown(command.get_help_option(typer.Context(command)))
     if isinstance(command, TyperGroup):
         for sub in command.commands.values():
             _plain_command(sub)
+
+
+def _no_value_shown(param: Any) -> None:
+    """A flag (``--json``, ``--help``) takes no value: its help row shows none (typer
+    would print the flag's Python type, ``<bool>``, where an option's value goes)."""
+    if getattr(param, "is_flag", False) and param.metavar is None:
+        param.metavar = ""
 
 
 def _resume_collection() -> None:
@@ -303,6 +312,8 @@ class LazyGroup(TyperGroup):
 
     def format_help(self, ctx: Any, formatter: Any) -> None:
         self.help = _plain_help(self.help)
+        for param in [*self.params, self.get_help_option(ctx)]:
+            _no_value_shown(param)
         self._listing = True
         try:
             super().format_help(ctx, formatter)

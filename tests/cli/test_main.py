@@ -14,10 +14,11 @@ import time
 import numpy as np
 import pytest
 import soundfile as sf
+import typer.main
 
 from piezo import __version__
 from piezo._kernels.cache import cache_folder
-from piezo.cli import COMMANDS, _load
+from piezo.cli import COMMANDS, _load, app
 from piezo.tone.calibrator import calibrator_pressure_pa
 from tests.paths import REPO
 from tests.processes import interruptible
@@ -458,6 +459,23 @@ def test_help_keeps_square_brackets(full_scale_sine):
     r = run_piezo("check", "--help", env={"COLUMNS": "80"})
     assert r.returncode == 0
     assert "[thresholds]" in r.stdout
+
+
+def test_flags_show_no_value_in_help(cli):
+    # A flag takes no value: its row must not show one (typer's default is the flag's
+    # Python type, "<bool>", where an option's value goes). Every command and
+    # subcommand, and the top level.
+    group = typer.main.get_command(app)
+    screens = [[]]
+    for command in COMMANDS:
+        screens.append([command.name])
+        sub = group.get_command(None, command.name)
+        screens += [[command.name, name] for name in getattr(sub, "commands", {})]
+    for args in screens:
+        r = cli(*args, "--help")
+        assert r.code == 0, (args, r.err)
+        assert "--help" in r.out and "<bool>" not in r.out, args
+    assert cli("levels", "--json=yes", "x.wav").code == 2  # and still takes none
 
 
 def help_prose(text):
