@@ -165,18 +165,24 @@ _FIRST_CALL_CHILD = textwrap.dedent(
 )
 
 
-def _first_call_child(tmp_path, mode):
-    env = {**os.environ, "PYTHONPATH": str(REPO), "NUMBA_CACHE_DIR": str(tmp_path / "numba")}
+def _child(code, cwd, *args, env=None):
+    """stdout of a fresh ``python -W error -c code args`` in ``cwd`` (it must succeed)."""
     run = subprocess.run(
-        [sys.executable, "-W", "error", "-c", _FIRST_CALL_CHILD, mode],
-        cwd=tmp_path,
-        env=env,
+        [sys.executable, "-W", "error", "-c", code, *args],
+        cwd=cwd,
+        env={**os.environ, "PYTHONPATH": str(REPO), **(env or {})},
         capture_output=True,
         text=True,
         timeout=180,
     )
     assert run.returncode == 0, run.stderr
-    linalg, cffi, yaml, error = run.stdout.split()
+    return run.stdout
+
+
+def _first_call_child(tmp_path, mode):
+    # An empty numba cache of its own: every kernel is compiled in the child.
+    env = {"NUMBA_CACHE_DIR": str(tmp_path / "numba")}
+    linalg, cffi, yaml, error = _child(_FIRST_CALL_CHILD, tmp_path, mode, env=env).split()
     # The same cascade in transposed direct form II as scipy: rounding only (the C and A
     # weighting sections at 48 kHz, a few ulp per section; 1e-12 of the peak is far
     # below any fault, which would be of order 1).
@@ -214,16 +220,7 @@ def test_a_numba_config_file_in_the_current_folder_is_still_read(tmp_path):
         "numba = import_numba()\n"
         "print('yaml' in sys.modules, numba.core.config.BOUNDSCHECK)\n"
     )
-    run = subprocess.run(
-        [sys.executable, "-W", "error", "-c", child],
-        cwd=tmp_path,
-        env={**os.environ, "PYTHONPATH": str(REPO)},
-        capture_output=True,
-        text=True,
-        timeout=180,
-    )
-    assert run.returncode == 0, run.stderr
-    assert run.stdout.split() == ["True", "1"]
+    assert _child(child, tmp_path).split() == ["True", "1"]
 
 
 def test_kernel_passes_attributes_to_the_dispatcher():
@@ -245,13 +242,5 @@ def test_importing_the_analyses_does_not_import_numba(tmp_path):
         "k.sosfilt_inplace(np.array([[1.0, 0, 0, 1, -0.5, 0]]), x, np.zeros((1, 2, 1)))\n"
         "print('numba' in sys.modules, x[:, 0].tolist())\n"
     )
-    run = subprocess.run(
-        [sys.executable, "-W", "error", "-c", child],
-        cwd=tmp_path,
-        env={**os.environ, "PYTHONPATH": str(REPO)},
-        capture_output=True,
-        text=True,
-        timeout=180,
-    )
-    assert run.returncode == 0, run.stderr
-    assert run.stdout.split(maxsplit=1) == ["True", "[1.0, 1.5]\n"]  # y = x + 0.5 y[n-1]
+    # y[n] = x[n] + 0.5 y[n-1] on ones: 1, 1.5.
+    assert _child(child, tmp_path).split(maxsplit=1) == ["True", "[1.0, 1.5]\n"]
