@@ -418,7 +418,7 @@ def _run(args: Sequence[str]) -> int:
             typer.echo(exc.format_message())
         return EXIT_USAGE
     except click_errors.ClickException as exc:
-        sys.stderr.write(f"piezo: error: {usage_message(exc)}\n")
+        _error_line(usage_message(exc))
         return exc.exit_code
     except typer.Abort:
         sys.stderr.write("piezo: interrupted\n")
@@ -485,7 +485,7 @@ def _exit_code(args: list[str]) -> int:
     except PiezoError as exc:
         if _state["debug"]:
             raise
-        sys.stderr.write(f"piezo: error: {exc}\n")
+        _error_line(str(exc))
         return EXIT_USAGE
     except KeyboardInterrupt:
         sys.stderr.write("piezo: interrupted\n")
@@ -495,8 +495,18 @@ def _exit_code(args: list[str]) -> int:
     except Exception as exc:  # an unexpected failure is a bug, shown as one line
         if _state["debug"]:
             raise
+        from piezo.io.text import printable
+
         sys.stderr.write(
-            f"piezo: internal error: {type(exc).__name__}: {exc} "
+            f"piezo: internal error: {type(exc).__name__}: {printable(str(exc))} "
             "(run again with --debug for the traceback)\n"
         )
         return EXIT_INTERNAL
+
+
+def _error_line(message: str) -> None:
+    """The one line on stderr for a usage mistake or bad input (the message may quote a
+    file name or an option value: control characters and line breaks shown as escapes)."""
+    from piezo.io.text import printable  # here: only a failing run needs it
+
+    sys.stderr.write(f"piezo: error: {printable(message)}\n")

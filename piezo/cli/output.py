@@ -20,6 +20,7 @@ from rich.text import Text
 
 from piezo.errors import OutputError
 from piezo.io.atomic import atomic_output, write_text_atomic
+from piezo.io.text import printable
 from piezo.results import to_jsonable
 
 __all__ = [
@@ -88,11 +89,23 @@ def refuse_existing(*paths: Path | None, force: bool) -> None:
             raise OutputError("exists; use --force to replace it", source=str(path))
 
 
-# Plain text: what piezo prints is not read as rich markup or emoji codes, so a file
-# name, a TOML section like "[capture]" or ":fire:" prints as it is. Styles are given as
-# ``style=`` or :class:`rich.text.Text` spans, never inside the text.
-console = Console(highlight=False, markup=False, emoji=False)
-err_console = Console(stderr=True, highlight=False, markup=False, emoji=False)
+class _PlainConsole(Console):
+    """A console for text that may hold the user's words (file names, serials, names
+    from spec files): not read as rich markup or emoji codes, so a name like
+    ``[capture]`` or ``:fire:`` prints as it is, and with control characters shown as
+    escapes (:func:`piezo.io.text.printable`; line breaks stay), so a file name cannot
+    move the cursor or change colours. Styles are given as ``style=`` or
+    :class:`rich.text.Text` spans, never inside the text."""
+
+    def __init__(self, **kwargs: Any) -> None:
+        super().__init__(highlight=False, markup=False, emoji=False, **kwargs)
+
+    def render_str(self, text: str, **kwargs: Any) -> Text:
+        return super().render_str(printable(text, keep_newlines=True), **kwargs)
+
+
+console = _PlainConsole()
+err_console = _PlainConsole(stderr=True)
 
 
 def print_heading(title: object, detail: str = "") -> None:
@@ -104,10 +117,11 @@ def print_heading(title: object, detail: str = "") -> None:
     --------
     >>> print_heading("probe [1]:fire:.wav", "channel 0")
     probe [1]:fire:.wav  channel 0
+    >>> print_heading("a\\x1b[2Jb\\n.wav")  # control characters shown, on one line
+    a\\x1b[2Jb\\n.wav
     """
-    console.print(
-        Text.assemble((str(title), "bold"), f"  {detail}" if detail else ""), soft_wrap=True
-    )
+    heading = Text.assemble((printable(str(title)), "bold"), f"  {detail}" if detail else "")
+    console.print(heading, soft_wrap=True)
 
 
 def emit_json(obj: Any) -> None:

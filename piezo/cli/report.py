@@ -11,6 +11,7 @@ from piezo.cli.check import resolve_thresholds
 from piezo.cli.options import JsonOption, SourceOptions, open_source, source_options
 from piezo.cli.output import console, emit_json, err_console, progress
 from piezo.errors import InputError, PiezoError
+from piezo.io.text import printable
 from piezo.report import ReportSettings, analyse, write_report
 from piezo.report.names import UniqueNames
 
@@ -102,14 +103,15 @@ def report(
             html_path, json_path = write_report(run, out, names.claim(file.stem, ending=".report"))
         except PiezoError as exc:
             failed.append({"file": str(file), "error": str(exc.with_source(str(file)))})
-            err_console.print(f"piezo: error: {exc}", highlight=False, soft_wrap=True)
+            # One line per file, whatever its name holds.
+            err_console.print(printable(f"piezo: error: {exc}"), soft_wrap=True)
             continue
         verdict = run.diagnostics.verdict.value
         written.append(
             {"file": str(file), "html": str(html_path), "json": str(json_path), "verdict": verdict}
         )
         if not json_out:
-            console.print(f"{file}: {verdict} -> {html_path}", soft_wrap=True)
+            console.print(printable(f"{file}: {verdict} -> {html_path}"), soft_wrap=True)
     if json_out:
         emit_json({"reports": written, "failed": failed})
     if failed:

@@ -48,6 +48,30 @@ MAX_TOML_DEPTH = 32
 EXCERPT_CHARS = 40
 
 
+def printable(text: str, *, keep_newlines: bool = False) -> str:
+    """``text`` with every character Python does not count as printable shown as its
+    escape (control characters, line breaks, tabs, format characters; with
+    ``keep_newlines``, line feeds stay), so user text shown on a terminal, such as a file
+    name, cannot move the cursor, change colours or break a one-line message.
+
+    Examples
+    --------
+    >>> print(printable("a\\x1b[31mred\\nline Ölpumpe.wav"))
+    a\\x1b[31mred\\nline Ölpumpe.wav
+    >>> print(printable("two\\nlines", keep_newlines=True))
+    two
+    lines
+    """
+    if text.isprintable():
+        return text
+    return "".join(
+        c
+        if c.isprintable() or (keep_newlines and c == "\n")
+        else c.encode("unicode_escape").decode()
+        for c in text
+    )
+
+
 def excerpt(text: str, limit: int = EXCERPT_CHARS) -> str:
     """A short, printable, quoted excerpt of ``text`` for an error message.
 
@@ -62,7 +86,7 @@ def excerpt(text: str, limit: int = EXCERPT_CHARS) -> str:
     >>> excerpt("\\x1b[2J" + "x" * 100)
     "'\\\\x1b[2Jxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx...'"
     """
-    shown = "".join(c if c.isprintable() else c.encode("unicode_escape").decode() for c in text)
+    shown = printable(text)
     if len(shown) > limit:
         shown = shown[:limit] + "..."
     return "'" + shown.replace("'", "\\'") + "'"

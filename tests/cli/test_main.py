@@ -179,6 +179,21 @@ def test_file_names_print_as_they_are(cli, full_scale_sine):
     assert missing.code == 2 and ":fire:missing.wav" in missing.err
 
 
+def test_control_characters_in_names_are_shown_as_escapes(cli, full_scale_sine):
+    # A file name holding an escape sequence and a line break must not reach the terminal
+    # raw (it could recolour or clear it), and the error stays one line.
+    named = full_scale_sine.with_name("a\x1b[31mred\nline.wav")
+    full_scale_sine.rename(named)
+    r = cli("levels", named)
+    assert r.code == 0, r.err
+    assert "\x1b" not in r.out and "a\\x1b[31mred\\nline.wav" in r.out.splitlines()[0]
+    missing = cli("levels", named.with_name("gone\x1b[2J\n.wav"))
+    assert missing.code == 2 and "\x1b" not in missing.err
+    assert len(missing.err.splitlines()) == 1 and "gone\\x1b[2J\\n.wav" in missing.err
+    bad = cli("levels", named, "--settle", "\x1b[2J")
+    assert bad.code == 2 and "\x1b" not in bad.err and len(bad.err.splitlines()) == 1
+
+
 def test_info_json_contract(cli, full_scale_sine):
     r = cli("info", full_scale_sine, "--json")
     assert r.code == 0, r.err
