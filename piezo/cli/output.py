@@ -180,5 +180,5 @@ def progress(description: str, total: float | None) -> Iterator[Any]:
         transient=True,
     )
     with bar:
-        task = bar.add_task(description, total=total)
+        task = bar.add_task(printable(description), total=total)  # may name a file
         yield lambda amount=1: bar.advance(task, amount)
