@@ -53,7 +53,7 @@ from piezo.chain.units import (
     ratio_to_db,
 )
 from piezo.errors import InputError, SpecError, UnitError
-from piezo.io.reader import Recording
+from piezo.io.reader import BLOCK_FRAMES, Recording
 from piezo.io.text import parse_toml, read_text, read_toml
 from piezo.io.toml import toml_value
 from piezo.validate import physical_value
@@ -1387,7 +1387,7 @@ class CalibratedSource:
         self,
         *analyses: Any,
         advance: Callable[[int], object] | None = None,
-        block_frames: int = 65536,
+        block_frames: int = BLOCK_FRAMES,
     ) -> None:
         """Read the source once, handing every calibrated block to each analysis.
 
@@ -1476,7 +1476,7 @@ class CalibratedSource:
         return [CurveCorrection(c or flat, fs, 1, taps=taps) for c in curves]
 
     def blocks(
-        self, block_frames: int = 65536, *, overlap_frames: int = 0
+        self, block_frames: int = BLOCK_FRAMES, *, overlap_frames: int = 0
     ) -> Iterator[np.ndarray]:
         """Yield calibrated float64 blocks ``(frames, channels)``, each channel in its unit.
 

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from piezo.chain.measurement import CalibratedSource
+from piezo.io.reader import BLOCK_FRAMES
 from piezo.levels.meter import PERCENTILES, LevelMeter, LevelResult
 from piezo.levels.stats import VELOCITY_BAND_HZ, BandRms
 from piezo.results import reference_key, to_jsonable
@@ -246,7 +247,7 @@ def levels_of(
     weight_any_quantity: bool = False,
     velocity_band_hz: tuple[float, float] = VELOCITY_BAND_HZ,
     also: Sequence[Any] = (),
-    block_frames: int = 65536,
+    block_frames: int = BLOCK_FRAMES,
     advance: Callable[[int], object] | None = None,
 ) -> Levels:
     """Equivalent, maximum, minimum, peak, exposure and percentile levels of ``source``.

@@ -27,6 +27,7 @@ from piezo.frontend.model import (
     phase_deg,
     summarise_response,
 )
+from piezo.io.reader import BLOCK_FRAMES
 from piezo.levels.summary import Levels, levels_of
 from piezo.levels.weighting import MIN_SAMPLE_RATE_HZ, ConformanceReport, conformance
 from piezo.spectral.averaging import DEFAULT_SEGMENT_FRAMES
@@ -95,7 +96,7 @@ class ReportSettings:
     piezo.errors.InputError: block_frames: must be a whole number >= 1, got 0
     """
 
-    block_frames: int = 65536
+    block_frames: int = BLOCK_FRAMES
     level_interval_s: float | None = None
     psd_segment_frames: int | None = None
     band_fraction: int = 3
