@@ -120,7 +120,8 @@ def print_heading(title: object, detail: str = "") -> None:
     >>> print_heading("a\\x1b[2Jb\\n.wav")  # control characters shown, on one line
     a\\x1b[2Jb\\n.wav
     """
-    heading = Text.assemble((printable(str(title)), "bold"), f"  {detail}" if detail else "")
+    rest = f"  {printable(detail)}" if detail else ""
+    heading = Text.assemble((printable(str(title)), "bold"), rest)
     console.print(heading, soft_wrap=True)
 
 
