@@ -10,7 +10,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from piezo.errors import InputError, PiezoError, SpecError
-from piezo.io.text import excerpt, parse_toml, read_text, read_toml
+from piezo.io.text import excerpt, parse_toml, printable, read_text, read_toml
 from piezo.io.toml import toml_table, toml_value
 
 
@@ -86,6 +86,19 @@ def test_excerpt_is_short_and_printable(text, limit):
     assert out.isprintable()
     # Quotes, escapes of at most 10 characters per character kept, and the marker.
     assert len(out) <= 2 + limit + 3 + 2 * out.count("\\")
+
+
+@given(st.text(max_size=300))
+def test_printable_shows_every_unprintable_character_as_text(text):
+    out = printable(text)
+    assert out.isprintable()
+    assert printable(out) == out  # nothing left to escape
+    # What was printable is kept, in order (letters of any script included).
+    rest = iter(out)
+    assert all(c in rest for c in text if c.isprintable())
+    kept = printable(text, keep_newlines=True)
+    assert kept.replace("\n", "").isprintable()
+    assert kept.count("\n") == text.count("\n")
 
 
 scalars = st.one_of(
