@@ -194,6 +194,15 @@ def lean_loading() -> None:
     """Load numba without the optional libraries no piezo kernel uses (see the module's
     text), for the rest of this process. For piezo's own processes only: the command
     line and the batch runner's workers, where no code of the user's runs.
+
+    Examples
+    --------
+    >>> from piezo._kernels import cache
+    >>> before = cache._lean
+    >>> lean_loading()
+    >>> cache._lean
+    True
+    >>> cache._lean = before  # this process is a library user: put it back
     """
     global _lean
     _lean = True
