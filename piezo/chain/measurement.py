@@ -53,7 +53,7 @@ from piezo.chain.units import (
     ratio_to_db,
 )
 from piezo.errors import InputError, SpecError, UnitError
-from piezo.io.reader import BLOCK_FRAMES, Recording, prefetched
+from piezo.io.reader import BLOCK_FRAMES, Recording
 from piezo.io.text import parse_toml, read_text, read_toml
 from piezo.io.toml import toml_value
 from piezo.validate import physical_value
@@ -1504,28 +1504,10 @@ class CalibratedSource:
                 "read it without overlap",
                 source=str(self.recording.path),
             )
-        # The whole chain below (decoding, checks, calibration, response-curve and
-        # integration filters) runs a block ahead in a second thread when that pays,
-        # so the caller's analyses overlap all of it.
-        stream = self._calibrated(block_frames, overlap_frames, factor, corrections)
-        if self.recording.reads_ahead(block_frames):
-            stream = prefetched(stream)
-        yield from stream
-
-    def _calibrated(
-        self,
-        block_frames: int,
-        overlap_frames: int,
-        factor: np.ndarray,
-        corrections: list[CurveCorrection] | None,
-    ) -> Iterator[np.ndarray]:
         raw = (
             block * factor
             for block in self.recording.blocks(
-                block_frames,
-                overlap_frames=overlap_frames,
-                channels=self.channel_indices,
-                read_ahead=False,
+                block_frames, overlap_frames=overlap_frames, channels=self.channel_indices
             )
         )
         integrators = [

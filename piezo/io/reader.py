@@ -146,7 +146,6 @@ class Recording:
         *,
         overlap_frames: int = 0,
         channels: Sequence[int] | None = None,
-        read_ahead: bool = True,
     ) -> Iterator[np.ndarray]:
         """Yield the recording as float64 blocks of shape ``(frames, channels)``.
 
@@ -158,10 +157,6 @@ class Recording:
             Frames shared by consecutive blocks (``0 <= overlap < block_frames``).
         channels
             0-based channel indices to read; all channels when None.
-        read_ahead
-            Decode and check the next blocks in a second thread (:func:`prefetched`)
-            when :meth:`reads_ahead` says it pays; False for a caller that reads ahead
-            itself, around more work of its own.
 
         Raises
         ------
@@ -175,19 +170,6 @@ class Recording:
                 f"overlap_frames must be in [0, {block_frames}), got {overlap_frames}"
             )
         selected = self._check_channels(channels)
-        blocks = self._blocks(block_frames, overlap_frames, selected)
-        if read_ahead and self.reads_ahead(block_frames):
-            blocks = prefetched(blocks)
-        yield from blocks
-
-    def reads_ahead(self, block_frames: int) -> bool:
-        """Whether reading ahead pays: an audio file (libsndfile decodes without the
-        interpreter lock; a CSV file is parsed with it) longer than two blocks."""
-        return self.csv_layout is None and self.frames > 2 * block_frames
-
-    def _blocks(
-        self, block_frames: int, overlap_frames: int, selected: list[int] | None
-    ) -> Iterator[np.ndarray]:
         step = block_frames - overlap_frames
         if overlap_frames == 0:
             for block in self._finite_blocks(block_frames, selected):
@@ -240,7 +222,10 @@ class Recording:
         if self.csv_layout is not None:
             yield from _csv_blocks(self.path, self.csv_layout, step, self.frames)
             return
-        yield from self._decoded_blocks(step)
+        if self.frames > 2 * step:
+            yield from prefetched(self._decoded_blocks(step))
+        else:
+            yield from self._decoded_blocks(step)
 
     def _decoded_blocks(self, step: int) -> Iterator[np.ndarray]:
         try:

@@ -123,33 +123,3 @@ def test_calibrated_source_blocks(tmp_path):
     np.testing.assert_allclose(got, 10.0, rtol=1e-7)
     assert got.shape == (100, 1)
     assert src.unit == "Pa"
-
-
-def test_a_long_source_reads_its_whole_chain_ahead_in_one_thread(tmp_path, monkeypatch):
-    # The calibrated stream (decoding, checks, calibration) is read ahead once, around
-    # the whole chain, and the recording underneath is asked not to read ahead itself:
-    # one reader thread, not two stacked.
-    import piezo.chain.measurement as measurement
-    import piezo.io.reader as reader
-
-    path = tmp_path / "long.wav"
-    x = np.random.default_rng(4).uniform(-0.5, 0.5, (10 * 512, 1))
-    sf.write(path, x, 8000, subtype="FLOAT")
-    wrapped = []
-    real = reader.prefetched
-
-    def spy(blocks, *args):
-        wrapped.append(blocks)
-        return real(blocks, *args)
-
-    monkeypatch.setattr(measurement, "prefetched", spy)
-    monkeypatch.setattr(reader, "prefetched", spy)
-    src = CalibratedSource.of(open_recording(path), Chain(full_scale_v=2.0))
-    got = np.concatenate(list(src.blocks(512)))
-    assert len(wrapped) == 1 and wrapped[0].__name__ == "_calibrated"
-    expected, _ = sf.read(path, always_2d=True)
-    np.testing.assert_array_equal(got, 2.0 * expected)  # volts: 2 V full scale
-    # A short one (two blocks or fewer) is read in the caller's thread.
-    wrapped.clear()
-    list(src.blocks(4096))
-    assert wrapped == []
