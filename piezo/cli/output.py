@@ -100,8 +100,8 @@ class _PlainConsole(Console):
     def __init__(self, **kwargs: Any) -> None:
         super().__init__(highlight=False, markup=False, emoji=False, **kwargs)
 
-    def render_str(self, text: str, **kwargs: Any) -> Text:
-        return super().render_str(printable(text, keep_newlines=True), **kwargs)
+    def render_str(self, text: str, *args: Any, **kwargs: Any) -> Text:
+        return super().render_str(printable(text, keep_newlines=True), *args, **kwargs)
 
 
 console = _PlainConsole()
