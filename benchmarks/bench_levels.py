@@ -10,8 +10,8 @@ committed) to a benchmark directory, then times
 
 It prints both times, their ratio (target: at most 3x the floor), the peak resident
 memory of the process (``resource.getrusage``; target: under 250 MB whatever the file
-length) and the time of the first, untimed update (loading the compiled kernels from
-numba's cache, or compiling them). The machine may be shared: figures vary from run to
+length) and the time of the first, untimed update (loading the compiled kernels from the
+cache folder, or compiling them). The machine may be shared: figures vary from run to
 run; the CPU-time ratio is the steadier one; run it twice.
 
 Run it from the repository root with that checkout's ``piezo`` first on the path (an
@@ -114,7 +114,7 @@ def main(argv: list[str] | None = None) -> int:
         print(f"writing {path} ({duration_s / 60:.1f} min) ...", file=sys.stderr)
         write_test_file(path, duration_s)
     rss_before = peak_rss_mb()
-    # First use of the compiled kernels: loads them from numba's cache, or compiles
+    # First use of the compiled kernels: loads them from the cache folder, or compiles
     # them when there is no cache yet (not part of the timed runs).
     t0 = time.perf_counter()
     LevelMeter(FS, 1).update(np.zeros((64, 1)))

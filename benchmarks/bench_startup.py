@@ -19,7 +19,7 @@ the one a user feels. Targets:
 
 Test files are generated with a fixed seed into ``<temp>/piezo-bench-data`` (or
 ``--data DIR``), never into the repository, and kept for the next run. A first, untimed
-run of each command fills numba's cache, so the timed runs load compiled kernels as a
+run of each command fills the kernel cache, so the timed runs load compiled kernels as a
 user's second run would; so does the byte code of every process, cached in
 ``<data>/pycache`` (``PYTHONPYCACHEPREFIX``) as an installed package has its ``.pyc``
 files (``--no-bytecode-cache``: every process compiles its sources, as under
@@ -246,7 +246,7 @@ def main() -> None:
 
         print("\n2. a 2-s capture")
         capture = data_file(data, "capture-2s.wav", 2.0)
-        measure([*piezo, "levels", str(capture)], repeat=1)  # numba cache filled
+        measure([*piezo, "levels", str(capture)], repeat=1)  # compiled kernels cached
         measure([py, str(reader), str(capture)], repeat=1)  # byte code cached
         floor = measure([py, str(reader), str(capture)], repeat=args.repeat)
         run = measure([*piezo, "levels", str(capture)], repeat=args.repeat)

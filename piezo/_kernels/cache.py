@@ -1,42 +1,45 @@
-"""Where numba keeps the compiled kernels: a per-user folder, never inside the package.
+"""Where piezo keeps what it computes once: a per-user folder, never inside the package.
 
-numba's own default writes its cache files into ``__pycache__`` beside the source. For an
-installed package that is ``site-packages/piezo/...``: the files survive an uninstall and
-the left-over folder then shadows a later (editable) install as a namespace package. So
-piezo chooses the folder itself, in this order:
+Compiled kernels (:mod:`piezo._kernels.native`) and filter designs are kept between
+processes. numba's own default would write its cache files into ``__pycache__`` beside
+the source; for an installed package that is ``site-packages/piezo/...``, where the files
+survive an uninstall and the left-over folder then shadows a later (editable) install as
+a namespace package. So piezo chooses the folder itself:
 
-1. ``NUMBA_CACHE_DIR`` when set (numba's own override, honoured as numba documents it);
-2. ``PIEZO_CACHE_DIR`` when set (``<dir>/numba``);
-3. the per-user cache folder of the platform (``<dir>/piezo/numba``): ``$XDG_CACHE_HOME``
-   or ``~/.cache`` on Linux and other Unix systems, ``~/Library/Caches`` on macOS,
-   ``%LOCALAPPDATA%`` on Windows (the conventions of the XDG Base Directory
-   Specification, Apple's File System Programming Guide and Microsoft's Known Folders).
+1. ``PIEZO_CACHE_DIR`` when set (kernels in ``<dir>/kernels``, designs in
+   ``<dir>/designs``);
+2. else the per-user cache folder of the platform (``<dir>/piezo/kernels``,
+   ``<dir>/piezo/designs``): ``$XDG_CACHE_HOME`` or ``~/.cache`` on Linux and other Unix
+   systems, ``~/Library/Caches`` on macOS, ``%LOCALAPPDATA%`` on Windows (the conventions
+   of the XDG Base Directory Specification, Apple's File System Programming Guide and
+   Microsoft's Known Folders).
 
-When the chosen folder cannot be created or written, kernels are compiled in every
-process (about 1-3 s) and nothing is written anywhere.
+numba itself caches nothing. When the chosen folder cannot be created or written,
+kernels are compiled in every process that uses them (about 1-3 s) and nothing is
+written anywhere.
 
-Loading a cached kernel makes numba import all its implementation registries once per
-process, and some of them import libraries for features no piezo kernel uses:
-``numba.np.arraymath`` probes for BLAS by importing ``scipy.linalg.cython_blas``, i.e.
-all of ``scipy.linalg`` (about 0.2 s of CPU), and numba's cffi support builds a C parser
-(``cffi``, ``pycparser``: about 0.02 s); importing numba reads PyYAML (about 0.01 s) for a
-``.numba_config.yaml`` file that is rarely there. In piezo's own processes (the command
-line and the batch runner's workers, which run no code of the user's) numba is loaded
-lean (:func:`lean_loading`): the process's first kernel call runs with ``scipy.linalg``
-and ``cffi`` hidden from the calling thread (see :func:`hidden_module`), and
-:func:`import_numba` imports numba with ``yaml`` hidden unless the current folder has
-that file; numba records the features as unavailable and moves on, and the modules
-import normally afterwards and in every other thread. The lasting effects, in that
-process only: numba-compiled ``np.convolve`` and ``np.correlate`` use numba's own loop
-instead of BLAS (same result to rounding), and numba cannot compile calls of cffi
-functions. Used as a library, piezo leaves numba's loading alone. Nothing of numba is
-patched: when a numba release stops tolerating a missing module, the call is simply
-repeated without the guard (tested).
+Compiling a kernel needs numba, and numba's first compilation in a process imports all
+its implementation registries, some of which import libraries for features no piezo
+kernel uses: ``numba.np.arraymath`` probes for BLAS by importing
+``scipy.linalg.cython_blas``, i.e. all of ``scipy.linalg`` (about 0.2 s of CPU), and
+numba's cffi support builds a C parser (``cffi``, ``pycparser``: about 0.02 s); importing
+numba reads PyYAML (about 0.01 s) for a ``.numba_config.yaml`` file that is rarely there.
+In piezo's own processes (the command line and the batch runner's workers, which run no
+code of the user's) numba is loaded lean (:func:`lean_loading`): the process's first
+compilation runs with ``scipy.linalg`` and ``cffi`` hidden from the calling thread (see
+:func:`hidden_module`), and :func:`import_numba` imports numba with ``yaml`` hidden unless
+the current folder has that file; numba records the features as unavailable and moves
+on, and the modules import normally afterwards and in every other thread. The lasting
+effects, in that process only: numba-compiled ``np.convolve`` and ``np.correlate`` use
+numba's own loop instead of BLAS (same result to rounding), and numba cannot compile
+calls of cffi functions. Used as a library, piezo leaves numba's loading alone. Nothing
+of numba is patched: when a numba release stops tolerating a missing module, the call
+is simply repeated without the guard (tested).
 
 Filter designs that need an optimiser or scipy's filter design (the IEC 61672-1 weighting
 fit, for instance) are kept the same way, per sample rate, by :func:`cached_arrays` in
-``<dir>/designs`` (``$PIEZO_CACHE_DIR/designs`` when set): a later process at the same rate
-reads a few hundred bytes instead of importing and running the design code.
+``<dir>/designs``: a later process at the same rate reads a few hundred bytes instead of
+importing and running the design code.
 """
 
 from __future__ import annotations
@@ -58,16 +61,15 @@ from piezo.errors import OutputError
 from piezo.io.atomic import write_bytes_atomic
 
 __all__ = [
-    "Kernel",
     "cache_folder",
     "cached_arrays",
     "code_digest",
-    "compile_cached",
     "design_folder",
     "first_call",
     "hidden_module",
     "import_numba",
     "lean_loading",
+    "writable_cache_folder",
 ]
 
 
@@ -82,7 +84,7 @@ def _platform_cache_home() -> Path:
 
 
 def cache_folder() -> Path:
-    """The folder for numba's cache files (it may not exist yet).
+    """The folder for compiled kernels (it may not exist yet).
 
     Examples
     --------
@@ -91,10 +93,7 @@ def cache_folder() -> Path:
     >>> Path(piezo.__file__).parent in cache_folder().parents
     False
     """
-    numba_dir = os.environ.get("NUMBA_CACHE_DIR")
-    if numba_dir:
-        return Path(numba_dir)
-    return _piezo_cache("numba")
+    return _piezo_cache("kernels")
 
 
 def _piezo_cache(name: str) -> Path:
@@ -106,7 +105,8 @@ def _piezo_cache(name: str) -> Path:
 
 
 @cache
-def _writable_folder() -> str | None:
+def writable_cache_folder() -> str | None:
+    """:func:`cache_folder` as a string once created and found writable, else None."""
     folder = cache_folder()
     try:
         folder.mkdir(parents=True, exist_ok=True)
@@ -115,32 +115,6 @@ def _writable_folder() -> str | None:
     except OSError:
         return None
     return str(folder)
-
-
-@contextlib.contextmanager
-def _numba_cache_dir(folder: str) -> Iterator[None]:
-    # numba picks the cache location when a function is decorated, from its config;
-    # the setting is changed for piezo's decorations only and put back afterwards.
-    numba = import_numba()
-
-    config: Any = numba.core.config  # settings are plain module attributes
-    previous = config.CACHE_DIR
-    config.CACHE_DIR = folder
-    try:
-        yield
-    finally:
-        config.CACHE_DIR = previous
-
-
-def compile_cached(func: Callable[..., Any], **options: Any) -> Any:
-    """``numba.njit(**options)(func)``, cached in :func:`cache_folder` when writable."""
-    numba = import_numba()
-
-    folder = _writable_folder()
-    if folder is None:
-        return numba.njit(cache=False, **options)(func)
-    with _numba_cache_dir(folder):
-        return numba.njit(cache=True, **options)(func)
 
 
 class _HideFromThread:
@@ -229,82 +203,15 @@ def import_numba() -> ModuleType:
     return numba
 
 
-#: Set once the process's first kernel call has returned (numba's registries loaded).
+#: Set once the process's first compilation has returned (numba's registries loaded).
 _registries_loaded = False
 
 
-class Kernel:
-    """A kernel called from Python, compiled (or loaded from the cache) on first use.
-
-    Until then it is the plain Python function and numba is not even imported, so a
-    command that imports an analysis without running its kernels does not pay for
-    numba (about 0.15 s of CPU). The first call makes the dispatcher
-    (:func:`compile_cached` with ``options``) after ``prepare()`` (which compiles the
-    helpers the kernel calls); the process's first call of any kernel runs as
-    :func:`first_call` (without scipy.linalg). Later calls go straight to the
-    dispatcher, whose attributes (``signatures``, ``_cache``, ...) the kernel passes on.
-
-    Parameters
-    ----------
-    func
-        The kernel's Python source function.
-    prepare
-        Called once before the dispatcher is made, or None.
-    **options
-        For ``numba.njit``.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from piezo._kernels.filters import sosfilt_inplace
-    >>> isinstance(sosfilt_inplace, Kernel), sosfilt_inplace.__name__
-    (True, 'sosfilt_inplace')
-    >>> x = np.ones((3, 1))  # y[n] = x[n] + 0.5 y[n-1]
-    >>> sosfilt_inplace(np.array([[1.0, 0, 0, 1, -0.5, 0]]), x, np.zeros((1, 2, 1)))
-    >>> x[:, 0].tolist()
-    [1.0, 1.5, 1.75]
-    """
-
-    def __init__(
-        self,
-        func: Callable[..., Any],
-        *,
-        prepare: Callable[[], None] | None = None,
-        **options: Any,
-    ) -> None:
-        self._dispatcher: Any = None
-        self.py_func = func
-        self.__name__ = func.__name__
-        self.__doc__ = func.__doc__
-        self._prepare = prepare
-        self._options = options
-
-    @property
-    def dispatcher(self) -> Any:
-        """The numba dispatcher (made on first access)."""
-        if self._dispatcher is None:
-            if self._prepare is not None:
-                self._prepare()
-            self._dispatcher = compile_cached(self.py_func, **self._options)
-        return self._dispatcher
-
-    def __call__(self, *args: Any) -> Any:
-        if _registries_loaded and self._dispatcher is not None:
-            return self._dispatcher(*args)
-        return first_call(self.dispatcher, *args)
-
-    def __getattr__(self, name: str) -> Any:
-        if name.startswith("__"):  # copy, pickle and the like probe for these
-            raise AttributeError(name)
-        return getattr(self.dispatcher, name)
-
-
 def first_call(func: Callable[..., Any], *args: Any) -> Any:
-    """``func(*args)``; as the process's first kernel call when none has run yet.
+    """``func(*args)``; as the process's first compilation when none has run yet.
 
-    For a kernel called through its dispatcher, e.g. ``first_call(dispatcher.compile,
-    signature)``; :class:`Kernel` calls it itself. After :func:`lean_loading`, the first
-    call runs with ``scipy.linalg`` and ``cffi`` hidden from this thread; if that raises
+    :class:`piezo._kernels.native.Kernel` compiles through it. After :func:`lean_loading`,
+    the first call runs with ``scipy.linalg`` and ``cffi`` hidden from this thread; if that raises
     ImportError (a numba that needs a module after all), it is repeated without the
     guard.
 

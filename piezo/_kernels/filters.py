@@ -21,14 +21,15 @@ The band-bank kernels (:class:`SOSBank`)
     their sections sample by sample, with the sums of squared outputs per segment and
     the full output of one filter (the anti-alias low-pass) as the only results.
 
-All are compiled with ``numba.njit(cache=True, nogil=True)`` on first use (1-3 s,
-once); numba itself is imported then, not when this module is. The machine code is
-cached in a per-user folder outside the package (:mod:`piezo._kernels.cache`); a later
-process imports numba and loads it in about 0.25 s of CPU. When that folder is not
+All are compiled by numba the first time they are used (1-3 s, once per machine);
+numba itself is imported then, not when this module is. The machine code is kept in a
+per-user folder outside the package, and later processes load it without importing
+numba (:mod:`piezo._kernels.native`, about 0.03 s of CPU). When that folder is not
 writable the kernels are compiled in every process.
 ``fastmath`` is limited to ``contract`` (fused multiply-add allowed): no
 reassociation, no assumptions about NaN or infinity, so results differ from scipy's
-``sosfilt`` by rounding only. ``nogil``: threads can run kernels in parallel.
+``sosfilt`` by rounding only. Calls release the interpreter lock: threads can run
+kernels in parallel.
 
 Filter recursion: transposed direct form II per section, as scipy's ``sosfilt``, with
 the additions of ``z0`` ordered so that the new ``y`` enters last (shorter dependency
@@ -46,6 +47,7 @@ pass-through sections (exact: ``y = v``).
 
 from __future__ import annotations
 
+import functools
 import importlib
 import math
 import os
@@ -56,7 +58,8 @@ from typing import Any
 
 import numpy as np
 
-from piezo._kernels.cache import Kernel, compile_cached, first_call, import_numba
+from piezo._kernels.cache import import_numba
+from piezo._kernels.native import Array, Kernel, Scalar
 
 __all__ = [
     "BANK_SECTIONS",
@@ -101,14 +104,14 @@ __all__ = [
 _OPTIONS: dict[str, Any] = {"nogil": True, "fastmath": {"contract"}, "error_model": "numpy"}
 
 
-# The kernels and their helpers stay plain Python functions until the first kernel
-# call: then :func:`_compile_helpers` replaces the helpers in this module's namespace by
-# numba functions (a kernel being compiled looks them up there) and the kernel makes
-# its dispatcher (:class:`piezo._kernels.cache.Kernel`). Importing this module does not
-# import numba.
+# The kernels and their helpers stay plain Python functions until a kernel is compiled
+# (:class:`piezo._kernels.native.Kernel`, when no compiled copy is cached): then
+# :func:`_compile_helpers` replaces the helpers in this module's namespace by numba
+# functions (a kernel being compiled looks them up there). Neither importing this
+# module nor loading a cached kernel imports numba.
 #: Helpers inlined into the kernels that call them.
 _INLINE = ("_biquad", "_coefficients", "_state", "_count_level")
-#: Helpers compiled as functions of their own (called from a kernel), cached.
+#: Helpers compiled as functions of their own (called from a kernel).
 _CALLED = ("_sos_group4",)
 
 
@@ -127,13 +130,29 @@ def _compile_helpers() -> None:
         for name in _INLINE:
             names[name] = numba.njit(inline="always", **_OPTIONS)(names[name])
         for name in _CALLED:
-            names[name] = compile_cached(names[name], **_OPTIONS)
+            names[name] = numba.njit(**_OPTIONS)(names[name])
         _helpers_compiled = True
 
 
-def _kernel(func: Callable) -> Kernel:
-    """A kernel with the options above, cached outside the package when possible."""
-    return Kernel(func, prepare=_compile_helpers, **_OPTIONS)
+def _kernel(
+    *args: Array | Scalar, returns: int = 0, check: Callable[..., None] | None = None
+) -> Callable[[Callable], Kernel]:
+    """Make ``func`` a :class:`Kernel` with these arguments and the options above."""
+
+    def make(func: Callable) -> Kernel:
+        return Kernel(
+            func, args, returns=returns, check=check, prepare=_compile_helpers, **_OPTIONS
+        )
+
+    return make
+
+
+def _f8(ndim: int, written: bool = False) -> Array:
+    return Array("f8", ndim, written)
+
+
+def _i8(ndim: int, written: bool = False) -> Array:
+    return Array("i8", ndim, written)
 
 
 def _biquad(v, b0, b1, b2, a1, a2, z0, z1):
@@ -186,7 +205,17 @@ def _sos_group4(sos, x, zi, g):
             zi[g + 3, 0, c], zi[g + 3, 1, c] = z30, z31
 
 
-@_kernel
+def _check_sosfilt(sos, x, zi) -> None:
+    n_sections = sos.shape[0]
+    if sos.shape[1] != 6:
+        raise ValueError("sos must have shape (sections, 6)")
+    if zi.shape[0] != n_sections or zi.shape[1] != 2 or zi.shape[2] != x.shape[1]:
+        raise ValueError("zi must have shape (sections, 2, channels)")
+    if n_sections and not (sos[:, 3] == 1.0).all():
+        raise ValueError("sos[:, 3] (a0) must be 1")
+
+
+@_kernel(_f8(2), _f8(2, True), _f8(3, True), check=_check_sosfilt)
 def sosfilt_inplace(sos, x, zi):
     """Filter a block in place through a cascade of second-order sections.
 
@@ -214,14 +243,6 @@ def sosfilt_inplace(sos, x, zi):
         When the shapes do not fit together or ``a0`` is not 1.
     """
     n_sections = sos.shape[0]
-    channels = x.shape[1]
-    if sos.shape[1] != 6:
-        raise ValueError("sos must have shape (sections, 6)")
-    if zi.shape[0] != n_sections or zi.shape[1] != 2 or zi.shape[2] != channels:
-        raise ValueError("zi must have shape (sections, 2, channels)")
-    for s in range(n_sections):
-        if sos[s, 3] != 1.0:
-            raise ValueError("sos[:, 3] (a0) must be 1")
     for g in range(0, n_sections, 4):
         _sos_group4(sos, x, zi, g)
 
@@ -292,7 +313,59 @@ def _count_level(hist, c, value, ref_sq, low_db, step_db):
     return 0, 1
 
 
-@_kernel
+def _check_level_meter(x, c_sos, a_sos, zi_c, zi_a, state, *rest) -> None:
+    channels = x.shape[1]
+    if c_sos.shape != (2, 6) or a_sos.shape != (2, 6):
+        raise ValueError("level_meter_block needs two C and two A-only sections")
+    if zi_c.shape != (2, 2, channels) or zi_a.shape != (2, 2, channels):
+        raise ValueError("zi_c and zi_a must have shape (2, 2, channels)")
+    if state.shape != (N_STATE, channels) or rest[-1].shape != (channels,):
+        raise ValueError("state must have shape (N_STATE, channels), scratch (channels,)")
+    hist, hist_other, hist_s, hist_s_other = rest[:4]
+    if hist.shape[0] != channels or hist_s.shape[0] != channels or hist.shape[1] < 1:
+        raise ValueError("hist and hist_s must have shape (channels, bins)")
+    if hist_other.shape != (2, channels) or hist_s_other.shape != (2, channels):
+        raise ValueError("hist_other and hist_s_other must have shape (2, channels)")
+    starts, periods = rest[5], rest[6]
+    if starts.shape != (4,) or periods.shape != (3,) or periods[0] < 1:
+        raise ValueError("starts needs 4 frames, periods 3 (the first >= 1)")
+    trace_out, interval_out = rest[-3], rest[-2]
+    frames = x.shape[0]
+    if periods[2] > 0 and (
+        periods[1] < 1
+        or trace_out.shape[:2] != (2, channels)
+        or trace_out.shape[2] < frames // periods[1] + 1
+        or interval_out.shape[1:] != (INTERVAL_ROWS, channels)
+        or interval_out.shape[0] < frames // periods[2] + 1
+    ):
+        raise ValueError("trace_out or interval_out too small for the block")
+
+
+@_kernel(
+    _f8(2),
+    _f8(2),
+    _f8(2),
+    _f8(3, True),
+    _f8(3, True),
+    _f8(2, True),
+    _i8(2, True),
+    _i8(2, True),
+    _i8(2, True),
+    _i8(2, True),
+    Scalar("i8"),
+    _i8(1),
+    _i8(1),
+    Scalar("f8"),
+    Scalar("f8"),
+    Scalar("f8"),
+    Scalar("f8"),
+    Scalar("f8"),
+    _f8(3, True),
+    _f8(3, True),
+    _f8(1, True),
+    returns=2,
+    check=_check_level_meter,
+)
 def level_meter_block(
     x,
     c_sos,
@@ -314,6 +387,7 @@ def level_meter_block(
     hist_step_db,
     trace_out,
     interval_out,
+    scratch,
 ):
     """One pass of the level meter over a block (see :class:`piezo.levels.meter.LevelMeter`).
 
@@ -356,6 +430,8 @@ def level_meter_block(
         float64 (>= frames // interval + 1, INTERVAL_ROWS, channels): Z, C, A sums, the
         largest A-F value and the largest |yC| of the history intervals completed in
         this block (the maxima count from the settling frame on; -inf before it).
+    scratch
+        float64 (channels,) working space (the kernel allocates nothing).
 
     Returns
     -------
@@ -367,10 +443,8 @@ def level_meter_block(
     frames, channels = x.shape
     if frames == 0:
         return 0, 0
-    if c_sos.shape[0] != 2 or a_sos.shape[0] != 2:
-        raise ValueError("level_meter_block needs two C and two A-only sections")
     # Validate first (the state must stay untouched on error); the sums are kept.
-    sum_z = np.empty(channels)
+    sum_z = scratch
     for c in range(channels):
         s0 = s1 = s2 = s3 = 0.0
         i = 0
@@ -654,14 +728,24 @@ def bank_module_source() -> str:
     )
 
 
-_BANK_SIGNATURE = (
-    "(f8[::1], f8[:, :, :, ::1], f8[:, :, :, ::1], i8[::1], f8[:, :, ::1], f8[::1], f8)"
-)
-_BANK_KERNELS: dict[int, Callable] = {}
+_BANK_KERNELS: dict[int, Kernel] = {}
 
 
-def _bank_kernel(lanes: int) -> Callable:
-    """The compiled bank kernel for ``lanes`` lanes (compiled or loaded on first use).
+def _check_bank(lanes: int, x, co, z, bounds, sums, out, gain0) -> None:
+    groups = co.shape[0]
+    if co.shape[1:] != (BANK_SECTIONS, 3, lanes) or z.shape != (groups, BANK_SECTIONS, 2, lanes):
+        raise ValueError("co must be (groups, sections, 3, lanes), z (groups, sections, 2, lanes)")
+    if bounds.shape[0] < 1 or sums.shape != (bounds.shape[0] - 1, groups, lanes):
+        raise ValueError("sums must have shape (segments, groups, lanes)")
+    if out.shape[0] < x.shape[0] or bounds[0] < 0 or bounds[-1] > x.shape[0]:
+        raise ValueError("out shorter than x, or segment bounds outside x")
+    if (bounds[1:] < bounds[:-1]).any():
+        raise ValueError("segment bounds must not decrease")
+
+
+def _bank_kernel(lanes: int) -> Kernel:
+    """The bank kernel for ``lanes`` lanes (compiled, or loaded from the cache, on first
+    use).
 
     numba leaves LLVM's SLP vectoriser off by default; it is switched on for these
     compilations only. ``fastmath`` allows contraction into fused multiply-adds and
@@ -674,22 +758,16 @@ def _bank_kernel(lanes: int) -> Callable:
     # The generated module sits beside this one (imported relative to this module's
     # package, so a copy of the two files outside the package works as well).
     module = importlib.import_module(f"{__package__}.bank" if __package__ else "bank")
-    func = getattr(module, f"bank{lanes}")
-    numba = import_numba()
-
-    config: Any = numba.core.config  # settings are plain module attributes
-    previous = config.SLP_VECTORIZE
-    config.SLP_VECTORIZE = 1
-    options: dict[str, Any] = {
-        "nogil": True,
-        "fastmath": {"contract", "reassoc"},
-        "error_model": "numpy",
-    }
-    try:
-        kernel = compile_cached(func, **options)
-        first_call(kernel.compile, _BANK_SIGNATURE)
-    finally:
-        config.SLP_VECTORIZE = previous
+    kernel = Kernel(
+        getattr(module, f"bank{lanes}"),
+        (_f8(1), _f8(4), _f8(4, True), _i8(1), _f8(3, True), _f8(1, True), Scalar("f8")),
+        check=functools.partial(_check_bank, lanes),
+        sources=(__file__,),
+        slp=True,
+        nogil=True,
+        fastmath={"contract", "reassoc"},
+        error_model="numpy",
+    )
     _BANK_KERNELS[lanes] = kernel
     return kernel
 
@@ -762,7 +840,6 @@ class SOSBank:
             co.reshape(groups, lanes, BANK_SECTIONS, 3).transpose(0, 2, 3, 1)
         )
         self._z = np.zeros((self.channels, groups, BANK_SECTIONS, 2, lanes))
-        self._kernel = _bank_kernel(lanes)
         self._gain0 = float(gain[0])
         self._slot_of_filter = np.argsort(self._order)  # filter i sits in this slot
         self._gain_sq = gain[self._slot_of_filter] ** 2
@@ -789,14 +866,15 @@ class SOSBank:
             out = np.empty((self.channels, n))
         elif out.shape[1] != n:
             out = out[:, :n]
+        kernel = _bank_kernel(self._lanes)  # not kept: the bank stays picklable
         if self.channels == 1:
             xc = x[:, 0] if x.flags.c_contiguous else np.ascontiguousarray(x[:, 0])
-            self._kernel(xc, self._co, self._z[0], bounds, sums[0], out[0], self._gain0)
+            kernel(xc, self._co, self._z[0], bounds, sums[0], out[0], self._gain0)
         else:
 
             def run(c: int) -> None:
                 xc = np.ascontiguousarray(x[:, c])
-                self._kernel(xc, self._co, self._z[c], bounds, sums[c], out[c], self._gain0)
+                kernel(xc, self._co, self._z[c], bounds, sums[c], out[c], self._gain0)
 
             if n >= _THREAD_MIN_FRAMES:
                 list(_pool().map(run, range(self.channels)))

@@ -418,6 +418,7 @@ class LevelMeter:
         self._int_store = _Growing((3, ch))
         self._int_max_store = _Growing((2, ch))
         self._trace_store = _Growing((2, ch))
+        self._scratch = np.empty(ch)  # the compiled pass's working space
 
     # ---------------------------------------------------------------- streaming input
     def update(self, block: ArrayLike) -> None:
@@ -461,6 +462,7 @@ class LevelMeter:
             HISTOGRAM_STEP_DB,
             self._trace_buf,
             self._int_buf,
+            self._scratch,
         )
         if n_trace < 0:  # nothing was updated
             if first_block:

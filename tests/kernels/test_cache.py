@@ -1,5 +1,5 @@
 """The per-user design cache (outside the package, same figures as a fresh design) and
-the first kernel call (numba's registries loaded without scipy.linalg)."""
+the first compilation (numba's registries loaded without scipy.linalg)."""
 
 from __future__ import annotations
 
@@ -17,7 +17,8 @@ import pytest
 import piezo
 from piezo._kernels import cache
 from piezo._kernels import filters as kern
-from piezo._kernels.cache import Kernel, cached_arrays, design_folder, hidden_module
+from piezo._kernels.cache import cached_arrays, design_folder, hidden_module
+from piezo._kernels.native import Kernel
 from piezo.levels import weighting
 from tests.paths import REPO
 
@@ -180,8 +181,15 @@ def _child(code, cwd, *args, env=None):
 
 
 def _first_call_child(tmp_path, mode):
-    # An empty numba cache of its own: every kernel is compiled in the child.
-    env = {"NUMBA_CACHE_DIR": str(tmp_path / "numba")}
+    # A cache folder of its own, holding the weighting design (made by a first child:
+    # designing imports scipy.signal) but no kernel: every kernel is compiled in the child.
+    env = {"PIEZO_CACHE_DIR": str(tmp_path / "cache")}
+    design = (
+        "from piezo.levels.weighting import weighting_chain_sos, weighting_chain_zi\n"
+        "weighting_chain_sos(48000), weighting_chain_zi(48000)\n"
+    )
+    _child(design, tmp_path, env=env)
+    assert not (tmp_path / "cache" / "kernels").exists()
     linalg, cffi, yaml, error = _child(_FIRST_CALL_CHILD, tmp_path, mode, env=env).split()
     # The same cascade in transposed direct form II as scipy: rounding only (the C and A
     # weighting sections at 48 kHz, a few ulp per section; 1e-12 of the peak is far
@@ -223,15 +231,16 @@ def test_a_numba_config_file_in_the_current_folder_is_still_read(tmp_path):
     assert _child(child, tmp_path).split() == ["True", "1"]
 
 
-def test_kernel_passes_attributes_to_the_dispatcher():
+def test_kernel_keeps_the_python_function():
     assert kern.sosfilt_inplace.py_func.__name__ == "sosfilt_inplace"
     assert kern.sosfilt_inplace.__doc__ == kern.sosfilt_inplace.py_func.__doc__
     assert isinstance(kern.level_meter_block, Kernel)
 
 
 def test_importing_the_analyses_does_not_import_numba(tmp_path):
-    # numba (about 0.15 s of CPU) is imported by the first kernel call, not by importing
-    # a module that may never run one (``piezo info``, ``spectrum`` and ``tone`` do not).
+    # numba (about 0.15 s of CPU) is imported to compile a kernel that is not cached yet,
+    # not by importing a module that may never run one (``piezo info``, ``spectrum`` and
+    # ``tone`` do not), nor to load a kernel compiled before.
     child = (
         "import sys\n"
         "import piezo.chain.measurement, piezo.levels.meter, piezo.levels.stats\n"
@@ -243,4 +252,6 @@ def test_importing_the_analyses_does_not_import_numba(tmp_path):
         "print('numba' in sys.modules, x[:, 0].tolist())\n"
     )
     # y[n] = x[n] + 0.5 y[n-1] on ones: 1, 1.5.
-    assert _child(child, tmp_path).split(maxsplit=1) == ["True", "[1.0, 1.5]\n"]
+    env = {"PIEZO_CACHE_DIR": str(tmp_path / "cache")}
+    assert _child(child, tmp_path, env=env).split(maxsplit=1) == ["True", "[1.0, 1.5]\n"]
+    assert _child(child, tmp_path, env=env).split(maxsplit=1) == ["False", "[1.0, 1.5]\n"]
