@@ -222,6 +222,18 @@ def stub_runtime(ir: str) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _load_object(symbol: str, obj: bytes) -> tuple[Any, int]:
+    """(engine, address of ``symbol``): the object file loaded by llvmlite's MCJIT."""
+    llvm = _llvm()
+    engine = llvm.create_mcjit_compiler(llvm.parse_assembly(""), _target_machine())
+    engine.add_object_file(llvm.ObjectFileRef.from_data(obj))
+    engine.finalize_object()
+    address = engine.get_function_address(symbol)
+    if not address:
+        raise RuntimeError(f"symbol {symbol} not in the compiled kernel")
+    return engine, address
+
+
 # --- cache files ----------------------------------------------------------------------
 def _pack(symbol: str, key: str, obj: bytes) -> bytes:
     digest = hashlib.sha256(obj).hexdigest()
@@ -350,7 +362,8 @@ class Kernel:
         self._function: Any = None
         self._engine: Any = None  # keeps the loaded machine code alive
         self._lock = threading.Lock()
-        #: How the machine code was obtained: None (not yet), "cache" or "compiled".
+        #: How the machine code was obtained: None (not yet), "cache", "compiled", or
+        #: "numba" (llvmlite could not load the object file: numba's JIT runs it).
         self.origin: str | None = None
 
     # ------------------------------------------------------------------ compilation
@@ -388,6 +401,11 @@ class Kernel:
 
     def native_ir(self) -> tuple[str, str]:
         """Compile with numba; (symbol, optimised LLVM module with the runtime stubbed)."""
+        wrapper = self._numba_wrapper()
+        return wrapper.native_name, stub_runtime(wrapper.inspect_llvm())
+
+    def _numba_wrapper(self) -> Any:
+        """The kernel compiled by numba behind its C-callable wrapper (a numba ``cfunc``)."""
         numba = import_numba()
         if self._prepare is not None:
             self._prepare()
@@ -406,8 +424,7 @@ class Kernel:
             if self.returns:
                 c_types.append(t.CPointer(t.int64))
             signature = t.int64(*c_types)
-            wrapper = numba.cfunc(signature, **self._options)(namespace[f"{self.__name__}_c"])
-        return wrapper.native_name, stub_runtime(wrapper.inspect_llvm())
+            return numba.cfunc(signature, **self._options)(namespace[f"{self.__name__}_c"])
 
     def _load(self) -> Any:
         with self._lock:
@@ -425,14 +442,13 @@ class Kernel:
                 if writable_cache_folder() is not None:
                     with contextlib.suppress(OutputError):
                         write_bytes_atomic(path, _pack(found[0], key, found[1]))
-            symbol, obj = found
-            llvm = _llvm()
-            engine = llvm.create_mcjit_compiler(llvm.parse_assembly(""), _target_machine())
-            engine.add_object_file(llvm.ObjectFileRef.from_data(obj))
-            engine.finalize_object()
-            address = engine.get_function_address(symbol)
-            if not address:
-                raise RuntimeError(f"compiled kernel {self.__name__}: symbol {symbol} missing")
+            try:
+                engine, address = _load_object(*found)
+            except RuntimeError:
+                # An llvmlite that cannot load the object here: run numba's own copy.
+                engine = first_call(self._numba_wrapper)
+                address = engine.address
+                origin = "numba"
             c_args: list[Any] = []
             for arg in self.args:
                 if isinstance(arg, Array):

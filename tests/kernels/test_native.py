@@ -210,3 +210,13 @@ def test_the_key_is_the_same_in_every_process():
         for seed in range(1, 9)  # two orders: all eight alike by chance 1 in 128
     }
     assert len(keys) == 1, keys
+
+
+def test_numba_runs_the_kernel_when_llvmlite_cannot_load_it(cache_dir, monkeypatch):
+    def refuse(symbol, obj):
+        raise RuntimeError("no MCJIT here")
+
+    monkeypatch.setattr(native, "_load_object", refuse)
+    kernel = Kernel(_count_above, (Array("f8", 1), Scalar("f8")), returns=1)
+    assert kernel(np.array([1.0, 2.0, 0.2]), 0.5) == 2
+    assert kernel.origin == "numba"
