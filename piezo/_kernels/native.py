@@ -209,12 +209,21 @@ def stub_runtime(ir: str) -> str:
             "  unreachable",
             "}",
         ]
+    report: list[str] = []
+    if os.name == "posix":  # write(2) to stderr; elsewhere only the C library's abort()
+        report = [
+            f'@piezo_fault_text = private constant [{len(message)} x i8] c"{text}"',
+            "declare i64 @write(i32, ptr, i64)",
+        ]
     lines += [
-        f'@piezo_fault_text = private constant [{len(message)} x i8] c"{text}"',
-        "declare i64 @write(i32, ptr, i64)",
+        *report[:2],
         "declare void @abort() noreturn",
         "define internal void @piezo_kernel_fault() noreturn cold {",
-        f"  %n = call i64 @write(i32 2, ptr @piezo_fault_text, i64 {len(message)})",
+        *(
+            [f"  %n = call i64 @write(i32 2, ptr @piezo_fault_text, i64 {len(message)})"]
+            if report
+            else []
+        ),
         "  call void @abort()",
         "  unreachable",
         "}",

@@ -220,3 +220,31 @@ def test_numba_runs_the_kernel_when_llvmlite_cannot_load_it(cache_dir, monkeypat
     kernel = Kernel(_count_above, (Array("f8", 1), Scalar("f8")), returns=1)
     assert kernel(np.array([1.0, 2.0, 0.2]), 0.5) == 2
     assert kernel.origin == "numba"
+
+
+def test_a_kernel_that_raises_after_all_reports_and_aborts(tmp_path):
+    # The documented dead path, taken on purpose: a kernel that raises reaches numba's
+    # exception machinery, whose runtime calls are stubs. The process must stop with the
+    # report on stderr rather than run on with a half-done result.
+    code = (
+        "import numpy as np\n"
+        "from piezo._kernels.native import Array, Kernel\n"
+        "def broken(x):\n"
+        "    if x.shape[0] > 1:\n"
+        "        raise ValueError('no')\n"
+        "    return 0\n"
+        "k = Kernel(broken, (Array('f8', 1),), returns=1)\n"
+        "print(k(np.ones(1)), flush=True)\n"
+        "k(np.ones(2))\n"
+        "print('ran on')\n"
+    )
+    run = subprocess.run(
+        [sys.executable, "-c", code],
+        env={**os.environ, "PIEZO_CACHE_DIR": str(tmp_path), "PYTHONPATH": str(REPO)},
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert run.stdout.split() == ["0"], (run.stdout, run.stderr)
+    assert run.returncode != 0
+    assert "compiled kernel reached numba's error path" in run.stderr
