@@ -13,7 +13,8 @@ Three kernels live here:
     per sample: the C and A weighting cascades, sums of squares, Z and C peaks, the F
     and S exponential averagers of the A-, C- and Z-weighted squares with their maxima
     and minima, the A-F and A-S level samples for the percentile histograms, and the
-    level history (interval sums, A-F maxima and C peaks, F/S traces).
+    level history (interval sums, A-F maxima and C peaks, F/S traces). The per-sample
+    work runs in :func:`_level_segment`, compiled apart with LLVM's SLP vectoriser on.
 
 The band-bank kernels (:class:`SOSBank`)
     Many filters driven by one input (a stage of the fractional-octave filter bank of
@@ -112,7 +113,7 @@ _OPTIONS: dict[str, Any] = {"nogil": True, "fastmath": {"contract"}, "error_mode
 #: Helpers inlined into the kernels that call them.
 _INLINE = ("_biquad", "_coefficients", "_state", "_count_level")
 #: Helpers compiled as functions of their own (called from a kernel).
-_CALLED = ("_sos_group4",)
+_CALLED = ("_sos_group4", "_level_segment")
 
 
 _HELPERS_LOCK = threading.Lock()
@@ -135,13 +136,22 @@ def _compile_helpers() -> None:
 
 
 def _kernel(
-    *args: Array | Scalar, returns: int = 0, check: Callable[..., None] | None = None
+    *args: Array | Scalar,
+    returns: int = 0,
+    check: Callable[..., None] | None = None,
+    slp: bool = False,
 ) -> Callable[[Callable], Kernel]:
     """Make ``func`` a :class:`Kernel` with these arguments and the options above."""
 
     def make(func: Callable) -> Kernel:
         return Kernel(
-            func, args, returns=returns, check=check, prepare=_compile_helpers, **_OPTIONS
+            func,
+            args,
+            returns=returns,
+            check=check,
+            prepare=_compile_helpers,
+            slp=slp,
+            **_OPTIONS,
         )
 
     return make
@@ -313,6 +323,71 @@ def _count_level(hist, c, value, ref_sq, low_db, step_db):
     return 0, 1
 
 
+def _level_segment(
+    x, c, i, end, c_sos, a_sos, a_f, b_f, a_s, b_s,
+    zc00, zc01, zc10, zc11, za00, za01, za10, za11, yf, ys, cf, cs, zf, zs,
+):  # fmt: skip
+    """The level meter's per-sample work over frames ``i..end-1`` of channel ``c``.
+
+    A function of its own, compiled apart from :func:`level_meter_block` with LLVM's SLP
+    vectoriser on: alone, its loop is packed into SIMD operations (the averagers and
+    their extremes side by side), which LLVM did not do inside the whole kernel (the whole
+    pass, one call over 60 s of noise in memory: 8.8 against 10.2-10.5 ns per frame).
+    Returns the 14 states after the segment, then the
+    sums of the Z, C and A squares, the Z and C peaks, the six maxima and the six minima
+    of the A-F, A-S, C-F, C-S, Z-F and Z-S values.
+    """
+    cb00, cb01, cb02, ca01, ca02 = _coefficients(c_sos, 0)
+    cb10, cb11, cb12, ca11, ca12 = _coefficients(c_sos, 1)
+    ab00, ab01, ab02, aa01, aa02 = _coefficients(a_sos, 0)
+    ab10, ab11, ab12, aa11, aa12 = _coefficients(a_sos, 1)
+    seg_pz = 0.0
+    seg_pc = 0.0
+    seg_z = 0.0
+    seg_c = 0.0
+    seg_a = 0.0
+    seg_f_max = seg_s_max = seg_cf_max = seg_cs_max = seg_zf_max = seg_zs_max = -math.inf
+    seg_f_min = seg_s_min = seg_cf_min = seg_cs_min = seg_zf_min = seg_zs_min = math.inf
+    for j in range(i, end):
+        v = x[j, c]
+        yc, zc00, zc01 = _biquad(v, cb00, cb01, cb02, ca01, ca02, zc00, zc01)
+        yc, zc10, zc11 = _biquad(yc, cb10, cb11, cb12, ca11, ca12, zc10, zc11)
+        ya, za00, za01 = _biquad(yc, ab00, ab01, ab02, aa01, aa02, za00, za01)
+        ya, za10, za11 = _biquad(ya, ab10, ab11, ab12, aa11, aa12, za10, za11)
+        qa = ya * ya
+        qc = yc * yc
+        qz = v * v
+        seg_z += qz
+        seg_c += qc
+        seg_a += qa
+        seg_pz = max(seg_pz, abs(v))
+        seg_pc = max(seg_pc, abs(yc))
+        yf = a_f * yf + b_f * qa
+        ys = a_s * ys + b_s * qa
+        cf = a_f * cf + b_f * qc
+        cs = a_s * cs + b_s * qc
+        zf = a_f * zf + b_f * qz
+        zs = a_s * zs + b_s * qz
+        seg_f_max = max(seg_f_max, yf)
+        seg_f_min = min(seg_f_min, yf)
+        seg_s_max = max(seg_s_max, ys)
+        seg_s_min = min(seg_s_min, ys)
+        seg_cf_max = max(seg_cf_max, cf)
+        seg_cf_min = min(seg_cf_min, cf)
+        seg_cs_max = max(seg_cs_max, cs)
+        seg_cs_min = min(seg_cs_min, cs)
+        seg_zf_max = max(seg_zf_max, zf)
+        seg_zf_min = min(seg_zf_min, zf)
+        seg_zs_max = max(seg_zs_max, zs)
+        seg_zs_min = min(seg_zs_min, zs)
+    return (
+        zc00, zc01, zc10, zc11, za00, za01, za10, za11, yf, ys, cf, cs, zf, zs,
+        seg_z, seg_c, seg_a, seg_pz, seg_pc,
+        seg_f_max, seg_s_max, seg_cf_max, seg_cs_max, seg_zf_max, seg_zs_max,
+        seg_f_min, seg_s_min, seg_cf_min, seg_cs_min, seg_zf_min, seg_zs_min,
+    )  # fmt: skip
+
+
 def _check_level_meter(x, c_sos, a_sos, zi_c, zi_a, state, *rest) -> None:
     channels = x.shape[1]
     if c_sos.shape != (2, 6) or a_sos.shape != (2, 6):
@@ -365,6 +440,7 @@ def _check_level_meter(x, c_sos, a_sos, zi_c, zi_a, state, *rest) -> None:
     _f8(1, True),
     returns=2,
     check=_check_level_meter,
+    slp=True,
 )
 def level_meter_block(
     x,
@@ -471,10 +547,6 @@ def level_meter_block(
     i_fmin = min(max(starts[1] - frame0, 0), frames)
     i_pct = min(max(starts[2] - frame0, 0), frames)
     i_smin = min(max(starts[3] - frame0, 0), frames)
-    cb00, cb01, cb02, ca01, ca02 = _coefficients(c_sos, 0)
-    cb10, cb11, cb12, ca11, ca12 = _coefficients(c_sos, 1)
-    ab00, ab01, ab02, aa01, aa02 = _coefficients(a_sos, 0)
-    ab10, ab11, ab12, aa11, aa12 = _coefficients(a_sos, 1)
     n_trace = 0
     n_interval = 0
     for c in range(channels):
@@ -506,7 +578,8 @@ def level_meter_block(
         i = 0
         while i < frames:
             # A segment ends at the next event (sampling instant, interval end) or where
-            # a statistic starts counting, so the inner loop has no branches and calls.
+            # a statistic starts counting, so the per-sample loop (_level_segment) has no
+            # branches.
             end = min(frames, i + to_pct, i + to_trace, i + to_interval)
             if i < i_settle:
                 end = min(end, i_settle)
@@ -514,45 +587,16 @@ def level_meter_block(
                 end = min(end, i_fmin)
             if i < i_smin:
                 end = min(end, i_smin)
-            seg_pz = 0.0
-            seg_pc = 0.0
-            seg_z = 0.0
-            seg_c = 0.0
-            seg_a = 0.0
-            seg_f_max = seg_s_max = seg_cf_max = seg_cs_max = seg_zf_max = seg_zs_max = -math.inf
-            seg_f_min = seg_s_min = seg_cf_min = seg_cs_min = seg_zf_min = seg_zs_min = math.inf
-            for j in range(i, end):
-                v = x[j, c]
-                yc, zc00, zc01 = _biquad(v, cb00, cb01, cb02, ca01, ca02, zc00, zc01)
-                yc, zc10, zc11 = _biquad(yc, cb10, cb11, cb12, ca11, ca12, zc10, zc11)
-                ya, za00, za01 = _biquad(yc, ab00, ab01, ab02, aa01, aa02, za00, za01)
-                ya, za10, za11 = _biquad(ya, ab10, ab11, ab12, aa11, aa12, za10, za11)
-                qa = ya * ya
-                qc = yc * yc
-                qz = v * v
-                seg_z += qz
-                seg_c += qc
-                seg_a += qa
-                seg_pz = max(seg_pz, abs(v))
-                seg_pc = max(seg_pc, abs(yc))
-                yf = a_f * yf + b_f * qa
-                ys = a_s * ys + b_s * qa
-                cf = a_f * cf + b_f * qc
-                cs = a_s * cs + b_s * qc
-                zf = a_f * zf + b_f * qz
-                zs = a_s * zs + b_s * qz
-                seg_f_max = max(seg_f_max, yf)
-                seg_f_min = min(seg_f_min, yf)
-                seg_s_max = max(seg_s_max, ys)
-                seg_s_min = min(seg_s_min, ys)
-                seg_cf_max = max(seg_cf_max, cf)
-                seg_cf_min = min(seg_cf_min, cf)
-                seg_cs_max = max(seg_cs_max, cs)
-                seg_cs_min = min(seg_cs_min, cs)
-                seg_zf_max = max(seg_zf_max, zf)
-                seg_zf_min = min(seg_zf_min, zf)
-                seg_zs_max = max(seg_zs_max, zs)
-                seg_zs_min = min(seg_zs_min, zs)
+            (
+                zc00, zc01, zc10, zc11, za00, za01, za10, za11,
+                yf, ys, cf, cs, zf, zs,
+                seg_z, seg_c, seg_a, seg_pz, seg_pc,
+                seg_f_max, seg_s_max, seg_cf_max, seg_cs_max, seg_zf_max, seg_zs_max,
+                seg_f_min, seg_s_min, seg_cf_min, seg_cs_min, seg_zf_min, seg_zs_min,
+            ) = _level_segment(
+                x, c, i, end, c_sos, a_sos, a_f, b_f, a_s, b_s,
+                zc00, zc01, zc10, zc11, za00, za01, za10, za11, yf, ys, cf, cs, zf, zs,
+            )  # fmt: skip
             sum_c += seg_c
             sum_a += seg_a
             if i >= i_settle:
