@@ -74,10 +74,12 @@ MAX_EDGE_RATIO = 0.475
 #: Anti-alias low-pass: passband ripple (dB) and stopband attenuation (dB).
 ANTI_ALIAS_RIPPLE_DB = 0.002
 ANTI_ALIAS_STOP_DB = 100.0
+# The two sizes below, measured on 30 s of noise in memory (fraction 3, 48 kHz, three
+# rounds alternating): 10.4-10.6 ns per frame as set, 10.8-11.0 with 8192 and 65536.
 #: Samples gathered at a decimated stage before it is filtered (amortises call cost).
-_STAGE_CHUNK = 8192
-#: Longest piece of input filtered at once.
-_UPDATE_FRAMES = 65536
+_STAGE_CHUNK = 32768
+#: Longest piece of input filtered at once (one read block of piezo.io.reader).
+_UPDATE_FRAMES = 131072
 
 #: Segment starts of a chunk without history intervals (read only).
 _ONE_SEGMENT = np.zeros(1, dtype=np.int64)
