@@ -397,9 +397,10 @@ class Kernel:
         ]
         return hashlib.sha256("\n".join(parts).encode()).hexdigest()
 
-    def cache_path(self) -> Path:
-        """The cache file of this kernel (it may not exist)."""
-        return cache_folder() / f"{self.__name__}-{self.cache_key()[:24]}.o"
+    def cache_path(self, key: str | None = None) -> Path:
+        """The cache file of this kernel (it may not exist); ``key``: its cache key, when
+        known already."""
+        return cache_folder() / f"{self.__name__}-{(key or self.cache_key())[:24]}.o"
 
     def compile(self) -> tuple[str, bytes]:
         """Compile with numba; (symbol, object file for this processor)."""
@@ -440,7 +441,7 @@ class Kernel:
             if self._function is not None:
                 return self._function
             key = self.cache_key()
-            path = cache_folder() / f"{self.__name__}-{key[:24]}.o"
+            path = self.cache_path(key)
             found = None
             with contextlib.suppress(OSError):
                 found = _unpack(path.read_bytes(), key)
