@@ -49,7 +49,6 @@ import gc
 import io
 import os
 import sys
-import tempfile
 import threading
 from collections.abc import Callable, Iterator
 from functools import cache
@@ -69,7 +68,6 @@ __all__ = [
     "hidden_module",
     "import_numba",
     "lean_loading",
-    "writable_cache_folder",
 ]
 
 
@@ -102,19 +100,6 @@ def _piezo_cache(name: str) -> Path:
     if piezo_dir:
         return Path(piezo_dir) / name
     return _platform_cache_home() / "piezo" / name
-
-
-@cache
-def writable_cache_folder() -> str | None:
-    """:func:`cache_folder` as a string once created and found writable, else None."""
-    folder = cache_folder()
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        with tempfile.TemporaryFile(dir=folder):
-            pass
-    except OSError:
-        return None
-    return str(folder)
 
 
 class _HideFromThread:

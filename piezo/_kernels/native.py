@@ -65,7 +65,7 @@ from typing import Any
 
 import numpy as np
 
-from piezo._kernels.cache import cache_folder, first_call, import_numba, writable_cache_folder
+from piezo._kernels.cache import cache_folder, first_call, import_numba
 from piezo.errors import OutputError
 from piezo.io.atomic import write_bytes_atomic
 
@@ -449,9 +449,9 @@ class Kernel:
             if found is None:
                 found = first_call(self.compile)
                 origin = "compiled"
-                if writable_cache_folder() is not None:
-                    with contextlib.suppress(OutputError):
-                        write_bytes_atomic(path, _pack(found[0], key, found[1]))
+                with contextlib.suppress(OSError, OutputError):  # not kept: compiled again
+                    path.parent.mkdir(parents=True, exist_ok=True)
+                    write_bytes_atomic(path, _pack(found[0], key, found[1]))
             try:
                 engine, address = _load_object(*found)
             except RuntimeError:

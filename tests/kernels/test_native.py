@@ -46,12 +46,7 @@ def _scale(x, k):
 @pytest.fixture
 def cache_dir(tmp_path, monkeypatch):
     monkeypatch.setenv("PIEZO_CACHE_DIR", str(tmp_path))
-    native_cache = tmp_path / "kernels"
-    from piezo._kernels import cache
-
-    cache.writable_cache_folder.cache_clear()
-    yield native_cache
-    cache.writable_cache_folder.cache_clear()
+    return tmp_path / "kernels"
 
 
 def test_results_match_python_and_returns_are_typed(cache_dir, rng):
