@@ -60,12 +60,13 @@ import sys
 import threading
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
+from functools import cache
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from piezo._kernels.cache import cache_folder, first_call, import_numba
+from piezo._kernels.cache import cache_folder, code_digest, first_call, import_numba
 from piezo.errors import OutputError
 from piezo.io.atomic import write_bytes_atomic
 
@@ -162,6 +163,7 @@ def _llvm() -> Any:
     return llvm
 
 
+@cache
 def _host() -> tuple[str, str]:
     """Processor name and features, as numba compiles for them (its overrides honoured)."""
     llvm = _llvm()
@@ -216,7 +218,7 @@ def stub_runtime(ir: str) -> str:
             "declare i64 @write(i32, ptr, i64)",
         ]
     lines += [
-        *report[:2],
+        *report,
         "declare void @abort() noreturn",
         "define internal void @piezo_kernel_fault() noreturn cold {",
         *(
@@ -286,17 +288,14 @@ def _canonical(value: Any) -> str:
     return repr(value)
 
 
-def _file_digest(path: str | os.PathLike[str]) -> str:
-    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
-
-
+@cache
 def _numba_version_file() -> str:
     """numba's ``_version.py``, found without importing numba (its version is in it)."""
     spec = importlib.util.find_spec("numba")
     if spec is None or not spec.submodule_search_locations:
         return ""
     path = Path(next(iter(spec.submodule_search_locations))) / "_version.py"
-    return _file_digest(path) if path.is_file() else ""
+    return code_digest(str(path)) if path.is_file() else ""
 
 
 class Kernel:
@@ -388,7 +387,7 @@ class Kernel:
             repr(self.args),
             repr(sorted((k, _canonical(v)) for k, v in self._options.items())),
             f"slp={self._slp}",
-            *(_file_digest(s) for s in self._sources),
+            *(code_digest(s) for s in self._sources),
             _numba_version_file(),
             f"llvmlite {llvmlite.__version__} llvm {llvm.llvm_version_info}",
             f"python {sys.version_info[:2]}",
